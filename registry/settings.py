@@ -1,0 +1,178 @@
+"""Django settings for the control-mark registry.
+
+Everything that differs between a laptop demo and a production office comes
+from the environment (see ``deploy/README.md`` for the full list):
+
+``REGISTRY_PRODUCTION``  1 for production mode (DEBUG off, secure cookies, secrets required)
+``DATABASE_URL``         e.g. ``postgres://registry@127.0.0.1:5432/registry``; unset: SQLite in ``var/``
+``REGISTRY_SECRET_KEY``  Django's secret key (required in production)
+``REGISTRY_ALLOWED_HOSTS`` comma-separated host names
+``REGISTRY_DATA_DIR``    where the SQLite file, uploads and generated files live (default ``var/``)
+``REGISTRY_GEOID_DIR``   folder holding the office's geoid grids (added to PROJ's search path)
+``REGISTRY_BASEMAP_URL`` optional XYZ tile URL for map panels; empty: no basemap
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import dj_database_url
+
+from registry.envconfig import env_bool, env_list, env_secret
+
+BASE_DIR = Path(__file__).resolve().parent.parent
+PRODUCTION = env_bool("REGISTRY_PRODUCTION", False)
+DEBUG = env_bool("REGISTRY_DEBUG", not PRODUCTION)
+DATA_DIR = Path(os.environ.get("REGISTRY_DATA_DIR", BASE_DIR / "var"))
+
+SECRET_KEY = env_secret(
+    "REGISTRY_SECRET_KEY",
+    production=PRODUCTION,
+    dev_default="dev-only-insecure-key-never-use-in-production-0123456789abcdef",
+)
+ALLOWED_HOSTS = env_list("REGISTRY_ALLOWED_HOSTS", [] if PRODUCTION else ["127.0.0.1", "localhost", "testserver"])
+CSRF_TRUSTED_ORIGINS = env_list("REGISTRY_CSRF_TRUSTED_ORIGINS", [])
+
+INSTALLED_APPS = [
+    "django.contrib.admin",
+    "django.contrib.auth",
+    "django.contrib.contenttypes",
+    "django.contrib.sessions",
+    "django.contrib.messages",
+    "django.contrib.staticfiles",
+    "django.contrib.humanize",
+    "rest_framework",
+    "rest_framework.authtoken",
+    "drf_spectacular",
+    "registry.apps.RegistryConfig",
+]
+
+MIDDLEWARE = [
+    "django.middleware.security.SecurityMiddleware",
+    "whitenoise.middleware.WhiteNoiseMiddleware",
+    "django.contrib.sessions.middleware.SessionMiddleware",
+    "django.middleware.common.CommonMiddleware",
+    "django.middleware.csrf.CsrfViewMiddleware",
+    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "django.contrib.messages.middleware.MessageMiddleware",
+    "django.middleware.clickjacking.XFrameOptionsMiddleware",
+]
+
+ROOT_URLCONF = "registry.urls"
+WSGI_APPLICATION = "registry.wsgi.application"
+
+TEMPLATES = [
+    {
+        "BACKEND": "django.template.backends.django.DjangoTemplates",
+        "DIRS": [BASE_DIR / "templates"],
+        "APP_DIRS": True,
+        "OPTIONS": {
+            "context_processors": [
+                "django.template.context_processors.request",
+                "django.contrib.auth.context_processors.auth",
+                "django.contrib.messages.context_processors.messages",
+                "registry.web.context.registry_context",
+            ],
+        },
+    }
+]
+
+_default_sqlite = f"sqlite:///{DATA_DIR / 'registry.sqlite3'}"
+DATABASES = {
+    "default": dj_database_url.parse(
+        os.environ.get("DATABASE_URL", "") or _default_sqlite,
+        conn_max_age=int(os.environ.get("REGISTRY_DB_CONN_MAX_AGE", "60" if PRODUCTION else "0")),
+    )
+}
+if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+    DATABASES["default"].setdefault("OPTIONS", {})
+    DATABASES["default"]["OPTIONS"].update({"timeout": 20, "transaction_mode": "IMMEDIATE"})
+DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
+
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+    {"NAME": "django.contrib.auth.password_validation.NumericPasswordValidator"},
+]
+
+LANGUAGE_CODE = "en"
+TIME_ZONE = "UTC"
+USE_I18N = False
+USE_TZ = True
+
+STATIC_URL = "static/"
+STATIC_ROOT = DATA_DIR / "static"
+STATICFILES_DIRS = [BASE_DIR / "registry" / "web" / "static"]
+MEDIA_ROOT = Path(os.environ.get("REGISTRY_MEDIA_ROOT", DATA_DIR / "media"))
+MEDIA_URL = "media/"
+STORAGES = {
+    "default": {"BACKEND": "django.core.files.storage.FileSystemStorage"},
+    "staticfiles": {
+        "BACKEND": (
+            "whitenoise.storage.CompressedManifestStaticFilesStorage"
+            if PRODUCTION
+            else "django.contrib.staticfiles.storage.StaticFilesStorage"
+        )
+    },
+}
+FILE_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
+DATA_UPLOAD_MAX_MEMORY_SIZE = 20 * 1024 * 1024
+
+LOGIN_URL = "web:login"
+LOGIN_REDIRECT_URL = "web:mark-list"
+LOGOUT_REDIRECT_URL = "web:login"
+
+REST_FRAMEWORK = {
+    "DEFAULT_AUTHENTICATION_CLASSES": [
+        "rest_framework.authentication.SessionAuthentication",
+        "rest_framework.authentication.TokenAuthentication",
+    ],
+    "DEFAULT_PERMISSION_CLASSES": ["registry.api.permissions.IsViewer"],
+    "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",
+    "PAGE_SIZE": 100,
+    "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+    "EXCEPTION_HANDLER": "registry.api.errors.api_exception_handler",
+}
+SPECTACULAR_SETTINGS = {
+    "TITLE": "Control-mark registry API",
+    "DESCRIPTION": (
+        "Marks, positions, conversions and base screening. Coordinates always carry their frame "
+        "(EPSG code) and coordinate epoch (decimal year). Rounding: latitude/longitude to 9 decimal "
+        "places of a degree, metres to 3 decimals, sigmas and accuracies in millimetres to 1 decimal."
+    ),
+    "VERSION": "1",
+    "SERVE_INCLUDE_SCHEMA": False,
+}
+
+# Domain settings. Defaults documented in README.md (common practice where so marked).
+REGISTRY = {
+    # Assumed unmodelled horizontal/vertical rate for marks without a velocity (mm/yr per axis).
+    "ASSUMED_RATE_MM_YR": float(os.environ.get("REGISTRY_ASSUMED_RATE_MM_YR", "2.0")),
+    # Folder with the office's own geoid grids (added to PROJ's data search path).
+    "GEOID_DIR": os.environ.get("REGISTRY_GEOID_DIR", str(DATA_DIR / "grids")),
+    # Default geoid model file (office grid); EGM96 (egm96_15.gtx) is the labelled fallback.
+    "GEOID_MODEL": os.environ.get("REGISTRY_GEOID_MODEL", ""),
+    "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", ""),
+    "MAX_BASELINE_M": float(os.environ.get("REGISTRY_MAX_BASELINE_M", "10000")),
+    "RECOVERY_YEARS": float(os.environ.get("REGISTRY_RECOVERY_YEARS", "10")),
+}
+
+LOGGING = {
+    "version": 1,
+    "disable_existing_loggers": False,
+    "handlers": {"console": {"class": "logging.StreamHandler"}},
+    "root": {"handlers": ["console"], "level": os.environ.get("REGISTRY_LOG_LEVEL", "WARNING")},
+}
+
+if PRODUCTION:
+    SESSION_COOKIE_SECURE = True
+    CSRF_COOKIE_SECURE = True
+    SECURE_SSL_REDIRECT = env_bool("REGISTRY_SSL_REDIRECT", True)
+    SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
+    SECURE_HSTS_SECONDS = int(os.environ.get("REGISTRY_HSTS_SECONDS", "31536000"))
+    SECURE_HSTS_INCLUDE_SUBDOMAINS = True
+    SECURE_HSTS_PRELOAD = True
+    SECURE_CONTENT_TYPE_NOSNIFF = True
+    X_FRAME_OPTIONS = "DENY"

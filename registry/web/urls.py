@@ -1,0 +1,7 @@
+"""Server-rendered pages."""
+
+from django.urls import path
+
+app_name = "web"
+
+urlpatterns: list = []
