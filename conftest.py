@@ -1,0 +1,70 @@
+"""Shared pytest fixtures: one user per role, an API client per role.
+
+Run on SQLite (default) or PostgreSQL + PostGIS (``DATABASE_URL=postgres://...``).
+"""
+
+from __future__ import annotations
+
+import pytest
+
+
+@pytest.fixture
+def roles(db):
+    from registry.roles import ensure_roles
+
+    ensure_roles()
+
+
+def _make_user(django_user_model, username: str, role: str | None):
+    from django.contrib.auth.models import Group
+
+    user = django_user_model.objects.create_user(username=username, password="pw-" + username + "-123!")
+    if role:
+        user.groups.add(Group.objects.get(name=role))
+    return user
+
+
+@pytest.fixture
+def make_user(roles, django_user_model):
+    def factory(username: str, role: str | None = None):
+        return _make_user(django_user_model, username, role)
+
+    return factory
+
+
+@pytest.fixture
+def viewer(make_user):
+    return make_user("vera", "viewer")
+
+
+@pytest.fixture
+def technician(make_user):
+    return make_user("theo", "technician")
+
+
+@pytest.fixture
+def manager(make_user):
+    return make_user("mona", "manager")
+
+
+@pytest.fixture
+def signatory(make_user):
+    return make_user("sina", "signatory")
+
+
+@pytest.fixture
+def admin_user_role(make_user):
+    return make_user("ada", "admin")
+
+
+@pytest.fixture
+def api_client_for():
+    from rest_framework.test import APIClient
+
+    def factory(user):
+        client = APIClient()
+        if user is not None:
+            client.force_authenticate(user)
+        return client
+
+    return factory
