@@ -1,0 +1,283 @@
+"""Writes on marks: create, edit (with optimistic concurrency), change status.
+
+Every function checks the actor's role, validates with the model's own validators
+(``full_clean``; each ``ValidationError`` carries a ``code``), runs in one
+transaction and appends an audit event.
+
+Optimistic concurrency: an edit names the ``version`` it started from. The UPDATE is
+conditional on that version and bumps it, so of two edits made from the same version
+the first wins and the second raises :class:`registry.errors.Conflict`. Its
+``details`` give, per submitted field, ``yours`` (what was submitted), ``theirs``
+(what is stored now) and, when the audit trail knows it, who changed that field and
+when. The refused attempt is recorded in the audit trail too
+(``mark_update_refused`` / ``mark_set_status_refused``), so both submissions stay
+visible.
+"""
+
+from __future__ import annotations
+
+import copy
+from typing import Any
+
+from django.core.exceptions import ValidationError
+from django.db import IntegrityError, transaction
+from django.db.models import F
+from django.utils import timezone
+
+from registry.errors import Conflict
+from registry.models import AuditEvent, Mark, MarkStatus
+from registry.roles import Ability
+from registry.services.access import access_mark_by_code, require_ability
+from registry.services.audit import audit_record, json_safe, snapshot
+
+# Descriptive fields a manager edits with mark_update.
+EDITABLE_FIELDS: tuple[str, ...] = (
+    "name",
+    "monument_type",
+    "setting",
+    "stability",
+    "stamping",
+    "to_reach",
+    "sky_view",
+    "custodian",
+    "notes",
+)
+# Fields accepted when a mark is created (status defaults to active).
+CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS, "status")
+# Fields that exist but change only through their own service.
+_NOT_EDITABLE_HINT = {
+    "code": "A mark's code is its identity and does not change.",
+    "status": "Use the status action (mark_set_status).",
+    "search_lat_deg": "The search location follows the published positions.",
+    "search_lon_deg": "The search location follows the published positions.",
+    "version": "Send the version you started from separately, as expected_version.",
+}
+# Statuses that need a reason in the note.
+_STATUS_NEEDS_NOTE = {MarkStatus.RETIRED, MarkStatus.DESTROYED}
+
+
+def _clean_input(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
+    """Check the keys and the types of submitted values; strings are stripped."""
+    if not isinstance(data, dict):
+        raise ValidationError("Send the fields as an object.", code="invalid_payload")
+    errors: dict[str, list[ValidationError]] = {}
+    cleaned: dict[str, Any] = {}
+    for key, value in data.items():
+        if key not in allowed:
+            if key in _NOT_EDITABLE_HINT:
+                msg, code = f"'{key}' cannot be set here. {_NOT_EDITABLE_HINT[key]}", "not_editable"
+            else:
+                msg, code = f"Unknown field '{key}'.", "unknown_field"
+            errors[str(key)] = [ValidationError(msg, code=code, params={"field": key})]
+            continue
+        if value is None:
+            value = ""
+        if not isinstance(value, str):
+            errors[key] = [ValidationError("Expected text.", code="invalid_type", params={"field": key})]
+            continue
+        cleaned[key] = value.strip()
+    if errors:
+        raise ValidationError(errors)
+    return cleaned
+
+
+def _validate_on(mark: Mark, changes: dict[str, Any]) -> Mark:
+    """Apply ``changes`` to a copy of ``mark`` and validate the changed fields."""
+    candidate = copy.copy(mark)
+    for key, value in changes.items():
+        setattr(candidate, key, value)
+    untouched = [f.name for f in Mark._meta.concrete_fields if f.name not in changes]
+    candidate.full_clean(exclude=untouched, validate_constraints=True)
+    return candidate
+
+
+def _parse_version(expected_version: Any) -> int:
+    if expected_version is None or expected_version == "":
+        raise ValidationError(
+            {"version": ValidationError("Send the version you started from.", code="version_required")}
+        )
+    if isinstance(expected_version, bool):
+        raise ValidationError({"version": ValidationError("The version is a whole number.", code="invalid_version")})
+    try:
+        value = int(expected_version)
+    except (TypeError, ValueError):
+        raise ValidationError(
+            {"version": ValidationError("The version is a whole number.", code="invalid_version")}
+        ) from None
+    if value < 1 or (isinstance(expected_version, float) and expected_version != value):
+        raise ValidationError({"version": ValidationError("The version is a whole number.", code="invalid_version")})
+    return value
+
+
+def _who_changed(mark: Mark, field: str, since_version: int) -> tuple[str | None, str | None]:
+    """Who last changed ``field`` of ``mark`` after ``since_version``, from the audit trail."""
+    events = (
+        AuditEvent.objects.filter(mark=mark, action__in=("mark_update", "mark_set_status"))
+        .select_related("actor")
+        .order_by("-at", "-id")[:200]
+    )
+    for event in events:
+        after = event.after or {}
+        if field in after and int(after.get("version", 0) or 0) > since_version:
+            return (event.actor.get_username() if event.actor else None, event.at.isoformat())
+    return None, None
+
+
+def _conflict(mark_id: int, submitted: dict[str, Any], expected_version: int) -> tuple[Mark, Conflict]:
+    current = Mark.objects.get(pk=mark_id)
+    details: dict[str, Any] = {}
+    for field, yours in submitted.items():
+        by, at = _who_changed(current, field, expected_version)
+        details[field] = {
+            "yours": json_safe(yours),
+            "theirs": json_safe(getattr(current, field)),
+            "changed_by": by,
+            "changed_at": at,
+        }
+    details["version"] = {"yours": expected_version, "theirs": current.version, "changed_by": None, "changed_at": None}
+    conflict = Conflict(
+        f"Mark {current.code} was changed by someone else since version {expected_version} "
+        f"(it is now at version {current.version}). Nothing was saved; review their values and submit again.",
+        code="stale_version",
+        details=details,
+    )
+    return current, conflict
+
+
+def mark_create(*, actor, data: dict) -> Mark:
+    """Create a mark from ``data`` (``code`` plus any of the descriptive fields and ``status``).
+
+    Raises
+    ------
+    registry.errors.PermissionDeniedError
+        Unless the actor may manage marks.
+    django.core.exceptions.ValidationError
+        With codes such as ``invalid_code``, ``unique``, ``required``, ``invalid_choice``,
+        ``unknown_field``.
+    """
+    require_ability(actor, Ability.MANAGE)
+    cleaned = _clean_input(data, CREATE_FIELDS)
+    if not cleaned.get("code"):
+        raise ValidationError({"code": ValidationError("A mark needs a code.", code="required")})
+    mark = Mark(**cleaned)
+    mark.full_clean()
+    try:
+        with transaction.atomic():
+            mark.save(force_insert=True)
+            audit_record(actor=actor, action="mark_create", obj=mark, after=snapshot(mark))
+    except IntegrityError:
+        # Two creations of the same code at once: the database's unique index decides.
+        if Mark.objects.filter(code=mark.code).exists():
+            raise ValidationError(
+                {"code": ValidationError("A mark with this code already exists.", code="unique")}
+            ) from None
+        raise
+    return mark
+
+
+def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Mark:
+    """Edit descriptive fields of a mark, starting from ``expected_version``.
+
+    Submitted values equal to the stored ones change nothing (no version bump, no
+    audit row) as long as the version is current.
+
+    Raises
+    ------
+    registry.errors.NotFound
+        No such mark (or the actor may not view the registry).
+    registry.errors.PermissionDeniedError
+        The actor may view but not manage marks.
+    django.core.exceptions.ValidationError
+        Bad input (``version_required``, ``invalid_version``, ``not_editable``,
+        ``unknown_field``, ``no_changes``, the model's own codes).
+    registry.errors.Conflict
+        Code ``stale_version``: someone saved the mark since ``expected_version``.
+    """
+    version = _parse_version(expected_version)
+    cleaned = _clean_input(changes, EDITABLE_FIELDS)
+    if not cleaned:
+        raise ValidationError("Nothing to change.", code="no_changes")
+    conflict: Conflict | None = None
+    with transaction.atomic():
+        mark = access_mark_by_code(actor, code, ability=Ability.MANAGE)
+        _validate_on(mark, cleaned)
+        diff = {k: v for k, v in cleaned.items() if getattr(mark, k) != v}
+        if not diff and mark.version == version:
+            return mark
+        before = {k: getattr(mark, k) for k in diff}
+        now = timezone.now()
+        updated = Mark.objects.filter(pk=mark.pk, version=version).update(
+            **diff, version=F("version") + 1, updated_at=now
+        )
+        if updated == 0:
+            current, conflict = _conflict(mark.pk, cleaned, version)
+            audit_record(
+                actor=actor,
+                action="mark_update_refused",
+                obj=current,
+                before={**{k: getattr(current, k) for k in cleaned}, "version": current.version},
+                after={**cleaned, "version": version},
+                note=conflict.message,
+            )
+        else:
+            mark.refresh_from_db()
+            audit_record(
+                actor=actor,
+                action="mark_update",
+                obj=mark,
+                before={**before, "version": version},
+                after={**diff, "version": mark.version},
+            )
+    if conflict is not None:
+        raise conflict
+    return mark
+
+
+def mark_set_status(*, actor, code: str, status: str, expected_version: int, note: str = "") -> Mark:
+    """Set a mark's status (active, retired, destroyed), starting from ``expected_version``.
+
+    Retiring a mark or reporting it destroyed needs a reason in ``note``.
+    The same concurrency rule as :func:`mark_update` applies.
+    """
+    version = _parse_version(expected_version)
+    if status not in MarkStatus.values:
+        raise ValidationError(
+            {"status": ValidationError("Unknown status %(value)r.", code="invalid_choice", params={"value": status})}
+        )
+    note = (note or "").strip() if isinstance(note, str) else ""
+    if status in _STATUS_NEEDS_NOTE and not note:
+        raise ValidationError({"note": ValidationError("Give the reason for this status.", code="note_required")})
+    conflict: Conflict | None = None
+    with transaction.atomic():
+        mark = access_mark_by_code(actor, code, ability=Ability.MANAGE)
+        if mark.status == status and mark.version == version:
+            raise ValidationError(
+                {"status": ValidationError("The mark is already %(value)s.", code="status_unchanged", params={"value": status})}
+            )
+        before_status = mark.status
+        updated = Mark.objects.filter(pk=mark.pk, version=version).update(
+            status=status, version=F("version") + 1, updated_at=timezone.now()
+        )
+        if updated == 0:
+            current, conflict = _conflict(mark.pk, {"status": status}, version)
+            audit_record(
+                actor=actor,
+                action="mark_set_status_refused",
+                obj=current,
+                before={"status": current.status, "version": current.version},
+                after={"status": status, "version": version},
+                note=note,
+            )
+        else:
+            mark.refresh_from_db()
+            audit_record(
+                actor=actor,
+                action="mark_set_status",
+                obj=mark,
+                before={"status": before_status, "version": version},
+                after={"status": status, "version": mark.version},
+                note=note,
+            )
+    if conflict is not None:
+        raise conflict
+    return mark
