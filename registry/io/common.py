@@ -1,0 +1,559 @@
+"""What a mark row is in our import/export files, how it is validated, and how numbers are written.
+
+Both file formats (CSV, ``marks_csv``; GeoJSON, ``marks_geojson``) carry the same record: a mark's
+description fields and, optionally, one published position of it. This module holds the field list,
+the per-row validation (every problem of a row is reported, with a machine-readable code) and the
+number formatting used by the exporters.
+
+Numbers are written so that they read back to the *same* binary float (shortest exact decimal, with a
+minimum number of decimals for readability: latitude/longitude 9, metres 4, covariance as Python's
+``repr``). That is what makes ``export → import → export`` byte-identical.
+
+Frames are EPSG codes of geographic 3D CRSs, checked against the EPSG database shipped with PROJ
+(through pyproj): latitude/longitude in degrees, ellipsoidal height in metres. The covariance is in the
+local east/north/up frame at the point, in m² (as in ``registry.models.Position``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from functools import lru_cache
+from typing import Any
+
+import numpy as np
+
+from registry.models.marks import CODE_VALIDATOR, MarkStatus, MonumentType, SkyView, Stability
+
+# --- The record -------------------------------------------------------------------------------------
+
+#: Mark description fields, in file order. ``code`` is required; the others default like the model.
+MARK_FIELDS: tuple[str, ...] = (
+    "code",
+    "name",
+    "monument_type",
+    "setting",
+    "stability",
+    "stamping",
+    "to_reach",
+    "sky_view",
+    "custodian",
+    "status",
+    "notes",
+)
+MARK_TEXT_MAX = {
+    "name": 120,
+    "setting": 200,
+    "stamping": 120,
+    "to_reach": None,
+    "custodian": 120,
+    "notes": None,
+}
+MARK_CHOICES: dict[str, tuple[str, ...]] = {
+    "monument_type": tuple(MonumentType.values),
+    "stability": tuple(Stability.values),
+    "sky_view": tuple(SkyView.values),
+    "status": tuple(MarkStatus.values),
+}
+
+#: Position coordinates. In CSV they are columns; in GeoJSON they are the Point's coordinates.
+COORD_FIELDS: tuple[str, ...] = ("lat_deg", "lon_deg", "h_m")
+SIGMA_FIELDS: tuple[str, ...] = ("sigma_e_mm", "sigma_n_mm", "sigma_u_mm")
+COV_FIELDS: tuple[str, ...] = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
+COV_DIAGONAL: tuple[str, ...] = ("cov_ee_m2", "cov_nn_m2", "cov_uu_m2")
+VEL_FIELDS: tuple[str, ...] = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
+VEL_SIGMA_FIELDS: tuple[str, ...] = ("vel_sigma_e_m_yr", "vel_sigma_n_m_yr", "vel_sigma_u_m_yr")
+#: Position fields other than the coordinates, in file order.
+POSITION_PROPERTY_FIELDS: tuple[str, ...] = (
+    ("frame_epsg", "epoch_yr") + SIGMA_FIELDS + COV_FIELDS + VEL_FIELDS + VEL_SIGMA_FIELDS + ("source",)
+)
+#: CSV columns in file order.
+CSV_COLUMNS: tuple[str, ...] = MARK_FIELDS + ("frame_epsg", "epoch_yr") + COORD_FIELDS + POSITION_PROPERTY_FIELDS[2:]
+#: Model fields of ``Position`` carried by a record (everything but state, people and times).
+POSITION_MODEL_FIELDS: tuple[str, ...] = (
+    ("frame_epsg", "epoch_yr") + COORD_FIELDS + COV_FIELDS + VEL_FIELDS + VEL_SIGMA_FIELDS + ("source",)
+)
+
+# Plausibility limits (each with its reason).
+EPOCH_MIN_YR, EPOCH_MAX_YR = 1900.0, 2100.0  # same range as the model's CHECK constraint
+H_MIN_M, H_MAX_M = -1000.0, 10000.0  # same range as the model's CHECK constraint
+SIGMA_MAX_MM = 10_000.0  # a 10 m sigma is no longer control; almost certainly a unit mistake
+VEL_MAX_M_YR = 1.0  # the fastest plate moves < 0.2 m/yr; 1 m/yr catches mm/yr typed as m/yr
+SOURCE_MAX = 200
+#: Agreement needed between a sigma column and √(covariance diagonal) when a file carries both. Exports
+#: write sigmas to 0.01 mm, so a half unit of the last place plus float noise.
+SIGMA_COV_AGREEMENT_MM = 0.005 + 1e-9
+
+
+@dataclass(frozen=True)
+class RowError:
+    """One problem with one row of an import file.
+
+    ``where`` is what a person reads ("line 7", "features[3]", "file"); ``index`` sorts them;
+    ``code`` is machine-readable and stable (tests assert it).
+    """
+
+    where: str
+    index: int
+    code: str
+    message: str
+    field: str = ""
+    mark_code: str = ""
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "where": self.where,
+            "code": self.code,
+            "field": self.field,
+            "mark_code": self.mark_code,
+            "message": self.message,
+        }
+
+    def __str__(self) -> str:
+        subject = f" [{self.mark_code}]" if self.mark_code else ""
+        column = f" {self.field}:" if self.field else ""
+        return f"{self.where}{subject}:{column} {self.message} ({self.code})"
+
+
+@dataclass
+class MarkRecord:
+    """A validated row: the mark's fields (only those the file carries) and an optional position.
+
+    ``position`` uses ``Position`` model field names and units (m, m², m/yr); covariance complete.
+    """
+
+    where: str
+    index: int
+    mark: dict[str, Any]
+    position: dict[str, Any] | None = None
+
+    @property
+    def code(self) -> str:
+        return self.mark["code"]
+
+
+@dataclass
+class ParseResult:
+    """What a parser produced: validated records and every problem found (file-level or per row)."""
+
+    records: list[MarkRecord] = field(default_factory=list)
+    errors: list[RowError] = field(default_factory=list)
+    format: str = ""
+
+
+# --- Frames -----------------------------------------------------------------------------------------
+
+
+@lru_cache(maxsize=256)
+def frame_problem(frame_epsg: int) -> str | None:
+    """Return why ``frame_epsg`` cannot be a position's frame, or None when it can.
+
+    A position's frame must be a geographic 3D CRS (latitude, longitude, ellipsoidal height).
+
+    >>> frame_problem(7912) is None and frame_problem(6319) is None
+    True
+    >>> frame_problem(4326)
+    'EPSG:4326 (WGS 84) is a 2D CRS; a position needs a geographic 3D frame (latitude, longitude, ellipsoidal height)'
+    """
+    import pyproj
+    from pyproj.exceptions import CRSError
+
+    try:
+        crs = pyproj.CRS.from_epsg(frame_epsg)
+    except CRSError:
+        return f"EPSG:{frame_epsg} is not in the EPSG database"
+    if not crs.is_geographic:
+        return f"EPSG:{frame_epsg} ({crs.name}) is not a geographic CRS"
+    if len(crs.axis_info) != 3:
+        return (
+            f"EPSG:{frame_epsg} ({crs.name}) is a 2D CRS; a position needs a geographic 3D frame "
+            "(latitude, longitude, ellipsoidal height)"
+        )
+    return None
+
+
+# --- Number formatting ------------------------------------------------------------------------------
+
+
+def format_exact(value: float, min_decimals: int) -> str:
+    """Write ``value`` in fixed notation with at least ``min_decimals`` decimals, reading back exactly.
+
+    The shortest such string is chosen, so the output is deterministic and ``float(s) == value``.
+
+    >>> format_exact(45.2, 9)
+    '45.200000000'
+    >>> format_exact(45.19999522590536, 9)
+    '45.19999522590536'
+    >>> format_exact(-110.6, 9)
+    '-110.600000000'
+    >>> float(format_exact(0.1 + 0.2, 4)) == 0.1 + 0.2
+    True
+    """
+    if not math.isfinite(value):
+        raise ValueError(f"cannot write a non-finite number: {value!r}")
+    for decimals in range(min_decimals, 30):
+        text = f"{value:.{decimals}f}"
+        if float(text) == value:
+            return text
+    return repr(value)  # unreachable for doubles of ordinary size; repr is always exact
+
+
+def format_repr(value: float) -> str:
+    """Python's shortest exact representation (used for covariance and velocities).
+
+    >>> format_repr(2.5e-05)
+    '2.5e-05'
+    """
+    if not math.isfinite(value):
+        raise ValueError(f"cannot write a non-finite number: {value!r}")
+    return repr(float(value))
+
+
+def sigma_mm_from_variance(variance_m2: float) -> float:
+    """1σ in millimetres from a variance in m², rounded to 0.01 mm (for display columns).
+
+    >>> sigma_mm_from_variance(2.5e-05)
+    5.0
+    """
+    return round(math.sqrt(max(variance_m2, 0.0)) * 1000.0, 2)
+
+
+# --- Validation -------------------------------------------------------------------------------------
+
+
+def _is_blank(value: Any) -> bool:
+    return value is None or (isinstance(value, str) and value.strip() == "")
+
+
+class _RowChecker:
+    """Collects every error of one row."""
+
+    def __init__(self, where: str, index: int):
+        self.where = where
+        self.index = index
+        self.errors: list[RowError] = []
+        self.mark_code = ""
+
+    def add(self, code: str, message: str, field_name: str = "") -> None:
+        self.errors.append(RowError(self.where, self.index, code, message, field_name, self.mark_code))
+
+    def number(self, raw: dict[str, Any], name: str, *, integer: bool = False) -> float | int | None:
+        value = raw.get(name)
+        if _is_blank(value):
+            return None
+        if isinstance(value, bool):
+            self.add("not_a_number", f"expected a number, got {value!r}", name)
+            return None
+        if isinstance(value, int | float):
+            number = value
+        elif isinstance(value, str):
+            text = value.strip()
+            try:
+                number = int(text) if integer else float(text)
+            except ValueError:
+                kind = "a whole number" if integer else "a number"
+                self.add("not_a_number", f"expected {kind}, got {value!r}", name)
+                return None
+        else:
+            self.add("not_a_number", f"expected a number, got {type(value).__name__}", name)
+            return None
+        if integer:
+            if isinstance(number, float):
+                if not number.is_integer():
+                    self.add("not_a_number", f"expected a whole number, got {value!r}", name)
+                    return None
+                number = int(number)
+            return int(number)
+        number = float(number)
+        if not math.isfinite(number):
+            self.add("not_a_number", f"expected a finite number, got {value!r}", name)
+            return None
+        return number
+
+    def text(self, raw: dict[str, Any], name: str, max_length: int | None) -> str | None:
+        value = raw.get(name)
+        if value is None:
+            return ""
+        if not isinstance(value, str):
+            if isinstance(value, int | float) and not isinstance(value, bool):
+                value = str(value)
+            else:
+                self.add("not_text", f"expected text, got {type(value).__name__}", name)
+                return None
+        value = value.strip()
+        if max_length is not None and len(value) > max_length:
+            self.add("too_long", f"at most {max_length} characters, got {len(value)}", name)
+            return None
+        return value
+
+
+def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRecord | None, list[RowError]]:
+    """Validate one row given as ``{field: value}`` (strings from CSV, JSON values from GeoJSON).
+
+    Only keys present in ``raw`` are taken for the mark (absent keys keep their default on create and
+    their stored value on update). The row has a position when any coordinate or position field is
+    non-blank; then frame, epoch, latitude, longitude, height, source and an uncertainty (three sigmas
+    in mm, or the covariance diagonal in m²) are all required.
+
+    Returns the record (None when there are errors) and the list of errors.
+    """
+    chk = _RowChecker(where, index)
+
+    # Mark fields.
+    mark: dict[str, Any] = {}
+    code_raw = raw.get("code")
+    if _is_blank(code_raw):
+        chk.add("code_required", "the mark code is required", "code")
+    elif not isinstance(code_raw, str):
+        chk.add("invalid_code", f"expected text, got {type(code_raw).__name__}", "code")
+    else:
+        code = code_raw.strip()
+        chk.mark_code = code
+        from django.core.exceptions import ValidationError
+
+        try:
+            CODE_VALIDATOR(code)
+        except ValidationError:
+            chk.add("invalid_code", f"{code!r}: {CODE_VALIDATOR.message}", "code")
+        else:
+            mark["code"] = code
+    for name in MARK_FIELDS[1:]:
+        if name not in raw:
+            continue
+        if name in MARK_CHOICES:
+            value = raw[name]
+            if _is_blank(value):
+                chk.add("choice_required", f"must be one of: {', '.join(MARK_CHOICES[name])}", name)
+            elif not isinstance(value, str) or value.strip() not in MARK_CHOICES[name]:
+                chk.add("invalid_choice", f"{value!r} is not one of: {', '.join(MARK_CHOICES[name])}", name)
+            else:
+                mark[name] = value.strip()
+        else:
+            text = chk.text(raw, name, MARK_TEXT_MAX[name])
+            if text is not None:
+                mark[name] = text
+
+    # Position fields.
+    position_names = ("frame_epsg", "epoch_yr") + COORD_FIELDS + POSITION_PROPERTY_FIELDS[2:]
+    has_position = any(not _is_blank(raw.get(n)) for n in position_names)
+    position: dict[str, Any] | None = None
+    if has_position:
+        position = _validate_position(raw, chk)
+
+    if chk.errors:
+        return None, chk.errors
+    return MarkRecord(where=where, index=index, mark=mark, position=position), []
+
+
+def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] | None:
+    pos: dict[str, Any] = {}
+    n_before = len(chk.errors)
+
+    frame = chk.number(raw, "frame_epsg", integer=True)
+    if frame is None and _is_blank(raw.get("frame_epsg")):
+        chk.add("frame_required", "a position needs its frame (EPSG code of a geographic 3D CRS)", "frame_epsg")
+    elif frame is not None:
+        problem = frame_problem(int(frame)) if frame > 0 else f"EPSG:{frame} is not a valid code"
+        if problem:
+            chk.add("invalid_frame", problem, "frame_epsg")
+        else:
+            pos["frame_epsg"] = int(frame)
+
+    epoch = chk.number(raw, "epoch_yr")
+    if epoch is None and _is_blank(raw.get("epoch_yr")):
+        chk.add("epoch_required", "a position needs its coordinate epoch (decimal year)", "epoch_yr")
+    elif epoch is not None:
+        if not EPOCH_MIN_YR <= epoch <= EPOCH_MAX_YR:
+            chk.add("out_of_range", f"epoch {epoch} is outside {EPOCH_MIN_YR:.0f}–{EPOCH_MAX_YR:.0f}", "epoch_yr")
+        else:
+            pos["epoch_yr"] = epoch
+
+    limits = {"lat_deg": (-90.0, 90.0), "lon_deg": (-180.0, 180.0), "h_m": (H_MIN_M, H_MAX_M)}
+    words = {"lat_deg": "latitude", "lon_deg": "longitude", "h_m": "ellipsoidal height"}
+    for name, (low, high) in limits.items():
+        value = chk.number(raw, name)
+        if value is None:
+            if _is_blank(raw.get(name)):
+                chk.add("coordinate_required", f"a position needs its {words[name]}", name)
+            continue
+        if not low <= value <= high:
+            chk.add("out_of_range", f"{words[name]} {value} is outside {low:g} … {high:g}", name)
+        else:
+            pos[name] = value
+
+    # Uncertainty: three sigmas (mm) and/or a covariance (m²).
+    sigmas = [chk.number(raw, n) for n in SIGMA_FIELDS]
+    covs = {n: chk.number(raw, n) for n in COV_FIELDS}
+    sigma_given = [not _is_blank(raw.get(n)) for n in SIGMA_FIELDS]
+    cov_given = any(not _is_blank(raw.get(n)) for n in COV_FIELDS)
+    if any(sigma_given) and not all(sigma_given):
+        chk.add("sigmas_incomplete", "give all three of sigma_e_mm, sigma_n_mm, sigma_u_mm, or none", "sigma_e_mm")
+    for name, value in zip(SIGMA_FIELDS, sigmas, strict=True):
+        if value is not None and not 0.0 < value <= SIGMA_MAX_MM:
+            chk.add("out_of_range", f"a sigma must be > 0 and ≤ {SIGMA_MAX_MM:g} mm, got {value}", name)
+    if cov_given:
+        for name in COV_DIAGONAL:
+            if _is_blank(raw.get(name)):
+                chk.add("covariance_incomplete", "the covariance needs cov_ee_m2, cov_nn_m2 and cov_uu_m2", name)
+    elif not any(sigma_given):
+        chk.add(
+            "uncertainty_required",
+            "a position needs its uncertainty: sigma_e_mm, sigma_n_mm, sigma_u_mm, or the covariance (m²)",
+            "sigma_e_mm",
+        )
+    if len(chk.errors) == n_before and cov_given:
+        c = {n: (covs[n] if covs[n] is not None else 0.0) for n in COV_FIELDS}
+        matrix = np.array(
+            [
+                [c["cov_ee_m2"], c["cov_en_m2"], c["cov_eu_m2"]],
+                [c["cov_en_m2"], c["cov_nn_m2"], c["cov_nu_m2"]],
+                [c["cov_eu_m2"], c["cov_nu_m2"], c["cov_uu_m2"]],
+            ]
+        )
+        diagonal = np.diag(matrix)
+        if np.any(diagonal <= 0.0) or np.any(np.sqrt(np.abs(diagonal)) * 1000.0 > SIGMA_MAX_MM):
+            chk.add("invalid_covariance", f"variances must be > 0 and ≤ ({SIGMA_MAX_MM:g} mm)²", "cov_ee_m2")
+        elif np.linalg.eigvalsh(matrix).min() <= 0.0:
+            chk.add("invalid_covariance", "the covariance matrix is not positive definite", "cov_en_m2")
+        else:
+            pos.update(c)
+            if all(sigma_given) and all(s is not None for s in sigmas):
+                for name, s_mm, var in zip(SIGMA_FIELDS, sigmas, diagonal, strict=True):
+                    if abs(s_mm - math.sqrt(var) * 1000.0) > SIGMA_COV_AGREEMENT_MM:
+                        chk.add(
+                            "sigma_covariance_mismatch",
+                            f"{s_mm} mm disagrees with √(covariance) = {math.sqrt(var) * 1000.0:.4f} mm",
+                            name,
+                        )
+    elif len(chk.errors) == n_before and all(s is not None for s in sigmas):
+        s_m = [s / 1000.0 for s in sigmas]
+        pos.update(
+            cov_ee_m2=s_m[0] ** 2,
+            cov_en_m2=0.0,
+            cov_eu_m2=0.0,
+            cov_nn_m2=s_m[1] ** 2,
+            cov_nu_m2=0.0,
+            cov_uu_m2=s_m[2] ** 2,
+        )
+
+    # Velocity (optional): all three or none; its sigmas only with it.
+    vel = [chk.number(raw, n) for n in VEL_FIELDS]
+    vel_given = [not _is_blank(raw.get(n)) for n in VEL_FIELDS]
+    vsig = [chk.number(raw, n) for n in VEL_SIGMA_FIELDS]
+    vsig_given = [not _is_blank(raw.get(n)) for n in VEL_SIGMA_FIELDS]
+    if any(vel_given) and not all(vel_given):
+        chk.add("velocity_incomplete", "give all three velocity components (m/yr), or none", "vel_e_m_yr")
+    if any(vsig_given) and not all(vsig_given):
+        chk.add("velocity_incomplete", "give all three velocity sigmas (m/yr), or none", "vel_sigma_e_m_yr")
+    if any(vsig_given) and not any(vel_given):
+        chk.add("velocity_incomplete", "velocity sigmas need a velocity", "vel_sigma_e_m_yr")
+    for name, value in zip(VEL_FIELDS, vel, strict=True):
+        if value is not None and abs(value) > VEL_MAX_M_YR:
+            chk.add(
+                "out_of_range", f"|velocity| must be ≤ {VEL_MAX_M_YR:g} m/yr, got {value} (mm/yr typed as m/yr?)", name
+            )
+    for name, value in zip(VEL_SIGMA_FIELDS, vsig, strict=True):
+        if value is not None and not 0.0 <= value <= VEL_MAX_M_YR:
+            chk.add("out_of_range", f"a velocity sigma must be within 0 … {VEL_MAX_M_YR:g} m/yr, got {value}", name)
+    for names, values in ((VEL_FIELDS, vel), (VEL_SIGMA_FIELDS, vsig)):
+        pos.update({n: v for n, v in zip(names, values, strict=True)})
+
+    source = chk.text(raw, "source", SOURCE_MAX)
+    if source == "":
+        chk.add("source_required", "a position needs its source (campaign, adjustment, occupation)", "source")
+    elif source is not None:
+        pos["source"] = source
+
+    if len(chk.errors) > n_before:
+        return None
+    return pos
+
+
+def find_duplicate_codes(records: list[MarkRecord]) -> list[RowError]:
+    """One error for every repeat of a code already used by an earlier row of the same file."""
+    first: dict[str, MarkRecord] = {}
+    errors = []
+    for record in records:
+        earlier = first.setdefault(record.code, record)
+        if earlier is not record:
+            errors.append(
+                RowError(
+                    record.where,
+                    record.index,
+                    "duplicate_code",
+                    f"code {record.code} already appears at {earlier.where}",
+                    "code",
+                    record.code,
+                )
+            )
+    return errors
+
+
+# --- Export rows ------------------------------------------------------------------------------------
+
+
+def export_values(mark, position) -> dict[str, Any]:
+    """The record of ``mark`` (a ``Mark``) with ``position`` (a published ``Position`` or None).
+
+    Values are Python objects (str, int, float, None) keyed like ``CSV_COLUMNS``; the writers format
+    them. Sigma columns are derived from the covariance diagonal (0.01 mm) for the reader's benefit;
+    the covariance is authoritative on import.
+    """
+    values: dict[str, Any] = {name: getattr(mark, name) for name in MARK_FIELDS}
+    for name in CSV_COLUMNS[len(MARK_FIELDS) :]:
+        values[name] = None
+    if position is not None:
+        for name in POSITION_MODEL_FIELDS:
+            values[name] = getattr(position, name)
+        for sigma_name, cov_name in zip(SIGMA_FIELDS, COV_DIAGONAL, strict=True):
+            values[sigma_name] = sigma_mm_from_variance(getattr(position, cov_name))
+    return values
+
+
+#: How each numeric column is written in CSV: ("exact", min_decimals) or ("repr", None).
+CSV_NUMBER_FORMAT: dict[str, tuple[str, int | None]] = {
+    "epoch_yr": ("exact", 4),
+    "lat_deg": ("exact", 9),
+    "lon_deg": ("exact", 9),
+    "h_m": ("exact", 4),
+    **{n: ("exact", 2) for n in SIGMA_FIELDS},
+    **{n: ("repr", None) for n in COV_FIELDS + VEL_FIELDS + VEL_SIGMA_FIELDS},
+}
+
+
+def format_cell(name: str, value: Any) -> str:
+    """Text of one value in a CSV cell (empty for None)."""
+    if value is None:
+        return ""
+    if name == "frame_epsg":
+        return str(int(value))
+    rule = CSV_NUMBER_FORMAT.get(name)
+    if rule is None:
+        return str(value)
+    kind, decimals = rule
+    if kind == "exact":
+        return format_exact(float(value), decimals or 0)
+    return format_repr(float(value))
+
+
+def marks_for_export(*, frame_epsg: int | None = None):
+    """Marks with the published position each export row carries, ordered by code.
+
+    Returns a list of ``(mark, position_or_None)``. With ``frame_epsg`` the position is the published
+    one in that frame; without it, the mark's most recently published position (any frame). Two
+    queries, whatever the number of marks.
+    """
+    from django.db.models import F
+
+    from registry.models import Mark, Position, PositionState
+
+    marks = list(Mark.objects.order_by("code"))
+    published = Position.objects.filter(state=PositionState.PUBLISHED)
+    if frame_epsg is not None:
+        published = published.filter(frame_epsg=frame_epsg)
+    chosen: dict[int, Any] = {}
+    # Latest decision last, so it wins; ties broken by id for determinism.
+    order = ("mark_id", F("decided_at").asc(nulls_first=True), "id")
+    for position in published.order_by(*order):
+        chosen[position.mark_id] = position
+    return [(mark, chosen.get(mark.pk)) for mark in marks]
