@@ -1,0 +1,558 @@
+"""Single-base RTK screening: the error budget of a base mark over a job site.
+
+Sources and conventions
+-----------------------
+- RTK error grows with the baseline: σ(d) = a + b·d with a in mm and b in ppm
+  (1 ppm = 1 mm per km), "as receiver specifications quote it" (common practice;
+  e.g. 8 mm + 1 ppm horizontal, 15 mm + 1 ppm vertical). Root-sum-square
+  √(a² + (b·d)²) is offered as an option. The horizontal figure is read as a 1σ value
+  per horizontal axis by default; read as 2D RMS (drms) the per-axis σ is drms/√2
+  (drms² = σ_E² + σ_N² with σ_E = σ_N).
+- Base position uncertainty: from the position's east/north/up covariance, the
+  horizontal per-axis σ is the square root of the largest eigenvalue of the 2×2 E/N
+  block (the semi-major axis of the standard error ellipse: a conservative circular
+  stand-in for an elongated ellipse), the vertical σ is √cov_uu. From a network
+  accuracy instead: σ_axis = r95 / 2.4477, σ_v = v95 / 1.96 (FGDC-STD-007.2-1998 Part 2
+  and FGDC-STD-007.3-1998 Part 3 §3.2.1 for the factors).
+- Drift between the base's coordinate epoch and the job's epoch: with a velocity the
+  position is propagated (by the caller) and the velocity's σ × |Δt| is the drift
+  term (per axis: the larger of the east and north velocity σ); without one an assumed
+  unmodelled rate (default 2 mm/yr per axis, common practice) × |Δt|.
+- Setup error of the base (centring and antenna height): 2 mm per horizontal axis,
+  3 mm vertical, 1σ (common practice).
+- Combination: σ_axis = √(σ_rtk² + σ_base² + σ_drift² + σ_setup²). Horizontal 95 % =
+  2.4477·σ_axis, the radius of the 95 % circle of a circular bivariate normal
+  (√(−2 ln 0.05) = √χ²₀.₉₅(2); FGDC-STD-007.3-1998 §3.2.1, Greenwalt & Schultz 1968);
+  vertical 95 % = 1.9600·σ_v (normal 97.5 % quantile).
+
+Performance: distances from every candidate to every site point are planar on the
+site's local transverse Mercator plane (see :mod:`registry.geodesy.site`), computed
+in blocks of candidates to stay in cache. 1,000 candidates × 10,000 points take a
+fraction of a second (``benchmarks/bench_screening.py``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+#: Radius of the 95 % circle per unit per-axis σ: √(−2 ln 0.05) = √χ²₀.₉₅(2).
+K_H95 = math.sqrt(-2.0 * math.log(0.05))
+#: Normal 97.5 % quantile: the 95 % two-sided factor for one dimension.
+K_V95 = 1.959963984540054
+
+ADDITIVE = "additive"
+RSS = "rss"
+PER_AXIS = "per_axis"
+DRMS = "drms"
+
+#: Default assumed unmodelled motion for marks without a velocity (mm/yr per axis, common practice).
+DEFAULT_ASSUMED_RATE_MM_YR = 2.0
+#: Candidates kept for the best-pair search (best-ranked first).
+PAIR_POOL_SIZE = 256
+#: Pairs whose worst-case margin is evaluated exactly, after ranking all pairs by coverage.
+PAIR_EXACT_EVALUATIONS = 512
+
+# ----------------------------------------------------------------------------- exclusion reasons
+# Our own reason codes; the words are shown to the user beside the code.
+REASON_NOT_ACTIVE = "not_active"
+REASON_LAST_VISIT_DISTURBED = "last_visit_disturbed"
+REASON_LAST_VISIT_DESTROYED = "last_visit_destroyed"
+REASON_LAST_VISIT_NOT_FOUND = "last_visit_not_found"
+REASON_NO_RECENT_GOOD_VISIT = "no_recent_good_visit"
+REASON_NO_PUBLISHED_POSITION = "no_published_position"
+REASON_FRAME_NOT_TRANSFORMABLE = "frame_not_transformable"
+REASON_BEYOND_MAX_BASELINE = "beyond_max_baseline"
+REASON_SKY_OBSTRUCTED = "sky_obstructed"
+
+REASON_WORDS: dict[str, str] = {
+    REASON_NOT_ACTIVE: "the mark is not active (retired or destroyed)",
+    REASON_LAST_VISIT_DISTURBED: "the last visit found the mark disturbed",
+    REASON_LAST_VISIT_DESTROYED: "the last visit found the mark destroyed",
+    REASON_LAST_VISIT_NOT_FOUND: "the last visit did not find the mark",
+    REASON_NO_RECENT_GOOD_VISIT: "no visit found it in good condition within the recovery period",
+    REASON_NO_PUBLISHED_POSITION: "the mark has no published position",
+    REASON_FRAME_NOT_TRANSFORMABLE: "its published frame cannot be transformed to the job's frame",
+    REASON_BEYOND_MAX_BASELINE: "part of the site lies beyond the maximum baseline",
+    REASON_SKY_OBSTRUCTED: "its sky view is recorded as obstructed",
+}
+_LAST_VISIT_REASON = {
+    "disturbed": REASON_LAST_VISIT_DISTURBED,
+    "destroyed": REASON_LAST_VISIT_DESTROYED,
+    "not_found": REASON_LAST_VISIT_NOT_FOUND,
+}
+
+
+@dataclass(frozen=True)
+class MarkFacts:
+    """What the exclusion rules need to know about one candidate mark.
+
+    ``years_since_good_visit`` is None when no visit ever found it in good condition;
+    ``transformable`` is None when there is no published position to transform.
+    """
+
+    status: str
+    sky_view: str
+    last_visit_condition: str | None
+    years_since_good_visit: float | None
+    has_published_position: bool
+    transformable: bool | None
+
+
+def rule_reasons(facts: MarkFacts, *, recovery_years: float) -> list[str]:
+    """Reason codes excluding a mark, from everything except the baseline rule.
+
+    The baseline rule depends on the site geometry and is applied by
+    :func:`screen_candidates`. A last visit in ``poor`` condition does not exclude a
+    mark by itself; a ``good`` visit within ``recovery_years`` is still required.
+
+    Examples
+    --------
+    >>> f = MarkFacts("active", "clear", "good", 1.5, True, True)
+    >>> rule_reasons(f, recovery_years=10)
+    []
+    >>> rule_reasons(MarkFacts("retired", "obstructed", "not_found", None, False, None), recovery_years=10)
+    ['not_active', 'last_visit_not_found', 'no_recent_good_visit', 'no_published_position', 'sky_obstructed']
+    """
+    reasons = []
+    if facts.status != "active":
+        reasons.append(REASON_NOT_ACTIVE)
+    if facts.last_visit_condition in _LAST_VISIT_REASON:
+        reasons.append(_LAST_VISIT_REASON[facts.last_visit_condition])
+    if facts.years_since_good_visit is None or facts.years_since_good_visit > recovery_years:
+        reasons.append(REASON_NO_RECENT_GOOD_VISIT)
+    if not facts.has_published_position:
+        reasons.append(REASON_NO_PUBLISHED_POSITION)
+    elif facts.transformable is False:
+        reasons.append(REASON_FRAME_NOT_TRANSFORMABLE)
+    if facts.sky_view == "obstructed":
+        reasons.append(REASON_SKY_OBSTRUCTED)
+    return reasons
+
+
+# ----------------------------------------------------------------------------- the error terms
+
+
+@dataclass(frozen=True)
+class RtkErrorModel:
+    """The job's RTK error model and setup error (all 1σ).
+
+    Attributes
+    ----------
+    h_fixed_mm, h_ppm : float
+        Horizontal a + b·d (common practice 8 mm + 1 ppm).
+    v_fixed_mm, v_ppm : float
+        Vertical a + b·d (common practice 15 mm + 1 ppm).
+    combination : str
+        ``"additive"`` (a + b·d, as specifications quote it) or ``"rss"`` (√(a² + (b·d)²)).
+    h_meaning : str
+        ``"per_axis"`` (the horizontal figure is σ per axis) or ``"drms"`` (2D RMS).
+    setup_h_mm, setup_v_mm : float
+        Base centring per horizontal axis and antenna height error (common practice 2 mm, 3 mm).
+    """
+
+    h_fixed_mm: float = 8.0
+    h_ppm: float = 1.0
+    v_fixed_mm: float = 15.0
+    v_ppm: float = 1.0
+    combination: str = ADDITIVE
+    h_meaning: str = PER_AXIS
+    setup_h_mm: float = 2.0
+    setup_v_mm: float = 3.0
+
+    def __post_init__(self):
+        if self.combination not in (ADDITIVE, RSS):
+            raise ValueError(f"combination must be 'additive' or 'rss', not {self.combination!r}")
+        if self.h_meaning not in (PER_AXIS, DRMS):
+            raise ValueError(f"h_meaning must be 'per_axis' or 'drms', not {self.h_meaning!r}")
+        for name in ("h_fixed_mm", "h_ppm", "v_fixed_mm", "v_ppm", "setup_h_mm", "setup_v_mm"):
+            value = getattr(self, name)
+            if not (math.isfinite(value) and value >= 0):
+                raise ValueError(f"{name} must be a non-negative number, not {value!r}")
+
+    def rtk_h_axis_mm(self, distance_m):
+        """Horizontal RTK σ per axis (mm) at ``distance_m`` from the base."""
+        sigma = rtk_sigma_mm(distance_m, self.h_fixed_mm, self.h_ppm, self.combination)
+        return sigma / math.sqrt(2.0) if self.h_meaning == DRMS else sigma
+
+    def rtk_v_mm(self, distance_m):
+        """Vertical RTK σ (mm) at ``distance_m`` from the base."""
+        return rtk_sigma_mm(distance_m, self.v_fixed_mm, self.v_ppm, self.combination)
+
+
+def rtk_sigma_mm(distance_m, fixed_mm: float, ppm: float, combination: str = ADDITIVE):
+    """RTK error σ(d) in mm for a baseline of ``distance_m`` metres.
+
+    Parameters
+    ----------
+    distance_m : float or array
+        Baseline length, m.
+    fixed_mm, ppm : float
+        The fixed part a (mm) and the distance part b (ppm = mm per km).
+    combination : {"additive", "rss"}
+
+    Examples
+    --------
+    >>> float(rtk_sigma_mm(5000.0, 8.0, 1.0))
+    13.0
+    >>> round(float(rtk_sigma_mm(10000.0, 8.0, 1.0, "rss")), 2)
+    12.81
+    """
+    d_km = np.asarray(distance_m, dtype=float) * 1e-3
+    if combination == ADDITIVE:
+        return fixed_mm + ppm * d_km
+    if combination == RSS:
+        return np.sqrt(fixed_mm**2 + (ppm * d_km) ** 2)
+    raise ValueError(f"combination must be 'additive' or 'rss', not {combination!r}")
+
+
+def base_sigma_from_covariance_mm(cov_ee_m2, cov_en_m2, cov_nn_m2, cov_uu_m2):
+    """Per-axis horizontal σ and vertical σ (mm) of a base from its E/N/U covariance (m²).
+
+    Horizontal: √λmax of [[ee, en], [en, nn]] (semi-major axis of the standard ellipse).
+
+    Examples
+    --------
+    >>> h, v = base_sigma_from_covariance_mm(9e-6, 0.0, 4e-6, 2.5e-5)
+    >>> round(float(h), 6), round(float(v), 6)
+    (3.0, 5.0)
+    """
+    ee = np.asarray(cov_ee_m2, dtype=float)
+    en = np.asarray(cov_en_m2, dtype=float)
+    nn = np.asarray(cov_nn_m2, dtype=float)
+    uu = np.asarray(cov_uu_m2, dtype=float)
+    half_trace = 0.5 * (ee + nn)
+    root = np.sqrt((0.5 * (ee - nn)) ** 2 + en**2)
+    lam_max = half_trace + root
+    return np.sqrt(np.maximum(lam_max, 0.0)) * 1e3, np.sqrt(np.maximum(uu, 0.0)) * 1e3
+
+
+def base_sigma_from_network_accuracy_mm(h95_mm, v95_mm):
+    """Per-axis horizontal σ and vertical σ (mm) from network accuracies (95 %, mm).
+
+    >>> h, v = base_sigma_from_network_accuracy_mm(24.477468, 19.59964)
+    >>> round(float(h), 4), round(float(v), 4)
+    (10.0, 10.0)
+    """
+    return np.asarray(h95_mm, dtype=float) / K_H95, np.asarray(v95_mm, dtype=float) / K_V95
+
+
+def drift_sigma_mm(epoch_gap_yr, vel_sigma_mm_yr=None, assumed_rate_mm_yr: float = DEFAULT_ASSUMED_RATE_MM_YR):
+    """Drift σ (mm) over ``epoch_gap_yr``: velocity σ × |Δt|, or the assumed rate × |Δt|.
+
+    ``vel_sigma_mm_yr`` may be None or contain NaN where no velocity is known.
+
+    >>> drift_sigma_mm(-7.5).item()
+    15.0
+    >>> drift_sigma_mm(np.array([10.0, 10.0]), np.array([0.5, np.nan])).tolist()
+    [5.0, 20.0]
+    """
+    gap = np.abs(np.asarray(epoch_gap_yr, dtype=float))
+    if vel_sigma_mm_yr is None:
+        return gap * assumed_rate_mm_yr
+    rate = np.asarray(vel_sigma_mm_yr, dtype=float)
+    return gap * np.where(np.isnan(rate), assumed_rate_mm_yr, rate)
+
+
+def h95_mm(sigma_axis_mm):
+    """Horizontal 95 % circle radius from a per-axis σ (mm). ``h95_mm(10) ≈ 24.477``."""
+    return K_H95 * np.asarray(sigma_axis_mm, dtype=float)
+
+
+def v95_mm(sigma_mm):
+    """Vertical 95 % value from σ (mm). ``v95_mm(10) ≈ 19.600``."""
+    return K_V95 * np.asarray(sigma_mm, dtype=float)
+
+
+def error_budget_mm(distance_m, *, model: RtkErrorModel, base_h_mm, base_v_mm, drift_h_mm, drift_v_mm) -> dict:
+    """Every term of the rover's error budget at ``distance_m`` from the base, in mm.
+
+    Returns a dict with 1σ terms ``rtk``, ``base``, ``drift``, ``setup`` (each a pair
+    ``h`` per axis / ``v``), the combined σ and the 95 % figures.
+
+    Examples
+    --------
+    >>> m = RtkErrorModel(setup_h_mm=0, setup_v_mm=0)
+    >>> b = error_budget_mm(10000.0, model=m, base_h_mm=0, base_v_mm=0, drift_h_mm=0, drift_v_mm=0)
+    >>> b["rtk"]["h"], b["rtk"]["v"], round(b["h95"], 2), round(b["v95"], 2)
+    (18.0, 25.0, 44.06, 49.0)
+    """
+    terms = {
+        "rtk": (float(model.rtk_h_axis_mm(distance_m)), float(model.rtk_v_mm(distance_m))),
+        "base": (float(base_h_mm), float(base_v_mm)),
+        "drift": (float(drift_h_mm), float(drift_v_mm)),
+        "setup": (float(model.setup_h_mm), float(model.setup_v_mm)),
+    }
+    sigma_h = math.sqrt(sum(h * h for h, _ in terms.values()))
+    sigma_v = math.sqrt(sum(v * v for _, v in terms.values()))
+    out: dict = {name: {"h": h, "v": v} for name, (h, v) in terms.items()}
+    out.update(sigma_h=sigma_h, sigma_v=sigma_v, h95=K_H95 * sigma_h, v95=K_V95 * sigma_v)
+    return out
+
+
+# ----------------------------------------------------------------------------- screening
+
+
+@dataclass
+class ScreeningCore:
+    """Arrays produced by :func:`screen_candidates` (k candidates, p site points).
+
+    Per candidate: ``min_distance_m``, ``max_distance_m``, ``worst_h95_mm``,
+    ``worst_v95_mm`` (at the farthest site point), ``coverage`` (fraction of the site's
+    cells inside both tolerances), ``margin_mm`` (min of tol − worst, H and V),
+    ``beyond_baseline``, ``eligible`` (usable and within the baseline), ``order``
+    (candidate indices, ranked). Per site point: ``best_h95_mm``, ``best_v95_mm`` over
+    eligible candidates (inf where none). Site-wide: ``achievable_h95_mm`` /
+    ``achievable_v95_mm`` (the worst over the site of the best per point: the tightest
+    tolerance switching bases could meet), ``any_coverage`` (fraction of cells some
+    eligible base covers), and the best pair.
+    """
+
+    min_distance_m: np.ndarray
+    max_distance_m: np.ndarray
+    worst_h95_mm: np.ndarray
+    worst_v95_mm: np.ndarray
+    coverage: np.ndarray
+    margin_mm: np.ndarray
+    beyond_baseline: np.ndarray
+    eligible: np.ndarray
+    order: np.ndarray
+    best_h95_mm: np.ndarray
+    best_v95_mm: np.ndarray
+    achievable_h95_mm: float
+    achievable_v95_mm: float
+    any_coverage: float
+    pair: tuple[int, int] | None = None
+    pair_coverage: float = 0.0
+    pair_worst_margin_mm: float = -math.inf
+    pair_worst_h95_mm: float = math.inf
+    pair_worst_v95_mm: float = math.inf
+    info: dict = field(default_factory=dict)
+
+
+def _sigma2_const(base_mm, drift_mm, setup_mm) -> np.ndarray:
+    return np.asarray(base_mm, float) ** 2 + np.asarray(drift_mm, float) ** 2 + float(setup_mm) ** 2
+
+
+def screen_candidates(
+    site_e_m,
+    site_n_m,
+    site_is_cell,
+    cand_e_m,
+    cand_n_m,
+    *,
+    base_h_mm,
+    base_v_mm,
+    drift_h_mm,
+    drift_v_mm,
+    usable,
+    model: RtkErrorModel,
+    tol_h_mm: float,
+    tol_v_mm: float,
+    max_baseline_m: float,
+    block_elements: int = 400_000,
+) -> ScreeningCore:
+    """Screen k candidate bases over p site points on one local plane.
+
+    Parameters
+    ----------
+    site_e_m, site_n_m : (p,) arrays
+        Site points on the local plane (m). ``site_is_cell`` (p,) bool marks the points
+        that carry area (the others are boundary samples, used for worst cases only).
+    cand_e_m, cand_n_m : (k,) arrays
+        Candidate marks on the same plane (m).
+    base_h_mm, base_v_mm, drift_h_mm, drift_v_mm : (k,) arrays
+        1σ terms per candidate (per horizontal axis / vertical).
+    usable : (k,) bool
+        False for candidates already excluded by :func:`rule_reasons`.
+    model : RtkErrorModel
+    tol_h_mm, tol_v_mm : float
+        The job's tolerances, 95 % (horizontal circle, vertical).
+    max_baseline_m : float
+        A candidate with any site point farther than this is excluded.
+
+    Ranking: eligible first; among them those covering the whole site (every cell and
+    boundary sample inside both tolerances, i.e. margin ≥ 0) first, then larger margin,
+    then shorter distance; then the ineligible ones in the same order.
+    """
+    pe = np.asarray(site_e_m, dtype=float)
+    pn = np.asarray(site_n_m, dtype=float)
+    cells = np.asarray(site_is_cell, dtype=bool)
+    ce = np.asarray(cand_e_m, dtype=float)
+    cn = np.asarray(cand_n_m, dtype=float)
+    usable = np.asarray(usable, dtype=bool)
+    k, p = ce.size, pe.size
+    n_cells = max(int(cells.sum()), 1)
+    const_h2 = _sigma2_const(base_h_mm, drift_h_mm, model.setup_h_mm) * np.ones(k)
+    const_v2 = _sigma2_const(base_v_mm, drift_v_mm, model.setup_v_mm) * np.ones(k)
+    lim_h2 = (tol_h_mm / K_H95) ** 2
+    lim_v2 = (tol_v_mm / K_V95) ** 2
+
+    min_d = np.empty(k)
+    max_d = np.empty(k)
+    covered = np.zeros(k)
+    best_h2 = np.full(p, np.inf)
+    best_v2 = np.full(p, np.inf)
+    any_cov = np.zeros(p, dtype=bool)
+    rows = max(1, block_elements // max(p, 1))
+    for start in range(0, k, rows):
+        sl = slice(start, min(k, start + rows))
+        de = ce[sl, None] - pe[None, :]
+        dn = cn[sl, None] - pn[None, :]
+        d = np.sqrt(de * de + dn * dn)
+        min_d[sl] = d.min(axis=1) if p else np.inf
+        max_d[sl] = d.max(axis=1) if p else 0.0
+        h2 = model.rtk_h_axis_mm(d) ** 2 + const_h2[sl, None]
+        v2 = model.rtk_v_mm(d) ** 2 + const_v2[sl, None]
+        ok = (h2 <= lim_h2) & (v2 <= lim_v2)
+        covered[sl] = (ok & cells[None, :]).sum(axis=1)
+        elig = usable[sl] & (max_d[sl] <= max_baseline_m)
+        if elig.any():
+            best_h2 = np.minimum(best_h2, h2[elig].min(axis=0))
+            best_v2 = np.minimum(best_v2, v2[elig].min(axis=0))
+            any_cov |= ok[elig].any(axis=0)
+
+    beyond = max_d > max_baseline_m
+    eligible = usable & ~beyond
+    worst_h95 = K_H95 * np.sqrt(model.rtk_h_axis_mm(max_d) ** 2 + const_h2)
+    worst_v95 = K_V95 * np.sqrt(model.rtk_v_mm(max_d) ** 2 + const_v2)
+    coverage = covered / n_cells
+    margin = np.minimum(tol_h_mm - worst_h95, tol_v_mm - worst_v95)
+    # Covers the whole site: inside both tolerances at every point, boundary included.
+    full = margin >= 0.0
+    # np.lexsort: the last key is the primary one.
+    order = np.lexsort((min_d, -margin, ~full, ~eligible))
+    best_h95 = K_H95 * np.sqrt(best_h2)
+    best_v95 = K_V95 * np.sqrt(best_v2)
+    core = ScreeningCore(
+        min_distance_m=min_d,
+        max_distance_m=max_d,
+        worst_h95_mm=worst_h95,
+        worst_v95_mm=worst_v95,
+        coverage=coverage,
+        margin_mm=margin,
+        beyond_baseline=beyond,
+        eligible=eligible,
+        order=order,
+        best_h95_mm=best_h95,
+        best_v95_mm=best_v95,
+        achievable_h95_mm=float(best_h95.max()) if p else math.inf,
+        achievable_v95_mm=float(best_v95.max()) if p else math.inf,
+        any_coverage=float((any_cov & cells).sum() / n_cells),
+    )
+    _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm)
+    return core
+
+
+def _margins(idx, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm) -> np.ndarray:
+    """Per-point margin (mm) of candidates ``idx``: min(tol_h − h95, tol_v − v95); (len(idx), p)."""
+    de = ce[idx, None] - pe[None, :]
+    dn = cn[idx, None] - pn[None, :]
+    d = np.sqrt(de * de + dn * dn)
+    h95 = K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + const_h2[idx, None])
+    v95 = K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + const_v2[idx, None])
+    return np.minimum(tol_h_mm - h95, tol_v_mm - v95)
+
+
+def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm) -> None:
+    """Best pair of bases: per site point the better of the two; maximise coverage, then worst margin.
+
+    Method: the ``PAIR_POOL_SIZE`` best-ranked eligible candidates form the pool. Pair
+    coverage for *all* pool pairs comes from one matrix product of the cell-coverage
+    indicators (|A ∪ B| = |A| + |B| − |A ∩ B|). The ``PAIR_EXACT_EVALUATIONS`` pairs with
+    the most coverage (ties: larger sum of the two single worst margins) then get their
+    exact worst-case margin: min over points of max(margin_i, margin_j).
+    """
+    pool = core.order[core.eligible[core.order]][:PAIR_POOL_SIZE]
+    core.info["pair_pool"] = int(pool.size)
+    if pool.size < 2:
+        return
+    m = _margins(pool, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm)
+    ok = (m >= 0) & cells[None, :]
+    okf = ok.astype(np.float32)
+    n_each = okf.sum(axis=1)
+    inter = okf @ okf.T
+    union = n_each[:, None] + n_each[None, :] - inter
+    iu, ju = np.triu_indices(pool.size, k=1)
+    pair_cov = union[iu, ju]
+    single_worst = m.min(axis=1)
+    proxy = single_worst[iu] + single_worst[ju]
+    pick = np.lexsort((-proxy, -pair_cov))[:PAIR_EXACT_EVALUATIONS]
+    best = None
+    for start in range(0, pick.size, 64):
+        sel = pick[start : start + 64]
+        both = np.maximum(m[iu[sel]], m[ju[sel]])
+        cov = ((both >= 0) & cells[None, :]).sum(axis=1)
+        worst = both.min(axis=1)
+        for s, c, w in zip(sel, cov, worst, strict=True):
+            key = (int(c), float(w))
+            if best is None or key > best[0]:
+                best = (key, int(s))
+    (cov_count, worst_margin), s = best
+    i, j = int(pool[iu[s]]), int(pool[ju[s]])
+    core.pair = (i, j)
+    core.pair_coverage = cov_count / max(int(cells.sum()), 1)
+    core.pair_worst_margin_mm = worst_margin
+    # The pair's worst 95 % figures: per point the better base (by margin), then the worst point.
+    mi, mj = m[iu[s]], m[ju[s]]
+    use_i = mi >= mj
+    h = np.empty(pe.size)
+    v = np.empty(pe.size)
+    for idx, mask in ((i, use_i), (j, ~use_i)):
+        d = np.hypot(ce[idx] - pe[mask], cn[idx] - pn[mask])
+        h[mask] = K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + const_h2[idx])
+        v[mask] = K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + const_v2[idx])
+    core.pair_worst_h95_mm = float(h.max())
+    core.pair_worst_v95_mm = float(v.max())
+
+
+# ----------------------------------------------------------------------------- check marks
+
+
+def farthest_point_selection(e_m, n_m, *, first: int, count: int, avoid_e_m=(), avoid_n_m=()) -> list[int]:
+    """Pick ``count`` points spread out: start at ``first``, then each time the point
+    farthest from everything chosen so far (and from the ``avoid`` points, e.g. the bases).
+
+    >>> farthest_point_selection(np.array([0., 1., 10., 5.]), np.zeros(4), first=0, count=3)
+    [0, 2, 3]
+    """
+    e = np.asarray(e_m, dtype=float)
+    n = np.asarray(n_m, dtype=float)
+    if e.size == 0 or count <= 0:
+        return []
+    chosen = [int(first)]
+    dist = np.hypot(e - e[first], n - n[first])
+    for ae, an in zip(avoid_e_m, avoid_n_m, strict=True):
+        dist = np.minimum(dist, np.hypot(e - ae, n - an))
+    dist[first] = -1.0
+    while len(chosen) < min(count, e.size):
+        nxt = int(np.argmax(dist))
+        if dist[nxt] < 0:
+            break
+        chosen.append(nxt)
+        dist = np.minimum(dist, np.hypot(e - e[nxt], n - n[nxt]))
+        dist[chosen] = -1.0
+    return chosen
+
+
+def check_shot_allowance_mm(distance_m, *, model: RtkErrorModel, base_h_mm, base_v_mm, base_drift_h_mm,
+                            base_drift_v_mm, check_h_mm, check_v_mm, check_drift_h_mm, check_drift_v_mm):
+    """Largest check-shot discrepancy still consistent at 95 % (horizontal circle, vertical), mm.
+
+    The rover's error at the check mark from the base (RTK at the baseline, base
+    position, base drift, setup) is combined with the check mark's own position
+    uncertainty and drift: H = 2.4477·√(Σσ_axis²), V = 1.96·√(Σσ_v²).
+
+    >>> m = RtkErrorModel(h_fixed_mm=0, v_fixed_mm=0, setup_h_mm=0, setup_v_mm=0)
+    >>> h, v = check_shot_allowance_mm(0.0, model=m, base_h_mm=0, base_v_mm=0, base_drift_h_mm=0,
+    ...     base_drift_v_mm=0, check_h_mm=10, check_v_mm=25, check_drift_h_mm=0, check_drift_v_mm=0)
+    >>> round(float(h), 3), round(float(v), 3)
+    (24.477, 48.999)
+    """
+    sh2 = (model.rtk_h_axis_mm(distance_m) ** 2 + np.square(base_h_mm) + np.square(base_drift_h_mm)
+           + model.setup_h_mm**2 + np.square(check_h_mm) + np.square(check_drift_h_mm))
+    sv2 = (model.rtk_v_mm(distance_m) ** 2 + np.square(base_v_mm) + np.square(base_drift_v_mm)
+           + model.setup_v_mm**2 + np.square(check_v_mm) + np.square(check_drift_v_mm))
+    return K_H95 * np.sqrt(sh2), K_V95 * np.sqrt(sv2)
