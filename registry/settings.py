@@ -74,6 +74,7 @@ TEMPLATES = [
                 "django.contrib.messages.context_processors.messages",
                 "registry.web.context.registry_context",
             ],
+            "libraries": {"registry_format": "registry.web.templatetags.registry_format"},
         },
     }
 ]
