@@ -1,7 +1,23 @@
-"""Server-rendered pages."""
+"""Server-rendered pages. Each area adds its ``path(...)`` lines below its own comment."""
 
+from django.conf import settings
 from django.urls import path
+
+from registry.web import auth_views, import_views, mark_views, views
 
 app_name = "web"
 
-urlpatterns: list = []
+urlpatterns: list = [
+    # pages: sign in/out, marks
+    path("", views.home, name="home"),
+    path("signin/", auth_views.SignInView.as_view(), name="login"),
+    path("signout/", auth_views.SignOutView.as_view(), name="logout"),
+    path("marks/", mark_views.mark_list, name="mark-list"),
+    path("marks/new/", mark_views.mark_new, name="mark-create"),
+    # import (import-export area); before marks/<code>/ so that "import" never reads as a code
+    path("marks/import/", import_views.import_page, name="import"),
+    path("marks/<str:code>/", mark_views.mark_page, name="mark-detail"),
+    path("marks/<str:code>/edit/", mark_views.mark_edit, name="mark-edit"),
+    # uploaded files in development (DEBUG); the web server serves them in production
+    path(f"{settings.MEDIA_URL.strip('/')}/<path:path>", views.media_file, name="media"),
+]

@@ -1,0 +1,272 @@
+"""Reads of marks for the pages: list/search, status counts, the mark page, change history.
+
+Every function issues a fixed number of queries, whatever the number of rows
+(``select_related`` / ``prefetch_related`` / correlated subqueries; no query per row).
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from dataclasses import dataclass, field
+from typing import Any
+
+from django.db.models import (
+    Case,
+    Count,
+    IntegerField,
+    OuterRef,
+    Q,
+    QuerySet,
+    Subquery,
+    Value,
+    When,
+)
+from django.db.models.functions import Coalesce
+
+from registry.models import (
+    Attachment,
+    AttachmentKind,
+    AuditEvent,
+    HeightRecord,
+    Mark,
+    MarkStatus,
+    Occupation,
+    Position,
+    PositionState,
+    Visit,
+)
+
+MATCH_PREFIX = "prefix"
+MATCH_CONTAINS = "contains"
+
+# Order of positions on the mark page: the current published one first.
+POSITION_STATE_ORDER = (
+    PositionState.PUBLISHED,
+    PositionState.PROPOSED,
+    PositionState.SUPERSEDED,
+    PositionState.REJECTED,
+    PositionState.WITHDRAWN,
+)
+
+HISTORY_LIMIT = 200
+
+
+def _count_subquery(queryset: QuerySet) -> Subquery:
+    """``COUNT(*)`` of a correlated queryset, as an integer subquery."""
+    counted = queryset.order_by().values("mark").annotate(n=Count("pk")).values("n")
+    return Coalesce(Subquery(counted, output_field=IntegerField()), Value(0))
+
+
+def _search_position(column: str) -> Subquery:
+    """A column of the published position the mark's search location was taken from.
+
+    The services copy latitude/longitude of the published position into
+    ``search_lat_deg``/``search_lon_deg``; the source is the published position with
+    exactly those values (the latest decided one if several frames share them).
+    """
+    qs = Position.objects.filter(
+        mark=OuterRef("pk"),
+        state=PositionState.PUBLISHED,
+        lat_deg=OuterRef("search_lat_deg"),
+        lon_deg=OuterRef("search_lon_deg"),
+    ).order_by("-decided_at", "-pk")
+    return Subquery(qs.values(column)[:1])
+
+
+def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", status: str = "") -> QuerySet[Mark]:
+    """Marks matching the list page's filters, annotated for the list, ordered by code.
+
+    Parameters
+    ----------
+    q
+        Matches the code or the name, case-insensitively: from the start (``match="prefix"``)
+        or anywhere (``match="contains"``).
+    match
+        ``"prefix"`` (default) or ``"contains"``.
+    text
+        Free text: every word must occur (anywhere, case-insensitive) in the code, name,
+        stamping or custodian.
+    status
+        A :class:`~registry.models.MarkStatus` value, or empty for all.
+
+    Returns
+    -------
+    QuerySet[Mark]
+        Annotated with ``src_frame_epsg``/``src_epoch_yr`` (the published position the
+        search location comes from), ``n_positions``, ``n_published``, ``last_visit_on`` and
+        ``last_visit_condition``.
+    """
+    qs = mark_filter(q=q, match=match, text=text)
+    if status:
+        qs = qs.filter(status=status)
+    last_visit = Visit.objects.filter(mark=OuterRef("pk")).order_by("-visited_on", "-created_at", "-pk")
+    return qs.annotate(
+        src_frame_epsg=_search_position("frame_epsg"),
+        src_epoch_yr=_search_position("epoch_yr"),
+        n_positions=_count_subquery(Position.objects.filter(mark=OuterRef("pk"))),
+        n_published=_count_subquery(Position.objects.filter(mark=OuterRef("pk"), state=PositionState.PUBLISHED)),
+        last_visit_on=Subquery(last_visit.values("visited_on")[:1]),
+        last_visit_condition=Subquery(last_visit.values("condition")[:1]),
+    ).order_by("code")
+
+
+def mark_filter(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> QuerySet[Mark]:
+    """Marks matching the code/name search and the free text (no status filter, no annotations)."""
+    qs = Mark.objects.all()
+    q = (q or "").strip()
+    if q:
+        if match == MATCH_CONTAINS:
+            qs = qs.filter(Q(code__icontains=q) | Q(name__icontains=q))
+        else:
+            qs = qs.filter(Q(code__istartswith=q) | Q(name__istartswith=q))
+    for word in (text or "").split():
+        qs = qs.filter(
+            Q(code__icontains=word)
+            | Q(name__icontains=word)
+            | Q(stamping__icontains=word)
+            | Q(custodian__icontains=word)
+        )
+    return qs
+
+
+def mark_status_counts(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> dict[str, int]:
+    """How many marks of each status match the search (one query); every status present, zeros included."""
+    rows = mark_filter(q=q, match=match, text=text).order_by().values("status").annotate(n=Count("pk"))
+    counts = {value: 0 for value in MarkStatus.values}
+    for row in rows:
+        counts[row["status"]] = row["n"]
+    return counts
+
+
+# Snapshot keys that say nothing a reader of the history needs (the row's own bookkeeping).
+_BOOKKEEPING_KEYS = frozenset(
+    {
+        "id",
+        "mark",
+        "mark_id",
+        "created_at",
+        "created_by",
+        "created_by_id",
+        "updated_at",
+        "uploaded_at",
+        "uploaded_by",
+        "uploaded_by_id",
+    }
+)
+
+
+@dataclass
+class HistoryEntry:
+    """One audit event with its per-field changes ready to print.
+
+    ``is_record`` is true for events that recorded something new (no ``before``): their
+    ``changes`` list only the non-empty values recorded.
+    """
+
+    event: AuditEvent
+    changes: list[tuple[str, Any, Any]] = field(default_factory=list)
+    is_record: bool = False
+
+
+@dataclass
+class MarkDetail:
+    """Everything the mark page shows, read in a fixed number of queries."""
+
+    mark: Mark
+    positions: list[Position]
+    heights: list[HeightRecord]
+    occupations: list[Occupation]
+    visits: list[Visit]
+    photos: list[Attachment]
+    files: list[Attachment]
+    history: list[HistoryEntry]
+    history_truncated: bool
+
+    @property
+    def current_positions(self) -> list[Position]:
+        return [p for p in self.positions if p.state == PositionState.PUBLISHED]
+
+
+def audit_changes(before: dict | None, after: dict | None) -> list[tuple[str, Any, Any]]:
+    """Field-by-field (name, before, after) for the keys whose values differ.
+
+    >>> audit_changes({"name": "A", "version": 1}, {"name": "B", "version": 2})
+    [('name', 'A', 'B'), ('version', 1, 2)]
+    >>> audit_changes(None, {"status": "active"})
+    [('status', None, 'active')]
+    """
+    before = before if isinstance(before, dict) else {}
+    after = after if isinstance(after, dict) else {}
+    keys = list(dict.fromkeys([*before.keys(), *after.keys()]))
+    return [(k, before.get(k), after.get(k)) for k in keys if before.get(k) != after.get(k)]
+
+
+def mark_history(*, mark: Mark, limit: int = HISTORY_LIMIT) -> tuple[list[HistoryEntry], bool]:
+    """The mark's audit events, newest first, at most ``limit``; and whether more exist."""
+    events = list(AuditEvent.objects.filter(mark=mark).select_related("actor").order_by("-at", "-pk")[: limit + 1])
+    truncated = len(events) > limit
+    entries = []
+    for e in events[:limit]:
+        is_record = e.before is None and isinstance(e.after, dict)
+        changes = [
+            c
+            for c in audit_changes(e.before, e.after)
+            if c[0] not in _BOOKKEEPING_KEYS and not (is_record and c[2] in (None, ""))
+        ]
+        entries.append(HistoryEntry(event=e, changes=changes, is_record=is_record))
+    return entries, truncated
+
+
+def mark_detail(*, code: str) -> MarkDetail:
+    """The mark page's data for ``code`` (exact). Raises ``Mark.DoesNotExist``."""
+    mark = Mark.objects.get(code=code)
+    rank = Case(
+        *[When(state=s, then=Value(i)) for i, s in enumerate(POSITION_STATE_ORDER)],
+        default=Value(len(POSITION_STATE_ORDER)),
+        output_field=IntegerField(),
+    )
+    positions = list(
+        Position.objects.filter(mark=mark)
+        .select_related("created_by", "decided_by")
+        .annotate(state_rank=rank)
+        .order_by("state_rank", "-epoch_yr", "-created_at", "-pk")
+    )
+    heights = list(
+        HeightRecord.objects.filter(mark=mark).select_related("created_by").order_by("-current", "-created_at", "-pk")
+    )
+    occupations = list(
+        Occupation.objects.filter(mark=mark)
+        .select_related("result_position", "created_by")
+        .order_by("-start_utc", "-pk")
+    )
+    visits = list(
+        Visit.objects.filter(mark=mark).select_related("created_by").order_by("-visited_on", "-created_at", "-pk")
+    )
+    attachments = list(
+        Attachment.objects.filter(mark=mark).select_related("uploaded_by").order_by("-uploaded_at", "-pk")
+    )
+
+    by_occupation: dict[int, list[Attachment]] = defaultdict(list)
+    by_visit: dict[int, list[Attachment]] = defaultdict(list)
+    for a in attachments:
+        if a.occupation_id:
+            by_occupation[a.occupation_id].append(a)
+        if a.visit_id:
+            by_visit[a.visit_id].append(a)
+    for o in occupations:
+        o.attachment_list = by_occupation.get(o.pk, [])
+    for v in visits:
+        v.attachment_list = by_visit.get(v.pk, [])
+
+    history, truncated = mark_history(mark=mark)
+    return MarkDetail(
+        mark=mark,
+        positions=positions,
+        heights=heights,
+        occupations=occupations,
+        visits=visits,
+        photos=[a for a in attachments if a.kind == AttachmentKind.PHOTO],
+        files=[a for a in attachments if a.kind != AttachmentKind.PHOTO],
+        history=history,
+        history_truncated=truncated,
+    )

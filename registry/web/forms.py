@@ -1,0 +1,95 @@
+"""Forms of the pages. They parse and validate input; the services make the change."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from django import forms
+from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
+from django.forms.models import fields_for_model
+
+from registry.models import Mark, MarkStatus
+from registry.selectors.marks import MATCH_CONTAINS, MATCH_PREFIX
+
+# What a manager edits on the mark form. The status has its own action (with a note);
+# the search location follows the published position; the version is the form's own.
+MARK_FORM_FIELDS = (
+    "code",
+    "name",
+    "monument_type",
+    "setting",
+    "stability",
+    "stamping",
+    "to_reach",
+    "sky_view",
+    "custodian",
+    "notes",
+)
+
+
+class MarkSearchForm(forms.Form):
+    q = forms.CharField(label="Code or name", required=False, max_length=120)
+    match = forms.ChoiceField(
+        label="Match",
+        required=False,
+        choices=[(MATCH_PREFIX, "starts with"), (MATCH_CONTAINS, "contains")],
+    )
+    text = forms.CharField(label="Free text (code, name, stamping, custodian)", required=False, max_length=200)
+    status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
+
+    def filters(self) -> dict[str, str]:
+        """The cleaned filters (empty values for anything invalid)."""
+        data = self.cleaned_data if self.is_valid() else {}
+        return {
+            "q": data.get("q", ""),
+            "match": data.get("match") or MATCH_PREFIX,
+            "text": data.get("text", ""),
+            "status": data.get("status", ""),
+        }
+
+
+class MarkForm(forms.Form):
+    """Create or edit a mark. ``version`` is the mark's version when the form was loaded."""
+
+    version = forms.IntegerField(widget=forms.HiddenInput, required=False, min_value=1)
+
+    def __init__(self, *args, editing: bool = False, **kwargs):
+        super().__init__(*args, **kwargs)
+        model_fields = fields_for_model(Mark, fields=MARK_FORM_FIELDS)
+        version = self.fields.pop("version")
+        self.fields.update(model_fields)
+        self.fields["version"] = version
+        self.editing = editing
+        self.fields["to_reach"].widget.attrs.update(rows=4)
+        self.fields["notes"].widget.attrs.update(rows=3)
+        self.fields["code"].help_text = "1–32 characters: capital letters, digits, '_', '.', '-'."
+        if editing:
+            # The code identifies the mark in documents and links; it does not change here.
+            self.fields["code"].disabled = True
+            self.fields["code"].help_text = "The code does not change once the mark exists."
+            self.fields["version"].required = True
+
+    def clean_code(self) -> str:
+        code = self.cleaned_data.get("code", "")
+        return code.strip() if isinstance(code, str) else code
+
+    def mark_data(self) -> dict[str, Any]:
+        """The cleaned values of the mark's fields (not the version)."""
+        return {name: self.cleaned_data[name] for name in MARK_FORM_FIELDS if name in self.cleaned_data}
+
+    def changes_against(self, mark: Mark) -> dict[str, Any]:
+        """Fields whose submitted value differs from what ``mark`` holds now (code excluded)."""
+        data = self.mark_data()
+        return {k: v for k, v in data.items() if k != "code" and getattr(mark, k) != v}
+
+    def add_service_error(self, error: ValidationError) -> None:
+        """Attach a service's ``ValidationError`` to the matching fields (others to the form)."""
+        if hasattr(error, "error_dict"):
+            for name, errors in error.error_dict.items():
+                target = name if name in self.fields and name != "version" else None
+                if name == NON_FIELD_ERRORS:
+                    target = None
+                for e in errors:
+                    self.add_error(target, e)
+        else:
+            self.add_error(None, error)

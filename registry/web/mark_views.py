@@ -1,0 +1,139 @@
+"""Mark pages: the list with search, the mark page, and create/edit for managers.
+
+Views parse input and render; reads come from :mod:`registry.selectors.marks`, writes
+go through :mod:`registry.services.marks` (role check, validation, transaction, audit).
+"""
+
+from __future__ import annotations
+
+from django.contrib import messages
+from django.core.exceptions import ValidationError
+from django.core.paginator import Paginator
+from django.http import Http404, HttpRequest, HttpResponse
+from django.shortcuts import redirect, render
+
+from registry.errors import Conflict
+from registry.models import Mark
+from registry.roles import Ability, has_ability
+from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_search, mark_status_counts
+from registry.services.marks import mark_create, mark_update
+from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
+from registry.web.views import ability_required
+
+PAGE_SIZE = 50
+
+
+@ability_required(Ability.VIEW)
+def mark_list(request: HttpRequest) -> HttpResponse:
+    form = MarkSearchForm(request.GET or None)
+    if request.GET:
+        filters = form.filters()
+    else:
+        filters = {"q": "", "match": MATCH_PREFIX, "text": "", "status": ""}
+    paginator = Paginator(mark_search(**filters), PAGE_SIZE)
+    page = paginator.get_page(request.GET.get("page"))
+    status_counts = mark_status_counts(q=filters["q"], match=filters["match"], text=filters["text"])
+    context = {
+        "form": form,
+        "filters": filters,
+        "page": page,
+        "paginator": paginator,
+        "status_counts": status_counts,
+        "matching_any_status": sum(status_counts.values()),
+        "registry_total": Mark.objects.count(),
+        "filtered": any(filters[k] for k in ("q", "text", "status")),
+        "can_manage": has_ability(request.user, Ability.MANAGE),
+    }
+    return render(request, "registry/mark_list.html", context)
+
+
+@ability_required(Ability.VIEW)
+def mark_page(request: HttpRequest, code: str) -> HttpResponse:
+    try:
+        detail = mark_detail(code=code)
+    except Mark.DoesNotExist:
+        raise Http404(f"No mark with code {code!r}.") from None
+    context = {
+        "detail": detail,
+        "mark": detail.mark,
+        "can_manage": has_ability(request.user, Ability.MANAGE),
+    }
+    return render(request, "registry/mark_detail.html", context)
+
+
+@ability_required(Ability.MANAGE)
+def mark_new(request: HttpRequest) -> HttpResponse:
+    if request.method == "POST":
+        form = MarkForm(request.POST)
+        if form.is_valid():
+            try:
+                mark = mark_create(actor=request.user, data=form.mark_data())
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            else:
+                messages.success(request, f"Mark {mark.code} created (version {mark.version}).")
+                return redirect("web:mark-detail", code=mark.code)
+    else:
+        form = MarkForm()
+    return render(request, "registry/mark_form.html", {"form": form, "mark": None})
+
+
+def _conflict_rows(conflict: Conflict) -> list[dict]:
+    rows = []
+    for name, info in (conflict.details or {}).items():
+        if name == "version" or not isinstance(info, dict):
+            continue
+        rows.append({"field": name, **info})
+    order = {name: i for i, name in enumerate(MARK_FORM_FIELDS)}
+    rows.sort(key=lambda r: order.get(r["field"], len(order)))
+    return rows
+
+
+@ability_required(Ability.MANAGE)
+def mark_edit(request: HttpRequest, code: str) -> HttpResponse:
+    try:
+        mark = Mark.objects.get(code=code)
+    except Mark.DoesNotExist:
+        raise Http404(f"No mark with code {code!r}.") from None
+    initial = {name: getattr(mark, name) for name in MARK_FORM_FIELDS}
+    initial["version"] = mark.version
+    conflict = None
+    status = 200
+    if request.method == "POST":
+        form = MarkForm(request.POST, editing=True, initial=initial)
+        if form.is_valid():
+            loaded_version = form.cleaned_data["version"]
+            changes = form.changes_against(mark)
+            if not changes:
+                messages.info(request, f"Nothing to save: mark {mark.code} already holds these values.")
+                return redirect("web:mark-detail", code=mark.code)
+            try:
+                mark = mark_update(actor=request.user, code=mark.code, expected_version=loaded_version, changes=changes)
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            except Conflict as exc:
+                conflict = {
+                    "message": exc.message,
+                    "rows": _conflict_rows(exc),
+                    "loaded_version": loaded_version,
+                    "stored_version": (exc.details or {}).get("version", {}).get("theirs"),
+                }
+                status = 409
+                # Keep what the user entered; carry the stored version so that a deliberate
+                # second save (after reading the comparison) is checked against it.
+                data = request.POST.copy()
+                if conflict["stored_version"] is not None:
+                    data["version"] = str(conflict["stored_version"])
+                form = MarkForm(data, editing=True, initial=initial)
+                form.is_valid()
+            else:
+                messages.success(request, f"Mark {mark.code} saved (version {mark.version}).")
+                return redirect("web:mark-detail", code=mark.code)
+    else:
+        form = MarkForm(initial=initial, editing=True)
+    return render(
+        request,
+        "registry/mark_form.html",
+        {"form": form, "mark": mark, "conflict": conflict},
+        status=status,
+    )
