@@ -1,0 +1,167 @@
+"""Orthometric and ellipsoidal heights with a geoid model: H = h − N.
+
+Pure module (no Django). The geoid undulation N is read from a grid file through PROJ's
+``vgridshift`` operation (bilinear interpolation in the grid); the caller passes the grid (a file
+name PROJ can find on its search path, or an absolute path) and the model's name. Choosing the
+office's configured grid is done on the Django side (``registry.selectors.conversion``).
+
+Sources
+-------
+- h = H + N (ellipsoidal height = orthometric height + geoid height): e.g. ICSM *GDA Technical
+  Manual* v2.3, Flinders Peak: 347.200 + 3.748 = 350.948 m (checked in the tests).
+- PROJ ``vgridshift``: Z_out = Z_in + multiplier × N(φ, λ) (PROJ documentation, "vgridshift");
+  here multiplier = 1 applied to Z_in = 0 yields N itself.
+- EGM96 (``egm96_15.gtx``, 15′ grid, shipped by Debian's ``proj-data``): F. G. Lemoine et al.,
+  *The Development of the Joint NASA GSFC and NIMA Geopotential Model EGM96*, NASA/TP-1998-206861.
+  A global model; its N can be off by decimetres to metres from a national gravimetric geoid, so
+  every height computed with it is labelled approximate and is NOT survey grade.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+__all__ = [
+    "HeightError",
+    "GeoidModel",
+    "EGM96_FALLBACK",
+    "egm96_fallback",
+    "EGM96_LABEL",
+    "geoid_undulation_m",
+    "orthometric_height_m",
+    "ellipsoidal_height_m",
+]
+
+#: Label shown wherever the EGM96 fallback is used (pages, commands, API, PDFs).
+EGM96_LABEL = "EGM96 (global model, approximate — not survey grade)"
+
+
+class HeightError(ValueError):
+    """N could not be obtained (grid missing, point outside the grid); ``code`` says why."""
+
+    def __init__(self, message: str, *, code: str):
+        super().__init__(message)
+        self.code = code
+
+
+@dataclass(frozen=True)
+class GeoidModel:
+    """A geoid grid: ``grid`` is what PROJ opens (file name on its search path or absolute path)."""
+
+    name: str
+    grid: str
+    approximate: bool = False
+    vertical_datum_epsg: int | None = None
+
+    @property
+    def label(self) -> str:
+        if self.approximate:
+            return (
+                EGM96_LABEL
+                if self.name.upper().startswith("EGM96")
+                else f"{self.name} (approximate — not survey grade)"
+            )
+        return self.name
+
+    def as_dict(self) -> dict:
+        return {
+            "name": self.name,
+            "label": self.label,
+            "grid": self.grid,
+            "approximate": self.approximate,
+            "vertical_datum_epsg": self.vertical_datum_epsg,
+        }
+
+
+#: The Debian proj-data EGM96 15′ grid (by file name); EPSG:5773 is the EGM96 height datum.
+EGM96_FALLBACK = GeoidModel(name="EGM96", grid="egm96_15.gtx", approximate=True, vertical_datum_epsg=5773)
+
+
+def egm96_fallback(*, dirs=()) -> GeoidModel:
+    """The EGM96 fallback with its grid resolved to an absolute path where one is found.
+
+    Looks in ``dirs``, PROJ's search path and Debian's ``/usr/share/proj``.
+    """
+    from registry.geodesy.projsetup import find_grid
+
+    path = find_grid(EGM96_FALLBACK.grid, dirs=dirs)
+    if path is None:
+        return EGM96_FALLBACK
+    return GeoidModel(name="EGM96", grid=path, approximate=True, vertical_datum_epsg=5773)
+
+
+@lru_cache(maxsize=32)
+def _geoid_operation(grid: str):
+    import pyproj
+    import pyproj.network
+
+    if pyproj.network.is_network_enabled():
+        pyproj.network.set_network_enabled(False)
+    if any(c.isspace() for c in grid) or "+" in grid:
+        raise HeightError(f"Geoid grid name {grid!r} may not contain spaces or '+'.", code="bad_grid_name")
+    pipeline = (
+        "+proj=pipeline +step +proj=unitconvert +xy_in=deg +xy_out=rad "
+        f"+step +proj=vgridshift +grids={grid} +multiplier=1 "
+        "+step +proj=unitconvert +xy_in=rad +xy_out=deg"
+    )
+    try:
+        return pyproj.Transformer.from_pipeline(pipeline)
+    except pyproj.exceptions.ProjError as exc:
+        raise HeightError(
+            f"Geoid grid '{grid}' was not found on PROJ's search path (or is not a valid grid). "
+            "Install it into the registry's grid folder.",
+            code="grid_missing",
+        ) from exc
+
+
+def geoid_undulation_m(lat_deg, lon_deg, *, model: GeoidModel):
+    """Geoid height N (metres) above the ellipsoid at the points, from ``model``'s grid.
+
+    Raises
+    ------
+    HeightError
+        ``grid_missing`` if PROJ cannot open the grid, ``outside_grid`` where the grid has no value.
+
+    Examples
+    --------
+    >>> round(float(geoid_undulation_m(45.2, -110.6, model=egm96_fallback())), 2)
+    -8.54
+    """
+    import pyproj
+
+    lat = np.asarray(lat_deg, dtype=float)
+    lon = np.asarray(lon_deg, dtype=float)
+    lat, lon = np.broadcast_arrays(lat, lon)
+    if not (np.all(np.isfinite(lat)) and np.all(np.isfinite(lon))) or np.any(np.abs(lat) > 90):
+        raise HeightError("Latitude and longitude must be finite, latitude within ±90°.", code="not_finite")
+    shape = lat.shape
+    op = _geoid_operation(model.grid)
+    try:
+        _, _, n = op.transform(lon.ravel(), lat.ravel(), np.zeros(lat.size), errcheck=True)
+    except pyproj.exceptions.ProjError as exc:
+        raise HeightError(f"Some points are outside the geoid grid {model.name}: {exc}", code="outside_grid") from exc
+    n = np.asarray(n, dtype=float).reshape(shape)
+    if not np.all(np.isfinite(n)) or np.any(np.abs(n) > 200.0):
+        raise HeightError(f"Some points are outside the geoid grid {model.name}.", code="outside_grid")
+    return n
+
+
+def orthometric_height_m(h_m, n_m):
+    """Orthometric height H = h − N (metres).
+
+    >>> round(float(orthometric_height_m(350.948, 3.748)), 3)
+    347.2
+    """
+    return np.asarray(h_m, dtype=float) - np.asarray(n_m, dtype=float)
+
+
+def ellipsoidal_height_m(orthometric_m, n_m):
+    """Ellipsoidal height h = H + N (metres).
+
+    >>> round(float(ellipsoidal_height_m(744.986, 4.869)), 3)
+    749.855
+    """
+    return np.asarray(orthometric_m, dtype=float) + np.asarray(n_m, dtype=float)
