@@ -291,7 +291,7 @@ def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRe
     """Validate one row given as ``{field: value}`` (strings from CSV, JSON values from GeoJSON).
 
     Only keys present in ``raw`` are taken for the mark (absent keys keep their default on create and
-    their stored value on update). The row has a position when any coordinate or position field is
+    their stored value on update; so does a blank choice such as ``status``). The row has a position when any coordinate or position field is
     non-blank; then frame, epoch, latitude, longitude, height, source and an uncertainty (three sigmas
     in mm, or the covariance diagonal in m²) are all required.
 
@@ -323,8 +323,8 @@ def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRe
         if name in MARK_CHOICES:
             value = raw[name]
             if _is_blank(value):
-                chk.add("choice_required", f"must be one of: {', '.join(MARK_CHOICES[name])}", name)
-            elif not isinstance(value, str) or value.strip() not in MARK_CHOICES[name]:
+                continue  # a blank choice cell means "not given": the default on create, unchanged on update
+            if not isinstance(value, str) or value.strip() not in MARK_CHOICES[name]:
                 chk.add("invalid_choice", f"{value!r} is not one of: {', '.join(MARK_CHOICES[name])}", name)
             else:
                 mark[name] = value.strip()

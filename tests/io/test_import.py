@@ -295,3 +295,49 @@ def test_command_reports_every_bad_row_and_exits_non_zero(manager, technician, t
     other.write_text(csv_text(*GOOD))
     with pytest.raises(CommandError, match="Cannot tell the format"):
         call_command("import_marks", str(other), "--as", manager.username)
+
+
+# --- The page ----------------------------------------------------------------------------------------
+
+
+def upload(client, text, name="marks.csv", **extra):
+    from django.core.files.uploadedfile import SimpleUploadedFile
+
+    data = {"file": SimpleUploadedFile(name, text.encode(), content_type="text/csv"), **extra}
+    return client.post("/marks/import/", data)
+
+
+def test_page_refuses_technician_and_anonymous(client, technician):
+    response = client.get("/marks/import/")
+    assert response.status_code == 302 and "/signin/" in response["Location"]
+    client.force_login(technician)
+    assert client.get("/marks/import/").status_code == 403
+    assert upload(client, csv_text(*GOOD)).status_code == 403
+    assert nothing_written()
+
+
+def test_page_lists_every_bad_row_and_changes_nothing(client, manager):
+    client.force_login(manager)
+    page = client.get("/marks/import/")
+    assert page.status_code == 200 and b"Import marks" in page.content
+    text = csv_text(GOOD[0], "TST-004,,disk_rock,7912,2021.5,95.0,-110.6,1500,4,4,8,x", GOOD[1], GOOD[1])
+    response = upload(client, text)
+    assert response.status_code == 400
+    body = response.content.decode()
+    assert "Refused — nothing was changed" in body
+    assert "line 3" in body and "latitude 95.0 is outside" in body
+    assert "line 5" in body and "duplicate_code" in body
+    assert nothing_written()
+
+
+def test_page_success_summary(client, manager):
+    client.force_login(manager)
+    response = upload(client, csv_text(*GOOD), dry_run="on")
+    assert response.status_code == 200 and "Check passed — nothing was changed" in response.content.decode()
+    assert nothing_written()
+    response = upload(client, csv_text(*GOOD))
+    body = response.content.decode()
+    assert response.status_code == 200 and "Imported" in body
+    assert 'href="/marks/TST-001/"' in body
+    assert Mark.objects.count() == 3
+    assert AuditEvent.objects.filter(action="marks_import", actor=manager).count() == 1

@@ -1,0 +1,68 @@
+"""GET /api/marks/export.csv, /api/marks/export.geojson, /api/marks/export?format=csv|geojson (viewer role).
+
+The body is the same text ``manage.py export_marks`` writes (``registry.io.export``): every mark with one
+published position (``?frame=EPSG`` picks the frame; default: each mark's most recently published one).
+Errors use the API's one JSON shape.
+"""
+
+from __future__ import annotations
+
+from django.http import HttpResponse
+from drf_spectacular.types import OpenApiTypes
+from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
+from rest_framework.renderers import JSONRenderer
+from rest_framework.views import APIView
+
+from registry.api.permissions import IsViewer
+from registry.errors import InvalidInput
+from registry.io.common import frame_problem
+from registry.io.export import EXPORT_FORMATS, export_marks_text
+
+
+class MarksExportView(APIView):
+    """Download every mark as CSV or GeoJSON, in the format the importer reads."""
+
+    permission_classes = [IsViewer]
+    renderer_classes = [JSONRenderer]  # for errors; the export itself is a plain HttpResponse
+    fmt: str | None = None  # fixed by the URL (export.csv / export.geojson) or taken from ?format=
+
+    def perform_content_negotiation(self, request, force=False):
+        # ?format= names the export format here, not a DRF renderer; errors are always JSON.
+        renderer = JSONRenderer()
+        return renderer, renderer.media_type
+
+    @extend_schema(
+        operation_id="marks_export",
+        parameters=[
+            OpenApiParameter("format", str, enum=list(EXPORT_FORMATS), description="csv or geojson (default csv)"),
+            OpenApiParameter("frame", int, description="EPSG code of the positions' frame, e.g. 7912"),
+        ],
+        responses={
+            (200, "text/csv"): OpenApiResponse(OpenApiTypes.STR, description="CSV, columns as in the README"),
+            (200, "application/geo+json"): OpenApiResponse(
+                OpenApiTypes.OBJECT, description="GeoJSON FeatureCollection"
+            ),
+        },
+    )
+    def get(self, request, *args, **kwargs):
+        fmt = self.fmt or (request.query_params.get("format") or "csv").strip().lower()
+        if fmt not in EXPORT_FORMATS:
+            raise InvalidInput(
+                f"Unknown export format {fmt!r}; use csv or geojson.", code="unknown_format", details={"format": fmt}
+            )
+        frame_epsg = None
+        raw_frame = request.query_params.get("frame")
+        if raw_frame not in (None, ""):
+            try:
+                frame_epsg = int(raw_frame)
+            except ValueError:
+                raise InvalidInput("frame must be an EPSG code (a whole number).", code="invalid_frame") from None
+            problem = frame_problem(frame_epsg) if frame_epsg > 0 else f"EPSG:{frame_epsg} is not a valid code"
+            if problem:
+                raise InvalidInput(problem, code="invalid_frame", details={"frame": frame_epsg})
+        media_type, extension = EXPORT_FORMATS[fmt]
+        text = export_marks_text(fmt=fmt, frame_epsg=frame_epsg)
+        response = HttpResponse(text.encode("utf-8"), content_type=f"{media_type}; charset=utf-8")
+        suffix = f"-epsg{frame_epsg}" if frame_epsg else ""
+        response["Content-Disposition"] = f'attachment; filename="marks{suffix}.{extension}"'
+        return response
