@@ -35,3 +35,84 @@ def check_postgis(app_configs=None, databases=None, **kwargs):
                 )
             )
     return errors
+
+
+# --- PROJ data, PROJ network, geoid grids (geodesy area; ids registry.E010–E019, W010–W019) ---
+
+
+@register()
+def check_proj(app_configs=None, **kwargs):
+    """registry.E010/E011/E012, W010–W012: PROJ database, frame operations, network off, geoid grids."""
+    import os
+
+    from django.conf import settings
+
+    from registry.geodesy.heights import EGM96_FALLBACK
+    from registry.geodesy.projsetup import find_grid, proj_status
+
+    out = []
+    status = proj_status()
+    if status["proj_db"] is None:
+        out.append(
+            Error(
+                "PROJ's database (proj.db) was not found on PROJ's search path.",
+                hint=f"Search path: {os.pathsep.join(status['search_dirs']) or '(empty)'}. Reinstall pyproj "
+                "(its wheel carries proj.db) or set PROJ_DATA to a folder holding proj.db.",
+                id="registry.E010",
+            )
+        )
+    else:
+        from registry.geodesy.frames import FrameTransformError, operation_for
+
+        try:
+            operation_for("EPSG:9989", "EPSG:7912")
+        except FrameTransformError as exc:
+            out.append(
+                Error(
+                    f"PROJ cannot transform ITRF2020 to ITRF2014: {exc}",
+                    hint=f"PROJ {status['proj_version']} with pyproj {status['pyproj_version']} is expected "
+                    "(requirements.txt); an old proj.db lacks the time-dependent ITRF transformations.",
+                    id="registry.E012",
+                )
+            )
+    if status["network_enabled"]:
+        out.append(
+            Warning(
+                "PROJ network access (CDN grids) is on; the registry expects it off so that results never "
+                "depend on what a remote server returns.",
+                hint="Unset PROJ_NETWORK (the app turns it off at start-up; something turned it on again).",
+                id="registry.W010",
+            )
+        )
+    reg = settings.REGISTRY
+    geoid_dir = reg.get("GEOID_DIR") or ""
+    model = (reg.get("GEOID_MODEL") or "").strip()
+    if model and geoid_dir and not os.path.isdir(geoid_dir):
+        out.append(
+            Warning(
+                f"The geoid grid folder {geoid_dir} (REGISTRY_GEOID_DIR) does not exist.",
+                hint="Create it and put the office's geoid grid there.",
+                id="registry.W011",
+            )
+        )
+    if model and find_grid(model, dirs=[geoid_dir]) is None:
+        out.append(
+            Error(
+                f"The configured geoid grid '{model}' (REGISTRY_GEOID_MODEL) was not found.",
+                hint=f"Copy it into {geoid_dir} (REGISTRY_GEOID_DIR) or correct the file name.",
+                id="registry.E011",
+            )
+        )
+    # Without an office model the labelled EGM96 fallback is used (by design, no warning); without
+    # that grid too there are no orthometric heights at all.
+    if not model and find_grid(EGM96_FALLBACK.grid, dirs=[geoid_dir]) is None:
+        out.append(
+            Warning(
+                "No geoid grid is available: neither an office model (REGISTRY_GEOID_MODEL) nor the EGM96 "
+                "fallback (egm96_15.gtx), so no orthometric heights can be computed.",
+                hint="Install the national geoid grid into REGISTRY_GEOID_DIR and set REGISTRY_GEOID_MODEL; "
+                "or, for an approximate fallback only, apt-get install proj-data.",
+                id="registry.W012",
+            )
+        )
+    return out

@@ -387,8 +387,8 @@ def transform_position(
             Step(
                 kind="hold",
                 description=(
-                    f"no velocity known: coordinates held from {t1:.3f} to {t2:.3f}; uncertainty inflated by "
-                    f"{assumed_rate_mm_yr:g} mm/yr × {abs(dt):.3f} yr = {added * 1000:.1f} mm per axis (assumed rate)"
+                    f"no velocity known: coordinates held; assumed rate {assumed_rate_mm_yr:g} mm/yr per axis "
+                    f"× {abs(dt):.3f} yr"
                 ),
                 accuracy_m=added,
                 from_label=frame.label,

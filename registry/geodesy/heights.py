@@ -19,6 +19,7 @@ Sources
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -70,7 +71,7 @@ class GeoidModel:
         return {
             "name": self.name,
             "label": self.label,
-            "grid": self.grid,
+            "grid": os.path.basename(self.grid),
             "approximate": self.approximate,
             "vertical_datum_epsg": self.vertical_datum_epsg,
         }
