@@ -26,7 +26,10 @@ def check_keys(data: Any, allowed: set[str] | tuple[str, ...]) -> dict[str, Any]
     unknown = [k for k in data if k not in allowed]
     if unknown:
         raise ValidationError(
-            {str(k): ValidationError(f"Unknown field '{k}'.", code="unknown_field", params={"field": k}) for k in unknown}
+            {
+                str(k): ValidationError(f"Unknown field '{k}'.", code="unknown_field", params={"field": k})
+                for k in unknown
+            }
         )
     return data
 
@@ -113,7 +116,9 @@ def parse_aware_datetime(data: dict, field: str, *, required: bool = False) -> _
         except ValueError:
             parsed = None
         if parsed is None:
-            raise field_error(field, "Expected an ISO 8601 date and time, e.g. 2024-05-01T14:30:00Z.", "invalid_datetime")
+            raise field_error(
+                field, "Expected an ISO 8601 date and time, e.g. 2024-05-01T14:30:00Z.", "invalid_datetime"
+            )
         value = parsed
     if not isinstance(value, _dt.datetime):
         raise field_error(field, "Expected a date and time.", "invalid_datetime")

@@ -56,7 +56,9 @@ def access_mark_by_code(user, code: Any, *, ability: Ability = Ability.VIEW, for
         raise not_found from None
 
 
-def access_position_by_id(user, position_id: Any, *, ability: Ability = Ability.VIEW, for_update: bool = False) -> Position:
+def access_position_by_id(
+    user, position_id: Any, *, ability: Ability = Ability.VIEW, for_update: bool = False
+) -> Position:
     """The position with primary key ``position_id`` (its mark selected too)."""
     not_found = NotFound(f"No position with id {position_id!r}.", details={"position_id": str(position_id)})
     _gate(user, ability, not_found)

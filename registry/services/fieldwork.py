@@ -7,10 +7,11 @@ Antenna height of an occupation: when the height was measured vertically to the
 antenna reference point (ARP), that value is stored as the ARP height too. When it
 was measured as a slant to the antenna's slant-measure point, the vertical ARP height
 is h_ARP = √(s² − r²) + Δh (brief §3; references §9), computed by
-``registry.geodesy.antenna.slant_to_vertical_arp_m`` when that module is present and
-the antenna radius ``antenna_radius_m`` (r) and offset ``arp_offset_m`` (Δh, negative
-when the ARP is below the slant-measure point) are given; otherwise only the measured
-slant is stored and the ARP height stays empty (never silently treated as vertical).
+``registry.geodesy.antenna.slant_to_vertical_arp_m`` when the antenna radius
+``antenna_radius_m`` (r) and offset ``arp_offset_m`` (Δh, negative when the ARP is below
+the slant-measure plane) are given. A slant without them is stored as measured and its
+ARP height stays empty (never silently treated as vertical); r and Δh are kept in the
+audit row, since the occupation has no columns for them.
 
 Attachments are stored through Django's default storage under a path built from the
 mark code and the file's SHA-256, which is computed while streaming the upload.
@@ -30,6 +31,8 @@ from django.db import transaction
 from django.utils import timezone
 from django.utils.text import get_valid_filename
 
+from registry.geodesy.accuracy import ComputationInputError
+from registry.geodesy.antenna import slant_to_vertical_arp_m
 from registry.models import (
     AntennaHeightKind,
     Attachment,
@@ -120,22 +123,17 @@ def visit_record(*, actor, mark_code: str, data: dict) -> Visit:
 
 
 def _arp_height_m(kind: str, measured_m: float | None, radius_m: float | None, offset_m: float | None) -> float | None:
-    """The vertical mark → ARP height, or ``None`` when it cannot be computed here."""
+    """The vertical mark → ARP height, or ``None`` when a slant comes without the antenna's radius and offset."""
     if measured_m is None:
         return None
     if kind == AntennaHeightKind.VERTICAL:
         return measured_m
-    if radius_m is None or offset_m is None:
-        return None
+    if radius_m is None and offset_m is None:
+        return None  # stored as measured; reduced once the antenna's radius and offset are known
     try:
-        from registry.geodesy.antenna import slant_to_vertical_arp_m
-    except ImportError:
-        return None
-    try:
-        value = slant_to_vertical_arp_m(slant_m=measured_m, radius_m=radius_m, arp_offset_m=offset_m)
-    except ValueError as exc:
-        raise field_error("antenna_height_measured_m", f"Slant height cannot be reduced: {exc}", "slant_shorter_than_radius") from None
-    return float(value)
+        return float(slant_to_vertical_arp_m(slant_m=measured_m, radius_m=radius_m, arp_offset_m=offset_m))
+    except ComputationInputError as exc:
+        raise field_error("antenna_height_measured_m", exc.message, exc.code) from None
 
 
 def occupation_record(*, actor, mark_code: str, data: dict) -> Occupation:
@@ -178,9 +176,19 @@ def occupation_record(*, actor, mark_code: str, data: dict) -> Occupation:
         )
     if radius is not None and radius <= 0:
         errors.append(field_error("antenna_radius_m", "The antenna radius must be positive.", "invalid_radius"))
+    if kind == AntennaHeightKind.SLANT and measured is not None and (radius is None) != (offset is None):
+        errors.append(
+            field_error(
+                "antenna_radius_m",
+                "Give both the antenna radius and the ARP offset to reduce a slant height (or neither).",
+                "slant_geometry_incomplete",
+            )
+        )
     if kind == AntennaHeightKind.VERTICAL and (radius is not None or offset is not None):
         errors.append(
-            field_error("antenna_radius_m", "Radius and offset apply to a slant height only.", "slant_fields_for_vertical")
+            field_error(
+                "antenna_radius_m", "Radius and offset apply to a slant height only.", "slant_fields_for_vertical"
+            )
         )
     if measured is not None and radius is not None and kind == AntennaHeightKind.SLANT and measured < radius:
         errors.append(
@@ -202,7 +210,9 @@ def occupation_record(*, actor, mark_code: str, data: dict) -> Occupation:
         if result_id is not None:
             result_position = Position.objects.filter(pk=result_id, mark=mark).first()
             if result_position is None:
-                raise field_error("result_position_id", "No position with this id belongs to this mark.", "position_other_mark")
+                raise field_error(
+                    "result_position_id", "No position with this id belongs to this mark.", "position_other_mark"
+                )
         occupation = Occupation(
             mark=mark,
             method=method,
@@ -236,7 +246,9 @@ def _hash_stream(file) -> tuple[str, int]:
     size = 0
     if hasattr(file, "seek"):
         file.seek(0)
-    for chunk in file.chunks(_HASH_CHUNK_BYTES) if hasattr(file, "chunks") else iter(lambda: file.read(_HASH_CHUNK_BYTES), b""):
+    for chunk in (
+        file.chunks(_HASH_CHUNK_BYTES) if hasattr(file, "chunks") else iter(lambda: file.read(_HASH_CHUNK_BYTES), b"")
+    ):
         if isinstance(chunk, str):
             raise field_error("file", "Attach the file in binary mode.", "invalid_file")
         digest.update(chunk)
@@ -265,7 +277,13 @@ def attachment_add(
     errors = []
     if kind not in AttachmentKind.values:
         errors.append(
-            field_error("kind", "%(value)r is not one of: %(choices)s.", "invalid_choice", value=kind, choices=", ".join(AttachmentKind.values))
+            field_error(
+                "kind",
+                "%(value)r is not one of: %(choices)s.",
+                "invalid_choice",
+                value=kind,
+                choices=", ".join(AttachmentKind.values),
+            )
         )
     if not isinstance(caption, str) or len(caption.strip()) > 200:
         errors.append(field_error("caption", "A caption is text of at most 200 characters.", "invalid_caption"))
@@ -292,7 +310,9 @@ def attachment_add(
         if id_values[0] is not None:
             occupation = Occupation.objects.filter(pk=id_values[0], mark=mark).first()
             if occupation is None:
-                raise field_error("occupation_id", "No occupation with this id belongs to this mark.", "occupation_other_mark")
+                raise field_error(
+                    "occupation_id", "No occupation with this id belongs to this mark.", "occupation_other_mark"
+                )
         if id_values[1] is not None:
             visit = Visit.objects.filter(pk=id_values[1], mark=mark).first()
             if visit is None:

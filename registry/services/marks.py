@@ -252,7 +252,11 @@ def mark_set_status(*, actor, code: str, status: str, expected_version: int, not
         mark = access_mark_by_code(actor, code, ability=Ability.MANAGE)
         if mark.status == status and mark.version == version:
             raise ValidationError(
-                {"status": ValidationError("The mark is already %(value)s.", code="status_unchanged", params={"value": status})}
+                {
+                    "status": ValidationError(
+                        "The mark is already %(value)s.", code="status_unchanged", params={"value": status}
+                    )
+                }
             )
         before_status = mark.status
         updated = Mark.objects.filter(pk=mark.pk, version=version).update(

@@ -52,7 +52,12 @@ _RANGES = {
     "lat_deg": (-90.0, 90.0, "lat_out_of_range", "Latitude must be between -90 and 90 degrees."),
     "lon_deg": (-180.0, 180.0, "lon_out_of_range", "Longitude must be between -180 and 180 degrees."),
     "h_m": (-1000.0, 10000.0, "h_out_of_range", "Ellipsoidal height must be between -1000 m and 10000 m."),
-    "epoch_yr": (1900.0, 2100.0, "epoch_out_of_range", "Coordinate epoch must be a decimal year between 1900 and 2100."),
+    "epoch_yr": (
+        1900.0,
+        2100.0,
+        "epoch_out_of_range",
+        "Coordinate epoch must be a decimal year between 1900 and 2100.",
+    ),
 }
 # A covariance matrix may have an eigenvalue this far below zero (relative to its
 # largest) and still count as positive semi-definite: rounding of published values.
@@ -118,7 +123,9 @@ def _parse_position(data: Any) -> dict[str, Any]:
     if any(given) and not all(given):
         errors.append(field_error("vel_e_m_yr", "Give all three velocity components or none.", "velocity_incomplete"))
     if not any(given) and any(out[n] is not None for n in VEL_SIGMA_FIELDS):
-        errors.append(field_error("vel_sigma_e_m_yr", "Velocity sigmas need a velocity.", "velocity_sigma_without_velocity"))
+        errors.append(
+            field_error("vel_sigma_e_m_yr", "Velocity sigmas need a velocity.", "velocity_sigma_without_velocity")
+        )
     if errors:
         raise merge_errors(*errors)
 
@@ -237,7 +244,11 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             actor=actor,
             action="position_publish",
             obj=position,
-            before={"state": PositionState.PROPOSED, "search_lat_deg": mark.search_lat_deg, "search_lon_deg": mark.search_lon_deg},
+            before={
+                "state": PositionState.PROPOSED,
+                "search_lat_deg": mark.search_lat_deg,
+                "search_lon_deg": mark.search_lon_deg,
+            },
             after={
                 "state": PositionState.PUBLISHED,
                 "supersedes_id": previous.pk if previous else None,
@@ -292,7 +303,11 @@ def position_withdraw(*, actor, position_id: int, note: str) -> Position:
             actor=actor,
             action="position_withdraw",
             obj=position,
-            before={"state": PositionState.PUBLISHED, "search_lat_deg": mark.search_lat_deg, "search_lon_deg": mark.search_lon_deg},
+            before={
+                "state": PositionState.PUBLISHED,
+                "search_lat_deg": mark.search_lat_deg,
+                "search_lon_deg": mark.search_lon_deg,
+            },
             after={"state": PositionState.WITHDRAWN, "search_lat_deg": lat, "search_lon_deg": lon},
             note=note,
             mark=mark,

@@ -1,0 +1,224 @@
+"""Service rules for positions: validation, states, supersession, search location, frozen rows."""
+
+from __future__ import annotations
+
+import pytest
+from django.core.exceptions import ValidationError
+from django.db import DatabaseError, connection, transaction
+
+from registry.errors import Conflict, NotFound, PermissionDeniedError
+from registry.models import AuditEvent, FrozenPositionError, Mark, Position, PositionState
+from registry.services.marks import mark_set_status
+from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
+from tests.services._data import NAD83_2011_EPSG, make_mark, make_published, position_data
+
+pytestmark = pytest.mark.django_db
+
+
+def codes_of(exc: ValidationError) -> dict[str, list[str]]:
+    return {field: [e.code for e in errors] for field, errors in exc.error_dict.items()}
+
+
+@pytest.fixture
+def mark(manager):
+    return make_mark(manager)
+
+
+# ---- propose --------------------------------------------------------------------------------------
+
+
+def test_propose_stores_a_proposed_position_and_audits_it(mark, technician):
+    position = position_propose(actor=technician, mark_code="QR-101", data=position_data(note="first session"))
+    assert position.state == PositionState.PROPOSED and position.created_by == technician
+    assert position.cov_en_m2 == 0.0 and position.note == "first session"
+    event = AuditEvent.objects.get(action="position_propose")
+    assert event.mark_id == mark.pk and event.after["lat_deg"] == pytest.approx(45.2012345678)
+    # Proposing does not move the search location.
+    assert Mark.objects.get().search_lat_deg is None
+
+
+def test_propose_accepts_numbers_as_text(mark, technician):
+    position = position_propose(
+        actor=technician, mark_code="QR-101", data=position_data(lat_deg="45.2", frame_epsg="6319")
+    )
+    assert position.lat_deg == 45.2 and position.frame_epsg == 6319
+
+
+@pytest.mark.parametrize(
+    ("overrides", "field", "code"),
+    [
+        ({"lat_deg": 90.000001}, "lat_deg", "lat_out_of_range"),
+        ({"lat_deg": -91}, "lat_deg", "lat_out_of_range"),
+        ({"lon_deg": 180.5}, "lon_deg", "lon_out_of_range"),
+        ({"h_m": 12000}, "h_m", "h_out_of_range"),
+        ({"epoch_yr": 1850.0}, "epoch_yr", "epoch_out_of_range"),
+        ({"cov_ee_m2": -1e-6}, "cov_ee_m2", "negative_variance"),
+        ({"cov_uu_m2": -1e-6}, "cov_uu_m2", "negative_variance"),
+        ({"lat_deg": "north"}, "lat_deg", "invalid_number"),
+        ({"lat_deg": float("nan")}, "lat_deg", "not_finite"),
+        ({"h_m": True}, "h_m", "invalid_number"),
+        ({"frame_epsg": 6319.5}, "frame_epsg", "invalid_integer"),
+        ({"frame_epsg": 4326}, "frame_epsg", "frame_not_geographic_3d"),  # WGS 84 2D
+        ({"frame_epsg": 6341}, "frame_epsg", "frame_not_geographic_3d"),  # a projected CRS (UTM 12N)
+        ({"frame_epsg": 999999}, "frame_epsg", "frame_not_geographic_3d"),  # no such EPSG code
+        ({"source": ""}, "source", "required"),
+        ({"vel_e_m_yr": 0.001}, "vel_e_m_yr", "velocity_incomplete"),
+        ({"vel_sigma_e_m_yr": 0.001}, "vel_sigma_e_m_yr", "velocity_sigma_without_velocity"),
+        (
+            {"vel_e_m_yr": 0.01, "vel_n_m_yr": 0.0, "vel_u_m_yr": 0.0, "vel_sigma_n_m_yr": -0.001},
+            "vel_sigma_n_m_yr",
+            "negative_sigma",
+        ),
+        # |ρ| > 1 between east and north: not a covariance matrix.
+        ({"cov_en_m2": 0.005 * 0.005 * 1.5}, "cov_ee_m2", "covariance_not_psd"),
+        ({"cov_ee_m2": 0.0, "cov_nn_m2": 0.0, "cov_uu_m2": 0.0}, "cov_ee_m2", "covariance_not_psd"),
+        ({"lat": 45.0}, "lat", "unknown_field"),
+    ],
+)
+def test_propose_rejects_bad_input_with_a_code(mark, technician, overrides, field, code):
+    data = position_data(**overrides)
+    with pytest.raises(ValidationError) as info:
+        position_propose(actor=technician, mark_code="QR-101", data=data)
+    assert code in codes_of(info.value)[field]
+    assert not Position.objects.exists()
+    assert not AuditEvent.objects.filter(action="position_propose").exists()
+
+
+def test_propose_reports_every_missing_field_at_once(mark, technician):
+    with pytest.raises(ValidationError) as info:
+        position_propose(actor=technician, mark_code="QR-101", data={"source": "x"})
+    codes = codes_of(info.value)
+    for field in ("frame_epsg", "epoch_yr", "lat_deg", "lon_deg", "h_m", "cov_ee_m2", "cov_nn_m2", "cov_uu_m2"):
+        assert codes[field] == ["required"]
+
+
+def test_propose_roles(mark, viewer, signatory, make_user):
+    for user in (viewer, signatory):
+        with pytest.raises(PermissionDeniedError):
+            position_propose(actor=user, mark_code="QR-101", data=position_data())
+    with pytest.raises(NotFound):
+        position_propose(actor=make_user("nils", None), mark_code="QR-101", data=position_data())
+    assert not Position.objects.exists()
+
+
+def test_propose_on_a_destroyed_mark_is_refused(mark, manager, technician):
+    mark_set_status(actor=manager, code="QR-101", status="destroyed", expected_version=1, note="Bulldozed (invented)")
+    with pytest.raises(Conflict) as info:
+        position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    assert info.value.code == "mark_destroyed"
+
+
+# ---- publish, supersede, search location -------------------------------------------------------
+
+
+def test_publish_sets_state_decider_and_search_location(mark, manager, technician):
+    position = make_published(manager, technician)
+    assert position.state == PositionState.PUBLISHED
+    assert position.decided_by == manager and position.decided_at is not None
+    stored = Mark.objects.get()
+    assert (stored.search_lat_deg, stored.search_lon_deg) == (45.2012345678, -110.6023456789)
+    assert stored.version == 1  # the search location is not an edit of the mark's description
+    event = AuditEvent.objects.get(action="position_publish")
+    assert event.after["search_lat_deg"] == 45.2012345678 and event.before["search_lat_deg"] is None
+
+
+def test_publishing_again_in_the_same_frame_supersedes_in_one_step(mark, manager, technician):
+    first = make_published(manager, technician)
+    second = make_published(manager, technician, lat_deg=45.2012346, epoch_yr=2024.5)
+    first.refresh_from_db()
+    assert first.state == PositionState.SUPERSEDED
+    assert first.superseded_by_id == second.pk
+    assert first.superseded_at == second.decided_at
+    assert Position.objects.filter(state=PositionState.PUBLISHED).get() == second
+    assert Mark.objects.get().search_lat_deg == 45.2012346
+    supersede = AuditEvent.objects.get(action="position_supersede")
+    assert supersede.object_id == str(first.pk) and supersede.after["superseded_by_id"] == second.pk
+
+
+def test_another_frame_does_not_supersede_and_the_search_location_follows_the_latest(mark, manager, technician):
+    itrf = make_published(manager, technician)
+    nad83 = make_published(manager, technician, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
+    itrf.refresh_from_db()
+    assert itrf.state == nad83.state == PositionState.PUBLISHED
+    assert Mark.objects.values_list("search_lat_deg", "search_lon_deg").get() == (45.20122, -110.60233)
+
+
+def test_withdrawing_the_driving_position_falls_back_then_clears(mark, manager, technician):
+    itrf = make_published(manager, technician)
+    nad83 = make_published(manager, technician, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
+    with pytest.raises(ValidationError) as info:
+        position_withdraw(actor=manager, position_id=nad83.pk, note="")
+    assert codes_of(info.value) == {"note": ["note_required"]}
+    position_withdraw(actor=manager, position_id=nad83.pk, note="Wrong antenna height (invented)")
+    assert Mark.objects.values_list("search_lat_deg", "search_lon_deg").get() == (45.2012345678, -110.6023456789)
+    position_withdraw(actor=manager, position_id=itrf.pk, note="Blunder (invented)")
+    assert Mark.objects.values_list("search_lat_deg", "search_lon_deg").get() == (None, None)
+    itrf.refresh_from_db()
+    assert itrf.state == PositionState.WITHDRAWN
+
+
+def test_state_rules(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(Conflict) as info:
+        position_withdraw(actor=manager, position_id=proposed.pk, note="not yet published")
+    assert info.value.code == "invalid_state"
+    with pytest.raises(ValidationError):
+        position_reject(actor=manager, position_id=proposed.pk, note=" ")
+    rejected = position_reject(actor=manager, position_id=proposed.pk, note="Float solution only (invented)")
+    assert rejected.state == PositionState.REJECTED
+    for action in (position_publish,):
+        with pytest.raises(Conflict):
+            action(actor=manager, position_id=proposed.pk)
+    published = make_published(manager, technician)
+    with pytest.raises(Conflict):
+        position_publish(actor=manager, position_id=published.pk)
+    with pytest.raises(Conflict):
+        position_reject(actor=manager, position_id=published.pk, note="too late")
+
+
+def test_decisions_need_the_manager_role(mark, manager, technician, viewer):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    for user in (technician, viewer):
+        with pytest.raises(PermissionDeniedError):
+            position_publish(actor=user, position_id=proposed.pk)
+        with pytest.raises(PermissionDeniedError):
+            position_reject(actor=user, position_id=proposed.pk, note="x")
+    with pytest.raises(NotFound):
+        position_publish(actor=manager, position_id=987654)
+    with pytest.raises(NotFound):
+        position_publish(actor=manager, position_id="12; DROP TABLE")
+    proposed.refresh_from_db()
+    assert proposed.state == PositionState.PROPOSED
+
+
+# ---- published and superseded positions never change ---------------------------------------------
+
+
+def test_orm_guard_refuses_to_edit_a_published_position(mark, manager, technician):
+    published = make_published(manager, technician)
+    published.lat_deg = 45.3
+    with pytest.raises(FrozenPositionError):
+        published.save()
+    assert Position.objects.get(pk=published.pk).lat_deg == 45.2012345678
+
+
+@pytest.mark.parametrize("state", ["published", "superseded"])
+def test_database_trigger_refuses_raw_sql_updates(mark, manager, technician, state):
+    first = make_published(manager, technician)
+    if state == "superseded":
+        make_published(manager, technician, epoch_yr=2024.0)
+    table = Position._meta.db_table
+    with pytest.raises(DatabaseError):
+        with transaction.atomic(), connection.cursor() as cursor:
+            cursor.execute(f"UPDATE {table} SET lat_deg = lat_deg + 0.001 WHERE id = %s", [first.pk])
+    first.refresh_from_db()
+    assert first.lat_deg == 45.2012345678 and first.state == state
+
+
+def test_raw_sql_may_still_edit_a_proposed_position(mark, technician):
+    """The trigger is specific: a proposed position is still a draft (control for the test above)."""
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with connection.cursor() as cursor:
+        cursor.execute(f"UPDATE {Position._meta.db_table} SET h_m = 1500.0 WHERE id = %s", [proposed.pk])
+    proposed.refresh_from_db()
+    assert proposed.h_m == 1500.0
