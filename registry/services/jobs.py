@@ -1,0 +1,325 @@
+"""Writes on jobs: create, and edit with optimistic concurrency on ``Job.version``.
+
+A job carries everything its base screening needs (brief §4): the site (GeoJSON Point or
+Polygon), the deliverable frame and epoch, tolerances (95 %), the RTK error model and the
+screening limits. Each function checks the actor's role (planning jobs is a manager's
+ability), validates every field with a coded ``ValidationError``, runs in one transaction
+and appends an audit event. Bad input changes nothing.
+
+Defaults for a new job (documented in README, "search-and-screening"):
+8 mm + 1 ppm horizontal and 15 mm + 1 ppm vertical, additive, the horizontal figure read
+as 1σ per axis; setup 2 mm / 3 mm; assumed unmodelled rate, maximum baseline and recovery
+period from ``settings.REGISTRY`` (2 mm/yr, 10 km, 10 years; common practice).
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+from django.conf import settings
+from django.core.exceptions import ValidationError
+from django.db import IntegrityError, transaction
+from django.db.models import F
+from django.utils import timezone
+
+from registry.errors import Conflict
+from registry.geodesy import site as site_geo
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models.marks import CODE_VALIDATOR
+from registry.roles import Ability
+from registry.services._input import field_error
+from registry.services.access import access_job_by_code, require_ability
+from registry.services.audit import audit_record, json_safe, snapshot
+
+#: Numeric fields: (lower bound, lower bound open?, upper bound, unit words).
+NUMBER_RANGES: dict[str, tuple[float, bool, float, str]] = {
+    "epoch_yr": (1900.0, False, 2100.0, "a decimal year"),
+    "tol_h_mm": (0.0, True, 10_000.0, "mm"),
+    "tol_v_mm": (0.0, True, 10_000.0, "mm"),
+    "rtk_h_fixed_mm": (0.0, False, 1_000.0, "mm"),
+    "rtk_h_ppm": (0.0, False, 100.0, "ppm"),
+    "rtk_v_fixed_mm": (0.0, False, 1_000.0, "mm"),
+    "rtk_v_ppm": (0.0, False, 100.0, "ppm"),
+    "setup_h_mm": (0.0, False, 100.0, "mm"),
+    "setup_v_mm": (0.0, False, 100.0, "mm"),
+    "assumed_rate_mm_yr": (0.0, False, 100.0, "mm/yr"),
+    "max_baseline_m": (0.0, True, 100_000.0, "m"),
+    "recovery_years": (0.0, True, 200.0, "years"),
+    "grid_spacing_m": (0.0, True, 10_000.0, "m"),
+}
+TEXT_FIELDS = {"name": 200, "client": 200, "notes": 20_000}
+EDITABLE_FIELDS: tuple[str, ...] = (
+    "name",
+    "client",
+    "status",
+    "site_geojson",
+    "frame_epsg",
+    "epoch_yr",
+    "grid_epsg",
+    "tol_h_mm",
+    "tol_v_mm",
+    "rtk_h_fixed_mm",
+    "rtk_h_ppm",
+    "rtk_v_fixed_mm",
+    "rtk_v_ppm",
+    "rtk_combination",
+    "rtk_h_meaning",
+    "setup_h_mm",
+    "setup_v_mm",
+    "assumed_rate_mm_yr",
+    "max_baseline_m",
+    "recovery_years",
+    "grid_spacing_m",
+    "notes",
+)
+CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS)
+REQUIRED_ON_CREATE = ("code", "name", "site_geojson", "frame_epsg", "epoch_yr", "tol_h_mm", "tol_v_mm")
+NULLABLE = {"grid_epsg", "grid_spacing_m"}
+
+
+def _settings_defaults() -> dict[str, float]:
+    cfg = settings.REGISTRY
+    return {
+        "assumed_rate_mm_yr": float(cfg.get("ASSUMED_RATE_MM_YR", 2.0)),
+        "max_baseline_m": float(cfg.get("MAX_BASELINE_M", 10_000.0)),
+        "recovery_years": float(cfg.get("RECOVERY_YEARS", 10.0)),
+    }
+
+
+def _number(field: str, value: Any) -> float | None:
+    if value is None or value == "":
+        if field in NULLABLE:
+            return None
+        raise field_error(field, "This field is required.", "required")
+    if isinstance(value, bool):
+        raise field_error(field, "Expected a number.", "invalid_number")
+    try:
+        x = float(value.strip() if isinstance(value, str) else value)
+    except (TypeError, ValueError):
+        raise field_error(field, "Expected a number.", "invalid_number") from None
+    lo, lo_open, hi, unit = NUMBER_RANGES[field]
+    if not (x == x and abs(x) != float("inf")):
+        raise field_error(field, "Expected a finite number.", "not_finite")
+    if x > hi or x < lo or (lo_open and x == lo):
+        bound = f"greater than {lo:g}" if lo_open else f"at least {lo:g}"
+        raise field_error(field, f"Must be {bound} and at most {hi:g} ({unit}).", "out_of_range", value=x)
+    return x
+
+
+def _epsg(field: str, value: Any) -> int | None:
+    if value is None or value == "":
+        if field in NULLABLE:
+            return None
+        raise field_error(field, "This field is required.", "required")
+    if isinstance(value, bool):
+        raise field_error(field, "Expected an EPSG code.", "invalid_integer")
+    try:
+        code = int(value.strip() if isinstance(value, str) else value)
+    except (TypeError, ValueError):
+        raise field_error(field, "Expected an EPSG code (a whole number).", "invalid_integer") from None
+    if isinstance(value, float) and value != code:
+        raise field_error(field, "Expected an EPSG code (a whole number).", "invalid_integer")
+    if field == "frame_epsg":
+        from registry.geodesy.frames import FrameTransformError, frame_info
+
+        try:
+            frame_info(code)
+        except FrameTransformError as exc:
+            raise field_error(field, str(exc), "invalid_frame", value=code) from None
+    else:
+        import pyproj
+
+        try:
+            crs = pyproj.CRS.from_epsg(code)
+        except pyproj.exceptions.CRSError:
+            raise field_error(field, f"EPSG:{code} is not a known coordinate reference system.", "invalid_grid") from None
+        if not crs.is_projected:
+            raise field_error(field, f"EPSG:{code} ({crs.name}) is not a projected grid.", "invalid_grid", value=code)
+    return code
+
+
+def _site(value: Any) -> dict:
+    try:
+        parsed = site_geo.parse_site_geojson(value)
+    except site_geo.SiteError as exc:
+        raise field_error("site_geojson", exc.message, exc.code) from None
+    obj = json.loads(value) if isinstance(value, str | bytes) else value
+    if obj.get("type") == "Feature":
+        obj = obj["geometry"]
+    del parsed
+    return {"type": obj["type"], "coordinates": obj["coordinates"]}
+
+
+def _clean(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
+    """Check keys and convert every submitted value; all field errors at once."""
+    if not isinstance(data, dict):
+        raise ValidationError("Send the fields as an object.", code="invalid_payload")
+    errors: dict[str, list] = {}
+    cleaned: dict[str, Any] = {}
+    for key, value in data.items():
+        try:
+            if key not in allowed:
+                if key == "code":
+                    raise field_error(key, "A job's code is its identity and does not change.", "not_editable")
+                if key == "version":
+                    raise field_error(key, "Send the version you started from as expected_version.", "not_editable")
+                raise field_error(str(key), f"Unknown field '{key}'.", "unknown_field")
+            if key == "code":
+                code = value.strip() if isinstance(value, str) else value
+                if not isinstance(code, str) or not code:
+                    raise field_error(key, "A job needs a code.", "required")
+                try:
+                    CODE_VALIDATOR(code)
+                except ValidationError:
+                    raise field_error(
+                        key, "A job code is 1–32 characters: capital letters, digits, '_', '.', '-'.", "invalid_code"
+                    ) from None
+                cleaned[key] = code
+            elif key in NUMBER_RANGES:
+                cleaned[key] = _number(key, value)
+            elif key in ("frame_epsg", "grid_epsg"):
+                cleaned[key] = _epsg(key, value)
+            elif key == "site_geojson":
+                cleaned[key] = _site(value)
+            elif key in TEXT_FIELDS:
+                if value is None:
+                    value = ""
+                if not isinstance(value, str):
+                    raise field_error(key, "Expected text.", "invalid_type")
+                value = value.strip()
+                if len(value) > TEXT_FIELDS[key]:
+                    raise field_error(key, f"At most {TEXT_FIELDS[key]} characters.", "max_length")
+                cleaned[key] = value
+            else:
+                choices = {"status": JobStatus, "rtk_combination": RtkCombination, "rtk_h_meaning": RtkHorizontalMeaning}[key]
+                if value not in choices.values:
+                    raise field_error(key, f"{value!r} is not one of: {', '.join(choices.values)}.", "invalid_choice")
+                cleaned[key] = value
+        except ValidationError as exc:
+            for field, items in exc.error_dict.items():
+                errors.setdefault(field, []).extend(items)
+    if errors:
+        raise ValidationError(errors)
+    return cleaned
+
+
+def _validate_whole(job: Job) -> None:
+    """Checks across fields: the name is there, and the grid spacing suits the site."""
+    if not job.name:
+        raise field_error("name", "A job needs a name.", "required")
+    if job.grid_spacing_m is not None:
+        site = site_geo.parse_site_geojson(job.site_geojson)
+        try:
+            site_geo.build_site_grid(site, site_geo.site_plane(site), job.grid_spacing_m)
+        except site_geo.SiteError as exc:
+            raise field_error("grid_spacing_m", exc.message, exc.code) from None
+
+
+def job_create(*, actor, data: dict) -> Job:
+    """Create a job.
+
+    Required: ``code``, ``name``, ``site_geojson``, ``frame_epsg``, ``epoch_yr``, ``tol_h_mm``,
+    ``tol_v_mm``; everything else has its documented default.
+
+    Raises
+    ------
+    registry.errors.PermissionDeniedError
+        Unless the actor may manage (plan jobs).
+    django.core.exceptions.ValidationError
+        Codes: ``required``, ``unknown_field``, ``invalid_code``, ``unique``, ``invalid_number``,
+        ``out_of_range``, ``invalid_frame``, ``invalid_grid``, ``invalid_choice``, and the site codes of
+        :func:`registry.geodesy.site.parse_site_geojson`.
+    """
+    require_ability(actor, Ability.MANAGE)
+    cleaned = _clean(data, CREATE_FIELDS)
+    missing = [f for f in REQUIRED_ON_CREATE if f not in cleaned or cleaned[f] in (None, "")]
+    if missing:
+        raise ValidationError({f: ValidationError("This field is required.", code="required") for f in missing})
+    values = {**_settings_defaults(), **cleaned}
+    job = Job(**values, created_by=actor if getattr(actor, "is_authenticated", False) else None)
+    _validate_whole(job)
+    if Job.objects.filter(code=job.code).exists():
+        raise field_error("code", "A job with this code already exists.", "unique")
+    try:
+        with transaction.atomic():
+            job.save(force_insert=True)
+            audit_record(actor=actor, action="job_create", obj=job, after=snapshot(job))
+    except IntegrityError:
+        if Job.objects.filter(code=job.code).exists():
+            raise field_error("code", "A job with this code already exists.", "unique") from None
+        raise
+    return job
+
+
+def _parse_version(expected_version: Any) -> int:
+    bad = field_error("version", "The version is a whole number (the one you started from).", "invalid_version")
+    if expected_version is None or expected_version == "":
+        raise field_error("version", "Send the version you started from.", "version_required")
+    if isinstance(expected_version, bool):
+        raise bad
+    try:
+        value = int(expected_version)
+    except (TypeError, ValueError):
+        raise bad from None
+    if value < 1 or (isinstance(expected_version, float) and expected_version != value):
+        raise bad
+    return value
+
+
+def job_update(*, actor, code: str, expected_version: Any, changes: dict) -> Job:
+    """Edit a job, starting from ``expected_version``.
+
+    The UPDATE is conditional on that version and bumps it; of two edits made from the same
+    version the first wins and the second raises :class:`registry.errors.Conflict` (code
+    ``stale_version``) with ``details = {field: {"yours": ..., "theirs": ...}, "version": ...}``.
+    The refused attempt is audited too (``job_update_refused``). Values equal to the stored
+    ones change nothing.
+    """
+    version = _parse_version(expected_version)
+    cleaned = _clean(changes, EDITABLE_FIELDS)
+    if not cleaned:
+        raise ValidationError("Nothing to change.", code="no_changes")
+    conflict: Conflict | None = None
+    with transaction.atomic():
+        job = access_job_by_code(actor, code, ability=Ability.MANAGE)
+        candidate = Job.objects.get(pk=job.pk)
+        for key, value in cleaned.items():
+            setattr(candidate, key, value)
+        _validate_whole(candidate)
+        diff = {k: v for k, v in cleaned.items() if getattr(job, k) != v}
+        if not diff and job.version == version:
+            return job
+        before = {k: getattr(job, k) for k in diff}
+        updated = Job.objects.filter(pk=job.pk, version=version).update(
+            **diff, version=F("version") + 1, updated_at=timezone.now()
+        )
+        if updated == 0:
+            current = Job.objects.get(pk=job.pk)
+            details: dict[str, Any] = {
+                k: {"yours": json_safe(v), "theirs": json_safe(getattr(current, k))} for k, v in cleaned.items()
+            }
+            details["version"] = {"yours": version, "theirs": current.version}
+            conflict = Conflict(
+                f"Job {current.code} was changed by someone else since version {version} (it is now at version "
+                f"{current.version}). Nothing was saved; review their values and submit again.",
+                code="stale_version",
+                details=details,
+            )
+            audit_record(
+                actor=actor,
+                action="job_update_refused",
+                obj=current,
+                before={**{k: getattr(current, k) for k in cleaned}, "version": current.version},
+                after={**cleaned, "version": version},
+                note=conflict.message,
+            )
+        else:
+            job.refresh_from_db()
+            audit_record(
+                actor=actor, action="job_update", obj=job, before={**before, "version": version},
+                after={**diff, "version": job.version},
+            )
+    if conflict is not None:
+        raise conflict
+    return job
