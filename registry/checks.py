@@ -22,18 +22,24 @@ def check_postgis(app_configs=None, databases=None, **kwargs):
             with conn.cursor() as cur:
                 cur.execute("SELECT extversion FROM pg_extension WHERE extname = 'postgis'")
                 row = cur.fetchone()
+                cur.execute("SELECT count(*) FROM pg_available_extensions WHERE name = 'postgis'")
+                available = cur.fetchone()[0] > 0
+                major = conn.pg_version // 10000
         except Exception as exc:  # database unreachable: Django reports that itself
             errors.append(Warning(f"Could not query PostGIS on '{alias}': {exc}", id="registry.W001"))
             continue
         if row is None:
-            errors.append(
-                Error(
-                    f"PostGIS is not installed in database '{alias}'.",
-                    hint="Install postgresql-15-postgis-3 and run 'python manage.py migrate' "
-                    "(the first migration creates the extension).",
-                    id="registry.E001",
+            if available:
+                hint = (
+                    f"As a database superuser run: psql -d {conn.settings_dict['NAME']} -c 'CREATE EXTENSION "
+                    "postgis' (deploy/postgres/provision.sql does this; the application role cannot)."
                 )
-            )
+            else:
+                hint = (
+                    f"The server has no PostGIS package: install postgresql-{major}-postgis-3 on the "
+                    "database server, then create the extension (deploy/postgres/provision.sql)."
+                )
+            errors.append(Error(f"PostGIS is not installed in database '{alias}'.", hint=hint, id="registry.E001"))
     return errors
 
 

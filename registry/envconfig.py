@@ -25,11 +25,21 @@ def env_bool(name: str, default: bool = False) -> bool:
     raise ConfigurationError(f"{name} must be a boolean (1/0, true/false), got {raw!r}")
 
 
-def env_list(name: str, default: list[str]) -> list[str]:
+def env_list(name: str, default: list[str], *, required: bool = False) -> list[str]:
+    """Return a comma-separated list from the environment.
+
+    With ``required=True`` (used in production for the host names) an unset or
+    empty value raises ``ConfigurationError`` instead of falling back to ``default``.
+    """
     raw = os.environ.get(name)
-    if not raw:
-        return list(default)
-    return [item.strip() for item in raw.split(",") if item.strip()]
+    items = [item.strip() for item in (raw or "").split(",") if item.strip()]
+    if items:
+        return items
+    if required:
+        raise ConfigurationError(
+            f"{name} is not set. It is required in production (REGISTRY_PRODUCTION=1); see deploy/README.md."
+        )
+    return list(default)
 
 
 def env_secret(name: str, *, production: bool, dev_default: str) -> str:

@@ -6,7 +6,7 @@ from the environment (see ``deploy/README.md`` for the full list):
 ``REGISTRY_PRODUCTION``  1 for production mode (DEBUG off, secure cookies, secrets required)
 ``DATABASE_URL``         e.g. ``postgres://registry@127.0.0.1:5432/registry``; unset: SQLite in ``var/``
 ``REGISTRY_SECRET_KEY``  Django's secret key (required in production)
-``REGISTRY_ALLOWED_HOSTS`` comma-separated host names
+``REGISTRY_ALLOWED_HOSTS`` comma-separated host names (required in production)
 ``REGISTRY_DATA_DIR``    where the SQLite file, uploads and generated files live (default ``var/``)
 ``REGISTRY_GEOID_DIR``   folder holding the office's geoid grids (added to PROJ's search path)
 ``REGISTRY_BASEMAP_URL`` optional XYZ tile URL for map panels; empty: no basemap
@@ -31,7 +31,7 @@ SECRET_KEY = env_secret(
     production=PRODUCTION,
     dev_default="dev-only-insecure-key-never-use-in-production-0123456789abcdef",
 )
-ALLOWED_HOSTS = env_list("REGISTRY_ALLOWED_HOSTS", [] if PRODUCTION else ["127.0.0.1", "localhost", "testserver"])
+ALLOWED_HOSTS = env_list("REGISTRY_ALLOWED_HOSTS", ["127.0.0.1", "localhost", "testserver"], required=PRODUCTION)
 CSRF_TRUSTED_ORIGINS = env_list("REGISTRY_CSRF_TRUSTED_ORIGINS", [])
 
 INSTALLED_APPS = [
@@ -118,6 +118,9 @@ STORAGES = {
         )
     },
 }
+# Development and tests: WhiteNoise looks static files up per request (no collectstatic, no
+# "No directory at var/static" warning). Production serves the collected, hashed files.
+WHITENOISE_AUTOREFRESH = not PRODUCTION
 FILE_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
 DATA_UPLOAD_MAX_MEMORY_SIZE = 20 * 1024 * 1024
 
