@@ -53,7 +53,6 @@ def env_secret(name: str, *, production: bool, dev_default: str) -> str:
         return value
     if production:
         raise ConfigurationError(
-            f"{name} is not set. It is required in production "
-            f"(REGISTRY_PRODUCTION=1); see deploy/README.md."
+            f"{name} is not set. It is required in production (REGISTRY_PRODUCTION=1); see deploy/README.md."
         )
     return dev_default

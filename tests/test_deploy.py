@@ -71,9 +71,13 @@ def test_gunicorn_config_loads_the_app_in_production_mode():
     )
     gunicorn = Path(sys.executable).with_name("gunicorn")
     cfg = ["--config", str(DEPLOY / "gunicorn.conf.py")]
-    proc = subprocess.run([str(gunicorn), *cfg, "--check-config"], cwd=BASE_DIR, env=env, capture_output=True, text=True)
+    proc = subprocess.run(
+        [str(gunicorn), *cfg, "--check-config"], cwd=BASE_DIR, env=env, capture_output=True, text=True
+    )
     assert proc.returncode == 0, proc.stderr
-    shown = subprocess.run([str(gunicorn), *cfg, "--print-config"], cwd=BASE_DIR, env=env, capture_output=True, text=True)
+    shown = subprocess.run(
+        [str(gunicorn), *cfg, "--print-config"], cwd=BASE_DIR, env=env, capture_output=True, text=True
+    )
     values = dict(re.findall(r"^(\w+)\s+= (.*)$", shown.stdout, flags=re.MULTILINE))
     assert values["wsgi_app"] == "registry.wsgi:application"
     assert values["bind"] == "['127.0.0.1:8001']"

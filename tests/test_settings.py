@@ -49,9 +49,7 @@ def run_python(args: list[str], **env: str) -> subprocess.CompletedProcess:
     clean.pop("DJANGO_SETTINGS_MODULE", None)
     clean.update(env)
     clean["DJANGO_SETTINGS_MODULE"] = "registry.settings"
-    return subprocess.run(
-        [sys.executable, *args], cwd=BASE_DIR, env=clean, capture_output=True, text=True, timeout=120
-    )
+    return subprocess.run([sys.executable, *args], cwd=BASE_DIR, env=clean, capture_output=True, text=True, timeout=120)
 
 
 def settings_with(**env: str) -> dict:
@@ -171,9 +169,7 @@ def test_check_deploy_catches_a_weak_secret():
 
 
 def test_check_deploy_catches_debug_left_on_in_production():
-    proc = run_python(
-        ["manage.py", "check", "--deploy", "--fail-level", "WARNING"], **{**PROD, "REGISTRY_DEBUG": "1"}
-    )
+    proc = run_python(["manage.py", "check", "--deploy", "--fail-level", "WARNING"], **{**PROD, "REGISTRY_DEBUG": "1"})
     assert proc.returncode != 0
     assert "security.W018" in proc.stdout + proc.stderr
 
