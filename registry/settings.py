@@ -129,9 +129,10 @@ LOGIN_REDIRECT_URL = "web:mark-list"
 LOGOUT_REDIRECT_URL = "web:login"
 
 REST_FRAMEWORK = {
+    # Token first: an unauthenticated request then gets 401 with "WWW-Authenticate: Token".
     "DEFAULT_AUTHENTICATION_CLASSES": [
-        "rest_framework.authentication.SessionAuthentication",
         "rest_framework.authentication.TokenAuthentication",
+        "rest_framework.authentication.SessionAuthentication",
     ],
     "DEFAULT_PERMISSION_CLASSES": ["registry.api.permissions.IsViewer"],
     "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",

@@ -1,9 +1,11 @@
 """JSON API routes. Each area adds its routes in its own module and is included here."""
 
-from django.urls import path
+from django.urls import path, re_path
 from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
 
 from registry.api import exports as exports_api
+from registry.api import marks as marks_api
+from registry.api import positions as positions_api
 
 app_name = "api"
 
@@ -14,4 +16,25 @@ urlpatterns = [
     path("marks/export.csv", exports_api.MarksExportView.as_view(fmt="csv"), name="marks-export-csv"),
     path("marks/export.geojson", exports_api.MarksExportView.as_view(fmt="geojson"), name="marks-export-geojson"),
     path("marks/export", exports_api.MarksExportView.as_view(), name="marks-export"),
+    # marks and positions (services area)
+    path("marks/", marks_api.MarkListView.as_view(), name="mark-list"),
+    path("marks/<str:code>/", marks_api.MarkDetailView.as_view(), name="mark-detail"),
+    re_path(r"^marks/(?P<code>[^/]+)/status/?$", marks_api.MarkStatusView.as_view(), name="mark-status"),
+    path("marks/<str:code>/positions/", positions_api.MarkPositionsView.as_view(), name="mark-positions"),
+    path("positions/<int:position_id>/", positions_api.PositionDetailView.as_view(), name="position-detail"),
+    re_path(
+        r"^positions/(?P<position_id>[0-9]+)/publish/?$",
+        positions_api.PositionPublishView.as_view(),
+        name="position-publish",
+    ),
+    re_path(
+        r"^positions/(?P<position_id>[0-9]+)/reject/?$",
+        positions_api.PositionRejectView.as_view(),
+        name="position-reject",
+    ),
+    re_path(
+        r"^positions/(?P<position_id>[0-9]+)/withdraw/?$",
+        positions_api.PositionWithdrawView.as_view(),
+        name="position-withdraw",
+    ),
 ]

@@ -1,0 +1,151 @@
+"""API views for positions: list and propose under a mark; read; publish, reject, withdraw.
+
+Reading needs the viewer ability; proposing the technician ability (record
+fieldwork); publishing, rejecting and withdrawing the manager ability.
+"""
+
+from __future__ import annotations
+
+from django.core.exceptions import ValidationError
+from drf_spectacular.types import OpenApiTypes
+from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
+from rest_framework import status as http_status
+from rest_framework.pagination import LimitOffsetPagination
+from rest_framework.permissions import SAFE_METHODS, BasePermission
+from rest_framework.response import Response
+from rest_framework.views import APIView
+
+from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.permissions import IsManager
+from registry.api.serializers import DecisionInput, ErrorSerializer, PositionProposeInput, PositionSerializer
+from registry.models import Position, PositionState
+from registry.roles import Ability, has_ability
+from registry.services.access import access_mark_by_code, access_position_by_id
+from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
+
+STATE_CONFLICT = OpenApiResponse(
+    ErrorSerializer, description="The position is not in a state that allows this (code invalid_state)."
+)
+
+
+class ReadViewerWriteRecorder(BasePermission):
+    """Reads need the viewer ability, writes the record-fieldwork ability."""
+
+    def has_permission(self, request, view) -> bool:
+        if request.method in SAFE_METHODS:
+            return has_ability(request.user, Ability.VIEW)
+        return has_ability(request.user, Ability.RECORD)
+
+    def has_object_permission(self, request, view, obj) -> bool:
+        return self.has_permission(request, view)
+
+
+def _position_out(position_id: int) -> dict:
+    position = Position.objects.select_related("mark", "created_by", "decided_by").get(pk=position_id)
+    return PositionSerializer(position).data
+
+
+class MarkPositionsView(APIView):
+    """``GET /api/marks/<code>/positions/`` (every state, newest first); ``POST`` to propose one."""
+
+    permission_classes = [ReadViewerWriteRecorder]
+    pagination_class = LimitOffsetPagination
+
+    @extend_schema(
+        operation_id="marks_positions_list",
+        parameters=[OpenApiParameter("state", OpenApiTypes.STR, enum=PositionState.values)],
+        responses={200: PositionSerializer(many=True), 401: ERROR_RESPONSES[401], 404: ERROR_RESPONSES[404]},
+    )
+    def get(self, request, code: str):
+        mark = access_mark_by_code(request.user, code)
+        qs = Position.objects.filter(mark=mark).select_related("mark", "created_by", "decided_by")
+        state = request.query_params.get("state", "").strip()
+        if state:
+            if state not in PositionState.values:
+                raise ValidationError(
+                    {
+                        "state": ValidationError(
+                            "Unknown state %(value)r.", code="invalid_choice", params={"value": state}
+                        )
+                    }
+                )
+            qs = qs.filter(state=state)
+        qs = qs.order_by("-created_at", "-pk")
+        paginator = self.pagination_class()
+        page = paginator.paginate_queryset(qs, request, view=self)
+        return paginator.get_paginated_response(PositionSerializer(page, many=True).data)
+
+    @extend_schema(
+        operation_id="marks_positions_propose",
+        request=PositionProposeInput,
+        responses={
+            201: PositionSerializer,
+            409: OpenApiResponse(ErrorSerializer, description="The mark is destroyed (code mark_destroyed)."),
+            **ERROR_RESPONSES,
+        },
+    )
+    def post(self, request, code: str):
+        position = position_propose(actor=request.user, mark_code=code, data=request_body(request))
+        return Response(_position_out(position.pk), status=http_status.HTTP_201_CREATED)
+
+
+class PositionDetailView(APIView):
+    """``GET /api/positions/<id>/``."""
+
+    @extend_schema(
+        operation_id="positions_retrieve",
+        responses={200: PositionSerializer, 401: ERROR_RESPONSES[401], 404: ERROR_RESPONSES[404]},
+    )
+    def get(self, request, position_id: int):
+        position = access_position_by_id(request.user, position_id)
+        return Response(_position_out(position.pk))
+
+
+class _DecisionView(APIView):
+    permission_classes = [IsManager]
+    http_method_names = ["post", "options"]
+
+    def decide(self, request, position_id: int):  # pragma: no cover - overridden
+        raise NotImplementedError
+
+    def post(self, request, position_id: int):
+        position = self.decide(request, position_id)
+        return Response(_position_out(position.pk))
+
+
+_DECISION_RESPONSES = {200: PositionSerializer, 409: STATE_CONFLICT, **ERROR_RESPONSES}
+
+
+class PositionPublishView(_DecisionView):
+    """``POST /api/positions/<id>/publish/``: publish a proposed position; supersedes the one before."""
+
+    @extend_schema(operation_id="positions_publish", request=DecisionInput, responses=_DECISION_RESPONSES)
+    def post(self, request, position_id: int):
+        return super().post(request, position_id)
+
+    def decide(self, request, position_id: int):
+        return position_publish(actor=request.user, position_id=position_id, note=request_body(request).get("note", ""))
+
+
+class PositionRejectView(_DecisionView):
+    """``POST /api/positions/<id>/reject/``: reject a proposed position (reason in ``note``)."""
+
+    @extend_schema(operation_id="positions_reject", request=DecisionInput, responses=_DECISION_RESPONSES)
+    def post(self, request, position_id: int):
+        return super().post(request, position_id)
+
+    def decide(self, request, position_id: int):
+        return position_reject(actor=request.user, position_id=position_id, note=request_body(request).get("note", ""))
+
+
+class PositionWithdrawView(_DecisionView):
+    """``POST /api/positions/<id>/withdraw/``: withdraw a published position (reason in ``note``)."""
+
+    @extend_schema(operation_id="positions_withdraw", request=DecisionInput, responses=_DECISION_RESPONSES)
+    def post(self, request, position_id: int):
+        return super().post(request, position_id)
+
+    def decide(self, request, position_id: int):
+        return position_withdraw(
+            actor=request.user, position_id=position_id, note=request_body(request).get("note", "")
+        )

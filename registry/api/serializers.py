@@ -1,0 +1,338 @@
+"""Serializers of the JSON API.
+
+Output serializers round numbers as the README's API section documents:
+latitude/longitude to 9 decimal places of a degree (about 0.1 mm), metres to
+3 decimals, sigmas in millimetres to 1 decimal, coordinate epochs to 3 decimals of a
+year, velocities in m/yr to 5 decimals (0.01 mm/yr). Covariance elements (m²) are
+given unrounded so that a client can propagate them.
+
+Input serializers describe the request bodies for the OpenAPI schema; the services
+do the validation (one set of rules for the pages, the API and the importers).
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+
+from drf_spectacular.utils import extend_schema_field
+from rest_framework import serializers
+
+from registry.geodesy.accuracy import fgdc_horizontal_95_m, vertical_95_m
+from registry.models import Mark, MarkStatus, MonumentType, Position, PositionState, SkyView, Stability
+
+LATLON_DECIMALS = 9
+METRE_DECIMALS = 3
+SIGMA_MM_DECIMALS = 1
+EPOCH_DECIMALS = 3
+VELOCITY_M_YR_DECIMALS = 5
+
+
+class RoundedFloatField(serializers.FloatField):
+    """A read-only float rounded to ``decimals`` places (``None`` stays ``None``)."""
+
+    def __init__(self, decimals: int, **kwargs):
+        self.decimals = decimals
+        kwargs.setdefault("read_only", True)
+        super().__init__(**kwargs)
+
+    def to_representation(self, value):
+        if value is None:
+            return None
+        return round(float(value), self.decimals)
+
+
+@lru_cache(maxsize=256)
+def frame_name(frame_epsg: int | None) -> str | None:
+    """The CRS name PROJ gives an EPSG code (``None`` when unknown)."""
+    if frame_epsg is None:
+        return None
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    try:
+        return CRS.from_epsg(int(frame_epsg)).name
+    except CRSError:
+        return None
+
+
+def _sigma_mm(variance_m2: float | None) -> float | None:
+    if variance_m2 is None or variance_m2 < 0:
+        return None
+    return round(math.sqrt(variance_m2) * 1000.0, SIGMA_MM_DECIMALS)
+
+
+class PositionSerializer(serializers.ModelSerializer):
+    """A position with its frame (EPSG code and name) and coordinate epoch."""
+
+    mark = serializers.SlugRelatedField(slug_field="code", read_only=True)
+    frame_name = serializers.SerializerMethodField()
+    epoch_yr = RoundedFloatField(EPOCH_DECIMALS)
+    lat_deg = RoundedFloatField(LATLON_DECIMALS)
+    lon_deg = RoundedFloatField(LATLON_DECIMALS)
+    h_m = RoundedFloatField(METRE_DECIMALS, help_text="Ellipsoidal height, m.")
+    sigma_e_mm = serializers.SerializerMethodField()
+    sigma_n_mm = serializers.SerializerMethodField()
+    sigma_u_mm = serializers.SerializerMethodField()
+    network_accuracy_h95_mm = serializers.SerializerMethodField(
+        help_text="Horizontal network accuracy at 95 % (FGDC-STD-007.2-1998 circle), mm."
+    )
+    network_accuracy_u95_mm = serializers.SerializerMethodField(
+        help_text="Ellipsoid-height network accuracy at 95 % (1.9600 σ), mm."
+    )
+    vel_e_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
+    vel_n_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
+    vel_u_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
+    vel_sigma_e_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
+    vel_sigma_n_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
+    vel_sigma_u_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
+    created_by = serializers.SlugRelatedField(slug_field="username", read_only=True)
+    decided_by = serializers.SlugRelatedField(slug_field="username", read_only=True)
+
+    class Meta:
+        model = Position
+        fields = [
+            "id",
+            "mark",
+            "state",
+            "frame_epsg",
+            "frame_name",
+            "epoch_yr",
+            "lat_deg",
+            "lon_deg",
+            "h_m",
+            "sigma_e_mm",
+            "sigma_n_mm",
+            "sigma_u_mm",
+            "network_accuracy_h95_mm",
+            "network_accuracy_u95_mm",
+            "cov_ee_m2",
+            "cov_en_m2",
+            "cov_eu_m2",
+            "cov_nn_m2",
+            "cov_nu_m2",
+            "cov_uu_m2",
+            "vel_e_m_yr",
+            "vel_n_m_yr",
+            "vel_u_m_yr",
+            "vel_sigma_e_m_yr",
+            "vel_sigma_n_m_yr",
+            "vel_sigma_u_m_yr",
+            "source",
+            "note",
+            "created_by",
+            "created_at",
+            "decided_by",
+            "decided_at",
+            "superseded_at",
+            "superseded_by",
+        ]
+        read_only_fields = fields
+
+    def get_frame_name(self, obj: Position) -> str | None:
+        return frame_name(obj.frame_epsg)
+
+    def get_sigma_e_mm(self, obj: Position) -> float | None:
+        return _sigma_mm(obj.cov_ee_m2)
+
+    def get_sigma_n_mm(self, obj: Position) -> float | None:
+        return _sigma_mm(obj.cov_nn_m2)
+
+    def get_sigma_u_mm(self, obj: Position) -> float | None:
+        return _sigma_mm(obj.cov_uu_m2)
+
+    def get_network_accuracy_h95_mm(self, obj: Position) -> float:
+        return round(
+            float(fgdc_horizontal_95_m(obj.cov_ee_m2, obj.cov_en_m2, obj.cov_nn_m2)) * 1000.0, SIGMA_MM_DECIMALS
+        )
+
+    def get_network_accuracy_u95_mm(self, obj: Position) -> float:
+        return round(float(vertical_95_m(math.sqrt(max(obj.cov_uu_m2, 0.0)))) * 1000.0, SIGMA_MM_DECIMALS)
+
+
+class SearchLocationSerializer(serializers.Serializer):
+    """Where the mark is searched: the latest published position's latitude/longitude."""
+
+    lat_deg = RoundedFloatField(LATLON_DECIMALS)
+    lon_deg = RoundedFloatField(LATLON_DECIMALS)
+    frame_epsg = serializers.IntegerField(allow_null=True, read_only=True)
+    frame_name = serializers.CharField(allow_null=True, read_only=True)
+    epoch_yr = RoundedFloatField(EPOCH_DECIMALS, allow_null=True)
+
+
+def search_location(mark: Mark, frame_epsg: int | None, epoch_yr: float | None) -> dict | None:
+    if mark.search_lat_deg is None or mark.search_lon_deg is None:
+        return None
+    return {
+        "lat_deg": mark.search_lat_deg,
+        "lon_deg": mark.search_lon_deg,
+        "frame_epsg": frame_epsg,
+        "frame_name": frame_name(frame_epsg),
+        "epoch_yr": epoch_yr,
+    }
+
+
+class MarkSerializer(serializers.ModelSerializer):
+    """A mark as listed. ``search_location`` is for finding marks, not for staking out."""
+
+    search_location = serializers.SerializerMethodField()
+
+    class Meta:
+        model = Mark
+        fields = [
+            "code",
+            "name",
+            "status",
+            "monument_type",
+            "setting",
+            "stability",
+            "stamping",
+            "to_reach",
+            "sky_view",
+            "custodian",
+            "notes",
+            "search_location",
+            "version",
+            "created_at",
+            "updated_at",
+        ]
+        read_only_fields = fields
+
+    @extend_schema_field(SearchLocationSerializer(allow_null=True))
+    def get_search_location(self, obj: Mark) -> dict | None:
+        loc = search_location(obj, getattr(obj, "src_frame_epsg", None), getattr(obj, "src_epoch_yr", None))
+        return SearchLocationSerializer(loc).data if loc else None
+
+
+class MarkDetailSerializer(MarkSerializer):
+    """A mark with its currently published positions (one per frame)."""
+
+    published_positions = serializers.SerializerMethodField()
+
+    class Meta(MarkSerializer.Meta):
+        fields = [*MarkSerializer.Meta.fields, "published_positions"]
+        read_only_fields = fields
+
+    @extend_schema_field(PositionSerializer(many=True))
+    def get_published_positions(self, obj: Mark) -> list:
+        positions = getattr(obj, "published_list", None)
+        if positions is None:
+            positions = list(obj.positions.filter(state=PositionState.PUBLISHED).order_by("-decided_at", "-pk"))
+        return PositionSerializer(positions, many=True).data
+
+
+# ---- the error shape and GeoJSON (documentation for the schema) ----
+
+
+class ErrorDetailSerializer(serializers.Serializer):
+    code = serializers.CharField(help_text="Machine-readable error code, e.g. invalid, not_found, stale_version.")
+    message = serializers.CharField()
+    details = serializers.JSONField(
+        allow_null=True,
+        help_text="Per-field [{code, message}] for invalid input; per-field {yours, theirs, changed_by, changed_at} "
+        "for a stale version.",
+    )
+
+
+class ErrorSerializer(serializers.Serializer):
+    error = ErrorDetailSerializer()
+
+
+class GeoJSONPointSerializer(serializers.Serializer):
+    type = serializers.ChoiceField(["Point"])
+    coordinates = serializers.ListField(
+        child=serializers.FloatField(), min_length=2, max_length=2, help_text="[longitude, latitude], degrees."
+    )
+
+
+class MarkFeaturePropertiesSerializer(serializers.Serializer):
+    code = serializers.CharField()
+    name = serializers.CharField()
+    status = serializers.CharField()
+    monument_type = serializers.CharField()
+    stability = serializers.CharField()
+    sky_view = serializers.CharField()
+    frame_epsg = serializers.IntegerField(allow_null=True)
+    frame_name = serializers.CharField(allow_null=True)
+    epoch_yr = serializers.FloatField(allow_null=True)
+    version = serializers.IntegerField()
+
+
+class MarkFeatureSerializer(serializers.Serializer):
+    type = serializers.ChoiceField(["Feature"])
+    id = serializers.CharField()
+    geometry = GeoJSONPointSerializer(allow_null=True)
+    properties = MarkFeaturePropertiesSerializer()
+
+
+class MarkFeatureCollectionSerializer(serializers.Serializer):
+    type = serializers.ChoiceField(["FeatureCollection"])
+    features = MarkFeatureSerializer(many=True)
+    coordinate_note = serializers.CharField()
+    count = serializers.IntegerField()
+    next = serializers.URLField(allow_null=True)
+    previous = serializers.URLField(allow_null=True)
+
+
+# ---- request bodies (documentation for the schema; the services validate) ----
+
+
+class MarkCreateInput(serializers.Serializer):
+    code = serializers.CharField(max_length=32, help_text="1–32 characters: capital letters, digits, '_', '.', '-'.")
+    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    status = serializers.ChoiceField(MarkStatus.choices, required=False)
+    monument_type = serializers.ChoiceField(MonumentType.choices, required=False)
+    setting = serializers.CharField(max_length=200, required=False, allow_blank=True)
+    stability = serializers.ChoiceField(Stability.choices, required=False)
+    stamping = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    to_reach = serializers.CharField(required=False, allow_blank=True)
+    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
+    custodian = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    notes = serializers.CharField(required=False, allow_blank=True)
+
+
+class MarkPatchInput(serializers.Serializer):
+    version = serializers.IntegerField(min_value=1, help_text="The version you started from (optimistic concurrency).")
+    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    monument_type = serializers.ChoiceField(MonumentType.choices, required=False)
+    setting = serializers.CharField(max_length=200, required=False, allow_blank=True)
+    stability = serializers.ChoiceField(Stability.choices, required=False)
+    stamping = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    to_reach = serializers.CharField(required=False, allow_blank=True)
+    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
+    custodian = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    notes = serializers.CharField(required=False, allow_blank=True)
+
+
+class MarkStatusInput(serializers.Serializer):
+    version = serializers.IntegerField(min_value=1)
+    status = serializers.ChoiceField(MarkStatus.choices)
+    note = serializers.CharField(
+        required=False, allow_blank=True, help_text="Required when retiring or reporting destroyed."
+    )
+
+
+class PositionProposeInput(serializers.Serializer):
+    frame_epsg = serializers.IntegerField(help_text="EPSG code of a geographic 3D CRS, e.g. 7912, 9989, 6319.")
+    epoch_yr = serializers.FloatField(help_text="Coordinate epoch, decimal year (1900–2100).")
+    lat_deg = serializers.FloatField(min_value=-90, max_value=90)
+    lon_deg = serializers.FloatField(min_value=-180, max_value=180)
+    h_m = serializers.FloatField(help_text="Ellipsoidal height, m.")
+    cov_ee_m2 = serializers.FloatField(min_value=0, help_text="East variance, m².")
+    cov_nn_m2 = serializers.FloatField(min_value=0, help_text="North variance, m².")
+    cov_uu_m2 = serializers.FloatField(min_value=0, help_text="Up variance, m².")
+    cov_en_m2 = serializers.FloatField(required=False, default=0.0)
+    cov_eu_m2 = serializers.FloatField(required=False, default=0.0)
+    cov_nu_m2 = serializers.FloatField(required=False, default=0.0)
+    vel_e_m_yr = serializers.FloatField(required=False, allow_null=True)
+    vel_n_m_yr = serializers.FloatField(required=False, allow_null=True)
+    vel_u_m_yr = serializers.FloatField(required=False, allow_null=True)
+    vel_sigma_e_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
+    vel_sigma_n_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
+    vel_sigma_u_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
+    source = serializers.CharField(max_length=200)
+    note = serializers.CharField(required=False, allow_blank=True)
+
+
+class DecisionInput(serializers.Serializer):
+    note = serializers.CharField(required=False, allow_blank=True, help_text="Reason; required to reject or withdraw.")

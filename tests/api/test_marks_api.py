@@ -1,0 +1,247 @@
+"""The marks API through HTTP: search filters, GeoJSON, create, edit with versions, the error shape."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from registry.models import AuditEvent, Mark
+from tests.api._shape import assert_error_shape
+from tests.services._data import NAD83_2011_EPSG, make_mark, make_published
+
+pytestmark = pytest.mark.django_db
+
+
+@pytest.fixture
+def district(manager, technician):
+    """Three invented marks: one located in ITRF2014, one in NAD83(2011), one without a position."""
+    make_mark(manager, code="QR-101", name="Quarry Ridge")
+    make_mark(manager, code="QR-102", name="Quarry Ridge South", status="retired")
+    make_mark(manager, code="BX-7", name="Boxelder Creek")
+    make_published(manager, technician, code="QR-101")
+    make_published(
+        manager, technician, code="BX-7", frame_epsg=NAD83_2011_EPSG, lat_deg=45.1876543210, lon_deg=-110.5512345678
+    )
+
+
+# ---- list and filters -------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("query", "codes"),
+    [
+        ("", ["BX-7", "QR-101", "QR-102"]),
+        ("?code=QR-101", ["QR-101"]),
+        ("?code=QR", []),
+        ("?name=south", ["QR-102"]),
+        ("?status=retired", ["QR-102"]),
+        ("?status=active", ["BX-7", "QR-101"]),
+        ("?q=ridge", ["QR-101", "QR-102"]),
+        ("?q=bx", ["BX-7"]),
+        ("?q=ridge&status=active", ["QR-101"]),
+    ],
+)
+def test_list_filters(district, viewer, api_client_for, query, codes):
+    response = api_client_for(viewer).get(f"/api/marks/{query}")
+    assert response.status_code == 200
+    body = response.json()
+    assert [m["code"] for m in body["results"]] == codes
+    assert body["count"] == len(codes)
+
+
+def test_list_rejects_an_unknown_status(district, viewer, api_client_for):
+    error = assert_error_shape(api_client_for(viewer).get("/api/marks/?status=lost"), 400, "invalid")
+    assert error["details"] == {"status": [{"code": "invalid_choice", "message": "Unknown status 'lost'."}]}
+
+
+def test_list_is_paginated(district, viewer, api_client_for):
+    body = api_client_for(viewer).get("/api/marks/?limit=2").json()
+    assert body["count"] == 3 and len(body["results"]) == 2 and "offset=2" in body["next"]
+
+
+def test_search_location_carries_frame_and_epoch_and_rounding(district, viewer, api_client_for):
+    body = api_client_for(viewer).get("/api/marks/?code=BX-7").json()
+    loc = body["results"][0]["search_location"]
+    # Rounding documented in the README: 9 decimal places of a degree.
+    assert loc == {
+        "lat_deg": 45.187654321,
+        "lon_deg": -110.551234568,
+        "frame_epsg": NAD83_2011_EPSG,
+        "frame_name": "NAD83(2011)",
+        "epoch_yr": 2020.0,
+    }
+
+
+# ---- GeoJSON (RFC 7946) ------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("how", ["query", "accept"])
+def test_geojson_is_an_rfc7946_feature_collection(district, viewer, api_client_for, how):
+    client = api_client_for(viewer)
+    if how == "query":
+        response = client.get("/api/marks/?format=geojson")
+    else:
+        response = client.get("/api/marks/", HTTP_ACCEPT="application/geo+json")
+    assert response.status_code == 200
+    assert response["Content-Type"].startswith("application/geo+json")  # RFC 7946 §12 media type
+    fc = json.loads(response.content)
+    assert fc["type"] == "FeatureCollection"  # RFC 7946 §3.3
+    assert isinstance(fc["features"], list) and len(fc["features"]) == 3
+    by_code = {f["id"]: f for f in fc["features"]}
+    for feature in fc["features"]:
+        assert feature["type"] == "Feature"  # RFC 7946 §3.2: type, geometry, properties members
+        assert {"type", "geometry", "properties"} <= set(feature)
+        assert isinstance(feature["properties"], dict)
+    located = by_code["QR-101"]["geometry"]
+    assert located["type"] == "Point"
+    # RFC 7946 §3.1.1: longitude first, then latitude. The district lies at about 45.2° N, 110.6° W.
+    lon, lat = located["coordinates"]
+    assert (lon, lat) == (-110.602345679, 45.201234568)
+    assert -180 <= lon <= 180 and -90 <= lat <= 90
+    assert by_code["QR-101"]["properties"]["frame_epsg"] == 7912
+    assert by_code["BX-7"]["properties"]["frame_name"] == "NAD83(2011)"
+    # RFC 7946 §3.2: a feature without a location has a null geometry.
+    assert by_code["QR-102"]["geometry"] is None
+    assert by_code["QR-102"]["properties"]["frame_epsg"] is None
+    assert fc["count"] == 3  # paging as foreign members (RFC 7946 §6.1)
+
+
+def test_geojson_honours_filters(district, viewer, api_client_for):
+    fc = api_client_for(viewer).get("/api/marks/?format=geojson&status=active").json()
+    assert sorted(f["id"] for f in fc["features"]) == ["BX-7", "QR-101"]
+
+
+# ---- detail, create ------------------------------------------------------------------------------------
+
+
+def test_detail_lists_published_positions_with_accuracy(district, viewer, api_client_for):
+    body = api_client_for(viewer).get("/api/marks/QR-101/").json()
+    assert body["version"] == 1
+    (position,) = body["published_positions"]
+    assert position["frame_epsg"] == 7912 and position["frame_name"] == "ITRF2014"
+    assert position["h_m"] == 1523.457  # metres to 3 decimals (1523.4567 stored)
+    assert position["sigma_e_mm"] == 5.0 and position["sigma_u_mm"] == 10.0
+    # FGDC-STD-007.2-1998 circle for σE = σN = 5 mm, no correlation: K(1) = 1.960790 + 0.004071 +
+    # 0.114276 + 0.371625 = 2.450762 (references.md §4.2) → r95 = 12.25381 mm → 12.3 at 1 decimal.
+    assert position["network_accuracy_h95_mm"] == 12.3
+    # Vertical: 1.9600 × 10 mm = 19.6 mm (FGDC Part 2 / NSSDA factor, references.md §4.2, §8.1).
+    assert position["network_accuracy_u95_mm"] == 19.6
+
+
+def test_missing_mark_is_a_404_in_the_error_shape(district, viewer, api_client_for):
+    error = assert_error_shape(api_client_for(viewer).get("/api/marks/NOPE-1/"), 404, "not_found")
+    assert error["details"] == {"code": "NOPE-1"}
+
+
+def test_a_user_without_a_role_gets_the_same_answer_for_real_and_missing_marks(district, make_user, api_client_for):
+    client = api_client_for(make_user("nils", None))
+    real, missing = client.get("/api/marks/QR-101/"), client.get("/api/marks/NOPE-1/")
+    assert real.status_code == missing.status_code == 403
+    assert real.json() == missing.json()
+
+
+def test_create_returns_201_and_the_mark(manager, api_client_for):
+    response = api_client_for(manager).post(
+        "/api/marks/", {"code": "CW-12", "name": "Cottonwood Bench (invented)", "sky_view": "clear"}, format="json"
+    )
+    assert response.status_code == 201
+    body = response.json()
+    assert (body["code"], body["version"], body["search_location"], body["published_positions"]) == (
+        "CW-12",
+        1,
+        None,
+        [],
+    )
+    assert Mark.objects.filter(code="CW-12").exists()
+
+
+def test_create_with_form_encoding(manager, api_client_for):
+    response = api_client_for(manager).post("/api/marks/", {"code": "CW-13"})  # multipart form
+    assert response.status_code == 201
+
+
+@pytest.mark.parametrize(
+    ("body", "field", "code"),
+    [
+        ({"code": "cw 12"}, "code", "invalid_code"),
+        ({"code": "CW-12", "status": "lost"}, "status", "invalid_choice"),
+        ({"name": "no code"}, "code", "required"),
+        ({"code": "CW-12", "version": 3}, "version", "not_editable"),
+    ],
+)
+def test_create_rejects_bad_input_with_field_codes(manager, api_client_for, body, field, code):
+    error = assert_error_shape(api_client_for(manager).post("/api/marks/", body, format="json"), 400, "invalid")
+    assert code in [item["code"] for item in error["details"][field]]
+    assert not Mark.objects.exists()
+
+
+def test_duplicate_code_is_a_400_not_a_500(district, manager, api_client_for):
+    error = assert_error_shape(
+        api_client_for(manager).post("/api/marks/", {"code": "QR-101"}, format="json"), 400, "invalid"
+    )
+    assert error["details"]["code"][0]["code"] == "unique"
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "status", "code"),
+    [
+        ({"data": "{not json", "content_type": "application/json"}, 400, "parse_error"),
+        ({"data": json.dumps(["QR-1"]), "content_type": "application/json"}, 400, "invalid"),
+        ({"data": json.dumps("QR-1"), "content_type": "application/json"}, 400, "invalid"),
+        ({"data": "<mark/>", "content_type": "application/xml"}, 415, "unsupported_media_type"),
+    ],
+)
+def test_malformed_bodies_get_the_error_shape(manager, api_client_for, kwargs, status, code):
+    assert_error_shape(api_client_for(manager).post("/api/marks/", **kwargs), status, code)
+
+
+def test_unsupported_method_gets_the_error_shape(district, manager, api_client_for):
+    assert_error_shape(api_client_for(manager).delete("/api/marks/QR-101/"), 405, "method_not_allowed")
+    assert Mark.objects.filter(code="QR-101").exists()
+
+
+# ---- edit with versions -------------------------------------------------------------------------------
+
+
+def test_patch_needs_the_version(district, manager, api_client_for):
+    error = assert_error_shape(
+        api_client_for(manager).patch("/api/marks/QR-101/", {"notes": "x"}, format="json"), 400, "invalid"
+    )
+    assert error["details"]["version"][0]["code"] == "version_required"
+
+
+def test_two_patches_from_the_same_version(district, manager, make_user, api_client_for):
+    first = api_client_for(manager).patch(
+        "/api/marks/QR-101/", {"version": 1, "to_reach": "From the gate, 200 m north."}, format="json"
+    )
+    assert first.status_code == 200 and first.json()["version"] == 2
+    other = make_user("omar", "manager")
+    second = api_client_for(other).patch(
+        "/api/marks/QR-101/", {"version": 1, "to_reach": "Park at the quarry office."}, format="json"
+    )
+    error = assert_error_shape(second, 409, "stale_version")
+    assert error["details"]["to_reach"]["yours"] == "Park at the quarry office."
+    assert error["details"]["to_reach"]["theirs"] == "From the gate, 200 m north."
+    assert error["details"]["to_reach"]["changed_by"] == "mona"
+    assert error["details"]["version"] == {"yours": 1, "theirs": 2, "changed_by": None, "changed_at": None}
+    assert Mark.objects.get(code="QR-101").to_reach == "From the gate, 200 m north."
+    trail = {e.action: e.after for e in AuditEvent.objects.filter(action__startswith="mark_update")}
+    assert trail["mark_update"]["to_reach"] == "From the gate, 200 m north."
+    assert trail["mark_update_refused"]["to_reach"] == "Park at the quarry office."
+
+
+def test_status_endpoint(district, manager, api_client_for):
+    client = api_client_for(manager)
+    error = assert_error_shape(
+        client.post("/api/marks/QR-101/status/", {"version": 1, "status": "destroyed"}, format="json"), 400, "invalid"
+    )
+    assert error["details"]["note"][0]["code"] == "note_required"
+    response = client.post(
+        "/api/marks/QR-101/status",
+        {"version": 1, "status": "destroyed", "note": "Quarry blast (invented)"},
+        format="json",
+    )
+    assert response.status_code == 200 and response.json()["status"] == "destroyed"
+    stale = client.post("/api/marks/QR-101/status/", {"version": 1, "status": "active", "note": "found"}, format="json")
+    assert_error_shape(stale, 409, "stale_version")

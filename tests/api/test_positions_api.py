@@ -1,0 +1,119 @@
+"""The positions API through HTTP: propose, list, publish (supersede), reject, withdraw."""
+
+from __future__ import annotations
+
+import pytest
+
+from registry.models import Mark, Position, PositionState
+from tests.api._shape import assert_error_shape
+from tests.services._data import NAD83_2011_EPSG, make_mark, position_data
+
+pytestmark = pytest.mark.django_db
+
+
+@pytest.fixture
+def mark(manager):
+    return make_mark(manager)
+
+
+def propose(client, **overrides):
+    response = client.post("/api/marks/QR-101/positions/", position_data(**overrides), format="json")
+    assert response.status_code == 201, response.content
+    return response.json()
+
+
+def test_propose_returns_the_position_with_frame_epoch_and_rounding(mark, technician, api_client_for):
+    body = propose(api_client_for(technician), vel_e_m_yr=-0.0123456, vel_n_m_yr=0.004, vel_u_m_yr=0.0)
+    assert body["state"] == "proposed" and body["mark"] == "QR-101" and body["created_by"] == "theo"
+    assert (body["frame_epsg"], body["frame_name"], body["epoch_yr"]) == (7912, "ITRF2014", 2020.0)
+    assert (body["lat_deg"], body["lon_deg"], body["h_m"]) == (45.201234568, -110.602345679, 1523.457)
+    assert body["cov_ee_m2"] == 0.005**2  # covariance unrounded
+    assert body["vel_e_m_yr"] == -0.01235  # 5 decimals of m/yr = 0.01 mm/yr
+
+
+def test_propose_invalid_input_is_a_400_with_field_codes(mark, technician, api_client_for):
+    response = api_client_for(technician).post(
+        "/api/marks/QR-101/positions/", position_data(lat_deg=95.0, frame_epsg=4326, cov_uu_m2=-1), format="json"
+    )
+    error = assert_error_shape(response, 400, "invalid")
+    codes = {field: [item["code"] for item in items] for field, items in error["details"].items()}
+    assert codes == {
+        "lat_deg": ["lat_out_of_range"],
+        "frame_epsg": ["frame_not_geographic_3d"],
+        "cov_uu_m2": ["negative_variance"],
+    }
+    assert not Position.objects.exists()
+
+
+def test_propose_on_a_missing_mark_is_a_404(technician, api_client_for):
+    response = api_client_for(technician).post("/api/marks/NOPE-1/positions/", position_data(), format="json")
+    assert_error_shape(response, 404, "not_found")
+
+
+def test_publish_then_supersede_through_the_api(mark, technician, manager, api_client_for):
+    tech, boss = api_client_for(technician), api_client_for(manager)
+    first = propose(tech)
+    published = boss.post(f"/api/positions/{first['id']}/publish/", {}, format="json")
+    assert published.status_code == 200 and published.json()["state"] == "published"
+    assert published.json()["decided_by"] == "mona"
+    second = propose(tech, epoch_yr=2024.5, lat_deg=45.2012346)
+    assert boss.post(f"/api/positions/{second['id']}/publish", format="json").status_code == 200  # no trailing slash
+    old = boss.get(f"/api/positions/{first['id']}/").json()
+    assert old["state"] == "superseded" and old["superseded_by"] == second["id"] and old["superseded_at"]
+    detail = boss.get("/api/marks/QR-101/").json()
+    assert [p["id"] for p in detail["published_positions"]] == [second["id"]]
+    assert detail["search_location"]["lat_deg"] == 45.2012346
+    assert detail["search_location"]["epoch_yr"] == 2024.5
+
+
+def test_publishing_twice_is_a_409(mark, technician, manager, api_client_for):
+    first = propose(api_client_for(technician))
+    boss = api_client_for(manager)
+    boss.post(f"/api/positions/{first['id']}/publish/", format="json")
+    error = assert_error_shape(boss.post(f"/api/positions/{first['id']}/publish/", format="json"), 409, "invalid_state")
+    assert error["details"] == {"state": "published", "allowed": ["proposed"]}
+
+
+def test_reject_needs_a_note(mark, technician, manager, api_client_for):
+    first = propose(api_client_for(technician))
+    boss = api_client_for(manager)
+    error = assert_error_shape(boss.post(f"/api/positions/{first['id']}/reject/", {}, format="json"), 400, "invalid")
+    assert error["details"]["note"][0]["code"] == "note_required"
+    response = boss.post(f"/api/positions/{first['id']}/reject/", {"note": "Float solution (invented)"}, format="json")
+    assert response.status_code == 200 and response.json()["state"] == "rejected"
+
+
+def test_withdraw_falls_back_to_the_other_frame(mark, technician, manager, api_client_for):
+    tech, boss = api_client_for(technician), api_client_for(manager)
+    itrf = propose(tech)
+    nad = propose(tech, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
+    boss.post(f"/api/positions/{itrf['id']}/publish/", format="json")
+    boss.post(f"/api/positions/{nad['id']}/publish/", format="json")
+    assert boss.get("/api/marks/QR-101/").json()["search_location"]["frame_epsg"] == NAD83_2011_EPSG
+    response = boss.post(f"/api/positions/{nad['id']}/withdraw/", {"note": "Wrong antenna (invented)"}, format="json")
+    assert response.status_code == 200 and response.json()["state"] == "withdrawn"
+    location = boss.get("/api/marks/QR-101/").json()["search_location"]
+    assert (location["frame_epsg"], location["lat_deg"]) == (7912, 45.201234568)
+    boss.post(f"/api/positions/{itrf['id']}/withdraw/", {"note": "Blunder (invented)"}, format="json")
+    assert boss.get("/api/marks/QR-101/").json()["search_location"] is None
+    assert Mark.objects.values_list("search_lat_deg", flat=True).get() is None
+
+
+def test_positions_list_and_state_filter(mark, technician, manager, api_client_for, viewer):
+    tech, boss = api_client_for(technician), api_client_for(manager)
+    a = propose(tech)
+    propose(tech, epoch_yr=2021.0)
+    boss.post(f"/api/positions/{a['id']}/publish/", format="json")
+    client = api_client_for(viewer)
+    assert client.get("/api/marks/QR-101/positions/").json()["count"] == 2
+    published = client.get("/api/marks/QR-101/positions/?state=published").json()
+    assert [p["id"] for p in published["results"]] == [a["id"]]
+    error = assert_error_shape(client.get("/api/marks/QR-101/positions/?state=draft"), 400, "invalid")
+    assert error["details"]["state"][0]["code"] == "invalid_choice"
+
+
+def test_unknown_position_is_a_404(mark, manager, api_client_for):
+    client = api_client_for(manager)
+    assert_error_shape(client.get("/api/positions/987654/"), 404, "not_found")
+    assert_error_shape(client.post("/api/positions/987654/publish/", format="json"), 404, "not_found")
+    assert not Position.objects.filter(state=PositionState.PUBLISHED).exists()
