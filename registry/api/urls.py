@@ -5,6 +5,7 @@ from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
 
 from registry.api import exports as exports_api
 from registry.api import marks as marks_api
+from registry.api import nearby as nearby_api  # search area
 from registry.api import positions as positions_api
 
 app_name = "api"
@@ -16,6 +17,8 @@ urlpatterns = [
     path("marks/export.csv", exports_api.MarksExportView.as_view(fmt="csv"), name="marks-export-csv"),
     path("marks/export.geojson", exports_api.MarksExportView.as_view(fmt="geojson"), name="marks-export-geojson"),
     path("marks/export", exports_api.MarksExportView.as_view(), name="marks-export"),
+    # nearby marks (search area); before marks/<code>/ so that "near" never reads as a code
+    path("marks/near/", nearby_api.MarksNearView.as_view(), name="marks-near"),
     # marks and positions (services area)
     path("marks/", marks_api.MarkListView.as_view(), name="mark-list"),
     path("marks/<str:code>/", marks_api.MarkDetailView.as_view(), name="mark-detail"),

@@ -68,6 +68,22 @@ PATH_POSTGIS = "postgis"
 PATH_PORTABLE = "portable"
 PATHS = (PATH_AUTO, PATH_POSTGIS, PATH_PORTABLE)
 
+#: What the search point and the marks' coordinates are (for pages, API, command).
+SEARCH_LOCATION_NOTE = (
+    "Search point taken as given (latitude/longitude, decimal degrees, read as WGS 84 / ITRF-aligned). "
+    "Each mark is placed at its search location: its current published position, in that position's own "
+    "frame (frames in use differ by up to about 2 m). Distances and azimuths are geodesic on the GRS80 "
+    "ellipsoid (WGS 84 gives the same to well under 1 mm)."
+)
+#: The usual cautions, shown with every nearby list.
+CAUTIONS = (
+    "Distances here are for finding marks, not for staking or computing baselines: use the mark's published "
+    "position in the job's frame and epoch.",
+    "Recover and verify every mark in the field before relying on it (check its stamping, condition and a "
+    "check shot to another trusted mark); a mark can be disturbed since its last visit.",
+    "Local codes and licensed surveying practice govern the use of control.",
+)
+
 #: Sphere/ellipsoid factors of the PostGIS spherical measures (see ``proximity``).
 _SPHERE_LO, _SPHERE_HI = proximity.sphere_distance_factors()
 

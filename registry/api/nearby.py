@@ -1,0 +1,142 @@
+"""``GET /api/marks/near/``: marks within a radius of a point, nearest first.
+
+A thin view: the input serializer checks the query, the selector
+(:func:`registry.selectors.nearby.marks_near`) does the search, the answer carries the
+search, the marks and the usual cautions. Reading needs the viewer ability (the API's
+default permission). Rounding: latitude/longitude to 9 decimal places of a degree,
+distances to 3 decimals of a metre (mm), azimuths to 6 decimal places of a degree.
+"""
+
+from __future__ import annotations
+
+from drf_spectacular.utils import OpenApiResponse, extend_schema
+from rest_framework import serializers
+from rest_framework.response import Response
+from rest_framework.views import APIView
+
+from registry.models import MarkStatus, Stability
+from registry.selectors.nearby import CAUTIONS, SEARCH_LOCATION_NOTE, marks_near
+
+#: Largest radius and limit the API accepts (the selector allows more for the command line).
+API_MAX_RADIUS_KM = 1000.0
+API_MAX_LIMIT = 500
+API_DEFAULT_LIMIT = 50
+
+
+class _ChoiceList(serializers.CharField):
+    """One or more choices, comma-separated or repeated (``?status=active,retired``)."""
+
+    def __init__(self, *, choices, **kwargs):
+        self.allowed = tuple(choices)
+        super().__init__(**kwargs)
+
+    def to_internal_value(self, data):
+        items = [s.strip() for part in (data if isinstance(data, list) else [data]) for s in str(part).split(",")]
+        items = [s for s in items if s]
+        bad = [s for s in items if s not in self.allowed]
+        if bad or not items:
+            raise serializers.ValidationError(f"Choose from: {', '.join(self.allowed)}.", code="invalid_choice")
+        return items
+
+
+class NearbyQuery(serializers.Serializer):
+    lat = serializers.FloatField(min_value=-90.0, max_value=90.0, help_text="Latitude of the search point, degrees.")
+    lon = serializers.FloatField(min_value=-180.0, max_value=180.0, help_text="Longitude of the search point, degrees.")
+    radius_km = serializers.FloatField(
+        min_value=0.001, max_value=API_MAX_RADIUS_KM, help_text="Search radius, km (geodesic, GRS80)."
+    )
+    limit = serializers.IntegerField(
+        min_value=1, max_value=API_MAX_LIMIT, default=API_DEFAULT_LIMIT, help_text="At most this many marks."
+    )
+    status = _ChoiceList(choices=MarkStatus.values, required=False, help_text="Mark statuses, comma-separated.")
+    stability = _ChoiceList(
+        choices=Stability.values, required=False, help_text="Monument stabilities, comma-separated."
+    )
+    frame_epsg = serializers.IntegerField(
+        required=False, min_value=1024, help_text="Only marks with a published position in this frame (EPSG code)."
+    )
+    good_visit_within_yr = serializers.FloatField(
+        required=False, min_value=0.001, max_value=200.0, help_text="Only marks found in good condition within N years."
+    )
+    accuracy_class_max_m = serializers.FloatField(
+        required=False,
+        min_value=0.0001,
+        max_value=100.0,
+        help_text="Only marks with a published position (in frame_epsg, if given) whose FGDC horizontal 95 % "
+        "accuracy is at most this value, m.",
+    )
+
+
+class NearbyMarkOut(serializers.Serializer):
+    code = serializers.CharField()
+    name = serializers.CharField()
+    status = serializers.CharField()
+    stability = serializers.CharField()
+    monument_type = serializers.CharField()
+    lat_deg = serializers.FloatField(help_text="Search location (current published position), degrees.")
+    lon_deg = serializers.FloatField()
+    distance_m = serializers.FloatField(help_text="Geodesic distance on GRS80 from the search point, m (3 decimals).")
+    azimuth_deg = serializers.FloatField(
+        allow_null=True, help_text="Azimuth at the search point, degrees; null under 1 mm."
+    )
+
+
+class NearbySearchOut(serializers.Serializer):
+    lat_deg = serializers.FloatField()
+    lon_deg = serializers.FloatField()
+    radius_m = serializers.FloatField()
+    limit = serializers.IntegerField()
+    filters = serializers.DictField()
+    ellipsoid = serializers.CharField()
+    location_note = serializers.CharField()
+
+
+class NearbyOut(serializers.Serializer):
+    search = NearbySearchOut()
+    count = serializers.IntegerField()
+    marks = NearbyMarkOut(many=True)
+    cautions = serializers.ListField(child=serializers.CharField())
+
+
+_FILTERS = ("status", "stability", "frame_epsg", "good_visit_within_yr", "accuracy_class_max_m")
+
+
+class MarksNearView(APIView):
+    @extend_schema(
+        summary="Marks near a point",
+        parameters=[NearbyQuery],
+        responses={
+            200: NearbyOut,
+            400: OpenApiResponse(description='Invalid input: {"error": {"code", "message", "details"}}.'),
+            403: OpenApiResponse(description="Your role does not allow reading the registry."),
+        },
+    )
+    def get(self, request):
+        query = NearbyQuery(data=request.query_params.dict() | self._lists(request))
+        query.is_valid(raise_exception=True)
+        q = query.validated_data
+        filters = {k: q[k] for k in _FILTERS if k in q}
+        found = marks_near(
+            lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
+        )
+        return Response(
+            {
+                "search": {
+                    "lat_deg": round(q["lat"], 9),
+                    "lon_deg": round(q["lon"], 9),
+                    "radius_m": round(q["radius_km"] * 1000.0, 3),
+                    "limit": q["limit"],
+                    "filters": filters,
+                    "ellipsoid": "GRS80",
+                    "location_note": SEARCH_LOCATION_NOTE,
+                },
+                "count": len(found),
+                "marks": [m.as_dict() for m in found],
+                "cautions": list(CAUTIONS),
+            }
+        )
+
+    @staticmethod
+    def _lists(request) -> dict:
+        """Repeated ``status`` / ``stability`` parameters, kept as lists."""
+        return {k: request.query_params.getlist(k) for k in ("status", "stability") if k in request.query_params}
