@@ -186,7 +186,8 @@ def parse_angle(text: str, *, kind: str | None = None) -> float:
     # Hemisphere letter at either end.
     for pos in (0, -1):
         ch = s[pos].upper() if s else ""
-        if ch in _HEMI:
+        neighbour = (s[1:2] if pos == 0 else s[-2:-1]) if s else ""
+        if ch in _HEMI and not neighbour.isalpha():
             h_kind, h_sign = _HEMI[ch]
             if kind is not None and h_kind != kind:
                 expected = "N or S" if kind == "lat" else "E or W"
