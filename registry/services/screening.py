@@ -18,9 +18,9 @@ Steps:
    vertical √cov_uu (see ``registry.geodesy.rtk``).
 5. The pure core (``registry.geodesy.rtk.screen_candidates``) on the site's local plane.
 6. Check marks: marks passing every rule, not one of the chosen bases, within
-   ``CHECK_NEAR_M`` of the site and within the maximum baseline of a chosen base; the one
-   nearest the site first, then farthest-point selection away from the chosen ones and the
-   bases. Each gets the largest check-shot discrepancy still consistent at 95 % from each
+   ``CHECK_NEAR_M`` of the site (preferring those within 250 m or 10 % of the site radius
+   when there are enough) and within the maximum baseline of a chosen base; the one nearest
+   the site first, then farthest-point selection away from the chosen ones and the bases. Each gets the largest check-shot discrepancy still consistent at 95 % from each
    chosen base.
 """
 
@@ -44,6 +44,10 @@ from registry.services.access import access_job_by_code, require_ability
 
 #: Check marks are looked for within this distance of the site (m).
 CHECK_NEAR_M = 2_000.0
+#: Marks this close to the site (the larger of 250 m and 10 % of the site radius) are preferred as
+#: check marks when there are enough of them; otherwise any within ``CHECK_NEAR_M``.
+CHECK_CLOSE_MIN_M = 250.0
+CHECK_CLOSE_FRACTION = 0.10
 #: How many check marks to suggest.
 CHECK_MARK_COUNT = 2
 #: Candidates are searched within site radius + this factor × maximum baseline.
@@ -79,6 +83,10 @@ class ScreeningSettings:
     recovery_years: float
     grid_spacing_m: float | None = None
     job_code: str | None = None
+
+    @property
+    def site_radius_m(self) -> float:
+        return site_geo.site_radius_m(self.site, site_geo.site_plane(self.site))
 
 
 @dataclass
@@ -487,6 +495,11 @@ def _check_marks(s: ScreeningSettings, ordered: list[Candidate], chosen: list[Ca
     ]
     if not rule_ok:
         return []
+    # Prefer marks on or close to the site when there are enough of them ("spread over the site").
+    close_m = max(CHECK_CLOSE_MIN_M, CHECK_CLOSE_FRACTION * s.site_radius_m)
+    close = [c for c in rule_ok if c.distance_m <= close_m]
+    if len(close) >= CHECK_MARK_COUNT:
+        rule_ok = close
     e = np.array([c.e_m for c in rule_ok])
     n = np.array([c.n_m for c in rule_ok])
     first = int(np.argmin([c.distance_m for c in rule_ok]))

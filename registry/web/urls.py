@@ -3,7 +3,7 @@
 from django.conf import settings
 from django.urls import path
 
-from registry.web import auth_views, import_views, mark_views, views
+from registry.web import auth_views, import_views, job_views, mark_views, views
 
 app_name = "web"
 
@@ -18,6 +18,13 @@ urlpatterns: list = [
     path("marks/import/", import_views.import_page, name="import"),
     path("marks/<str:code>/", mark_views.mark_page, name="mark-detail"),
     path("marks/<str:code>/edit/", mark_views.mark_edit, name="mark-edit"),
+    # jobs and base screening (screening area)
+    path("jobs/", job_views.job_list, name="job-list"),
+    path("jobs/new/", job_views.job_new, name="job-create"),
+    path("jobs/<str:code>/", job_views.job_page, name="job-detail"),
+    path("jobs/<str:code>/edit/", job_views.job_edit, name="job-edit"),
+    path("jobs/<str:code>/control.csv", job_views.job_export_csv, name="job-export-csv"),
+    path("jobs/<str:code>/control.geojson", job_views.job_export_geojson, name="job-export-geojson"),
     # uploaded files in development (DEBUG); the web server serves them in production
     path(f"{settings.MEDIA_URL.strip('/')}/<path:path>", views.media_file, name="media"),
 ]

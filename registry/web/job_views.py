@@ -1,0 +1,337 @@
+"""Job pages: the list, the job page with its base screening and map, create/edit for managers,
+and the export of the chosen bases and check marks (CSV, GeoJSON) for field controllers.
+
+Views parse input and render; writes go through :mod:`registry.services.jobs`, the screening
+through :mod:`registry.services.screening` (the same calls the API and the command make).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+from django import forms
+from django.contrib import messages
+from django.core.exceptions import ValidationError
+from django.http import HttpRequest, HttpResponse, JsonResponse
+from django.shortcuts import redirect, render
+from django.utils.safestring import mark_safe
+
+from registry.errors import Conflict
+from registry.geodesy import rtk
+from registry.geodesy.frames import frame_info
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.roles import Ability, has_ability
+from registry.services.access import access_job_by_code
+from registry.services.jobs import job_create, job_update
+from registry.services.screening import ScreeningResult, job_screen
+from registry.web.job_map import job_map_svg, legend_rows
+from registry.web.views import ability_required
+
+NUMBER_FIELDS = (
+    ("epoch_yr", "Deliverable epoch (decimal year)"),
+    ("tol_h_mm", "Horizontal tolerance, 95 % circle (mm)"),
+    ("tol_v_mm", "Vertical tolerance, 95 % (mm)"),
+    ("rtk_h_fixed_mm", "RTK horizontal, fixed part (mm)"),
+    ("rtk_h_ppm", "RTK horizontal, distance part (ppm)"),
+    ("rtk_v_fixed_mm", "RTK vertical, fixed part (mm)"),
+    ("rtk_v_ppm", "RTK vertical, distance part (ppm)"),
+    ("setup_h_mm", "Base centring per axis, 1σ (mm)"),
+    ("setup_v_mm", "Base antenna height, 1σ (mm)"),
+    ("assumed_rate_mm_yr", "Assumed unmodelled motion without velocity (mm/yr per axis)"),
+    ("max_baseline_m", "Maximum baseline (m)"),
+    ("recovery_years", "A base needs a good visit within (years)"),
+    ("grid_spacing_m", "Site grid spacing (m; empty: chosen from the site size)"),
+)
+HELP = {
+    "epoch_yr": "e.g. 2025.500",
+    "rtk_h_fixed_mm": "Common practice: 8 mm + 1 ppm horizontal, 15 mm + 1 ppm vertical (receiver specifications).",
+    "max_baseline_m": "Common practice for single-base RTK: 10 000 m.",
+}
+
+
+def _text(label, required=False, help_text=""):
+    return forms.CharField(label=label, required=required, help_text=help_text,
+                           widget=forms.TextInput(attrs={"inputmode": "decimal", "class": "num"}))
+
+
+class JobForm(forms.Form):
+    """All fields are passed as text to the service, which converts and validates them (coded errors)."""
+
+    code = forms.CharField(label="Job code", required=False, max_length=32,
+                           help_text="Capital letters, digits, '_', '.', '-' (e.g. J-2025-014).")
+    name = forms.CharField(label="Name", required=False, max_length=200)
+    client = forms.CharField(label="Client", required=False, max_length=200)
+    status = forms.ChoiceField(label="Status", choices=JobStatus.choices, initial=JobStatus.PLANNING)
+    site_geojson = forms.CharField(
+        label="Site as GeoJSON (Point or Polygon, longitude/latitude in degrees)", required=False,
+        widget=forms.Textarea(attrs={"rows": 5, "cols": 70, "class": "mono", "spellcheck": "false"}),
+    )
+    site_lat_deg = _text("…or a site point: latitude (decimal degrees)")
+    site_lon_deg = _text("…and longitude (decimal degrees, west negative)")
+    frame_epsg = _text("Deliverable frame (EPSG code of a geographic 3D CRS)", help_text="e.g. 6319 NAD83(2011), 7912 ITRF2014, 9989 ITRF2020")
+    grid_epsg = _text("Deliverable grid (EPSG; empty: UTM zone chosen automatically)")
+    rtk_combination = forms.ChoiceField(label="RTK error combination", choices=RtkCombination.choices,
+                                        initial=RtkCombination.ADDITIVE)
+    rtk_h_meaning = forms.ChoiceField(label="The horizontal RTK figure is", choices=RtkHorizontalMeaning.choices,
+                                      initial=RtkHorizontalMeaning.PER_AXIS)
+    notes = forms.CharField(label="Notes", required=False, widget=forms.Textarea(attrs={"rows": 3, "cols": 70}))
+    version = forms.IntegerField(widget=forms.HiddenInput, required=False)
+
+    def __init__(self, *args, editing: bool = False, **kwargs):
+        super().__init__(*args, **kwargs)
+        for name, label in NUMBER_FIELDS:
+            self.fields[name] = _text(label, help_text=HELP.get(name, ""))
+        order = ["code", "name", "client", "status", "site_geojson", "site_lat_deg", "site_lon_deg", "frame_epsg",
+                 "epoch_yr", "grid_epsg", "tol_h_mm", "tol_v_mm", "rtk_h_fixed_mm", "rtk_h_ppm", "rtk_v_fixed_mm",
+                 "rtk_v_ppm", "rtk_combination", "rtk_h_meaning", "setup_h_mm", "setup_v_mm", "assumed_rate_mm_yr",
+                 "max_baseline_m", "recovery_years", "grid_spacing_m", "notes", "version"]
+        self.order_fields(order)
+        if editing:
+            del self.fields["code"]
+
+    def clean(self):
+        data = super().clean()
+        lat, lon = data.get("site_lat_deg", "").strip(), data.get("site_lon_deg", "").strip()
+        if lat or lon:
+            if not (lat and lon):
+                raise ValidationError("Give both latitude and longitude of the site point.", code="site_point_incomplete")
+            if self.has_changed() and "site_geojson" in self.changed_data and data.get("site_geojson", "").strip():
+                raise ValidationError("Give the site either as GeoJSON or as a point, not both.", code="site_twice")
+            try:
+                data["site_geojson"] = json.dumps({"type": "Point", "coordinates": [float(lon), float(lat)]})
+            except ValueError:
+                raise ValidationError("The site point's latitude and longitude must be numbers.",
+                                      code="invalid_number") from None
+            self._site_from_point = True
+        return data
+
+    def service_data(self, *, only_changed: bool) -> dict:
+        names = [n for n in self.fields if n not in ("version", "site_lat_deg", "site_lon_deg")]
+        if only_changed:
+            names = [n for n in names if n in self.changed_data]
+            if getattr(self, "_site_from_point", False) and "site_geojson" not in names:
+                names.append("site_geojson")
+        data = {}
+        for n in names:
+            value = self.cleaned_data.get(n)
+            data[n] = value.strip() if isinstance(value, str) else value
+        for n in ("grid_epsg", "grid_spacing_m"):
+            if n in data and data[n] == "":
+                data[n] = None
+        if not only_changed:
+            data = {k: v for k, v in data.items() if v not in ("", None) or k in ("client", "notes")}
+        return data
+
+    def add_service_error(self, error: ValidationError) -> None:
+        if hasattr(error, "error_dict"):
+            for name, errors in error.error_dict.items():
+                target = name if name in self.fields and name != "version" else None
+                for e in errors:
+                    self.add_error(target, e)
+        else:
+            self.add_error(None, error)
+
+
+def _initial(job: Job) -> dict:
+    initial = {name: getattr(job, name) for name in (
+        "name", "client", "status", "frame_epsg", "grid_epsg", "rtk_combination", "rtk_h_meaning", "notes")}
+    initial["grid_epsg"] = "" if job.grid_epsg is None else str(job.grid_epsg)
+    initial["frame_epsg"] = str(job.frame_epsg)
+    for name, _ in NUMBER_FIELDS:
+        value = getattr(job, name)
+        initial[name] = "" if value is None else f"{value:g}"
+    initial["site_geojson"] = json.dumps(job.site_geojson)
+    initial["version"] = job.version
+    return initial
+
+
+# ----------------------------------------------------------------------------- pages
+
+
+@ability_required(Ability.VIEW)
+def job_list(request: HttpRequest) -> HttpResponse:
+    jobs = list(Job.objects.order_by("code"))
+    rows = []
+    for job in jobs:
+        try:
+            frame = frame_info(job.frame_epsg).label
+        except Exception:  # an unknown code stored before validation existed: show the number
+            frame = f"EPSG:{job.frame_epsg}"
+        rows.append({"job": job, "frame": frame, "site_kind": (job.site_geojson or {}).get("type", "?")})
+    return render(request, "registry/job_list.html",
+                  {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)})
+
+
+def _screening_context(result: ScreeningResult) -> dict:
+    core = result.core
+    chosen_ids = {id(c) for c in result.chosen}
+    check_ids = {id(cm.candidate) for cm in result.check_marks}
+    rows = []
+    for c in result.candidates:
+        role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
+        rows.append({
+            "c": c,
+            "role": role,
+            "budget": c.budget,
+            "coverage_pct": c.coverage * 100,
+            "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
+        })
+    return {
+        "result": result,
+        "rows": rows,
+        "usable_count": len(result.usable_candidates),
+        "excluded_count": len(result.candidates) - len(result.usable_candidates),
+        "map_svg": mark_safe(job_map_svg(result)),  # built from escaped values in job_map
+        "legend": legend_rows(result.settings.tol_h_mm),
+        "pair_coverage_pct": None if core is None or result.pair is None else core.pair_coverage * 100,
+        "any_coverage_pct": None if core is None else core.any_coverage * 100,
+        "frame_label": result.frame_label,
+        "boundary_count": int((~result.grid.is_cell).sum()),
+    }
+
+
+@ability_required(Ability.VIEW)
+def job_page(request: HttpRequest, code: str) -> HttpResponse:
+    job = access_job_by_code(request.user, code)
+    result = job_screen(actor=request.user, code=code)
+    context = {"job": job, "can_manage": has_ability(request.user, Ability.MANAGE), **_screening_context(result)}
+    return render(request, "registry/job_detail.html", context)
+
+
+@ability_required(Ability.MANAGE)
+def job_new(request: HttpRequest) -> HttpResponse:
+    if request.method == "POST":
+        form = JobForm(request.POST)
+        if form.is_valid():
+            try:
+                job = job_create(actor=request.user, data=form.service_data(only_changed=False))
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            else:
+                messages.success(request, f"Job {job.code} created (version {job.version}).")
+                return redirect("web:job-detail", code=job.code)
+    else:
+        defaults = {f.name: f.default for f in Job._meta.concrete_fields if f.name.startswith(("rtk_", "setup_"))}
+        from django.conf import settings
+
+        cfg = settings.REGISTRY
+        defaults.update(assumed_rate_mm_yr=cfg.get("ASSUMED_RATE_MM_YR", 2.0),
+                        max_baseline_m=cfg.get("MAX_BASELINE_M", 10000.0), recovery_years=cfg.get("RECOVERY_YEARS", 10.0))
+        form = JobForm(initial={k: (f"{v:g}" if isinstance(v, float) else v) for k, v in defaults.items()})
+    status = 400 if request.method == "POST" else 200
+    return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
+
+
+@ability_required(Ability.MANAGE)
+def job_edit(request: HttpRequest, code: str) -> HttpResponse:
+    job = access_job_by_code(request.user, code, ability=Ability.MANAGE)
+    initial = _initial(job)
+    conflict = None
+    status = 200
+    if request.method == "POST":
+        form = JobForm(request.POST, editing=True, initial=initial)
+        if form.is_valid():
+            changes = form.service_data(only_changed=True)
+            if not changes:
+                messages.info(request, f"Nothing to save: job {job.code} already holds these values.")
+                return redirect("web:job-detail", code=job.code)
+            loaded = form.cleaned_data.get("version")
+            try:
+                job = job_update(actor=request.user, code=job.code, expected_version=loaded, changes=changes)
+            except ValidationError as exc:
+                form.add_service_error(exc)
+                status = 400
+            except Conflict as exc:
+                details = exc.details or {}
+                stored = details.get("version", {}).get("theirs")
+                conflict = {
+                    "message": exc.message,
+                    "rows": [{"field": k, **v} for k, v in details.items() if k != "version"],
+                    "loaded_version": loaded,
+                    "stored_version": stored,
+                }
+                status = 409
+                data = request.POST.copy()
+                if stored is not None:
+                    data["version"] = str(stored)
+                form = JobForm(data, editing=True, initial=initial)
+                form.is_valid()
+            else:
+                messages.success(request, f"Job {job.code} saved (version {job.version}).")
+                return redirect("web:job-detail", code=job.code)
+        else:
+            status = 400
+    else:
+        form = JobForm(initial=initial, editing=True)
+    return render(request, "registry/job_form.html", {"form": form, "job": job, "conflict": conflict}, status=status)
+
+
+# ----------------------------------------------------------------------------- exports
+
+EXPORT_COLUMNS = ("role", "code", "name", "lat_deg", "lon_deg", "h_m", "frame_epsg", "frame", "epoch_yr",
+                  "horizontal_95_mm", "vertical_95_mm", "note")
+
+
+def export_rows(result: ScreeningResult) -> list[dict]:
+    """One row per chosen base and per suggested check mark, in the job's frame at its epoch."""
+    s = result.settings
+    label = result.frame_label
+    rows = []
+    for c in result.chosen:
+        rows.append({
+            "role": "base", "code": c.mark.code, "name": c.mark.name,
+            "lat_deg": f"{c.lat_deg:.9f}", "lon_deg": f"{c.lon_deg:.9f}", "h_m": f"{c.h_m:.3f}",
+            "frame_epsg": s.frame_epsg, "frame": label, "epoch_yr": f"{s.epoch_yr:.3f}",
+            "horizontal_95_mm": f"{c.h95_mm:.1f}", "vertical_95_mm": f"{c.v95_mm:.1f}",
+            "note": "worst rover 95 % figures over the site from this base; ellipsoidal height",
+        })
+    for cm in result.check_marks:
+        c = cm.candidate
+        first = cm.allowances[0] if cm.allowances else None
+        rows.append({
+            "role": "check", "code": c.mark.code, "name": c.mark.name,
+            "lat_deg": f"{c.lat_deg:.9f}", "lon_deg": f"{c.lon_deg:.9f}", "h_m": f"{c.h_m:.3f}",
+            "frame_epsg": s.frame_epsg, "frame": label, "epoch_yr": f"{s.epoch_yr:.3f}",
+            "horizontal_95_mm": "" if first is None else f"{first['horizontal_95_mm']:.1f}",
+            "vertical_95_mm": "" if first is None else f"{first['vertical_95_mm']:.1f}",
+            "note": "" if first is None else f"largest check-shot discrepancy consistent at 95 % from base {first['base']}",
+        })
+    return rows
+
+
+@ability_required(Ability.VIEW)
+def job_export_csv(request: HttpRequest, code: str) -> HttpResponse:
+    result = job_screen(actor=request.user, code=code)
+    buf = io.StringIO()
+    writer = csv.DictWriter(buf, fieldnames=EXPORT_COLUMNS, lineterminator="\r\n")
+    writer.writeheader()
+    writer.writerows(export_rows(result))
+    response = HttpResponse(buf.getvalue(), content_type="text/csv; charset=utf-8")
+    response["Content-Disposition"] = f'attachment; filename="{code}-control.csv"'
+    return response
+
+
+@ability_required(Ability.VIEW)
+def job_export_geojson(request: HttpRequest, code: str) -> HttpResponse:
+    result = job_screen(actor=request.user, code=code)
+    features = []
+    for row in export_rows(result):
+        props = {k: v for k, v in row.items() if k not in ("lat_deg", "lon_deg", "h_m")}
+        features.append({
+            "type": "Feature",
+            "geometry": {"type": "Point", "coordinates": [float(row["lon_deg"]), float(row["lat_deg"]), float(row["h_m"])]},
+            "properties": props,
+        })
+    body = {
+        "type": "FeatureCollection",
+        "name": f"{code} bases and check marks",
+        "coordinates_note": (f"Longitude, latitude (degrees) and ellipsoidal height (m) in {result.frame_label} at "
+                             f"epoch {result.settings.epoch_yr:.3f}, not WGS 84. Verify control in the field before use."),
+        "features": features,
+    }
+    response = JsonResponse(body, json_dumps_params={"ensure_ascii": False, "indent": 1})
+    response["Content-Type"] = "application/geo+json"
+    response["Content-Disposition"] = f'attachment; filename="{code}-control.geojson"'
+    return response

@@ -1,0 +1,134 @@
+"""Job pages through HTTP: list, job page with screening and map, create/edit, exports, roles."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+import pytest
+
+from registry.models import AuditEvent, Job, MarkStatus, SkyView
+from tests.services.test_screening import SITE_LAT, SITE_LON, at, make_job, make_mark
+
+
+@pytest.fixture
+def scenario(db):
+    """Invented: a 2 km square site with marks around it."""
+    sw = at(1000.0 * 2**0.5, 225.0)
+    ne = at(1000.0 * 2**0.5, 45.0)
+    ring = [[sw[1], sw[0]], [ne[1], sw[0]], [ne[1], ne[0]], [sw[1], ne[0]], [sw[1], sw[0]]]
+    make_mark("BASE-N", 300.0, 0.0)
+    make_mark("BASE-E", 2500.0, 90.0)
+    make_mark("CHK-1", 600.0, 200.0, sigma_h_mm=8.0)
+    make_mark("CHK-2", 1300.0, 300.0, sigma_h_mm=8.0)
+    make_mark("OLD-1", 700.0, 120.0, status=MarkStatus.RETIRED)
+    make_mark("SKY-1", 900.0, 60.0, sky=SkyView.OBSTRUCTED)
+    return make_job(code="J-WEB", site={"type": "Polygon", "coordinates": [ring]}, tol_h_mm=35.0, tol_v_mm=50.0)
+
+
+def test_pages_need_sign_in(client, scenario):
+    r = client.get("/jobs/J-WEB/")
+    assert r.status_code == 302 and "/signin/" in r["Location"]
+
+
+def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
+    client.force_login(viewer)
+    r = client.get("/jobs/")
+    assert r.status_code == 200
+    body = r.content.decode()
+    assert "J-WEB" in body and "NAD83(2011) (EPSG:6319)" in body and "New job" not in body
+    r = client.get("/jobs/J-WEB/")
+    assert r.status_code == 200
+    body = r.content.decode()
+    # The map is inline SVG with a scale bar and north arrow, cells coloured, marks labelled.
+    assert "<svg" in body and 'class="scalebar"' in body and 'class="north"' in body
+    assert body.count('data-h95="') > 400
+    assert 'data-code="BASE-N"' in body
+    # The ranked table with budgets and reasons, the statement, the caution and the exports.
+    assert "Ranked candidates with their error budget" in body
+    assert "not_active" in body and "sky_obstructed" in body
+    assert "Local codes, agency specifications and licensed professional practice govern" in body
+    assert "/jobs/J-WEB/control.csv" in body and "/jobs/J-WEB/control.geojson" in body
+    assert "2025.500 (2025-07-02)" in body  # epoch as decimal year with the calendar date
+    assert "Edit job" not in body
+
+
+def test_missing_job_is_404(client, viewer, db):
+    client.force_login(viewer)
+    assert client.get("/jobs/NOPE/").status_code == 404
+
+
+def test_exports(client, viewer, scenario):
+    client.force_login(viewer)
+    r = client.get("/jobs/J-WEB/control.csv")
+    assert r.status_code == 200 and r["Content-Type"].startswith("text/csv")
+    rows = list(csv.DictReader(io.StringIO(r.content.decode())))
+    roles = [row["role"] for row in rows]
+    assert roles[0] == "base" and "check" in roles
+    assert all(row["frame_epsg"] == "6319" and row["epoch_yr"] == "2025.500" for row in rows)
+    assert all(len(row["lat_deg"].split(".")[1]) == 9 for row in rows)
+    r = client.get("/jobs/J-WEB/control.geojson")
+    data = json.loads(r.content)
+    assert data["type"] == "FeatureCollection" and "NAD83(2011)" in data["coordinates_note"]
+    assert [f["properties"]["code"] for f in data["features"]] == [row["code"] for row in rows]
+    assert len(data["features"][0]["geometry"]["coordinates"]) == 3
+
+
+def test_manager_creates_a_job_with_a_point(client, manager, db):
+    client.force_login(manager)
+    assert client.get("/jobs/new/").status_code == 200
+    form = {"code": "J-NEW", "name": "Invented pump station", "status": "planning", "site_geojson": "",
+            "site_lat_deg": str(SITE_LAT), "site_lon_deg": str(SITE_LON), "frame_epsg": "6319", "epoch_yr": "2025.5",
+            "tol_h_mm": "20", "tol_v_mm": "30", "rtk_h_fixed_mm": "8", "rtk_h_ppm": "1", "rtk_v_fixed_mm": "15",
+            "rtk_v_ppm": "1", "rtk_combination": "additive", "rtk_h_meaning": "per_axis", "setup_h_mm": "2",
+            "setup_v_mm": "3", "assumed_rate_mm_yr": "2", "max_baseline_m": "10000", "recovery_years": "10"}
+    r = client.post("/jobs/new/", form)
+    assert r.status_code == 302 and r["Location"] == "/jobs/J-NEW/"
+    job = Job.objects.get(code="J-NEW")
+    assert job.site_geojson == {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}
+    r = client.get("/jobs/J-NEW/")
+    assert r.status_code == 200 and "No marks in the registry" in r.content.decode()
+
+
+def test_create_errors_are_shown_and_nothing_saved(client, manager, db):
+    client.force_login(manager)
+    r = client.post("/jobs/new/", {"code": "J-BAD", "name": "x", "status": "planning", "site_geojson": '{"type": "Line"}',
+                                   "frame_epsg": "4326", "epoch_yr": "2025", "tol_h_mm": "-1", "tol_v_mm": "30",
+                                   "rtk_combination": "additive", "rtk_h_meaning": "per_axis"})
+    assert r.status_code == 400
+    body = r.content.decode()
+    assert "Not saved" in body and "Geographic 2D CRS" in body and "GeoJSON Point or Polygon" in body
+    assert not Job.objects.exists()
+
+
+def test_viewer_cannot_create_or_edit(client, viewer, scenario):
+    client.force_login(viewer)
+    assert client.get("/jobs/new/").status_code == 403
+    assert client.get("/jobs/J-WEB/edit/").status_code == 403
+
+
+def test_manager_edit_and_conflict(client, manager, make_user, scenario):
+    client.force_login(manager)
+    r = client.get("/jobs/J-WEB/edit/")
+    assert r.status_code == 200
+    form = r.context["form"]
+    data = {name: (form.initial.get(name) if form.initial.get(name) is not None else "") for name in form.fields}
+    data["tol_h_mm"] = "40"
+    r = client.post("/jobs/J-WEB/edit/", data)
+    assert r.status_code == 302
+    job = Job.objects.get(code="J-WEB")
+    assert job.tol_h_mm == 40.0 and job.version == 2
+    assert AuditEvent.objects.get(action="job_update").after == {"tol_h_mm": 40.0, "version": 2}
+    # Someone else saves version 2 → 3; a save from version 2 is refused with both values shown.
+    from registry.services.jobs import job_update
+
+    job_update(actor=make_user("omar", "manager"), code="J-WEB", expected_version=2, changes={"tol_v_mm": 45})
+    data["tol_h_mm"] = "41"
+    data["tol_v_mm"] = "55"
+    data["version"] = "2"
+    r = client.post("/jobs/J-WEB/edit/", data)
+    assert r.status_code == 409
+    body = r.content.decode()
+    assert "someone changed this job" in body and "45.0" in body
+    assert Job.objects.get(code="J-WEB").tol_h_mm == 40.0
