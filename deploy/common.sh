@@ -136,7 +136,7 @@ ensure_venv() {
     ok "created .venv ($("$VPY" --version 2>&1))"
   fi
   info "pip install -r $(basename "$req")"
-  "$VPY" -m pip install --quiet --no-input -r "$REPO_DIR/$req" ||
+  "$VPY" -m pip install -qq --no-input -r "$REPO_DIR/$req" ||
     die "pip could not install $req (see the messages above)."
   ok "Python packages installed from $(basename "$req")"
 }
