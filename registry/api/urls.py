@@ -3,6 +3,7 @@
 from django.urls import path, re_path
 from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
 
+from registry.api import accuracy as accuracy_api  # accuracy area
 from registry.api import exports as exports_api
 from registry.api import marks as marks_api
 from registry.api import nearby as nearby_api  # search area
@@ -13,6 +14,8 @@ app_name = "api"
 urlpatterns = [
     path("schema/", SpectacularAPIView.as_view(), name="schema"),
     path("docs/", SpectacularRedocView.as_view(url_name="api:schema"), name="docs"),
+    # accuracy statement (accuracy area)
+    path("accuracy/", accuracy_api.AccuracyView.as_view(), name="accuracy"),
     # exports (import-export area); before marks/<code>/ so that the names never read as a code
     path("marks/export.csv", exports_api.MarksExportView.as_view(fmt="csv"), name="marks-export-csv"),
     path("marks/export.geojson", exports_api.MarksExportView.as_view(fmt="geojson"), name="marks-export-geojson"),

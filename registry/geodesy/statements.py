@@ -86,6 +86,12 @@ RESIDUAL_COLUMNS = ("point_id", "de_m", "dn_m", "du_m", "sigma_e_m", "sigma_n_m"
 _NUMBER_COLUMNS = RESIDUAL_COLUMNS[1:]
 MAX_CHECKPOINTS = 100_000
 _AXIS_NAMES = {"x": "east (x)", "y": "north (y)", "z": "up (z)"}
+#: How the NSSDA horizontal figure was computed (``accuracy.nssda_horizontal_95_m`` method codes).
+NSSDA_FORMULAS = {
+    "equal": "1.7308 × RMSE_r (RMSE_x = RMSE_y)",
+    "approximate": "2.4477 × 0.5 × (RMSE_x + RMSE_y) (RMSE_min/RMSE_max between 0.6 and 1)",
+    "circular_error": "K × RMSE_max, circular-error method of FGDC-STD-007.2-1998 (RMSE_min/RMSE_max below 0.6)",
+}
 
 
 # --------------------------------------------------------------------------------------------------
@@ -360,6 +366,7 @@ def parse_residuals_csv(text: str) -> ResidualTable:
     """
     if not isinstance(text, str):
         raise _err("The residuals must be text.", "residuals_empty")
+    text = text.removeprefix("\ufeff")  # byte-order mark from spreadsheet exports
     lines = [
         (i, ln) for i, ln in enumerate(text.splitlines(), start=1) if ln.strip() and not ln.lstrip().startswith("#")
     ]
@@ -440,7 +447,7 @@ def accuracy_report(
         not define are ``None`` (ASPRS 2023 has no 95 % figures; NSSDA and ASPRS have no classes).
         Style-specific keys: fgdc ``sigma_max_m``, ``sigma_min_m``, ``c_ratio``, ``k_factor``,
         ``sigma_u_m``, ``vertical_kind``; nssda ``n_checkpoints``, ``rmse_x_m``, ``rmse_y_m``,
-        ``rmse_r_m``, ``rmse_z_m``, ``horizontal_method``, ``axes``; asprs2023 ``n_checkpoints``,
+        ``rmse_r_m``, ``rmse_z_m``, ``horizontal_method``, ``horizontal_formula``, ``axes``; asprs2023 ``n_checkpoints``,
         ``rmse_x_m``, ``rmse_y_m``, ``rmse_h1_m``, ``rmse_h2_m``, ``rmse_h_m``, ``rmse_v1_m``,
         ``rmse_v2_m``, ``rmse_v_m``, ``rmse_3d_m``, ``axes``, ``blunders``.
 
@@ -531,6 +538,7 @@ def accuracy_report(
             rmse_r_m=r.rmse_r_m,
             rmse_z_m=r.z.rmse_m if r.z else None,
             horizontal_method=r.horizontal_method,
+            horizontal_formula=NSSDA_FORMULAS.get(r.horizontal_method) if r.horizontal_method else None,
             axes=_axes(r),
         )
         findings.extend(r.findings)

@@ -1,0 +1,132 @@
+"""The accuracy statement page (``/tools/accuracy/``, every role from viewer up).
+
+A form takes either a point's east/north covariance (m², optional up variance) or a CSV of check-point
+residuals (upload or paste), and a style. The page shows exactly what
+:func:`registry.geodesy.statements.accuracy_report` returns: the same function serves
+``manage.py accuracy_statement`` and ``POST /api/accuracy/``. Nothing is stored.
+"""
+
+from __future__ import annotations
+
+from django import forms
+from django.core.exceptions import ValidationError
+from django.http import HttpRequest, HttpResponse
+from django.shortcuts import render
+
+from registry.geodesy.accuracy import ComputationInputError
+from registry.geodesy.statements import RESIDUAL_COLUMNS, STANDARD_NAMES, accuracy_report, parse_residuals_csv
+from registry.roles import Ability
+from registry.web.views import ability_required
+
+MAX_UPLOAD_BYTES = 5 * 1024 * 1024
+
+STYLE_CHOICES = [("", "default for the input (FGDC for a covariance, NSSDA for residuals)")] + [
+    (key, name) for key, name in STANDARD_NAMES.items()
+]
+
+
+class AccuracyForm(forms.Form):
+    source = forms.ChoiceField(
+        label="Input",
+        choices=[("covariance", "a point's covariance"), ("residuals", "check-point residuals")],
+        widget=forms.RadioSelect,
+        initial="covariance",
+    )
+    var_e_m2 = forms.FloatField(label="Variance east (m²)", required=False)
+    cov_en_m2 = forms.FloatField(label="Covariance east–north (m²)", required=False)
+    var_n_m2 = forms.FloatField(label="Variance north (m²)", required=False)
+    var_u_m2 = forms.FloatField(label="Variance up, ellipsoid height (m², optional)", required=False)
+    residuals_file = forms.FileField(label="Residual CSV file", required=False)
+    residuals_text = forms.CharField(
+        label="…or paste the CSV", required=False, widget=forms.Textarea(attrs={"rows": 8, "cols": 70, "class": "mono"})
+    )
+    style = forms.ChoiceField(label="Standard", choices=STYLE_CHOICES, required=False)
+
+    def clean(self):
+        data = super().clean()
+        if self.errors:
+            return data
+        if data.get("source") == "covariance":
+            missing = [f for f in ("var_e_m2", "cov_en_m2", "var_n_m2") if data.get(f) is None]
+            for name in missing:
+                self.add_error(name, ValidationError("Needed for a covariance.", code="required"))
+        else:
+            upload = data.get("residuals_file")
+            text = data.get("residuals_text") or ""
+            if upload is None and not text.strip():
+                raise ValidationError("Upload a residual CSV or paste it.", code="residuals_missing")
+            if upload is not None and text.strip():
+                raise ValidationError("Upload a file or paste text, not both.", code="residuals_twice")
+            if upload is not None:
+                if upload.size > MAX_UPLOAD_BYTES:
+                    raise ValidationError(
+                        "The file is larger than %(limit)d MB.",
+                        code="too_large",
+                        params={"limit": MAX_UPLOAD_BYTES // 2**20},
+                    )
+                try:
+                    text = upload.read().decode("utf-8-sig")
+                except UnicodeDecodeError:
+                    raise ValidationError("The file is not UTF-8 text.", code="not_utf8") from None
+            data["residuals_csv"] = text
+        return data
+
+    def report(self) -> dict:
+        """Run the shared report; its input errors become form errors (with their codes)."""
+        data = self.cleaned_data
+        try:
+            if data["source"] == "covariance":
+                return accuracy_report(
+                    style=data.get("style") or None,
+                    cov_en_m2=(data["var_e_m2"], data["cov_en_m2"], data["var_n_m2"]),
+                    var_u_m2=data.get("var_u_m2"),
+                )
+            return accuracy_report(
+                style=data.get("style") or None, residuals=parse_residuals_csv(data["residuals_csv"])
+            )
+        except ComputationInputError as exc:
+            self.add_error(None, ValidationError(exc.message, code=exc.code))
+            raise
+
+
+#: Rows of the numbers table: (report key, label). Shown when the report has a value for the key.
+NUMBER_ROWS = [
+    ("sigma_max_m", "σmax, semi-major axis of the 1σ error ellipse"),
+    ("sigma_min_m", "σmin, semi-minor axis"),
+    ("sigma_u_m", "σ up (ellipsoid height)"),
+    ("rmse_x_m", "RMSE x (east)"),
+    ("rmse_y_m", "RMSE y (north)"),
+    ("rmse_r_m", "RMSE r (radial)"),
+    ("rmse_z_m", "RMSE z (up)"),
+    ("rmse_h1_m", "RMSE_H1, product against check points"),
+    ("rmse_h2_m", "RMSE_H2, check points' own survey"),
+    ("rmse_h_m", "RMSE_H, horizontal"),
+    ("rmse_v1_m", "RMSE_V1, product against check points"),
+    ("rmse_v2_m", "RMSE_V2, check points' own survey"),
+    ("rmse_v_m", "RMSE_V, vertical"),
+    ("rmse_3d_m", "RMSE_3D"),
+    ("horizontal_95_m", "horizontal accuracy at 95 %"),
+    ("vertical_95_m", "vertical accuracy at 95 %"),
+]
+
+
+@ability_required(Ability.VIEW)
+def accuracy_page(request: HttpRequest) -> HttpResponse:
+    report = None
+    status = 200
+    if request.method == "POST":
+        form = AccuracyForm(request.POST, request.FILES)
+        if form.is_valid():
+            try:
+                report = form.report()
+            except ComputationInputError:
+                status = 400
+        else:
+            status = 400
+    else:
+        form = AccuracyForm()
+    rows = []
+    if report is not None:
+        rows = [(label, report[key]) for key, label in NUMBER_ROWS if report.get(key) is not None]
+    context = {"form": form, "report": report, "rows": rows, "columns": RESIDUAL_COLUMNS}
+    return render(request, "registry/accuracy.html", context, status=status)

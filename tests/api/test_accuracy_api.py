@@ -1,0 +1,91 @@
+"""POST /api/accuracy/: same report as the command; viewer allowed, anonymous refused; one error shape.
+
+Check values: references.md (/work/shared/brief) §4.2, §5.3 A and §6.2.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+
+import pytest
+from django.core.management import call_command
+from django.urls import reverse
+
+from tests.geodesy.test_statements import EX_A_CSV
+
+URL = "/api/accuracy/"
+
+
+def test_url_name():
+    assert reverse("api:accuracy") == URL
+
+
+@pytest.mark.django_db
+@pytest.mark.parametrize("role", ["viewer", "technician", "manager", "signatory", "admin_user_role"])
+def test_every_role_may_compute(request, api_client_for, role):
+    response = api_client_for(request.getfixturevalue(role)).post(URL, {"cov_en_m2": [1e-4, 0.0, 1e-4]}, format="json")
+    assert response.status_code == 200
+    assert response.json()["horizontal_95_m"] == pytest.approx(0.0245, abs=1e-4)  # 2.450762 × 10 mm (§4.2)
+
+
+@pytest.mark.django_db
+def test_anonymous_and_roleless_are_refused(api_client_for, make_user):
+    response = api_client_for(None).post(URL, {"cov_en_m2": [1e-4, 0.0, 1e-4]}, format="json")
+    assert response.status_code in (401, 403)
+    assert "error" in response.json()
+    response = api_client_for(make_user("noel")).post(URL, {"cov_en_m2": [1e-4, 0.0, 1e-4]}, format="json")
+    assert response.status_code == 403
+
+
+@pytest.mark.django_db
+def test_api_returns_what_the_command_prints(viewer, api_client_for, tmp_path):
+    path = tmp_path / "r.csv"
+    path.write_text(EX_A_CSV, encoding="utf-8")
+    out = io.StringIO()
+    call_command("accuracy_statement", "--residuals", str(path), "--style", "asprs2023", "--json", stdout=out)
+    response = api_client_for(viewer).post(URL, {"residuals_csv": EX_A_CSV, "style": "asprs2023"}, format="json")
+    assert response.status_code == 200
+    assert response.json() == json.loads(out.getvalue())
+    assert response.json()["horizontal_95_m"] is None and "95" not in response.json()["statement"]
+
+
+@pytest.mark.django_db
+def test_residual_rows_nssda(viewer, api_client_for):
+    rows = [
+        {"point_id": f"CP{i}", "de_m": e, "dn_m": n, "du_m": h}
+        for i, (e, n, h) in enumerate(
+            zip(
+                [-0.060, 0.100, -0.060, -0.112, -0.120, -0.100, -0.060],
+                [0.080, -0.045, 0.080, 0.007, 0.150, -0.045, 0.080],
+                [0.055, -0.006, -0.017, 0.042, -0.011, 0.013, 0.048],
+                strict=True,
+            )
+        )
+    ]
+    data = api_client_for(viewer).post(URL, {"residuals": rows}, format="json").json()
+    assert data["horizontal_95_m"] == pytest.approx(0.2101, abs=1e-4)  # references.md §5.3 A
+    assert data["vertical_95_m"] == pytest.approx(0.0650, abs=1e-4)
+    assert data["horizontal_method"] == "approximate"
+
+
+@pytest.mark.django_db
+@pytest.mark.parametrize(
+    "body,code",
+    [
+        ({}, None),
+        ({"cov_en_m2": [1e-4, 0.0, 1e-4], "residuals_csv": "x"}, None),
+        ({"cov_en_m2": [1e-4, 5e-4, 1e-4]}, "not_positive_semidefinite"),
+        ({"cov_en_m2": [1e-4, 0.0, 1e-4], "style": "nssda"}, "style_needs_residuals"),
+        ({"residuals_csv": "point_id,du_m\nA,x\n"}, "residuals_bad_number"),
+        ({"residuals": [{"point_id": "A", "du_m": 0.1}, {"point_id": "A", "du_m": 0.2}]}, "residuals_duplicate_point"),
+        ({"residuals_csv": EX_A_CSV, "var_u_m2": 1e-4}, "input_choice"),
+    ],
+)
+def test_bad_input_is_a_400_in_the_one_error_shape(viewer, api_client_for, body, code):
+    response = api_client_for(viewer).post(URL, body, format="json")
+    assert response.status_code == 400
+    error = response.json()["error"]
+    assert set(error) == {"code", "message", "details"}
+    if code is not None:
+        assert error["code"] == code
