@@ -5,6 +5,7 @@ from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
 
 from registry.api import accuracy as accuracy_api  # accuracy area
 from registry.api import exports as exports_api
+from registry.api import jobs as jobs_api  # screening area
 from registry.api import marks as marks_api
 from registry.api import nearby as nearby_api  # search area
 from registry.api import positions as positions_api
@@ -43,4 +44,9 @@ urlpatterns = [
         positions_api.PositionWithdrawView.as_view(),
         name="position-withdraw",
     ),
+    # jobs and base screening (screening area)
+    path("jobs/", jobs_api.JobListView.as_view(), name="job-list"),
+    path("jobs/<str:code>/", jobs_api.JobDetailView.as_view(), name="job-detail"),
+    path("jobs/<str:code>/screening/", jobs_api.JobScreeningView.as_view(), name="job-screening"),
+    path("screening/", jobs_api.SiteScreeningView.as_view(), name="screening"),
 ]

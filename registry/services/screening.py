@@ -468,12 +468,13 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     if pair is not None and pair[1].rank < pair[0].rank:
         pair = (pair[1], pair[0])
     usable_ranked = [c for c in ordered if not c.excluded]
+    # The chosen bases: the best single base when it covers the whole site; otherwise the best
+    # pair (better-ranked first); otherwise the best single. Check marks avoid them.
     chosen: list[Candidate] = []
-    if usable_ranked:
-        chosen.append(usable_ranked[0])
-    for c in pair or ():
-        if c not in chosen:
-            chosen.append(c)
+    if usable_ranked and (usable_ranked[0].covers_site or pair is None):
+        chosen = [usable_ranked[0]]
+    elif pair is not None:
+        chosen = list(pair)
     checks = _check_marks(s, ordered, chosen)
     for c in chosen:
         for w in c.warnings:

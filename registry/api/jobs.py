@@ -1,0 +1,213 @@
+"""API for jobs and their base screening.
+
+- ``GET /api/jobs/`` list; ``POST /api/jobs/`` create (manager).
+- ``GET /api/jobs/<code>/`` read; ``PATCH /api/jobs/<code>/`` edit with ``version`` (manager;
+  409 ``stale_version`` with ``{field: {"yours", "theirs"}}`` when someone saved first).
+- ``GET /api/jobs/<code>/screening/`` the screening of a stored job (``?as_of=YYYY-MM-DD``).
+- ``POST /api/screening/`` screening of an ad-hoc site (nothing stored).
+
+Thin views: they parse, call :mod:`registry.services.jobs` / :mod:`registry.services.screening`
+(which check roles and validate with coded errors) and serialize. Rounding: mm to 1 decimal,
+m to 3, degrees to 9 places, fractions to 4.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from django.core.exceptions import ValidationError
+from drf_spectacular.types import OpenApiTypes
+from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
+from rest_framework import serializers
+from rest_framework import status as http_status
+from rest_framework.response import Response
+from rest_framework.views import APIView
+
+from registry.api.permissions import IsViewer, ReadViewerWriteManager
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.services.access import access_job_by_code
+from registry.services.jobs import job_create, job_update
+from registry.services.screening import job_screen, site_screen
+
+ERRORS = {
+    400: OpenApiResponse(description="Invalid input: {error: {code, message, details: {field: [{code, message}]}}}."),
+    403: OpenApiResponse(description="Your role does not allow this."),
+    404: OpenApiResponse(description="No such job (or not visible to you)."),
+}
+
+
+class JobSerializer(serializers.ModelSerializer):
+    class Meta:
+        model = Job
+        fields = [
+            "code", "name", "client", "status", "site_geojson", "frame_epsg", "epoch_yr", "grid_epsg", "tol_h_mm",
+            "tol_v_mm", "rtk_h_fixed_mm", "rtk_h_ppm", "rtk_v_fixed_mm", "rtk_v_ppm", "rtk_combination",
+            "rtk_h_meaning", "setup_h_mm", "setup_v_mm", "assumed_rate_mm_yr", "max_baseline_m", "recovery_years",
+            "grid_spacing_m", "notes", "version", "created_at", "updated_at",
+        ]
+        read_only_fields = fields
+
+
+class ScreeningSettingsInput(serializers.Serializer):
+    """Ad-hoc screening: the site and the job settings that matter (defaults as for a new job)."""
+
+    site_geojson = serializers.JSONField(help_text="GeoJSON Point or Polygon (longitude, latitude in degrees).")
+    frame_epsg = serializers.IntegerField(help_text="Deliverable frame: EPSG code of a geographic 3D CRS.")
+    epoch_yr = serializers.FloatField(help_text="Deliverable coordinate epoch, decimal year.")
+    tol_h_mm = serializers.FloatField(help_text="Horizontal tolerance, 95 % circle, mm.")
+    tol_v_mm = serializers.FloatField(help_text="Vertical tolerance, 95 %, mm.")
+    rtk_h_fixed_mm = serializers.FloatField(required=False)
+    rtk_h_ppm = serializers.FloatField(required=False)
+    rtk_v_fixed_mm = serializers.FloatField(required=False)
+    rtk_v_ppm = serializers.FloatField(required=False)
+    rtk_combination = serializers.ChoiceField(choices=RtkCombination.values, required=False)
+    rtk_h_meaning = serializers.ChoiceField(choices=RtkHorizontalMeaning.values, required=False)
+    setup_h_mm = serializers.FloatField(required=False)
+    setup_v_mm = serializers.FloatField(required=False)
+    assumed_rate_mm_yr = serializers.FloatField(required=False)
+    max_baseline_m = serializers.FloatField(required=False)
+    recovery_years = serializers.FloatField(required=False)
+    grid_spacing_m = serializers.FloatField(required=False, allow_null=True)
+    as_of = serializers.DateField(required=False, help_text="Screen as of this date (visits after it are ignored).")
+
+
+class JobCreateInput(ScreeningSettingsInput):
+    code = serializers.CharField()
+    name = serializers.CharField()
+    client = serializers.CharField(required=False, allow_blank=True)
+    status = serializers.ChoiceField(choices=JobStatus.values, required=False)
+    grid_epsg = serializers.IntegerField(required=False, allow_null=True)
+    notes = serializers.CharField(required=False, allow_blank=True)
+    as_of = None
+
+
+class BudgetTermSerializer(serializers.Serializer):
+    term = serializers.ChoiceField(choices=["rtk", "base", "drift", "setup"])
+    h_mm = serializers.FloatField(help_text="1σ per horizontal axis, mm.")
+    v_mm = serializers.FloatField(help_text="1σ vertical, mm.")
+
+
+class ReasonSerializer(serializers.Serializer):
+    code = serializers.CharField()
+    words = serializers.CharField()
+
+
+class CandidateSerializer(serializers.Serializer):
+    rank = serializers.IntegerField()
+    code = serializers.CharField()
+    name = serializers.CharField()
+    distance_m = serializers.FloatField(help_text="To the nearest site point (0 inside a polygon).")
+    max_distance_m = serializers.FloatField(help_text="To the farthest site point.")
+    azimuth_deg = serializers.FloatField(allow_null=True)
+    lat_deg = serializers.FloatField(allow_null=True, help_text="In the job's frame at the job's epoch.")
+    lon_deg = serializers.FloatField(allow_null=True)
+    h_m = serializers.FloatField(allow_null=True, help_text="Ellipsoidal height.")
+    position = serializers.JSONField(allow_null=True)
+    horizontal_95_mm = serializers.FloatField(allow_null=True, help_text="Worst over the site.")
+    vertical_95_mm = serializers.FloatField(allow_null=True)
+    margin_mm = serializers.FloatField(allow_null=True)
+    coverage = serializers.FloatField(help_text="Fraction of the site inside both tolerances.")
+    covers_site = serializers.BooleanField()
+    excluded = serializers.BooleanField()
+    reasons = ReasonSerializer(many=True)
+    budget = BudgetTermSerializer(many=True, allow_null=True)
+    sigma_h_mm = serializers.FloatField(allow_null=True)
+    sigma_v_mm = serializers.FloatField(allow_null=True)
+    steps = serializers.JSONField()
+    warnings = serializers.ListField(child=serializers.CharField())
+
+
+class ScreeningOutput(serializers.Serializer):
+    job = serializers.CharField(allow_null=True)
+    as_of = serializers.DateField()
+    site = serializers.JSONField()
+    frame = serializers.JSONField()
+    epoch_yr = serializers.FloatField()
+    tolerances = serializers.JSONField()
+    settings = serializers.JSONField()
+    candidates = CandidateSerializer(many=True)
+    best_pair = serializers.JSONField(allow_null=True)
+    chosen_bases = serializers.ListField(child=serializers.CharField())
+    check_marks = serializers.JSONField()
+    achievable = serializers.JSONField(allow_null=True)
+    statement = serializers.CharField()
+    warnings = serializers.ListField(child=serializers.CharField())
+    cautions = serializers.ListField(child=serializers.CharField())
+
+
+def _as_of(value) -> dt.date | None:
+    if value in (None, ""):
+        return None
+    try:
+        return dt.date.fromisoformat(str(value))
+    except ValueError:
+        raise ValidationError({"as_of": ValidationError("Expected a date as YYYY-MM-DD.", code="invalid_date")}) from None
+
+
+def _body(request) -> dict:
+    data = request.data
+    if hasattr(data, "dict"):
+        return data.dict()
+    if not isinstance(data, dict):
+        raise ValidationError("Send a JSON object.", code="invalid_payload")
+    return dict(data)
+
+
+class JobListView(APIView):
+    permission_classes = [ReadViewerWriteManager]
+
+    @extend_schema(operation_id="jobs_list", responses={200: JobSerializer(many=True)})
+    def get(self, request):
+        return Response(JobSerializer(Job.objects.order_by("code"), many=True).data)
+
+    @extend_schema(operation_id="jobs_create", request=JobCreateInput, responses={201: JobSerializer, **ERRORS})
+    def post(self, request):
+        job = job_create(actor=request.user, data=_body(request))
+        return Response(JobSerializer(job).data, status=http_status.HTTP_201_CREATED)
+
+
+class JobDetailView(APIView):
+    permission_classes = [ReadViewerWriteManager]
+
+    @extend_schema(operation_id="jobs_read", responses={200: JobSerializer, 404: ERRORS[404]})
+    def get(self, request, code: str):
+        return Response(JobSerializer(access_job_by_code(request.user, code)).data)
+
+    @extend_schema(
+        operation_id="jobs_update",
+        request=JobCreateInput(partial=True),
+        description="Send the fields to change and `version` (the version you started from).",
+        responses={200: JobSerializer, 409: OpenApiResponse(description="stale_version: details {field: {yours, theirs}}."), **ERRORS},
+    )
+    def patch(self, request, code: str):
+        body = _body(request)
+        version = body.pop("version", None)
+        job = job_update(actor=request.user, code=code, expected_version=version, changes=body)
+        return Response(JobSerializer(job).data)
+
+
+class JobScreeningView(APIView):
+    permission_classes = [IsViewer]
+
+    @extend_schema(
+        operation_id="jobs_screening",
+        parameters=[OpenApiParameter("as_of", OpenApiTypes.DATE, description="Screen as of this date (default today, UTC).")],
+        responses={200: ScreeningOutput, 404: ERRORS[404]},
+    )
+    def get(self, request, code: str):
+        result = job_screen(actor=request.user, code=code, as_of=_as_of(request.query_params.get("as_of")))
+        return Response(result.as_dict())
+
+
+class SiteScreeningView(APIView):
+    permission_classes = [IsViewer]
+
+    @extend_schema(operation_id="screening_ad_hoc", request=ScreeningSettingsInput,
+                   responses={200: ScreeningOutput, **ERRORS})
+    def post(self, request):
+        ser = ScreeningSettingsInput(data=request.data)
+        ser.is_valid(raise_exception=True)
+        body = _body(request)
+        as_of = _as_of(body.pop("as_of", None))
+        result = site_screen(actor=request.user, data=body, as_of=as_of)
+        return Response(result.as_dict())
