@@ -235,3 +235,32 @@ def test_export_values_matches_the_models(manager):
     values = export_values(mark, mark.positions.get())
     assert values["vel_u_m_yr"] == 0.0008 and values["sigma_e_mm"] == 3.48  # √1.21e-05 m² = 3.4785 mm
     assert json.loads(write_marks_geojson([values]))["features"][0]["properties"]["code"] == "RT-001"
+
+
+@pytest.mark.slow
+def test_demo_district_round_trip(manager, settings):
+    """The whole demo district: export, import into an empty registry, export again (CSV; GeoJSON above)."""
+    fmt = "csv"
+    from django.core.management import call_command
+
+    from registry.io.common import marks_for_export
+
+    settings.PASSWORD_HASHERS = ["django.contrib.auth.hashers.MD5PasswordHasher"]
+    empty = transaction.savepoint()
+    call_command("load_demo", stdout=io.StringIO())
+    first = export_marks_text(fmt=fmt)
+    chosen = [
+        (m.code, {f: getattr(m, f) for f in MARK_FIELDS}, p and {f: getattr(p, f) for f in POSITION_MODEL_FIELDS})
+        for m, p in marks_for_export()
+    ]
+    assert sum(p is not None for _, _, p in chosen) >= 150
+    transaction.savepoint_rollback(empty)
+    assert Mark.objects.count() == 0
+
+    mark_import(actor=manager, content=first, filename=f"demo.{fmt}")
+    assert export_marks_text(fmt=fmt) == first
+    again = [
+        (m.code, {f: getattr(m, f) for f in MARK_FIELDS}, p and {f: getattr(p, f) for f in POSITION_MODEL_FIELDS})
+        for m, p in marks_for_export()
+    ]
+    assert again == chosen
