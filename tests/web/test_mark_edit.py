@@ -199,9 +199,9 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
             flags=re.S,
         )
     }
-    assert rows["custodian"][:2] == ("Alder County Roads", "Alder County Bridges Unit")
-    assert "marta" in rows["custodian"][2] and "UTC" in rows["custodian"][2]
-    assert rows["name"][:2] == ("Mill Creek Bridge (north rail)", "Mill Creek Bridge")
+    assert rows["Custodian"][:2] == ("Alder County Roads", "Alder County Bridges Unit")
+    assert "marta" in rows["Custodian"][2] and "UTC" in rows["Custodian"][2]
+    assert rows["Name"][:2] == ("Mill Creek Bridge (north rail)", "Mill Creek Bridge")
     # the form keeps what I entered and now carries the stored version
     again = form_values(response)
     assert again["name"] == "Mill Creek Bridge (north rail)"

@@ -63,7 +63,7 @@ def test_list_shows_search_location_with_its_frame_and_epoch(kestrel, signed_in,
     text = text_of(response)
     # The 2020.5 position superseded the 2010 one: the search location is the newer one.
     assert "45.200000123" in text and "-110.600000456" in text
-    assert "ITRF2014 (EPSG:7912), epoch 2020.500 (2020-07-02)" in text
+    assert "ITRF2014 (EPSG:7912) epoch 2020.500 (2020-07-02)" in text
     html = response.content.decode()
     assert '<td class="num">45.200000123</td>' in html  # right-aligned, tabular digits
     assert '<span class="state state-active">active</span>' in html  # word first, colour class second
@@ -156,7 +156,7 @@ def test_mark_page_description_and_caution(kestrel, signed_in, viewer):
 def test_mark_page_positions_in_state_order_with_full_display(kestrel, signed_in, viewer):
     response = signed_in(viewer).get(reverse("web:mark-detail", kwargs={"code": "KV-001"}))
     html = response.content.decode()
-    states = re.findall(r'<tr id="position-\d+" class="row-(\w+)">', html)
+    states = re.findall(r'<tr id="position-\d+" class="row-(\w+) main">', html)
     assert states == ["published", "proposed", "superseded", "rejected"]
     text = text_of(response)
     # current published position (values invented; formatting checked in test_format.py)
@@ -170,7 +170,7 @@ def test_mark_page_positions_in_state_order_with_full_display(kestrel, signed_in
     assert "ITRF2020 (EPSG:9989) epoch 2024.250 (2024-04-01)" in text  # 0.25 × 366 d = 91.5 d → 1 April
     assert "ITRF2014 (EPSG:7912) epoch 2010.000 (2010-01-01)" in text
     assert "2020 re-observation, 3 × 6 h static" in text
-    assert "proposed by theo" in text and "published by mona" in text and "rejected by mona" in text
+    assert "Proposed by theo" in text and "published by mona" in text and "rejected by mona" in text
     assert f'by <a href="#position-{kestrel["second"].pk}">position {kestrel["second"].pk}</a>' in html
 
 
