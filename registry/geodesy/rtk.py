@@ -51,9 +51,9 @@ DRMS = "drms"
 #: Default assumed unmodelled motion for marks without a velocity (mm/yr per axis, common practice).
 DEFAULT_ASSUMED_RATE_MM_YR = 2.0
 #: Candidates kept for the best-pair search (best-ranked first).
-PAIR_POOL_SIZE = 256
+PAIR_POOL_SIZE = 128
 #: Pairs whose worst-case margin is evaluated exactly, after ranking all pairs by coverage.
-PAIR_EXACT_EVALUATIONS = 512
+PAIR_EXACT_EVALUATIONS = 256
 
 # ----------------------------------------------------------------------------- exclusion reasons
 # Our own reason codes; the words are shown to the user beside the code.
@@ -332,6 +332,18 @@ class ScreeningCore:
     info: dict = field(default_factory=dict)
 
 
+def _rtk_sq_mm2(d_m: np.ndarray, fixed_mm: float, ppm: float, combination: str, scale: float, out: np.ndarray):
+    """(scale·σ_rtk(d))² in mm², written into ``out`` (same as ``rtk_sigma_mm`` squared, without temporaries)."""
+    np.multiply(d_m, ppm * 1e-3 * scale, out=out)
+    if combination == ADDITIVE:
+        out += fixed_mm * scale
+        np.multiply(out, out, out=out)
+    else:
+        np.multiply(out, out, out=out)
+        out += (fixed_mm * scale) ** 2
+    return out
+
+
 def _sigma2_const(base_mm, drift_mm, setup_mm) -> np.ndarray:
     return np.asarray(base_mm, float) ** 2 + np.asarray(drift_mm, float) ** 2 + float(setup_mm) ** 2
 
@@ -397,21 +409,34 @@ def screen_candidates(
     best_v2 = np.full(p, np.inf)
     any_cov = np.zeros(p, dtype=bool)
     rows = max(1, block_elements // max(p, 1))
+    buf_d = np.empty((rows, p))
+    buf_t = np.empty((rows, p))
+    buf_h = np.empty((rows, p))
+    buf_v = np.empty((rows, p))
+    scale_h = 1.0 / math.sqrt(2.0) if model.h_meaning == DRMS else 1.0
     for start in range(0, k, rows):
-        sl = slice(start, min(k, start + rows))
-        de = ce[sl, None] - pe[None, :]
-        dn = cn[sl, None] - pn[None, :]
-        d = np.sqrt(de * de + dn * dn)
+        stop = min(k, start + rows)
+        sl = slice(start, stop)
+        n = stop - start
+        d, t, h2, v2 = buf_d[:n], buf_t[:n], buf_h[:n], buf_v[:n]
+        np.subtract(ce[sl, None], pe[None, :], out=d)
+        np.multiply(d, d, out=d)
+        np.subtract(cn[sl, None], pn[None, :], out=t)
+        np.multiply(t, t, out=t)
+        np.add(d, t, out=d)
+        np.sqrt(d, out=d)  # distances, m
         min_d[sl] = d.min(axis=1) if p else np.inf
         max_d[sl] = d.max(axis=1) if p else 0.0
-        h2 = model.rtk_h_axis_mm(d) ** 2 + const_h2[sl, None]
-        v2 = model.rtk_v_mm(d) ** 2 + const_v2[sl, None]
+        _rtk_sq_mm2(d, model.h_fixed_mm, model.h_ppm, model.combination, scale_h, out=h2)
+        h2 += const_h2[sl, None]
+        _rtk_sq_mm2(d, model.v_fixed_mm, model.v_ppm, model.combination, 1.0, out=v2)
+        v2 += const_v2[sl, None]
         ok = (h2 <= lim_h2) & (v2 <= lim_v2)
-        covered[sl] = (ok & cells[None, :]).sum(axis=1)
+        covered[sl] = np.count_nonzero(ok & cells[None, :], axis=1)
         elig = usable[sl] & (max_d[sl] <= max_baseline_m)
         if elig.any():
-            best_h2 = np.minimum(best_h2, h2[elig].min(axis=0))
-            best_v2 = np.minimum(best_v2, v2[elig].min(axis=0))
+            np.minimum(best_h2, h2[elig].min(axis=0), out=best_h2)
+            np.minimum(best_v2, v2[elig].min(axis=0), out=best_v2)
             any_cov |= ok[elig].any(axis=0)
 
     beyond = max_d > max_baseline_m
@@ -460,23 +485,24 @@ def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm,
     """Best pair of bases: per site point the better of the two; maximise coverage, then worst margin.
 
     Method: the ``PAIR_POOL_SIZE`` best-ranked eligible candidates form the pool. Pair
-    coverage for *all* pool pairs comes from one matrix product of the cell-coverage
-    indicators (|A ∪ B| = |A| + |B| − |A ∩ B|). The ``PAIR_EXACT_EVALUATIONS`` pairs with
-    the most coverage (ties: larger sum of the two single worst margins) then get their
-    exact worst-case margin: min over points of max(margin_i, margin_j).
+    coverage for *all* pool pairs is counted exactly from bit-packed cell-coverage rows
+    (popcount of A | B). The ``PAIR_EXACT_EVALUATIONS`` pairs with the most coverage (ties:
+    larger sum of the two single worst margins) then get their exact worst-case margin:
+    min over points of max(margin_i, margin_j).
     """
     pool = core.order[core.eligible[core.order]][:PAIR_POOL_SIZE]
     core.info["pair_pool"] = int(pool.size)
     if pool.size < 2:
         return
     m = _margins(pool, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm)
-    ok = (m >= 0) & cells[None, :]
-    okf = ok.astype(np.float32)
-    n_each = okf.sum(axis=1)
-    inter = okf @ okf.T
-    union = n_each[:, None] + n_each[None, :] - inter
+    bits = np.packbits((m >= 0) & cells[None, :], axis=1)
     iu, ju = np.triu_indices(pool.size, k=1)
-    pair_cov = union[iu, ju]
+    pair_cov = np.empty(iu.size, dtype=np.int64)
+    pos = 0
+    for i in range(pool.size - 1):
+        cnt = np.bitwise_count(bits[i] | bits[i + 1 :]).sum(axis=1, dtype=np.int64)
+        pair_cov[pos : pos + cnt.size] = cnt
+        pos += cnt.size
     single_worst = m.min(axis=1)
     proxy = single_worst[iu] + single_worst[ju]
     pick = np.lexsort((-proxy, -pair_cov))[:PAIR_EXACT_EVALUATIONS]

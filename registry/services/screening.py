@@ -444,11 +444,14 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     )
     from pyproj import Geod
 
-    _, az, _ = Geod(ellps="GRS80").inv(np.full(k, s.site.ref_lon_deg), np.full(k, s.site.ref_lat_deg), lon, lat)
+    az, _, geodesic_m = Geod(ellps="GRS80").inv(np.full(k, s.site.ref_lon_deg), np.full(k, s.site.ref_lat_deg), lon, lat)
     for i, c in enumerate(cands):
         c.e_m, c.n_m = float(ce[i]), float(cn[i])
-        c.distance_m = float(core.min_distance_m[i])
-        c.max_distance_m = float(core.max_distance_m[i])
+        if s.site.is_point:  # the exact geodesic distance (the core's planar one agrees to < 1e-5)
+            c.distance_m = c.max_distance_m = float(geodesic_m[i])
+        else:  # nearest and farthest evaluation point of the polygon, on the local plane
+            c.distance_m = float(core.min_distance_m[i])
+            c.max_distance_m = float(core.max_distance_m[i])
         c.azimuth_deg = None if c.distance_m < 0.001 else float(az[i]) % 360.0
         if core.beyond_baseline[i]:
             c.reasons.append(rtk.REASON_BEYOND_MAX_BASELINE)

@@ -79,6 +79,9 @@ def test_budget_of_a_near_base_by_hand(viewer):
     assert c.v95_mm == pytest.approx(33.3770, abs=2e-3)
     assert c.covers_site and c.coverage == 1.0
     assert r.chosen == [c]
+    # Distance and azimuth from the site (geodesic, pyproj Geod): the mark was placed 1000 m at azimuth 0°.
+    assert c.distance_m == pytest.approx(1000.0, abs=1e-6)
+    assert min(c.azimuth_deg, 360 - c.azimuth_deg) < 1e-7
     assert "covers the whole site" in r.statement
     d = r.as_dict()
     row = d["candidates"][0]
@@ -90,6 +93,7 @@ def test_budget_of_a_near_base_by_hand(viewer):
 @pytest.mark.django_db
 def test_every_exclusion_is_listed_with_its_reason(viewer):
     make_mark("OK-1", 800.0, 10.0)
+    make_mark("OK-2", 1500.0, 120.0)
     make_mark("RT-1", 900.0, 20.0, status=MarkStatus.RETIRED)
     make_mark("DS-1", 900.0, 30.0, visits=(("2020-01-01", "good"), ("2024-05-01", Condition.DISTURBED)))
     make_mark("DT-1", 900.0, 40.0, visits=(("2020-01-01", "good"), ("2024-05-01", Condition.DESTROYED)))
@@ -105,6 +109,7 @@ def test_every_exclusion_is_listed_with_its_reason(viewer):
     got = {c.mark.code: c.reasons for c in r.candidates}
     assert got == {
         "OK-1": [],
+        "OK-2": [],
         "RT-1": ["not_active"],
         "DS-1": ["last_visit_disturbed"],
         "DT-1": ["last_visit_destroyed"],
@@ -115,8 +120,9 @@ def test_every_exclusion_is_listed_with_its_reason(viewer):
         "SK-1": ["sky_obstructed"],
         "FA-1": ["beyond_max_baseline"],
     }
-    assert r.candidates[0].mark.code == "OK-1"
-    assert all(c.excluded for c in r.candidates[1:])
+    assert [c.mark.code for c in r.candidates[:2]] == ["OK-1", "OK-2"]
+    assert all(c.excluded for c in r.candidates[2:])
+    assert by_code(r)["OK-2"].azimuth_deg == pytest.approx(120.0, abs=1e-7)  # placed at azimuth 120°
     rows = {row["code"]: row for row in r.as_dict()["candidates"]}
     assert rows["FR-1"]["reasons"][0]["words"].startswith("its published frame cannot")
     assert rows["NP-1"]["horizontal_95_mm"] is None
