@@ -158,11 +158,24 @@ def test_kruger_series_agrees_with_proj_get_factors():
     rng = np.random.default_rng(2011)
     lat = rng.uniform(-80, 84, 20000)
     lon = -111.0 + rng.uniform(-4.0, 4.0, 20000)
-    grid = utm_grid(12, True, frame_epsg=6319)
-    k, gamma = point_factors(lat, lon, grid=grid)
+    f = pyproj.Proj("EPSG:6341").get_factors(lon, lat)  # PROJ, numerical factors of its own TM
     k2, gamma2 = tm_factors_kruger(lat, lon, lon0_deg=-111.0, k0=0.9996, ellipsoid=GRS80)
-    assert np.max(np.abs(k - k2)) < 1e-9
-    assert np.max(np.abs(gamma - gamma2)) * 3600 < 1e-4
+    assert np.max(np.abs(np.asarray(f.meridional_scale) - k2)) < 1e-9
+    assert np.max(np.abs(np.asarray(f.meridian_convergence) - gamma2)) * 3600 < 1e-4
+    # point_factors takes the analytic path for transverse Mercator grids: same numbers.
+    k, gamma = point_factors(lat, lon, grid=utm_grid(12, True, frame_epsg=6319))
+    assert np.array_equal(k, k2) and np.array_equal(gamma, gamma2)
+
+
+def test_other_conformal_grids_use_proj_factors():
+    # NAD83(2011) / Montana (EPSG:6514) is Lambert conformal conic: factors come from PROJ's get_factors.
+    lat, lon = np.array([45.2, 47.0]), np.array([-110.6, -105.0])
+    grid = to_grid(lat, lon, frame_epsg=6319, grid=6514)
+    f = pyproj.Proj("EPSG:6514").get_factors(lon, lat)
+    assert np.allclose(grid.scale_factor, f.meridional_scale, rtol=0, atol=1e-15)
+    assert np.allclose(grid.convergence_deg, f.meridian_convergence, rtol=0, atol=1e-15)
+    # LCC convergence is (λ − λ0)·sin φ0 with sin φ0 = n (constant of the cone), positive east of λ0 = 109.5°W.
+    assert grid.convergence_deg[0] < 0 < grid.convergence_deg[1]
 
 
 def test_scale_factor_on_the_central_meridian_is_k0():
