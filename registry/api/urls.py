@@ -4,6 +4,7 @@ from django.urls import path, re_path
 from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
 
 from registry.api import accuracy as accuracy_api  # accuracy area
+from registry.api import convert as convert_api  # geodesy area
 from registry.api import exports as exports_api
 from registry.api import jobs as jobs_api  # screening area
 from registry.api import marks as marks_api
@@ -49,4 +50,6 @@ urlpatterns = [
     path("jobs/<str:code>/", jobs_api.JobDetailView.as_view(), name="job-detail"),
     path("jobs/<str:code>/screening/", jobs_api.JobScreeningView.as_view(), name="job-screening"),
     path("screening/", jobs_api.SiteScreeningView.as_view(), name="screening"),
+    # point conversion (geodesy area)
+    path("convert/", convert_api.ConvertView.as_view(), name="convert"),
 ]

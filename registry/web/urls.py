@@ -3,7 +3,7 @@
 from django.conf import settings
 from django.urls import path
 
-from registry.web import auth_views, import_views, job_views, mark_views, views
+from registry.web import auth_views, convert_views, import_views, job_views, mark_views, views
 from registry.web.accuracy_views import accuracy_page  # accuracy area
 
 app_name = "web"
@@ -21,6 +21,8 @@ urlpatterns: list = [
     path("marks/<str:code>/edit/", mark_views.mark_edit, name="mark-edit"),
     # tools (accuracy area)
     path("tools/accuracy/", accuracy_page, name="accuracy"),
+    # tools (geodesy area)
+    path("tools/convert/", convert_views.convert_page, name="convert"),
     # jobs and base screening (screening area)
     path("jobs/", job_views.job_list, name="job-list"),
     path("jobs/new/", job_views.job_new, name="job-create"),
