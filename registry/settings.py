@@ -149,6 +149,12 @@ SPECTACULAR_SETTINGS = {
     ),
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    # Several enumerations share field names (a mark's and a job's "status"...): name them once.
+    "ENUM_NAME_OVERRIDES": {
+        "MarkStatusEnum": "registry.models.MarkStatus",
+        "JobStatusEnum": "registry.models.JobStatus",
+        "PositionStateEnum": "registry.models.PositionState",
+    },
 }
 
 # Domain settings. Defaults documented in README.md (common practice where so marked).

@@ -33,6 +33,8 @@ OUR_VIEWS = (
     "registry/api/serializers.py",
 )
 METHODS = {"get", "post", "put", "patch", "delete"}
+# Enumerations our serializers expose; a naming collision on them gives clients odd type names.
+OUR_ENUM_FIELDS = ("status", "state", "monument_type", "stability", "sky_view")
 
 
 def test_schema_endpoint_serves_our_paths(viewer, api_client_for):
