@@ -203,20 +203,38 @@ def enu_rotation_matrix(lat_deg, lon_deg):
 ecef_to_enu_matrix = enu_rotation_matrix
 
 
+def _trig(lat_deg, lon_deg):
+    phi = np.radians(np.asarray(lat_deg, dtype=float))
+    lam = np.radians(np.asarray(lon_deg, dtype=float))
+    return np.sin(phi), np.cos(phi), np.sin(lam), np.cos(lam)
+
+
 def ecef_delta_to_enu(dx_m, dy_m, dz_m, lat_deg, lon_deg):
-    """Rotate ECEF differences (m) into local east, north, up (m) at (lat_deg, lon_deg)."""
-    rot = enu_rotation_matrix(lat_deg, lon_deg)
-    d = np.stack(np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (dx_m, dy_m, dz_m))), axis=-1)
-    out = np.einsum("...ij,...j->...i", rot, d)
-    return out[..., 0], out[..., 1], out[..., 2]
+    """Rotate ECEF differences (m) into local east, north, up (m) at (lat_deg, lon_deg).
+
+    The rows of :func:`enu_rotation_matrix` written out (no 3×3 arrays: faster on many points).
+    """
+    sp, cp, sl, cl = _trig(lat_deg, lon_deg)
+    dx, dy, dz = (np.asarray(v, dtype=float) for v in (dx_m, dy_m, dz_m))
+    t = cl * dx + sl * dy
+    e = -sl * dx + cl * dy
+    n = -sp * t + cp * dz
+    u = cp * t + sp * dz
+    return e, n, u
 
 
 def enu_delta_to_ecef(de_m, dn_m, du_m, lat_deg, lon_deg):
-    """Rotate local east, north, up differences (m) at (lat_deg, lon_deg) into ECEF differences (m)."""
-    rot = enu_rotation_matrix(lat_deg, lon_deg)
-    d = np.stack(np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (de_m, dn_m, du_m))), axis=-1)
-    out = np.einsum("...ji,...j->...i", rot, d)
-    return out[..., 0], out[..., 1], out[..., 2]
+    """Rotate local east, north, up differences (m) at (lat_deg, lon_deg) into ECEF differences (m).
+
+    The transpose of :func:`ecef_delta_to_enu`.
+    """
+    sp, cp, sl, cl = _trig(lat_deg, lon_deg)
+    de, dn, du = (np.asarray(v, dtype=float) for v in (de_m, dn_m, du_m))
+    t = -sp * dn + cp * du
+    dx = -sl * de + cl * t
+    dy = cl * de + sl * t
+    dz = cp * dn + sp * du
+    return dx, dy, dz
 
 
 def geodetic_to_enu(lat_deg, lon_deg, h_m, *, lat0_deg, lon0_deg, h0_m, ellipsoid: Ellipsoid = GRS80):

@@ -172,3 +172,14 @@ def test_vertical_variance_at_origin_becomes_x_variance():
     cov_enu = np.diag([0.0, 0.0, 1e-4])
     cov_xyz = cov_enu_to_ecef(cov_enu, 0.0, 0.0)
     assert np.allclose(cov_xyz, np.diag([1e-4, 0.0, 0.0]), atol=1e-20)
+
+
+def test_written_out_rotations_equal_the_matrix():
+    rng = np.random.default_rng(17)
+    lat, lon = rng.uniform(-90, 90, 100), rng.uniform(-180, 180, 100)
+    d = rng.normal(size=(100, 3))
+    rot = enu_rotation_matrix(lat, lon)
+    enu = np.stack(ecef_delta_to_enu(d[:, 0], d[:, 1], d[:, 2], lat, lon), axis=-1)
+    assert np.allclose(enu, np.einsum("nij,nj->ni", rot, d), atol=1e-14)
+    xyz = np.stack(enu_delta_to_ecef(enu[:, 0], enu[:, 1], enu[:, 2], lat, lon), axis=-1)
+    assert np.allclose(xyz, d, atol=1e-14)
