@@ -125,6 +125,7 @@ def write_marks_geojson(rows: list[dict]) -> str:
 
     Numbers are JSON numbers written with Python's shortest exact representation, so they read back
     to the same floats. Mark fields always appear; position properties are null without a position.
+    One feature per line.
     """
     features = []
     for values in rows:
@@ -136,5 +137,7 @@ def write_marks_geojson(rows: list[dict]) -> str:
         )
         properties = {name: values.get(name) for name in PROPERTY_NAMES}
         features.append({"type": "Feature", "geometry": geometry, "properties": properties})
-    doc = {"type": "FeatureCollection", "features": features}
-    return json.dumps(doc, indent=1, ensure_ascii=False, allow_nan=False) + "\n"
+    # One feature per line: readable, and a change to one mark is a one-line difference.
+    lines = [json.dumps(f, ensure_ascii=False, allow_nan=False) for f in features]
+    body = ",\n".join(lines)
+    return '{"type": "FeatureCollection", "features": [\n' + body + ("\n" if lines else "") + "]}\n"

@@ -341,3 +341,32 @@ def test_page_success_summary(client, manager):
     assert 'href="/marks/TST-001/"' in body
     assert Mark.objects.count() == 3
     assert AuditEvent.objects.filter(action="marks_import", actor=manager).count() == 1
+
+
+# --- The sample files in fixtures_demo/ (the README points to them) ----------------------------------
+
+
+def test_sample_files_behave_as_documented(manager):
+    from django.conf import settings
+
+    folder = settings.BASE_DIR / "fixtures_demo"
+    ok = mark_import(actor=manager, content=(folder / "sample_marks.csv").read_bytes(), filename="sample_marks.csv")
+    assert ok.created == ["SMP-001", "SMP-002", "SMP-003", "SMP-004"] and ok.positions_published == 3
+    gj = (folder / "sample_marks.geojson").read_bytes()
+    assert mark_import(actor=manager, content=gj, filename="sample_marks.geojson").positions_published == 2
+    with pytest.raises(ImportRejected) as info:
+        mark_import(
+            actor=manager,
+            content=(folder / "sample_marks_with_errors.csv").read_bytes(),
+            filename="sample_marks_with_errors.csv",
+        )
+    assert [(e.where, e.field, e.code) for e in info.value.errors] == [
+        ("line 3", "lat_deg", "not_a_number"),
+        ("line 4", "frame_epsg", "frame_required"),
+        ("line 5", "frame_epsg", "invalid_frame"),
+        ("line 6", "code", "duplicate_code"),
+        ("line 7", "monument_type", "invalid_choice"),
+        ("line 7", "lon_deg", "out_of_range"),
+        ("line 7", "sigma_e_mm", "sigmas_incomplete"),
+    ]
+    assert not Mark.objects.filter(code="SMP-101").exists()

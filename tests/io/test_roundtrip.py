@@ -203,7 +203,7 @@ def _expected(values):
     return mark, {name: values[name] for name in POSITION_MODEL_FIELDS}
 
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(rows=st.lists(export_rows(), min_size=1, max_size=4, unique_by=lambda r: r["code"]))
 def test_writers_and_readers_are_inverse(rows):
     for write, parse in ((write_marks_csv, parse_marks_csv), (write_marks_geojson, parse_marks_geojson)):
