@@ -159,7 +159,7 @@ start_local_cluster() {
         { PG_PROBLEM="pg_createcluster $ver main failed"; return 1; }
       line="$(pg_lsclusters -h | awk -v p="$PG_PORT" '$3 == p { print; exit }')"
     else
-      PG_PROBLEM="no PostgreSQL cluster is configured on port $PG_PORT ($(pg_lsclusters -h | awk '{printf "%s/%s on %s; ", $1, $2, $3}'))"
+      PG_PROBLEM="no PostgreSQL cluster is configured on port $PG_PORT (there are: $(pg_lsclusters -h | awk '{printf "%s%s/%s on %s", sep, $1, $2, $3; sep = ", "}'))"
       return 1
     fi
   fi
