@@ -13,6 +13,8 @@ with the HTTP status of the error:
 - ``Http404`` and Django's ``PermissionDenied``: 404 and 403;
 - a write against a published position or the audit trail (guards in the models): 409.
 
+Errors are rendered as JSON even when the request asked for GeoJSON.
+
 Anything else is a bug and is left to propagate (a 500 with the server's log entry).
 """
 
@@ -25,6 +27,7 @@ from django.core.exceptions import ValidationError as DjangoValidationError
 from django.http import Http404
 from rest_framework import exceptions as drf_exceptions
 from rest_framework import status as http_status
+from rest_framework.renderers import JSONRenderer
 from rest_framework.response import Response
 from rest_framework.views import exception_handler as drf_default_handler
 
@@ -84,8 +87,18 @@ def _summary(details: dict[str, list[dict[str, Any]]]) -> str:
     return "Invalid input. " + " ".join(parts[:5]) if parts else "Invalid input."
 
 
+def _errors_as_json(context) -> None:
+    """Errors are JSON even when the request asked for another format (e.g. ``?format=geojson``)."""
+    request = context.get("request")
+    renderer = getattr(request, "accepted_renderer", None)
+    if request is not None and renderer is not None and getattr(renderer, "format", None) not in ("json", "api"):
+        request.accepted_renderer = JSONRenderer()
+        request.accepted_media_type = JSONRenderer.media_type
+
+
 def api_exception_handler(exc, context):
     """DRF ``EXCEPTION_HANDLER``: turn every expected error into the one shape."""
+    _errors_as_json(context)
     if isinstance(exc, RegistryError):
         return Response(error_body(exc.code, exc.message, exc.details), status=exc.status)
     if isinstance(exc, DjangoValidationError):

@@ -108,6 +108,11 @@ class MarkListView(APIView):
     )
     def get(self, request):
         params = request.query_params
+        for key in ("q", "code", "name", "status"):
+            if "\x00" in params.get(key, ""):
+                raise ValidationError(
+                    {key: ValidationError("Null characters are not allowed.", code="null_characters_not_allowed")}
+                )
         status = params.get("status", "").strip()
         if status and status not in MarkStatus.values:
             raise ValidationError(

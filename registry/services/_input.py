@@ -14,6 +14,9 @@ from django.core.exceptions import ValidationError
 from django.utils import timezone
 from django.utils.dateparse import parse_date, parse_datetime
 
+# Integers must fit the databases' 64-bit columns.
+_MAX_INT64 = 2**63 - 1
+
 
 def field_error(field: str, message: str, code: str, **params: Any) -> ValidationError:
     return ValidationError({field: ValidationError(message, code=code, params={"field": field, **params})})
@@ -61,13 +64,16 @@ def parse_int(data: dict, field: str, *, required: bool = False) -> int | None:
     if isinstance(value, bool):
         raise field_error(field, "Expected a whole number.", "invalid_integer")
     if isinstance(value, float):
-        if not value.is_integer():
+        if not value.is_integer() or abs(value) > _MAX_INT64:
             raise field_error(field, "Expected a whole number.", "invalid_integer")
         return int(value)
     try:
-        return int(value.strip() if isinstance(value, str) else value)
+        number = int(value.strip() if isinstance(value, str) else value)
     except (TypeError, ValueError):
         raise field_error(field, "Expected a whole number.", "invalid_integer") from None
+    if abs(number) > _MAX_INT64:
+        raise field_error(field, "The number is out of range.", "out_of_range")
+    return number
 
 
 def parse_text(data: dict, field: str, *, required: bool = False, max_length: int | None = None) -> str:
@@ -77,6 +83,8 @@ def parse_text(data: dict, field: str, *, required: bool = False, max_length: in
     if not isinstance(value, str):
         raise field_error(field, "Expected text.", "invalid_type")
     value = value.strip()
+    if "\x00" in value:
+        raise field_error(field, "Null characters are not allowed.", "null_characters_not_allowed")
     if required and not value:
         raise field_error(field, "This field is required.", "required")
     if max_length is not None and len(value) > max_length:
@@ -146,6 +154,20 @@ def parse_date_value(data: dict, field: str, *, required: bool = False) -> _dt.d
     if not isinstance(value, _dt.date):
         raise field_error(field, "Expected a date.", "invalid_date")
     return value
+
+
+def parse_note(note: Any, *, required: bool, what: str = "this action") -> str:
+    """A reason or remark: text without null characters; ``note_required`` when required and empty."""
+    if note is None:
+        note = ""
+    if not isinstance(note, str):
+        raise field_error("note", "The note is text.", "invalid_type")
+    note = note.strip()
+    if "\x00" in note:
+        raise field_error("note", "Null characters are not allowed.", "null_characters_not_allowed")
+    if required and not note:
+        raise field_error("note", f"Give the reason for {what}.", "note_required")
+    return note
 
 
 def merge_errors(*errors: ValidationError) -> ValidationError:

@@ -15,6 +15,9 @@ from registry.errors import NotFound, PermissionDeniedError
 from registry.models import Job, Mark, Position
 from registry.roles import Ability, has_ability
 
+# Primary keys are 64-bit (BigAutoField); a larger number cannot name a row.
+_MAX_BIGINT = 2**63 - 1
+
 _ABILITY_WORDS = {
     Ability.VIEW: "view the registry",
     Ability.RECORD: "record fieldwork",
@@ -47,7 +50,7 @@ def access_mark_by_code(user, code: Any, *, ability: Ability = Ability.VIEW, for
     """
     not_found = NotFound(f"No mark with code {code!r}.", details={"code": str(code)})
     _gate(user, ability, not_found)
-    if not isinstance(code, str) or not code:
+    if not isinstance(code, str) or not code or "\x00" in code:
         raise not_found
     qs = Mark.objects.select_for_update() if for_update else Mark.objects.all()
     try:
@@ -66,6 +69,8 @@ def access_position_by_id(
         pk = int(position_id)
     except (TypeError, ValueError):
         raise not_found from None
+    if not 1 <= pk <= _MAX_BIGINT:
+        raise not_found
     qs = Position.objects.select_related("mark")
     if for_update:
         qs = qs.select_for_update(of=("self",))
@@ -79,7 +84,7 @@ def access_job_by_code(user, code: Any, *, ability: Ability = Ability.VIEW) -> J
     """The job with ``code``, if ``user`` may act on it with ``ability``."""
     not_found = NotFound(f"No job with code {code!r}.", details={"code": str(code)})
     _gate(user, ability, not_found)
-    if not isinstance(code, str) or not code:
+    if not isinstance(code, str) or not code or "\x00" in code:
         raise not_found
     try:
         return Job.objects.get(code=code)

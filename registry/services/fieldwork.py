@@ -285,7 +285,7 @@ def attachment_add(
                 choices=", ".join(AttachmentKind.values),
             )
         )
-    if not isinstance(caption, str) or len(caption.strip()) > 200:
+    if not isinstance(caption, str) or len(caption.strip()) > 200 or "\x00" in caption:
         errors.append(field_error("caption", "A caption is text of at most 200 characters.", "invalid_caption"))
     if file is None or not (hasattr(file, "chunks") or hasattr(file, "read")):
         errors.append(field_error("file", "Attach a file.", "required"))
@@ -293,7 +293,7 @@ def attachment_add(
         raise merge_errors(*errors)
     if not isinstance(file, File):
         file = File(file, name=getattr(file, "name", None))
-    original = os.path.basename(str(file.name or "")) or "upload.bin"
+    original = os.path.basename(str(file.name or "").replace("\x00", "")) or "upload.bin"
     sha256, size = _hash_stream(file)
     if size == 0:
         raise field_error("file", "The file is empty.", "empty_file")

@@ -27,6 +27,7 @@ from django.utils import timezone
 from registry.errors import Conflict
 from registry.models import AuditEvent, Mark, MarkStatus
 from registry.roles import Ability
+from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
 
@@ -52,6 +53,8 @@ _NOT_EDITABLE_HINT = {
     "search_lon_deg": "The search location follows the published positions.",
     "version": "Send the version you started from separately, as expected_version.",
 }
+# The largest value of a PositiveIntegerField on every supported database.
+_MAX_VERSION = 2_147_483_647
 # Statuses that need a reason in the note.
 _STATUS_NEEDS_NOTE = {MarkStatus.RETIRED, MarkStatus.DESTROYED}
 
@@ -74,6 +77,13 @@ def _clean_input(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
             value = ""
         if not isinstance(value, str):
             errors[key] = [ValidationError("Expected text.", code="invalid_type", params={"field": key})]
+            continue
+        if "\x00" in value:
+            errors[key] = [
+                ValidationError(
+                    "Null characters are not allowed.", code="null_characters_not_allowed", params={"field": key}
+                )
+            ]
             continue
         cleaned[key] = value.strip()
     if errors:
@@ -104,7 +114,7 @@ def _parse_version(expected_version: Any) -> int:
         raise ValidationError(
             {"version": ValidationError("The version is a whole number.", code="invalid_version")}
         ) from None
-    if value < 1 or (isinstance(expected_version, float) and expected_version != value):
+    if value < 1 or value > _MAX_VERSION or (isinstance(expected_version, float) and expected_version != value):
         raise ValidationError({"version": ValidationError("The version is a whole number.", code="invalid_version")})
     return value
 
@@ -244,9 +254,7 @@ def mark_set_status(*, actor, code: str, status: str, expected_version: int, not
         raise ValidationError(
             {"status": ValidationError("Unknown status %(value)r.", code="invalid_choice", params={"value": status})}
         )
-    note = (note or "").strip() if isinstance(note, str) else ""
-    if status in _STATUS_NEEDS_NOTE and not note:
-        raise ValidationError({"note": ValidationError("Give the reason for this status.", code="note_required")})
+    note = parse_note(note, required=status in _STATUS_NEEDS_NOTE, what="this status")
     conflict: Conflict | None = None
     with transaction.atomic():
         mark = access_mark_by_code(actor, code, ability=Ability.MANAGE)

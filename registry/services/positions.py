@@ -27,7 +27,15 @@ from django.utils import timezone
 from registry.errors import Conflict
 from registry.models import Mark, MarkStatus, Position, PositionState
 from registry.roles import Ability
-from registry.services._input import check_keys, field_error, merge_errors, parse_float, parse_int, parse_text
+from registry.services._input import (
+    check_keys,
+    field_error,
+    merge_errors,
+    parse_float,
+    parse_int,
+    parse_note,
+    parse_text,
+)
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
 
@@ -59,6 +67,9 @@ _RANGES = {
         "Coordinate epoch must be a decimal year between 1900 and 2100.",
     ),
 }
+# Largest variance accepted (σ = 100 m): beyond that a value is a unit mistake (mm² for m²...),
+# not a coordinate anyone should find in a control registry.
+MAX_VARIANCE_M2 = 100.0**2
 # A covariance matrix may have an eigenvalue this far below zero (relative to its
 # largest) and still count as positive semi-definite: rounding of published values.
 _PSD_RELATIVE_TOLERANCE = 1e-9
@@ -116,6 +127,15 @@ def _parse_position(data: Any) -> dict[str, Any]:
     for name in ("cov_ee_m2", "cov_nn_m2", "cov_uu_m2"):
         if out[name] < 0:
             errors.append(field_error(name, "A variance cannot be negative.", "negative_variance"))
+        elif out[name] > MAX_VARIANCE_M2:
+            errors.append(
+                field_error(
+                    name,
+                    "A variance above %(limit)s m² (σ = 100 m) is refused; covariances are in m².",
+                    "variance_too_large",
+                    limit=MAX_VARIANCE_M2,
+                )
+            )
     for name in VEL_SIGMA_FIELDS:
         if out[name] is not None and out[name] < 0:
             errors.append(field_error(name, "A sigma cannot be negative.", "negative_sigma"))
@@ -136,8 +156,14 @@ def _parse_position(data: Any) -> dict[str, Any]:
             [out["cov_eu_m2"], out["cov_nu_m2"], out["cov_uu_m2"]],
         ]
     )
+    if not np.any(cov):
+        raise field_error(
+            "cov_ee_m2",
+            "Give the uncertainty of the coordinates; a position held fixed in an adjustment still has one.",
+            "covariance_zero",
+        )
     eig = np.linalg.eigvalsh(cov)
-    if eig[-1] <= 0.0 or eig[0] < -_PSD_RELATIVE_TOLERANCE * eig[-1]:
+    if eig[0] < -_PSD_RELATIVE_TOLERANCE * eig[-1]:
         raise field_error(
             "cov_ee_m2",
             "The east/north/up covariance is not positive semi-definite (check the correlations).",
@@ -168,13 +194,6 @@ def _require_state(position: Position, *allowed: str, action: str) -> None:
         )
 
 
-def _required_note(note: Any, what: str) -> str:
-    note = note.strip() if isinstance(note, str) else ""
-    if not note:
-        raise field_error("note", f"Give the reason for the {what}.", "note_required")
-    return note
-
-
 def position_propose(*, actor, mark_code: str, data: dict) -> Position:
     """Record a proposed position of a mark (technician or manager).
 
@@ -201,6 +220,7 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
 
 def position_publish(*, actor, position_id: int, note: str = "") -> Position:
     """Publish a proposed position (manager); supersede the earlier one of the same mark and frame."""
+    note = parse_note(note, required=False)
     with transaction.atomic():
         position = access_position_by_id(actor, position_id, ability=Ability.MANAGE, for_update=True)
         mark = Mark.objects.select_for_update().get(pk=position.mark_id)
@@ -255,7 +275,7 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
                 "search_lat_deg": lat,
                 "search_lon_deg": lon,
             },
-            note=note.strip() if isinstance(note, str) else "",
+            note=note,
             mark=mark,
         )
     return position
@@ -263,7 +283,7 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
 
 def position_reject(*, actor, position_id: int, note: str) -> Position:
     """Reject a proposed position (manager), with the reason in ``note``."""
-    note = _required_note(note, "rejection")
+    note = parse_note(note, required=True, what="the rejection")
     with transaction.atomic():
         position = access_position_by_id(actor, position_id, ability=Ability.MANAGE, for_update=True)
         _require_state(position, PositionState.PROPOSED, action="rejected")
@@ -289,7 +309,7 @@ def position_withdraw(*, actor, position_id: int, note: str) -> Position:
     superseded); the search location falls back to another published position of the
     mark, or is cleared.
     """
-    note = _required_note(note, "withdrawal")
+    note = parse_note(note, required=True, what="the withdrawal")
     with transaction.atomic():
         position = access_position_by_id(actor, position_id, ability=Ability.MANAGE, for_update=True)
         mark = Mark.objects.select_for_update().get(pk=position.mark_id)

@@ -245,3 +245,43 @@ def test_status_endpoint(district, manager, api_client_for):
     assert response.status_code == 200 and response.json()["status"] == "destroyed"
     stale = client.post("/api/marks/QR-101/status/", {"version": 1, "status": "active", "note": "found"}, format="json")
     assert_error_shape(stale, 409, "stale_version")
+
+
+# ---- hostile input never becomes a 500 (PostgreSQL refuses NUL in text; SQLite 64-bit integers) ------
+
+
+@pytest.mark.parametrize(
+    ("method", "url", "body", "status", "field", "code"),
+    [
+        ("get", "/api/marks/QR%00101/", None, 404, None, "not_found"),
+        ("get", "/api/marks/?q=qr%00", None, 400, "q", "null_characters_not_allowed"),
+        ("get", "/api/marks/?code=QR%00", None, 400, "code", "null_characters_not_allowed"),
+        ("get", "/api/marks/?format=geojson&name=a%00", None, 400, "name", "null_characters_not_allowed"),
+        ("patch", "/api/marks/QR-101/", {"version": 1, "notes": "a\x00b"}, 400, "notes", "null_characters_not_allowed"),
+        ("patch", "/api/marks/QR-101/", {"version": 10**30, "notes": "x"}, 400, "version", "invalid_version"),
+        ("patch", "/api/marks/QR-101/", {"version": 1, "notes": ["x"]}, 400, "notes", "invalid_type"),
+        (
+            "post",
+            "/api/marks/",
+            {"code": "CW-1", "custodian": "a\x00"},
+            400,
+            "custodian",
+            "null_characters_not_allowed",
+        ),
+        (
+            "post",
+            "/api/marks/QR-101/status/",
+            {"version": 1, "status": "retired", "note": "a\x00"},
+            400,
+            "note",
+            "null_characters_not_allowed",
+        ),
+    ],
+)
+def test_hostile_input_gets_a_clear_error(district, manager, api_client_for, method, url, body, status, field, code):
+    client = api_client_for(manager)
+    response = getattr(client, method)(url, body, format="json") if body is not None else getattr(client, method)(url)
+    error = assert_error_shape(response, status, "invalid" if status == 400 else code)
+    if field:
+        assert error["details"][field][0]["code"] == code
+    assert Mark.objects.get(code="QR-101").version == 1

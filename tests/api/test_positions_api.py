@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import pytest
 
 from registry.models import Mark, Position, PositionState
@@ -117,3 +119,37 @@ def test_unknown_position_is_a_404(mark, manager, api_client_for):
     assert_error_shape(client.get("/api/positions/987654/"), 404, "not_found")
     assert_error_shape(client.post("/api/positions/987654/publish/", format="json"), 404, "not_found")
     assert not Position.objects.filter(state=PositionState.PUBLISHED).exists()
+
+
+@pytest.mark.parametrize(
+    ("raw", "field", "code"),
+    [
+        ('"lat_deg": 1e400', "lat_deg", "not_finite"),  # JSON number beyond float range → inf
+        ('"lat_deg": "45.2\\u0000"', "lat_deg", "invalid_number"),
+        ('"frame_epsg": 99999999999999999999999', "frame_epsg", "out_of_range"),
+    ],
+)
+def test_odd_numbers_in_json_are_refused(mark, technician, api_client_for, raw, field, code):
+    body = json.dumps(position_data())
+    key = raw.split(":")[0]
+    start = body.index(key)
+    end = body.index(",", start)
+    response = api_client_for(technician).post(
+        "/api/marks/QR-101/positions/", body[:start] + raw + body[end:], content_type="application/json"
+    )
+    error = assert_error_shape(response, 400, "invalid")
+    assert error["details"][field][0]["code"] == code
+    assert not Position.objects.exists()
+
+
+def test_notes_with_null_characters_and_huge_ids(mark, technician, manager, api_client_for):
+    proposed = propose(api_client_for(technician))
+    boss = api_client_for(manager)
+    for action in ("publish", "reject"):
+        response = boss.post(f"/api/positions/{proposed['id']}/{action}/", {"note": "a\x00b"}, format="json")
+        assert (
+            assert_error_shape(response, 400, "invalid")["details"]["note"][0]["code"] == "null_characters_not_allowed"
+        )
+    assert_error_shape(boss.get("/api/positions/99999999999999999999999/"), 404, "not_found")
+    assert_error_shape(boss.post("/api/positions/99999999999999999999999/publish/", format="json"), 404, "not_found")
+    assert Position.objects.get().state == PositionState.PROPOSED

@@ -71,7 +71,10 @@ def test_propose_accepts_numbers_as_text(mark, technician):
         ),
         # |ρ| > 1 between east and north: not a covariance matrix.
         ({"cov_en_m2": 0.005 * 0.005 * 1.5}, "cov_ee_m2", "covariance_not_psd"),
-        ({"cov_ee_m2": 0.0, "cov_nn_m2": 0.0, "cov_uu_m2": 0.0}, "cov_ee_m2", "covariance_not_psd"),
+        ({"cov_ee_m2": 0.0, "cov_nn_m2": 0.0, "cov_uu_m2": 0.0}, "cov_ee_m2", "covariance_zero"),
+        ({"cov_uu_m2": 1.0e6}, "cov_uu_m2", "variance_too_large"),  # σ = 1 km: a unit mistake
+        ({"source": "a\x00b"}, "source", "null_characters_not_allowed"),
+        ({"note": ["not", "text"]}, "note", "invalid_type"),
         ({"lat": 45.0}, "lat", "unknown_field"),
     ],
 )
