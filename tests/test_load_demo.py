@@ -216,6 +216,7 @@ def test_reset_reloads_and_restores_the_audit_guard(db, fast_hashing, capsys):
     load("--reset")
     out = capsys.readouterr().out
     assert "Reset: deleted" in out and f"{counts[0]} marks" in out and "5 users" in out
+    assert f"{counts[0] + 4} audit events" in out  # mark_create per mark, job_create per job, demo_load
     assert counts == (
         Mark.objects.count(),
         Position.objects.count(),

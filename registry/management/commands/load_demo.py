@@ -329,7 +329,10 @@ class Command(BaseCommand):
                 jobs = Job.objects.filter(code__in=job_codes)
                 with _audit_guard_lifted():
                     counts["audit events"] = AuditEvent.objects.filter(
-                        Q(mark__in=marks) | Q(actor__in=users) | Q(action="demo_load")
+                        Q(mark__in=marks)
+                        | Q(actor__in=users)
+                        | Q(action="demo_load")
+                        | Q(object_type="job", object_id__in=[str(pk) for pk in jobs.values_list("pk", flat=True)])
                     ).delete()[0]
                 for doc in Document.objects.filter(Q(mark__in=marks) | Q(job__in=jobs)):
                     if doc.pdf:
@@ -363,7 +366,10 @@ class _audit_guard_lifted:
             if vendor == "sqlite":
                 cur.execute("DROP TRIGGER IF EXISTS audit_no_delete")
             elif vendor == "postgresql":
+                # Deferred foreign-key checks queued earlier in the transaction block ALTER TABLE; run them now.
+                cur.execute("SET CONSTRAINTS ALL IMMEDIATE")
                 cur.execute("ALTER TABLE registry_auditevent DISABLE TRIGGER audit_append_only")
+                cur.execute("SET CONSTRAINTS ALL DEFERRED")
         return self
 
     def __exit__(self, exc_type, exc, tb):
@@ -376,5 +382,7 @@ class _audit_guard_lifted:
                 (create_no_delete,) = [sql for sql in triggers.SQLITE_FORWARD if "audit_no_delete" in sql]
                 cur.execute(create_no_delete)
             elif vendor == "postgresql":
+                cur.execute("SET CONSTRAINTS ALL IMMEDIATE")
                 cur.execute("ALTER TABLE registry_auditevent ENABLE TRIGGER audit_append_only")
+                cur.execute("SET CONSTRAINTS ALL DEFERRED")
         return False
