@@ -49,6 +49,7 @@ from django.db import connection
 
 from registry.errors import InvalidInput
 from registry.geodesy import proximity
+from registry.geodesy.accuracy import fgdc_horizontal_95_m
 from registry.models import Mark, MarkStatus, Position, PositionState, Stability
 from registry.selectors import spatial_sql
 
@@ -227,37 +228,6 @@ def _resolve_path(path: str) -> str:
 # ----------------------------------------------------------------------------- accuracy
 
 
-def fgdc_horizontal_95_m(cov_ee_m2, cov_en_m2, cov_nn_m2) -> np.ndarray:
-    """Radius of the 95 % circle (m) from an east/north covariance (m²), FGDC-STD-007.2-1998.
-
-    r95 = K·σmax, K = 1.960790 + 0.004071·C + 0.114276·C² + 0.371625·C³, C = σmin/σmax,
-    σmax, σmin the square roots of the covariance's eigenvalues. Uses the accuracy module
-    of ``registry.geodesy`` when present (same formula).
-
-    Examples
-    --------
-    >>> float(np.round(fgdc_horizontal_95_m(0.01**2, 0.0, 0.01**2), 9))
-    0.024507620
-    """
-    try:
-        from registry.geodesy.accuracy import fgdc_horizontal_95_m as shared
-    except ImportError:
-        shared = None
-    if shared is not None:
-        return np.asarray(shared(cov_ee_m2, cov_en_m2, cov_nn_m2), dtype=float)
-    ee = np.asarray(cov_ee_m2, dtype=float)
-    en = np.asarray(cov_en_m2, dtype=float)
-    nn = np.asarray(cov_nn_m2, dtype=float)
-    half_trace = (ee + nn) / 2.0
-    root = np.sqrt(((ee - nn) / 2.0) ** 2 + en**2)
-    s_max = np.sqrt(np.maximum(half_trace + root, 0.0))
-    s_min = np.sqrt(np.maximum(half_trace - root, 0.0))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        c = np.where(s_max > 0, s_min / s_max, 0.0)
-    k = 1.960790 + 0.004071 * c + 0.114276 * c**2 + 0.371625 * c**3
-    return k * s_max
-
-
 def _accuracy_ok(mark_ids: np.ndarray, filters: _Filters) -> np.ndarray:
     """Which marks have a published position (in the frame, if given) with r95 ≤ the limit."""
     if filters.accuracy_max_m is None or mark_ids.size == 0:
@@ -269,7 +239,7 @@ def _accuracy_ok(mark_ids: np.ndarray, filters: _Filters) -> np.ndarray:
     if not rows:
         return np.zeros(mark_ids.size, dtype=bool)
     pos_mark, ee, en, nn = (np.asarray(c) for c in zip(*rows, strict=True))
-    r95_m = fgdc_horizontal_95_m(ee, en, nn)
+    r95_m = np.asarray(fgdc_horizontal_95_m(ee, en, nn), dtype=float)
     good = set(pos_mark[r95_m <= filters.accuracy_max_m].tolist())
     return np.fromiter((int(i) in good for i in mark_ids), dtype=bool, count=mark_ids.size)
 
@@ -352,9 +322,9 @@ def _postgis_decided(lat_deg, lon_deg, radius_m, limit, filters: _Filters) -> _D
         decided = _decide(rows, lat_deg, lon_deg, radius_m, filters)
         if len(rows) < k:
             return decided  # every mark inside the prefilter radius was seen
-        # Unseen marks are at least as far on the sphere as the last row, so at least
+        # Unseen marks are at least as far on the sphere as the farthest row, so at least
         # lo × that on the ellipsoid; stop when the limit-th mark is strictly nearer.
-        if len(decided) >= limit and decided.distance_m[limit - 1] < rows.sphere_m[-1] * _SPHERE_LO:
+        if len(decided) >= limit and decided.distance_m[limit - 1] < float(rows.sphere_m.max()) * _SPHERE_LO:
             return decided
         k *= 4
 

@@ -170,16 +170,40 @@ def postgis_candidates_sql(shape: FilterShape, limited: bool) -> tuple[str, dict
     radius by the sphere/ellipsoid bound (``proximity.sphere_distance_factors``). The
     ``<->`` operator on geography is also a spherical distance (PostGIS manual,
     "<->"), returned as the last column so the caller can bound unseen marks.
+
+    Without a limit: ``ST_DWithin`` in the WHERE clause (bitmap scan of the GiST index).
+    With a limit: an inner query takes the ``k`` nearest by ``<->`` among the marks whose
+    index box meets the radius's box (``geog && _ST_Expand(point, r)``, the index test
+    that ``ST_DWithin`` itself uses), and the outer query applies ``ST_DWithin``. The
+    split matters: PostgreSQL underestimates how many rows ``ST_DWithin`` keeps and, given
+    it in the same query as ``ORDER BY ... LIMIT``, sorts every row in the radius (measured
+    at 1,000,000 marks: tens of milliseconds) instead of walking the index in distance
+    order (about a millisecond). The box keeps the walk bounded when filters reject most
+    marks.
     """
     m = mark_table
     point = _search_point()
+    prefilter = bindparam("prefilter_m", value=0.0, type_=Float)
     knn = m.c.geog.op("<->", return_type=Float)(point)
-    stmt = select(m.c.id, m.c.code, m.c.search_lat_deg, m.c.search_lon_deg, knn.label("sphere_m")).where(
-        func.ST_DWithin(m.c.geog, point, bindparam("prefilter_m", value=0.0, type_=Float), False),
-        *_filter_clauses(shape),
+    columns = (m.c.id, m.c.code, m.c.search_lat_deg, m.c.search_lon_deg)
+    if not limited:
+        stmt = select(*columns, knn.label("sphere_m")).where(
+            func.ST_DWithin(m.c.geog, point, prefilter, False), *_filter_clauses(shape)
+        )
+        return _compile(stmt, "postgresql")
+    expanded = func._ST_Expand(point, prefilter, type_=m.c.geog.type)
+    inner = (
+        select(*columns, m.c.geog, knn.label("sphere_m"))
+        .where(m.c.geog.op("&&")(expanded), *_filter_clauses(shape))
+        .order_by(knn)
+        .limit(bindparam("k", value=1, type_=Integer))
+        .subquery("nearest")
     )
-    if limited:
-        stmt = stmt.order_by(knn).limit(bindparam("k", value=1, type_=Integer))
+    stmt = (
+        select(inner.c.id, inner.c.code, inner.c.search_lat_deg, inner.c.search_lon_deg, inner.c.sphere_m)
+        .where(func.ST_DWithin(inner.c.geog, point, prefilter, False))
+        .order_by(inner.c.sphere_m)
+    )
     return _compile(stmt, "postgresql")
 
 

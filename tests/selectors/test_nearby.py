@@ -25,7 +25,6 @@ from geographiclib.geodesic import Geodesic
 
 from registry.errors import InvalidInput
 from registry.models import Condition, Mark, MarkStatus, Position, PositionState, Stability, Visit
-from registry.selectors import nearby
 from registry.selectors.nearby import marks_near, marks_near_polygon
 
 pytestmark = pytest.mark.django_db
@@ -366,15 +365,6 @@ def test_each_filter_excludes_what_it_should(small_district, path):
     assert _codes(
         path=path, status="active", stability="high", good_visit_within_yr=5, frame_epsg=7912, accuracy_class_max_m=0.05
     ) == ["GOOD1", "EDGE1"]
-
-
-def test_fgdc_r95_helper_matches_published_k_values():
-    # FGDC K polynomial values at C = 0 and C = 1 (references.md §4.2 [CONF-S] coefficients).
-    assert nearby.fgdc_horizontal_95_m(0.01**2, 0.0, 0.0) == pytest.approx(0.01960790, abs=1e-12)
-    assert nearby.fgdc_horizontal_95_m(0.01**2, 0.0, 0.01**2) == pytest.approx(0.02450762, abs=1e-12)
-    # A rotated ellipse (correlated E/N) against the independent eigenvalue reference.
-    ee, en, nn = 0.012**2, 0.6 * 0.012 * 0.007, 0.007**2
-    assert nearby.fgdc_horizontal_95_m(ee, en, nn) == pytest.approx(r95_reference_m(ee, en, nn), abs=1e-12)
 
 
 # ----------------------------------------------------------------------------- polygon
