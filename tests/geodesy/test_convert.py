@@ -220,7 +220,7 @@ def test_page_bad_input_shows_the_error_and_answers_400(client, viewer):
     client.force_login(viewer)
     resp = client.get(reverse("web:convert"), {**PAGE_QUERY, "lat": "45 12 60 N"})
     assert resp.status_code == 400
-    assert "seconds must be below 60" in resp.content.decode()
+    assert "seconds must be below 60" in resp.content.decode() and "Nothing was computed" in resp.content.decode()
     resp = client.get(reverse("web:convert"), {**PAGE_QUERY, "grid": "6341", "to_frame": ""})
     assert resp.status_code == 400 and "grid&#x27;s datum" in resp.content.decode()
 

@@ -285,7 +285,8 @@ def test_vectorised_matches_scalar():
         one = transform_position(
             lat[i], lon[i], h[i], from_epsg=9989, from_epoch_yr=2024.5, to_epsg=6319, to_epoch_yr=2024.5
         )
-        assert float(one.lat_deg) == many.lat_deg[i] and float(one.h_m) == many.h_m[i]
+        assert float(one.lat_deg) == pytest.approx(many.lat_deg[i], abs=1e-13)
+        assert float(one.h_m) == pytest.approx(many.h_m[i], abs=1e-9)
 
 
 def test_epoch_display():
