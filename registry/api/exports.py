@@ -18,34 +18,23 @@ from registry.errors import InvalidInput
 from registry.io.common import frame_problem
 from registry.io.export import EXPORT_FORMATS, export_marks_text
 
+FRAME_PARAMETER = OpenApiParameter("frame", int, description="EPSG code of the positions' frame, e.g. 7912")
+CSV_RESPONSE = {(200, "text/csv"): OpenApiResponse(OpenApiTypes.STR, description="CSV, columns as in the README")}
+GEOJSON_RESPONSE = {
+    (200, "application/geo+json"): OpenApiResponse(OpenApiTypes.OBJECT, description="GeoJSON FeatureCollection")
+}
 
-class MarksExportView(APIView):
-    """Download every mark as CSV or GeoJSON, in the format the importer reads."""
 
+class _ExportView(APIView):
     permission_classes = [IsViewer]
     renderer_classes = [JSONRenderer]  # for errors; the export itself is a plain HttpResponse
-    fmt: str | None = None  # fixed by the URL (export.csv / export.geojson) or taken from ?format=
 
     def perform_content_negotiation(self, request, force=False):
         # ?format= names the export format here, not a DRF renderer; errors are always JSON.
         renderer = JSONRenderer()
         return renderer, renderer.media_type
 
-    @extend_schema(
-        operation_id="marks_export",
-        parameters=[
-            OpenApiParameter("format", str, enum=list(EXPORT_FORMATS), description="csv or geojson (default csv)"),
-            OpenApiParameter("frame", int, description="EPSG code of the positions' frame, e.g. 7912"),
-        ],
-        responses={
-            (200, "text/csv"): OpenApiResponse(OpenApiTypes.STR, description="CSV, columns as in the README"),
-            (200, "application/geo+json"): OpenApiResponse(
-                OpenApiTypes.OBJECT, description="GeoJSON FeatureCollection"
-            ),
-        },
-    )
-    def get(self, request, *args, **kwargs):
-        fmt = self.fmt or (request.query_params.get("format") or "csv").strip().lower()
+    def export(self, request, fmt: str) -> HttpResponse:
         if fmt not in EXPORT_FORMATS:
             raise InvalidInput(
                 f"Unknown export format {fmt!r}; use csv or geojson.", code="unknown_format", details={"format": fmt}
@@ -66,3 +55,34 @@ class MarksExportView(APIView):
         suffix = f"-epsg{frame_epsg}" if frame_epsg else ""
         response["Content-Disposition"] = f'attachment; filename="marks{suffix}.{extension}"'
         return response
+
+
+class MarksExportView(_ExportView):
+    """Download every mark as CSV or GeoJSON (``?format=``, default csv), in the format the importer reads."""
+
+    @extend_schema(
+        operation_id="marks_export",
+        parameters=[
+            OpenApiParameter("format", str, enum=list(EXPORT_FORMATS), description="csv or geojson (default csv)"),
+            FRAME_PARAMETER,
+        ],
+        responses={**CSV_RESPONSE, **GEOJSON_RESPONSE},
+    )
+    def get(self, request, *args, **kwargs):
+        return self.export(request, (request.query_params.get("format") or "csv").strip().lower())
+
+
+class MarksExportCsvView(_ExportView):
+    """Download every mark as CSV, in the format the importer reads."""
+
+    @extend_schema(operation_id="marks_export_csv", parameters=[FRAME_PARAMETER], responses=CSV_RESPONSE)
+    def get(self, request, *args, **kwargs):
+        return self.export(request, "csv")
+
+
+class MarksExportGeoJSONView(_ExportView):
+    """Download every mark as GeoJSON, in the format the importer reads."""
+
+    @extend_schema(operation_id="marks_export_geojson", parameters=[FRAME_PARAMETER], responses=GEOJSON_RESPONSE)
+    def get(self, request, *args, **kwargs):
+        return self.export(request, "geojson")

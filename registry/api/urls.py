@@ -19,8 +19,8 @@ urlpatterns = [
     # accuracy statement (accuracy area)
     path("accuracy/", accuracy_api.AccuracyView.as_view(), name="accuracy"),
     # exports (import-export area); before marks/<code>/ so that the names never read as a code
-    path("marks/export.csv", exports_api.MarksExportView.as_view(fmt="csv"), name="marks-export-csv"),
-    path("marks/export.geojson", exports_api.MarksExportView.as_view(fmt="geojson"), name="marks-export-geojson"),
+    path("marks/export.csv", exports_api.MarksExportCsvView.as_view(), name="marks-export-csv"),
+    path("marks/export.geojson", exports_api.MarksExportGeoJSONView.as_view(), name="marks-export-geojson"),
     path("marks/export", exports_api.MarksExportView.as_view(), name="marks-export"),
     # nearby marks (search area); before marks/<code>/ so that "near" never reads as a code
     path("marks/near/", nearby_api.MarksNearView.as_view(), name="marks-near"),
