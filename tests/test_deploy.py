@@ -24,7 +24,7 @@ STAMP_RE = re.compile(r"^\d{8}T\d{6}Z$")
 
 
 def clean_env(**extra: str) -> dict[str, str]:
-    env = {k: v for k, v in os.environ.items() if not (k.startswith("REGISTRY_") or k == "DATABASE_URL")}
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("REGISTRY_", "DJANGO_", "DATABASE_URL"))}
     env.update(extra)
     return env
 

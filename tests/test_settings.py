@@ -45,8 +45,9 @@ print(json.dumps({
 
 
 def run_python(args: list[str], **env: str) -> subprocess.CompletedProcess:
-    clean = {k: v for k, v in os.environ.items() if not (k.startswith("REGISTRY_") or k == "DATABASE_URL")}
-    clean.pop("DJANGO_SETTINGS_MODULE", None)
+    # Nothing of the test process's own configuration leaks in (e.g. DJANGO_ALLOW_ASYNC_UNSAFE,
+    # which the browser tests set and which check --deploy rightly refuses).
+    clean = {k: v for k, v in os.environ.items() if not k.startswith(("REGISTRY_", "DJANGO_", "DATABASE_URL"))}
     clean.update(env)
     clean["DJANGO_SETTINGS_MODULE"] = "registry.settings"
     return subprocess.run([sys.executable, *args], cwd=BASE_DIR, env=clean, capture_output=True, text=True, timeout=120)
