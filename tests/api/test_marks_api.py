@@ -5,8 +5,12 @@ from __future__ import annotations
 import json
 
 import pytest
+from django.core.exceptions import PermissionDenied as DjangoPermissionDenied
+from django.core.exceptions import ValidationError
+from django.http import Http404
 
-from registry.models import AuditEvent, Mark
+from registry.errors import InvalidInput
+from registry.models import AuditEvent, AuditTrailError, FrozenPositionError, Mark
 from tests.api._shape import assert_error_shape
 from tests.services._data import NAD83_2011_EPSG, make_mark, make_published
 
@@ -285,3 +289,33 @@ def test_hostile_input_gets_a_clear_error(district, manager, api_client_for, met
     if field:
         assert error["details"][field][0]["code"] == code
     assert Mark.objects.get(code="QR-101").version == 1
+
+
+# ---- the handler itself, for errors no view above happens to raise ---------------------------------
+
+
+@pytest.mark.parametrize(
+    ("exc", "status", "code"),
+    [
+        (Http404("gone"), 404, "not_found"),
+        (DjangoPermissionDenied(), 403, "permission_denied"),
+        (FrozenPositionError("frozen"), 409, "position_frozen"),
+        (AuditTrailError("never"), 409, "audit_append_only"),
+        (InvalidInput("bad"), 400, "invalid"),
+        (ValidationError("The whole body is wrong.", code="odd"), 400, "invalid"),
+    ],
+    ids=["Http404", "PermissionDenied", "FrozenPositionError", "AuditTrailError", "InvalidInput", "ValidationError"],
+)
+def test_exception_handler_gives_the_one_shape(viewer, exc, status, code):
+    from rest_framework.test import APIRequestFactory, force_authenticate
+    from rest_framework.views import APIView
+
+    class Raiser(APIView):
+        def get(self, request):
+            raise exc
+
+    request = APIRequestFactory().get("/x/")
+    force_authenticate(request, viewer)
+    response = Raiser.as_view()(request)
+    response.render()
+    assert_error_shape(response, status, code)
