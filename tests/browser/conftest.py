@@ -51,6 +51,19 @@ def fast_password_hashing(settings):
     settings.PASSWORD_HASHERS = ["django.contrib.auth.hashers.MD5PasswordHasher"]
 
 
+def _close_test_thread_connections():
+    """Close the database connections used while Playwright's event loop was running.
+
+    Django keeps connections per execution context. Database work done in the test
+    thread while the sync Playwright loop runs (test code, and pytest-django's flush
+    after each live-server test) can use a connection of its own that Django's final
+    clean-up does not see; left open, it blocks dropping the PostgreSQL test database.
+    """
+    from django.db import connections
+
+    connections.close_all()
+
+
 @pytest.fixture(scope="session")
 def chromium():
     if not CHROMIUM.exists():
@@ -65,6 +78,7 @@ def chromium():
         )
         yield browser
         browser.close()
+        _close_test_thread_connections()  # after the last test's flush, while Playwright's loop still runs
 
 
 @pytest.fixture

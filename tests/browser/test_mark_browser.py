@@ -119,3 +119,24 @@ def test_viewer_sees_no_edit_and_is_refused(page, district):
     expect(page.get_by_role("heading", name="Not allowed")).to_be_visible()
     page.get_by_role("button", name="Sign out").click()
     expect(page.get_by_role("heading", name="Sign in")).to_be_visible()
+
+
+def test_the_whole_flow_works_without_javascript(chromium, live_server, district):
+    """Search, open and edit with JavaScript switched off in the browser."""
+    from playwright.sync_api import expect
+
+    context = chromium.new_context(java_script_enabled=False, base_url=live_server.url)
+    try:
+        page = context.new_page()
+        sign_in(page, "mona", "pw-mona-123!")
+        page.get_by_label("Code or name").fill("heron")
+        page.get_by_role("button", name="Search").click()
+        expect(page.locator("#counts")).to_contain_text("of 1 matching mark")
+        page.get_by_role("link", name="KV-003", exact=True).click()
+        page.get_by_role("link", name="Edit description").click()
+        page.get_by_label("Custodian").fill("Heron Point Wildlife Refuge (invented)")
+        page.get_by_role("button", name="Save changes").click()
+        expect(page.locator("dl.facts")).to_contain_text("Heron Point Wildlife Refuge (invented)")
+        assert Mark.objects.get(code="KV-003").version == 2
+    finally:
+        context.close()
