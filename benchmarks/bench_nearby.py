@@ -91,16 +91,20 @@ def main() -> None:
     print()
     print(f"Nearest {LIMIT} within {RADIUS_M / 1000:.0f} km among {args.marks:,} marks; {args.queries} random points")
     print(
-        f"{'backend / path':<28}{'median ms':>11}{'p90 ms':>9}{'exact brute ms':>16}{'ratio':>9}{'haversine ms':>14}{'ratio':>8}  agree"
+        f"{'backend / path':<28}{'median ms':>11}{'p90 ms':>9}{'client CPU ms':>15}"
+        f"{'exact brute ms':>16}{'ratio':>9}{'haversine ms':>14}{'ratio':>8}  agree"
     )
     for backend, r in results.items():
         for path, t in r["paths"].items():
             print(
                 f"{backend + ' / ' + path:<28}{t['median_ms']:>11.2f}{t['p90_ms']:>9.2f}"
+                f"{t['client_cpu_median_ms']:>15.2f}"
                 f"{r['brute_exact_ms']:>16.1f}{r['brute_exact_ms'] / t['median_ms']:>8.0f}×"
                 f"{r['brute_haversine_ms']:>14.1f}{r['brute_haversine_ms'] / t['median_ms']:>7.0f}×"
                 f"  {t['agree']}/{t['checked']}"
             )
+    loads = ", ".join(f"{b} {r['load_average_1min']:.1f}" for b, r in results.items())
+    print(f"1-minute load average at the end of each run ({os.cpu_count()} CPUs): {loads}")
     print()
     print(json.dumps(results, indent=2))
 
@@ -242,10 +246,13 @@ def worker(args) -> dict:
         for i in range(20):  # warm-up
             marks_near(lat_deg=q_lat[i], lon_deg=q_lon[i], radius_m=RADIUS_M, limit=LIMIT, path=path)
         ms = []
+        cpu_ms = []
         agree = checked = 0
         for i in range(20, 20 + args.queries):
             t0 = time.perf_counter()
+            c0 = time.process_time()
             found = marks_near(lat_deg=q_lat[i], lon_deg=q_lon[i], radius_m=RADIUS_M, limit=LIMIT, path=path)
+            cpu_ms.append((time.process_time() - c0) * 1000.0)
             ms.append((time.perf_counter() - t0) * 1000.0)
             if checked < 10:
                 checked += 1
@@ -253,6 +260,7 @@ def worker(args) -> dict:
         timings[path] = {
             "median_ms": statistics.median(ms),
             "p90_ms": float(np.percentile(ms, 90)),
+            "client_cpu_median_ms": statistics.median(cpu_ms),
             "agree": agree,
             "checked": checked,
         }
@@ -277,6 +285,7 @@ def worker(args) -> dict:
         "brute_haversine_ms": statistics.median(hav),
         "python": sys.version.split()[0],
         "cpus": os.cpu_count(),
+        "load_average_1min": os.getloadavg()[0],
     }
 
 

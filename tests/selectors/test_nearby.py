@@ -551,3 +551,28 @@ def test_sphere_factors_bound_postgis_spherical_distances():
     ratios = np.array(ratios)
     assert ratios.min() >= lo and ratios.max() <= hi
     assert ratios[-3] == pytest.approx(0.99442, abs=2e-5)  # north–south on the equator
+
+
+def test_marks_come_back_as_full_instances_like_the_orm(world):
+    """The raw fetch behind the results gives the same field values as the ORM (aware
+    datetimes included), on either database."""
+    found = marks_near(lat_deg=45.2, lon_deg=-110.6, radius_m=20_000.0, limit=25)
+    assert len(found) == 25
+    orm = Mark.objects.in_bulk([m.mark.pk for m in found])
+    for item in found:
+        expected = orm[item.mark.pk]
+        for f in Mark._meta.concrete_fields:
+            assert getattr(item.mark, f.attname) == getattr(expected, f.attname), f.name
+        assert item.mark.created_at.tzinfo is not None
+
+
+def test_a_large_unlimited_result_is_fetched_in_chunks():
+    """More marks than SQLite accepts parameters in one statement (32 766 by default since
+    SQLite 3.32; 999 before): the id lists are sent in chunks."""
+    Mark.objects.bulk_create(
+        [Mark(code=f"BULK{i:05d}", search_lat_deg=45.2 + (i % 200) * 1e-4, search_lon_deg=-110.6 + (i // 200) * 1e-4)
+         for i in range(2400)]
+    )  # fmt: skip
+    found = marks_near(lat_deg=45.21, lon_deg=-110.595, radius_m=5_000.0, accuracy_class_max_m=None)
+    assert len(found) == 2400
+    assert len(marks_near(lat_deg=45.21, lon_deg=-110.595, radius_m=5_000.0, accuracy_class_max_m=1.0)) == 0
