@@ -494,7 +494,8 @@ def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm,
     core.info["pair_pool"] = int(pool.size)
     if pool.size < 2:
         return
-    m = _margins(pool, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm)
+    # float32: margins are in mm, so its resolution (~1e-6 mm here) is far below anything shown.
+    m = _margins(pool, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm).astype(np.float32)
     bits = np.packbits((m >= 0) & cells[None, :], axis=1)
     iu, ju = np.triu_indices(pool.size, k=1)
     pair_cov = np.empty(iu.size, dtype=np.int64)
@@ -520,7 +521,7 @@ def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm,
     i, j = int(pool[iu[s]]), int(pool[ju[s]])
     core.pair = (i, j)
     core.pair_coverage = cov_count / max(int(cells.sum()), 1)
-    core.pair_worst_margin_mm = worst_margin
+    core.pair_worst_margin_mm = float(worst_margin)
     # The pair's worst 95 % figures: per point the better base (by margin), then the worst point.
     mi, mj = m[iu[s]], m[ju[s]]
     use_i = mi >= mj
