@@ -47,32 +47,51 @@ def main() -> None:
     k = args.candidates
     c_lat, c_lon = p0.to_geodetic_deg(rng.uniform(-12_000, 12_000, k), rng.uniform(-12_000, 12_000, k))
     terms = dict(
-        base_h_mm=rng.uniform(2, 8, k), base_v_mm=rng.uniform(3, 12, k), drift_h_mm=rng.uniform(0, 10, k),
-        drift_v_mm=rng.uniform(0, 10, k), usable=rng.random(k) > 0.2,
+        base_h_mm=rng.uniform(2, 8, k),
+        base_v_mm=rng.uniform(3, 12, k),
+        drift_h_mm=rng.uniform(0, 10, k),
+        drift_v_mm=rng.uniform(0, 10, k),
+        usable=rng.random(k) > 0.2,
     )
     model = RtkErrorModel()
 
     def core():
         ce, cn = plane.to_local_m(c_lat, c_lon)
-        return screen_candidates(grid.e_m, grid.n_m, grid.is_cell, ce, cn, model=model, tol_h_mm=30.0, tol_v_mm=45.0,
-                                 max_baseline_m=10_000.0, **terms)
+        return screen_candidates(
+            grid.e_m,
+            grid.n_m,
+            grid.is_cell,
+            ce,
+            cn,
+            model=model,
+            tol_h_mm=30.0,
+            tol_v_mm=45.0,
+            max_baseline_m=10_000.0,
+            **terms,
+        )
 
     def with_grid():
         build_site_grid(site, plane, spacing)
         return core()
 
-    for fn, label in ((core, "core: project 1,000 marks + screen over the grid"),
-                      (with_grid, "core + building the site grid")):
+    for fn, label in (
+        (core, "core: project 1,000 marks + screen over the grid"),
+        (with_grid, "core + building the site grid"),
+    ):
         fn()  # warm-up
         times = []
         for _ in range(args.repeat):
             t = time.perf_counter()
             result = fn()
             times.append(time.perf_counter() - t)
-        print(f"{label:<52} median {statistics.median(times) * 1000:7.1f} ms  (min {min(times) * 1000:.1f}, "
-              f"max {max(times) * 1000:.1f}; {k} candidates × {grid.e_m.size} points, of which {grid.n_cells} cells)")
-    print(f"  eligible candidates {int(result.eligible.sum())}, pair pool {result.info['pair_pool']}, "
-          f"best pair coverage {result.pair_coverage:.3f}")
+        print(
+            f"{label:<52} median {statistics.median(times) * 1000:7.1f} ms  (min {min(times) * 1000:.1f}, "
+            f"max {max(times) * 1000:.1f}; {k} candidates × {grid.e_m.size} points, of which {grid.n_cells} cells)"
+        )
+    print(
+        f"  eligible candidates {int(result.eligible.sum())}, pair pool {result.info['pair_pool']}, "
+        f"best pair coverage {result.pair_coverage:.3f}"
+    )
 
     # The planar distances the core uses, against geodesics (pyproj Geod, GRS80), for 20,000 random pairs.
     i = rng.integers(0, k, 20_000)
@@ -83,13 +102,17 @@ def main() -> None:
     _, _, geodesic = Geod(ellps="GRS80").inv(c_lon[i], c_lat[i], g_lon, g_lat)
     ok = geodesic > 100
     rel = np.abs(planar[ok] - geodesic[ok]) / geodesic[ok]
-    print(f"planar vs geodesic distance (≤ {geodesic.max() / 1000:.1f} km): max relative difference {rel.max():.2e}, "
-          f"max absolute {np.abs(planar - geodesic).max() * 1000:.1f} mm")
+    print(
+        f"planar vs geodesic distance (≤ {geodesic.max() / 1000:.1f} km): max relative difference {rel.max():.2e}, "
+        f"max absolute {np.abs(planar - geodesic).max() * 1000:.1f} mm"
+    )
     t = time.perf_counter()
     Geod(ellps="GRS80").inv(c_lon[i], c_lat[i], g_lon, g_lat)
     per_pair = (time.perf_counter() - t) / 20_000
-    print(f"for comparison, geodesic inverses for all {k * grid.e_m.size:,} pairs would take ≈ "
-          f"{per_pair * k * grid.e_m.size:.1f} s")
+    print(
+        f"for comparison, geodesic inverses for all {k * grid.e_m.size:,} pairs would take ≈ "
+        f"{per_pair * k * grid.e_m.size:.1f} s"
+    )
 
 
 if __name__ == "__main__":

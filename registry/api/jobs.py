@@ -40,10 +40,32 @@ class JobSerializer(serializers.ModelSerializer):
     class Meta:
         model = Job
         fields = [
-            "code", "name", "client", "status", "site_geojson", "frame_epsg", "epoch_yr", "grid_epsg", "tol_h_mm",
-            "tol_v_mm", "rtk_h_fixed_mm", "rtk_h_ppm", "rtk_v_fixed_mm", "rtk_v_ppm", "rtk_combination",
-            "rtk_h_meaning", "setup_h_mm", "setup_v_mm", "assumed_rate_mm_yr", "max_baseline_m", "recovery_years",
-            "grid_spacing_m", "notes", "version", "created_at", "updated_at",
+            "code",
+            "name",
+            "client",
+            "status",
+            "site_geojson",
+            "frame_epsg",
+            "epoch_yr",
+            "grid_epsg",
+            "tol_h_mm",
+            "tol_v_mm",
+            "rtk_h_fixed_mm",
+            "rtk_h_ppm",
+            "rtk_v_fixed_mm",
+            "rtk_v_ppm",
+            "rtk_combination",
+            "rtk_h_meaning",
+            "setup_h_mm",
+            "setup_v_mm",
+            "assumed_rate_mm_yr",
+            "max_baseline_m",
+            "recovery_years",
+            "grid_spacing_m",
+            "notes",
+            "version",
+            "created_at",
+            "updated_at",
         ]
         read_only_fields = fields
 
@@ -141,7 +163,9 @@ def _as_of(value) -> dt.date | None:
     try:
         return dt.date.fromisoformat(str(value))
     except ValueError:
-        raise ValidationError({"as_of": ValidationError("Expected a date as YYYY-MM-DD.", code="invalid_date")}) from None
+        raise ValidationError(
+            {"as_of": ValidationError("Expected a date as YYYY-MM-DD.", code="invalid_date")}
+        ) from None
 
 
 def _body(request) -> dict:
@@ -177,7 +201,11 @@ class JobDetailView(APIView):
         operation_id="jobs_update",
         request=JobCreateInput(partial=True),
         description="Send the fields to change and `version` (the version you started from).",
-        responses={200: JobSerializer, 409: OpenApiResponse(description="stale_version: details {field: {yours, theirs}}."), **ERRORS},
+        responses={
+            200: JobSerializer,
+            409: OpenApiResponse(description="stale_version: details {field: {yours, theirs}}."),
+            **ERRORS,
+        },
     )
     def patch(self, request, code: str):
         body = _body(request)
@@ -191,7 +219,9 @@ class JobScreeningView(APIView):
 
     @extend_schema(
         operation_id="jobs_screening",
-        parameters=[OpenApiParameter("as_of", OpenApiTypes.DATE, description="Screen as of this date (default today, UTC).")],
+        parameters=[
+            OpenApiParameter("as_of", OpenApiTypes.DATE, description="Screen as of this date (default today, UTC).")
+        ],
         responses={200: ScreeningOutput, 404: ERRORS[404]},
     )
     def get(self, request, code: str):
@@ -202,8 +232,9 @@ class JobScreeningView(APIView):
 class SiteScreeningView(APIView):
     permission_classes = [IsViewer]
 
-    @extend_schema(operation_id="screening_ad_hoc", request=ScreeningSettingsInput,
-                   responses={200: ScreeningOutput, **ERRORS})
+    @extend_schema(
+        operation_id="screening_ad_hoc", request=ScreeningSettingsInput, responses={200: ScreeningOutput, **ERRORS}
+    )
     def post(self, request):
         ser = ScreeningSettingsInput(data=request.data)
         ser.is_valid(raise_exception=True)

@@ -564,8 +564,19 @@ def farthest_point_selection(e_m, n_m, *, first: int, count: int, avoid_e_m=(), 
     return chosen
 
 
-def check_shot_allowance_mm(distance_m, *, model: RtkErrorModel, base_h_mm, base_v_mm, base_drift_h_mm,
-                            base_drift_v_mm, check_h_mm, check_v_mm, check_drift_h_mm, check_drift_v_mm):
+def check_shot_allowance_mm(
+    distance_m,
+    *,
+    model: RtkErrorModel,
+    base_h_mm,
+    base_v_mm,
+    base_drift_h_mm,
+    base_drift_v_mm,
+    check_h_mm,
+    check_v_mm,
+    check_drift_h_mm,
+    check_drift_v_mm,
+):
     """Largest check-shot discrepancy still consistent at 95 % (horizontal circle, vertical), mm.
 
     The rover's error at the check mark from the base (RTK at the baseline, base
@@ -578,8 +589,20 @@ def check_shot_allowance_mm(distance_m, *, model: RtkErrorModel, base_h_mm, base
     >>> round(float(h), 3), round(float(v), 3)
     (24.477, 48.999)
     """
-    sh2 = (model.rtk_h_axis_mm(distance_m) ** 2 + np.square(base_h_mm) + np.square(base_drift_h_mm)
-           + model.setup_h_mm**2 + np.square(check_h_mm) + np.square(check_drift_h_mm))
-    sv2 = (model.rtk_v_mm(distance_m) ** 2 + np.square(base_v_mm) + np.square(base_drift_v_mm)
-           + model.setup_v_mm**2 + np.square(check_v_mm) + np.square(check_drift_v_mm))
+    sh2 = (
+        model.rtk_h_axis_mm(distance_m) ** 2
+        + np.square(base_h_mm)
+        + np.square(base_drift_h_mm)
+        + model.setup_h_mm**2
+        + np.square(check_h_mm)
+        + np.square(check_drift_h_mm)
+    )
+    sv2 = (
+        model.rtk_v_mm(distance_m) ** 2
+        + np.square(base_v_mm)
+        + np.square(base_drift_v_mm)
+        + model.setup_v_mm**2
+        + np.square(check_v_mm)
+        + np.square(check_drift_v_mm)
+    )
     return K_H95 * np.sqrt(sh2), K_V95 * np.sqrt(sv2)

@@ -159,8 +159,10 @@ def _number(value: Any) -> bool:
 
 def _position(pos: Any, where: str) -> tuple[float, float, float | None]:
     if not isinstance(pos, list | tuple) or len(pos) not in (2, 3) or not all(_number(v) for v in pos):
-        raise SiteError(f"{where}: a position is [longitude, latitude] or [longitude, latitude, height] in numbers.",
-                        code="invalid_position")
+        raise SiteError(
+            f"{where}: a position is [longitude, latitude] or [longitude, latitude, height] in numbers.",
+            code="invalid_position",
+        )
     lon, lat = float(pos[0]), float(pos[1])
     if not -180.0 <= lon <= 180.0 or not -90.0 <= lat <= 90.0:
         raise SiteError(
@@ -229,12 +231,14 @@ def parse_site_geojson(value: Any) -> Site:
     for r_index, ring in enumerate(coords):
         where = "exterior ring" if r_index == 0 else f"hole {r_index}"
         if not isinstance(ring, list) or len(ring) < 4:
-            raise SiteError(f"The {where} needs at least 4 positions (3 corners and the closing one).",
-                            code="too_few_positions")
+            raise SiteError(
+                f"The {where} needs at least 4 positions (3 corners and the closing one).", code="too_few_positions"
+            )
         pts = np.array([_position(p, where)[:2] for p in ring], dtype=float)
         if not np.array_equal(pts[0], pts[-1]):
-            raise SiteError(f"The {where} is not closed: its last position must repeat the first.",
-                            code="ring_not_closed")
+            raise SiteError(
+                f"The {where} is not closed: its last position must repeat the first.", code="ring_not_closed"
+            )
         if len(np.unique(pts[:-1], axis=0)) < 3:
             raise SiteError(f"The {where} needs at least 3 distinct corners.", code="too_few_positions")
         rings.append(pts)

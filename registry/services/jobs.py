@@ -133,7 +133,9 @@ def _epsg(field: str, value: Any) -> int | None:
         try:
             crs = pyproj.CRS.from_epsg(code)
         except pyproj.exceptions.CRSError:
-            raise field_error(field, f"EPSG:{code} is not a known coordinate reference system.", "invalid_grid") from None
+            raise field_error(
+                field, f"EPSG:{code} is not a known coordinate reference system.", "invalid_grid"
+            ) from None
         if not crs.is_projected:
             raise field_error(field, f"EPSG:{code} ({crs.name}) is not a projected grid.", "invalid_grid", value=code)
     return code
@@ -192,7 +194,11 @@ def _clean(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
                     raise field_error(key, f"At most {TEXT_FIELDS[key]} characters.", "max_length")
                 cleaned[key] = value
             else:
-                choices = {"status": JobStatus, "rtk_combination": RtkCombination, "rtk_h_meaning": RtkHorizontalMeaning}[key]
+                choices = {
+                    "status": JobStatus,
+                    "rtk_combination": RtkCombination,
+                    "rtk_h_meaning": RtkHorizontalMeaning,
+                }[key]
                 if value not in choices.values:
                     raise field_error(key, f"{value!r} is not one of: {', '.join(choices.values)}.", "invalid_choice")
                 cleaned[key] = value
@@ -317,7 +323,10 @@ def job_update(*, actor, code: str, expected_version: Any, changes: dict) -> Job
         else:
             job.refresh_from_db()
             audit_record(
-                actor=actor, action="job_update", obj=job, before={**before, "version": version},
+                actor=actor,
+                action="job_update",
+                obj=job,
+                before={**before, "version": version},
                 after={**diff, "version": job.version},
             )
     if conflict is not None:

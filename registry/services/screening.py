@@ -259,7 +259,10 @@ def _candidate_dict(c: Candidate) -> dict[str, Any]:
         "reasons": [{"code": r, "words": rtk.REASON_WORDS[r]} for r in c.reasons],
         "budget": None
         if c.budget is None
-        else [{"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"])} for t in ("rtk", "base", "drift", "setup")],
+        else [
+            {"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"])}
+            for t in ("rtk", "base", "drift", "setup")
+        ],
         "sigma_h_mm": None if c.budget is None else _mm(c.budget["sigma_h"]),
         "sigma_v_mm": None if c.budget is None else _mm(c.budget["sigma_v"]),
         "steps": c.steps,
@@ -345,7 +348,9 @@ def _gather(s: ScreeningSettings, plane: site_geo.LocalPlane, radius_m: float, a
         .values_list("mark_id", "last")
     )
     positions: dict[int, list[Position]] = {}
-    for p in Position.objects.filter(mark_id__in=ids, state=PositionState.PUBLISHED).order_by("mark_id", "-epoch_yr", "-id"):
+    for p in Position.objects.filter(mark_id__in=ids, state=PositionState.PUBLISHED).order_by(
+        "mark_id", "-epoch_yr", "-id"
+    ):
         positions.setdefault(p.mark_id, []).append(p)
 
     out = []
@@ -425,7 +430,15 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     warnings: list[str] = []
     if not cands:
         return ScreeningResult(
-            s, as_of, plane, grid, [], None, None, [], [],
+            s,
+            as_of,
+            plane,
+            grid,
+            [],
+            None,
+            None,
+            [],
+            [],
             f"No marks in the registry within {radius / 1000:.1f} km of the site. Nothing can serve as a base.",
             warnings,
         )
@@ -435,16 +448,26 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     ce, cn = plane.to_local_m(lat, lon)
     usable = np.array([not c.reasons for c in cands])
     core = rtk.screen_candidates(
-        grid.e_m, grid.n_m, grid.is_cell, ce, cn,
+        grid.e_m,
+        grid.n_m,
+        grid.is_cell,
+        ce,
+        cn,
         base_h_mm=np.nan_to_num(np.array([c.base_h_mm for c in cands]), nan=0.0),
         base_v_mm=np.nan_to_num(np.array([c.base_v_mm for c in cands]), nan=0.0),
         drift_h_mm=np.nan_to_num(np.array([c.drift_h_mm for c in cands]), nan=0.0),
         drift_v_mm=np.nan_to_num(np.array([c.drift_v_mm for c in cands]), nan=0.0),
-        usable=usable, model=s.model, tol_h_mm=s.tol_h_mm, tol_v_mm=s.tol_v_mm, max_baseline_m=s.max_baseline_m,
+        usable=usable,
+        model=s.model,
+        tol_h_mm=s.tol_h_mm,
+        tol_v_mm=s.tol_v_mm,
+        max_baseline_m=s.max_baseline_m,
     )
     from pyproj import Geod
 
-    az, _, geodesic_m = Geod(ellps="GRS80").inv(np.full(k, s.site.ref_lon_deg), np.full(k, s.site.ref_lat_deg), lon, lat)
+    az, _, geodesic_m = Geod(ellps="GRS80").inv(
+        np.full(k, s.site.ref_lon_deg), np.full(k, s.site.ref_lat_deg), lon, lat
+    )
     for i, c in enumerate(cands):
         c.e_m, c.n_m = float(ce[i]), float(cn[i])
         if s.site.is_point:  # the exact geodesic distance (the core's planar one agrees to < 1e-5)
@@ -461,8 +484,12 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
             c.margin_mm = float(core.margin_mm[i])
             c.coverage = float(core.coverage[i])
             c.budget = rtk.error_budget_mm(
-                core.max_distance_m[i], model=s.model, base_h_mm=c.base_h_mm, base_v_mm=c.base_v_mm,
-                drift_h_mm=c.drift_h_mm, drift_v_mm=c.drift_v_mm,
+                core.max_distance_m[i],
+                model=s.model,
+                base_h_mm=c.base_h_mm,
+                base_v_mm=c.base_v_mm,
+                drift_h_mm=c.drift_h_mm,
+                drift_v_mm=c.drift_v_mm,
             )
     ordered = [cands[i] for i in core.order]
     for rank, c in enumerate(ordered, start=1):
@@ -491,8 +518,10 @@ def _check_marks(s: ScreeningSettings, ordered: list[Candidate], chosen: list[Ca
     if not chosen:
         return []
     rule_ok = [
-        c for c in ordered
-        if c.position is not None and c not in chosen
+        c
+        for c in ordered
+        if c.position is not None
+        and c not in chosen
         and all(r == rtk.REASON_BEYOND_MAX_BASELINE for r in c.reasons)
         and c.distance_m <= CHECK_NEAR_M
         and any(math.hypot(c.e_m - b.e_m, c.n_m - b.n_m) <= s.max_baseline_m for b in chosen)
@@ -519,12 +548,24 @@ def _check_marks(s: ScreeningSettings, ordered: list[Candidate], chosen: list[Ca
             if d > s.max_baseline_m:
                 continue
             h, v = rtk.check_shot_allowance_mm(
-                d, model=s.model, base_h_mm=b.base_h_mm, base_v_mm=b.base_v_mm, base_drift_h_mm=b.drift_h_mm,
-                base_drift_v_mm=b.drift_v_mm, check_h_mm=c.base_h_mm, check_v_mm=c.base_v_mm,
-                check_drift_h_mm=c.drift_h_mm, check_drift_v_mm=c.drift_v_mm,
+                d,
+                model=s.model,
+                base_h_mm=b.base_h_mm,
+                base_v_mm=b.base_v_mm,
+                base_drift_h_mm=b.drift_h_mm,
+                base_drift_v_mm=b.drift_v_mm,
+                check_h_mm=c.base_h_mm,
+                check_v_mm=c.base_v_mm,
+                check_drift_h_mm=c.drift_h_mm,
+                check_drift_v_mm=c.drift_v_mm,
             )
             allowances.append(
-                {"base": b.mark.code, "baseline_m": _m(d), "horizontal_95_mm": _mm(float(h)), "vertical_95_mm": _mm(float(v))}
+                {
+                    "base": b.mark.code,
+                    "baseline_m": _m(d),
+                    "horizontal_95_mm": _mm(float(h)),
+                    "vertical_95_mm": _mm(float(v)),
+                }
             )
         out.append(CheckMark(c, allowances))
     return out
@@ -551,7 +592,8 @@ def _statement(s: ScreeningSettings, core: rtk.ScreeningCore, usable: list[Candi
         )
     pair_text = (
         f" The best pair, {pair[0].mark.code} + {pair[1].mark.code}, covers {core.pair_coverage * 100:.0f} %."
-        if pair is not None else ""
+        if pair is not None
+        else ""
     )
     return (
         f"The site cannot be covered within {tol} from the marks available. The best single base, "

@@ -84,6 +84,7 @@ def job_map_svg(result: ScreeningResult) -> str:
     checks = {id(cm.candidate) for cm in result.check_marks}
     shown = [c for c in result.candidates if not c.excluded or id(c) in chosen]
     excluded = [c for c in result.candidates if c.excluded and c.lat_deg is not None]
+
     def xy(cands):
         if not cands:
             return np.zeros(0), np.zeros(0)
@@ -108,7 +109,7 @@ def job_map_svg(result: ScreeningResult) -> str:
         f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {WIDTH_PX} {HEIGHT_PX}" class="jobmap" role="img" '
         f'aria-labelledby="jobmap-title">',
         f'<title id="jobmap-title">Map of job {escape(s.job_code or "site")}: site, candidate marks and coverage '
-        f'(UTM zone {zone}{"N" if north else "S"}, grid north up)</title>',
+        f"(UTM zone {zone}{'N' if north else 'S'}, grid north up)</title>",
         "<defs>"
         '<pattern id="over-hatch" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(45)">'
         f'<rect width="6" height="6" fill="{CLASS_COLOURS[4]}"/><line x1="0" y1="0" x2="0" y2="6" stroke="#7a4a33" '
@@ -154,12 +155,16 @@ def job_map_svg(result: ScreeningResult) -> str:
     for c, x, y in zip(shown, s_px, s_py, strict=True):
         code = escape(c.mark.code)
         if id(c) in chosen:
-            shape = (f'<path d="M{x:.1f},{y - 9:.1f}L{x + 8:.1f},{y + 6:.1f}L{x - 8:.1f},{y + 6:.1f}Z" '
-                     'fill="#1d1f21" stroke="#fff" stroke-width="1"/>')
+            shape = (
+                f'<path d="M{x:.1f},{y - 9:.1f}L{x + 8:.1f},{y + 6:.1f}L{x - 8:.1f},{y + 6:.1f}Z" '
+                'fill="#1d1f21" stroke="#fff" stroke-width="1"/>'
+            )
             role = "base"
         elif id(c) in checks:
-            shape = (f'<rect x="{x - 6:.1f}" y="{y - 6:.1f}" width="12" height="12" fill="#fff" stroke="#1d1f21" '
-                     'stroke-width="2"/>')
+            shape = (
+                f'<rect x="{x - 6:.1f}" y="{y - 6:.1f}" width="12" height="12" fill="#fff" stroke="#1d1f21" '
+                'stroke-width="2"/>'
+            )
             role = "check"
         else:
             shape = f'<circle cx="{x:.1f}" cy="{y:.1f}" r="5" fill="#fff" stroke="#24527a" stroke-width="2"/>'

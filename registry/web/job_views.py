@@ -52,30 +52,46 @@ HELP = {
 
 
 def _text(label, required=False, help_text=""):
-    return forms.CharField(label=label, required=required, help_text=help_text,
-                           widget=forms.TextInput(attrs={"inputmode": "decimal", "class": "num"}))
+    return forms.CharField(
+        label=label,
+        required=required,
+        help_text=help_text,
+        widget=forms.TextInput(attrs={"inputmode": "decimal", "class": "num"}),
+    )
 
 
 class JobForm(forms.Form):
     """All fields are passed as text to the service, which converts and validates them (coded errors)."""
 
-    code = forms.CharField(label="Job code", required=False, max_length=32,
-                           help_text="Capital letters, digits, '_', '.', '-' (e.g. J-2025-014).")
+    code = forms.CharField(
+        label="Job code",
+        required=False,
+        max_length=32,
+        help_text="Capital letters, digits, '_', '.', '-' (e.g. J-2025-014).",
+    )
     name = forms.CharField(label="Name", required=False, max_length=200)
     client = forms.CharField(label="Client", required=False, max_length=200)
     status = forms.ChoiceField(label="Status", choices=JobStatus.choices, initial=JobStatus.PLANNING)
     site_geojson = forms.CharField(
-        label="Site as GeoJSON (Point or Polygon, longitude/latitude in degrees)", required=False,
+        label="Site as GeoJSON (Point or Polygon, longitude/latitude in degrees)",
+        required=False,
         widget=forms.Textarea(attrs={"rows": 5, "cols": 70, "class": "mono", "spellcheck": "false"}),
     )
     site_lat_deg = _text("…or a site point: latitude (decimal degrees)")
     site_lon_deg = _text("…and longitude (decimal degrees, west negative)")
-    frame_epsg = _text("Deliverable frame (EPSG code of a geographic 3D CRS)", help_text="e.g. 6319 NAD83(2011), 7912 ITRF2014, 9989 ITRF2020")
+    frame_epsg = _text(
+        "Deliverable frame (EPSG code of a geographic 3D CRS)",
+        help_text="e.g. 6319 NAD83(2011), 7912 ITRF2014, 9989 ITRF2020",
+    )
     grid_epsg = _text("Deliverable grid (EPSG; empty: UTM zone chosen automatically)")
-    rtk_combination = forms.ChoiceField(label="RTK error combination", choices=RtkCombination.choices,
-                                        initial=RtkCombination.ADDITIVE)
-    rtk_h_meaning = forms.ChoiceField(label="The horizontal RTK figure is", choices=RtkHorizontalMeaning.choices,
-                                      initial=RtkHorizontalMeaning.PER_AXIS)
+    rtk_combination = forms.ChoiceField(
+        label="RTK error combination", choices=RtkCombination.choices, initial=RtkCombination.ADDITIVE
+    )
+    rtk_h_meaning = forms.ChoiceField(
+        label="The horizontal RTK figure is",
+        choices=RtkHorizontalMeaning.choices,
+        initial=RtkHorizontalMeaning.PER_AXIS,
+    )
     notes = forms.CharField(label="Notes", required=False, widget=forms.Textarea(attrs={"rows": 3, "cols": 70}))
     version = forms.IntegerField(widget=forms.HiddenInput, required=False)
 
@@ -83,10 +99,34 @@ class JobForm(forms.Form):
         super().__init__(*args, **kwargs)
         for name, label in NUMBER_FIELDS:
             self.fields[name] = _text(label, help_text=HELP.get(name, ""))
-        order = ["code", "name", "client", "status", "site_geojson", "site_lat_deg", "site_lon_deg", "frame_epsg",
-                 "epoch_yr", "grid_epsg", "tol_h_mm", "tol_v_mm", "rtk_h_fixed_mm", "rtk_h_ppm", "rtk_v_fixed_mm",
-                 "rtk_v_ppm", "rtk_combination", "rtk_h_meaning", "setup_h_mm", "setup_v_mm", "assumed_rate_mm_yr",
-                 "max_baseline_m", "recovery_years", "grid_spacing_m", "notes", "version"]
+        order = [
+            "code",
+            "name",
+            "client",
+            "status",
+            "site_geojson",
+            "site_lat_deg",
+            "site_lon_deg",
+            "frame_epsg",
+            "epoch_yr",
+            "grid_epsg",
+            "tol_h_mm",
+            "tol_v_mm",
+            "rtk_h_fixed_mm",
+            "rtk_h_ppm",
+            "rtk_v_fixed_mm",
+            "rtk_v_ppm",
+            "rtk_combination",
+            "rtk_h_meaning",
+            "setup_h_mm",
+            "setup_v_mm",
+            "assumed_rate_mm_yr",
+            "max_baseline_m",
+            "recovery_years",
+            "grid_spacing_m",
+            "notes",
+            "version",
+        ]
         self.order_fields(order)
         if editing:
             del self.fields["code"]
@@ -96,14 +136,17 @@ class JobForm(forms.Form):
         lat, lon = data.get("site_lat_deg", "").strip(), data.get("site_lon_deg", "").strip()
         if lat or lon:
             if not (lat and lon):
-                raise ValidationError("Give both latitude and longitude of the site point.", code="site_point_incomplete")
+                raise ValidationError(
+                    "Give both latitude and longitude of the site point.", code="site_point_incomplete"
+                )
             if self.has_changed() and "site_geojson" in self.changed_data and data.get("site_geojson", "").strip():
                 raise ValidationError("Give the site either as GeoJSON or as a point, not both.", code="site_twice")
             try:
                 data["site_geojson"] = json.dumps({"type": "Point", "coordinates": [float(lon), float(lat)]})
             except ValueError:
-                raise ValidationError("The site point's latitude and longitude must be numbers.",
-                                      code="invalid_number") from None
+                raise ValidationError(
+                    "The site point's latitude and longitude must be numbers.", code="invalid_number"
+                ) from None
             self._site_from_point = True
         return data
 
@@ -135,8 +178,10 @@ class JobForm(forms.Form):
 
 
 def _initial(job: Job) -> dict:
-    initial = {name: getattr(job, name) for name in (
-        "name", "client", "status", "frame_epsg", "grid_epsg", "rtk_combination", "rtk_h_meaning", "notes")}
+    initial = {
+        name: getattr(job, name)
+        for name in ("name", "client", "status", "frame_epsg", "grid_epsg", "rtk_combination", "rtk_h_meaning", "notes")
+    }
     initial["grid_epsg"] = "" if job.grid_epsg is None else str(job.grid_epsg)
     initial["frame_epsg"] = str(job.frame_epsg)
     for name, _ in NUMBER_FIELDS:
@@ -160,8 +205,9 @@ def job_list(request: HttpRequest) -> HttpResponse:
         except Exception:  # an unknown code stored before validation existed: show the number
             frame = f"EPSG:{job.frame_epsg}"
         rows.append({"job": job, "frame": frame, "site_kind": (job.site_geojson or {}).get("type", "?")})
-    return render(request, "registry/job_list.html",
-                  {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)})
+    return render(
+        request, "registry/job_list.html", {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)}
+    )
 
 
 def _screening_context(result: ScreeningResult) -> dict:
@@ -171,13 +217,15 @@ def _screening_context(result: ScreeningResult) -> dict:
     rows = []
     for c in result.candidates:
         role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
-        rows.append({
-            "c": c,
-            "role": role,
-            "budget": c.budget,
-            "coverage_pct": c.coverage * 100,
-            "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
-        })
+        rows.append(
+            {
+                "c": c,
+                "role": role,
+                "budget": c.budget,
+                "coverage_pct": c.coverage * 100,
+                "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
+            }
+        )
     return {
         "result": result,
         "rows": rows,
@@ -217,8 +265,11 @@ def job_new(request: HttpRequest) -> HttpResponse:
         from django.conf import settings
 
         cfg = settings.REGISTRY
-        defaults.update(assumed_rate_mm_yr=cfg.get("ASSUMED_RATE_MM_YR", 2.0),
-                        max_baseline_m=cfg.get("MAX_BASELINE_M", 10000.0), recovery_years=cfg.get("RECOVERY_YEARS", 10.0))
+        defaults.update(
+            assumed_rate_mm_yr=cfg.get("ASSUMED_RATE_MM_YR", 2.0),
+            max_baseline_m=cfg.get("MAX_BASELINE_M", 10000.0),
+            recovery_years=cfg.get("RECOVERY_YEARS", 10.0),
+        )
         form = JobForm(initial={k: (f"{v:g}" if isinstance(v, float) else v) for k, v in defaults.items()})
     status = 400 if request.method == "POST" else 200
     return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
@@ -270,8 +321,20 @@ def job_edit(request: HttpRequest, code: str) -> HttpResponse:
 
 # ----------------------------------------------------------------------------- exports
 
-EXPORT_COLUMNS = ("role", "code", "name", "lat_deg", "lon_deg", "h_m", "frame_epsg", "frame", "epoch_yr",
-                  "horizontal_95_mm", "vertical_95_mm", "note")
+EXPORT_COLUMNS = (
+    "role",
+    "code",
+    "name",
+    "lat_deg",
+    "lon_deg",
+    "h_m",
+    "frame_epsg",
+    "frame",
+    "epoch_yr",
+    "horizontal_95_mm",
+    "vertical_95_mm",
+    "note",
+)
 
 
 def export_rows(result: ScreeningResult) -> list[dict]:
@@ -280,24 +343,43 @@ def export_rows(result: ScreeningResult) -> list[dict]:
     label = result.frame_label
     rows = []
     for c in result.chosen:
-        rows.append({
-            "role": "base", "code": c.mark.code, "name": c.mark.name,
-            "lat_deg": f"{c.lat_deg:.9f}", "lon_deg": f"{c.lon_deg:.9f}", "h_m": f"{c.h_m:.3f}",
-            "frame_epsg": s.frame_epsg, "frame": label, "epoch_yr": f"{s.epoch_yr:.3f}",
-            "horizontal_95_mm": f"{c.h95_mm:.1f}", "vertical_95_mm": f"{c.v95_mm:.1f}",
-            "note": "worst rover 95 % figures over the site from this base; ellipsoidal height",
-        })
+        rows.append(
+            {
+                "role": "base",
+                "code": c.mark.code,
+                "name": c.mark.name,
+                "lat_deg": f"{c.lat_deg:.9f}",
+                "lon_deg": f"{c.lon_deg:.9f}",
+                "h_m": f"{c.h_m:.3f}",
+                "frame_epsg": s.frame_epsg,
+                "frame": label,
+                "epoch_yr": f"{s.epoch_yr:.3f}",
+                "horizontal_95_mm": f"{c.h95_mm:.1f}",
+                "vertical_95_mm": f"{c.v95_mm:.1f}",
+                "note": "worst rover 95 % figures over the site from this base; ellipsoidal height",
+            }
+        )
     for cm in result.check_marks:
         c = cm.candidate
         first = cm.allowances[0] if cm.allowances else None
-        rows.append({
-            "role": "check", "code": c.mark.code, "name": c.mark.name,
-            "lat_deg": f"{c.lat_deg:.9f}", "lon_deg": f"{c.lon_deg:.9f}", "h_m": f"{c.h_m:.3f}",
-            "frame_epsg": s.frame_epsg, "frame": label, "epoch_yr": f"{s.epoch_yr:.3f}",
-            "horizontal_95_mm": "" if first is None else f"{first['horizontal_95_mm']:.1f}",
-            "vertical_95_mm": "" if first is None else f"{first['vertical_95_mm']:.1f}",
-            "note": "" if first is None else f"largest check-shot discrepancy consistent at 95 % from base {first['base']}",
-        })
+        rows.append(
+            {
+                "role": "check",
+                "code": c.mark.code,
+                "name": c.mark.name,
+                "lat_deg": f"{c.lat_deg:.9f}",
+                "lon_deg": f"{c.lon_deg:.9f}",
+                "h_m": f"{c.h_m:.3f}",
+                "frame_epsg": s.frame_epsg,
+                "frame": label,
+                "epoch_yr": f"{s.epoch_yr:.3f}",
+                "horizontal_95_mm": "" if first is None else f"{first['horizontal_95_mm']:.1f}",
+                "vertical_95_mm": "" if first is None else f"{first['vertical_95_mm']:.1f}",
+                "note": ""
+                if first is None
+                else f"largest check-shot discrepancy consistent at 95 % from base {first['base']}",
+            }
+        )
     return rows
 
 
@@ -319,16 +401,23 @@ def job_export_geojson(request: HttpRequest, code: str) -> HttpResponse:
     features = []
     for row in export_rows(result):
         props = {k: v for k, v in row.items() if k not in ("lat_deg", "lon_deg", "h_m")}
-        features.append({
-            "type": "Feature",
-            "geometry": {"type": "Point", "coordinates": [float(row["lon_deg"]), float(row["lat_deg"]), float(row["h_m"])]},
-            "properties": props,
-        })
+        features.append(
+            {
+                "type": "Feature",
+                "geometry": {
+                    "type": "Point",
+                    "coordinates": [float(row["lon_deg"]), float(row["lat_deg"]), float(row["h_m"])],
+                },
+                "properties": props,
+            }
+        )
     body = {
         "type": "FeatureCollection",
         "name": f"{code} bases and check marks",
-        "coordinates_note": (f"Longitude, latitude (degrees) and ellipsoidal height (m) in {result.frame_label} at "
-                             f"epoch {result.settings.epoch_yr:.3f}, not WGS 84. Verify control in the field before use."),
+        "coordinates_note": (
+            f"Longitude, latitude (degrees) and ellipsoidal height (m) in {result.frame_label} at "
+            f"epoch {result.settings.epoch_yr:.3f}, not WGS 84. Verify control in the field before use."
+        ),
         "features": features,
     }
     response = JsonResponse(body, json_dumps_params={"ensure_ascii": False, "indent": 1})

@@ -47,13 +47,31 @@ def test_screening_errors_have_one_shape(api_client_for, viewer, make_user, db):
 
 def test_ad_hoc_screening(api_client_for, viewer, marks):
     client = api_client_for(viewer)
-    r = client.post("/api/screening/", {"site_geojson": POINT, "frame_epsg": 6319, "epoch_yr": 2025.5, "tol_h_mm": 30,
-                                        "tol_v_mm": 40, "as_of": "2025-07-01"}, format="json")
+    r = client.post(
+        "/api/screening/",
+        {
+            "site_geojson": POINT,
+            "frame_epsg": 6319,
+            "epoch_yr": 2025.5,
+            "tol_h_mm": 30,
+            "tol_v_mm": 40,
+            "as_of": "2025-07-01",
+        },
+        format="json",
+    )
     assert r.status_code == 200 and r.json()["job"] is None
     assert r.json()["candidates"][0]["code"] == "NB-1"
-    r = client.post("/api/screening/", {"site_geojson": {"type": "Polygon", "coordinates": [[[0, 0], [1, 1]]]},
-                                        "frame_epsg": 6319, "epoch_yr": 2025.5, "tol_h_mm": 30, "tol_v_mm": 40},
-                    format="json")
+    r = client.post(
+        "/api/screening/",
+        {
+            "site_geojson": {"type": "Polygon", "coordinates": [[[0, 0], [1, 1]]]},
+            "frame_epsg": 6319,
+            "epoch_yr": 2025.5,
+            "tol_h_mm": 30,
+            "tol_v_mm": 40,
+        },
+        format="json",
+    )
     assert r.status_code == 400
     assert r.json()["error"]["details"]["site_geojson"][0]["code"] == "too_few_positions"
     r = client.post("/api/screening/", {"site_geojson": POINT}, format="json")
@@ -61,8 +79,15 @@ def test_ad_hoc_screening(api_client_for, viewer, marks):
 
 
 def test_jobs_crud_roles_and_conflict(api_client_for, viewer, manager, make_user, db):
-    body = {"code": "J-A1", "name": "Invented culvert", "site_geojson": POINT, "frame_epsg": 6319, "epoch_yr": 2025.5,
-            "tol_h_mm": 20, "tol_v_mm": 30}
+    body = {
+        "code": "J-A1",
+        "name": "Invented culvert",
+        "site_geojson": POINT,
+        "frame_epsg": 6319,
+        "epoch_yr": 2025.5,
+        "tol_h_mm": 20,
+        "tol_v_mm": 30,
+    }
     assert api_client_for(viewer).post("/api/jobs/", body, format="json").status_code == 403
     r = api_client_for(manager).post("/api/jobs/", body, format="json")
     assert r.status_code == 201 and r.json()["version"] == 1 and r.json()["rtk_h_fixed_mm"] == 8.0
@@ -71,10 +96,13 @@ def test_jobs_crud_roles_and_conflict(api_client_for, viewer, manager, make_user
     assert [j["code"] for j in api_client_for(viewer).get("/api/jobs/").json()] == ["J-A1"]
     r = api_client_for(manager).patch("/api/jobs/J-A1/", {"version": 1, "tol_h_mm": 25}, format="json")
     assert r.status_code == 200 and r.json()["version"] == 2
-    r = api_client_for(make_user("omar", "manager")).patch("/api/jobs/J-A1/", {"version": 1, "tol_h_mm": 22},
-                                                             format="json")
+    r = api_client_for(make_user("omar", "manager")).patch(
+        "/api/jobs/J-A1/", {"version": 1, "tol_h_mm": 22}, format="json"
+    )
     assert r.status_code == 409
     err = r.json()["error"]
     assert err["code"] == "stale_version" and err["details"]["tol_h_mm"] == {"yours": 22.0, "theirs": 25.0}
     assert Job.objects.get(code="J-A1").tol_h_mm == 25.0
-    assert api_client_for(viewer).patch("/api/jobs/J-A1/", {"version": 2, "name": "x"}, format="json").status_code == 403
+    assert (
+        api_client_for(viewer).patch("/api/jobs/J-A1/", {"version": 2, "name": "x"}, format="json").status_code == 403
+    )

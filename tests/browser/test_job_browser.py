@@ -28,8 +28,13 @@ def job(manager):
     make_mark("CRK-8", 1200.0, 160.0, visits=(("2019-04-02", "good"), ("2024-09-10", Condition.NOT_FOUND)))
     make_mark("CRK-9", 2600.0, 330.0, sky=SkyView.OBSTRUCTED)
     make_mark("FAR-10", 11_900.0, 80.0)
-    return make_job(code="J-2025-014", name="Invented ridge subdivision", site={"type": "Polygon", "coordinates": [ring]},
-                    tol_h_mm=28.0, tol_v_mm=45.0)
+    return make_job(
+        code="J-2025-014",
+        name="Invented ridge subdivision",
+        site={"type": "Polygon", "coordinates": [ring]},
+        tol_h_mm=28.0,
+        tol_v_mm=45.0,
+    )
 
 
 def test_job_page_map_and_edit(page, job, screenshot):

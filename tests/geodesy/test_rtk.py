@@ -125,8 +125,9 @@ def test_error_budget_every_term_by_hand():
     # σ_v = √(20² + 6² + 5² + 3²) = √470 = 21.679483 mm → V95 = 1.959964 × 21.679483 = 42.4910 mm
     base_h, base_v = rtk.base_sigma_from_covariance_mm(16e-6, 0.0, 9e-6, 36e-6)
     drift = rtk.drift_sigma_mm(2.5)
-    b = rtk.error_budget_mm(5000.0, model=RtkErrorModel(), base_h_mm=base_h, base_v_mm=base_v,
-                            drift_h_mm=drift, drift_v_mm=drift)
+    b = rtk.error_budget_mm(
+        5000.0, model=RtkErrorModel(), base_h_mm=base_h, base_v_mm=base_v, drift_h_mm=drift, drift_v_mm=drift
+    )
     assert b["rtk"] == {"h": pytest.approx(13.0), "v": pytest.approx(20.0)}
     assert b["base"] == {"h": pytest.approx(4.0), "v": pytest.approx(6.0)}
     assert b["drift"] == {"h": pytest.approx(5.0), "v": pytest.approx(5.0)}
@@ -148,8 +149,14 @@ def test_error_budget_drms_and_rss_options():
 
 # ---------------------------------------------------------------- exclusion rules, one by one
 
-GOOD = MarkFacts(status="active", sky_view="clear", last_visit_condition="good", years_since_good_visit=2.0,
-                 has_published_position=True, transformable=True)
+GOOD = MarkFacts(
+    status="active",
+    sky_view="clear",
+    last_visit_condition="good",
+    years_since_good_visit=2.0,
+    has_published_position=True,
+    transformable=True,
+)
 
 
 @pytest.mark.parametrize(
@@ -195,9 +202,18 @@ def test_beyond_max_baseline_excludes_on_any_site_point():
     # farthest baselines 9.5 km (inside 10 km) and 10.5 km (beyond).
     pe = np.array([0.0, 9000.0])
     pn = np.zeros(2)
-    core = screen_candidates(pe, pn, np.ones(2, bool), np.array([-500.0, -1500.0]), np.zeros(2),
-                             model=RtkErrorModel(), tol_h_mm=100, tol_v_mm=100, max_baseline_m=10_000,
-                             **_zero_terms(2))
+    core = screen_candidates(
+        pe,
+        pn,
+        np.ones(2, bool),
+        np.array([-500.0, -1500.0]),
+        np.zeros(2),
+        model=RtkErrorModel(),
+        tol_h_mm=100,
+        tol_v_mm=100,
+        max_baseline_m=10_000,
+        **_zero_terms(2),
+    )
     assert core.max_distance_m.tolist() == pytest.approx([9500.0, 10500.0])
     assert core.beyond_baseline.tolist() == [False, True]
     assert core.eligible.tolist() == [True, False]
@@ -228,16 +244,31 @@ def test_square_site_corner_base_analytic_coverage(radius_m):
     """
     L = 2000.0
     analytic = _quarter_disc_in_square(radius_m, L) / (L * L)
-    numeric, _ = integrate.quad(lambda x: min(L, math.sqrt(max(radius_m**2 - x * x, 0.0))), 0.0, L,
-                                points=[min(radius_m, L), math.sqrt(max(radius_m**2 - L * L, 0.0))], limit=200)
+    numeric, _ = integrate.quad(
+        lambda x: min(L, math.sqrt(max(radius_m**2 - x * x, 0.0))),
+        0.0,
+        L,
+        points=[min(radius_m, L), math.sqrt(max(radius_m**2 - L * L, 0.0))],
+        limit=200,
+    )
     assert analytic == pytest.approx(numeric / (L * L), rel=1e-7)  # [scipy] closed form vs numerical integration
     n = 400  # fine planar grid of cell centres: 5 m cells
     xs = (np.arange(n) + 0.5) * L / n
     gx, gy = np.meshgrid(xs, xs)
     model = RtkErrorModel(h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0)
     tol_h = rtk.K_H95 * (5 + 5 * radius_m / 1000)
-    core = screen_candidates(gx.ravel(), gy.ravel(), np.ones(n * n, bool), np.array([0.0]), np.array([0.0]),
-                             model=model, tol_h_mm=tol_h, tol_v_mm=1000, max_baseline_m=10_000, **_zero_terms(1))
+    core = screen_candidates(
+        gx.ravel(),
+        gy.ravel(),
+        np.ones(n * n, bool),
+        np.array([0.0]),
+        np.array([0.0]),
+        model=model,
+        tol_h_mm=tol_h,
+        tol_v_mm=1000,
+        max_baseline_m=10_000,
+        **_zero_terms(1),
+    )
     assert core.coverage[0] == pytest.approx(analytic, abs=0.004)  # grid discretisation, 5 m cells
     # Worst figure at the farthest cell centre, (1997.5, 1997.5) m → 2824.894 m:
     # 2.4477468·(5 + 5·2.824894) = 46.8118 mm [hand].
@@ -251,16 +282,27 @@ def test_square_site_from_geojson_end_to_end():
     L = 2000.0
     corners = np.array([[0, 0], [L, 0], [L, L], [0, L], [0, 0]])
     lat, lon = plane.to_geodetic_deg(corners[:, 0], corners[:, 1])
-    site = parse_site_geojson({"type": "Polygon", "coordinates": [[[float(a), float(b)] for a, b in zip(lon, lat, strict=True)]]})
+    site = parse_site_geojson(
+        {"type": "Polygon", "coordinates": [[[float(a), float(b)] for a, b in zip(lon, lat, strict=True)]]}
+    )
     sp = site_plane(site)
     grid = build_site_grid(site, sp)
     assert 400 <= grid.n_cells <= 2500
     ce, cn = sp.to_local_m(lat[0], lon[0])
     model = RtkErrorModel(h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0)
     r = 1500.0
-    core = screen_candidates(grid.e_m, grid.n_m, grid.is_cell, np.atleast_1d(ce), np.atleast_1d(cn), model=model,
-                             tol_h_mm=rtk.K_H95 * (5 + 5 * r / 1000), tol_v_mm=1000, max_baseline_m=10_000,
-                             **_zero_terms(1))
+    core = screen_candidates(
+        grid.e_m,
+        grid.n_m,
+        grid.is_cell,
+        np.atleast_1d(ce),
+        np.atleast_1d(cn),
+        model=model,
+        tol_h_mm=rtk.K_H95 * (5 + 5 * r / 1000),
+        tol_v_mm=1000,
+        max_baseline_m=10_000,
+        **_zero_terms(1),
+    )
     # About 1,000 cells: the quarter-circle edge crosses ~40 of them → allow 2.5 %.
     assert core.coverage[0] == pytest.approx(math.pi * r * r / 4 / (L * L), abs=0.025)
     # Worst point is the far corner, a boundary sample: 2828.43 m on the plane.
@@ -270,9 +312,14 @@ def test_square_site_from_geojson_end_to_end():
 def test_planar_screening_matches_geodesic_brute_force():
     """[scipy] Worst figures and coverage from planar distances agree with a brute-force loop
     over pyproj Geod (GRS80) geodesic distances on a real polygon near 45.2° N."""
-    site = parse_site_geojson({"type": "Polygon", "coordinates": [[[-110.64, 45.18], [-110.58, 45.18],
-                                                                    [-110.57, 45.22], [-110.63, 45.225],
-                                                                    [-110.64, 45.18]]]})
+    site = parse_site_geojson(
+        {
+            "type": "Polygon",
+            "coordinates": [
+                [[-110.64, 45.18], [-110.58, 45.18], [-110.57, 45.22], [-110.63, 45.225], [-110.64, 45.18]]
+            ],
+        }
+    )
     plane = site_plane(site)
     grid = build_site_grid(site, plane)
     rng = np.random.default_rng(3)
@@ -280,10 +327,16 @@ def test_planar_screening_matches_geodesic_brute_force():
     c_lon = -110.6 + rng.uniform(-0.11, 0.11, 12)
     ce, cn = plane.to_local_m(c_lat, c_lon)
     model = RtkErrorModel()
-    terms = dict(base_h_mm=np.full(12, 3.0), base_v_mm=np.full(12, 5.0), drift_h_mm=np.full(12, 4.0),
-                 drift_v_mm=np.full(12, 4.0), usable=np.ones(12, bool))
-    core = screen_candidates(grid.e_m, grid.n_m, grid.is_cell, ce, cn, model=model, tol_h_mm=40, tol_v_mm=55,
-                             max_baseline_m=12_000, **terms)
+    terms = dict(
+        base_h_mm=np.full(12, 3.0),
+        base_v_mm=np.full(12, 5.0),
+        drift_h_mm=np.full(12, 4.0),
+        drift_v_mm=np.full(12, 4.0),
+        usable=np.ones(12, bool),
+    )
+    core = screen_candidates(
+        grid.e_m, grid.n_m, grid.is_cell, ce, cn, model=model, tol_h_mm=40, tol_v_mm=55, max_baseline_m=12_000, **terms
+    )
     g_lat, g_lon = plane.to_geodetic_deg(grid.e_m, grid.n_m)
     geod = Geod(ellps="GRS80")
     for i in range(12):
@@ -302,10 +355,22 @@ def test_planar_screening_matches_geodesic_brute_force():
 
 def test_ranking_full_coverage_first_then_margin():
     # Point site at the origin. Candidate 0 far (worse margin), 1 near, 2 unusable, 3 beyond baseline.
-    core = screen_candidates(np.zeros(1), np.zeros(1), np.ones(1, bool), np.array([6000.0, 1000.0, 10.0, 11000.0]),
-                             np.zeros(4), model=RtkErrorModel(), tol_h_mm=50, tol_v_mm=60, max_baseline_m=10_000,
-                             base_h_mm=np.zeros(4), base_v_mm=np.zeros(4), drift_h_mm=np.zeros(4),
-                             drift_v_mm=np.zeros(4), usable=np.array([True, True, False, True]))
+    core = screen_candidates(
+        np.zeros(1),
+        np.zeros(1),
+        np.ones(1, bool),
+        np.array([6000.0, 1000.0, 10.0, 11000.0]),
+        np.zeros(4),
+        model=RtkErrorModel(),
+        tol_h_mm=50,
+        tol_v_mm=60,
+        max_baseline_m=10_000,
+        base_h_mm=np.zeros(4),
+        base_v_mm=np.zeros(4),
+        drift_h_mm=np.zeros(4),
+        drift_v_mm=np.zeros(4),
+        usable=np.array([True, True, False, True]),
+    )
     assert core.order.tolist()[:2] == [1, 0]
     assert set(core.order.tolist()[2:]) == {2, 3}
     # [hand] at 1 km: H95 = 2.4477·√(9² + 2²) = 22.567 mm; V95 = 1.96·√(16² + 3²) = 31.906 mm.
@@ -327,9 +392,22 @@ def test_best_pair_covers_a_long_site_no_single_base_does():
     ce = np.array([0.0, 6000.0, 3000.0, -300.0])
     cn = np.array([250.0, 250.0, 250.0, 250.0])
     model = RtkErrorModel(setup_h_mm=0, setup_v_mm=0)
-    core = screen_candidates(pe, pn, np.ones(pe.size, bool), ce, cn, model=model, tol_h_mm=27.0, tol_v_mm=1000,
-                             max_baseline_m=10_000, base_h_mm=np.array([0, 0, 30.0, 0]), base_v_mm=np.zeros(4),
-                             drift_h_mm=np.zeros(4), drift_v_mm=np.zeros(4), usable=np.ones(4, bool))
+    core = screen_candidates(
+        pe,
+        pn,
+        np.ones(pe.size, bool),
+        ce,
+        cn,
+        model=model,
+        tol_h_mm=27.0,
+        tol_v_mm=1000,
+        max_baseline_m=10_000,
+        base_h_mm=np.array([0, 0, 30.0, 0]),
+        base_v_mm=np.zeros(4),
+        drift_h_mm=np.zeros(4),
+        drift_v_mm=np.zeros(4),
+        usable=np.ones(4, bool),
+    )
     assert core.coverage.max() < 1.0
     assert sorted(core.pair) == [0, 1]
     assert core.pair_coverage == 1.0
@@ -349,8 +427,17 @@ def test_check_shot_allowance_by_hand():
     # [hand] base at 2 km: rtk 10 / 17 mm; base 3 / 5; base drift 2 / 2; setup 2 / 3; check mark 4 / 6, drift 1 / 1.
     # H = 2.4477468·√(100 + 9 + 4 + 4 + 16 + 1) = 2.4477468·√134 = 28.3347 mm
     # V = 1.959964·√(289 + 25 + 4 + 9 + 36 + 1) = 1.959964·√364 = 37.3937 mm
-    h, v = rtk.check_shot_allowance_mm(2000.0, model=RtkErrorModel(), base_h_mm=3, base_v_mm=5, base_drift_h_mm=2,
-                                       base_drift_v_mm=2, check_h_mm=4, check_v_mm=6, check_drift_h_mm=1,
-                                       check_drift_v_mm=1)
+    h, v = rtk.check_shot_allowance_mm(
+        2000.0,
+        model=RtkErrorModel(),
+        base_h_mm=3,
+        base_v_mm=5,
+        base_drift_h_mm=2,
+        base_drift_v_mm=2,
+        check_h_mm=4,
+        check_v_mm=6,
+        check_drift_h_mm=1,
+        check_drift_v_mm=1,
+    )
     assert h == pytest.approx(28.3347, abs=1e-4)
     assert v == pytest.approx(37.3937, abs=1e-4)

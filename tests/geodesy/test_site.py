@@ -66,7 +66,10 @@ def test_parse_point_polygon_feature_and_text():
         (_poly([]), "too_few_positions"),
         (_poly([[[-110.6, 45.2], [-110.5, 45.2], [-110.6, 45.2]]]), "too_few_positions"),
         (_poly([[[-110.6, 45.2], [-110.5, 45.2], [-110.5, 45.3], [-110.6, 45.3]]]), "ring_not_closed"),
-        (_poly([[[-110.6, 45.2], [-110.5, 45.3], [-110.5, 45.2], [-110.6, 45.35], [-110.6, 45.2]]]), "self_intersecting"),
+        (
+            _poly([[[-110.6, 45.2], [-110.5, 45.3], [-110.5, 45.2], [-110.6, 45.35], [-110.6, 45.2]]]),
+            "self_intersecting",
+        ),
         (_poly([[[-110.6, 45.2], [-110.6, 45.25], [-110.6, 45.3], [-110.6, 45.2]]]), "zero_area"),
         (_poly([[[-111.5, 45.0], [-110.0, 45.0], [-110.0, 45.6], [-111.5, 45.6], [-111.5, 45.0]]]), "site_too_large"),
     ],
@@ -81,7 +84,7 @@ def test_planar_distances_against_geodesics_inside_20_km():
     # [Snyder] bound ≈ 4.9e-6 relative at 20 km; [geod] references: pyproj Geod and GeographicLib.
     plane = LocalPlane(45.2, -110.6)
     rng = np.random.default_rng(11)
-    lat = 45.2 + rng.uniform(-0.17, 0.17, (400, 2))   # ±19 km north–south
+    lat = 45.2 + rng.uniform(-0.17, 0.17, (400, 2))  # ±19 km north–south
     lon = -110.6 + rng.uniform(-0.24, 0.24, (400, 2))  # ±19 km east–west
     e, n = plane.to_local_m(lat, lon)
     planar = np.hypot(e[:, 0] - e[:, 1], n[:, 0] - n[:, 1])
@@ -129,8 +132,17 @@ def test_points_in_polygon_with_hole():
         # a thin strip 4 km × 150 m
         [[[-110.63, 45.2], [-110.58, 45.2], [-110.58, 45.20135], [-110.63, 45.20135], [-110.63, 45.2]]],
         # an L shape
-        [[[-110.62, 45.19], [-110.58, 45.19], [-110.58, 45.20], [-110.60, 45.20], [-110.60, 45.22],
-          [-110.62, 45.22], [-110.62, 45.19]]],
+        [
+            [
+                [-110.62, 45.19],
+                [-110.58, 45.19],
+                [-110.58, 45.20],
+                [-110.60, 45.20],
+                [-110.60, 45.22],
+                [-110.62, 45.22],
+                [-110.62, 45.19],
+            ]
+        ],
         # a small lot, 60 m square
         [[[-110.6, 45.2], [-110.59924, 45.2], [-110.59924, 45.20054], [-110.6, 45.20054], [-110.6, 45.2]]],
     ],
@@ -172,7 +184,8 @@ def test_point_site_grid_and_radius():
     sq = parse_site_geojson(_poly(SQUARE))
     # Half the diagonal of the 1588 m × 2224 m square ≈ 1366 m [geod: corner to centre].
     assert site_radius_m(sq, site_plane(sq)) == pytest.approx(
-        GRS80.Inverse(sq.ref_lat_deg, sq.ref_lon_deg, 45.19, -110.61)["s12"], rel=2e-3)
+        GRS80.Inverse(sq.ref_lat_deg, sq.ref_lon_deg, 45.19, -110.61)["s12"], rel=2e-3
+    )
 
 
 @pytest.mark.parametrize("lon, lat", [(-110.6, 45.2), (-114.01, 45.0), (2.35, 48.85), (174.8, -36.85)])

@@ -29,8 +29,16 @@ def test_job_json(marks):
     make_job(code="J-CMD")
     data = json.loads(run("J-CMD", "--json", "--as-of", "2025-07-01"))
     cand = data["candidates"][0]
-    assert set(cand) >= {"code", "distance_m", "horizontal_95_mm", "vertical_95_mm", "coverage", "excluded", "reasons",
-                         "budget"}
+    assert set(cand) >= {
+        "code",
+        "distance_m",
+        "horizontal_95_mm",
+        "vertical_95_mm",
+        "coverage",
+        "excluded",
+        "reasons",
+        "budget",
+    }
     assert cand["code"] == "NB-1" and cand["horizontal_95_mm"] == 23.7  # hand value 23.7318 (service test)
     assert [b["term"] for b in cand["budget"]] == ["rtk", "base", "drift", "setup"]
     assert "best_pair" in data and [c["code"] for c in data["check_marks"]] == ["CK-1"]
@@ -46,8 +54,25 @@ def test_job_text(marks):
 def test_ad_hoc(marks, tmp_path):
     f = tmp_path / "site.geojson"
     f.write_text(json.dumps({"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}))
-    data = json.loads(run("--site-geojson", str(f), "--frame", "6319", "--epoch", "2025.5", "--tol-h-mm", "30",
-                          "--tol-v-mm", "40", "--rtk-combination", "rss", "--json", "--as-of", "2025-07-01"))
+    data = json.loads(
+        run(
+            "--site-geojson",
+            str(f),
+            "--frame",
+            "6319",
+            "--epoch",
+            "2025.5",
+            "--tol-h-mm",
+            "30",
+            "--tol-v-mm",
+            "40",
+            "--rtk-combination",
+            "rss",
+            "--json",
+            "--as-of",
+            "2025-07-01",
+        )
+    )
     assert data["job"] is None and data["settings"]["rtk_combination"] == "rss"
     # RSS at 1 km: hand value 21.6179 mm (service test) → 21.6
     assert data["candidates"][0]["horizontal_95_mm"] == 21.6

@@ -9,8 +9,10 @@ from registry.errors import Conflict, NotFound, PermissionDeniedError
 from registry.models import AuditEvent, Job
 from registry.services.jobs import job_create, job_update
 
-SQUARE = {"type": "Polygon", "coordinates": [[[-110.61, 45.19], [-110.59, 45.19], [-110.59, 45.21],
-                                               [-110.61, 45.21], [-110.61, 45.19]]]}
+SQUARE = {
+    "type": "Polygon",
+    "coordinates": [[[-110.61, 45.19], [-110.59, 45.19], [-110.59, 45.21], [-110.61, 45.21], [-110.61, 45.19]]],
+}
 
 
 def job_data(**over):
@@ -51,9 +53,14 @@ def test_create_with_documented_defaults_and_audit(manager, settings):
 def test_feature_and_text_site_are_stored_as_geometry(manager):
     import json
 
-    job = job_create(actor=manager, data=job_data(site_geojson=json.dumps({"type": "Feature", "properties": {},
-                                                                            "geometry": {"type": "Point",
-                                                                                         "coordinates": [-110.6, 45.2]}})))
+    job = job_create(
+        actor=manager,
+        data=job_data(
+            site_geojson=json.dumps(
+                {"type": "Feature", "properties": {}, "geometry": {"type": "Point", "coordinates": [-110.6, 45.2]}}
+            )
+        ),
+    )
     assert job.site_geojson == {"type": "Point", "coordinates": [-110.6, 45.2]}
 
 

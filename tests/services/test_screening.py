@@ -29,30 +29,64 @@ def at(distance_m: float, azimuth_deg: float, lat=SITE_LAT, lon=SITE_LON) -> tup
     return float(lat2), float(lon2)
 
 
-def make_mark(code, distance_m, azimuth_deg, *, status=MarkStatus.ACTIVE, sky=SkyView.CLEAR, visits=(("2024-06-01", "good"),),
-              frame=6319, epoch=2025.5, sigma_h_mm=3.0, sigma_v_mm=5.0, position=True, state=PositionState.PUBLISHED,
-              velocity=None, vel_sigma=None, origin=(SITE_LAT, SITE_LON)):
+def make_mark(
+    code,
+    distance_m,
+    azimuth_deg,
+    *,
+    status=MarkStatus.ACTIVE,
+    sky=SkyView.CLEAR,
+    visits=(("2024-06-01", "good"),),
+    frame=6319,
+    epoch=2025.5,
+    sigma_h_mm=3.0,
+    sigma_v_mm=5.0,
+    position=True,
+    state=PositionState.PUBLISHED,
+    velocity=None,
+    vel_sigma=None,
+    origin=(SITE_LAT, SITE_LON),
+):
     """An invented mark with a published position (σ per axis / vertical in mm) and visits."""
     lat, lon = at(distance_m, azimuth_deg, *origin)
-    mark = Mark.objects.create(code=code, name=f"Invented {code}", status=status, sky_view=sky,
-                               search_lat_deg=lat, search_lon_deg=lon)
+    mark = Mark.objects.create(
+        code=code, name=f"Invented {code}", status=status, sky_view=sky, search_lat_deg=lat, search_lon_deg=lon
+    )
     if position:
         extra = {}
         if velocity is not None:
             extra.update(vel_e_m_yr=velocity[0], vel_n_m_yr=velocity[1], vel_u_m_yr=velocity[2])
         if vel_sigma is not None:
             extra.update(vel_sigma_e_m_yr=vel_sigma[0], vel_sigma_n_m_yr=vel_sigma[1], vel_sigma_u_m_yr=vel_sigma[2])
-        Position.objects.create(mark=mark, frame_epsg=frame, epoch_yr=epoch, lat_deg=lat, lon_deg=lon, h_m=1500.0,
-                                cov_ee_m2=(sigma_h_mm / 1000) ** 2, cov_nn_m2=(sigma_h_mm / 1000) ** 2,
-                                cov_uu_m2=(sigma_v_mm / 1000) ** 2, source="invented campaign", state=state, **extra)
+        Position.objects.create(
+            mark=mark,
+            frame_epsg=frame,
+            epoch_yr=epoch,
+            lat_deg=lat,
+            lon_deg=lon,
+            h_m=1500.0,
+            cov_ee_m2=(sigma_h_mm / 1000) ** 2,
+            cov_nn_m2=(sigma_h_mm / 1000) ** 2,
+            cov_uu_m2=(sigma_v_mm / 1000) ** 2,
+            source="invented campaign",
+            state=state,
+            **extra,
+        )
     for day, cond in visits:
         Visit.objects.create(mark=mark, visited_on=dt.date.fromisoformat(day), condition=cond)
     return mark
 
 
 def make_job(code="J-SCR", site=None, **over):
-    fields = dict(code=code, name="Invented job", site_geojson=site or {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]},
-                  frame_epsg=6319, epoch_yr=2025.5, tol_h_mm=30.0, tol_v_mm=40.0)
+    fields = dict(
+        code=code,
+        name="Invented job",
+        site_geojson=site or {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]},
+        frame_epsg=6319,
+        epoch_yr=2025.5,
+        tol_h_mm=30.0,
+        tol_v_mm=40.0,
+    )
     fields.update(over)
     return Job.objects.create(**fields)
 
@@ -72,7 +106,9 @@ def test_budget_of_a_near_base_by_hand(viewer):
     # [hand] rtk at 1 km: 8 + 1 = 9 mm (H per axis), 15 + 1 = 16 mm (V); base 3 / 5; drift 0 (same frame and
     # epoch); setup 2 / 3. σ_h = √(81 + 9 + 0 + 4) = √94 = 9.69536 → H95 = 2.4477468·9.69536 = 23.7318 mm;
     # σ_v = √(256 + 25 + 0 + 9) = √290 = 17.02939 → V95 = 1.959964·17.02939 = 33.3770 mm.
-    assert c.budget["rtk"]["h"] == pytest.approx(9.0, abs=1e-3) and c.budget["rtk"]["v"] == pytest.approx(16.0, abs=1e-3)
+    assert c.budget["rtk"]["h"] == pytest.approx(9.0, abs=1e-3) and c.budget["rtk"]["v"] == pytest.approx(
+        16.0, abs=1e-3
+    )
     assert c.budget["base"] == {"h": pytest.approx(3.0), "v": pytest.approx(5.0)}
     assert c.budget["drift"] == {"h": 0.0, "v": 0.0}
     assert c.h95_mm == pytest.approx(23.7318, abs=2e-3)
@@ -231,9 +267,18 @@ def test_access(make_user):
 @pytest.mark.django_db
 def test_ad_hoc_site(viewer):
     make_mark("NB-1", 1000.0, 0.0)
-    r = site_screen(actor=viewer, data={"site_geojson": {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]},
-                                        "frame_epsg": 6319, "epoch_yr": 2025.5, "tol_h_mm": 30, "tol_v_mm": 40,
-                                        "rtk_combination": "rss"}, as_of=AS_OF)
+    r = site_screen(
+        actor=viewer,
+        data={
+            "site_geojson": {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]},
+            "frame_epsg": 6319,
+            "epoch_yr": 2025.5,
+            "tol_h_mm": 30,
+            "tol_v_mm": 40,
+            "rtk_combination": "rss",
+        },
+        as_of=AS_OF,
+    )
     c = r.candidates[0]
     # [hand] RSS at 1 km: √(8² + 1²) = 8.0623 mm; σ_h = √(65 + 9 + 4) = √78 → H95 = 2.4477468·8.83176 = 21.6179 mm
     assert c.h95_mm == pytest.approx(21.6179, abs=2e-3)
@@ -241,5 +286,9 @@ def test_ad_hoc_site(viewer):
     with pytest.raises(ValidationError) as info:
         site_screen(actor=viewer, data={"site_geojson": {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}})
     assert {k: [e.code for e in v] for k, v in info.value.error_dict.items()} == {
-        "frame_epsg": ["required"], "epoch_yr": ["required"], "tol_h_mm": ["required"], "tol_v_mm": ["required"]}
+        "frame_epsg": ["required"],
+        "epoch_yr": ["required"],
+        "tol_h_mm": ["required"],
+        "tol_v_mm": ["required"],
+    }
     assert math.isfinite(r.core.achievable_h95_mm)

@@ -78,11 +78,29 @@ def test_exports(client, viewer, scenario):
 def test_manager_creates_a_job_with_a_point(client, manager, db):
     client.force_login(manager)
     assert client.get("/jobs/new/").status_code == 200
-    form = {"code": "J-NEW", "name": "Invented pump station", "status": "planning", "site_geojson": "",
-            "site_lat_deg": str(SITE_LAT), "site_lon_deg": str(SITE_LON), "frame_epsg": "6319", "epoch_yr": "2025.5",
-            "tol_h_mm": "20", "tol_v_mm": "30", "rtk_h_fixed_mm": "8", "rtk_h_ppm": "1", "rtk_v_fixed_mm": "15",
-            "rtk_v_ppm": "1", "rtk_combination": "additive", "rtk_h_meaning": "per_axis", "setup_h_mm": "2",
-            "setup_v_mm": "3", "assumed_rate_mm_yr": "2", "max_baseline_m": "10000", "recovery_years": "10"}
+    form = {
+        "code": "J-NEW",
+        "name": "Invented pump station",
+        "status": "planning",
+        "site_geojson": "",
+        "site_lat_deg": str(SITE_LAT),
+        "site_lon_deg": str(SITE_LON),
+        "frame_epsg": "6319",
+        "epoch_yr": "2025.5",
+        "tol_h_mm": "20",
+        "tol_v_mm": "30",
+        "rtk_h_fixed_mm": "8",
+        "rtk_h_ppm": "1",
+        "rtk_v_fixed_mm": "15",
+        "rtk_v_ppm": "1",
+        "rtk_combination": "additive",
+        "rtk_h_meaning": "per_axis",
+        "setup_h_mm": "2",
+        "setup_v_mm": "3",
+        "assumed_rate_mm_yr": "2",
+        "max_baseline_m": "10000",
+        "recovery_years": "10",
+    }
     r = client.post("/jobs/new/", form)
     assert r.status_code == 302 and r["Location"] == "/jobs/J-NEW/"
     job = Job.objects.get(code="J-NEW")
@@ -93,9 +111,21 @@ def test_manager_creates_a_job_with_a_point(client, manager, db):
 
 def test_create_errors_are_shown_and_nothing_saved(client, manager, db):
     client.force_login(manager)
-    r = client.post("/jobs/new/", {"code": "J-BAD", "name": "x", "status": "planning", "site_geojson": '{"type": "Line"}',
-                                   "frame_epsg": "4326", "epoch_yr": "2025", "tol_h_mm": "-1", "tol_v_mm": "30",
-                                   "rtk_combination": "additive", "rtk_h_meaning": "per_axis"})
+    r = client.post(
+        "/jobs/new/",
+        {
+            "code": "J-BAD",
+            "name": "x",
+            "status": "planning",
+            "site_geojson": '{"type": "Line"}',
+            "frame_epsg": "4326",
+            "epoch_yr": "2025",
+            "tol_h_mm": "-1",
+            "tol_v_mm": "30",
+            "rtk_combination": "additive",
+            "rtk_h_meaning": "per_axis",
+        },
+    )
     assert r.status_code == 400
     body = r.content.decode()
     assert "Not saved" in body and "Geographic 2D CRS" in body and "GeoJSON Point or Polygon" in body

@@ -68,16 +68,27 @@ class Command(BaseCommand):
             except Job.DoesNotExist:
                 raise CommandError(f"No job with code {opts['job_code']!r}.") from None
         if not opts["site_geojson"]:
-            raise CommandError("Give a job code, or an ad-hoc site with --site-geojson FILE --frame --epoch --tol-h-mm --tol-v-mm.")
+            raise CommandError(
+                "Give a job code, or an ad-hoc site with --site-geojson FILE --frame --epoch --tol-h-mm --tol-v-mm."
+            )
         src = opts["site_geojson"]
         try:
             text = self.stdin.read() if src == "-" and hasattr(self, "stdin") else Path(src).read_text(encoding="utf-8")
         except OSError as exc:
             raise CommandError(f"Cannot read {src}: {exc.strerror}.") from None
-        data = {"site_geojson": text, "frame_epsg": opts["frame"], "epoch_yr": opts["epoch"],
-                "tol_h_mm": opts["tol_h_mm"], "tol_v_mm": opts["tol_v_mm"]}
-        for opt, field in (("max_baseline_m", "max_baseline_m"), ("grid_spacing_m", "grid_spacing_m"),
-                           ("rtk_combination", "rtk_combination"), ("rtk_h_meaning", "rtk_h_meaning")):
+        data = {
+            "site_geojson": text,
+            "frame_epsg": opts["frame"],
+            "epoch_yr": opts["epoch"],
+            "tol_h_mm": opts["tol_h_mm"],
+            "tol_v_mm": opts["tol_v_mm"],
+        }
+        for opt, field in (
+            ("max_baseline_m", "max_baseline_m"),
+            ("grid_spacing_m", "grid_spacing_m"),
+            ("rtk_combination", "rtk_combination"),
+            ("rtk_h_meaning", "rtk_h_meaning"),
+        ):
             if opts[opt] is not None:
                 data[field] = opts[opt]
         return settings_from_data({k: v for k, v in data.items() if v is not None})
@@ -86,30 +97,43 @@ class Command(BaseCommand):
         s = result.settings
         w = self.stdout.write
         w(f"Base screening {'for job ' + s.job_code if s.job_code else 'for an ad-hoc site'} (as of {result.as_of})")
-        w(f"  frame {result.frame_label}, epoch {s.epoch_yr:.3f}; tolerances {s.tol_h_mm:.1f} mm H / "
-          f"{s.tol_v_mm:.1f} mm V at 95 %; site: {s.site.kind}, {result.grid.n_cells} cells")
+        w(
+            f"  frame {result.frame_label}, epoch {s.epoch_yr:.3f}; tolerances {s.tol_h_mm:.1f} mm H / "
+            f"{s.tol_v_mm:.1f} mm V at 95 %; site: {s.site.kind}, {result.grid.n_cells} cells"
+        )
         w("")
-        w(f"{'#':>3} {'mark':<14} {'state':<9} {'dist m':>10} {'H95 mm':>7} {'V95 mm':>7} {'margin':>7} {'cover %':>7}  "
-          f"budget H rtk/base/drift/setup | V ...   reasons")
+        w(
+            f"{'#':>3} {'mark':<14} {'state':<9} {'dist m':>10} {'H95 mm':>7} {'V95 mm':>7} {'margin':>7} {'cover %':>7}  "
+            f"budget H rtk/base/drift/setup | V ...   reasons"
+        )
         for c in result.candidates:
             state = "excluded" if c.excluded else ("covers" if c.covers_site else "partial")
             if c.budget:
                 b = c.budget
-                budget = (f"{b['rtk']['h']:.1f}/{b['base']['h']:.1f}/{b['drift']['h']:.1f}/{b['setup']['h']:.1f} | "
-                          f"{b['rtk']['v']:.1f}/{b['base']['v']:.1f}/{b['drift']['v']:.1f}/{b['setup']['v']:.1f}")
+                budget = (
+                    f"{b['rtk']['h']:.1f}/{b['base']['h']:.1f}/{b['drift']['h']:.1f}/{b['setup']['h']:.1f} | "
+                    f"{b['rtk']['v']:.1f}/{b['base']['v']:.1f}/{b['drift']['v']:.1f}/{b['setup']['v']:.1f}"
+                )
                 nums = f"{c.h95_mm:7.1f} {c.v95_mm:7.1f} {c.margin_mm:7.1f} {c.coverage * 100:7.1f}"
             else:
                 budget, nums = "no usable position", f"{'—':>7} {'—':>7} {'—':>7} {'—':>7}"
-            w(f"{c.rank:>3} {c.mark.code:<14} {state:<9} {c.distance_m:10.1f} {nums}  {budget}   {', '.join(c.reasons)}")
+            w(
+                f"{c.rank:>3} {c.mark.code:<14} {state:<9} {c.distance_m:10.1f} {nums}  {budget}   {', '.join(c.reasons)}"
+            )
         w("")
         if result.pair:
             core = result.core
-            w(f"Best pair: {result.pair[0].mark.code} + {result.pair[1].mark.code}: covers {core.pair_coverage * 100:.1f} % "
-              f"(worst {core.pair_worst_h95_mm:.1f} mm H, {core.pair_worst_v95_mm:.1f} mm V)")
+            w(
+                f"Best pair: {result.pair[0].mark.code} + {result.pair[1].mark.code}: covers {core.pair_coverage * 100:.1f} % "
+                f"(worst {core.pair_worst_h95_mm:.1f} mm H, {core.pair_worst_v95_mm:.1f} mm V)"
+            )
         w("Chosen bases: " + (", ".join(c.mark.code for c in result.chosen) or "none"))
         for cm in result.check_marks:
-            parts = "; ".join(f"from {a['base']} ({a['baseline_m']:.0f} m): {a['horizontal_95_mm']:.1f} mm H, "
-                              f"{a['vertical_95_mm']:.1f} mm V" for a in cm.allowances)
+            parts = "; ".join(
+                f"from {a['base']} ({a['baseline_m']:.0f} m): {a['horizontal_95_mm']:.1f} mm H, "
+                f"{a['vertical_95_mm']:.1f} mm V"
+                for a in cm.allowances
+            )
             w(f"Check mark {cm.candidate.mark.code}: largest discrepancy consistent at 95 % {parts}")
         w("")
         w(result.statement)
@@ -122,6 +146,8 @@ class Command(BaseCommand):
 
 def _words(exc: ValidationError) -> str:
     if hasattr(exc, "error_dict"):
-        return "; ".join(f"{field}: {' '.join(str(m) for m in e.messages)}" for field, e in
-                         ((f, ValidationError(v)) for f, v in exc.error_dict.items()))
+        return "; ".join(
+            f"{field}: {' '.join(str(m) for m in e.messages)}"
+            for field, e in ((f, ValidationError(v)) for f, v in exc.error_dict.items())
+        )
     return " ".join(exc.messages)
