@@ -261,6 +261,8 @@ class _Decided:
     lon_deg: np.ndarray
     distance_m: np.ndarray
     azimuth_deg: np.ndarray
+    #: The whole mark row of each, when the candidate query brought it (PostGIS path).
+    mark_rows: list[tuple] | None = None
 
     def __len__(self) -> int:
         return len(self.codes)
@@ -288,6 +290,7 @@ def _decide_with(rows, dist_m, az_deg, radius_m, filters) -> _Decided:
         lon_deg=rows.lon_deg[keep][order],
         distance_m=d[order],
         azimuth_deg=az_deg[keep][order],
+        mark_rows=None if rows.extra is None else [rows.extra[i] for i in keep[order]],
     )
 
 
@@ -314,10 +317,38 @@ def _marks_by_id(ids: list[int]) -> dict[int, Mark]:
     return out
 
 
+def _mark_columns() -> tuple[str, ...]:
+    return tuple(f.column for f in Mark._meta.concrete_fields)
+
+
+def _marks_from_rows(rows: list[tuple]) -> dict[int, Mark]:
+    """Mark instances from whole rows, through Django's own converters for each column
+    (as the ORM applies them: backend converters, then the field's)."""
+    fields = Mark._meta.concrete_fields
+    table = Mark._meta.db_table
+    converters = []
+    for i, f in enumerate(fields):
+        col = f.get_col(table)
+        convs = connection.ops.get_db_converters(col) + col.get_db_converters(connection)
+        if convs:
+            converters.append((i, col, convs))
+    names = [f.attname for f in fields]
+    out = {}
+    for row in rows:
+        if converters:
+            row = list(row)
+            for i, col, convs in converters:
+                for conv in convs:
+                    row[i] = conv(row[i], col, connection)
+        mark = Mark.from_db(connection.alias, names, row)
+        out[mark.pk] = mark
+    return out
+
+
 def _materialise(decided: _Decided, limit: int | None) -> list[NearbyMark]:
     n = len(decided) if limit is None else min(limit, len(decided))
     ids = [int(i) for i in decided.ids[:n]]
-    marks = _marks_by_id(ids)
+    marks = _marks_by_id(ids) if decided.mark_rows is None else _marks_from_rows(decided.mark_rows[:n])
     out = []
     for i in range(n):
         d = float(decided.distance_m[i])
@@ -338,14 +369,15 @@ def _postgis_decided(lat_deg, lon_deg, radius_m, limit, filters: _Filters) -> _D
     )
     # Any mark within radius_m on the ellipsoid is within radius_m / lo on the sphere; +1 m for rounding.
     prefilter_m = radius_m / _SPHERE_LO + 1.0
-    sql, fixed = spatial_sql.postgis_candidates_sql(shape, limit is not None)
+    extra = _mark_columns()
+    sql, fixed = spatial_sql.postgis_candidates_sql(shape, limit is not None, extra)
     params = {**fixed, **base, "lat": lat_deg, "lon": lon_deg, "prefilter_m": prefilter_m}
     if limit is None:
-        rows = spatial_sql.run_candidates(connection, sql, params, with_sphere=True)
+        rows = spatial_sql.run_candidates(connection, sql, params, with_sphere=True, n_extra=len(extra))
         return _decide(rows, lat_deg, lon_deg, radius_m, filters)
     k = max(2 * limit + 16, 64)
     while True:
-        rows = spatial_sql.run_candidates(connection, sql, {**params, "k": k}, with_sphere=True)
+        rows = spatial_sql.run_candidates(connection, sql, {**params, "k": k}, with_sphere=True, n_extra=len(extra))
         decided = _decide(rows, lat_deg, lon_deg, radius_m, filters)
         if len(rows) < k:
             return decided  # every mark inside the prefilter radius was seen
@@ -508,6 +540,6 @@ def marks_near_polygon(
     if not len(around):
         return []
     dist_poly_m, az_deg = proximity.distance_to_polygon_m(polygon, around.lat_deg, around.lon_deg)
-    rows = spatial_sql.CandidateRows(around.ids, around.codes, around.lat_deg, around.lon_deg)
+    rows = spatial_sql.CandidateRows(around.ids, around.codes, around.lat_deg, around.lon_deg, extra=around.mark_rows)
     decided = _decide_with(rows, dist_poly_m, az_deg, dist_limit, filters)
     return _materialise(decided, n)

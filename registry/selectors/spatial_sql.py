@@ -43,6 +43,7 @@ from sqlalchemy import (
     cast,
     exists,
     func,
+    literal_column,
     or_,
     select,
 )
@@ -110,6 +111,8 @@ class CandidateRows:
     lat_deg: np.ndarray
     lon_deg: np.ndarray
     sphere_m: np.ndarray | None = None
+    #: Per row, the values of the extra columns asked for (the whole mark), or None.
+    extra: list[tuple] | None = None
 
     def __len__(self) -> int:
         return len(self.codes)
@@ -159,8 +162,11 @@ def _search_point():
 
 
 @lru_cache(maxsize=256)
-def postgis_candidates_sql(shape: FilterShape, limited: bool) -> tuple[str, dict]:
+def postgis_candidates_sql(shape: FilterShape, limited: bool, extra_columns: tuple[str, ...] = ()) -> tuple[str, dict]:
     """PostgreSQL text of the PostGIS candidate query and the shape's fixed parameters.
+
+    ``extra_columns`` (column names of ``registry_mark``) are returned after the five
+    candidate columns, so that the marks come back with their candidates in one round trip.
 
     Parameters to add: ``lat``, ``lon`` (degrees), ``prefilter_m`` (spherical radius, m),
     ``k`` (row limit, when ``limited``), ``frame_epsg`` and ``visit_cutoff`` when the
@@ -186,21 +192,29 @@ def postgis_candidates_sql(shape: FilterShape, limited: bool) -> tuple[str, dict
     prefilter = bindparam("prefilter_m", value=0.0, type_=Float)
     knn = m.c.geog.op("<->", return_type=Float)(point)
     columns = (m.c.id, m.c.code, m.c.search_lat_deg, m.c.search_lon_deg)
+    extra = [literal_column(f'registry_mark."{name}"').label(f"x_{name}") for name in extra_columns]
     if not limited:
-        stmt = select(*columns, knn.label("sphere_m")).where(
+        stmt = select(*columns, knn.label("sphere_m"), *extra).where(
             func.ST_DWithin(m.c.geog, point, prefilter, False), *_filter_clauses(shape)
         )
         return _compile(stmt, "postgresql")
     expanded = func._ST_Expand(point, prefilter, type_=m.c.geog.type)
     inner = (
-        select(*columns, m.c.geog, knn.label("sphere_m"))
+        select(*columns, m.c.geog, knn.label("sphere_m"), *extra)
         .where(m.c.geog.op("&&")(expanded), *_filter_clauses(shape))
         .order_by(knn)
         .limit(bindparam("k", value=1, type_=Integer))
         .subquery("nearest")
     )
     stmt = (
-        select(inner.c.id, inner.c.code, inner.c.search_lat_deg, inner.c.search_lon_deg, inner.c.sphere_m)
+        select(
+            inner.c.id,
+            inner.c.code,
+            inner.c.search_lat_deg,
+            inner.c.search_lon_deg,
+            inner.c.sphere_m,
+            *(inner.c[f"x_{name}"] for name in extra_columns),
+        )
         .where(func.ST_DWithin(inner.c.geog, point, prefilter, False))
         .order_by(inner.c.sphere_m)
     )
@@ -235,21 +249,25 @@ def box_candidates_sql(shape: FilterShape, n_lon_ranges: int, vendor: str) -> tu
     return _compile(stmt, vendor)
 
 
-def run_candidates(connection, sql: str, params: dict, *, with_sphere: bool) -> CandidateRows:
+def run_candidates(connection, sql: str, params: dict, *, with_sphere: bool, n_extra: int = 0) -> CandidateRows:
     """Execute candidate SQL on a Django connection and return the rows as arrays."""
     with connection.cursor() as cursor:
         cursor.execute(sql, params)
         rows = cursor.fetchall()
     if not rows:
         empty = np.zeros(0)
-        return CandidateRows(np.zeros(0, dtype=np.int64), [], empty, empty, empty if with_sphere else None)
+        return CandidateRows(
+            np.zeros(0, dtype=np.int64), [], empty, empty, empty if with_sphere else None, [] if n_extra else None
+        )
     cols = list(zip(*rows, strict=True))
+    first_extra = 5 if with_sphere else 4
     return CandidateRows(
         ids=np.asarray(cols[0], dtype=np.int64),
         codes=list(cols[1]),
         lat_deg=np.asarray(cols[2], dtype=float),
         lon_deg=np.asarray(cols[3], dtype=float),
         sphere_m=np.asarray(cols[4], dtype=float) if with_sphere else None,
+        extra=[row[first_extra:] for row in rows] if n_extra else None,
     )
 
 
