@@ -14,7 +14,7 @@ import pytest
 os.environ.setdefault("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
 
 CHROMIUM = Path("/usr/bin/chromium")
-SCREENSHOTS = Path(__file__).resolve().parents[2] / "docs" / "screenshots"
+DOCS_SCREENSHOTS = Path(__file__).resolve().parents[2] / "docs" / "screenshots"
 
 
 @pytest.fixture(scope="module", autouse=True)
@@ -92,12 +92,17 @@ def page(chromium, live_server):
 
 
 @pytest.fixture
-def screenshot():
-    """``screenshot(page, name)`` saves a full-page PNG into docs/screenshots/."""
+def screenshot(tmp_path):
+    """``screenshot(page, name)`` saves a full-page PNG.
+
+    Into a temporary folder by default, so that a test run never changes tracked files;
+    with ``REGISTRY_UPDATE_SCREENSHOTS=1`` into docs/screenshots/ (the README's pictures).
+    """
+    target = DOCS_SCREENSHOTS if os.environ.get("REGISTRY_UPDATE_SCREENSHOTS") == "1" else tmp_path
 
     def save(pg, name: str) -> Path:
-        SCREENSHOTS.mkdir(parents=True, exist_ok=True)
-        path = SCREENSHOTS / f"{name}.png"
+        target.mkdir(parents=True, exist_ok=True)
+        path = target / f"{name}.png"
         pg.screenshot(path=str(path), full_page=True)
         return path
 
