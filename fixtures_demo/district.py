@@ -1007,6 +1007,14 @@ class _Builder:
         norm = math.hypot(ux, uy)
         px, py = -uy / norm * half, ux / norm * half
         corridor = [(x0 + px, y0 + py), (x1 + px, y1 + py), (x1 - px, y1 - py), (x0 - px, y0 - py)]
+        # Tolerances chosen so that the three jobs show the three usual outcomes under the default error
+        # model (8 mm + 1 ppm read as 1σ per axis, so even a zero baseline gives ≥ 2.4477 × 8.25 ≈ 20.2 mm
+        # horizontal at 95 %): the point has several bases that each qualify; the subdivision is covered
+        # by a pair but by no single base; the corridor cannot be covered at its far end. The outcomes are
+        # pinned in tests/test_load_demo.py through the screening service.
+        # The subdivision is a band along the line from ASH-024 (about 0.9 km east, 1.1 km north of the centre)
+        # to CRV-065 (about 4.9 km east, 3.0 km north): at 30 mm ASH-024 reaches about 3.9 km and CRV-065, with its larger own σ, about
+        # 1.9 km, so the two ends each need their own base.
         self.scenario.jobs = [
             DemoJob(
                 "J-2026-014",
@@ -1015,20 +1023,23 @@ class _Builder:
                 {"type": "Point", "coordinates": [round(lon, 7), round(lat, 7)]},
                 NAD83_2011,
                 2010.0,
-                20.0,
                 30.0,
-                "Point site in the town core; many marks nearby, several obstructed or disturbed.",
+                50.0,
+                "Point site in the town core; many marks nearby, several obstructed or disturbed. "
+                "Several bases meet the stake-out tolerance; use the best one and check in on two others.",
             ),
             DemoJob(
                 "J-2026-021",
                 "Millrace Flats subdivision: boundary and topography",
                 "Millrace Flats Development Co.",
-                ring([(2.6, 1.4), (4.1, 1.5), (4.0, 2.6), (2.7, 2.5)]),
+                ring([(2.25, 1.40), (5.20, 2.80), (4.90, 3.45), (1.95, 2.05)]),
                 NAD83_2011,
                 2010.0,
-                20.0,
                 30.0,
-                "Polygon at the town's north-east edge; the east side is farther from good marks.",
+                50.0,
+                "Long polygon from the town's north-east edge out onto the flats. No single base reaches both "
+                "ends within tolerance: survey the west part from a town mark and the east part from a mark "
+                "on the flats.",
             ),
             DemoJob(
                 "J-2026-027",
@@ -1037,10 +1048,11 @@ class _Builder:
                 ring(corridor),
                 ITRF2014,
                 2026.85,
-                20.0,
                 30.0,
-                "Corridor into the sparse north-east corner: its far end is several km from any usable mark, "
-                "more than a 20 mm tolerance allows from a single base.",
+                50.0,
+                "Corridor into the sparse north-east corner: the first kilometres can be run from a mark at "
+                "0+000, but the far end is several km from any usable mark, more than a 30 mm tolerance "
+                "allows from a single base. Plan new control (static GNSS) or a network RTK service there.",
             ),
         ]
 

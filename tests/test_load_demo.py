@@ -19,7 +19,7 @@ from django.core.management import CommandError, call_command
 from django.db import DatabaseError, connection, transaction
 from scipy.stats import chi2
 
-from fixtures_demo.district import N_FIT_COEF, build_scenario, n_fit_m
+from fixtures_demo.district import N_FIT_COEF, SCENARIO_END, build_scenario, n_fit_m
 from registry.models import AuditEvent, HeightRecord, Job, Mark, Occupation, Position, Visit
 from registry.roles import Role
 
@@ -86,7 +86,8 @@ def test_demo_counts_constraints_and_coherence(db, fast_hashing, capsys):
     kinds = sorted(j.site_geojson["type"] for j in jobs)
     assert "Point" in kinds and "Polygon" in kinds
     for job in jobs:
-        assert (job.tol_h_mm, job.tol_v_mm) == (20.0, 30.0)
+        # 30 mm / 50 mm: the three jobs show the three usual outcomes (test_demo_jobs_show_three_outcomes)
+        assert (job.tol_h_mm, job.tol_v_mm) == (30.0, 50.0)
         # "all other fields default" (the model's defaults)
         assert (job.rtk_h_fixed_mm, job.rtk_h_ppm, job.rtk_v_fixed_mm, job.rtk_v_ppm) == (8.0, 1.0, 15.0, 1.0)
         assert job.grid_epsg is None and job.max_baseline_m == 10000.0
@@ -228,3 +229,94 @@ def test_reset_reloads_and_restores_the_audit_guard(db, fast_hashing, capsys):
     with pytest.raises(DatabaseError), transaction.atomic(), connection.cursor() as cur:
         cur.execute("DELETE FROM registry_auditevent")
     assert AuditEvent.objects.count() > 0
+
+
+# 95 % circle radius per unit per-axis σ of a circular bivariate normal: √χ²₀.₉₅(2) = 2.4477
+# (SciPy; FGDC-STD-007.3-1998 §3.2.1 prints 2.4477). Vertical: the normal 97.5 % quantile, 1.9600.
+K_H95 = math.sqrt(chi2.ppf(0.95, 2))
+K_V95 = math.sqrt(chi2.ppf(0.95, 1))
+
+
+def _independent_95_mm(base_position, lat_deg, lon_deg):
+    """Rover 95 % figures (H, V) at a site point from a base held in the job's frame and epoch.
+
+    Written out from the sources, not through registry.geodesy.rtk: distance from pyproj.Geod (GRS80);
+    RTK 8 mm + 1 ppm horizontal per axis and 15 mm + 1 ppm vertical, added (receiver specifications,
+    common practice); base σ from the position's covariance (semi-major axis of the E/N standard ellipse,
+    √cov_uu); setup 2 mm per axis / 3 mm height (common practice, the job default); no drift, as the
+    position is in the job's frame at the job's epoch.
+    """
+    p = base_position
+    _, _, d_m = GEOD.inv(p.lon_deg, p.lat_deg, lon_deg, lat_deg)
+    base_h_mm = 1e3 * math.sqrt(np.linalg.eigvalsh([[p.cov_ee_m2, p.cov_en_m2], [p.cov_en_m2, p.cov_nn_m2]]).max())
+    base_v_mm = 1e3 * math.sqrt(p.cov_uu_m2)
+    sigma_h = math.sqrt((8.0 + d_m / 1000.0) ** 2 + base_h_mm**2 + 2.0**2)
+    sigma_v = math.sqrt((15.0 + d_m / 1000.0) ** 2 + base_v_mm**2 + 3.0**2)
+    return K_H95 * sigma_h, K_V95 * sigma_v
+
+
+@pytest.mark.parametrize("as_of", [SCENARIO_END.date(), dt.date(2030, 11, 30)])
+def test_demo_jobs_show_three_outcomes(db, fast_hashing, viewer, as_of):
+    """The demo's three jobs: bases qualify (point), only a pair covers (polygon), infeasible (corridor).
+
+    Checked through the screening service at the scenario's end and four years later (marks age out of
+    the recovery period as time passes; the outcomes must not depend on the day the demo is shown).
+    """
+    from registry.services.screening import job_screen
+
+    load()
+    assert K_H95 == pytest.approx(2.4477, abs=5e-5) and K_V95 == pytest.approx(1.9600, abs=5e-5)
+
+    # (a) Point stake-out: several bases qualify, a clear best one, two check marks near the site.
+    r = job_screen(actor=viewer, code="J-2026-014", as_of=as_of)
+    usable = r.usable_candidates
+    covering = [c for c in usable if c.covers_site]
+    assert len(covering) >= 5
+    best = usable[0]
+    assert best.covers_site and r.chosen == [best] and r.pair is not None
+    assert best.margin_mm >= 3.0 and best.margin_mm > usable[1].margin_mm
+    assert r.statement.startswith(f"{best.mark.code} covers the whole site within 30.0 mm horizontal")
+    assert len(r.check_marks) == 2 and all(cm.candidate.distance_m <= 2000.0 for cm in r.check_marks)
+    assert {cm.candidate.mark.code for cm in r.check_marks}.isdisjoint({best.mark.code})
+    lon, lat = r.settings.site_geojson["coordinates"]
+    assert (best.position.frame_epsg, best.position.epoch_yr) == (6319, 2010.0)  # job's frame and epoch
+    h95, v95 = _independent_95_mm(best.position, lat, lon)
+    assert best.h95_mm == pytest.approx(h95, abs=0.05) and best.v95_mm == pytest.approx(v95, abs=0.05)
+    assert h95 <= 30.0 and v95 <= 50.0
+
+    # (b) Subdivision: no single base covers it, the best pair does (one base at each end).
+    r = job_screen(actor=viewer, code="J-2026-021", as_of=as_of)
+    usable = r.usable_candidates
+    assert not any(c.covers_site for c in usable)
+    assert 0.5 < usable[0].coverage < 1.0  # the best single base covers most of it, not all
+    a, b = r.pair
+    assert r.core.pair_coverage == 1.0 and r.core.pair_worst_margin_mm >= 0.5
+    assert r.chosen == [a, b] and len(r.check_marks) >= 1
+    assert r.statement.startswith("No single base covers the whole site within 30.0 mm horizontal")
+    assert f"{a.mark.code} + {b.mark.code} does" in r.statement
+    # Independently at the polygon's corners: each base alone fails at some corner, and at every corner
+    # the better of the two is inside both tolerances.
+    corners = r.settings.site_geojson["coordinates"][0][:-1]
+    for c in (a, b):
+        assert (c.position.frame_epsg, c.position.epoch_yr) == (6319, 2010.0)
+    figures = {c.mark.code: [_independent_95_mm(c.position, y, x) for x, y in corners] for c in (a, b)}
+    for code, per_corner in figures.items():
+        assert any(h > 30.0 or v > 50.0 for h, v in per_corner), code
+    for fa, fb in zip(figures[a.mark.code], figures[b.mark.code], strict=True):
+        assert min(max(fa[0] / 30.0, fa[1] / 50.0), max(fb[0] / 30.0, fb[1] / 50.0)) <= 1.0
+
+    # (c) Corridor: infeasible at its far end; part of it is covered; the statement says what is reachable.
+    r = job_screen(actor=viewer, code="J-2026-027", as_of=as_of)
+    core = r.core
+    assert not any(c.covers_site for c in r.usable_candidates)
+    assert 0.1 < core.any_coverage < 0.6 and core.pair_coverage < 1.0 and core.pair_worst_margin_mm < 0
+    assert core.achievable_h95_mm > 30.0
+    assert r.statement.startswith("The site cannot be covered within 30.0 mm horizontal")
+    assert f"tightest tolerances reachable are {core.achievable_h95_mm:.1f} mm horizontal" in r.statement
+    # The uncovered part is the far end (9+400, north-east), not the start: most of the first quarter of
+    # the corridor is within tolerance from some base, none of the last quarter is.
+    ok = (core.best_h95_mm <= 30.0) & (core.best_v95_mm <= 50.0)
+    ok, along = ok[r.grid.is_cell], (r.grid.e_m + r.grid.n_m)[r.grid.is_cell]
+    start, end = along.min(), along.max()
+    assert ok[along < start + 0.25 * (end - start)].mean() > 0.5
+    assert not ok[along > end - 0.25 * (end - start)].any()
