@@ -6,6 +6,7 @@ from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
 from registry.api import accuracy as accuracy_api  # accuracy area
 from registry.api import convert as convert_api  # geodesy area
 from registry.api import exports as exports_api
+from registry.api import fieldwork as fieldwork_api  # fieldwork pages area
 from registry.api import jobs as jobs_api  # screening area
 from registry.api import marks as marks_api
 from registry.api import nearby as nearby_api  # search area
@@ -29,6 +30,10 @@ urlpatterns = [
     path("marks/<str:code>/", marks_api.MarkDetailView.as_view(), name="mark-detail"),
     re_path(r"^marks/(?P<code>[^/]+)/status/?$", marks_api.MarkStatusView.as_view(), name="mark-status"),
     path("marks/<str:code>/positions/", positions_api.MarkPositionsView.as_view(), name="mark-positions"),
+    # visits, occupations, attachments (fieldwork pages area)
+    path("marks/<str:code>/visits/", fieldwork_api.MarkVisitsView.as_view(), name="mark-visits"),
+    path("marks/<str:code>/occupations/", fieldwork_api.MarkOccupationsView.as_view(), name="mark-occupations"),
+    path("marks/<str:code>/attachments/", fieldwork_api.MarkAttachmentsView.as_view(), name="mark-attachments"),
     path("positions/<int:position_id>/", positions_api.PositionDetailView.as_view(), name="position-detail"),
     re_path(
         r"^positions/(?P<position_id>[0-9]+)/publish/?$",

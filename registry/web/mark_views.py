@@ -57,6 +57,7 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
         "detail": detail,
         "mark": detail.mark,
         "can_manage": has_ability(request.user, Ability.MANAGE),
+        "can_record": has_ability(request.user, Ability.RECORD),
     }
     return render(request, "registry/mark_detail.html", context)
 

@@ -5,6 +5,7 @@ from django.urls import path
 
 from registry.web import auth_views, convert_views, import_views, job_views, mark_views, views
 from registry.web.accuracy_views import accuracy_page  # accuracy area
+from registry.web import fieldwork_views, nearby_views, position_views  # fieldwork and position pages
 
 app_name = "web"
 
@@ -17,8 +18,20 @@ urlpatterns: list = [
     path("marks/new/", mark_views.mark_new, name="mark-create"),
     # import (import-export area); before marks/<code>/ so that "import" never reads as a code
     path("marks/import/", import_views.import_page, name="import"),
+    # marks near a point (fieldwork pages area); before marks/<code>/ so that "near" never reads as a code
+    path("marks/near/", nearby_views.marks_near_page, name="marks-near"),
     path("marks/<str:code>/", mark_views.mark_page, name="mark-detail"),
     path("marks/<str:code>/edit/", mark_views.mark_edit, name="mark-edit"),
+    # fieldwork, positions and status (fieldwork pages area)
+    path("marks/<str:code>/visits/new/", fieldwork_views.visit_new, name="visit-create"),
+    path("marks/<str:code>/occupations/new/", fieldwork_views.occupation_new, name="occupation-create"),
+    path("marks/<str:code>/status/", fieldwork_views.mark_status, name="mark-status"),
+    path("marks/<str:code>/positions/new/", position_views.position_new, name="position-create"),
+    path(
+        "marks/<str:code>/positions/<int:position_id>/<str:action>/",
+        position_views.position_decide,
+        name="position-decide",
+    ),
     # tools (accuracy area)
     path("tools/accuracy/", accuracy_page, name="accuracy"),
     # tools (geodesy area)

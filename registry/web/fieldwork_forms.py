@@ -1,0 +1,325 @@
+"""Forms of the fieldwork, position, status and nearby pages.
+
+They parse what a person types (dates, UTC times, DMS or decimal angles, sigmas in mm)
+into the plain values the services take; the services validate again, and their coded
+``ValidationError`` is put back on the matching form field (``add_service_error``).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Any
+
+from django import forms
+from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
+
+from registry.geodesy import dms
+from registry.models import AntennaHeightKind, Condition, MarkStatus, OccupationMethod, Stability
+
+#: Frames offered on the propose form even before any position uses them (shared contracts).
+DEFAULT_FRAMES = (7912, 9989, 6319)
+OTHER_FRAME = "other"
+
+
+class ServiceErrorsMixin:
+    """Put a service's ``ValidationError`` on the form's fields, renaming service keys to field names."""
+
+    #: service key → form field
+    service_field_map: dict[str, str] = {}
+
+    def add_service_error(self, error: ValidationError) -> None:
+        if not hasattr(error, "error_dict"):
+            self.add_error(None, error)
+            return
+        for key, errors in error.error_dict.items():
+            target = self.service_field_map.get(key, key)
+            if target == NON_FIELD_ERRORS or target not in self.fields:
+                target = None
+            for e in errors:
+                self.add_error(target, e)
+
+
+class MultipleFileInput(forms.ClearableFileInput):
+    allow_multiple_selected = True
+
+
+class MultipleFileField(forms.FileField):
+    """Several files in one input (Django's documented pattern); empty → []."""
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("widget", MultipleFileInput())
+        kwargs.setdefault("required", False)
+        super().__init__(*args, **kwargs)
+
+    def clean(self, data, initial=None):
+        single = super().clean
+        if isinstance(data, list | tuple):
+            return [single(d, initial) for d in data if d]
+        return [single(data, initial)] if data else []
+
+
+def parse_utc(text: str, field: str) -> dt.datetime:
+    """'YYYY-MM-DD HH:MM[:SS]' or 'YYYY-MM-DDTHH:MM' read as UTC; an explicit offset is honoured."""
+    try:
+        value = dt.datetime.fromisoformat(text.strip())
+    except ValueError:
+        raise ValidationError(
+            "Enter a date and time in UTC as YYYY-MM-DD HH:MM (seconds optional).", code="invalid_datetime"
+        ) from None
+    if value.tzinfo is None:
+        value = value.replace(tzinfo=dt.UTC)
+    return value.astimezone(dt.UTC)
+
+
+class AngleField(forms.CharField):
+    """A latitude or longitude typed as decimal degrees or D M S (``registry.geodesy.dms.parse_angle``)."""
+
+    def __init__(self, *, kind: str, **kwargs):
+        self.kind = kind
+        kwargs.setdefault("max_length", 40)
+        super().__init__(**kwargs)
+
+    def clean(self, value):
+        text = super().clean(value)
+        if text in (None, ""):
+            return None
+        try:
+            return dms.parse_angle(text, kind=self.kind)
+        except dms.AngleParseError as exc:
+            raise ValidationError(str(exc), code=exc.code) from None
+
+
+# ----------------------------------------------------------------------------- visit
+
+
+class VisitForm(ServiceErrorsMixin, forms.Form):
+    visited_on = forms.DateField(
+        label="Date of the visit", widget=forms.DateInput(attrs={"type": "date"}), help_text="YYYY-MM-DD."
+    )
+    condition = forms.ChoiceField(choices=Condition.choices)
+    visitor = forms.CharField(max_length=120, required=False, help_text="Who visited (name or crew).")
+    notes = forms.CharField(widget=forms.Textarea(attrs={"rows": 4}), required=False)
+    photos = MultipleFileField(
+        label="Photos", help_text="Optional; several files allowed. Each is stored with its SHA-256 checksum."
+    )
+    caption = forms.CharField(max_length=200, required=False, help_text="Optional caption for the photos.")
+    service_field_map = {"file": "photos", "kind": "photos"}
+
+    def visit_data(self) -> dict[str, Any]:
+        d = self.cleaned_data
+        return {k: d[k] for k in ("visited_on", "condition", "visitor", "notes")}
+
+
+# ----------------------------------------------------------------------------- occupation
+
+
+class OccupationForm(ServiceErrorsMixin, forms.Form):
+    method = forms.ChoiceField(choices=OccupationMethod.choices)
+    start_utc = forms.CharField(label="Start (UTC)", help_text="YYYY-MM-DD HH:MM[:SS], in UTC.", max_length=40)
+    end_utc = forms.CharField(label="End (UTC)", help_text="YYYY-MM-DD HH:MM[:SS], in UTC.", max_length=40)
+    observer = forms.CharField(max_length=120, required=False)
+    receiver = forms.CharField(max_length=120, required=False, help_text="Make, model, serial.")
+    antenna = forms.CharField(max_length=120, required=False, help_text="Make, model, serial (and radome).")
+    antenna_height_measured_m = forms.FloatField(
+        label="Antenna height as measured (m)", required=False, help_text="0 to 10 m, as read on the tape or rod."
+    )
+    antenna_height_kind = forms.ChoiceField(
+        label="Measured", choices=AntennaHeightKind.choices, initial=AntennaHeightKind.VERTICAL
+    )
+    antenna_radius_m = forms.FloatField(
+        label="Antenna radius r (m)",
+        required=False,
+        help_text="Slant only: horizontal radius of the slant-measure point, from the antenna's documentation.",
+    )
+    arp_offset_m = forms.FloatField(
+        label="Offset Δh to the ARP (m)",
+        required=False,
+        help_text="Slant only: vertical offset from the slant-measure point to the antenna reference point; "
+        "negative when the ARP is below it (the usual case). h_ARP = √(s² − r²) + Δh.",
+    )
+    notes = forms.CharField(widget=forms.Textarea(attrs={"rows": 3}), required=False)
+    file_kind = forms.ChoiceField(
+        label="Kind of the attached files",
+        choices=[("rinex", "RINEX observation file"), ("other", "other file")],
+        initial="rinex",
+        required=False,
+    )
+    files = MultipleFileField(label="Files", help_text="Optional; several files allowed (RINEX or other).")
+    service_field_map = {"file": "files", "kind": "file_kind"}
+    GROUPS = {
+        "session_fields": ("method", "start_utc", "end_utc", "observer", "receiver", "antenna", "notes"),
+        "height_fields": ("antenna_height_measured_m", "antenna_height_kind", "antenna_radius_m", "arp_offset_m"),
+        "file_fields": ("file_kind", "files"),
+    }
+
+    def groups(self) -> dict[str, list]:
+        return {name: [self[f] for f in fields] for name, fields in self.GROUPS.items()}
+
+    def clean(self):
+        data = super().clean()
+        for name in ("start_utc", "end_utc"):
+            if data.get(name):
+                try:
+                    data[name] = parse_utc(data[name], name)
+                except ValidationError as exc:
+                    self.add_error(name, exc)
+        return data
+
+    def occupation_data(self) -> dict[str, Any]:
+        d = self.cleaned_data
+        keys = (
+            "method",
+            "start_utc",
+            "end_utc",
+            "observer",
+            "receiver",
+            "antenna",
+            "antenna_height_measured_m",
+            "antenna_height_kind",
+            "antenna_radius_m",
+            "arp_offset_m",
+            "notes",
+        )
+        return {k: d.get(k) for k in keys}
+
+
+# ----------------------------------------------------------------------------- position
+
+
+class PositionForm(ServiceErrorsMixin, forms.Form):
+    frame_choice = forms.ChoiceField(label="Frame")
+    frame_other = forms.IntegerField(
+        label="Other frame (EPSG code)",
+        required=False,
+        min_value=1024,
+        help_text="Used when 'other' is chosen above: the EPSG code of a geographic 3D CRS.",
+    )
+    epoch_yr = forms.FloatField(label="Coordinate epoch (decimal year)", help_text="e.g. 2024.250")
+    lat = AngleField(kind="lat", label="Latitude", help_text="Decimal degrees (45.2) or D M S (45 12 03.51234 N).")
+    lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees (-110.6) or D M S (110 36 00.0 W).")
+    h_m = forms.FloatField(label="Ellipsoidal height h (m)")
+    sigma_e_mm = forms.FloatField(label="σ east (mm)", min_value=0.0, help_text="One standard deviation.")
+    sigma_n_mm = forms.FloatField(label="σ north (mm)", min_value=0.0)
+    sigma_u_mm = forms.FloatField(label="σ up (mm)", min_value=0.0)
+    vel_e_mm_yr = forms.FloatField(label="Velocity east (mm/yr)", required=False, help_text="Optional: all three or none.")
+    vel_n_mm_yr = forms.FloatField(label="Velocity north (mm/yr)", required=False)
+    vel_u_mm_yr = forms.FloatField(label="Velocity up (mm/yr)", required=False)
+    source = forms.CharField(max_length=200, help_text="Campaign, adjustment or occupation the solution comes from.")
+    note = forms.CharField(widget=forms.Textarea(attrs={"rows": 2}), required=False)
+    service_field_map = {
+        "frame_epsg": "frame_other",
+        "lat_deg": "lat",
+        "lon_deg": "lon",
+        "cov_ee_m2": "sigma_e_mm",
+        "cov_nn_m2": "sigma_n_mm",
+        "cov_uu_m2": "sigma_u_mm",
+        "cov_en_m2": "sigma_e_mm",
+        "cov_eu_m2": "sigma_e_mm",
+        "cov_nu_m2": "sigma_n_mm",
+        "vel_e_m_yr": "vel_e_mm_yr",
+        "vel_n_m_yr": "vel_n_mm_yr",
+        "vel_u_m_yr": "vel_u_mm_yr",
+    }
+
+    GROUPS = {
+        "frame_fields": ("frame_choice", "frame_other", "epoch_yr"),
+        "coord_fields": ("lat", "lon", "h_m"),
+        "sigma_fields": ("sigma_e_mm", "sigma_n_mm", "sigma_u_mm"),
+        "velocity_fields": ("vel_e_mm_yr", "vel_n_mm_yr", "vel_u_mm_yr"),
+        "source_fields": ("source", "note"),
+    }
+
+    def groups(self) -> dict[str, list]:
+        return {name: [self[f] for f in fields] for name, fields in self.GROUPS.items()}
+
+    def __init__(self, *args, frames_in_use: list[int] | tuple[int, ...] = (), **kwargs):
+        super().__init__(*args, **kwargs)
+        from registry.web.templatetags.registry_format import format_frame
+
+        codes = list(dict.fromkeys([*frames_in_use, *DEFAULT_FRAMES]))
+        self.fields["frame_choice"].choices = [(str(c), format_frame(c)) for c in codes] + [
+            (OTHER_FRAME, "other (enter the EPSG code below)")
+        ]
+
+    def clean(self):
+        data = super().clean()
+        choice = data.get("frame_choice")
+        if choice == OTHER_FRAME:
+            if data.get("frame_other") is None and "frame_other" not in self.errors:
+                self.add_error("frame_other", ValidationError("Enter the EPSG code of the frame.", code="required"))
+            data["frame_epsg"] = data.get("frame_other")
+        elif choice:
+            data["frame_epsg"] = int(choice)
+        for name in ("sigma_e_mm", "sigma_n_mm", "sigma_u_mm"):
+            if data.get(name) == 0.0:
+                self.add_error(name, ValidationError("A sigma of zero is not a real uncertainty.", code="zero_sigma"))
+        return data
+
+    def position_data(self) -> dict[str, Any]:
+        d = self.cleaned_data
+        out = {
+            "frame_epsg": d["frame_epsg"],
+            "epoch_yr": d["epoch_yr"],
+            "lat_deg": d["lat"],
+            "lon_deg": d["lon"],
+            "h_m": d["h_m"],
+            "cov_ee_m2": (d["sigma_e_mm"] / 1000.0) ** 2,
+            "cov_nn_m2": (d["sigma_n_mm"] / 1000.0) ** 2,
+            "cov_uu_m2": (d["sigma_u_mm"] / 1000.0) ** 2,
+            "source": d["source"],
+            "note": d.get("note", ""),
+        }
+        for axis in "enu":
+            v = d.get(f"vel_{axis}_mm_yr")
+            if v is not None:
+                out[f"vel_{axis}_m_yr"] = v / 1000.0
+        return out
+
+
+class DecisionForm(forms.Form):
+    note = forms.CharField(
+        widget=forms.Textarea(attrs={"rows": 3}),
+        required=False,
+        help_text="The reason (required to reject or withdraw; recorded in the history).",
+    )
+
+
+# ----------------------------------------------------------------------------- mark status
+
+
+class MarkStatusForm(ServiceErrorsMixin, forms.Form):
+    version = forms.IntegerField(widget=forms.HiddenInput, min_value=1)
+    status = forms.ChoiceField(label="New status", choices=MarkStatus.choices)
+    note = forms.CharField(
+        widget=forms.Textarea(attrs={"rows": 3}),
+        required=False,
+        help_text="Required to retire a mark or record it destroyed: what was found, by whom, when.",
+    )
+
+
+# ----------------------------------------------------------------------------- nearby
+
+
+class NearbyForm(forms.Form):
+    lat = AngleField(kind="lat", label="Latitude", help_text="Decimal degrees or D M S with N/S.")
+    lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees or D M S with E/W.")
+    radius_km = forms.FloatField(label="Radius (km)", min_value=0.001, max_value=1000.0, initial=5.0)
+    limit = forms.IntegerField(label="At most", min_value=1, max_value=500, initial=50)
+    status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
+    stability = forms.ChoiceField(
+        label="Stability", required=False, choices=[("", "any stability"), *Stability.choices]
+    )
+    good_visit_within_yr = forms.FloatField(
+        label="Found good within (years)", required=False, min_value=0.001, max_value=200.0
+    )
+    frame_epsg = forms.IntegerField(
+        label="Published in frame (EPSG)", required=False, min_value=1024, help_text="e.g. 7912, 9989, 6319."
+    )
+
+    def search_args(self) -> dict[str, Any]:
+        d = self.cleaned_data
+        args = {"lat_deg": d["lat"], "lon_deg": d["lon"], "radius_m": d["radius_km"] * 1000.0, "limit": d["limit"]}
+        for key in ("status", "stability", "good_visit_within_yr", "frame_epsg"):
+            if d.get(key) not in (None, ""):
+                args[key] = d[key]
+        return args

@@ -1,0 +1,139 @@
+"""Fieldwork pages: record a visit (with photos), record an occupation (with files), change a mark's status.
+
+Thin views: the form parses, the services (:mod:`registry.services.fieldwork`,
+:mod:`registry.services.marks`) check the role, validate, write and audit. A visit or
+occupation and its files are saved together: if any file is refused, the whole
+submission is rolled back (database rows and stored files) and the form shows why.
+"""
+
+from __future__ import annotations
+
+from django.contrib import messages
+from django.core.exceptions import ValidationError
+from django.db import transaction
+from django.http import HttpRequest, HttpResponse
+from django.shortcuts import redirect, render
+
+from registry.errors import Conflict
+from registry.roles import Ability
+from registry.services.access import access_mark_by_code
+from registry.services.fieldwork import attachment_add, occupation_record, visit_record
+from registry.services.marks import mark_set_status
+from registry.web.fieldwork_forms import MarkStatusForm, OccupationForm, VisitForm
+from registry.web.views import ability_required
+
+
+def _record_with_files(record, files, *, kind: str, link: str, caption: str = ""):
+    """Run ``record()`` and attach ``files`` to its result in one transaction; clean stored files on failure."""
+    stored = []
+    try:
+        with transaction.atomic():
+            obj = record()
+            for f in files:
+                attachment = attachment_add(
+                    actor=record.actor, mark_code=record.mark_code, file=f, kind=kind, caption=caption, **{link: obj.pk}
+                )
+                stored.append(attachment.file)
+    except BaseException:
+        for f in stored:
+            f.storage.delete(f.name)
+        raise
+    return obj, len(stored)
+
+
+class _Call:
+    """A deferred service call that remembers its actor and mark (for the attachments)."""
+
+    def __init__(self, fn, *, actor, mark_code: str, data: dict):
+        self.fn, self.actor, self.mark_code, self.data = fn, actor, mark_code, data
+
+    def __call__(self):
+        return self.fn(actor=self.actor, mark_code=self.mark_code, data=self.data)
+
+
+@ability_required(Ability.RECORD)
+def visit_new(request: HttpRequest, code: str) -> HttpResponse:
+    mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
+    status = 200
+    if request.method == "POST":
+        form = VisitForm(request.POST, request.FILES)
+        if form.is_valid():
+            call = _Call(visit_record, actor=request.user, mark_code=mark.code, data=form.visit_data())
+            try:
+                visit, n = _record_with_files(
+                    call, form.cleaned_data["photos"], kind="photo", link="visit_id", caption=form.cleaned_data["caption"]
+                )
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            else:
+                messages.success(
+                    request, f"Visit of {visit.visited_on:%Y-%m-%d} recorded for {mark.code} with {n} photo(s)."
+                )
+                return redirect("web:mark-detail", code=mark.code)
+        status = 400
+    else:
+        form = VisitForm()
+    return render(request, "registry/visit_form.html", {"form": form, "mark": mark}, status=status)
+
+
+@ability_required(Ability.RECORD)
+def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
+    mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
+    status = 200
+    if request.method == "POST":
+        form = OccupationForm(request.POST, request.FILES)
+        if form.is_valid():
+            call = _Call(occupation_record, actor=request.user, mark_code=mark.code, data=form.occupation_data())
+            try:
+                occupation, n = _record_with_files(
+                    call,
+                    form.cleaned_data["files"],
+                    kind=form.cleaned_data.get("file_kind") or "rinex",
+                    link="occupation_id",
+                )
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            else:
+                arp = occupation.antenna_height_arp_m
+                arp_text = f"; ARP height {arp:.3f} m" if arp is not None else ""
+                messages.success(request, f"Occupation recorded for {mark.code}{arp_text}, with {n} file(s).")
+                return redirect("web:mark-detail", code=mark.code)
+        status = 400
+    else:
+        form = OccupationForm()
+    return render(request, "registry/occupation_form.html", {"form": form, "mark": mark, **form.groups()}, status=status)
+
+
+@ability_required(Ability.MANAGE)
+def mark_status(request: HttpRequest, code: str) -> HttpResponse:
+    mark = access_mark_by_code(request.user, code, ability=Ability.MANAGE)
+    status = 200
+    conflict = ""
+    if request.method == "POST":
+        form = MarkStatusForm(request.POST)
+        if form.is_valid():
+            d = form.cleaned_data
+            try:
+                mark = mark_set_status(
+                    actor=request.user, code=mark.code, status=d["status"], expected_version=d["version"], note=d["note"]
+                )
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            except Conflict as exc:
+                conflict = exc.message
+                mark.refresh_from_db()
+                data = request.POST.copy()
+                data["version"] = str(mark.version)
+                form = MarkStatusForm(data)
+                form.is_valid()
+                status = 409
+            else:
+                messages.success(request, f"Mark {mark.code} is now {mark.status} (version {mark.version}).")
+                return redirect("web:mark-detail", code=mark.code)
+        if status == 200:
+            status = 400
+    else:
+        form = MarkStatusForm(initial={"version": mark.version, "status": mark.status})
+    return render(
+        request, "registry/mark_status_form.html", {"form": form, "mark": mark, "conflict": conflict}, status=status
+    )
