@@ -109,6 +109,21 @@ def check_proj(app_configs=None, **kwargs):
                 id="registry.E011",
             )
         )
+    plate = (reg.get("PLATE") or "").strip()
+    if plate:
+        from registry.geodesy.platemotion import PlateMotionError
+        from registry.geodesy.platemotion import plate as plate_of
+
+        try:
+            plate_of(plate)
+        except PlateMotionError as exc:
+            out.append(
+                Error(
+                    f"REGISTRY_PLATE: {exc}",
+                    hint="Set REGISTRY_PLATE to the plate code of the office's area, or empty to apply no plate model.",
+                    id="registry.E013",
+                )
+            )
     # Without an office model the labelled EGM96 fallback is used (by design, no warning); without
     # that grid too there are no orthometric heights at all.
     if not model and find_grid(EGM96_FALLBACK.grid, dirs=[geoid_dir]) is None:

@@ -161,6 +161,10 @@ SPECTACULAR_SETTINGS = {
 REGISTRY = {
     # Assumed unmodelled horizontal/vertical rate for marks without a velocity (mm/yr per axis).
     "ASSUMED_RATE_MM_YR": float(os.environ.get("REGISTRY_ASSUMED_RATE_MM_YR", "2.0")),
+    # Plate of the ITRF2020 plate motion model (Altamimi et al. 2023) used to move a position without
+    # its own velocity to another epoch in a dynamic frame (ITRF): "NOAM" suits the demo district; set
+    # your office's plate (registry/geodesy/platemotion.py lists them); empty: no model, a warning only.
+    "PLATE": os.environ.get("REGISTRY_PLATE", "NOAM").strip().upper(),
     # Folder with the office's own geoid grids (added to PROJ's data search path).
     "GEOID_DIR": os.environ.get("REGISTRY_GEOID_DIR", str(DATA_DIR / "grids")),
     # Default geoid model file (office grid); EGM96 (egm96_15.gtx) is the labelled fallback.

@@ -180,6 +180,7 @@ def convert_point(
     geoid: _heights.GeoidModel | None = None,
     assumed_rate_mm_yr: float = _frames.DEFAULT_ASSUMED_RATE_MM_YR,
     velocity_enu_m_yr=None,
+    plate: str | None = None,
 ) -> PointConversion:
     """Convert one point given in one of three forms to every form, in a target frame and epoch.
 
@@ -203,8 +204,9 @@ def convert_point(
         the grid part is left empty with a warning).
     geoid
         Geoid model for the orthometric height (None: no orthometric height).
-    assumed_rate_mm_yr, velocity_enu_m_yr
-        See :func:`registry.geodesy.frames.transform_position`.
+    assumed_rate_mm_yr, velocity_enu_m_yr, plate
+        See :func:`registry.geodesy.frames.transform_position` (``plate``: the ITRF2020 plate
+        motion model's plate for epoch changes in a dynamic frame without a velocity).
 
     Raises
     ------
@@ -305,6 +307,7 @@ def convert_point(
             to_epoch_yr=t2,
             velocity_enu_m_yr=velocity_enu_m_yr,
             assumed_rate_mm_yr=assumed_rate_mm_yr,
+            plate=plate,
         )
     except _frames.FrameTransformError as exc:
         fld = "epoch" if exc.code == "bad_epoch" else "to_frame"
@@ -377,6 +380,8 @@ def convert_point(
 def _accuracy_text(step: _frames.Step) -> str:
     if step.kind == "hold":
         return f"σ added {step.accuracy_m * 1000:.1f} mm per axis"
+    if step.kind == "plate_motion":
+        return f"σ added {step.accuracy_m * 1000:.1f} mm per axis for residual motion"
     if step.accuracy_m is None:
         return "accuracy not stated"
     if step.accuracy_m == 0.0:

@@ -20,6 +20,11 @@ Method
   doi:10.1029/2023GL106373, for the linear model). Without one, the coordinates are held and the
   uncertainty is inflated per axis by σ_added = rate × |t2 − t1|, with the rate a setting
   (default 2 mm/yr per axis, common practice for intra-plate motion of a stable monument).
+- **Plate motion** (dynamic frame, no velocity, a plate given): the point moves with the plate's
+  rigid rotation, v = ω × X, from the ITRF2020 plate motion model
+  (:mod:`registry.geodesy.platemotion`; Altamimi et al. 2023, doi:10.1029/2023GL106373), and the
+  uncertainty is still inflated by the assumed rate × |t2 − t1|, which then stands for the mark's
+  residual motion relative to the rigid plate.
 
 Order of operations (documented choice)
 ---------------------------------------
@@ -28,8 +33,10 @@ Order of operations (documented choice)
 - No velocity: hold the coordinates in whichever of the two frames is plate-fixed (where a point
   nearly does not move), changing frame at the epoch that makes that possible: a plate-fixed source
   is held t1 → t2 then changed at t2; a dynamic source is changed at t1 and held in the target.
-  If the frame the point is held in is dynamic (ITRF, WGS 84) and t1 ≠ t2, plate motion of
-  typically centimetres per year is NOT modelled: the result carries a warning.
+  If the frame the point is held in is dynamic (ITRF, WGS 84) and t1 ≠ t2, the point is moved
+  with the plate motion model when a plate is given (``plate=``; the registry's setting
+  ``REGISTRY["PLATE"]``); without one, plate motion of typically centimetres per year is NOT
+  modelled and the result carries a warning.
 """
 
 from __future__ import annotations
@@ -41,6 +48,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from registry.geodesy import platemotion as _pmm
 from registry.geodesy.conversions import (
     Ellipsoid,
     ecef_to_geodetic,
@@ -104,7 +112,7 @@ class FrameInfo:
 class Step:
     """One operation applied: what it was, its stated accuracy (m; None when unknown) and epochs."""
 
-    kind: str  # "frame_change" | "velocity" | "hold"
+    kind: str  # "frame_change" | "velocity" | "hold" | "plate_motion"
     description: str
     accuracy_m: float | None
     from_label: str
@@ -321,6 +329,8 @@ def transform_position(
     velocity_enu_m_yr=None,
     velocity_sigma_enu_m_yr=None,
     assumed_rate_mm_yr: float = DEFAULT_ASSUMED_RATE_MM_YR,
+    plate: str | None = None,
+    plate_origin_rate_bias: bool = False,
 ) -> FrameTransformResult:
     """Move positions from (frame A, epoch t1) to (frame B, epoch t2).
 
@@ -337,7 +347,14 @@ def transform_position(
     velocity_sigma_enu_m_yr : tuple of array_like, optional
         Its standard deviations; adds σ_v |Δt| per axis.
     assumed_rate_mm_yr : float
-        Assumed unmodelled rate per axis when no velocity is given (mm/yr).
+        Assumed unmodelled rate per axis when no velocity is given (mm/yr). With a plate model
+        applied, the assumed residual rate relative to the rigid plate.
+    plate : str, optional
+        Plate code of the ITRF2020 plate motion model (e.g. ``"NOAM"``). When given, a point
+        without a velocity that has to change epoch in a dynamic frame moves with the plate
+        (:mod:`registry.geodesy.platemotion`). None or "": held, with a warning.
+    plate_origin_rate_bias : bool
+        Add the model's origin rate bias to the plate velocity (off by default).
 
     Returns
     -------
@@ -365,6 +382,12 @@ def transform_position(
     rate_m_yr = float(assumed_rate_mm_yr) / 1000.0
     if not math.isfinite(rate_m_yr) or rate_m_yr < 0:
         raise FrameTransformError("The assumed rate must be a non-negative number (mm/yr).", code="bad_rate")
+    plate_code = None
+    if plate not in (None, ""):
+        try:
+            plate_code = _pmm.plate(plate).code
+        except _pmm.PlateMotionError as exc:
+            raise FrameTransformError(str(exc), code=exc.code) from exc
     lat, lon, h = (np.asarray(v, dtype=float) for v in (lat_deg, lon_deg, h_m))
     lat, lon, h = np.broadcast_arrays(lat, lon, h)
     if not (np.all(np.isfinite(lat)) and np.all(np.isfinite(lon)) and np.all(np.isfinite(h))):
@@ -383,6 +406,8 @@ def transform_position(
         nonlocal sig
         added = rate_m_yr * abs(dt)
         sig = tuple(np.sqrt(s**2 + added**2) for s in sig)
+        if plate_code is not None and (frame.dynamic or frame.ensemble):
+            return _plate_motion(frame, la, lo, hh, added)
         steps.append(
             Step(
                 kind="hold",
@@ -404,6 +429,40 @@ def transform_position(
                 "and the result may be off by far more than the inflated uncertainty. Give a velocity, or "
                 "convert at the mark's own epoch."
             )
+        return la, lo, hh
+
+    def _plate_motion(frame: FrameInfo, la, lo, hh, added):
+        ve, vn, vu = _pmm.velocity_enu_m_yr(
+            la, lo, hh, plate=plate_code, ellipsoid=frame.ellipsoid, origin_rate_bias=plate_origin_rate_bias
+        )
+        la, lo, hh = propagate_velocity(la, lo, hh, velocity_enu_m_yr=(ve, vn, vu), dt_yr=dt, ellipsoid=frame.ellipsoid)
+        if np.size(ve) == 1:
+            vtext = (
+                f"model velocity ({float(ve) * 1000:.1f}, {float(vn) * 1000:.1f}, {float(vu) * 1000:.1f}) mm/yr "
+                "east, north, up"
+            )
+        else:
+            vtext = "each point's model velocity"
+        steps.append(
+            Step(
+                kind="plate_motion",
+                description=(
+                    f"moved with the plate: {_pmm.model_label(plate_code, origin_rate_bias=plate_origin_rate_bias)}, "
+                    f"{vtext} × {dt:+.3f} yr; residual rate {assumed_rate_mm_yr:g} mm/yr per axis × {abs(dt):.3f} yr "
+                    "added to σ"
+                ),
+                accuracy_m=added,
+                from_label=frame.label,
+                to_label=frame.label,
+                from_epoch_yr=t1,
+                to_epoch_yr=t2,
+            )
+        )
+        warnings.append(
+            f"The epoch change {t1:.3f} → {t2:.3f} in {frame.label} uses the rigid motion of the {plate_code} plate "
+            f"({_pmm.MODEL_NAME}), not the mark's own velocity. Near plate boundaries and in deforming areas marks "
+            "move differently; give the mark's velocity where it is known."
+        )
         return la, lo, hh
 
     if dt != 0.0 and velocity_enu_m_yr is not None:

@@ -2,8 +2,10 @@
 
 The computation is the pure :func:`registry.geodesy.convert.convert_point`; this module adds what
 depends on the office's configuration: the geoid model (``REGISTRY["GEOID_MODEL"]`` in
-``REGISTRY["GEOID_DIR"]``, else the labelled EGM96 fallback) and the assumed rate for epoch changes
-without a velocity (``REGISTRY["ASSUMED_RATE_MM_YR"]``).
+``REGISTRY["GEOID_DIR"]``, else the labelled EGM96 fallback), the assumed rate for epoch changes
+without a velocity (``REGISTRY["ASSUMED_RATE_MM_YR"]``) and the plate of the ITRF2020 plate motion
+model applied to such epoch changes in a dynamic frame (``REGISTRY["PLATE"]``; empty: none, the
+result then carries a warning that plate motion is not modelled).
 """
 
 from __future__ import annotations
@@ -16,7 +18,13 @@ from registry.geodesy.convert import PointConversion, convert_point
 from registry.geodesy.heights import GeoidModel, egm96_fallback
 from registry.geodesy.projsetup import find_grid
 
-__all__ = ["configured_geoid", "point_convert"]
+__all__ = ["configured_geoid", "configured_plate", "point_convert"]
+
+
+def configured_plate() -> str | None:
+    """The plate code of ``REGISTRY["PLATE"]`` (upper case), or None when the setting is empty."""
+    value = (settings.REGISTRY.get("PLATE") or "").strip().upper()
+    return value or None
 
 
 def configured_geoid() -> tuple[GeoidModel | None, str | None]:
@@ -52,6 +60,7 @@ def point_convert(**inputs) -> PointConversion:
     result = convert_point(
         geoid=geoid,
         assumed_rate_mm_yr=float(settings.REGISTRY.get("ASSUMED_RATE_MM_YR", 2.0)),
+        plate=configured_plate(),
         **inputs,
     )
     if note:

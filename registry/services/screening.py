@@ -9,9 +9,11 @@ Steps:
    years of 365.25 days), published positions.
 3. Position per mark: the published one in the job's frame, else the first published one
    that transforms to it (``registry.geodesy.frames.transform_position``, which also moves it
-   to the job's epoch: along the mark's velocity where known, else held with an assumed
-   rate). The σ that epoch change adds per axis is the *drift* term (horizontal: the larger
-   of east and north). A frame change's own stated accuracy is not added to the budget: it
+   to the job's epoch: along the mark's velocity where known; else, in a dynamic frame, with
+   the plate's rigid motion from the ITRF2020 plate motion model when ``REGISTRY["PLATE"]``
+   names a plate; else held). Without a velocity the assumed rate × |Δt| is added (the
+   residual motion relative to the plate where the model was applied). The σ that epoch
+   change adds per axis is the *drift* term (horizontal: the larger of east and north). A frame change's own stated accuracy is not added to the budget: it
    is common to every base transformed the same way and does not change relative RTK
    results; its steps and warnings are shown instead.
 4. Base σ from the position's covariance: per-axis horizontal √λmax of the E/N block,
@@ -40,6 +42,7 @@ from registry.geodesy import site as site_geo
 from registry.geodesy.frames import FrameTransformError, frame_info, transform_position
 from registry.models import Condition, Job, Mark, Position, PositionState, Visit
 from registry.roles import Ability
+from registry.selectors.conversion import configured_plate
 from registry.services.access import access_job_by_code, require_ability
 
 #: Check marks are looked for within this distance of the site (m).
@@ -83,6 +86,8 @@ class ScreeningSettings:
     recovery_years: float
     grid_spacing_m: float | None = None
     job_code: str | None = None
+    #: Plate of the ITRF2020 plate motion model (``REGISTRY["PLATE"]``); "" applies none.
+    plate: str = ""
 
     @property
     def site_radius_m(self) -> float:
@@ -184,6 +189,7 @@ class ScreeningResult:
                 "setup_h_mm": s.model.setup_h_mm,
                 "setup_v_mm": s.model.setup_v_mm,
                 "assumed_rate_mm_yr": s.assumed_rate_mm_yr,
+                "plate_model": s.plate or None,
                 "max_baseline_m": s.max_baseline_m,
                 "recovery_years": s.recovery_years,
             },
@@ -297,6 +303,7 @@ def settings_from_job(job: Job) -> ScreeningSettings:
         recovery_years=job.recovery_years,
         grid_spacing_m=job.grid_spacing_m,
         job_code=job.code,
+        plate=configured_plate() or "",
     )
 
 
@@ -403,6 +410,7 @@ def _place(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
         velocity_enu_m_yr=velocity,
         velocity_sigma_enu_m_yr=sigma,
         assumed_rate_mm_yr=s.assumed_rate_mm_yr,
+        plate=s.plate or None,
     )
     cand.position = p
     cand.lat_deg, cand.lon_deg, cand.h_m = float(r.lat_deg), float(r.lon_deg), float(r.h_m)

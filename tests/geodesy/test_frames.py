@@ -295,3 +295,129 @@ def test_epoch_display():
     assert decimal_year_to_date(2023.5) == dt.date(2023, 7, 2)  # 182.5 d → 2 July (day containing the instant)
     assert decimal_year_to_date(2010.999) == dt.date(2010, 12, 31)
     assert format_epoch(2010.0) == "2010.000 (2010-01-01)"
+
+
+# --- plate motion model in epoch changes (ITRF2020-PMM, Altamimi et al. 2023, doi:10.1029/2023GL106373) ---
+
+
+def proj_pmm_geographic(lat_deg, lon_deg, h_m, *, plate, t1_yr, t2_yr):
+    """PROJ's own plate-motion evaluation (data file ITRF2020, +init=ITRF2020:<plate>): (lat, lon, h) at t2."""
+    tr = pyproj.Transformer.from_pipeline(
+        "+proj=pipeline +step +proj=axisswap +order=2,1 +step +proj=unitconvert +xy_in=deg +xy_out=rad "
+        "+step +proj=cart +ellps=GRS80 "
+        f"+step +init=ITRF2020:{plate} +t_epoch={t1_yr} "
+        "+step +inv +proj=cart +ellps=GRS80 +step +proj=unitconvert +xy_in=rad +xy_out=deg "
+        "+step +proj=axisswap +order=2,1"
+    )
+    la, lo, hh, _ = tr.transform(lat_deg, lon_deg, h_m, t2_yr)
+    return la, lo, hh
+
+
+def test_itrf2014_2013_to_2026_on_noam_moves_with_the_proj_plate_velocity():
+    # ITRF2014 (EPSG:7912) point at 2013.0 moved to 2026.0 with the NOAM plate; expected: PROJ's evaluation
+    # of its ITRF2020:NOAM entry (independent implementation), |v| · 13 yr with |v| = 17.614 mm/yr (hand cross
+    # product in test_platemotion.py) → 0.229 m.
+    r = transform_position(
+        45.2, -110.6, 1500.0, from_epsg=7912, from_epoch_yr=2013.0, to_epsg=7912, to_epoch_yr=2026.0, plate="NOAM"
+    )
+    la, lo, hh = proj_pmm_geographic(45.2, -110.6, 1500.0, plate="NOAM", t1_yr=2013.0, t2_yr=2026.0)
+    ours = np.array([float(v) for v in geodetic_to_ecef(r.lat_deg, r.lon_deg, r.h_m, ellipsoid=GRS80)])
+    theirs = np.array([float(v) for v in geodetic_to_ecef(la, lo, hh, ellipsoid=GRS80)])
+    assert np.abs(ours - theirs).max() < 1e-5  # 0.01 mm
+    start = np.array([float(v) for v in geodetic_to_ecef(45.2, -110.6, 1500.0, ellipsoid=GRS80)])
+    assert np.linalg.norm(ours - start) == pytest.approx(0.017614 * 13.0, abs=5e-5)  # |v| · 13 yr = 0.2290 m
+    e, n, u = (
+        float(v) for v in geodetic_to_enu(r.lat_deg, r.lon_deg, r.h_m, lat0_deg=45.2, lon0_deg=-110.6, h0_m=1500.0)
+    )
+    assert e < -0.19 and n < -0.10 and abs(u) < 0.001  # west-south-west, as the plate
+
+
+def test_plate_motion_still_inflates_sigma_by_the_residual_rate():
+    r = transform_position(
+        45.2,
+        -110.6,
+        1500.0,
+        from_epsg=7912,
+        from_epoch_yr=2013.0,
+        to_epsg=7912,
+        to_epoch_yr=2026.0,
+        plate="NOAM",
+        assumed_rate_mm_yr=1.5,
+    )
+    # [hand] residual rate 1.5 mm/yr × 13 yr = 19.5 mm per axis.
+    assert [float(s) for s in r.added_sigma_enu_m] == pytest.approx([0.0195] * 3)
+    assert r.steps[0].accuracy_m == pytest.approx(0.0195)
+
+
+def test_plate_motion_step_names_the_model_in_the_chain():
+    r = transform_position(
+        45.2, -110.6, 1500.0, from_epsg=7912, from_epoch_yr=2013.0, to_epsg=7912, to_epoch_yr=2026.0, plate="noam"
+    )
+    assert [s.kind for s in r.steps] == ["plate_motion"]
+    text = r.steps[0].description
+    assert "ITRF2020-PMM (Altamimi et al. 2023) North American plate (NOAM)" in text
+    assert "(-15.4, -8.5, -0.0) mm/yr east, north, up × +13.000 yr" in text
+    assert "residual rate 2 mm/yr per axis × 13.000 yr" in text
+    assert not any("NOT modelled" in w for w in r.warnings)
+    assert any("rigid motion of the NOAM plate" in w for w in r.warnings)
+
+
+def test_plate_setting_off_is_the_old_behaviour():
+    kw = dict(from_epsg=7912, from_epoch_yr=2013.0, to_epsg=7912, to_epoch_yr=2026.0)
+    for off in (None, ""):
+        r = transform_position(45.2, -110.6, 1500.0, plate=off, **kw)
+        assert [s.kind for s in r.steps] == ["hold"]
+        assert float(r.lat_deg) == 45.2 and float(r.lon_deg) == -110.6
+        assert any("NOT modelled" in w for w in r.warnings)
+        assert float(r.added_sigma_enu_m[0]) == pytest.approx(0.026)
+
+
+def test_dynamic_to_dynamic_changes_frame_at_the_source_epoch_then_moves_with_the_plate():
+    r = transform_position(
+        45.2, -110.6, 1500.0, from_epsg=9989, from_epoch_yr=2013.0, to_epsg=7912, to_epoch_yr=2026.0, plate="NOAM"
+    )
+    assert [s.kind for s in r.steps] == ["frame_change", "plate_motion"]
+    la, lo, hh, _ = change_frame(45.2, -110.6, 1500.0, from_epsg=9989, to_epsg=7912, epoch_yr=2013.0)
+    la2, lo2, hh2 = proj_pmm_geographic(float(la), float(lo), float(hh), plate="NOAM", t1_yr=2013.0, t2_yr=2026.0)
+    e, n, u = geodetic_to_enu(r.lat_deg, r.lon_deg, r.h_m, lat0_deg=la2, lon0_deg=lo2, h0_m=hh2)
+    assert max(abs(float(e)), abs(float(n)), abs(float(u))) < 1e-5
+
+
+def test_plate_model_not_used_where_the_point_is_held_in_a_plate_fixed_frame_or_has_a_velocity():
+    kw = dict(from_epsg=7912, from_epoch_yr=2024.5, to_epsg=6319, to_epoch_yr=2010.0)
+    with_plate = transform_position(45.2, -110.6, 1500.0, plate="NOAM", **kw)
+    without = transform_position(45.2, -110.6, 1500.0, **kw)
+    assert [s.kind for s in with_plate.steps] == ["frame_change", "hold"]
+    assert float(with_plate.lat_deg) == float(without.lat_deg) and float(with_plate.h_m) == float(without.h_m)
+    v = transform_position(
+        45.2,
+        -110.6,
+        1500.0,
+        from_epsg=7912,
+        from_epoch_yr=2013.0,
+        to_epsg=7912,
+        to_epoch_yr=2026.0,
+        plate="NOAM",
+        velocity_enu_m_yr=(0.0, 0.0, 0.0),
+    )
+    assert [s.kind for s in v.steps] == ["velocity"] and float(v.lat_deg) == pytest.approx(45.2, abs=1e-12)
+
+
+def test_unknown_plate_is_a_frame_transform_error():
+    with pytest.raises(FrameTransformError) as info:
+        transform_position(
+            45.2, -110.6, 0.0, from_epsg=7912, from_epoch_yr=2013.0, to_epsg=7912, to_epoch_yr=2026.0, plate="ATLANTIS"
+        )
+    assert info.value.code == "unknown_plate"
+
+
+def test_plate_motion_vectorised_matches_scalar():
+    lat = np.array([45.0, 45.5, 44.8])
+    lon = np.array([-110.0, -111.2, -110.6])
+    kw = dict(from_epsg=7912, from_epoch_yr=2013.0, to_epsg=7912, to_epoch_yr=2026.0, plate="NOAM")
+    many = transform_position(lat, lon, 1500.0, **kw)
+    assert "each point's model velocity" in many.steps[0].description
+    for i in range(3):
+        one = transform_position(lat[i], lon[i], 1500.0, **kw)
+        assert float(one.lat_deg) == pytest.approx(many.lat_deg[i], abs=1e-13)
+        assert float(one.lon_deg) == pytest.approx(many.lon_deg[i], abs=1e-13)
