@@ -10,10 +10,11 @@ example in references.md §8.2).
 Epochs: when the two epochs differ, the *published* position is brought to the proposed
 position's epoch first, in the same frame, with :func:`registry.geodesy.frames.transform_position`:
 along the published position's own velocity (its velocity sigmas added ×|Δt|) if it has one,
-else along the proposed position's velocity, else (in a dynamic frame with ``settings.REGISTRY["PLATE"]`` set) moved with that plate's
-rigid motion from the ITRF2020 plate motion model, else held; without a velocity the office's
-assumed rate (``settings.REGISTRY["ASSUMED_RATE_MM_YR"]`` per axis × |Δt|) is added to its variances. What was
-done is returned as text for the page, with PROJ's warnings (a dynamic frame without a velocity).
+else along the proposed position's velocity, else (in a dynamic frame with
+``settings.REGISTRY["PLATE"]`` set) moved with that plate's rigid motion from the ITRF2020
+plate motion model, else held. Without a velocity the office's assumed rate
+(``settings.REGISTRY["ASSUMED_RATE_MM_YR"]`` per axis × |Δt|) is added to the published
+variances. What was done is returned as text for the page, with the frames module's warnings.
 """
 
 from __future__ import annotations

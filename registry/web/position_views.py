@@ -76,8 +76,9 @@ def position_decide(request: HttpRequest, code: str, position_id: int, action: s
             try:
                 service(actor=request.user, position_id=position.pk, note=form.cleaned_data["note"])
             except ValidationError as exc:
-                for key, errors in getattr(exc, "error_dict", {"note": exc.error_list}).items():
-                    for e in errors:
+                errors = exc.error_dict if hasattr(exc, "error_dict") else {"note": exc.error_list}
+                for key, items in errors.items():
+                    for e in items:
                         form.add_error("note" if key == "note" else None, e)
                 status = 400
             except Conflict as exc:
