@@ -1,0 +1,92 @@
+"""The "Marks near a point" page: roles, DMS input, table (distance, azimuth, status, latest visit), filters, errors.
+
+Check values: distances and azimuths are recomputed here with pyproj's Geod on GRS80 (Karney's
+geodesic algorithms, an independent reference library), and printed to 3 decimals of a metre;
+azimuths in DMS to 0.1″.
+"""
+
+from __future__ import annotations
+
+import pytest
+from django.urls import reverse
+from pyproj import Geod
+
+from registry.geodesy.dms import format_dms
+from registry.models import AuditEvent, Mark
+
+ROLES = ["viewer", "technician", "manager", "signatory", "admin_user_role"]
+URL = "/marks/near/"
+GEOD = Geod(ellps="GRS80")
+
+
+@pytest.mark.django_db
+@pytest.mark.parametrize("role", ROLES)
+def test_every_role_reads(request, kestrel, signed_in, role):
+    response = signed_in(request.getfixturevalue(role)).get(URL)
+    assert response.status_code == 200
+    assert b"Marks near a point" in response.content
+
+
+@pytest.mark.django_db
+def test_anonymous_goes_to_sign_in(client):
+    assert client.get(URL).status_code == 302
+
+
+@pytest.mark.django_db
+def test_nav_link_and_url_name(kestrel, signed_in, viewer):
+    assert reverse("web:marks-near") == URL
+    page = signed_in(viewer).get(reverse("web:mark-list")).content.decode()
+    assert f'href="{URL}"' in page
+
+
+@pytest.mark.django_db
+def test_results_with_dms_point(kestrel, signed_in, viewer):
+    before = AuditEvent.objects.count()
+    # 45°12'00" N, 110°36'00" W = (45.2, -110.6), the scenario's KV-001 first position
+    response = signed_in(viewer).get(URL, {"lat": "45 12 00 N", "lon": "110 36 00 W", "radius_km": "5", "limit": "10"})
+    assert response.status_code == 200
+    page = response.content.decode()
+    assert "2 marks within" in page
+    assert page.index("KV-001") < page.index("KV-002")  # nearest first
+    bridge = Mark.objects.get(code="KV-002")
+    az, _, dist = GEOD.inv(-110.6, 45.2, bridge.search_lon_deg, bridge.search_lat_deg)
+    assert f"{dist:.3f}" in page
+    assert format_dms(az % 360.0, decimals=1) in page
+    assert "2024-04-18" in page  # KV-001's latest visit (scenario)
+    assert "never visited" in page  # KV-002 has none
+    assert 'href="/marks/KV-001/"' in page
+    assert "Recover and verify every mark in the field" in page  # cautions
+    assert AuditEvent.objects.count() == before  # a search never writes
+
+
+@pytest.mark.django_db
+def test_filters(kestrel, signed_in, viewer):
+    client = signed_in(viewer)
+    base = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10"}
+    page = client.get(URL, {**base, "good_visit_within_yr": "50"}).content.decode()
+    assert "1 mark within" in page and "KV-001" in page  # only KV-001 was found in good condition
+    page = client.get(URL, {**base, "stability": "high"}).content.decode()
+    assert "1 mark within" in page and "KV-001" in page
+    page = client.get(URL, {**base, "status": "retired"}).content.decode()
+    assert "0 marks within" in page
+    page = client.get(URL, {**base, "frame_epsg": "9989"}).content.decode()
+    assert "0 marks within" in page  # the ITRF2020 position of KV-001 is only proposed
+
+
+@pytest.mark.django_db
+@pytest.mark.parametrize(
+    "params,field,text",
+    [
+        ({"lat": "45 12 61 N"}, "lat", b"seconds must be below 60"),
+        ({"lat": "95"}, "lat", b"within"),
+        ({"lon": "110 36 W E"}, "lon", b""),
+        ({"radius_km": "0"}, "radius_km", b"greater than or equal"),
+        ({"limit": "100000"}, "limit", b"less than or equal"),
+    ],
+)
+def test_bad_input(kestrel, signed_in, viewer, params, field, text):
+    query = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10", **params}
+    response = signed_in(viewer).get(URL, query)
+    assert response.status_code == 400
+    assert b"marks within" not in response.content
+    assert text in response.content
