@@ -425,5 +425,37 @@ def test_asprs_flags_few_points_bias_blunders_and_weak_check_points():
     assert "bias" in codes2 and codes2.count("survey_accuracy_not_given") == 2
 
 
+def test_asprs_bias_against_a_target_rmse():
+    # S-9: ASPRS Ed. 2 compares the mean error with 25 % of the target RMSE (secondary transcription of
+    # ASPRS Ed. 2 (2023); the target denominator is from memory, unconfirmed). Residuals: PERS May 2014
+    # p. 397, Table 3; the targets 0.20 m (per horizontal axis) and 0.05 m (up) are invented.
+    # Hand-computed means: E −0.412/7 = −0.0588571, N 0.307/7 = 0.0438571, U 0.124/7 = 0.0177143 m.
+    measured = acc.asprs2023_evaluate(EX_A_DE, EX_A_DN, EX_A_DH)
+    m_bias = {f.params["axis"]: f.params for f in measured.findings if f.code == "bias"}
+    # Without a target all three axes exceed 25 % of their measured RMSE (0.65, 0.54, 0.53).
+    assert set(m_bias) == {"x", "y", "z"}
+    assert all(p["reference"] == "measured" and p["target_rmse_m"] is None for p in m_bias.values())
+    r = acc.asprs2023_evaluate(EX_A_DE, EX_A_DN, EX_A_DH, target_rmse_xy_m=0.20, target_rmse_z_m=0.05)
+    t_bias = {f.params["axis"]: f.params for f in r.findings if f.code == "bias"}
+    # 25 % of 0.20 = 0.050: |E| 0.0589 exceeds it, |N| 0.0439 does not; 25 % of 0.05 = 0.0125 < |U| 0.0177.
+    assert set(t_bias) == {"x", "z"}
+    assert t_bias["x"]["ratio"] == pytest.approx(0.412 / 7 / 0.20, rel=1e-12)  # 0.294286
+    assert t_bias["z"]["ratio"] == pytest.approx(0.124 / 7 / 0.05, rel=1e-12)  # 0.354286
+    assert t_bias["x"]["reference"] == "target" and t_bias["x"]["target_rmse_m"] == 0.20
+    # A generous target (25 % of 0.30 = 0.075 m > every |mean|) flags nothing; RMSE figures are unchanged.
+    loose = acc.asprs2023_evaluate(EX_A_DE, EX_A_DN, EX_A_DH, target_rmse_xy_m=0.30, target_rmse_z_m=0.30)
+    assert "bias" not in {f.code for f in loose.findings}
+    assert loose.rmse_h_m == measured.rmse_h_m
+    for bad, code in (
+        (0.0, "bad_target_rmse"),
+        (-0.1, "bad_target_rmse"),
+        ([0.1, 0.2], "bad_target_rmse"),
+        (float("nan"), "not_finite"),
+    ):
+        with pytest.raises(ComputationInputError) as e:
+            acc.asprs2023_evaluate(du_m=[0.01] * 30, target_rmse_z_m=bad)
+        assert e.value.code == code
+
+
 def test_quadrature_sum():
     assert acc.quadrature_sum_m(0.03, 0.04) == pytest.approx(0.05, rel=1e-15)

@@ -127,6 +127,23 @@ def test_findings_carry_codes_and_sentences():
     assert any("licensed practice" in c for c in r["cautions"])
 
 
+def test_bias_wording_names_its_denominator():
+    # S-9. Without a target the finding is a ratio to the measured RMSE and says the standard uses the
+    # target; with one, it is a ratio to the target. Residuals: PERS May 2014 p. 397, Table 3; the
+    # target 0.20 m is invented; 0.0588571/0.20 = 29 % (hand-computed).
+    table = stm.parse_residuals_csv(EX_A_CSV)
+    r = stm.accuracy_report(style="asprs2023", residuals=table)
+    msg = next(f["message"] for f in r["findings"] if f["code"] == "bias" and f["params"]["axis"] == "x")
+    assert "65 % of the measured RMSE (0.0908 m)" in msg and "compares the mean error with the target RMSE" in msg
+    r = stm.accuracy_report(style="asprs2023", residuals=table, target_rmse_xy_m=0.20)
+    msg = next(f["message"] for f in r["findings"] if f["code"] == "bias" and f["params"]["axis"] == "x")
+    assert "29 % of the target RMSE (0.2000 m)" in msg and "measured" not in msg
+    assert not any(f["code"] == "bias" and f["params"]["axis"] == "y" for f in r["findings"])  # 22 % < 25 %
+    with pytest.raises(ComputationInputError) as e:
+        stm.accuracy_report(style="nssda", residuals=table, target_rmse_xy_m=0.20)
+    assert e.value.code == "input_choice"
+
+
 def test_compatibility_and_combination_sentences_carry_the_numbers():
     ok = stm.compatibility_text(compatibility_test([0.018, -0.021], np.diag([1e-4, 1.44e-4]), np.diag([6.4e-5, 1e-4])))
     assert ok == "Compatible (horizontal, 95%): T = 3.783 ≤ χ²(0.95, 2) = 5.991, p = 0.151."  # references.md §8.2
