@@ -1,29 +1,49 @@
-"""The job map: an inline SVG drawn on the server, so that the site, the candidate marks and the
+"""The job map: an inline SVG drawn on the server, so that the site, the marks that matter and the
 coverage show without any basemap or script.
 
 Projection: UTM (GRS80) of the zone holding the site's reference point, for display only; grid
-north is up. Coverage cells are the screening grid's cells (squares on the site's local plane,
-rotated against UTM by well under a degree here, drawn unrotated). Cells are coloured by the
-best horizontal 95 % figure any usable base reaches there, in five classes relative to the job's
-tolerance; cells over tolerance are hatched as well as coloured, so the map reads in black and
-white too.
+north is up and the meridian convergence at the site is stated beside the north arrow (PROJ/NGS
+sign: the angle from true north to grid north, clockwise positive; see
+:mod:`registry.geodesy.grid`). Coverage cells are the screening grid's cells (squares on the
+site's local plane, rotated against UTM by the convergence difference, well under a degree
+within a zone, drawn unrotated). Cells are coloured by the best horizontal 95 % figure any usable
+base reaches there, in five classes relative to the job's tolerance; cells over tolerance are
+hatched as well as coloured, so the map reads in black and white too.
+
+Frame: the site's bounding box grown to take in the chosen bases and the check marks (for a point
+site also the nearest few usable marks), then a margin of ``MARGIN_FRACTION`` of the span on each
+side, widened to the drawing's aspect ratio. Marks outside the frame are not drawn; the map says how
+many. Labels are placed greedily (chosen bases, check marks, then usable marks by rank, then
+excluded marks), each at the first of eight positions around its symbol that overlaps no symbol and
+no label already placed; a label with no free position is left out (its code stays in the symbol's
+tooltip), except for the chosen bases and check marks, which are always labelled.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from xml.sax.saxutils import escape
 
 import numpy as np
 import pyproj
 
+from registry.geodesy.dms import format_signed_dms
 from registry.geodesy.site import display_utm_zone
-from registry.services.screening import ScreeningResult
+from registry.services.screening import Candidate, ScreeningResult
 
 WIDTH_PX = 760
 HEIGHT_PX = 560
-PAD_PX = 36
+PAD_PX = 20
+#: Margin added on each side of the frame, as a fraction of its larger span.
+MARGIN_FRACTION = 0.125
+#: Smallest frame span (m), so a tiny site still shows its surroundings.
+MIN_SPAN_M = 400.0
+#: For a point site the frame also takes in this many nearest usable marks.
+POINT_SITE_NEAREST = 4
+#: Label metrics for 11 px DejaVu Sans (a conservative average advance per character).
+LABEL_CHAR_PX = 6.9
+LABEL_HEIGHT_PX = 12.0
 #: Fractions of the tolerance bounding the colour classes (the last class is over tolerance).
 CLASS_BOUNDS = (0.5, 0.7, 0.85, 1.0)
 #: Our own calm ramp: pale to deeper blue-green inside tolerance, then a warm clay for "over".
@@ -36,6 +56,29 @@ class LegendRow:
     colour: str
     label: str
     hatched: bool = False
+
+
+@dataclass
+class JobMap:
+    """The SVG and what the caption needs to say about it."""
+
+    svg: str
+    zone_label: str
+    convergence_deg: float
+    span_m: float
+    drawn_marks: int
+    outside_usable: int
+    outside_excluded: int
+    unlabelled: int
+    labelled_codes: list[str] = field(default_factory=list)
+
+    @property
+    def outside_total(self) -> int:
+        return self.outside_usable + self.outside_excluded
+
+    @property
+    def convergence_text(self) -> str:
+        return format_signed_dms(self.convergence_deg, decimals=2)
 
 
 def _nice_length(target_m: float) -> float:
@@ -69,60 +112,209 @@ def legend_rows(tol_h_mm: float) -> list[LegendRow]:
     return rows
 
 
-def job_map_svg(result: ScreeningResult) -> str:
-    """The SVG markup of the job map (a string to put inline in the page)."""
+# ----------------------------------------------------------------------------- frame
+
+
+def map_frame_m(
+    site_x_m: np.ndarray,
+    site_y_m: np.ndarray,
+    keep_x_m: np.ndarray,
+    keep_y_m: np.ndarray,
+    *,
+    width_px: float,
+    height_px: float,
+    margin_fraction: float = MARGIN_FRACTION,
+    min_span_m: float = MIN_SPAN_M,
+) -> tuple[float, float, float, float]:
+    """The map's extent (x0, y0, x1, y1) in projected metres.
+
+    The bounding box of the site points and the points to keep, a margin of ``margin_fraction`` of
+    the larger span on each side, and the shorter side widened (about the centre) so that the box has
+    the drawing's aspect ratio ``width_px / height_px`` (one scale for both axes).
+
+    >>> x0, y0, x1, y1 = map_frame_m(np.array([0.0, 1000.0]), np.array([0.0, 500.0]), np.zeros(0), np.zeros(0),
+    ...                              width_px=800, height_px=400, margin_fraction=0.1)
+    >>> round(x1 - x0), round(y1 - y0), round((x0 + x1) / 2), round((y0 + y1) / 2)
+    (1400, 700, 500, 250)
+    """
+    xs = np.concatenate([np.ravel(site_x_m), np.ravel(keep_x_m)])
+    ys = np.concatenate([np.ravel(site_y_m), np.ravel(keep_y_m)])
+    x0, x1, y0, y1 = float(xs.min()), float(xs.max()), float(ys.min()), float(ys.max())
+    span = max(x1 - x0, y1 - y0, min_span_m)
+    w = max(x1 - x0, min_span_m) + 2 * margin_fraction * span
+    h = max(y1 - y0, min_span_m) + 2 * margin_fraction * span
+    aspect = width_px / height_px
+    if w / h < aspect:
+        w = h * aspect
+    else:
+        h = w / aspect
+    cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
+    return cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2
+
+
+# ----------------------------------------------------------------------------- labels
+
+
+@dataclass(frozen=True)
+class Box:
+    x0: float
+    y0: float
+    x1: float
+    y1: float
+
+    def overlaps(self, other: Box) -> bool:
+        return self.x0 < other.x1 and other.x0 < self.x1 and self.y0 < other.y1 and other.y0 < self.y1
+
+    def inside(self, width: float, height: float) -> bool:
+        return self.x0 >= 0 and self.y0 >= 0 and self.x1 <= width and self.y1 <= height
+
+
+#: Label positions around a symbol, tried in this order: (dx, dy, text-anchor) of the text's
+#: baseline point from the symbol centre.
+_SLOTS = (
+    (9.0, -6.0, "start"),  # upper right
+    (9.0, 13.0, "start"),  # lower right
+    (-9.0, -6.0, "end"),  # upper left
+    (-9.0, 13.0, "end"),  # lower left
+    (0.0, -11.0, "middle"),  # above
+    (0.0, 21.0, "middle"),  # below
+    (11.0, 4.0, "start"),  # right
+    (-11.0, 4.0, "end"),  # left
+)
+
+
+def label_box(x: float, y: float, text: str, slot: tuple[float, float, str]) -> Box:
+    """The box a label occupies when placed in ``slot`` around a symbol at (x, y) (pixels)."""
+    dx, dy, anchor = slot
+    w = LABEL_CHAR_PX * len(text)
+    bx = x + dx
+    left = bx if anchor == "start" else (bx - w if anchor == "end" else bx - w / 2)
+    base = y + dy
+    return Box(left, base - LABEL_HEIGHT_PX + 2, left + w, base + 3)
+
+
+def place_labels(
+    items: list[tuple[float, float, str, bool]],
+    obstacles: list[Box],
+    *,
+    width_px: float,
+    height_px: float,
+) -> list[tuple[int, float, float, str] | None]:
+    """Greedy placement without overlaps, in the order given.
+
+    ``items`` are (x, y, text, must_label). Returns, per item, (slot index, text x, text y, anchor)
+    or None when the label is left out. A must-label item takes its first slot inside the drawing
+    even if it overlaps (it is never dropped).
+
+    >>> placed = place_labels([(100, 100, "A-1", False), (104, 100, "B-2", False)], [], width_px=300, height_px=300)
+    >>> placed[0][0], placed[1] is not None and placed[1][0] != 0
+    (0, True)
+    """
+    taken = list(obstacles)
+    out: list[tuple[int, float, float, str] | None] = []
+    for x, y, text, must in items:
+        chosen = None
+        first_inside = None
+        for i, slot in enumerate(_SLOTS):
+            box = label_box(x, y, text, slot)
+            if not box.inside(width_px, height_px):
+                continue
+            if first_inside is None:
+                first_inside = (i, box)
+            if not any(box.overlaps(t) for t in taken):
+                chosen = (i, box)
+                break
+        if chosen is None and must:
+            chosen = first_inside or (0, label_box(x, y, text, _SLOTS[0]))
+        if chosen is None:
+            out.append(None)
+            continue
+        i, box = chosen
+        taken.append(box)
+        dx, dy, anchor = _SLOTS[i]
+        out.append((i, x + dx, y + dy, anchor))
+    return out
+
+
+# ----------------------------------------------------------------------------- drawing
+
+
+def _rings_path(px, rings) -> str:
+    """SVG path data of the site's rings (exterior and holes; even-odd fill)."""
+    parts = []
+    for rx, ry in rings:
+        x, y = px(rx, ry)
+        parts.append("M" + "L".join(f"{a:.1f},{b:.1f}" for a, b in zip(x, y, strict=True)) + "Z")
+    return "".join(parts)
+
+
+def _symbol_box(x: float, y: float, r: float = 7.0) -> Box:
+    return Box(x - r, y - r, x + r, y + r)
+
+
+def build_job_map(result: ScreeningResult) -> JobMap:
+    """Draw the job map for a screening result."""
     s = result.settings
     zone, north = display_utm_zone(s.site.ref_lon_deg, s.site.ref_lat_deg)
+    zone_label = f"{zone}{'N' if north else 'S'}"
     utm = pyproj.Proj(proj="utm", zone=zone, south=not north, ellps="GRS80")
+    convergence_deg = float(
+        utm.get_factors(s.site.ref_lon_deg, s.site.ref_lat_deg, errcheck=False).meridian_convergence
+    )
     grid = result.grid
     g_lat, g_lon = result.plane.to_geodetic_deg(grid.e_m, grid.n_m)
     gx, gy = utm(g_lon, g_lat)
     gx, gy = np.atleast_1d(gx), np.atleast_1d(gy)
-    rings = [utm(r[:, 0], r[:, 1]) for r in s.site.rings_lonlat_deg]
+    rings = [tuple(np.atleast_1d(v) for v in utm(r[:, 0], r[:, 1])) for r in s.site.rings_lonlat_deg]
 
-    chosen = {id(c) for c in result.chosen}
-    checks = {id(cm.candidate) for cm in result.check_marks}
-    shown = [c for c in result.candidates if not c.excluded or id(c) in chosen]
-    excluded = [c for c in result.candidates if c.excluded and c.lat_deg is not None]
+    chosen_ids = {id(c) for c in result.chosen}
+    check_ids = {id(cm.candidate) for cm in result.check_marks}
+    placed = [c for c in result.candidates if c.lat_deg is not None and c.lon_deg is not None]
+    if placed:
+        mx, my = utm(np.array([c.lon_deg for c in placed]), np.array([c.lat_deg for c in placed]))
+        mx, my = np.atleast_1d(mx), np.atleast_1d(my)
+    else:
+        mx = my = np.zeros(0)
+    pos = {id(c): (float(mx[i]), float(my[i])) for i, c in enumerate(placed)}
 
-    def xy(cands):
-        if not cands:
-            return np.zeros(0), np.zeros(0)
-        x, y = utm(np.array([c.lon_deg for c in cands]), np.array([c.lat_deg for c in cands]))
-        return np.atleast_1d(x), np.atleast_1d(y)
-
-    sx, sy = xy(shown)
-    ex, ey = xy(excluded)
-    # Extent: the site and every usable mark (excluded marks are drawn only where they fall inside).
-    xs = np.concatenate([gx, sx] + [np.atleast_1d(r[0]) for r in rings])
-    ys = np.concatenate([gy, sy] + [np.atleast_1d(r[1]) for r in rings])
-    x0, x1, y0, y1 = xs.min(), xs.max(), ys.min(), ys.max()
-    span = max(x1 - x0, y1 - y0, 200.0) * 1.12
-    cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
+    keep: list[Candidate] = [c for c in placed if id(c) in chosen_ids or id(c) in check_ids]
+    if s.site.is_point:
+        nearest = sorted((c for c in placed if not c.excluded), key=lambda c: c.distance_m)[:POINT_SITE_NEAREST]
+        keep += [c for c in nearest if c not in keep]
+    kx = np.array([pos[id(c)][0] for c in keep])
+    ky = np.array([pos[id(c)][1] for c in keep])
+    site_x = np.concatenate([gx] + [r[0] for r in rings])
+    site_y = np.concatenate([gy] + [r[1] for r in rings])
     inner_w, inner_h = WIDTH_PX - 2 * PAD_PX, HEIGHT_PX - 2 * PAD_PX
-    scale = min(inner_w, inner_h) / span  # px per metre
+    x0, y0, x1, y1 = map_frame_m(site_x, site_y, kx, ky, width_px=inner_w, height_px=inner_h)
+    scale = inner_w / (x1 - x0)  # px per metre (the same both ways: the frame has the drawing's aspect)
 
     def px(x, y):
-        return (WIDTH_PX / 2 + (np.asarray(x) - cx) * scale, HEIGHT_PX / 2 - (np.asarray(y) - cy) * scale)
+        return PAD_PX + (np.asarray(x) - x0) * scale, PAD_PX + (y1 - np.asarray(y)) * scale
 
     out = [
         f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {WIDTH_PX} {HEIGHT_PX}" class="jobmap" role="img" '
         f'aria-labelledby="jobmap-title">',
-        f'<title id="jobmap-title">Map of job {escape(s.job_code or "site")}: site, candidate marks and coverage '
-        f"(UTM zone {zone}{'N' if north else 'S'}, grid north up)</title>",
+        f'<title id="jobmap-title">Map of job {escape(s.job_code or "site")}: site, bases, check marks and coverage '
+        f"(UTM zone {zone_label}, grid north up)</title>",
+        "<style>.lbl{font:11px 'DejaVu Sans',Arial,sans-serif;fill:#1d1f21;paint-order:stroke;stroke:#fdfdfb;"
+        "stroke-width:3px;stroke-linejoin:round}.lbl.muted{fill:#77736c}.lbl.strong{font-weight:bold}</style>",
         "<defs>"
         '<pattern id="over-hatch" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(45)">'
         f'<rect width="6" height="6" fill="{CLASS_COLOURS[4]}"/><line x1="0" y1="0" x2="0" y2="6" stroke="#7a4a33" '
         'stroke-width="1.4"/></pattern></defs>',
         f'<rect x="0" y="0" width="{WIDTH_PX}" height="{HEIGHT_PX}" fill="#fdfdfb" stroke="#c9c5bc"/>',
     ]
+    obstacles: list[Box] = []
     # Coverage cells (or the point).
     best = result.core.best_h95_mm if result.core is not None else np.full(gx.size, np.inf)
     cls = classify(best, s.tol_h_mm)
     px_x, px_y = px(gx, gy)
     if grid.spacing_m > 0:
         size = grid.spacing_m * scale
-        out.append('<g class="coverage">')
+        # Cells are squares around points inside the site: clip them to the site's outline.
+        out.append(f'<clipPath id="site-clip"><path clip-rule="evenodd" d="{_rings_path(px, rings)}"/></clipPath>')
+        out.append('<g class="coverage" clip-path="url(#site-clip)">')
         for i in np.nonzero(grid.is_cell)[0]:
             fill = "url(#over-hatch)" if cls[i] == 4 else CLASS_COLOURS[cls[i]]
             out.append(
@@ -132,63 +324,116 @@ def job_map_svg(result: ScreeningResult) -> str:
         out.append("</g>")
         for rx, ry in rings:
             pts = " ".join(f"{a:.1f},{b:.1f}" for a, b in zip(*px(rx, ry), strict=True))
-            out.append(f'<polygon points="{pts}" fill="none" stroke="#1d1f21" stroke-width="1.6"/>')
+            out.append(f'<polygon class="site" points="{pts}" fill="none" stroke="#1d1f21" stroke-width="1.8"/>')
     else:
         fill = "url(#over-hatch)" if cls[0] == 4 else CLASS_COLOURS[cls[0]]
         out.append(
-            f'<circle class="site-point" cx="{px_x[0]:.1f}" cy="{px_y[0]:.1f}" r="9" fill="{fill}" stroke="#1d1f21" '
-            f'stroke-width="1.6" data-h95="{best[0]:.1f}"/>'
-            f'<path d="M{px_x[0] - 13:.1f},{px_y[0]:.1f}h26M{px_x[0]:.1f},{px_y[0] - 13:.1f}v26" stroke="#1d1f21"/>'
+            f'<g class="site"><circle class="site-point" cx="{px_x[0]:.1f}" cy="{px_y[0]:.1f}" r="10" fill="{fill}" '
+            f'stroke="#1d1f21" stroke-width="1.8" data-h95="{best[0]:.1f}"/>'
+            f'<path d="M{px_x[0] - 15:.1f},{px_y[0]:.1f}h30M{px_x[0]:.1f},{px_y[0] - 15:.1f}v30" stroke="#1d1f21"/></g>'
         )
-    # Excluded marks inside the frame: small grey crosses.
-    ex_px, ey_px = px(ex, ey)
-    for c, x, y in zip(excluded, ex_px, ey_px, strict=True):
-        if id(c) in chosen or not (0 <= x <= WIDTH_PX and 0 <= y <= HEIGHT_PX):
-            continue
-        out.append(
-            f'<g class="mark excluded"><title>{escape(c.mark.code)}: excluded</title>'
-            f'<path d="M{x - 4:.1f},{y - 4:.1f}l8,8M{x - 4:.1f},{y + 4:.1f}l8,-8" stroke="#8d8a84" stroke-width="1.5"/>'
-            f'<text x="{x + 6:.1f}" y="{y + 4:.1f}" class="lbl muted">{escape(c.mark.code)}</text></g>'
-        )
-    # Usable marks: circles; chosen bases: triangles; check marks: squares.
-    s_px, s_py = px(sx, sy)
-    for c, x, y in zip(shown, s_px, s_py, strict=True):
-        code = escape(c.mark.code)
-        if id(c) in chosen:
-            shape = (
-                f'<path d="M{x:.1f},{y - 9:.1f}L{x + 8:.1f},{y + 6:.1f}L{x - 8:.1f},{y + 6:.1f}Z" '
-                'fill="#1d1f21" stroke="#fff" stroke-width="1"/>'
-            )
-            role = "base"
-        elif id(c) in checks:
-            shape = (
-                f'<rect x="{x - 6:.1f}" y="{y - 6:.1f}" width="12" height="12" fill="#fff" stroke="#1d1f21" '
-                'stroke-width="2"/>'
-            )
-            role = "check"
-        else:
-            shape = f'<circle cx="{x:.1f}" cy="{y:.1f}" r="5" fill="#fff" stroke="#24527a" stroke-width="2"/>'
-            role = "candidate"
-        label = f"{code} ({role})" if role != "candidate" else code
-        out.append(
-            f'<g class="mark {role}" data-code="{code}"><title>{code}: {role}</title>{shape}'
-            f'<text x="{x + 10:.1f}" y="{y - 6:.1f}" class="lbl">{label}</text></g>'
-        )
-    # Scale bar (bottom left) and north arrow (top right).
+        obstacles.append(_symbol_box(float(px_x[0]), float(px_y[0]), 15.0))
+    # The fixed furniture: scale bar (bottom left) and north arrow (top right).
     bar_m = _nice_length(0.25 * inner_w / scale)
     bar_px = bar_m * scale
-    bx, by = PAD_PX, HEIGHT_PX - 16
-    label = f"{bar_m / 1000:g} km" if bar_m >= 1000 else f"{bar_m:g} m"
-    out.append(
-        f'<g class="scalebar"><rect x="{bx - 4}" y="{by - 22}" width="{bar_px + 70:.1f}" height="28" fill="#fdfdfb" '
-        f'opacity="0.85"/><path d="M{bx},{by - 6}v6h{bar_px:.1f}v-6" fill="none" stroke="#1d1f21" stroke-width="1.6"/>'
-        f'<text x="{bx + bar_px + 6:.1f}" y="{by}" class="lbl">{label}</text></g>'
+    bx, by = PAD_PX + 4, HEIGHT_PX - 14
+    bar_label = f"{bar_m / 1000:g} km" if bar_m >= 1000 else f"{bar_m:g} m"
+    scalebar = (
+        f'<g class="scalebar"><path d="M{bx},{by - 6}v6h{bar_px:.1f}v-6" fill="none" stroke="#1d1f21" stroke-width="1.6"/>'
+        f'<text x="{bx + bar_px + 6:.1f}" y="{by}" class="lbl">{bar_label}</text></g>'
     )
-    nx, ny = WIDTH_PX - 30, 22
-    out.append(
+    obstacles.append(Box(bx - 6, by - 20, bx + bar_px + 58, by + 8))
+    nx, ny = WIDTH_PX - 22, 14
+    conv = format_signed_dms(convergence_deg, decimals=2)
+    north_arrow = (
         f'<g class="north"><path d="M{nx},{ny}l7,22l-7,-6l-7,6z" fill="#1d1f21"/>'
-        f'<text x="{nx}" y="{ny + 36}" text-anchor="middle" class="lbl">N</text>'
-        f'<text x="{nx - 8}" y="{ny + 50}" text-anchor="end" class="lbl muted">grid north, UTM {zone}{"N" if north else "S"}</text></g>'
+        f'<text x="{nx}" y="{ny + 34}" text-anchor="middle" class="lbl">N</text>'
+        f'<text x="{nx - 14}" y="{ny + 10}" text-anchor="end" class="lbl muted">grid north, UTM {zone_label}</text>'
+        f'<text x="{nx - 14}" y="{ny + 24}" text-anchor="end" class="lbl muted">convergence {conv}</text></g>'
     )
+    obstacles.append(Box(nx - 190, ny - 8, nx + 16, ny + 54))
+
+    # Marks: which are inside the frame, their symbols, then their labels.
+    def inside(c: Candidate) -> bool:
+        x, y = pos[id(c)]
+        return x0 <= x <= x1 and y0 <= y <= y1
+
+    def role_of(c: Candidate) -> str:
+        if id(c) in chosen_ids:
+            return "base"
+        if id(c) in check_ids:
+            return "check"
+        return "excluded" if c.excluded else "candidate"
+
+    order = {"base": 0, "check": 1, "candidate": 2, "excluded": 3}
+    drawn = [c for c in placed if inside(c) or id(c) in chosen_ids or id(c) in check_ids]
+    outside = [c for c in placed if c not in drawn]
+    drawn.sort(key=lambda c: (order[role_of(c)], c.rank))
+    marks_svg: list[str] = []
+    label_items: list[tuple[float, float, str, bool]] = []
+    for c in reversed(drawn):  # most important drawn last, so on top
+        x, y = (float(v) for v in px(*pos[id(c)]))
+        role = role_of(c)
+        code = escape(c.mark.code)
+        if role == "base":
+            shape = (
+                f'<path d="M{x:.1f},{y - 10:.1f}L{x + 9:.1f},{y + 7:.1f}L{x - 9:.1f},{y + 7:.1f}Z" '
+                'fill="#1d1f21" stroke="#fff" stroke-width="1.2"/>'
+            )
+        elif role == "check":
+            shape = (
+                f'<rect x="{x - 6:.1f}" y="{y - 6:.1f}" width="12" height="12" fill="#fff" stroke="#1d1f21" '
+                'stroke-width="2.2"/>'
+            )
+        elif role == "candidate":
+            shape = f'<circle cx="{x:.1f}" cy="{y:.1f}" r="5" fill="#fff" stroke="#24527a" stroke-width="2"/>'
+        else:
+            shape = (
+                f'<path d="M{x - 3.5:.1f},{y - 3.5:.1f}l7,7M{x - 3.5:.1f},{y + 3.5:.1f}l7,-7" stroke="#9a968f" '
+                'stroke-width="1.3" opacity="0.75"/>'
+            )
+        tip = f"{code}: {role}" if role != "excluded" else f"{code}: excluded ({escape(', '.join(c.reasons))})"
+        marks_svg.append(f'<g class="mark {role}" data-code="{code}"><title>{tip}</title>{shape}</g>')
+        obstacles.append(_symbol_box(x, y, 9.0 if role in ("base", "check") else 5.5))
+    for c in drawn:
+        x, y = (float(v) for v in px(*pos[id(c)]))
+        role = role_of(c)
+        text = f"{c.mark.code} ({role})" if role in ("base", "check") else c.mark.code
+        label_items.append((x, y, text, role in ("base", "check")))
+    placements = place_labels(label_items, obstacles, width_px=WIDTH_PX, height_px=HEIGHT_PX)
+    labels_svg: list[str] = []
+    labelled: list[str] = []
+    unlabelled = 0
+    for c, item, p in zip(drawn, label_items, placements, strict=True):
+        if p is None:
+            unlabelled += 1
+            continue
+        _, tx, ty, anchor = p
+        role = role_of(c)
+        klass = "lbl strong" if role in ("base", "check") else ("lbl muted" if role == "excluded" else "lbl")
+        labels_svg.append(
+            f'<text x="{tx:.1f}" y="{ty:.1f}" text-anchor="{anchor}" class="{klass}" data-for="{escape(c.mark.code)}">'
+            f"{escape(item[2])}</text>"
+        )
+        labelled.append(c.mark.code)
+    out.append('<g class="marks">' + "".join(marks_svg) + "</g>")
+    out.append('<g class="labels">' + "".join(labels_svg) + "</g>")
+    out.append(scalebar)
+    out.append(north_arrow)
     out.append("</svg>")
-    return "".join(out)
+    return JobMap(
+        svg="".join(out),
+        zone_label=zone_label,
+        convergence_deg=convergence_deg,
+        span_m=x1 - x0,
+        drawn_marks=len(drawn),
+        outside_usable=sum(1 for c in outside if not c.excluded),
+        outside_excluded=sum(1 for c in outside if c.excluded),
+        unlabelled=unlabelled,
+        labelled_codes=labelled,
+    )
+
+
+def job_map_svg(result: ScreeningResult) -> str:
+    """The SVG markup of the job map (a string to put inline in a page)."""
+    return build_job_map(result).svg

@@ -26,7 +26,7 @@ from registry.roles import Ability, has_ability
 from registry.services.access import access_job_by_code
 from registry.services.jobs import job_create, job_update
 from registry.services.screening import ScreeningResult, job_screen
-from registry.web.job_map import job_map_svg, legend_rows
+from registry.web.job_map import build_job_map, legend_rows
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (
@@ -210,33 +210,66 @@ def job_list(request: HttpRequest) -> HttpResponse:
     )
 
 
+#: Usable candidates shown before the "show all" disclosure.
+RANKED_SHOWN = 25
+
+
+def _grouped(value: float) -> str:
+    """A whole number with thin-space digit groups (ISO 80000-1), e.g. ``2 337 499``.
+
+    >>> _grouped(2337499.4), _grouped(10000.0), _grouped(950.0)
+    ('2\u2009337\u2009499', '10\u2009000', '950')
+    """
+    return f"{round(value):,d}".replace(",", "\u2009")
+
+
+def _row(c, role: str) -> dict:
+    return {
+        "c": c,
+        "role": role,
+        "budget": c.budget,
+        "coverage_pct": c.coverage * 100,
+        "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
+    }
+
+
 def _screening_context(result: ScreeningResult) -> dict:
     core = result.core
     chosen_ids = {id(c) for c in result.chosen}
     check_ids = {id(cm.candidate) for cm in result.check_marks}
-    rows = []
+    usable_rows, excluded_rows = [], []
     for c in result.candidates:
         role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
-        rows.append(
-            {
-                "c": c,
-                "role": role,
-                "budget": c.budget,
-                "coverage_pct": c.coverage * 100,
-                "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
-            }
-        )
+        (excluded_rows if c.excluded else usable_rows).append(_row(c, role))
+    reason_counts: dict[str, int] = {}
+    for row in excluded_rows:
+        for code, _ in row["reasons"]:
+            reason_counts[code] = reason_counts.get(code, 0) + 1
+    by_reason = [
+        {"code": code, "words": rtk.REASON_WORDS[code], "count": n}
+        for code, n in sorted(reason_counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    ]
+    job_map = build_job_map(result)
+    area_m2 = result.grid.area_m2
     return {
         "result": result,
-        "rows": rows,
-        "usable_count": len(result.usable_candidates),
-        "excluded_count": len(result.candidates) - len(result.usable_candidates),
-        "map_svg": mark_safe(job_map_svg(result)),  # built from escaped values in job_map
+        "usable_rows": usable_rows[:RANKED_SHOWN],
+        "more_usable_rows": usable_rows[RANKED_SHOWN:],
+        "ranked_shown": RANKED_SHOWN,
+        "excluded_rows": excluded_rows,
+        "excluded_by_reason": by_reason,
+        "usable_count": len(usable_rows),
+        "excluded_count": len(excluded_rows),
+        "map_svg": mark_safe(job_map.svg),  # built from escaped values in job_map
+        "job_map": job_map,
+        "map_span_km": job_map.span_m / 1000.0,
         "legend": legend_rows(result.settings.tol_h_mm),
         "pair_coverage_pct": None if core is None or result.pair is None else core.pair_coverage * 100,
         "any_coverage_pct": None if core is None else core.any_coverage * 100,
         "frame_label": result.frame_label,
         "boundary_count": int((~result.grid.is_cell).sum()),
+        "area_text": f"{_grouped(area_m2)} m² ({area_m2 / 10_000:.1f} ha)",
+        "max_baseline_text": f"{_grouped(result.settings.max_baseline_m)} m",
     }
 
 

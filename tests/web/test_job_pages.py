@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import re
 
 import pytest
 
@@ -45,13 +46,46 @@ def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
     assert "<svg" in body and 'class="scalebar"' in body and 'class="north"' in body
     assert body.count('data-h95="') > 400
     assert 'data-code="BASE-N"' in body
-    # The ranked table with budgets and reasons, the statement, the caution and the exports.
+    # The ranked table of usable marks with budgets; excluded marks in a collapsed list with their reasons.
     assert "Ranked candidates with their error budget" in body
-    assert "not_active" in body and "sky_obstructed" in body
+    ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
+    assert 'data-code="BASE-N"' in ranked and 'data-code="OLD-1"' not in ranked
+    excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
+    assert 'Excluded marks: <span class="num">2</span>' in excluded
+    assert 'not_active <span class="num">1</span>' in excluded and "sky_obstructed" in excluded
+    assert 'data-code="OLD-1"' in excluded and 'data-code="SKY-1"' in excluded
+    assert "the mark is not active (retired or destroyed)" in excluded
+    assert "<details open" not in body  # collapsed: readable without JavaScript, one click to open
     assert "Local codes, agency specifications and licensed professional practice govern" in body
     assert "/jobs/J-WEB/control.csv" in body and "/jobs/J-WEB/control.geojson" in body
     assert "2025.500 (2025-07-02)" in body  # epoch as decimal year with the calendar date
     assert "Edit job" not in body
+
+
+def test_long_candidate_lists_fold_into_details(client, viewer, db):
+    """30 usable marks: the top 25 are shown, the other 5 behind "show all"; nothing is lost."""
+    for i in range(30):
+        make_mark(f"M-{i:02d}", 300.0 + 60.0 * i, 12.0 * i)
+    make_mark("GONE-1", 500.0, 200.0, visits=(("2024-06-01", "good"), ("2025-03-01", "destroyed")))
+    make_job(code="J-MANY", site={"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}, tol_h_mm=30.0, tol_v_mm=50.0)
+    client.force_login(viewer)
+    body = client.get("/jobs/J-MANY/").content.decode()
+    top, rest = body.split('<details class="more more-usable">')
+    top_table = top.split('<table class="ranked">')[1].split("</table>")[0]
+    rest_table = rest.split("</details>")[0]
+    assert top_table.count("<tr data-code=") == 25 and rest_table.count("<tr data-code=") == 5
+    assert 'Show all <span class="num">30</span> usable candidates' in rest
+    ranks = [int(r) for r in re.findall(r'<tr data-code="[^"]+">\s*<td class="num">(\d+)</td>', top_table + rest_table)]
+    assert ranks == list(range(1, 31))
+    excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
+    assert 'last_visit_destroyed <span class="num">1</span>' in excluded and 'data-code="GONE-1"' in excluded
+    # The map frames the point and its nearest marks: the farther ones are counted in the caption.
+    outside = re.search(r'<span class="num">(\d+)</span> other marks within the search radius lie outside', body)
+    assert outside is not None and int(outside.group(1)) >= 10
+    # Distances print with one decimal, mm with one decimal (brief §7), right-aligned cells.
+    first = re.search(r'<tr data-code="M-00">(.*?)</tr>', top_table, re.S).group(1)
+    cells = re.findall(r'<td class="num">([^<]*)</td>', first)
+    assert re.fullmatch(r"\d+\.\d", cells[1]) and re.fullmatch(r"\d+\.\d", cells[3])
 
 
 def test_missing_job_is_404(client, viewer, db):
