@@ -105,7 +105,8 @@ def api_exception_handler(exc, context):
         details = validation_details(exc)
         return Response(error_body("invalid", _summary(details), details), status=http_status.HTTP_400_BAD_REQUEST)
     if isinstance(exc, FrozenPositionError):
-        return Response(error_body("position_frozen", str(exc)), status=http_status.HTTP_409_CONFLICT)
+        # position_frozen, position_state (a transition not allowed) or position_history (a delete)
+        return Response(error_body(exc.code, str(exc)), status=http_status.HTTP_409_CONFLICT)
     if isinstance(exc, AuditTrailError):
         return Response(error_body("audit_append_only", str(exc)), status=http_status.HTTP_409_CONFLICT)
 

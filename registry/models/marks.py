@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+from contextvars import ContextVar
+
 from django.conf import settings
 from django.core.validators import RegexValidator
 from django.db import models
@@ -130,8 +133,75 @@ POSITION_FROZEN_FIELDS = (
 )
 
 
+# Positions are history: once published, a position is never deleted, and it moves only forward.
+# States whose rows may never be deleted (and whose POSITION_FROZEN_FIELDS never change).
+POSITION_HISTORY_STATES = ("published", "superseded", "withdrawn")
+# The only state changes allowed (anything else, e.g. superseded → published, is refused).
+POSITION_TRANSITIONS = {
+    "proposed": ("published", "rejected"),
+    "published": ("superseded", "withdrawn"),
+}
+# Fields that may change on any position (decisions and bookkeeping); with POSITION_FROZEN_FIELDS and
+# "id" this lists every column, so a new field has to be put in one list or the other (tests check it).
+POSITION_MUTABLE_FIELDS = (
+    "state",
+    "note",
+    "created_by_id",
+    "created_at",
+    "decided_by_id",
+    "decided_at",
+    "superseded_at",
+    "superseded_by_id",
+)
+
+_history_delete_allowed: ContextVar[bool] = ContextVar("position_history_delete_allowed", default=False)
+
+
 class FrozenPositionError(Exception):
-    """A published or superseded position's coordinates may never change."""
+    """A published, superseded or withdrawn position's coordinates may never change."""
+
+    code = "position_frozen"
+
+
+class PositionStateError(FrozenPositionError):
+    """A state change outside POSITION_TRANSITIONS (e.g. superseded → published)."""
+
+    code = "position_state"
+
+
+class PositionHistoryError(FrozenPositionError):
+    """A published, superseded or withdrawn position may never be deleted."""
+
+    code = "position_history"
+
+
+@contextmanager
+def position_history_delete_allowed():
+    """Let the ORM delete history positions inside this block (``load_demo --reset`` only).
+
+    The database triggers of migration 0005 still refuse unless they are lifted too.
+    """
+    token = _history_delete_allowed.set(True)
+    try:
+        yield
+    finally:
+        _history_delete_allowed.reset(token)
+
+
+class PositionQuerySet(models.QuerySet):
+    def delete(self):
+        if not _history_delete_allowed.get():
+            kept = list(self.filter(state__in=POSITION_HISTORY_STATES).values_list("pk", "state")[:5])
+            if kept:
+                pk, state = kept[0]
+                raise PositionHistoryError(
+                    f"Position {pk} is {state}; published, superseded and withdrawn positions are kept "
+                    "as history and never deleted."
+                )
+        return super().delete()
+
+    delete.alters_data = True
+    delete.queryset_only = True
 
 
 class Position(models.Model):
@@ -168,6 +238,8 @@ class Position(models.Model):
     superseded_at = models.DateTimeField(null=True, blank=True)
     superseded_by = models.ForeignKey("self", null=True, blank=True, on_delete=models.PROTECT, related_name="supersedes")
 
+    objects = PositionQuerySet.as_manager()
+
     class Meta:
         ordering = ["mark", "-epoch_yr", "-created_at"]
         indexes = [models.Index(fields=["mark", "state"], name="position_mark_state")]
@@ -203,15 +275,34 @@ class Position(models.Model):
         return self.vel_e_m_yr is not None and self.vel_n_m_yr is not None and self.vel_u_m_yr is not None
 
     def save(self, *args, **kwargs):
+        # The same rules as the triggers of migrations 0003 and 0005, checked first for a clear message.
         if self.pk is not None:
             stored = Position.objects.filter(pk=self.pk).values(*POSITION_FROZEN_FIELDS, "state").first()
-            if stored and stored["state"] in (PositionState.PUBLISHED, PositionState.SUPERSEDED):
+            if stored and stored["state"] in POSITION_HISTORY_STATES:
                 changed = [f for f in POSITION_FROZEN_FIELDS if stored[f] != getattr(self, f)]
                 if changed:
                     raise FrozenPositionError(
                         f"Position {self.pk} is {stored['state']}; its {', '.join(changed)} cannot change."
                     )
+            if stored and stored["state"] != self.state and self.state not in POSITION_TRANSITIONS.get(
+                stored["state"], ()
+            ):
+                allowed = POSITION_TRANSITIONS.get(stored["state"], ())
+                raise PositionStateError(
+                    f"Position {self.pk} is {stored['state']}; it cannot become {self.state} "
+                    f"(allowed: {', '.join(allowed) if allowed else 'none, it is final'})."
+                )
         super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        if not _history_delete_allowed.get():
+            stored = Position.objects.filter(pk=self.pk).values_list("state", flat=True).first()
+            if stored in POSITION_HISTORY_STATES:
+                raise PositionHistoryError(
+                    f"Position {self.pk} is {stored}; published, superseded and withdrawn positions are kept "
+                    "as history and never deleted."
+                )
+        return super().delete(*args, **kwargs)
 
 
 class HeightMethod(models.TextChoices):
@@ -251,7 +342,6 @@ class HeightRecord(models.Model):
 
 __all__ = [
     "CODE_VALIDATOR",
-
     "FrozenPositionError",
     "HeightMethod",
     "HeightRecord",
@@ -259,8 +349,14 @@ __all__ = [
     "MarkStatus",
     "MonumentType",
     "POSITION_FROZEN_FIELDS",
+    "POSITION_HISTORY_STATES",
+    "POSITION_MUTABLE_FIELDS",
+    "POSITION_TRANSITIONS",
     "Position",
+    "PositionHistoryError",
     "PositionState",
+    "PositionStateError",
     "SkyView",
     "Stability",
+    "position_history_delete_allowed",
 ]

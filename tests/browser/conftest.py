@@ -31,9 +31,13 @@ def audit_triggers_allow_flush(django_db_setup, django_db_blocker):
     from django.db import connection
 
     triggers = importlib.import_module("registry.migrations.0003_integrity_triggers")
+    history = importlib.import_module("registry.migrations.0005_position_history_triggers")
     if connection.vendor == "sqlite":
+        # and the position history guard (migration 0005): the flush deletes published positions too
         drop = [sql for sql in triggers.SQLITE_BACKWARD if "audit_" in sql]
+        drop.append("DROP TRIGGER IF EXISTS position_history_no_delete")
         create = [sql for sql in triggers.SQLITE_FORWARD if "registry_auditevent" in sql]
+        create += [sql for sql in history.SQLITE_FORWARD if "CREATE TRIGGER position_history_no_delete" in sql]
     else:  # PostgreSQL empties tables with TRUNCATE, which row triggers do not see; kept symmetric anyway
         drop = [sql for sql in triggers.PG_BACKWARD if "audit_append_only ON" in sql]
         create = [sql for sql in triggers.PG_FORWARD if "CREATE TRIGGER audit_append_only" in sql]

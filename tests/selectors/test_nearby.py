@@ -319,13 +319,12 @@ def small_district():
         )  # fmt: skip
 
     for code in marks:
-        if code != "NAD83ONLY1":
+        if code not in ("NAD83ONLY1", "COARSE1"):
             # σe = σn = 10 mm: C = 1, K = 2.450762 → r95 = 24.50762 mm (FGDC K polynomial;
             # references.md §4.2 table, C = 1.0).
             pos(code, 7912, 0.010, 0.010)
     pos("NAD83ONLY1", 6319, 0.005, 0.005)
     # COARSE1: σe = 30 mm, σn = 0 → C = 0, K = 1.960790 → r95 = 58.8237 mm (same table, C = 0.0).
-    Position.objects.filter(mark=marks["COARSE1"]).delete()
     pos("COARSE1", 7912, 0.030, 0.0)
     for code in marks:
         day = {"OLDVISIT1": dt.date(2015, 6, 1)}.get(code, dt.date(2025, 6, 1))

@@ -9,7 +9,8 @@ mark and job.
 Running it again when the demo is loaded changes nothing and prints the demo users again. If marks with
 the demo's codes (or the demo's user names) exist but were not loaded by this command, it refuses.
 ``--reset`` first deletes the demo's marks, their history and audit rows, the demo jobs and users. The
-audit trail is append-only, so the reset lifts that guard inside its transaction and restores it before
+audit trail is append-only and published/superseded/withdrawn positions are never deleted (migrations 0003
+and 0005), so the reset lifts those two delete guards inside its transaction and restores them before
 committing; it is refused in production mode (``REGISTRY_PRODUCTION=1``) and meant for a development
 database only.
 """
@@ -38,6 +39,7 @@ from registry.models import (
     Position,
     Visit,
 )
+from registry.models.marks import position_history_delete_allowed
 from registry.roles import ensure_roles
 from registry.services.audit import snapshot
 
@@ -345,7 +347,8 @@ class Command(BaseCommand):
                 counts["visits"] = Visit.objects.filter(mark__in=marks).delete()[0]
                 counts["height records"] = HeightRecord.objects.filter(mark__in=marks).delete()[0]
                 Position.objects.filter(mark__in=marks).update(superseded_by=None)
-                counts["positions"] = Position.objects.filter(mark__in=marks).delete()[0]
+                with _position_guard_lifted(), position_history_delete_allowed():
+                    counts["positions"] = Position.objects.filter(mark__in=marks).delete()[0]
                 counts["marks"] = marks.delete()[1].get("registry.Mark", 0)
                 counts["jobs"] = jobs.delete()[1].get("registry.Job", 0)
                 counts["users"] = users.delete()[1].get(User._meta.label, 0)
@@ -357,18 +360,25 @@ class Command(BaseCommand):
         return counts
 
 
-class _audit_guard_lifted:
-    """Inside a transaction: drop the audit trail's append-only guard, and put it back on exit."""
+class _delete_guard_lifted:
+    """Inside a transaction: drop one delete guard (a trigger), and put it back on exit.
+
+    SQLite: the trigger is dropped and recreated from its migration's own SQL. PostgreSQL: it is
+    disabled and enabled again. Either way it is DDL inside the transaction, so a failure rolls the
+    change back together with the lifted guard.
+    """
+
+    table = sqlite_trigger = pg_trigger = migration = ""
 
     def __enter__(self):
         vendor = connection.vendor
         with connection.cursor() as cur:
             if vendor == "sqlite":
-                cur.execute("DROP TRIGGER IF EXISTS audit_no_delete")
+                cur.execute(f"DROP TRIGGER IF EXISTS {self.sqlite_trigger}")
             elif vendor == "postgresql":
                 # Deferred foreign-key checks queued earlier in the transaction block ALTER TABLE; run them now.
                 cur.execute("SET CONSTRAINTS ALL IMMEDIATE")
-                cur.execute("ALTER TABLE registry_auditevent DISABLE TRIGGER audit_append_only")
+                cur.execute(f"ALTER TABLE {self.table} DISABLE TRIGGER {self.pg_trigger}")
                 cur.execute("SET CONSTRAINTS ALL DEFERRED")
         return self
 
@@ -378,11 +388,28 @@ class _audit_guard_lifted:
         vendor = connection.vendor
         with connection.cursor() as cur:
             if vendor == "sqlite":
-                triggers = importlib.import_module("registry.migrations.0003_integrity_triggers")
-                (create_no_delete,) = [sql for sql in triggers.SQLITE_FORWARD if "audit_no_delete" in sql]
-                cur.execute(create_no_delete)
+                triggers = importlib.import_module(f"registry.migrations.{self.migration}")
+                (create,) = [
+                    sql for sql in triggers.SQLITE_FORWARD if sql.startswith(f"CREATE TRIGGER {self.sqlite_trigger} ")
+                ]
+                cur.execute(create)
             elif vendor == "postgresql":
                 cur.execute("SET CONSTRAINTS ALL IMMEDIATE")
-                cur.execute("ALTER TABLE registry_auditevent ENABLE TRIGGER audit_append_only")
+                cur.execute(f"ALTER TABLE {self.table} ENABLE TRIGGER {self.pg_trigger}")
                 cur.execute("SET CONSTRAINTS ALL DEFERRED")
         return False
+
+
+class _audit_guard_lifted(_delete_guard_lifted):
+    """The audit trail's append-only guard on DELETE (migration 0003)."""
+
+    table, sqlite_trigger, pg_trigger = "registry_auditevent", "audit_no_delete", "audit_append_only"
+    migration = "0003_integrity_triggers"
+
+
+class _position_guard_lifted(_delete_guard_lifted):
+    """The guard that keeps published, superseded and withdrawn positions (migration 0005)."""
+
+    table, sqlite_trigger = "registry_position", "position_history_no_delete"
+    pg_trigger = "position_history_no_delete"
+    migration = "0005_position_history_triggers"
