@@ -1,12 +1,18 @@
 """In a real browser: a manager opens the job list, the job page with its map and ranked bases,
-edits the tolerance and sees the screening change. Saves docs/screenshots/job.png.
+edits the tolerance and sees the screening change; the demo's polygon job reads as a party chief
+needs it (the pair, the framed map, folded lists that open without JavaScript). Saves
+docs/screenshots/job.png (the demo polygon job, top of the page) with REGISTRY_UPDATE_SCREENSHOTS=1.
 
-Invented scenario: an irregular 2–3 km site in the fictional district near 45.20° N, 110.60° W.
+Invented scenarios: an irregular 2–3 km site in the fictional district near 45.20° N, 110.60° W, and
+the demo district of fixtures_demo.
 """
 
 from __future__ import annotations
 
+import io
+
 import pytest
+from PIL import Image
 
 from registry.models import Condition, MarkStatus, SkyView
 from tests.services.test_screening import at, make_job, make_mark
@@ -37,7 +43,7 @@ def job(manager):
     )
 
 
-def test_job_page_map_and_edit(page, job, screenshot):
+def test_job_page_map_and_edit(page, job):
     from playwright.sync_api import expect
 
     page.goto("/jobs/")
@@ -57,10 +63,16 @@ def test_job_page_map_and_edit(page, job, screenshot):
     first_num = page.locator("table.ranked tbody tr").first.locator("td.num").nth(2)
     assert first_num.evaluate("el => getComputedStyle(el).textAlign") == "right"
     assert first_num.evaluate("el => getComputedStyle(el).fontVariantNumeric") == "tabular-nums"
-    expect(page.locator("table.ranked")).to_contain_text("last_visit_not_found")
-    expect(page.locator("table.ranked")).to_contain_text("beyond_max_baseline")
+    # Excluded marks are folded away with their reasons; one click opens them.
+    excluded = page.locator("details.more-excluded")
+    expect(excluded.locator("summary")).to_contain_text("last_visit_not_found")
+    expect(excluded.locator("summary")).to_contain_text("beyond_max_baseline")
+    expect(excluded.locator("table.excluded-marks")).to_be_hidden()
+    excluded.locator("summary").click()
+    expect(excluded.locator("table.excluded-marks")).to_be_visible()
+    expect(excluded.locator("tr[data-code='CRK-8']")).to_contain_text("the last visit did not find the mark")
+    expect(page.locator("table.ranked tr[data-code='CRK-8']")).to_have_count(0)
     expect(page.locator(".caution")).to_contain_text("licensed professional practice govern")
-    screenshot(page, "job")
     verdict_before = page.locator(".verdict").inner_text()
 
     # Tighten the tolerance: the result changes and says what the site cannot achieve.
@@ -73,3 +85,47 @@ def test_job_page_map_and_edit(page, job, screenshot):
     assert "21.0 mm horizontal" in verdict_after
     href = page.get_by_role("link", name="CSV").get_attribute("href")
     assert href == "/jobs/J-2025-014/control.csv"
+
+
+def test_demo_polygon_job_reads_without_javascript(chromium, live_server, screenshot):
+    """The demo subdivision: no single base, the best pair; a compact page; folded lists open without JS."""
+    from django.core.management import call_command
+    from playwright.sync_api import expect
+
+    call_command("load_demo", stdout=io.StringIO())
+    context = chromium.new_context(
+        viewport={"width": 1280, "height": 900}, base_url=live_server.url, java_script_enabled=False
+    )
+    try:
+        page = context.new_page()
+        page.goto("/signin/")
+        page.get_by_label("User name").fill("demo_manager")
+        page.get_by_label("Password").fill("demo-only-manager-W2")
+        page.get_by_role("button", name="Sign in").click()
+        page.goto("/jobs/J-2026-021/")
+        verdict = page.locator(".verdict")
+        expect(verdict).to_contain_text("No single base covers the whole site within 30.0 mm horizontal")
+        expect(verdict).to_contain_text("The pair ASH-024 + CRV-065 does")
+        svg = page.locator("svg.jobmap")
+        expect(svg.locator("g.mark.base")).to_have_count(2)
+        expect(svg.locator("text[data-for='ASH-024']")).to_have_text("ASH-024 (base)")
+        expect(svg.locator("text[data-for='CRV-065']")).to_have_text("CRV-065 (base)")
+        # The site fills a good part of the map: its outline spans at least a third of the map's width.
+        site_box = svg.locator("polygon.site").bounding_box()
+        assert site_box["width"] > svg.bounding_box()["width"] / 3
+        expect(page.locator(".jobmap-figure figcaption")).to_contain_text("outside this frame and are not drawn")
+        # Compact: the ranked table lists 25, the rest and the excluded marks are folded.
+        expect(page.locator("table.ranked").first.locator("tbody tr")).to_have_count(25)
+        more = page.locator("details.more-usable")
+        expect(more.locator("table.ranked")).to_be_hidden()
+        more.locator("summary").click()
+        expect(more.locator("table.ranked")).to_be_visible()
+        expect(more.locator("tbody tr").first.locator("td.num").first).to_have_text("26")
+        more.locator("summary").click()
+        height = page.evaluate("document.documentElement.scrollHeight")
+        assert height < 3600, height  # was about 10,000 px with every candidate and its budget listed
+        path = screenshot(page, "job")
+        with Image.open(path) as img:  # the top of the page: facts, result, caution, map, chosen bases
+            img.crop((0, 0, img.width, min(img.height, 1600))).save(path)
+    finally:
+        context.close()
