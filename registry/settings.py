@@ -172,6 +172,9 @@ REGISTRY = {
     "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", ""),
     "MAX_BASELINE_M": float(os.environ.get("REGISTRY_MAX_BASELINE_M", "10000")),
     "RECOVERY_YEARS": float(os.environ.get("REGISTRY_RECOVERY_YEARS", "10")),
+    # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)
+    # after the sign-in and role check (registry/web/views.py media_file; deploy/nginx/registry.conf).
+    "MEDIA_ACCEL_PREFIX": os.environ.get("REGISTRY_MEDIA_ACCEL_PREFIX", "/_protected_media/"),
 }
 
 LOGGING = {

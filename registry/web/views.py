@@ -1,4 +1,4 @@
-"""Shared page plumbing: the role gate every page goes through, the refusal page, media in development.
+"""Shared page plumbing: the role gate every page goes through, the refusal page, uploaded files.
 
 Every page needs a signed-in user (anonymous → the sign-in page, with ``next``) and
 an ability from :mod:`registry.roles`; a signed-in user without it gets a plain 403
@@ -10,11 +10,15 @@ become the same 403 page and a 404.
 from __future__ import annotations
 
 from functools import wraps
+from pathlib import Path
+from urllib.parse import quote
 
 from django.conf import settings
 from django.contrib.auth.views import redirect_to_login
+from django.core.exceptions import SuspiciousFileOperation
 from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
+from django.utils._os import safe_join
 from django.views.static import serve
 
 from registry.errors import NotFound, PermissionDeniedError
@@ -65,12 +69,46 @@ def home(request: HttpRequest) -> HttpResponse:
     return redirect("web:mark-list")
 
 
+DEFAULT_MEDIA_ACCEL_PREFIX = "/_protected_media/"
+
+
+def safe_media_path(path: str) -> str:
+    """``path`` as a clean relative path inside ``MEDIA_ROOT``; ``Http404`` for anything else.
+
+    Refused: NUL and backslashes, absolute paths, ``.``/``..`` segments, empty segments, and
+    anything that would resolve (symbolic links included) outside ``MEDIA_ROOT``.
+    """
+    if not path or "\x00" in path or "\\" in path or path.startswith("/"):
+        raise Http404("No such file.")
+    parts = path.split("/")
+    if any(part in ("", ".", "..") for part in parts):
+        raise Http404("No such file.")
+    root = Path(settings.MEDIA_ROOT).resolve()
+    try:
+        full = Path(safe_join(str(root), path)).resolve()
+        full.relative_to(root)
+    except (SuspiciousFileOperation, ValueError):
+        raise Http404("No such file.") from None
+    if not full.is_file():
+        raise Http404("No such file.")
+    return "/".join(parts)
+
+
 @ability_required(Ability.VIEW)
 def media_file(request: HttpRequest, path: str) -> HttpResponse:
-    """Uploaded files (photos, attachments) for signed-in users, in development only (``DEBUG``).
+    """Uploaded files (photos, attachments), for signed-in users with the VIEW ability only.
 
-    In production the web server serves ``MEDIA_ROOT`` (see ``deploy/``); this view then answers 404.
+    With ``DEBUG`` the file is streamed by Django. In production the answer is an empty response
+    with ``X-Accel-Redirect: <REGISTRY["MEDIA_ACCEL_PREFIX"]><path>``: nginx then sends the file
+    from its ``internal`` location (``deploy/nginx/registry.conf``), which no browser can reach
+    directly, so every download passes this sign-in and role check first.
     """
-    if not settings.DEBUG:
-        raise Http404("Uploaded files are served by the web server in production.")
-    return serve(request, path, document_root=settings.MEDIA_ROOT)
+    rel = safe_media_path(path)
+    if settings.DEBUG:
+        return serve(request, rel, document_root=settings.MEDIA_ROOT)
+    prefix = settings.REGISTRY.get("MEDIA_ACCEL_PREFIX") or DEFAULT_MEDIA_ACCEL_PREFIX
+    response = HttpResponse()
+    response["X-Accel-Redirect"] = prefix.rstrip("/") + "/" + quote(rel, safe="/")
+    del response["Content-Type"]  # nginx sets it from the file name (its types block)
+    response["Cache-Control"] = "private"
+    return response
