@@ -13,10 +13,10 @@ r : horizontal radius of that point from the antenna axis, half the rim diameter
      the bottom of the mount, the rim is above it).
 
 This is the reduction a GNSS data-preparation tool documents as "dh + sqrt(s² − (d/2)²)", and the
-antenna radius / offset pairs come from the manufacturer's antenna tables (references.md §9,
-secondary). The height written to RINEX ("ANTENNA: DELTA H/E/N") is the vertical mark→ARP
-distance this module returns. Antenna phase-centre offsets (ARP → phase centre) are not applied
-here.
+antenna radius / offset pairs come from the manufacturer's antenna tables (as tabulated in a GNSS
+receiver manual; secondary transcription). The height written to RINEX ("ANTENNA: DELTA H/E/N")
+is the vertical mark→ARP distance this module returns. Antenna phase-centre offsets (ARP → phase
+centre) are not applied here.
 
 No Django import. Functions take scalars or numpy arrays and return the same shape.
 """

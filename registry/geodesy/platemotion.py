@@ -14,10 +14,10 @@ Source
 Z. Altamimi, L. Métivier, P. Rebischung, X. Collilieux, K. Chanard, H. Bai (2023), "ITRF2020 plate
 motion model", *Geophysical Research Letters* 50, e2023GL106373, doi:10.1029/2023GL106373,
 Table 1 (rotation poles, mas/yr) and Table 2 (origin rate bias, mm/yr). The digits below are those
-of PROJ's ``ITRF2020`` data file (which cites that paper and carries them in arcsec/yr) and of
-``references.md`` §10.4; ``tests/geodesy/test_platemotion.py`` checks the velocities against PROJ's
-own evaluation of that file (``+init=ITRF2020:<PLATE>`` Helmert with rotation rates, position-vector
-convention) and against a hand-computed cross product.
+of PROJ's ``ITRF2020`` data file (which cites that paper and carries them in arcsec/yr): a secondary
+transcription, the paper itself was not read; ``tests/geodesy/test_platemotion.py`` checks the
+velocities against PROJ's own evaluation of that file (``+init=ITRF2020:<PLATE>`` Helmert with
+rotation rates, position-vector convention) and against a hand-computed cross product.
 
 Scope and cautions
 ------------------
@@ -80,7 +80,7 @@ class Plate:
 
 
 #: Rotation rates ω (mas/yr) of the ITRF2020-PMM, Altamimi et al. (2023) Table 1; identical to
-#: PROJ's ``ITRF2020`` data file (there in arcsec/yr) and references.md §10.4.
+#: PROJ's ``ITRF2020`` data file (there in arcsec/yr; secondary transcription of the paper).
 PLATES: dict[str, Plate] = {
     p.code: p
     for p in (

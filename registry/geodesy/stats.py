@@ -12,7 +12,7 @@ Sources
 * Weighted combination of repeat solutions with full covariance (generalised weighted mean):
   x̄ = (Σ Wᵢ)⁻¹ Σ Wᵢxᵢ, Wᵢ = Σᵢ⁻¹, Σx̄ = (Σ Wᵢ)⁻¹, Ω = Σ vᵢᵀWᵢvᵢ with dof = d(n − 1), variance of unit
   weight s0² = Ω/dof and its two-sided χ² test Ω ∈ [χ²(α/2, dof), χ²(1 − α/2, dof)]. Koch (1999)
-  §3.2 and §4.3; worked example in references.md §8.3.
+  §3.2 and §4.3; the tests' worked example is invented and recomputed with SciPy 1.17.1.
 * Velocity: x(t) = x₀ + v·(t − t_ref) fitted by generalised least squares with each solution's full
   covariance (same source). Rule: at least 3 solutions spanning at least 2.5 years. Three solutions
   leave one redundancy per axis, so the fit can check itself (s0); 2.5 years because an annual

@@ -4,8 +4,8 @@ Compatibility check ("notice movement", brief §1 step 3 and §3): a proposed po
 compared with the currently published position of the same mark *in the same frame*.
 The difference d = proposed − published in local east/north/up at the published point,
 Σ = Σpub + Σobs, T = dᵀΣ⁻¹d against χ²(0.95, k) for k = 2 (horizontal), 1 (vertical) and 3
-(3D), computed by :func:`registry.geodesy.stats.compatibility_test` (Koch 1999 §4.2; worked
-example in references.md §8.2).
+(3D), computed by :func:`registry.geodesy.stats.compatibility_test` (Koch 1999 §4.2; the
+tests' worked example is invented and recomputed with SciPy 1.17.1).
 
 Epochs: when the two epochs differ, the *published* position is brought to the proposed
 position's epoch first, in the same frame, with :func:`registry.geodesy.frames.transform_position`:

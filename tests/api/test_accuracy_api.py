@@ -1,6 +1,8 @@
 """POST /api/accuracy/: same report as the command; viewer allowed, anonymous refused; one error shape.
 
-Check values: references.md (/work/shared/brief) §4.2, §5.3 A and §6.2.
+Check values: FGDC-STD-007.2-1998 K polynomial (secondary transcription: Geoscience Australia geodesy
+package); ASPRS column example, PERS May 2014, p. 397, Table 3 (inputs; results recomputed with NumPy);
+ASPRS Positional Accuracy Standards Ed. 2 (2023), secondary transcription (section numbers indicative).
 """
 
 from __future__ import annotations
@@ -64,7 +66,7 @@ def test_residual_rows_nssda(viewer, api_client_for):
         )
     ]
     data = api_client_for(viewer).post(URL, {"residuals": rows}, format="json").json()
-    assert data["horizontal_95_m"] == pytest.approx(0.2101, abs=1e-4)  # references.md §5.3 A
+    assert data["horizontal_95_m"] == pytest.approx(0.2101, abs=1e-4)  # PERS 2014 p. 397 T. 3, recomputed
     assert data["vertical_95_m"] == pytest.approx(0.0650, abs=1e-4)
     assert data["horizontal_method"] == "approximate"
 

@@ -127,9 +127,9 @@ def test_detail_lists_published_positions_with_accuracy(district, viewer, api_cl
     assert position["h_m"] == 1523.457  # metres to 3 decimals (1523.4567 stored)
     assert position["sigma_e_mm"] == 5.0 and position["sigma_u_mm"] == 10.0
     # FGDC-STD-007.2-1998 circle for σE = σN = 5 mm, no correlation: K(1) = 1.960790 + 0.004071 +
-    # 0.114276 + 0.371625 = 2.450762 (references.md §4.2) → r95 = 12.25381 mm → 12.3 at 1 decimal.
+    # 0.114276 + 0.371625 = 2.450762 (secondary transcription of the polynomial) → r95 = 12.25381 mm → 12.3.
     assert position["network_accuracy_h95_mm"] == 12.3
-    # Vertical: 1.9600 × 10 mm = 19.6 mm (FGDC Part 2 / NSSDA factor, references.md §4.2, §8.1).
+    # Vertical: 1.9600 × 10 mm = 19.6 mm (FGDC-STD-007.3-1998 §3.2.1 factor; z(0.975) recomputed with SciPy).
     assert position["network_accuracy_u95_mm"] == 19.6
 
 

@@ -1,7 +1,8 @@
 """FGDC Part 2 network/local accuracy and classes; NSSDA and ASPRS Edition 2 check-point tests.
 
-Every check value names its source. "references.md" is /work/shared/brief/references.md, which
-records each value's status ([CONF-P], [CONF-S], [RECOMP], [MEMORY]).
+Every check value names its outside source and its status: "secondary transcription" (digits agree
+across transcriptions, primary PDF not read), "recomputed" (with SciPy 1.17.1 / NumPy), "from memory,
+unconfirmed" (to check against the primary document before relying on it).
 """
 
 from __future__ import annotations
@@ -21,11 +22,12 @@ from registry.geodesy.accuracy import ComputationInputError
 # K polynomial (FGDC-STD-007.2-1998)
 # --------------------------------------------------------------------------------------------------
 
-# Coefficients as printed in FGDC-STD-007.2-1998 (references.md §4.2, [CONF-S], also in Geoscience
-# Australia's open-source geodesy package). Typed here again on purpose, independently of the module.
+# Coefficients of FGDC-STD-007.2-1998: secondary transcription (Geoscience Australia's open-source
+# geodesy package, "circularised horizontal PU (95%)"; where Part 2 prints them is from memory). Typed here again on purpose, independently of the module.
 STANDARD_COEFFS = [1.960790, 0.004071, 0.114276, 0.371625]
 
-# references.md §4.2 table, "K polynomial" and "K exact" columns [RECOMP, SciPy numerical integration].
+# "K polynomial": the FGDC-STD-007.2-1998 polynomial evaluated; "K exact": recomputed with SciPy 1.17.1
+# (numerical integration of P(X² + Y² ≤ r²) = 0.95).
 K_TABLE = [
     # C, K exact, K polynomial
     (0.0, 1.959964, 1.960790),
@@ -69,7 +71,7 @@ def exact_circular_k(c: float) -> float:
 def test_k_polynomial_matches_the_standard_to_1e9(c, _exact, k_poly):
     expected = np.polynomial.polynomial.polyval(c, STANDARD_COEFFS)
     assert acc.circular_k(c) == pytest.approx(expected, abs=1e-9)
-    # and the printed table value (6 decimals) in references.md §4.2
+    # and the tabulated value (6 decimals) of the polynomial, recomputed
     assert acc.circular_k(c) == pytest.approx(k_poly, abs=5e-7)
 
 
@@ -82,12 +84,12 @@ def test_k_polynomial_vectorised_on_a_fine_grid_to_1e9():
 
 @pytest.mark.parametrize("c,k_exact,_poly", K_TABLE)
 def test_the_exact_oracle_reproduces_the_published_recomputation(c, k_exact, _poly):
-    # Guards the oracle itself: references.md §4.2 "K exact" column [RECOMP].
+    # Guards the oracle itself: "K exact" recomputed with SciPy 1.17.1 (numerical integration).
     assert exact_circular_k(c) == pytest.approx(k_exact, abs=1e-6)
 
 
 def test_k_polynomial_within_0_2_percent_of_the_exact_circular_probability():
-    # references.md §4.2 test advice: within 0.2 % of the exact value (max found on a 201-point grid: 0.181 % at C = 0.87).
+    # Our tolerance: within 0.2 % of the exact value (SciPy 1.17.1 recomputation; max found on a 201-point grid: 0.181 % at C = 0.87).
     for c in np.linspace(0.0, 1.0, 41):
         exact = exact_circular_k(float(c))
         assert abs(acc.circular_k(float(c)) - exact) / exact < 0.002, c
@@ -114,7 +116,7 @@ def test_error_ellipse_axes_match_numpy_eigenvalues():
 
 
 def test_horizontal_95_circular_case():
-    # σe = σn = 10 mm, uncorrelated: C = 1, r95 = 2.450762 × 0.010 (references.md §4.2 table, C = 1.0).
+    # σe = σn = 10 mm, uncorrelated: C = 1, r95 = 2.450762 × 0.010 (FGDC-STD-007.2-1998 K polynomial, secondary transcription (Geoscience Australia geodesy package), C = 1.0).
     assert acc.fgdc_horizontal_95_m(0.010**2, 0.0, 0.010**2) == pytest.approx(0.02450762, abs=1e-11)
 
 
@@ -131,7 +133,8 @@ def test_horizontal_95_is_invariant_under_rotation_of_the_ellipse():
 
 
 def test_zero_covariance_gives_zero():
-    # FGDC Part 2: accuracies at CORS sites "approach zero" (references.md §4.1).
+    # FGDC-STD-007.2-1998 network accuracy definition: at CORS sites values "approach zero"
+    # (quoted in TxDOT GPS Manual Ch. 3 §3).
     assert acc.fgdc_horizontal_95_m(0.0, 0.0, 0.0) == 0.0
 
 
@@ -148,7 +151,7 @@ def test_bad_covariances_are_refused():
 
 
 def test_vertical_95_uses_1_9600():
-    # 1.9600·σ: FGDC Part 2, NSSDA §3.2.1 (references.md §4.2 [CONF-P]).
+    # 1.9600·σ: FGDC-STD-007.3-1998 (NSSDA) Accuracy_z factor, as applied in USGS lidar metadata.
     assert acc.vertical_95_m(0.020) == pytest.approx(0.0392, abs=1e-15)
     with pytest.raises(ComputationInputError):
         acc.vertical_95_m(-0.001)
@@ -184,14 +187,14 @@ def test_horizontal_95_vectorised_equals_scalar(rows):
 
 
 # --------------------------------------------------------------------------------------------------
-# Accuracy classes (list from memory: references.md §4.3 [MEMORY] apart from the 10 m maximum)
+# Accuracy classes: FGDC-STD-007.2-1998 Table 2.1, from memory, unconfirmed (10 m maximum confirmed)
 # --------------------------------------------------------------------------------------------------
 
 
 @pytest.mark.parametrize(
     "value_m,label",
     [
-        # references.md §4.3 "Tests" (class list and inclusive bounds are from memory of FGDC-STD-007.2-1998)
+        # FGDC-STD-007.2-1998 Table 2.1: class list and inclusive bounds from memory, unconfirmed
         (0.0100, "1-Centimeter"),
         (0.0101, "2-Centimeter"),
         (0.0137, "2-Centimeter"),
@@ -244,7 +247,7 @@ def test_local_accuracy_uses_the_difference_covariance():
     c1 = np.diag([0.004**2, 0.004**2, 0.008**2])
     c2 = np.diag([0.003**2, 0.003**2, 0.006**2])
     h, v = acc.local_accuracy_95_m(c1, c2)
-    # independent: σ = 5 mm per axis (3-4-5), circular → 2.450762 × 0.005 (references.md §4.2, C = 1)
+    # independent: σ = 5 mm per axis (3-4-5), circular → 2.450762 × 0.005 (FGDC K polynomial, C = 1)
     assert h == pytest.approx(2.450762 * 0.005, rel=1e-9)
     assert v == pytest.approx(1.96 * 0.010, rel=1e-12)
 
@@ -278,7 +281,7 @@ def test_network_accuracy_needs_3x3():
 # NSSDA (FGDC-STD-007.3-1998)
 # --------------------------------------------------------------------------------------------------
 
-# references.md §5.3 A: ASPRS column example, PERS May 2014 p. 397, Table 3 [CONF-P inputs].
+# ASPRS column example, PERS May 2014, p. 397, Table 3: residuals of 7 check points (inputs).
 EX_A_DE = [-0.060, 0.100, -0.060, -0.112, -0.120, -0.100, -0.060]
 EX_A_DN = [0.080, -0.045, 0.080, 0.007, 0.150, -0.045, 0.080]
 EX_A_DH = [0.055, -0.006, -0.017, 0.042, -0.011, 0.013, 0.048]
@@ -290,7 +293,7 @@ def test_nssda_worked_example_a():
     assert r.x.std_m == pytest.approx(0.075, abs=5e-4)
     assert r.y.std_m == pytest.approx(0.073, abs=5e-4)
     assert r.z.std_m == pytest.approx(0.030, abs=5e-4)
-    # recomputed means and RMSE (references.md §5.3 A [RECOMP])
+    # means and RMSE recomputed with NumPy from PERS May 2014 p. 397 Table 3
     assert r.x.mean_m == pytest.approx(-0.0589, abs=5e-5)
     assert r.y.mean_m == pytest.approx(0.0439, abs=5e-5)
     assert r.z.mean_m == pytest.approx(0.0177, abs=5e-5)
@@ -298,22 +301,22 @@ def test_nssda_worked_example_a():
     assert r.y.rmse_m == pytest.approx(0.0809, abs=5e-5)
     assert r.z.rmse_m == pytest.approx(0.0332, abs=5e-5)
     assert r.rmse_r_m == pytest.approx(0.1216, abs=5e-5)
-    # ratio 0.891 is inside 0.6–1.0 → the approximation: 0.2101 m (references.md §5.3 A)
+    # ratio 0.891 is inside 0.6–1.0 → the approximation of FGDC-STD-007.3-1998 App. 3-A: 0.2101 m (recomputed)
     assert r.horizontal_method == "approximate"
     assert r.horizontal_95_m == pytest.approx(0.2101, abs=5e-5)
-    # the equal-RMSE form 1.7308·RMSE_r gives 0.2105 m (references.md §5.3 A)
+    # the equal-RMSE form 1.7308·RMSE_r (FGDC-STD-007.3-1998 §3.2.1) gives 0.2105 m (recomputed)
     assert acc.NSSDA_FACTOR_RADIAL * r.rmse_r_m == pytest.approx(0.2105, abs=5e-5)
     # Accuracy_z = 1.96·RMSE_z = 0.0650 m
     assert r.vertical_95_m == pytest.approx(0.0650, abs=5e-5)
     codes = [f.code for f in r.findings]
-    # 7 < 20 check points; bias |mean_E|/RMSE_E = 0.65 > 25 % (references.md §5.3 A expected behaviour)
+    # 7 < 20 check points (FGDC-STD-007.3-1998 §3.2.2); bias |mean_E|/RMSE_E = 0.65 (recomputed) > 25 %
     assert codes[0] == "too_few_checkpoints"
     bias = {f.params["axis"]: f.params["ratio"] for f in r.findings if f.code == "bias"}
     assert bias["x"] == pytest.approx(0.65, abs=0.005)
 
 
 def test_nssda_worked_example_b_usgs_vertical_report():
-    # references.md §5.3 B: USGS lidar metadata LA_Barataria_2013 [CONF-P]: 51 check points,
+    # USGS lidar metadata, LA_Barataria_2013 vertical accuracy report (rockyweb.usgs.gov): 51 check points,
     # mean −0.00533333349535 m, s = 0.0577205913534 m (n−1), RMSE_z = 0.0574002119585 m,
     # "NSSDA AccuracyZ (=RMSEz*1.96) … 0.112504415439 Meters".
     n, mean, s = 51, -0.00533333349535, 0.0577205913534
@@ -338,7 +341,7 @@ def test_nssda_equal_rmse_uses_1_7308():
 
 
 def test_nssda_ratio_below_0_6_uses_circular_error_and_says_so():
-    # ratio 0.4: K(0.4)·RMSE_max = 2.004487 × 0.05 (references.md §4.2 table, C = 0.4)
+    # ratio 0.4: K(0.4)·RMSE_max = 2.004487 × 0.05 (FGDC K polynomial at C = 0.4, recomputed)
     value, method = acc.nssda_horizontal_95_m(0.05, 0.02)
     assert method == "circular_error"
     assert value == pytest.approx(2.004487 * 0.05, abs=5e-8)
@@ -357,7 +360,7 @@ def test_nssda_vectorised_equals_scalar():
 
 
 def test_rmse_n_versus_standard_deviation_identity():
-    # references.md Appendix A.6: RMSE² = mean² + s²(n−1)/n.
+    # Algebraic identity (n vs n−1): RMSE² = mean² + s²(n−1)/n.
     d = np.array([0.012, -0.004, 0.020, 0.007, -0.011])
     n = d.size
     assert acc.rmse_m(d) ** 2 == pytest.approx(d.mean() ** 2 + d.var(ddof=1) * (n - 1) / n, rel=1e-12)
@@ -381,7 +384,8 @@ def test_residual_input_errors():
 
 
 def test_asprs_table_7_4_first_row():
-    # references.md §6.2 [CONF-S]: RMSE_V1 = 1.00 cm, survey check points 2.0 cm → 2.24 cm (√5 = 2.236).
+    # ASPRS Ed. 2 (2023) §7.11 Table 7.4 first row (secondary transcription; section number indicative):
+    # RMSE_V1 = 1.00 cm, survey check points 2.0 cm → 2.24 cm (√5 = 2.236).
     r = acc.asprs2023_evaluate(du_m=[0.01, -0.01] * 15, survey_sigma_u_m=[0.02] * 30)
     assert r.rmse_v1_m == pytest.approx(0.0100, abs=1e-12)
     assert r.rmse_v_m * 100 == pytest.approx(2.24, abs=0.005)
@@ -389,7 +393,7 @@ def test_asprs_table_7_4_first_row():
 
 
 def test_asprs_worked_example_horizontal_vertical_3d():
-    # references.md §6.2 worked example [RECOMP]: RMSE_x = RMSE_y = 3.0 cm from 30 check points, survey 1.0 cm
+    # Invented example, recomputed by hand (ASPRS Ed. 2 quadrature formulas): RMSE_x = RMSE_y = 3.0 cm from 30 check points, survey 1.0 cm
     # per axis → RMSE_H = 4.4721 cm; RMSE_V1 = 5.0 cm, survey 2.0 cm → RMSE_V = 5.3852 cm; RMSE_3D = 7.000 cm.
     pm = [1.0, -1.0] * 15
     r = acc.asprs2023_evaluate(
@@ -412,12 +416,12 @@ def test_asprs_flags_few_points_bias_blunders_and_weak_check_points():
     resid = [0.01, -0.01] * 14 + [0.01, 0.20]  # 30 points, one large
     r = acc.asprs2023_evaluate(du_m=resid, survey_sigma_u_m=0.03)
     codes = {f.code for f in r.findings}
-    # 0.20 > 3 × RMSE (3 × 0.0378): ASPRS Ed. 2 blunder rule (references.md §6.2)
+    # 0.20 > 3 × RMSE (3 × 0.0378): ASPRS Ed. 2 §7.2 blunder rule (secondary transcription)
     assert r.blunders == ((29, "z"),)
     assert "blunders" in codes
     # mean 0.0067 = 18 % of RMSE 0.0378: no bias flag at the 25 % guideline
     assert "bias" not in codes
-    # survey 3 cm vs product 3.8 cm: not twice as accurate (references.md §6.2, §7.12)
+    # survey 3 cm vs product 3.8 cm: not twice as accurate (ASPRS Ed. 2 §7.12, secondary transcription)
     assert "checkpoints_not_twice_as_accurate" in codes
     r2 = acc.asprs2023_evaluate(EX_A_DE, EX_A_DN, EX_A_DH)
     codes2 = [f.code for f in r2.findings]

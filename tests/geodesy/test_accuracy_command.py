@@ -1,6 +1,8 @@
 """``manage.py accuracy_statement``: both inputs, the three styles, JSON keys, clear errors.
 
-Check values: references.md (/work/shared/brief) §4.2, §5.3 A and §6.2, as in test_accuracy.py.
+Check values: FGDC-STD-007.2-1998 K polynomial (secondary transcription); ASPRS column example, PERS May
+2014, p. 397, Table 3 (inputs; results recomputed with NumPy); ASPRS Ed. 2 (2023) formulas (secondary
+transcription); as in test_accuracy.py.
 """
 
 from __future__ import annotations
@@ -28,7 +30,7 @@ def ex_a_file(tmp_path):
 
 
 def test_covariance_text_output():
-    # σe = σn = 10 mm → 2.450762 × 10 mm = 24.5 mm (references.md §4.2, C = 1); σu = 20 mm → 39.2 mm.
+    # σe = σn = 10 mm → 2.450762 × 10 mm = 24.5 mm (FGDC-STD-007.2-1998 K polynomial, secondary transcription, C = 1); σu = 20 mm → 39.2 mm.
     out = run("--cov-en", "1e-4", "0", "1e-4", "--var-u", "4e-4")
     assert "Horizontal network accuracy 0.025 m (24.5 mm) at the 95% confidence level" in out
     assert "class 5-Centimeter" in out
@@ -48,7 +50,7 @@ def test_covariance_json_keys():
 def test_residuals_nssda_json(ex_a_file):
     data = json.loads(run("--residuals", ex_a_file, "--json"))
     assert data["style"] == "nssda"
-    assert data["horizontal_95_m"] == pytest.approx(0.2101, abs=1e-4)  # references.md §5.3 A
+    assert data["horizontal_95_m"] == pytest.approx(0.2101, abs=1e-4)  # PERS 2014 p. 397 T. 3, recomputed
     assert data["vertical_95_m"] == pytest.approx(0.0650, abs=1e-4)
     assert data["horizontal_class"] is None and data["vertical_class"] is None  # NSSDA defines no classes
     assert data["statement"].splitlines()[0] == "Tested 0.210 meters horizontal accuracy at 95% confidence level"
@@ -58,7 +60,7 @@ def test_residuals_nssda_json(ex_a_file):
 def test_residuals_asprs2023_json_gives_rmse_keys_and_no_95(ex_a_file):
     data = json.loads(run("--residuals", ex_a_file, "--style", "asprs2023", "--json"))
     assert data["horizontal_95_m"] is None and data["vertical_95_m"] is None
-    assert data["rmse_h_m"] == pytest.approx(0.1216, abs=1e-4)  # RMSE_r of references.md §5.3 A
+    assert data["rmse_h_m"] == pytest.approx(0.1216, abs=1e-4)  # RMSE_r, PERS 2014 p. 397 T. 3, recomputed
     assert data["rmse_v_m"] == pytest.approx(0.0332, abs=1e-4)
     assert "95" not in data["statement"]
     text = run("--residuals", ex_a_file, "--style", "asprs2023")

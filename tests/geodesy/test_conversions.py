@@ -1,6 +1,7 @@
 """Geodetic ↔ ECEF ↔ ENU and covariance rotation (registry.geodesy.conversions).
 
-Sources beside each value; see /work/shared/brief/references.md §3.
+Sources beside each value: ICSM GDA Technical Manual v2.3, geographic ↔ cartesian example
+(secondary transcription), and PROJ 9.5.1 recomputations.
 """
 
 from __future__ import annotations
@@ -24,12 +25,12 @@ from registry.geodesy.conversions import (
 
 
 def dms(d, m, s, negative=False):
-    """Sign on the whole angle (references.md, general advice)."""
+    """Sign on the whole angle (common practice)."""
     v = d + m / 60.0 + s / 3600.0
     return -v if negative else v
 
 
-# ICSM GDA Technical Manual v2.3, geographic ↔ cartesian worked example on GRS80 [CONF-S], references §3.1.
+# ICSM GDA Technical Manual v2.3, geographic ↔ cartesian worked example on GRS80 (secondary transcription).
 # Longitudes ...29.52442″ / ...35.38393″ are the cartesian example's (not the geodesic example's).
 GDA_POINTS = [
     # name, lat, lon, h (m), X, Y, Z (m) as published
@@ -57,14 +58,14 @@ GDA_POINTS = [
 @pytest.mark.parametrize("name,lat,lon,h,x,y,z", GDA_POINTS)
 def test_gda_worked_example_forward(name, lat, lon, h, x, y, z):
     gx, gy, gz = geodetic_to_ecef(lat, lon, h, ellipsoid=GRS80)
-    # Published to the millimetre: tolerance ±1 mm per component (references §3.1).
+    # Published to the millimetre: tolerance ±1 mm per component.
     assert abs(gx - x) <= 1e-3 and abs(gy - y) <= 1e-3 and abs(gz - z) <= 1e-3, name
 
 
 @pytest.mark.parametrize("name,lat,lon,h,x,y,z", GDA_POINTS)
 def test_gda_worked_example_inverse(name, lat, lon, h, x, y, z):
     glat, glon, gh = ecef_to_geodetic(x, y, z, ellipsoid=GRS80)
-    # references §3.1: φ, λ to 1e-9° (≈ 0.1 mm) and h to 1 mm from the published X, Y, Z.
+    # Our tolerance: φ, λ to 1e-9° (≈ 0.1 mm) and h to 1 mm from the published X, Y, Z.
     assert abs(glat - lat) <= 1e-8  # the published XYZ are rounded to 1 mm → up to ~1e-8° here
     assert abs(glon - lon) <= 1e-8
     assert abs(gh - h) <= 1e-3
@@ -87,7 +88,7 @@ def test_against_proj_cart_on_many_points():
 
 
 def test_semi_minor_axes():
-    # references §3.3 [RECOMP]: GRS80 b = 6 356 752.314140 m; WGS84 b = 6 356 752.314245 m.
+    # b = a(1 − f), recomputed with PROJ 9.5.1: GRS80 b = 6 356 752.314140 m; WGS84 b = 6 356 752.314245 m.
     assert GRS80.b_m == pytest.approx(6356752.314140, abs=1e-6)
     assert WGS84.b_m == pytest.approx(6356752.314245, abs=1e-6)
 
@@ -95,7 +96,7 @@ def test_semi_minor_axes():
 @pytest.mark.parametrize(
     "lat,lon,h,x,y,z",
     [
-        # references §3.3, WGS84 points [RECOMP with PROJ]
+        # WGS84 points, recomputed with PROJ 9.5.1 (+proj=cart)
         (0.0, 0.0, 0.0, 6378137.0, 0.0, 0.0),
         (90.0, 30.0, 0.0, 0.0, 0.0, 6356752.3142),
         (45.0, 45.0, 1000.0, 3194919.1451, 3194919.1451, 4488055.5156),
@@ -108,7 +109,7 @@ def test_wgs84_closed_form_points(lat, lon, h, x, y, z):
 
 
 def test_round_trip_closes_below_a_tenth_of_a_millimetre():
-    # references §3.3: inverse round trip must close to < 0.1 mm for |h| < 10 km.
+    # Our tolerance: inverse round trip must close to < 0.1 mm for |h| < 10 km.
     rng = np.random.default_rng(7)
     lat = np.concatenate([rng.uniform(-90, 90, 20000), [90.0, -90.0, 0.0, 89.9999999, -89.9999999]])
     lon = np.concatenate([rng.uniform(-180, 180, 20000), [0.0, 10.0, 180.0, -179.0, 45.0]])

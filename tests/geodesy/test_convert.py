@@ -18,7 +18,7 @@ def dms(d, m, s, negative=False):
     return -v if negative else v
 
 
-# ICSM GDA Technical Manual v2.3 worked examples [CONF-S] (references §3.1) and MGA zone 55 values
+# ICSM GDA Technical Manual v2.3 worked examples (secondary transcription) and MGA zone 55 values
 # [from memory, agreeing with PROJ]: Flinders Peak. GRS80 is the ellipsoid of ITRF2014 too, so the
 # frame-free parts (ECEF ↔ geodetic, UTM on the frame's own ellipsoid) can be checked in EPSG:7912.
 FLINDERS_XYZ = (-4096088.424, 2929823.084, -3901375.454)

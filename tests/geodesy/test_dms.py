@@ -15,8 +15,8 @@ from registry.geodesy.dms import (
     split_dms,
 )
 
-# ICSM GDA Technical Manual worked example (Flinders Peak latitude) [CONF-S], references §3.1;
-# sign on the whole angle (references, general advice).
+# ICSM GDA Technical Manual v2.3 worked example (Flinders Peak latitude), secondary transcription;
+# sign on the whole angle (common practice).
 FLINDERS_LAT = -(37 + 57 / 60 + 3.72030 / 3600)
 
 

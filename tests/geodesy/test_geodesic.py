@@ -1,7 +1,8 @@
 """Geodesic inverse and direct problems (registry.geodesy.geodesic).
 
-Sources: references.md §1.1 (Vincenty 1975, Table II [CONF-S]), §1.3 (Karney 2013 WGS84 cases
-[RECOMP], attribution [MEMORY]), and GeographicLib 2.1 (Python) as the reference library.
+Sources: Vincenty (1975), Survey Review XXIII(176), Table II (secondary transcription); Karney (2013),
+J. Geodesy 87:43–55, WGS84 worked examples (recomputed with GeographicLib 2.1; attribution from memory,
+unconfirmed); and GeographicLib 2.1 (Python) as the reference library.
 """
 
 from __future__ import annotations
@@ -89,14 +90,14 @@ VINCENTY = {
 def test_vincenty_table_ii_inverse(line):
     ell, phi1, phi2, lam, s, a1, a2 = VINCENTY[line]
     r = inverse(phi1, 0.0, phi2, lam, ellipsoid=ell)
-    # references §1.1: |Δs| ≤ 1 mm (Vincenty quotes ±0.5 mm for his own method), |Δα| ≤ 0.0002″.
+    # |Δs| ≤ 1 mm (Vincenty (1975) quotes about ±0.5 mm for his own method), |Δα| ≤ 0.0002″ (our tolerance).
     assert abs(float(r.distance_m) - s) <= 1e-3
     assert ang_diff_arcsec(r.azimuth12_deg, a1) <= 2e-4
     assert ang_diff_arcsec(fwd_az_at_p2(r.azimuth21_deg), a2) <= 2e-4
 
 
 def test_vincenty_line_d_in_the_direct_direction():
-    # Line (d) is nearly antipodal; α1 = 89° is the input of the direct problem (references §1.1).
+    # Line (d) is nearly antipodal; α1 = 89° is the input of the direct problem (Vincenty (1975), Table II).
     ell, phi1, phi2, lam, s, a1, a2 = VINCENTY["d"]
     r = forward(phi1, 0.0, a1, s, ellipsoid=ell)
     assert ang_diff_arcsec(r.lat2_deg, phi2) <= 1e-4
@@ -105,15 +106,15 @@ def test_vincenty_line_d_in_the_direct_direction():
 
 
 def test_vincenty_line_d_inverse_within_the_documented_slack():
-    # references §1.1: line (d) inverse, |Δα| ≤ 0.002″ (the published α1 = 89° is itself a direct input).
+    # Line (d) inverse, |Δα| ≤ 0.002″ (our slack; Vincenty (1975) Table II's α1 = 89° is itself a direct input).
     ell, phi1, phi2, lam, s, a1, a2 = VINCENTY["d"]
     r = inverse(phi1, 0.0, phi2, lam, ellipsoid=ell)
     assert ang_diff_arcsec(r.azimuth12_deg, a1) <= 2e-3
     assert abs(float(r.distance_m) - s) <= 1e-3
 
 
-# Karney (2013) worked examples on WGS84, recomputed with GeographicLib 2.1 (references §1.3;
-# attribution from memory). Tolerance for a GeographicLib-class algorithm: 1 µm and 1e-9°.
+# Karney (2013), J. Geodesy 87:43–55, worked examples on WGS84, recomputed with GeographicLib 2.1
+# (attribution from memory, unconfirmed). Tolerance for a GeographicLib-class algorithm: 1 µm and 1e-9°.
 KARNEY_INVERSE = [
     (-30.12345, 0.0, -30.12344, 0.00005, 4.944208, 77.043533541, 77.043508448),
     (-30.0, 0.0, 29.9, 179.8, 19989832.827610, 161.890524736, 18.090737246),
@@ -132,7 +133,7 @@ def test_karney_wgs84_inverse(lat1, lon1, lat2, lon2, s12, azi1, azi2):
 
 
 def test_karney_wgs84_direct():
-    # references §1.3: φ1 = 40°, λ1 = 0, α1 = 30°, s12 = 10 000 km →
+    # Karney (2013), recomputed with GeographicLib 2.1: φ1 = 40°, λ1 = 0, α1 = 30°, s12 = 10 000 km →
     # φ2 = 41.79331020506°, λ2 = 137.84490004377°, α2 = 149.09016931807° (forward azimuth at P2).
     r = forward(40.0, 0.0, 30.0, 10_000_000.0, ellipsoid=WGS84)
     assert float(r.lat2_deg) == pytest.approx(41.79331020506, abs=1e-10)
@@ -160,7 +161,7 @@ def test_random_lines_against_geographiclib():
 
 
 def test_azimuth21_is_the_back_azimuth():
-    # Convention pinned (module docstring; references Appendix A.1): along the equator eastwards the
+    # Convention pinned (module docstring; Vincenty (1975): α2 is the forward azimuth at P2): along the equator eastwards the
     # azimuth at P1 is 90° and azimuth21 (from P2 back to P1) is 270°; Vincenty's α2 would be 90°.
     r = inverse(0.0, 0.0, 0.0, 1.0)
     assert float(r.azimuth12_deg) == pytest.approx(90.0)

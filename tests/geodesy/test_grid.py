@@ -98,7 +98,8 @@ def test_snyder_transverse_mercator_example():
 
 # ICSM GDA Technical Manual, UTM (MGA zone 55) worked example for Flinders Peak and Buninyong on
 # GDA94 [from memory; every digit agrees with PROJ 9.5.1, EPSG:28355]. The manual states convergence
-# with the opposite sign (grid bearing = azimuth + γ_GDA), so γ_PROJ = −γ_GDA (references Appendix A.2).
+# with the opposite sign (grid bearing = azimuth + γ_GDA), so γ_PROJ = −γ_GDA (sign convention from memory;
+# the PROJ values pin it).
 GDA_MGA = [
     # name, φ, λ, E, N, k, γ_GDA
     (
@@ -253,18 +254,19 @@ def test_grid_round_trip():
     assert np.max(np.abs(lat2 - lat)) < 1e-10 and np.max(np.abs(lon2 - lon)) < 1e-10
 
 
-# --- Elevation and combined factors (references §11) -----------------------------------------
+# --- Elevation and combined factors (standard formulas; attribution to Stem 1989, NOAA Manual NOS NGS 5,
+# from memory, unconfirmed) ---
 
 
 def test_elevation_and_combined_factor_simple_example():
-    # references §11.2 [RECOMP]: k = 0.9999, h = 500 m, R = 6 371 000 m → EF = 0.9999215255, CF = 0.9998215334.
+    # Invented example, recomputed by hand (EF = R/(R + h), CF = k·EF): k = 0.9999, h = 500 m, R = 6 371 000 m → EF = 0.9999215255, CF = 0.9998215334.
     ef = elevation_factor(500.0, radius_m=6_371_000.0)
     assert float(ef) == pytest.approx(0.9999215255, abs=5e-11)
     assert float(combined_factor(0.9999, ef)) == pytest.approx(0.9998215334, abs=5e-11)
 
 
 def test_combined_factor_us_feet_forum_example():
-    # references §11.2 [CONF-S, surveyors' forum post; low authority]: grid factor 0.999981,
+    # Common practice (secondary transcription of a surveyors' forum post; low authority): grid factor 0.999981,
     # elevation 500 ft, R = 20 906 000 ft → combined "0.999957" (computed 0.99995708).
     cf = combined_factor(0.999981, elevation_factor(500.0, radius_m=20_906_000.0))
     assert round(float(cf), 6) == 0.999957
@@ -282,7 +284,7 @@ def test_gaussian_radius_and_radius_in_azimuth():
     assert float(radius_in_azimuth_m(45.2, 90.0)) == pytest.approx(float(nu), rel=1e-15)
     # Which R: EF ≈ 1 − h/R, so a radius change ΔR changes EF by h·ΔR/R². At 45° the meridian and
     # prime-vertical radii differ from √(ρν) by about ±10.7 km, giving up to 2.6e-7 at h = 1 km.
-    # (references §11.1 says "< 1e-8"; that [MEMORY] figure is too small — recomputed here from
+    # (a from-memory note of "< 1e-8" is too small — recomputed here from
     # the formula, ΔR/R² · h = 10.7e3 / 6.378e6² · 1000 ≈ 2.6e-7.)
     ef_g = float(elevation_factor(1000.0, lat_deg=45.2))
     for az in (0.0, 45.0, 90.0):
@@ -293,7 +295,7 @@ def test_gaussian_radius_and_radius_in_azimuth():
 
 
 def test_ellipsoidal_not_orthometric_height_matters():
-    # references §11.1 ⚠: using H instead of h errs by N/R (≈ 4.7 ppm for N = 30 m).
+    # Using H instead of h errs by N/R (≈ 4.7 ppm for N = 30 m; computed from EF = R/(R + h)).
     h, n_geoid = 1500.0, -30.0
     ef_h = elevation_factor(h, lat_deg=45.2)
     ef_bigh = elevation_factor(h - n_geoid, lat_deg=45.2)

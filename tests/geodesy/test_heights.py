@@ -26,7 +26,7 @@ needs_egm96 = pytest.mark.skipif(EGM96_PATH is None, reason="Debian proj-data eg
 @pytest.mark.parametrize(
     "big_h,n,h",
     [
-        # ICSM GDA Technical Manual v2.3 worked example, h = H + N [CONF-S], references §3.1.
+        # ICSM GDA Technical Manual v2.3 worked example, h = H + N (secondary transcription).
         (347.200, 3.748, 350.948),  # Flinders Peak
         (744.986, 4.869, 749.855),  # Buninyong
     ],

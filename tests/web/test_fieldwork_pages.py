@@ -1,7 +1,8 @@
 """Visit, occupation and status pages: role matrix, success with audit rows, bad input changes nothing.
 
 Check values: slant reduction h_ARP = √(s² − r²) + Δh with s = 2.000 m, r = 0.0953 m,
-ARP 0.0483 m below the slant-measure point (Δh = −0.0483 m) → 1.94943 m (references.md §9, [RECOMP] row; formula [CONF-S]).
+ARP 0.0483 m below the slant-measure point (Δh = −0.0483 m) → 1.94943 m (antenna radius 0.0953 m / offset 0.0483 m as tabulated in a GNSS receiver manual (unnamed; secondary transcription), result recomputed by hand;
+formula: secondary transcription of a GNSS data-preparation tool's documented slant option, dh + √(s² − (d/2)²)).
 """
 
 from __future__ import annotations
@@ -179,7 +180,7 @@ def test_occupation_slant_is_reduced_and_files_attached(kestrel, signed_in, mana
     response = signed_in(manager).post(reverse("web:occupation-create", kwargs={"code": "KV-001"}), data)
     assert response.status_code == 302, response.content.decode()[:2000]
     occ = Occupation.objects.get(mark__code="KV-001", antenna_height_kind="slant")
-    # references.md §9 [RECOMP]: s = 2.000, r = 0.0953, Δh = 0.0483 → 1.94943 m
+    # s = 2.000, r = 0.0953, Δh = 0.0483 → 1.94943 m (recomputed by hand: √(2.000² − 0.0953²) − 0.0483)
     assert occ.antenna_height_arp_m == pytest.approx(1.94943, abs=5e-6)
     assert occ.start_utc.isoformat() == "2024-05-03T14:00:00+00:00"  # typed without a zone = UTC
     assert [a.kind for a in occ.attachments.all()] == ["rinex"]

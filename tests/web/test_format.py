@@ -14,7 +14,7 @@ from registry.web.templatetags import registry_format as rf
 
 
 def dms_to_deg(d: int, m: int, s: float, sign: int = 1) -> float:
-    """Sign on the whole angle (references.md, general advice; ICSM GDA Technical Manual convention)."""
+    """Sign on the whole angle (common practice; as in the ICSM GDA Technical Manual v2.3 examples)."""
     return sign * (d + m / 60 + s / 3600)
 
 
@@ -25,11 +25,11 @@ def dms_to_deg(d: int, m: int, s: float, sign: int = 1) -> float:
     "lat,lon,lat_text,lon_text",
     [
         # ICSM GDA Technical Manual v2.3, geographic ↔ cartesian worked example, Flinders Peak
-        # (references.md §3.1, [CONF-S]).
+        # (secondary transcription of the ICSM GDA Technical Manual v2.3).
         (dms_to_deg(37, 57, 3.72030, -1), dms_to_deg(144, 25, 29.52442), "37°57′03.72030″ S", "144°25′29.52442″ E"),
         # Same source, Buninyong.
         (dms_to_deg(37, 39, 10.15611, -1), dms_to_deg(143, 55, 35.38393), "37°39′10.15611″ S", "143°55′35.38393″ E"),
-        # Vincenty (1975), Survey Review XXIII(176), Table II line (b): φ1 and L (references.md §1.1, [CONF-S]).
+        # Vincenty (1975), Survey Review XXIII(176), Table II line (b): φ1 and L (secondary transcription).
         (dms_to_deg(37, 19, 54.95367), dms_to_deg(41, 28, 35.50729), "37°19′54.95367″ N", "41°28′35.50729″ E"),
         # Vincenty (1975) Table II line (d): φ2 = −0°59′53.83076″ (a southern latitude below 1°).
         (dms_to_deg(0, 59, 53.83076, -1), dms_to_deg(179, 17, 48.02997, -1), "0°59′53.83076″ S", "179°17′48.02997″ W"),

@@ -3,12 +3,12 @@
 Check values and their sources:
 - 2D compatibility worked example: d = (E, N) = (0.018, −0.021) m, σ_pub = (0.010, 0.012) m,
   σ_obs = (0.008, 0.010) m, uncorrelated → T = 3.7830, p = 0.1508, critical χ²(0.95, 2) = 5.991,
-  compatible (references.md §8.2, [RECOMP]; critical value also §8.1).
-- χ²(0.95, 3) = 7.815 and χ²(0.95, 1) = 3.841 (references.md §8.1, [RECOMP] with SciPy).
+  compatible (hand worked example: T = dᵀ(Σ_pub + Σ_obs)⁻¹d, recomputed with SciPy 1.17.1 chi2).
+- χ²(0.95, 3) = 7.815 and χ²(0.95, 1) = 3.841 (recomputed with SciPy 1.17.1, scipy.stats.chi2.ppf).
 - d = (0.050, 0, 0): T_h = 0.050² / (0.010² + 0.008²) = 15.2439 (hand computation, uncorrelated
   diagonal covariances) > 5.991 → not compatible.
 - DMS: 45°12′03.51234″ N = 45 + 12/60 + 3.51234/3600 degrees; the sign belongs to the whole
-  angle (ICSM GDA Technical Manual convention, quoted in references.md "General test advice").
+  angle (common practice; as in the ICSM GDA Technical Manual v2.3 examples).
 - Points offset by a given east/north distance are built with pyproj's Geod (Karney's geodesic,
   an independent reference library) on GRS80, not with the code under test.
 """
@@ -58,7 +58,7 @@ def _pos(**kw):
 
 @pytest.fixture
 def pair(manager, technician, media_root):
-    """A mark with a published position and a proposed one offset by (0.018, −0.021) m (references §8.2)."""
+    """A mark with a published position and a proposed one offset by (0.018, −0.021) m (invented worked example)."""
 
     def build(*, east=0.018, north=-0.021, published=None, proposed=None):
         mark_create(actor=manager, data={"code": "TS-01", "name": "Test Saddle (invented)"})
@@ -183,14 +183,14 @@ def test_propose_offers_frames_in_use_and_free_entry(kestrel, signed_in, technic
 def test_compatibility_worked_example_same_epoch(pair, signed_in, manager):
     _, obs = pair()
     page = signed_in(manager).get(_decide_url(obs, "publish")).content.decode()
-    # references.md §8.2 2D worked example: T = 3.7830, critical 5.991, p = 0.1508, compatible
+    # 2D worked example, recomputed with SciPy 1.17.1: T = 3.7830, critical 5.991, p = 0.1508, compatible
     assert "3.7830" in page
     assert "5.991" in page and "0.1508" in page
     assert "no epoch change was applied" in page
     assert "No significant movement at 95 %" in page
     # d shown in mm (E / N / U)
     assert "18.0 / -21.0 / 0.0" in page
-    # 3D row: same T (vertical d = 0), critical χ²(0.95, 3) = 7.815 (references.md §8.1)
+    # 3D row: same T (vertical d = 0), critical χ²(0.95, 3) = 7.815 (recomputed with SciPy 1.17.1)
     assert "7.815" in page and "3.841" in page
 
 
