@@ -30,6 +30,10 @@ SECRET_KEY = env_secret(
     "REGISTRY_SECRET_KEY",
     production=PRODUCTION,
     dev_default="dev-only-insecure-key-never-use-in-production-0123456789abcdef",
+    # Production refuses what Django's check --deploy only warns about (security.W009).
+    min_length=50,
+    min_unique=5,
+    forbidden_prefix="django-insecure-",
 )
 ALLOWED_HOSTS = env_list("REGISTRY_ALLOWED_HOSTS", ["127.0.0.1", "localhost", "testserver"], required=PRODUCTION)
 CSRF_TRUSTED_ORIGINS = env_list("REGISTRY_CSRF_TRUSTED_ORIGINS", [])

@@ -159,14 +159,49 @@ def test_check_deploy_passes_with_production_settings():
     assert "no issues" in proc.stdout
 
 
-def test_check_deploy_catches_a_weak_secret():
-    # Shows the previous test can fail: Django's security.W009 (short secret, few characters).
-    proc = run_python(
-        ["manage.py", "check", "--deploy", "--fail-level", "WARNING"],
-        **{**PROD, "REGISTRY_SECRET_KEY": "short-secret"},
-    )
+@pytest.mark.parametrize(
+    ("secret", "why"),
+    [
+        ("short-secret", "it has 12 characters, at least 50 are needed"),
+        ("x" * 50, "it has 1 different characters, at least 5 are needed"),  # the reviewer's example
+        ("abcd" * 20, "it has 4 different characters, at least 5 are needed"),
+        ("django-insecure-" + GOOD_SECRET, "starts with 'django-insecure-'"),
+    ],
+    ids=["short", "one-character", "four-characters", "insecure-prefix"],
+)
+def test_production_refuses_a_weak_secret_and_says_how_to_make_one(secret, why):
+    # Before: check --deploy only warned (security.W009). Now the application does not start.
+    proc = run_python(["manage.py", "check", "--deploy"], **{**PROD, "REGISTRY_SECRET_KEY": secret})
     assert proc.returncode != 0
-    assert "security.W009" in proc.stdout + proc.stderr
+    assert "ConfigurationError: REGISTRY_SECRET_KEY is too weak for production" in proc.stderr
+    assert why in proc.stderr
+    assert "secrets.token_urlsafe(50)" in proc.stderr
+    assert secret not in proc.stderr  # the key itself is never printed
+
+
+def test_our_weak_secret_rule_covers_djangos_w009():
+    # The limits of Django's own check (django/core/checks/security/base.py, Django 5.2: 50
+    # characters, 5 unique, prefix 'django-insecure-'): whatever W009 would flag, we refuse.
+    from django.core.checks.security import base
+
+    import registry.settings as ours  # noqa: F401  (the source of the numbers is settings.py)
+
+    text = (BASE_DIR / "registry" / "settings.py").read_text(encoding="utf-8")
+    assert f"min_length={base.SECRET_KEY_MIN_LENGTH}," in text
+    assert f"min_unique={base.SECRET_KEY_MIN_UNIQUE_CHARACTERS}," in text
+    assert f'forbidden_prefix="{base.SECRET_KEY_INSECURE_PREFIX}"' in text
+
+
+def test_env_secret_strength_rules(monkeypatch):
+    rules = {"min_length": 10, "min_unique": 3, "forbidden_prefix": "dev-"}
+    monkeypatch.setenv("REGISTRY_T_SECRET", "aabbccddee")  # 10 characters, 5 different
+    assert env_secret("REGISTRY_T_SECRET", production=True, dev_default="d", **rules) == "aabbccddee"
+    for weak in ("aabbccdde", "ababababab", "dev-abcdefgh"):
+        monkeypatch.setenv("REGISTRY_T_SECRET", weak)
+        with pytest.raises(ConfigurationError, match="too weak for production"):
+            env_secret("REGISTRY_T_SECRET", production=True, dev_default="d", **rules)
+        # outside production the same value is accepted (development keys are not checked)
+        assert env_secret("REGISTRY_T_SECRET", production=False, dev_default="d", **rules) == weak
 
 
 def test_check_deploy_catches_debug_left_on_in_production():
