@@ -22,7 +22,7 @@ Sources and conventions
   3 mm vertical, 1σ (common practice).
 - Combination: σ_axis = √(σ_rtk² + σ_base² + σ_drift² + σ_setup²). Horizontal 95 % =
   2.4477·σ_axis, the radius of the 95 % circle of a circular bivariate normal
-  (√(−2 ln 0.05) = √χ²₀.₉₅(2); FGDC-STD-007.3-1998 §3.2.1, Greenwalt & Schultz 1968);
+  (√(−2 ln 0.05) = √χ²₀.₉₅(2); FGDC-STD-007.3-1998 §3.2.1, Greenwalt & Shultz 1968);
   vertical 95 % = 1.9600·σ_v (normal 97.5 % quantile).
 
 Performance: distances from every candidate to every site point are planar on the

@@ -19,11 +19,11 @@ from registry.geodesy.frames import (
     transform_position,
 )
 
-MAS = np.pi / (180 * 3600 * 1000)  # 1 milliarcsecond in radians (= 4.8481368e-9, references §10.1)
+MAS = np.pi / (180 * 3600 * 1000)  # 1 milliarcsecond in radians (= 4.8481368e-9, definition)
 
 
 def helmert14(xyz_m, t_yr, *, t_mm, d_ppb, r_mas, tdot_mm, ddot_ppb, rdot_mas, t0_yr, convention):
-    """Independent 14-parameter Helmert, IERS Conventions (2010) eq. (4.13) / references §10.1.
+    """Independent 14-parameter Helmert, IERS Conventions (2010) eq. (4.13).
 
     X_s = X + T + D·X + R·X with R = [[0, −R3, R2], [R3, 0, −R1], [−R2, R1, 0]] (position vector);
     the coordinate-frame convention uses the transpose of R. P(t) = P(t0) + Ṗ (t − t0).
@@ -40,7 +40,8 @@ def helmert14(xyz_m, t_yr, *, t_mm, d_ppb, r_mas, tdot_mm, ddot_ppb, rdot_mas, t
     return x + np.array([tx, ty, tz]) + d * x + rot @ x
 
 
-# IERS/IGN Transfo-ITRF2020_TRFs.txt (2022), "from ITRF2020 to ITRF2014" [CONF-S], references §10.1.
+# IERS/IGN Transfo-ITRF2020_TRFs.txt (2022), "from ITRF2020 to ITRF2014" (secondary transcription;
+# agrees with PROJ's ITRF2020 data file).
 ITRF2020_TO_2014 = dict(
     t_mm=(-1.4, -0.9, 1.4),
     d_ppb=-0.42,
@@ -52,7 +53,8 @@ ITRF2020_TO_2014 = dict(
     convention="position_vector",
 )
 
-# references §10.1 worked example [RECOMP]: input in ITRF2020 and the ITRF2014 results (m).
+# Invented input in ITRF2020 and the ITRF2014 results (m), recomputed with PROJ 9.5.1 (EPSG:9988 → 7789)
+# and by the formula above; the two agree to 0.01 mm.
 X_2020 = (4027893.6750, 307045.9069, 4919475.1721)
 ITRF2014_EXPECTED = {
     2010.0: (4027893.67191, 307045.90637, 4919475.17043),
@@ -71,7 +73,7 @@ def _via_registry(xyz, *, from_epsg, to_epsg, epoch):
 def test_itrf2020_to_itrf2014_against_independent_iers_formula(epoch):
     ours, r = _via_registry(X_2020, from_epsg=9989, to_epsg=7912, epoch=epoch)
     independent = helmert14(X_2020, epoch, **ITRF2020_TO_2014)
-    assert np.max(np.abs(ours - independent)) < 1e-5  # 0.01 mm (references §10.1)
+    assert np.max(np.abs(ours - independent)) < 1e-5  # 0.01 mm (PROJ 9.5.1 vs formula agreement)
     assert np.max(np.abs(ours - np.array(ITRF2014_EXPECTED[epoch]))) < 1e-5
     assert r.epoch_yr == epoch and r.frame.epsg == 7912
     assert [s.kind for s in r.steps] == ["frame_change"]
@@ -85,9 +87,7 @@ def test_itrf2020_itrf2014_round_trip():
         a.lat_deg, a.lon_deg, a.h_m, from_epsg=7912, from_epoch_yr=2024.0, to_epsg=9989, to_epoch_yr=2024.0
     )
     back = np.array([float(v) for v in geodetic_to_ecef(b.lat_deg, b.lon_deg, b.h_m)])
-    assert (
-        np.max(np.abs(back - np.array(X_2020))) < 1e-8
-    )  # references §10.1: round trip ≤ 1e-9 m (PROJ); we allow float noise
+    assert np.max(np.abs(back - np.array(X_2020))) < 1e-8  # round trip ≤ 1e-9 m with PROJ 9.5.1; we allow float noise
 
 
 # NGS parameters ITRF2014 → NAD83(2011) [from memory: C. Pearson, R. Snay, "Introducing HTDP 3.1 to
@@ -113,7 +113,8 @@ def test_rotation_convention_pinned_with_a_coordinate_frame_example(epoch):
     cf = helmert14(xyz, epoch, **ITRF2014_TO_NAD83_2011)
     pv = helmert14(xyz, epoch, **{**ITRF2014_TO_NAD83_2011, "convention": "position_vector"})
     assert np.max(np.abs(ours - cf)) < 1e-5
-    assert np.linalg.norm(ours - pv) > 1.0  # the wrong convention moves the point by metres (references §10.2)
+    # the wrong convention moves the point by metres (EPSG/PROJ position_vector vs coordinate_frame)
+    assert np.linalg.norm(ours - pv) > 1.0
 
 
 def test_position_vector_example_differs_from_its_coordinate_frame_reading():
@@ -151,7 +152,7 @@ def test_velocity_propagation_moves_the_point_along_enu():
         velocity_sigma_enu_m_yr=(0.0002, 0.0002, 0.0005),
     )
     e, n, u = geodetic_to_enu(r.lat_deg, r.lon_deg, r.h_m, lat0_deg=lat, lon0_deg=lon, h0_m=h)
-    # 14.5 years × (−15, −5, +1) mm/yr = (−217.5, −72.5, +14.5) mm (linear motion, references §10.4).
+    # 14.5 years × (−15, −5, +1) mm/yr = (−217.5, −72.5, +14.5) mm (linear motion x(t) = x₀ + v·Δt, hand computation).
     assert (float(e), float(n), float(u)) == pytest.approx((-0.2175, -0.0725, 0.0145), abs=2e-6)
     assert [float(s) for s in r.added_sigma_enu_m] == pytest.approx([0.0029, 0.0029, 0.00725])
     assert [s.kind for s in r.steps] == ["velocity"] and not r.warnings

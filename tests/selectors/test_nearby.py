@@ -144,7 +144,7 @@ def world():
 def r95_reference_m(ee, en, nn):
     """FGDC-STD-007.2-1998 circular 95 % radius, computed independently of the code:
     eigenvalues by numpy.linalg.eigvalsh, K polynomial as printed in the standard
-    (coefficients [CONF-S], references.md §4.2)."""
+    (coefficients: secondary transcription, Geoscience Australia geodesy package)."""
     lam = np.linalg.eigvalsh(np.array([[ee, en], [en, nn]]))
     s_min, s_max = math.sqrt(max(lam[0], 0.0)), math.sqrt(max(lam[1], 0.0))
     c = s_min / s_max if s_max > 0 else 0.0
@@ -321,7 +321,7 @@ def small_district():
     for code in marks:
         if code not in ("NAD83ONLY1", "COARSE1"):
             # σe = σn = 10 mm: C = 1, K = 2.450762 → r95 = 24.50762 mm (FGDC K polynomial;
-            # references.md §4.2 table, C = 1.0).
+            # polynomial evaluated at C = 1.0).
             pos(code, 7912, 0.010, 0.010)
     pos("NAD83ONLY1", 6319, 0.005, 0.005)
     # COARSE1: σe = 30 mm, σn = 0 → C = 0, K = 1.960790 → r95 = 58.8237 mm (same table, C = 0.0).
