@@ -218,6 +218,18 @@ def test_status_rules(manager, technician):
     assert AuditEvent.objects.filter(action="mark_set_status_refused").count() == 1
 
 
+def test_setting_the_same_status_from_an_older_version_is_a_no_op(manager):
+    """Review N-9: "same status, different version" once bumped the version and wrote an audit row."""
+    make_mark(manager)
+    mark_update(actor=manager, code="QR-101", expected_version=1, changes={"notes": "checked"})
+    events = AuditEvent.objects.count()
+    with pytest.raises(ValidationError) as info:
+        mark_set_status(actor=manager, code="QR-101", status="active", expected_version=1)
+    assert codes_of(info.value) == {"status": ["status_unchanged"]}
+    assert Mark.objects.get(code="QR-101").version == 2
+    assert AuditEvent.objects.count() == events
+
+
 @pytest.mark.django_db(transaction=True)
 def test_truly_concurrent_edits_one_wins_one_conflicts(manager, make_user):
     """Two threads, two database connections, both starting from version 1 at the same moment."""
