@@ -1,7 +1,8 @@
 """GET /api/marks/export.csv, /api/marks/export.geojson, /api/marks/export?format=csv|geojson (viewer role).
 
-The body is the same text ``manage.py export_marks`` writes (``registry.io.export``): every mark with one
-published position (``?frame=EPSG`` picks the frame; default: each mark's most recently published one).
+The body is the same text ``manage.py export_marks`` writes (``registry.io.export``): every mark with all
+its currently published positions, one row (feature) per (mark, published position), each with the
+mark's ``version`` and the position's ``position_revision`` (``?frame=EPSG`` keeps one frame only).
 Errors use the API's one JSON shape.
 """
 

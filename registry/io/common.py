@@ -1,9 +1,18 @@
 """What a mark row is in our import/export files, how it is validated, and how numbers are written.
 
 Both file formats (CSV, ``marks_csv``; GeoJSON, ``marks_geojson``) carry the same record: a mark's
-description fields and, optionally, one published position of it. This module holds the field list,
-the per-row validation (every problem of a row is reported, with a machine-readable code) and the
-number formatting used by the exporters.
+description fields, its edit ``version`` and, optionally, one published position of it with that
+position's ``position_revision``. A mark with published positions in several frames takes one record
+per frame (the mark's fields repeated); a mark without any takes one record without a position. This
+module holds the field list, the per-row validation (every problem of a row is reported, with a
+machine-readable code), the rules between rows of one mark, and the number formatting used by the
+exporters.
+
+``version`` and ``position_revision`` are what an ``--update`` import checks against the registry
+(optimistic concurrency, ``registry.services.imports``): ``version`` is the mark's edit version
+(``Mark.version``); ``position_revision`` counts the positions of the mark in that frame that have ever
+been published (published, superseded or withdrawn), so it moves whenever a new position is published
+in that frame.
 
 Numbers are written so that they read back to the *same* binary float (shortest exact decimal, with a
 minimum number of decimals for readability: latitude/longitude 9, metres 4, covariance as Python's
@@ -56,6 +65,11 @@ MARK_CHOICES: dict[str, tuple[str, ...]] = {
     "status": tuple(MarkStatus.values),
 }
 
+#: Concurrency columns (whole numbers): the mark's edit version, the position's revision in its frame.
+VERSION_FIELD = "version"
+REVISION_FIELD = "position_revision"
+INTEGER_FIELDS: frozenset[str] = frozenset({"frame_epsg", VERSION_FIELD, REVISION_FIELD})
+
 #: Position coordinates. In CSV they are columns; in GeoJSON they are the Point's coordinates.
 COORD_FIELDS: tuple[str, ...] = ("lat_deg", "lon_deg", "h_m")
 SIGMA_FIELDS: tuple[str, ...] = ("sigma_e_mm", "sigma_n_mm", "sigma_u_mm")
@@ -65,10 +79,12 @@ VEL_FIELDS: tuple[str, ...] = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
 VEL_SIGMA_FIELDS: tuple[str, ...] = ("vel_sigma_e_m_yr", "vel_sigma_n_m_yr", "vel_sigma_u_m_yr")
 #: Position fields other than the coordinates, in file order.
 POSITION_PROPERTY_FIELDS: tuple[str, ...] = (
-    ("frame_epsg", "epoch_yr") + SIGMA_FIELDS + COV_FIELDS + VEL_FIELDS + VEL_SIGMA_FIELDS + ("source",)
+    ("frame_epsg", "epoch_yr") + SIGMA_FIELDS + COV_FIELDS + VEL_FIELDS + VEL_SIGMA_FIELDS + ("source", REVISION_FIELD)
 )
 #: CSV columns in file order.
-CSV_COLUMNS: tuple[str, ...] = MARK_FIELDS + ("frame_epsg", "epoch_yr") + COORD_FIELDS + POSITION_PROPERTY_FIELDS[2:]
+CSV_COLUMNS: tuple[str, ...] = (
+    MARK_FIELDS + (VERSION_FIELD, "frame_epsg", "epoch_yr") + COORD_FIELDS + POSITION_PROPERTY_FIELDS[2:]
+)
 #: Model fields of ``Position`` carried by a record (everything but state, people and times).
 POSITION_MODEL_FIELDS: tuple[str, ...] = (
     ("frame_epsg", "epoch_yr") + COORD_FIELDS + COV_FIELDS + VEL_FIELDS + VEL_SIGMA_FIELDS + ("source",)
@@ -80,6 +96,7 @@ H_MIN_M, H_MAX_M = -1000.0, 10000.0  # same range as the model's CHECK constrain
 SIGMA_MAX_MM = 10_000.0  # a 10 m sigma is no longer control; almost certainly a unit mistake
 VEL_MAX_M_YR = 1.0  # the fastest plate moves < 0.2 m/yr; 1 m/yr catches mm/yr typed as m/yr
 SOURCE_MAX = 200
+MAX_VERSION = 2_147_483_647  # the largest value of a PositiveIntegerField on every supported database
 #: Agreement needed between a sigma column and √(covariance diagonal) when a file carries both. Exports
 #: write sigmas to 0.01 mm, so a half unit of the last place plus float noise.
 SIGMA_COV_AGREEMENT_MM = 0.005 + 1e-9
@@ -120,12 +137,19 @@ class MarkRecord:
     """A validated row: the mark's fields (only those the file carries) and an optional position.
 
     ``position`` uses ``Position`` model field names and units (m, m², m/yr); covariance complete.
+    ``version`` and ``position_revision`` are None when the row does not carry them.
     """
 
     where: str
     index: int
     mark: dict[str, Any]
     position: dict[str, Any] | None = None
+    version: int | None = None
+    position_revision: int | None = None
+
+    @property
+    def frame_epsg(self) -> int | None:
+        return None if self.position is None else self.position["frame_epsg"]
 
     @property
     def code(self) -> str:
@@ -333,6 +357,10 @@ def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRe
             if text is not None:
                 mark[name] = text
 
+    version = chk.number(raw, VERSION_FIELD, integer=True)
+    if version is not None and not 1 <= version <= MAX_VERSION:
+        chk.add("out_of_range", f"a version is a whole number from 1 to {MAX_VERSION}, got {version}", VERSION_FIELD)
+
     # Position fields.
     position_names = ("frame_epsg", "epoch_yr") + COORD_FIELDS + POSITION_PROPERTY_FIELDS[2:]
     has_position = any(not _is_blank(raw.get(n)) for n in position_names)
@@ -342,7 +370,8 @@ def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRe
 
     if chk.errors:
         return None, chk.errors
-    return MarkRecord(where=where, index=index, mark=mark, position=position), []
+    revision = None if position is None else position.pop(REVISION_FIELD, None)
+    return MarkRecord(where, index, mark, position, version=version, position_revision=revision), []
 
 
 def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] | None:
@@ -458,6 +487,15 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
     for names, values in ((VEL_FIELDS, vel), (VEL_SIGMA_FIELDS, vsig)):
         pos.update({n: v for n, v in zip(names, values, strict=True)})
 
+    revision = chk.number(raw, REVISION_FIELD, integer=True)
+    if revision is not None:
+        if not 0 <= revision <= MAX_VERSION:
+            chk.add(
+                "out_of_range", f"a revision is a whole number from 0 to {MAX_VERSION}, got {revision}", REVISION_FIELD
+            )
+        else:
+            pos[REVISION_FIELD] = revision
+
     source = chk.text(raw, "source", SOURCE_MAX)
     if source == "":
         chk.add("source_required", "a position needs its source (campaign, adjustment, occupation)", "source")
@@ -469,20 +507,47 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
     return pos
 
 
-def find_duplicate_codes(records: list[MarkRecord]) -> list[RowError]:
-    """One error for every repeat of a code already used by an earlier row of the same file."""
-    first: dict[str, MarkRecord] = {}
+def check_rows_per_mark(records: list[MarkRecord]) -> list[RowError]:
+    """Errors between rows of one mark code: each row of a mark is one frame, the mark fields agree.
+
+    A mark may take several rows (one per frame of its published positions; at most one row without a
+    position). The same (code, frame) twice is ``duplicate_frame``; the same code twice without a
+    position is ``duplicate_code``; a later row whose mark fields or version differ from the mark's
+    first row is ``mark_fields_differ`` (the file would say two things about one mark).
+    """
+    first_of_code: dict[str, MarkRecord] = {}
+    seen: dict[tuple[str, int | None], MarkRecord] = {}
     errors = []
     for record in records:
-        earlier = first.setdefault(record.code, record)
+        key = (record.code, record.frame_epsg)
+        earlier = seen.setdefault(key, record)
         if earlier is not record:
+            if record.frame_epsg is None:
+                code, message = "duplicate_code", f"code {record.code} already appears at {earlier.where}"
+            else:
+                code = "duplicate_frame"
+                message = (
+                    f"mark {record.code} already has a position in EPSG:{record.frame_epsg} at {earlier.where}; "
+                    "a mark takes at most one position per frame in a file"
+                )
+            field_name = "code" if record.frame_epsg is None else "frame_epsg"
+            errors.append(RowError(record.where, record.index, code, message, field_name, record.code))
+            continue
+        first = first_of_code.setdefault(record.code, record)
+        if first is record:
+            continue
+        differ = sorted(k for k in set(first.mark) | set(record.mark) if first.mark.get(k) != record.mark.get(k))
+        if first.version != record.version:
+            differ.append(VERSION_FIELD)
+        if differ:
             errors.append(
                 RowError(
                     record.where,
                     record.index,
-                    "duplicate_code",
-                    f"code {record.code} already appears at {earlier.where}",
-                    "code",
+                    "mark_fields_differ",
+                    f"the rows of mark {record.code} must agree on its fields; {', '.join(differ)} differ from "
+                    f"{first.where}",
+                    differ[0],
                     record.code,
                 )
             )
@@ -492,8 +557,10 @@ def find_duplicate_codes(records: list[MarkRecord]) -> list[RowError]:
 # --- Export rows ------------------------------------------------------------------------------------
 
 
-def export_values(mark, position) -> dict[str, Any]:
+def export_values(mark, position, position_revision: int | None = None) -> dict[str, Any]:
     """The record of ``mark`` (a ``Mark``) with ``position`` (a published ``Position`` or None).
+
+    ``position_revision`` is the position's revision in its frame (see the module docstring).
 
     Values are Python objects (str, int, float, None) keyed like ``CSV_COLUMNS``; the writers format
     them. Sigma columns are derived from the covariance diagonal (0.01 mm) for the reader's benefit;
@@ -502,7 +569,9 @@ def export_values(mark, position) -> dict[str, Any]:
     values: dict[str, Any] = {name: getattr(mark, name) for name in MARK_FIELDS}
     for name in CSV_COLUMNS[len(MARK_FIELDS) :]:
         values[name] = None
+    values[VERSION_FIELD] = mark.version
     if position is not None:
+        values[REVISION_FIELD] = position_revision
         for name in POSITION_MODEL_FIELDS:
             values[name] = getattr(position, name)
         for sigma_name, cov_name in zip(SIGMA_FIELDS, COV_DIAGONAL, strict=True):
@@ -525,7 +594,7 @@ def format_cell(name: str, value: Any) -> str:
     """Text of one value in a CSV cell (empty for None)."""
     if value is None:
         return ""
-    if name == "frame_epsg":
+    if name in INTEGER_FIELDS:
         return str(int(value))
     rule = CSV_NUMBER_FORMAT.get(name)
     if rule is None:
@@ -536,24 +605,40 @@ def format_cell(name: str, value: Any) -> str:
     return format_repr(float(value))
 
 
-def marks_for_export(*, frame_epsg: int | None = None):
-    """Marks with the published position each export row carries, ordered by code.
+#: Position states that were published at some time (a withdrawn position was published first).
+EVER_PUBLISHED_STATES = ("published", "superseded", "withdrawn")
 
-    Returns a list of ``(mark, position_or_None)``. With ``frame_epsg`` the position is the published
-    one in that frame; without it, the mark's most recently published position (any frame). Two
-    queries, whatever the number of marks.
+
+def marks_for_export(*, frame_epsg: int | None = None):
+    """Export rows: every mark with each of its published positions, ordered by code then frame.
+
+    Returns a list of ``(mark, position_or_None, position_revision_or_None)``: one row per (mark,
+    published position) — a mark has at most one published position per frame — and one row
+    without a position for a mark that has none. With ``frame_epsg`` only positions in that frame
+    are taken (a mark without one there gets a row without a position). Three queries, whatever the
+    number of marks.
     """
-    from django.db.models import F
+    from django.db.models import Count
 
     from registry.models import Mark, Position, PositionState
 
     marks = list(Mark.objects.order_by("code"))
     published = Position.objects.filter(state=PositionState.PUBLISHED)
+    counted = Position.objects.filter(state__in=EVER_PUBLISHED_STATES)
     if frame_epsg is not None:
         published = published.filter(frame_epsg=frame_epsg)
-    chosen: dict[int, Any] = {}
-    # Latest decision last, so it wins; ties broken by id for determinism.
-    order = ("mark_id", F("decided_at").asc(nulls_first=True), "id")
-    for position in published.order_by(*order):
-        chosen[position.mark_id] = position
-    return [(mark, chosen.get(mark.pk)) for mark in marks]
+        counted = counted.filter(frame_epsg=frame_epsg)
+    by_mark: dict[int, list[Any]] = {}
+    for position in published.order_by("mark_id", "frame_epsg", "id"):
+        by_mark.setdefault(position.mark_id, []).append(position)
+    revisions = {
+        (row["mark_id"], row["frame_epsg"]): row["n"]
+        for row in counted.values("mark_id", "frame_epsg").annotate(n=Count("id")).order_by()
+    }
+    rows = []
+    for mark in marks:
+        positions = by_mark.get(mark.pk) or [None]
+        for position in positions:
+            revision = None if position is None else revisions[(mark.pk, position.frame_epsg)]
+            rows.append((mark, position, revision))
+    return rows

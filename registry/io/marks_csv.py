@@ -1,6 +1,7 @@
 """Marks as CSV (RFC 4180: comma-separated, double-quote quoting, UTF-8, a header row).
 
-One row per mark: the mark's description fields and, optionally, one published position. The columns
+One row per (mark, published position), or one row without a position for a mark that has none: the
+mark's description fields and version and, optionally, one published position with its revision. The columns
 are ``registry.io.common.CSV_COLUMNS`` (documented in README.md, section import-export). On import only
 ``code`` is required; any other column may be left out (an absent column keeps the model default on
 create and the stored value with ``--update``). Unknown or repeated column names are refused, so that a

@@ -1,9 +1,11 @@
 """Marks as GeoJSON (RFC 7946: a FeatureCollection of Point features).
 
-One feature per mark. ``properties`` hold the mark's description fields and the position's frame,
-epoch, uncertainty, velocity and source (the names of ``registry.io.common``; README.md, section
-import-export). The geometry is the published position: ``[lon, lat, h]`` in degrees and metres, or
-``[lon, lat]`` with the ellipsoidal height in the ``h_m`` property; ``null`` for a mark without one.
+One feature per (mark, published position): a mark with positions in several frames takes several
+features (its fields repeated), a mark without one takes one feature with a ``null`` geometry.
+``properties`` hold the mark's description fields and ``version``, and the position's frame, epoch,
+uncertainty, velocity, source and ``position_revision`` (the names of ``registry.io.common``;
+README.md, section import-export). The geometry is the published position: ``[lon, lat, h]`` in
+degrees and metres, or ``[lon, lat]`` with the ellipsoidal height in the ``h_m`` property.
 
 Coordinates are in the position's own frame (``frame_epsg``), not necessarily WGS 84 as RFC 7946 §4
 assumes: a GIS that ignores ``frame_epsg`` will draw the marks within a metre or two of their place,
@@ -20,6 +22,7 @@ from typing import Any
 from registry.io.common import (
     MARK_FIELDS,
     POSITION_PROPERTY_FIELDS,
+    VERSION_FIELD,
     ParseResult,
     RowError,
     validate_row,
@@ -27,7 +30,7 @@ from registry.io.common import (
 
 MEDIA_TYPE = "application/geo+json"
 #: Properties written on export, in order.
-PROPERTY_NAMES: tuple[str, ...] = MARK_FIELDS + POSITION_PROPERTY_FIELDS
+PROPERTY_NAMES: tuple[str, ...] = MARK_FIELDS + (VERSION_FIELD,) + POSITION_PROPERTY_FIELDS
 #: Properties accepted on import: those, plus ``h_m`` for features with 2D coordinates.
 ACCEPTED_PROPERTIES: frozenset[str] = frozenset(PROPERTY_NAMES) | {"h_m"}
 

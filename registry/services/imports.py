@@ -1,25 +1,40 @@
-"""Importing marks from a CSV or GeoJSON file: all or nothing.
+"""Importing marks from a CSV or GeoJSON file: all or nothing, and nothing silently overwritten.
 
 ``mark_import`` parses and validates the whole file first (every bad row is reported with its CSV line
-or GeoJSON feature index and the reason). If anything is wrong, nothing is written. Otherwise every row
-goes through the same services as a manual edit (``mark_create`` / ``mark_update`` /
+or GeoJSON feature index and the reason). If anything is wrong, nothing is written. Otherwise every
+mark goes through the same services as a manual edit (``mark_create`` / ``mark_update`` /
 ``mark_set_status``, ``position_propose`` + ``position_publish``), inside one transaction with a
-savepoint per row, so that a rule enforced only by a service (or by the database) is also reported for
+savepoint per mark, so that a rule enforced only by a service (or by the database) is also reported for
 every row it concerns; any such error rolls the whole import back.
 
-A code that already exists is refused unless ``update=True``; then the row's fields (only the columns
-or properties the file carries) are applied with ``mark_update`` against the mark's current version,
-its status with ``mark_set_status``, and a position that differs from the published one in the same
-frame is proposed and published (the earlier one is superseded, never overwritten). An identical
-position is left alone.
+A mark may take several rows, one per frame of its published positions (that is how the export
+writes it): the first row creates or updates the mark, every row publishes its position.
+
+A code that already exists is refused unless ``update=True``. Then each row is checked against the
+registry first (optimistic concurrency, as for an edit on the page): the row's ``version`` must be the
+mark's stored version, and a row with a position must carry the ``position_revision`` of that frame
+stored now (the count of positions ever published there; 0 for a new frame). A row exported before
+someone changed the mark, or published or withdrew a position in that frame, is refused with code
+``stale_row`` ("file version N, registry version M, last changed by X at T") and the whole import
+changes nothing. A row of an existing mark without those columns is refused (``version_required``)
+unless ``overwrite=True``: then it is applied against whatever is stored now, and the import's audit
+event lists those marks under ``unversioned``. ``overwrite`` never lets a *stale* version through:
+to apply an old file on purpose, remove its version columns and import with ``overwrite``.
+
+An accepted row's fields (only the columns or properties the file carries) are applied with
+``mark_update``, its status with ``mark_set_status``, and a position that differs from the published
+one in the same frame is proposed and published (the earlier one is superseded, never overwritten).
+An identical position is left alone. On creation the file's version columns are not used (a new mark
+starts at version 1).
 
 Audit: the services write one event per change (``mark_create``, ``position_propose``,
-``position_publish``, ...), and the import adds one ``marks_import`` summary event naming the file and
-its SHA-256.
+``position_publish``, ...), and the import adds one ``marks_import`` summary event naming the file, its
+SHA-256, whether ``overwrite`` was used and which marks were applied without a version check.
 """
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 from dataclasses import asdict, dataclass, field
 from pathlib import PurePath
@@ -27,9 +42,19 @@ from typing import Any
 
 from django.core.exceptions import ValidationError
 from django.db import DatabaseError, transaction
+from django.db.models import Count
+from django.utils import timezone
 
-from registry.errors import InvalidInput, RegistryError
-from registry.io.common import POSITION_MODEL_FIELDS, MarkRecord, RowError, find_duplicate_codes
+from registry.errors import Conflict, InvalidInput, RegistryError
+from registry.io.common import (
+    EVER_PUBLISHED_STATES,
+    POSITION_MODEL_FIELDS,
+    REVISION_FIELD,
+    VERSION_FIELD,
+    MarkRecord,
+    RowError,
+    check_rows_per_mark,
+)
 from registry.io.marks_csv import parse_marks_csv
 from registry.io.marks_geojson import parse_marks_geojson
 from registry.models import AuditEvent, Mark, MarkStatus, Position, PositionState
@@ -69,6 +94,9 @@ class ImportSummary:
     unchanged: list[str] = field(default_factory=list)
     positions_published: int = 0
     dry_run: bool = False
+    overwrite: bool = False
+    #: Codes of existing marks whose rows carried no version and were applied with ``overwrite``.
+    unversioned: list[str] = field(default_factory=list)
 
     def as_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -133,43 +161,150 @@ def _same_position(stored: Position | None, wanted: dict[str, Any]) -> bool:
     return all(getattr(stored, name) == wanted.get(name) for name in POSITION_MODEL_FIELDS)
 
 
-def _apply_new(actor, record: MarkRecord, note: str, summary: ImportSummary) -> None:
-    data = dict(record.mark)
-    status = data.get("status", MarkStatus.ACTIVE)
-    # A destroyed mark takes no new positions: create it active, publish, then record the status.
-    late_status = status == MarkStatus.DESTROYED and record.position is not None
-    if late_status:
-        data["status"] = MarkStatus.ACTIVE
-    mark_create(actor=actor, data=data)
-    if record.position is not None:
-        _publish(actor, record.code, record.position, summary)
-    if late_status:
-        version = Mark.objects.values_list("version", flat=True).get(code=record.code)
-        mark_set_status(actor=actor, code=record.code, status=status, expected_version=version, note=note)
+def _when(moment) -> str:
+    return timezone.localtime(moment, dt.UTC).strftime("%Y-%m-%d %H:%M UTC") if moment else "an unknown time"
 
 
-def _apply_update(actor, record: MarkRecord, mark: Mark, note: str, summary: ImportSummary) -> bool:
-    """Apply a row to an existing mark; True when anything changed."""
+def _last_mark_change(mark: Mark) -> str:
+    """ "by X at T" for the latest versioned change of ``mark``, from the audit trail."""
+    event = (
+        AuditEvent.objects.filter(mark=mark, action__in=("mark_create", "mark_update", "mark_set_status"))
+        .select_related("actor")
+        .order_by("-at", "-id")
+        .first()
+    )
+    if event is None:
+        return f"by an unknown user at {_when(mark.updated_at)}"
+    who = event.actor.get_username() if event.actor else "an unknown user"
+    return f"by {who} at {_when(event.at)}"
+
+
+def _last_position_change(mark: Mark, frame_epsg: int) -> str:
+    latest = (
+        Position.objects.filter(mark=mark, frame_epsg=frame_epsg, state__in=EVER_PUBLISHED_STATES)
+        .select_related("decided_by")
+        .order_by("-decided_at", "-id")
+        .first()
+    )
+    if latest is None:
+        return "nothing published there now"
+    verb = "withdrawn" if latest.state == PositionState.WITHDRAWN else "published"
+    who = latest.decided_by.get_username() if latest.decided_by else "an unknown user"
+    return f"last {verb} by {who} at {_when(latest.decided_at)}"
+
+
+def _concurrency_errors(records: list[MarkRecord], existing: dict[str, Mark], overwrite: bool) -> list[RowError]:
+    """Stale or unversioned rows of existing marks (the ``--update`` check, before anything is written)."""
+    marks = [existing[r.code] for r in records if r.code in existing]
+    revisions = {
+        (row["mark_id"], row["frame_epsg"]): row["n"]
+        for row in Position.objects.filter(mark__in=marks, state__in=EVER_PUBLISHED_STATES)
+        .values("mark_id", "frame_epsg")
+        .annotate(n=Count("id"))
+        .order_by()
+    }
+    published = set(
+        Position.objects.filter(mark__in=marks, state=PositionState.PUBLISHED).values_list("mark_id", "frame_epsg")
+    )
+    errors: list[RowError] = []
+
+    def err(record, code, message, field_name):
+        errors.append(RowError(record.where, record.index, code, message, field_name, record.code))
+
+    for record in records:
+        mark = existing.get(record.code)
+        if mark is None:
+            continue
+        missing = [VERSION_FIELD] if record.version is None else []
+        if record.position is not None and record.position_revision is None:
+            missing.append(REVISION_FIELD)
+        if missing and not overwrite:
+            err(
+                record,
+                "version_required",
+                f"mark {record.code} is in the registry and this row has no {' or '.join(missing)}; export the "
+                "registry again and edit that file, or import with overwrite to apply the row whatever was "
+                "changed since (the audit trail records it)",
+                missing[0],
+            )
+        if record.version is not None and record.version != mark.version:
+            err(
+                record,
+                "stale_row",
+                f"mark {record.code} was changed since this file was made: file version {record.version}, "
+                f"registry version {mark.version}, last changed {_last_mark_change(mark)}",
+                VERSION_FIELD,
+            )
+        if record.position is not None and record.position_revision is not None:
+            frame = record.frame_epsg
+            stored = revisions.get((mark.pk, frame), 0)
+            withdrawn = stored and (mark.pk, frame) not in published
+            if record.position_revision != stored or (withdrawn and record.position_revision > 0):
+                now = f"registry revision {stored}" + (" (withdrawn, none published)" if withdrawn else "")
+                err(
+                    record,
+                    "stale_row",
+                    f"the position of {record.code} in EPSG:{frame} changed since this file was made: file revision "
+                    f"{record.position_revision}, {now}, {_last_position_change(mark, frame)}",
+                    REVISION_FIELD,
+                )
+    return errors
+
+
+def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, summary: ImportSummary, at: list):
+    """Apply the rows of one mark code; ``at[0]`` is the row being applied (for error reports).
+
+    Returns True when anything changed.
+    """
+    first = at[0] = group[0]
+    data = dict(first.mark)
+    status = data.get("status")
+    any_position = any(r.position is not None for r in group)
+    # A destroyed mark takes no new positions: publish first, record the destruction last.
+    late_destroyed = status == MarkStatus.DESTROYED
     changed = False
-    changes = {k: v for k, v in record.mark.items() if k not in ("code", "status") and getattr(mark, k) != v}
-    if changes:
-        mark = mark_update(actor=actor, code=mark.code, expected_version=mark.version, changes=changes)
+    if mark is None:
+        if late_destroyed and any_position:
+            data["status"] = MarkStatus.ACTIVE
+        else:
+            late_destroyed = False
+        mark = mark_create(actor=actor, data=data)
         changed = True
-    status = record.mark.get("status")
-    if status is not None and status != mark.status and status != MarkStatus.DESTROYED:
-        mark = mark_set_status(actor=actor, code=mark.code, status=status, expected_version=mark.version, note=note)
-        changed = True
-    if record.position is not None:
+    else:
+        # The check before the transaction read the versions; lock the mark and read them again.
+        mark = Mark.objects.select_for_update().get(pk=mark.pk)
+        if first.version is not None and first.version != mark.version:
+            raise Conflict(
+                f"mark {mark.code} was changed while the file was being imported: file version {first.version}, "
+                f"registry version {mark.version}, last changed {_last_mark_change(mark)}",
+                code="stale_row",
+            )
+        expected = first.version if first.version is not None else mark.version
+        changes = {k: v for k, v in data.items() if k not in ("code", "status") and getattr(mark, k) != v}
+        if changes:
+            mark = mark_update(actor=actor, code=mark.code, expected_version=expected, changes=changes)
+            expected, changed = mark.version, True
+        if status is not None and status != mark.status and not late_destroyed:
+            mark = mark_set_status(actor=actor, code=mark.code, status=status, expected_version=expected, note=note)
+            changed = True
+    for record in group:
+        at[0] = record
+        if record.position is None:
+            continue
         stored = Position.objects.filter(
             mark=mark, frame_epsg=record.position["frame_epsg"], state=PositionState.PUBLISHED
         ).first()
         if not _same_position(stored, record.position):
             _publish(actor, mark.code, record.position, summary)
             changed = True
-    if status == MarkStatus.DESTROYED and mark.status != MarkStatus.DESTROYED:
+    at[0] = first
+    if late_destroyed:
         mark.refresh_from_db()
-        mark_set_status(actor=actor, code=mark.code, status=status, expected_version=mark.version, note=note)
-        changed = True
+        if mark.status != MarkStatus.DESTROYED:
+            mark_set_status(
+                actor=actor, code=mark.code, status=MarkStatus.DESTROYED, expected_version=mark.version, note=note
+            )
+            changed = True
     return changed
 
 
@@ -180,14 +315,16 @@ def mark_import(
     filename: str = "",
     fmt: str | None = None,
     update: bool = False,
+    overwrite: bool = False,
     dry_run: bool = False,
 ) -> ImportSummary:
-    """Import marks (and one published position each, optionally) from CSV or GeoJSON content.
+    """Import marks and their published positions from CSV or GeoJSON content.
 
     Parameters
     ----------
     actor
-        The user importing; must hold the manager role (ability MANAGE).
+        The user importing; must hold the manager role (ability MANAGE): an import publishes
+        positions, which only a manager may do.
     content
         The file's bytes (UTF-8, with or without a byte-order mark) or text.
     filename
@@ -195,7 +332,11 @@ def mark_import(
     fmt
         ``"csv"`` or ``"geojson"``, overriding the extension.
     update
-        Apply rows whose code exists (see the module docstring); otherwise such rows are errors.
+        Apply rows whose code exists, if their ``version``/``position_revision`` match the registry
+        (see the module docstring); otherwise such rows are errors.
+    overwrite
+        With ``update`` only: also apply rows of existing marks that carry no version, against what is
+        stored now (recorded in the import's audit event).
     dry_run
         Validate and apply inside a transaction, then roll it back: the summary says what would happen.
 
@@ -208,11 +349,16 @@ def mark_import(
     registry.errors.PermissionDeniedError
         The actor is not a manager.
     django.core.exceptions.ValidationError
-        ``unknown_format``.
+        ``unknown_format``, ``overwrite_needs_update``.
     ImportRejected
-        Any bad row; ``errors`` lists them all. Nothing was changed.
+        Any bad row (including ``stale_row`` and ``version_required``); ``errors`` lists them all.
+        Nothing was changed.
     """
     require_ability(actor, Ability.MANAGE)
+    if overwrite and not update:
+        raise ValidationError(
+            "overwrite applies to rows of existing marks, so it needs update.", code="overwrite_needs_update"
+        )
     fmt = detect_format(filename, fmt)
     raw = content.encode("utf-8") if isinstance(content, str) else bytes(content)
     sha256 = hashlib.sha256(raw).hexdigest()
@@ -224,9 +370,9 @@ def mark_import(
         ) from None
 
     parsed = parse_marks_csv(text) if fmt == "csv" else parse_marks_geojson(text)
-    errors = parsed.errors + find_duplicate_codes(parsed.records)
+    errors = parsed.errors + check_rows_per_mark(parsed.records)
     records = parsed.records
-    existing = {m.code: m for m in Mark.objects.filter(code__in=[r.code for r in records])}
+    existing = {m.code: m for m in Mark.objects.filter(code__in={r.code for r in records})}
     if not update:
         errors += [
             RowError(
@@ -240,40 +386,49 @@ def mark_import(
             for r in records
             if r.code in existing
         ]
+    else:
+        errors += _concurrency_errors(records, existing, overwrite)
     if not records and not errors:
         errors.append(RowError("file", 0, "no_rows", "the file holds no marks"))
     if errors:
         raise ImportRejected(errors, filename=filename)
 
-    summary = ImportSummary(filename=filename, format=fmt, sha256=sha256, rows=len(records), dry_run=dry_run)
+    groups: dict[str, list[MarkRecord]] = {}
+    for record in records:
+        groups.setdefault(record.code, []).append(record)
+    summary = ImportSummary(
+        filename=filename, format=fmt, sha256=sha256, rows=len(records), dry_run=dry_run, overwrite=overwrite
+    )
+    summary.unversioned = [
+        code for code, group in groups.items() if code in existing and any(r.version is None for r in group)
+    ]
     note = f"import of {filename or 'a file'} (sha256 {sha256[:12]})"
+    if summary.unversioned:
+        note += f"; {len(summary.unversioned)} mark(s) applied without a version check (overwrite)"
     try:
         with transaction.atomic():
-            for record in records:
+            for code, group in groups.items():
+                at = [group[0]]
                 try:
                     with transaction.atomic():
-                        if record.code in existing:
-                            changed = _apply_update(actor, record, existing[record.code], note, summary)
-                            (summary.updated if changed else summary.unchanged).append(record.code)
-                        else:
-                            _apply_new(actor, record, note, summary)
-                            summary.created.append(record.code)
+                        changed = _apply_mark(actor, group, existing.get(code), note, summary, at)
+                    if code not in existing:
+                        summary.created.append(code)
+                    else:
+                        (summary.updated if changed else summary.unchanged).append(code)
                 except (ValidationError, RegistryError, DatabaseError) as exc:
-                    errors.extend(_service_errors(exc, record))
+                    errors.extend(_service_errors(exc, at[0]))
             if errors:
                 raise ImportRejected(errors, filename=filename)
+            counts = ("created", "updated", "unchanged")
             AuditEvent.objects.create(
                 actor=actor if getattr(actor, "is_authenticated", False) else None,
                 action="marks_import",
                 object_type="import",
                 object_id=sha256[:40],
                 object_repr=(filename or "(unnamed file)")[:200],
-                after={k: v for k, v in summary.as_dict().items() if k not in ("created", "updated", "unchanged")}
-                | {
-                    "created": len(summary.created),
-                    "updated": len(summary.updated),
-                    "unchanged": len(summary.unchanged),
-                },
+                after={k: v for k, v in summary.as_dict().items() if k not in counts}
+                | {k: len(getattr(summary, k)) for k in counts},
                 note=note + (" — dry run, rolled back" if dry_run else ""),
             )
             if dry_run:

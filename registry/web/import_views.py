@@ -1,4 +1,4 @@
-"""The import page (managers): upload a CSV or GeoJSON file of marks; all or nothing.
+"""The import page (managers: an import publishes positions): upload a CSV or GeoJSON file; all or nothing.
 
 The page calls the same service as ``manage.py import_marks`` (:func:`registry.services.imports.mark_import`):
 on any bad row it lists every one (CSV line or GeoJSON feature index, column, reason) and nothing is
@@ -30,6 +30,13 @@ class ImportForm(forms.Form):
     update = forms.BooleanField(
         label="Apply rows whose code already exists (otherwise such rows are refused)", required=False
     )
+    overwrite = forms.BooleanField(
+        label=(
+            "Also apply rows of existing marks that carry no version, whatever was changed since "
+            "(the audit trail records it; needs the option above)"
+        ),
+        required=False,
+    )
     dry_run = forms.BooleanField(label="Check only: report what would happen, change nothing", required=False)
 
     def clean_file(self):
@@ -39,6 +46,17 @@ class ImportForm(forms.Form):
                 "The file is larger than %(limit)d MB.", code="too_large", params={"limit": MAX_UPLOAD_BYTES // 2**20}
             )
         return upload
+
+    def clean(self):
+        data = super().clean()
+        if data.get("overwrite") and not data.get("update"):
+            self.add_error(
+                "overwrite",
+                ValidationError(
+                    "This applies to existing marks: tick the option above too.", code="overwrite_needs_update"
+                ),
+            )
+        return data
 
 
 @ability_required(Ability.MANAGE)
@@ -56,6 +74,7 @@ def import_page(request: HttpRequest) -> HttpResponse:
                     filename=upload.name,
                     fmt=form.cleaned_data["format"] or None,
                     update=form.cleaned_data["update"],
+                    overwrite=form.cleaned_data["overwrite"],
                     dry_run=form.cleaned_data["dry_run"],
                 )
             except ImportRejected as exc:

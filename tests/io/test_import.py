@@ -79,12 +79,14 @@ def test_line_numbers_count_physical_lines_of_multiline_quoted_fields(manager):
     assert codes(info.value) == [("line 4", "sigmas_incomplete")]
 
 
-def test_duplicate_codes_inside_one_file(manager):
-    text = csv_text(GOOD[0], GOOD[1], GOOD[0].replace("Willow gate", "Willow gate again"))
+def test_duplicate_codes_and_frames_inside_one_file(manager):
+    """A mark may take one row per frame; the same frame twice, or two rows without a position, are errors."""
+    text = csv_text(GOOD[0], GOOD[1], GOOD[0].replace("Willow gate", "Willow gate again"), GOOD[2], GOOD[2])
     with pytest.raises(ImportRejected) as info:
         mark_import(actor=manager, content=text, filename="dup.csv")
-    assert codes(info.value) == [("line 4", "duplicate_code")]
-    assert "line 2" in info.value.errors[0].message
+    assert codes(info.value) == [("line 4", "duplicate_frame"), ("line 6", "duplicate_code")]
+    assert "EPSG:7912 at line 2" in info.value.errors[0].message
+    assert "line 5" in info.value.errors[1].message
     assert nothing_written()
 
 
@@ -163,7 +165,10 @@ def test_existing_code_refused_by_default_and_updated_with_update(manager):
     assert AuditEvent.objects.count() == before
 
     moved = GOOD[0].replace("Willow gate", "Willow gate (reset)").replace("1502.3456", "1502.3912")
-    summary = mark_import(actor=manager, content=csv_text(moved, GOOD[1]), filename="b.csv", update=True)
+    # A hand-made file has no version column: under update it needs overwrite (tests/io/test_versions_and_frames.py).
+    summary = mark_import(
+        actor=manager, content=csv_text(moved, GOOD[1]), filename="b.csv", update=True, overwrite=True
+    )
     assert summary.updated == ["TST-001"] and summary.unchanged == ["TST-002"]
     assert summary.positions_published == 1
     mark = Mark.objects.get(code="TST-001")
@@ -191,7 +196,9 @@ def test_update_reports_service_rules_for_every_row_and_rolls_back(manager):
         GOOD[1].replace("1498.1234", "1498.2") + ",destroyed",
     ]
     with pytest.raises(ImportRejected) as info:
-        mark_import(actor=manager, content=csv_text(*rows, header=header), filename="b.csv", update=True)
+        mark_import(
+            actor=manager, content=csv_text(*rows, header=header), filename="b.csv", update=True, overwrite=True
+        )
     assert codes(info.value) == [("line 3", "mark_destroyed"), ("line 4", "mark_destroyed")]
     assert Mark.objects.get(code="TST-003").name == "No position yet"  # the good row was rolled back
     assert (Position.objects.count(), AuditEvent.objects.count()) == (n_positions, n_events)
@@ -238,7 +245,7 @@ def test_geojson_import_and_feature_index_errors(manager):
         feature("GJ-014", [-110.6, 45.2, 1500.0], colour="red", **POS),  # [4] unknown property
         feature("GJ-015", [-110.6, 45.2, 1500.0], **{**POS, "frame_epsg": None}),  # [5] missing frame
         feature("GJ-016", [-110.6, 45.2], **POS),  # [6] no height
-        feature("GJ-010", [-110.6, 45.2, 1500.0], **POS),  # [7] duplicate of [0]
+        feature("GJ-010", [-110.6, 45.2, 1500.0], **POS),  # [7] same mark and frame as [0]
         feature("GJ-017", ["-110.6", 45.2, 1500.0], **POS),  # [8] text coordinate
     ]
     with pytest.raises(ImportRejected) as info:
@@ -252,7 +259,7 @@ def test_geojson_import_and_feature_index_errors(manager):
         ("features[4]", "unknown_property"),
         ("features[5]", "frame_required"),
         ("features[6]", "coordinate_required"),
-        ("features[7]", "duplicate_code"),
+        ("features[7]", "duplicate_frame"),
         ("features[8]", "not_a_number"),
     ]
     assert Mark.objects.count() == 3
@@ -276,7 +283,7 @@ def test_command_reports_every_bad_row_and_exits_non_zero(manager, technician, t
         call_command("import_marks", str(path), "--as", manager.username)
     err = capsys.readouterr().err
     assert "marks.csv: line 3 [TST-004]: lat_deg: latitude 95.0 is outside -90 … 90 (out_of_range)" in err
-    assert "marks.csv: line 4 [TST-001]: code: code TST-001 already appears at line 2 (duplicate_code)" in err
+    assert "marks.csv: line 4 [TST-001]: frame_epsg: mark TST-001 already has a position in EPSG:7912 at line 2" in err
     assert nothing_written()
 
     with pytest.raises(CommandError, match="manager role"):
@@ -326,7 +333,7 @@ def test_page_lists_every_bad_row_and_changes_nothing(client, manager):
     body = response.content.decode()
     assert "Refused — nothing was changed" in body
     assert "line 3" in body and "latitude 95.0 is outside" in body
-    assert "line 5" in body and "duplicate_code" in body
+    assert "line 5" in body and "duplicate_frame" in body
     assert nothing_written()
 
 
@@ -364,7 +371,7 @@ def test_sample_files_behave_as_documented(manager):
         ("line 3", "lat_deg", "not_a_number"),
         ("line 4", "frame_epsg", "frame_required"),
         ("line 5", "frame_epsg", "invalid_frame"),
-        ("line 6", "code", "duplicate_code"),
+        ("line 6", "frame_epsg", "duplicate_frame"),
         ("line 7", "monument_type", "invalid_choice"),
         ("line 7", "lon_deg", "out_of_range"),
         ("line 7", "sigma_e_mm", "sigmas_incomplete"),

@@ -12,8 +12,12 @@ from registry.io.export import EXPORT_FORMATS, export_marks_text
 
 class Command(BaseCommand):
     help = (
-        "Write every mark with one published position (in --frame, or its most recently published one) "
-        "as CSV or GeoJSON, in the format import_marks reads."
+        "Write every mark and all its currently published positions as CSV or GeoJSON, in the format "
+        "import_marks reads: one row (feature) per (mark, published position), ordered by code and frame; "
+        "a mark without a published position takes one row without a position. Each row carries the mark's "
+        "version and the position's position_revision, which import_marks --update checks. --frame keeps "
+        "only positions in that frame. Not carried: history (superseded positions, occupations, visits, "
+        "attachments, the audit trail); that is in the database backup (deploy/README.md)."
     )
 
     def add_arguments(self, parser):
