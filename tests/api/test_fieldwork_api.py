@@ -2,7 +2,8 @@
 
 Check values: SHA-256 of b"abc" = ba7816bf...f20015ad (FIPS 180-2, Appendix B.1 example);
 slant reduction s = 2.000 m, r = 0.0953 m, ARP 0.0483 m below (Δh = −0.0483) → 1.94943 m
-(references.md §9 [RECOMP]).
+(antenna radius/offset as tabulated in a GNSS receiver manual, unnamed, secondary transcription;
+result recomputed by hand, √(2.000² − 0.0953²) − 0.0483).
 """
 
 from __future__ import annotations
@@ -95,7 +96,7 @@ def test_occupation_slant_reduced(mark, api_client_for, technician):
     body = response.json()
     assert body["antenna_height_arp_m"] == pytest.approx(1.949, abs=0.0005)  # rounded to mm in the API
     occ = Occupation.objects.get(pk=body["id"])
-    assert occ.antenna_height_arp_m == pytest.approx(1.94943, abs=5e-6)  # references.md §9
+    assert occ.antenna_height_arp_m == pytest.approx(1.94943, abs=5e-6)  # recomputed by hand
     assert AuditEvent.objects.filter(action="occupation_record", object_id=str(occ.pk)).exists()
 
 

@@ -289,7 +289,8 @@ EX_A_DH = [0.055, -0.006, -0.017, 0.042, -0.011, 0.013, 0.048]
 
 def test_nssda_worked_example_a():
     r = acc.nssda_evaluate(EX_A_DE, EX_A_DN, EX_A_DH)
-    # published sample standard deviations s_x = 0.075, s_y = 0.073, s_z = 0.030 m (PERS, [CONF-P])
+    # published sample standard deviations s_x = 0.075, s_y = 0.073, s_z = 0.030 m (PERS May 2014 p. 397, confirmed
+    # from the published page)
     assert r.x.std_m == pytest.approx(0.075, abs=5e-4)
     assert r.y.std_m == pytest.approx(0.073, abs=5e-4)
     assert r.z.std_m == pytest.approx(0.030, abs=5e-4)

@@ -1,4 +1,5 @@
-"""Antenna height: slant to vertical ARP height (references.md §9 in /work/shared/brief)."""
+"""Antenna height: slant to vertical ARP height, h_ARP = √(s² − r²) + Δh (formula: secondary transcription of
+a GNSS data-preparation tool's documented slant option, dh + √(s² − (d/2)²))."""
 
 from __future__ import annotations
 
@@ -14,7 +15,7 @@ from registry.geodesy.antenna import antenna_height_arp_m, slant_to_vertical_arp
 
 
 def test_calculator_page_example():
-    # references.md §9 [CONF-S], calculator page: s = 1.532 m, r = 0.0921 m → 1.52923 m to the slant-measure
+    # Secondary transcription of an antenna-height calculator page (unnamed): s = 1.532 m, r = 0.0921 m → 1.52923 m to the slant-measure
     # point ("≈ 1.529 m" on the page); with the 0.0516 m offset and the ARP below the rim → 1.47763 m.
     assert slant_to_vertical_arp_m(1.532, 0.0921) == pytest.approx(1.52923, abs=5e-6)
     assert slant_to_vertical_arp_m(1.532, 0.0921, -0.0516) == pytest.approx(1.47763, abs=5e-6)
@@ -23,7 +24,9 @@ def test_calculator_page_example():
 
 
 def test_recomputed_example():
-    # references.md §9 [RECOMP]: s = 2.000 m, r = 0.0953 m, offset 0.0483 m (ARP below) → 1.94943 m.
+    # s = 2.000 m, r = 0.0953 m, offset 0.0483 m (ARP below) → 1.94943 m: radius and offset as tabulated
+    # in a GNSS receiver manual (unnamed; secondary transcription); result recomputed by hand,
+    # √(2.000² − 0.0953²) − 0.0483.
     assert antenna_height_arp_m(2.000, kind="slant", radius_m=0.0953, arp_offset_m=-0.0483) == pytest.approx(
         1.94943, abs=5e-6
     )

@@ -35,7 +35,8 @@ def ang_diff_arcsec(a_deg, b_deg):
     return np.abs(d) * 3600.0
 
 
-# Vincenty (1975), Survey Review XXIII(176), Table II — five transcriptions agree [CONF-S].
+# Vincenty (1975), Survey Review XXIII(176), Table II — secondary transcription (five
+# independent transcriptions agree on every digit).
 # (line, ellipsoid, φ1, φ2, L, s (m), α1, α2 forward at P2)
 VINCENTY = {
     "a": (
