@@ -399,8 +399,11 @@ class _Builder:
                     p=[0.22, 0.22, 0.2, 0.26, 0.1],
                 )
             )
-            street, cross = STREETS[n % len(STREETS)], STREETS[(n * 5 + 3) % len(STREETS)]
-            name = f"{street} & {cross}" if street != cross else f"{street} {n}"
+            # Each town mark at its own corner: (n mod k, 1 + (n // k) mod (k - 1)) is a distinct (street,
+            # offset) pair for n < k·(k − 1) = 182, and the offset is never 0, so cross ≠ street.
+            k = len(STREETS)
+            street, cross = STREETS[n % k], STREETS[(n + 1 + (n // k) % (k - 1)) % k]
+            name = f"{street} & {cross}"
             custodian = PUBLIC_WORKS if n % 3 == 0 else OFFICE
             sky = str(rng.choice(["clear", "partial", "obstructed"], p=[0.45, 0.38, 0.17]))
             established_yr = float(rng.uniform(1998, 2011.4)) if n <= 48 else float(rng.uniform(2019.1, 2021.2))
