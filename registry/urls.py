@@ -1,10 +1,15 @@
-"""Root URL configuration: pages under /, the JSON API under /api/."""
+"""Root URL configuration: pages under /, the JSON API under /api/.
 
+The django-admin site (read-only, registry/admin.py) is mounted in development only: in production
+users and roles are managed with ``manage.py create_user`` / ``set_roles`` (audited services).
+"""
+
+from django.conf import settings
 from django.contrib import admin
 from django.urls import include, path
 
 urlpatterns = [
     path("api/", include("registry.api.urls")),
-    path("django-admin/", admin.site.urls),
+    *([] if getattr(settings, "PRODUCTION", False) else [path("django-admin/", admin.site.urls)]),
     path("", include("registry.web.urls")),
 ]
