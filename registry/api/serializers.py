@@ -19,7 +19,17 @@ from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
 from registry.geodesy.accuracy import fgdc_horizontal_95_m, vertical_95_m
-from registry.models import Mark, MarkStatus, MonumentType, Position, PositionState, SkyView, Stability
+from registry.models import (
+    POSITION_FROZEN_FIELDS,
+    Mark,
+    MarkStatus,
+    MonumentType,
+    Position,
+    PositionState,
+    SkyView,
+    Stability,
+)
+from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
 LATLON_DECIMALS = 9
 METRE_DECIMALS = 3
@@ -106,18 +116,9 @@ class PositionSerializer(serializers.ModelSerializer):
             "sigma_u_mm",
             "network_accuracy_h95_mm",
             "network_accuracy_u95_mm",
-            "cov_ee_m2",
-            "cov_en_m2",
-            "cov_eu_m2",
-            "cov_nn_m2",
-            "cov_nu_m2",
-            "cov_uu_m2",
-            "vel_e_m_yr",
-            "vel_n_m_yr",
-            "vel_u_m_yr",
-            "vel_sigma_e_m_yr",
-            "vel_sigma_n_m_yr",
-            "vel_sigma_u_m_yr",
+            # covariance and velocity fields in the model's order (models.marks.POSITION_FROZEN_FIELDS)
+            *(f for f in POSITION_FROZEN_FIELDS if f.startswith("cov_")),
+            *(f for f in POSITION_FROZEN_FIELDS if f.startswith("vel_")),
             "source",
             "note",
             "created_by",
@@ -183,14 +184,8 @@ class MarkSerializer(serializers.ModelSerializer):
             "code",
             "name",
             "status",
-            "monument_type",
-            "setting",
-            "stability",
-            "stamping",
-            "to_reach",
-            "sky_view",
-            "custodian",
-            "notes",
+            # the descriptive fields a manager edits (services.marks.EDITABLE_FIELDS), name already first
+            *(f for f in MARK_EDITABLE_FIELDS if f != "name"),
             "search_location",
             "version",
             "created_at",

@@ -10,21 +10,12 @@ from django.forms.models import fields_for_model
 
 from registry.models import Mark, MarkStatus
 from registry.selectors.marks import MATCH_CONTAINS, MATCH_PREFIX
+from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
-# What a manager edits on the mark form. The status has its own action (with a note);
-# the search location follows the published position; the version is the form's own.
-MARK_FORM_FIELDS = (
-    "code",
-    "name",
-    "monument_type",
-    "setting",
-    "stability",
-    "stamping",
-    "to_reach",
-    "sky_view",
-    "custodian",
-    "notes",
-)
+# What a manager edits on the mark form: the code (on creation) and the service's editable fields.
+# The status has its own action (with a note); the search location follows the published position;
+# the version is the form's own.
+MARK_FORM_FIELDS = ("code", *MARK_EDITABLE_FIELDS)
 
 
 class MarkSearchForm(forms.Form):
