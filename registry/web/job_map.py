@@ -21,6 +21,7 @@ tooltip), except for the chosen bases and check marks, which are always labelled
 
 from __future__ import annotations
 
+import html
 import math
 from dataclasses import dataclass, field
 from xml.sax.saxutils import escape
@@ -374,7 +375,7 @@ def build_job_map(result: ScreeningResult) -> JobMap:
     for c in reversed(drawn):  # most important drawn last, so on top
         x, y = (float(v) for v in px(*pos[id(c)]))
         role = role_of(c)
-        code = escape(c.mark.code)
+        code = html.escape(c.mark.code, quote=True)  # also used inside attributes (data-code="...")
         if role == "base":
             shape = (
                 f'<path d="M{x:.1f},{y - 10:.1f}L{x + 9:.1f},{y + 7:.1f}L{x - 9:.1f},{y + 7:.1f}Z" '
@@ -412,7 +413,7 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         role = role_of(c)
         klass = "lbl strong" if role in ("base", "check") else ("lbl muted" if role == "excluded" else "lbl")
         labels_svg.append(
-            f'<text x="{tx:.1f}" y="{ty:.1f}" text-anchor="{anchor}" class="{klass}" data-for="{escape(c.mark.code)}">'
+            f'<text x="{tx:.1f}" y="{ty:.1f}" text-anchor="{anchor}" class="{klass}" data-for="{html.escape(c.mark.code)}">'
             f"{escape(item[2])}</text>"
         )
         labelled.append(c.mark.code)

@@ -26,6 +26,7 @@ from registry.roles import Ability, has_ability
 from registry.services.access import access_job_by_code
 from registry.services.jobs import job_create, job_update
 from registry.services.screening import ScreeningResult, job_screen
+from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.job_map import build_job_map, legend_rows
 from registry.web.views import ability_required
 
@@ -422,7 +423,7 @@ def job_export_csv(request: HttpRequest, code: str) -> HttpResponse:
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=EXPORT_COLUMNS, lineterminator="\r\n")
     writer.writeheader()
-    writer.writerows(export_rows(result))
+    writer.writerows(spreadsheet_safe_rows(export_rows(result)))  # names/notes never run as formulas
     response = HttpResponse(buf.getvalue(), content_type="text/csv; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="{code}-control.csv"'
     return response
