@@ -17,12 +17,16 @@ class AuditTrailError(Exception):
 
 class AuditEvent(models.Model):
     at = models.DateTimeField(auto_now_add=True, db_index=True)
-    actor = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT, related_name="+")
+    actor = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT, related_name="+"
+    )
     action = models.CharField(max_length=60, help_text="<entity>_<action>, e.g. mark_update.")
     object_type = models.CharField(max_length=40)
     object_id = models.CharField(max_length=40)
     object_repr = models.CharField(max_length=200, blank=True)
-    mark = models.ForeignKey("registry.Mark", null=True, blank=True, on_delete=models.PROTECT, related_name="audit_events")
+    mark = models.ForeignKey(
+        "registry.Mark", null=True, blank=True, on_delete=models.PROTECT, related_name="audit_events"
+    )
     before = models.JSONField(null=True, blank=True)
     after = models.JSONField(null=True, blank=True)
     note = models.TextField(blank=True)

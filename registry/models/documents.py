@@ -30,13 +30,21 @@ class Document(models.Model):
     state = models.CharField(max_length=10, choices=DocumentState.choices, default=DocumentState.DRAFT)
     pdf = models.FileField(upload_to="documents/%Y/", max_length=400, blank=True)
     sha256 = models.CharField(max_length=64, blank=True)
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
-    checked_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    checked_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     checked_at = models.DateTimeField(null=True, blank=True)
-    signed_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    signed_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     signed_at = models.DateTimeField(null=True, blank=True)
-    supersedes = models.OneToOneField("self", null=True, blank=True, on_delete=models.PROTECT, related_name="superseded_by")
+    supersedes = models.OneToOneField(
+        "self", null=True, blank=True, on_delete=models.PROTECT, related_name="superseded_by"
+    )
 
     class Meta:
         ordering = ["-created_at"]
@@ -47,7 +55,8 @@ class Document(models.Model):
                 name="document_subject_matches_kind",
             ),
             models.CheckConstraint(
-                condition=~Q(state="signed") | (Q(signed_by__isnull=False) & Q(signed_at__isnull=False) & ~Q(sha256="")),
+                condition=~Q(state="signed")
+                | (Q(signed_by__isnull=False) & Q(signed_at__isnull=False) & ~Q(sha256="")),
                 name="document_signed_has_signature",
             ),
         ]

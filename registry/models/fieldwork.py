@@ -34,11 +34,19 @@ class Occupation(models.Model):
     receiver = models.CharField(max_length=120, blank=True)
     antenna = models.CharField(max_length=120, blank=True)
     antenna_height_measured_m = models.FloatField(null=True, blank=True)
-    antenna_height_kind = models.CharField(max_length=10, choices=AntennaHeightKind.choices, default=AntennaHeightKind.VERTICAL)
-    antenna_height_arp_m = models.FloatField(null=True, blank=True, help_text="Vertical mark → antenna reference point, m.")
-    result_position = models.ForeignKey(Position, null=True, blank=True, on_delete=models.PROTECT, related_name="occupations")
+    antenna_height_kind = models.CharField(
+        max_length=10, choices=AntennaHeightKind.choices, default=AntennaHeightKind.VERTICAL
+    )
+    antenna_height_arp_m = models.FloatField(
+        null=True, blank=True, help_text="Vertical mark → antenna reference point, m."
+    )
+    result_position = models.ForeignKey(
+        Position, null=True, blank=True, on_delete=models.PROTECT, related_name="occupations"
+    )
     notes = models.TextField(blank=True)
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
 
     class Meta:
@@ -46,11 +54,13 @@ class Occupation(models.Model):
         constraints = [
             models.CheckConstraint(condition=Q(end_utc__gte=F("start_utc")), name="occupation_end_after_start"),
             models.CheckConstraint(
-                condition=Q(antenna_height_measured_m__isnull=True) | Q(antenna_height_measured_m__gte=0, antenna_height_measured_m__lte=10),
+                condition=Q(antenna_height_measured_m__isnull=True)
+                | Q(antenna_height_measured_m__gte=0, antenna_height_measured_m__lte=10),
                 name="occupation_antenna_height_range",
             ),
             models.CheckConstraint(
-                condition=Q(antenna_height_arp_m__isnull=True) | Q(antenna_height_arp_m__gte=0, antenna_height_arp_m__lte=10),
+                condition=Q(antenna_height_arp_m__isnull=True)
+                | Q(antenna_height_arp_m__gte=0, antenna_height_arp_m__lte=10),
                 name="occupation_arp_height_range",
             ),
         ]
@@ -75,7 +85,9 @@ class Visit(models.Model):
     condition = models.CharField(max_length=10, choices=Condition.choices)
     visitor = models.CharField(max_length=120, blank=True)
     notes = models.TextField(blank=True)
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
 
     class Meta:
@@ -93,7 +105,7 @@ class AttachmentKind(models.TextChoices):
     OTHER = "other", "other file"
 
 
-def attachment_upload_to(instance: "Attachment", filename: str) -> str:
+def attachment_upload_to(instance: Attachment, filename: str) -> str:
     return f"marks/{instance.mark.code}/{instance.sha256[:2]}/{instance.sha256}/{filename}"
 
 
@@ -101,7 +113,9 @@ class Attachment(models.Model):
     """A photo or file stored through Django's storage API, with its SHA-256 checksum."""
 
     mark = models.ForeignKey(Mark, on_delete=models.PROTECT, related_name="attachments")
-    occupation = models.ForeignKey(Occupation, null=True, blank=True, on_delete=models.PROTECT, related_name="attachments")
+    occupation = models.ForeignKey(
+        Occupation, null=True, blank=True, on_delete=models.PROTECT, related_name="attachments"
+    )
     visit = models.ForeignKey(Visit, null=True, blank=True, on_delete=models.PROTECT, related_name="attachments")
     kind = models.CharField(max_length=8, choices=AttachmentKind.choices)
     file = models.FileField(upload_to=attachment_upload_to, max_length=400)
@@ -109,7 +123,9 @@ class Attachment(models.Model):
     sha256 = models.CharField(max_length=64)
     size_bytes = models.PositiveBigIntegerField()
     caption = models.CharField(max_length=200, blank=True)
-    uploaded_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    uploaded_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     uploaded_at = models.DateTimeField(auto_now_add=True)
 
     class Meta:

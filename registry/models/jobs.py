@@ -31,7 +31,9 @@ class Job(models.Model):
     site_geojson = models.JSONField(help_text="GeoJSON Point or Polygon (RFC 7946, WGS 84 longitude/latitude).")
     frame_epsg = models.PositiveIntegerField(help_text="Deliverable frame: EPSG code of a geographic 3D CRS.")
     epoch_yr = models.FloatField(help_text="Deliverable coordinate epoch, decimal year.")
-    grid_epsg = models.PositiveIntegerField(null=True, blank=True, help_text="Deliverable grid (EPSG); empty: UTM zone chosen automatically.")
+    grid_epsg = models.PositiveIntegerField(
+        null=True, blank=True, help_text="Deliverable grid (EPSG); empty: UTM zone chosen automatically."
+    )
     tol_h_mm = models.FloatField(help_text="Horizontal tolerance, 95 % circle, mm.")
     tol_v_mm = models.FloatField(help_text="Vertical tolerance, 95 %, mm.")
     rtk_h_fixed_mm = models.FloatField(default=8.0)
@@ -39,16 +41,24 @@ class Job(models.Model):
     rtk_v_fixed_mm = models.FloatField(default=15.0)
     rtk_v_ppm = models.FloatField(default=1.0)
     rtk_combination = models.CharField(max_length=10, choices=RtkCombination.choices, default=RtkCombination.ADDITIVE)
-    rtk_h_meaning = models.CharField(max_length=10, choices=RtkHorizontalMeaning.choices, default=RtkHorizontalMeaning.PER_AXIS)
+    rtk_h_meaning = models.CharField(
+        max_length=10, choices=RtkHorizontalMeaning.choices, default=RtkHorizontalMeaning.PER_AXIS
+    )
     setup_h_mm = models.FloatField(default=2.0, help_text="Centring error per horizontal axis, 1σ, mm.")
     setup_v_mm = models.FloatField(default=3.0, help_text="Antenna height error, 1σ, mm.")
-    assumed_rate_mm_yr = models.FloatField(default=2.0, help_text="Unmodelled motion per axis for marks without a velocity.")
+    assumed_rate_mm_yr = models.FloatField(
+        default=2.0, help_text="Unmodelled motion per axis for marks without a velocity."
+    )
     max_baseline_m = models.FloatField(default=10000.0)
     recovery_years = models.FloatField(default=10.0, help_text="A base needs a good visit within this many years.")
-    grid_spacing_m = models.FloatField(null=True, blank=True, help_text="Site evaluation grid spacing; empty: chosen from the site size.")
+    grid_spacing_m = models.FloatField(
+        null=True, blank=True, help_text="Site evaluation grid spacing; empty: chosen from the site size."
+    )
     notes = models.TextField(blank=True)
     version = models.PositiveIntegerField(default=1)
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
     updated_at = models.DateTimeField(auto_now=True)
 
@@ -61,9 +71,13 @@ class Job(models.Model):
                 condition=Q(rtk_h_fixed_mm__gte=0, rtk_h_ppm__gte=0, rtk_v_fixed_mm__gte=0, rtk_v_ppm__gte=0),
                 name="job_rtk_model_nonneg",
             ),
-            models.CheckConstraint(condition=Q(setup_h_mm__gte=0, setup_v_mm__gte=0, assumed_rate_mm_yr__gte=0), name="job_budget_nonneg"),
+            models.CheckConstraint(
+                condition=Q(setup_h_mm__gte=0, setup_v_mm__gte=0, assumed_rate_mm_yr__gte=0), name="job_budget_nonneg"
+            ),
             models.CheckConstraint(condition=Q(max_baseline_m__gt=0, recovery_years__gt=0), name="job_limits_positive"),
-            models.CheckConstraint(condition=Q(grid_spacing_m__isnull=True) | Q(grid_spacing_m__gt=0), name="job_grid_spacing_positive"),
+            models.CheckConstraint(
+                condition=Q(grid_spacing_m__isnull=True) | Q(grid_spacing_m__gt=0), name="job_grid_spacing_positive"
+            ),
         ]
 
     def __str__(self) -> str:

@@ -228,15 +228,23 @@ class Position(models.Model):
     vel_sigma_e_m_yr = models.FloatField(null=True, blank=True)
     vel_sigma_n_m_yr = models.FloatField(null=True, blank=True)
     vel_sigma_u_m_yr = models.FloatField(null=True, blank=True)
-    source = models.CharField(max_length=200, help_text="Where the solution came from (campaign, adjustment, occupation).")
+    source = models.CharField(
+        max_length=200, help_text="Where the solution came from (campaign, adjustment, occupation)."
+    )
     state = models.CharField(max_length=10, choices=PositionState.choices, default=PositionState.PROPOSED)
     note = models.TextField(blank=True)
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
-    decided_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    decided_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     decided_at = models.DateTimeField(null=True, blank=True, help_text="When published, rejected or withdrawn.")
     superseded_at = models.DateTimeField(null=True, blank=True)
-    superseded_by = models.ForeignKey("self", null=True, blank=True, on_delete=models.PROTECT, related_name="supersedes")
+    superseded_by = models.ForeignKey(
+        "self", null=True, blank=True, on_delete=models.PROTECT, related_name="supersedes"
+    )
 
     objects = PositionQuerySet.as_manager()
 
@@ -252,13 +260,16 @@ class Position(models.Model):
                 condition=Q(cov_ee_m2__gte=0, cov_nn_m2__gte=0, cov_uu_m2__gte=0), name="position_variances_nonneg"
             ),
             models.CheckConstraint(
-                condition=Q(vel_sigma_e_m_yr__isnull=True) | Q(vel_sigma_e_m_yr__gte=0), name="position_vel_sigma_e_nonneg"
+                condition=Q(vel_sigma_e_m_yr__isnull=True) | Q(vel_sigma_e_m_yr__gte=0),
+                name="position_vel_sigma_e_nonneg",
             ),
             models.CheckConstraint(
-                condition=Q(vel_sigma_n_m_yr__isnull=True) | Q(vel_sigma_n_m_yr__gte=0), name="position_vel_sigma_n_nonneg"
+                condition=Q(vel_sigma_n_m_yr__isnull=True) | Q(vel_sigma_n_m_yr__gte=0),
+                name="position_vel_sigma_n_nonneg",
             ),
             models.CheckConstraint(
-                condition=Q(vel_sigma_u_m_yr__isnull=True) | Q(vel_sigma_u_m_yr__gte=0), name="position_vel_sigma_u_nonneg"
+                condition=Q(vel_sigma_u_m_yr__isnull=True) | Q(vel_sigma_u_m_yr__gte=0),
+                name="position_vel_sigma_u_nonneg",
             ),
             models.UniqueConstraint(
                 fields=["mark", "frame_epsg"],
@@ -284,8 +295,10 @@ class Position(models.Model):
                     raise FrozenPositionError(
                         f"Position {self.pk} is {stored['state']}; its {', '.join(changed)} cannot change."
                     )
-            if stored and stored["state"] != self.state and self.state not in POSITION_TRANSITIONS.get(
-                stored["state"], ()
+            if (
+                stored
+                and stored["state"] != self.state
+                and self.state not in POSITION_TRANSITIONS.get(stored["state"], ())
             ):
                 allowed = POSITION_TRANSITIONS.get(stored["state"], ())
                 raise PositionStateError(
@@ -322,7 +335,9 @@ class HeightRecord(models.Model):
     epoch_yr = models.FloatField(null=True, blank=True)
     source = models.CharField(max_length=200, blank=True)
     current = models.BooleanField(default=True)
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
 
     class Meta:
@@ -330,10 +345,10 @@ class HeightRecord(models.Model):
         constraints = [
             models.CheckConstraint(condition=Q(sigma_m__gte=0), name="height_sigma_nonneg"),
             models.CheckConstraint(condition=Q(height_m__gte=-1000, height_m__lte=10000), name="height_range"),
-            models.CheckConstraint(
-                condition=~Q(method="geoid") | ~Q(geoid_model=""), name="height_geoid_model_named"
+            models.CheckConstraint(condition=~Q(method="geoid") | ~Q(geoid_model=""), name="height_geoid_model_named"),
+            models.UniqueConstraint(
+                fields=["mark", "datum_epsg"], condition=Q(current=True), name="height_one_current_per_datum"
             ),
-            models.UniqueConstraint(fields=["mark", "datum_epsg"], condition=Q(current=True), name="height_one_current_per_datum"),
         ]
 
     def __str__(self) -> str:

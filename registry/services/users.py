@@ -172,7 +172,11 @@ def user_create(
     with transaction.atomic():
         if User.objects.filter(username=username).exists():
             raise ValidationError(
-                {"username": ValidationError("A user named %(value)s exists.", code="unique", params={"value": username})}
+                {
+                    "username": ValidationError(
+                        "A user named %(value)s exists.", code="unique", params={"value": username}
+                    )
+                }
             )
         if password is None:
             candidate.set_unusable_password()

@@ -55,5 +55,5 @@ def test_job_map_escapes_quotes_in_attributes(client, viewer, scenario):  # noqa
     Mark.objects.filter(code="BASE-N").update(code='BASE"N')
     client.force_login(viewer)
     page = client.get("/jobs/J-WEB/").content.decode()
-    assert 'BASE&quot;N' in page
+    assert "BASE&quot;N" in page
     assert 'data-code="BASE"N"' not in page and 'data-for="BASE"N"' not in page
