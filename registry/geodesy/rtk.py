@@ -12,14 +12,31 @@ Sources and conventions
   horizontal per-axis σ is the square root of the largest eigenvalue of the 2×2 E/N
   block (the semi-major axis of the standard error ellipse: a conservative circular
   stand-in for an elongated ellipse), the vertical σ is √cov_uu. From a network
-  accuracy instead: σ_axis = r95 / 2.4477, σ_v = v95 / 1.96 (FGDC-STD-007.2-1998 Part 2
-  and FGDC-STD-007.3-1998 Part 3 §3.2.1 for the factors).
+  accuracy instead, the factors that made the figure are undone (one rule, review S-7):
+  the registry's network accuracies are FGDC-STD-007.2-1998 Part 2 figures
+  (:func:`registry.geodesy.accuracy.network_accuracy_95_m`: r95 = K(C)·σmax with the K
+  polynomial, v95 = 1.9600·σ_u), so σ_axis = r95 / K(1) = r95 / 2.450762 (the polynomial's
+  value at C = 1, a circular error) and σ_v = v95 / 1.9600. The round trip σ → r95 → σ is
+  then exact; inverting with √(−2 ln 0.05) = 2.447747 instead would lose 0.12 %. When the
+  stored figure came from an elongated ellipse (C < 1), r95/K(1) is the per-axis σ of the
+  circular error with the same 95 % radius, smaller than σmax by up to K(1)/K(0) = 1.25.
+- Frame change (source frame ≠ job frame): the operation's stated accuracy (PROJ/EPSG
+  "accuracy in metres", for which neither states a confidence level) is read as a 1σ per
+  axis, horizontal and vertical alike, and added in quadrature to the base term. That is
+  the conservative reading: read as a 95 % figure it would shrink by 2.45 (H) / 1.96 (V).
+  A stated 0 m (a frame defined by the transformation, exact by definition) adds nothing;
+  an unstated accuracy adds nothing and is warned about by :mod:`registry.geodesy.frames`.
 - Drift between the base's coordinate epoch and the job's epoch: with a velocity the
   position is propagated (by the caller) and the velocity's σ × |Δt| is the drift
   term (per axis: the larger of the east and north velocity σ); without one an assumed
   unmodelled rate (default 2 mm/yr per axis, common practice) × |Δt|.
 - Setup error of the base (centring and antenna height): 2 mm per horizontal axis,
-  3 mm vertical, 1σ (common practice).
+  3 mm vertical, 1σ (common practice). A check shot adds the same again for the rover
+  pole on the check mark (see :func:`check_shot_allowance_mm`).
+- Height difference base → site points (ellipsoidal, job frame): reported per candidate
+  (largest |Δh| over the site heights given), not part of the budget; above
+  ``HEIGHT_DIFFERENCE_WARN_M`` (300 m, common practice) unmodelled troposphere degrades RTK,
+  mostly in height, beyond what the a + b·d model says.
 - Combination: σ_axis = √(σ_rtk² + σ_base² + σ_drift² + σ_setup²). Horizontal 95 % =
   2.4477·σ_axis, the radius of the 95 % circle of a circular bivariate normal
   (√(−2 ln 0.05) = √χ²₀.₉₅(2); FGDC-STD-007.3-1998 §3.2.1, Greenwalt & Shultz 1968);
@@ -38,6 +55,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from registry.geodesy.accuracy import NSSDA_FACTOR_1D, circular_k
+
 #: Radius of the 95 % circle per unit per-axis σ: √(−2 ln 0.05) = √χ²₀.₉₅(2).
 K_H95 = math.sqrt(-2.0 * math.log(0.05))
 #: Normal 97.5 % quantile: the 95 % two-sided factor for one dimension.
@@ -47,6 +66,12 @@ ADDITIVE = "additive"
 RSS = "rss"
 PER_AXIS = "per_axis"
 DRMS = "drms"
+
+#: Network accuracy → σ: the factors that made the figure (FGDC Part 2 K polynomial at C = 1, and 1.9600).
+K_H95_NETWORK = float(circular_k(1.0))
+K_V95_NETWORK = NSSDA_FACTOR_1D
+#: Base → site ellipsoidal height difference above which a warning is shown (m, common practice).
+HEIGHT_DIFFERENCE_WARN_M = 300.0
 
 #: Default assumed unmodelled motion for marks without a velocity (mm/yr per axis, common practice).
 DEFAULT_ASSUMED_RATE_MM_YR = 2.0
@@ -230,13 +255,52 @@ def base_sigma_from_covariance_mm(cov_ee_m2, cov_en_m2, cov_nn_m2, cov_uu_m2):
 
 
 def base_sigma_from_network_accuracy_mm(h95_mm, v95_mm):
-    """Per-axis horizontal σ and vertical σ (mm) from network accuracies (95 %, mm).
+    """Per-axis horizontal σ and vertical σ (mm) from FGDC network accuracies (95 %, mm).
 
-    >>> h, v = base_sigma_from_network_accuracy_mm(24.477468, 19.59964)
-    >>> round(float(h), 4), round(float(v), 4)
+    Undoes :func:`registry.geodesy.accuracy.network_accuracy_95_m`: σ_axis = r95 / K(1) with
+    the FGDC Part 2 K polynomial at C = 1 (2.450762), σ_v = v95 / 1.9600. Not 2.4477: that
+    exact circle factor is used for the screening's own 95 % figures, which are not FGDC
+    network accuracies (see the module docstring).
+
+    >>> h, v = base_sigma_from_network_accuracy_mm(24.50762, 19.6)
+    >>> round(float(h), 6), round(float(v), 6)
     (10.0, 10.0)
     """
-    return np.asarray(h95_mm, dtype=float) / K_H95, np.asarray(v95_mm, dtype=float) / K_V95
+    return np.asarray(h95_mm, dtype=float) / K_H95_NETWORK, np.asarray(v95_mm, dtype=float) / K_V95_NETWORK
+
+
+def frame_change_sigma_mm(accuracy_m) -> float:
+    """1σ per axis (mm) added to the base term by a frame change of stated ``accuracy_m``.
+
+    The stated accuracy is read as a 1σ per axis (conservative; PROJ/EPSG give no
+    confidence level). None (not stated) and 0 (exact by definition) add nothing.
+
+    >>> frame_change_sigma_mm(0.001), frame_change_sigma_mm(0.0), frame_change_sigma_mm(None)
+    (1.0, 0.0, 0.0)
+    """
+    if accuracy_m is None or not math.isfinite(accuracy_m) or accuracy_m <= 0:
+        return 0.0
+    return float(accuracy_m) * 1e3
+
+
+def max_abs_height_difference_m(base_h_m, site_h_m):
+    """Largest |h_site − h_base| (m) per base over the given site heights (ellipsoidal, one frame).
+
+    Parameters
+    ----------
+    base_h_m : (k,) array
+        Base ellipsoidal heights (NaN where unknown).
+    site_h_m : (q,) array
+        Site ellipsoidal heights given (may be empty: the result is then all NaN).
+
+    >>> max_abs_height_difference_m(np.array([100.0, 450.0]), np.array([120.0, 90.0])).tolist()
+    [20.0, 360.0]
+    """
+    base = np.atleast_1d(np.asarray(base_h_m, dtype=float))
+    site = np.atleast_1d(np.asarray(site_h_m, dtype=float))
+    if site.size == 0:
+        return np.full(base.shape, np.nan)
+    return np.abs(site[None, :] - base[:, None]).max(axis=1)
 
 
 def drift_sigma_mm(epoch_gap_yr, vel_sigma_mm_yr=None, assumed_rate_mm_yr: float = DEFAULT_ASSUMED_RATE_MM_YR):
@@ -579,9 +643,19 @@ def check_shot_allowance_mm(
 ):
     """Largest check-shot discrepancy still consistent at 95 % (horizontal circle, vertical), mm.
 
-    The rover's error at the check mark from the base (RTK at the baseline, base
-    position, base drift, setup) is combined with the check mark's own position
-    uncertainty and drift: H = 2.4477·√(Σσ_axis²), V = 1.96·√(Σσ_v²).
+    Terms (1σ, per horizontal axis / vertical), added in quadrature:
+    RTK at the baseline; the base position and its drift; the base setup (centring and
+    antenna height, ``model.setup_h_mm`` / ``setup_v_mm``); the rover pole on the check
+    mark (centring and rod height, the same setup figures again); the check mark's position
+    and its drift. H = 2.4477·√(Σσ_axis²), V = 1.96·√(Σσ_v²).
+
+    Independence: base and check positions are treated as uncorrelated (σ_base² + σ_check²),
+    because the registry stores no cross-covariance between marks. When both come from one
+    adjustment their errors are usually positively correlated, and the variance of their
+    difference is σ_base² + σ_check² − 2·cov, smaller than what is used here. So this
+    allowance errs on the large side: it is lenient, and a check shot is *less* likely to be
+    flagged than with the true difference covariance (local accuracy,
+    :func:`registry.geodesy.accuracy.difference_covariance_m2`), which would tighten it.
 
     >>> m = RtkErrorModel(h_fixed_mm=0, v_fixed_mm=0, setup_h_mm=0, setup_v_mm=0)
     >>> h, v = check_shot_allowance_mm(0.0, model=m, base_h_mm=0, base_v_mm=0, base_drift_h_mm=0,
@@ -593,7 +667,8 @@ def check_shot_allowance_mm(
         model.rtk_h_axis_mm(distance_m) ** 2
         + np.square(base_h_mm)
         + np.square(base_drift_h_mm)
-        + model.setup_h_mm**2
+        + model.setup_h_mm**2  # base setup
+        + model.setup_h_mm**2  # rover pole on the check mark
         + np.square(check_h_mm)
         + np.square(check_drift_h_mm)
     )
@@ -601,7 +676,8 @@ def check_shot_allowance_mm(
         model.rtk_v_mm(distance_m) ** 2
         + np.square(base_v_mm)
         + np.square(base_drift_v_mm)
-        + model.setup_v_mm**2
+        + model.setup_v_mm**2  # base antenna height
+        + model.setup_v_mm**2  # rover rod height on the check mark
         + np.square(check_v_mm)
         + np.square(check_drift_v_mm)
     )

@@ -104,10 +104,46 @@ def test_base_sigma_from_covariance_is_largest_eigenvalue():
 
 
 def test_base_sigma_from_network_accuracy():
-    # [NSSDA] r95 = 2.4477·σ per axis (circular), v95 = 1.96·σ; [hand] 12.2387 / 2.4477468 = 5.000 mm.
-    h, v = rtk.base_sigma_from_network_accuracy_mm(12.238734, 9.79982)
-    assert h == pytest.approx(5.0, abs=1e-5)
-    assert v == pytest.approx(5.0, abs=1e-5)
+    # FGDC-STD-007.2-1998 K polynomial at C = 1: 1.960790 + 0.004071 + 0.114276 + 0.371625 = 2.450762
+    # (secondary transcription of the coefficients, Geoscience Australia geodesy package); vertical 1.9600
+    # (FGDC Part 2 / NSSDA as printed). [hand] 12.25381 / 2.450762 = 5.000000 mm; 9.8 / 1.96 = 5.000000 mm.
+    h, v = rtk.base_sigma_from_network_accuracy_mm(12.25381, 9.8)
+    assert h == pytest.approx(5.0, abs=1e-6)
+    assert v == pytest.approx(5.0, abs=1e-6)
+    # Not the 2.4477 circle factor: that would give 12.25381 / 2.4477468 = 5.00616 mm (0.12 % off, review S-7).
+    assert rtk.K_H95_NETWORK == pytest.approx(2.450762, abs=1e-9)
+
+
+def test_network_accuracy_round_trip():
+    # σ → FGDC network accuracy (registry.geodesy.accuracy) → σ is exact for circular covariances, and equals the
+    # covariance route of the budget. [hand] σe = σn = 7 mm, σu = 11 mm: r95 = 2.450762 × 7 = 17.155334 mm,
+    # v95 = 1.96 × 11 = 21.56 mm.
+    from registry.geodesy import accuracy as acc
+
+    cov = np.diag([49e-6, 49e-6, 121e-6])
+    r95_m, v95_m = acc.network_accuracy_95_m(cov)
+    assert r95_m * 1e3 == pytest.approx(17.155334, abs=1e-6)
+    assert v95_m * 1e3 == pytest.approx(21.56, abs=1e-9)
+    h, v = rtk.base_sigma_from_network_accuracy_mm(r95_m * 1e3, v95_m * 1e3)
+    ch, cv = rtk.base_sigma_from_covariance_mm(cov[0, 0], cov[0, 1], cov[1, 1], cov[2, 2])
+    assert h == pytest.approx(7.0, rel=1e-12) and v == pytest.approx(11.0, rel=1e-12)
+    assert h == pytest.approx(ch, rel=1e-12) and v == pytest.approx(cv, rel=1e-12)
+
+
+def test_frame_change_sigma_reading():
+    # Our documented reading: PROJ's stated accuracy (m) taken as 1σ per axis; 0 m and "not stated" add nothing.
+    # [hand] 0.001 m → 1.0 mm; 2 m (a WGS 84 ensemble route, PROJ) → 2000 mm.
+    assert rtk.frame_change_sigma_mm(0.001) == pytest.approx(1.0)
+    assert rtk.frame_change_sigma_mm(2.0) == pytest.approx(2000.0)
+    assert rtk.frame_change_sigma_mm(0.0) == 0.0 and rtk.frame_change_sigma_mm(None) == 0.0
+
+
+def test_max_abs_height_difference():
+    # [hand] bases at 100 m and 450 m, site heights 120 and 90 m: max |Δh| = 20 and 360 m; unknown base → NaN;
+    # a site with no heights → NaN for every base.
+    got = rtk.max_abs_height_difference_m(np.array([100.0, 450.0, np.nan]), np.array([120.0, 90.0]))
+    assert got[:2].tolist() == [20.0, 360.0] and math.isnan(got[2])
+    assert np.isnan(rtk.max_abs_height_difference_m(np.array([100.0]), np.array([]))).all()
 
 
 def test_drift_terms():
@@ -426,9 +462,11 @@ def test_farthest_point_selection_spreads():
 
 
 def test_check_shot_allowance_by_hand():
-    # [hand] base at 2 km: rtk 10 / 17 mm; base 3 / 5; base drift 2 / 2; setup 2 / 3; check mark 4 / 6, drift 1 / 1.
-    # H = 2.4477468·√(100 + 9 + 4 + 4 + 16 + 1) = 2.4477468·√134 = 28.3347 mm
-    # V = 1.959964·√(289 + 25 + 4 + 9 + 36 + 1) = 1.959964·√364 = 37.3937 mm
+    # [hand] base at 2 km: rtk 10 / 17 mm; base 3 / 5; base drift 2 / 2; base setup 2 / 3; rover centring and rod
+    # height on the check mark 2 / 3 (the same setup figures, common practice); check mark 4 / 6, drift 1 / 1;
+    # base and check independent (no cross-covariance stored).
+    # H = 2.4477468·√(100 + 9 + 4 + 4 + 4 + 16 + 1) = 2.4477468·√138 = 28.7545 mm
+    # V = 1.959964·√(289 + 25 + 4 + 9 + 9 + 36 + 1) = 1.959964·√373 = 37.8532 mm
     h, v = rtk.check_shot_allowance_mm(
         2000.0,
         model=RtkErrorModel(),
@@ -441,5 +479,19 @@ def test_check_shot_allowance_by_hand():
         check_drift_h_mm=1,
         check_drift_v_mm=1,
     )
-    assert h == pytest.approx(28.3347, abs=1e-4)
-    assert v == pytest.approx(37.3937, abs=1e-4)
+    assert h == pytest.approx(28.7545, abs=1e-4)
+    assert v == pytest.approx(37.8532, abs=1e-4)
+    # Without any setup error the rover-centring term goes too: [hand] H = 2.4477468·√130 = 27.9086 mm.
+    h0, _ = rtk.check_shot_allowance_mm(
+        2000.0,
+        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0),
+        base_h_mm=3,
+        base_v_mm=5,
+        base_drift_h_mm=2,
+        base_drift_v_mm=2,
+        check_h_mm=4,
+        check_v_mm=6,
+        check_drift_h_mm=1,
+        check_drift_v_mm=1,
+    )
+    assert h0 == pytest.approx(27.9086, abs=1e-4)
