@@ -76,6 +76,9 @@ class Site:
         (computed on the local plane of the exterior ring's vertex mean).
     height_m : float or None
         The ellipsoidal height given as a third coordinate of a point site, if any.
+    heights_m : tuple of float
+        Every ellipsoidal height given as a third coordinate (the point's, or the polygon's
+        vertices'; the closing vertex once), in the job's frame; empty when none is given.
     """
 
     kind: str
@@ -83,6 +86,7 @@ class Site:
     ref_lat_deg: float
     ref_lon_deg: float
     height_m: float | None = None
+    heights_m: tuple[float, ...] = ()
 
     @property
     def is_point(self) -> bool:
@@ -222,19 +226,22 @@ def parse_site_geojson(value: Any) -> Site:
     coords = value.get("coordinates")
     if gtype == "Point":
         lon, lat, h = _position(coords, "Point")
-        return Site("point", [np.array([[lon, lat]])], lat, lon, h)
+        return Site("point", [np.array([[lon, lat]])], lat, lon, h, () if h is None else (h,))
     if gtype != "Polygon":
         raise SiteError(f"The site must be a GeoJSON Point or Polygon, not {gtype}.", code="unsupported_geometry")
     if not isinstance(coords, list) or not coords:
         raise SiteError("A Polygon needs at least its exterior ring.", code="too_few_positions")
     rings = []
+    heights: list[float] = []
     for r_index, ring in enumerate(coords):
         where = "exterior ring" if r_index == 0 else f"hole {r_index}"
         if not isinstance(ring, list) or len(ring) < 4:
             raise SiteError(
                 f"The {where} needs at least 4 positions (3 corners and the closing one).", code="too_few_positions"
             )
-        pts = np.array([_position(p, where)[:2] for p in ring], dtype=float)
+        parsed = [_position(p, where) for p in ring]
+        pts = np.array([q[:2] for q in parsed], dtype=float)
+        heights.extend(q[2] for q in parsed[:-1] if q[2] is not None)
         if not np.array_equal(pts[0], pts[-1]):
             raise SiteError(
                 f"The {where} is not closed: its last position must repeat the first.", code="ring_not_closed"
@@ -263,7 +270,7 @@ def parse_site_geojson(value: Any) -> Site:
         raise SiteError("The site polygon's edges cross each other.", code="self_intersecting")
     ce, cn = _ring_centroid_m(ext)
     lat_c, lon_c = plane.to_geodetic_deg(ce, cn)
-    return Site("polygon", rings, float(lat_c), float(lon_c), None)
+    return Site("polygon", rings, float(lat_c), float(lon_c), None, tuple(heights))
 
 
 # --------------------------------------------------------------------------- plane geometry

@@ -13,17 +13,25 @@ Steps:
    the plate's rigid motion from the ITRF2020 plate motion model when ``REGISTRY["PLATE"]``
    names a plate; else held). Without a velocity the assumed rate × |Δt| is added (the
    residual motion relative to the plate where the model was applied). The σ that epoch
-   change adds per axis is the *drift* term (horizontal: the larger of east and north). A frame change's own stated accuracy is not added to the budget: it
-   is common to every base transformed the same way and does not change relative RTK
-   results; its steps and warnings are shown instead.
+   change adds per axis is the *drift* term (horizontal: the larger of east and north).
+   When the position's frame differs from the job's, the frame change's stated accuracy
+   (PROJ/EPSG, metres, no confidence level stated) is read as a 1σ per axis and added in
+   quadrature to the *base* term (``rtk.frame_change_sigma_mm``; 0 m "exact by definition"
+   and an unstated accuracy add nothing). Bases, pairs and check marks published in different
+   frames thus each carry their own frame-change uncertainty; the term's description says so.
 4. Base σ from the position's covariance: per-axis horizontal √λmax of the E/N block,
-   vertical √cov_uu (see ``registry.geodesy.rtk``).
+   vertical √cov_uu (see ``registry.geodesy.rtk``), plus the frame-change term of step 3.
+   Height difference: the largest |Δh| from the base to the site's given ellipsoidal heights
+   (GeoJSON third coordinates), reported per candidate with a warning above
+   ``rtk.HEIGHT_DIFFERENCE_WARN_M``; it does not enter the budget.
 5. The pure core (``registry.geodesy.rtk.screen_candidates``) on the site's local plane.
 6. Check marks: marks passing every rule, not one of the chosen bases, within
    ``CHECK_NEAR_M`` of the site (preferring those within 250 m or 10 % of the site radius
    when there are enough) and within the maximum baseline of a chosen base; the one nearest
    the site first, then farthest-point selection away from the chosen ones and the bases. Each gets the largest check-shot discrepancy still consistent at 95 % from each
-   chosen base.
+   chosen base (rover centring on the check mark included; base and check positions taken as
+   independent, which makes the allowance lenient when they come from one adjustment:
+   ``rtk.check_shot_allowance_mm``).
 """
 
 from __future__ import annotations
@@ -65,6 +73,9 @@ CAUTIONS = (
     "published coordinates, frame and epoch against this sheet, and measure the antenna height twice.",
     "Check in on at least one other trusted mark at the start and end of each session and compare the "
     "discrepancy with the allowance shown; stop and investigate if it is larger.",
+    "RTK figures assume a fixed (ambiguity-resolved) solution and an open sky. The a + b ppm error model is a "
+    "reading of receiver specifications (common practice), not a field result: multipath, canopy, float "
+    "solutions and large height differences between base and rover make the field error larger.",
     "Local codes, agency specifications and licensed professional practice govern. A licensed surveyor "
     "decides what control is adequate.",
 )
@@ -106,6 +117,13 @@ class Candidate:
     base_v_mm: float = math.nan
     drift_h_mm: float = math.nan
     drift_v_mm: float = math.nan
+    #: The base term's parts: the position's own σ (H per axis, V) and the frame change's 1σ per axis.
+    position_h_mm: float = math.nan
+    position_v_mm: float = math.nan
+    frame_change_mm: float = 0.0
+    frame_change_note: str = ""
+    #: Largest |Δh| (m) from the base to the site's given heights (NaN when the site has none).
+    max_dh_m: float = math.nan
     steps: list[dict] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     # filled after the core has run
@@ -128,6 +146,31 @@ class Candidate:
     @property
     def covers_site(self) -> bool:
         return not self.excluded and self.margin_mm >= 0
+
+    @property
+    def coverage_words(self) -> str:
+        """How much of the site it covers: "covers site", "covers N %" or "covers none" (review S-13).
+
+        "covers site" only when the whole site, boundary included, is within both tolerances;
+        a percentage never rounds to 0 or 100 when it is not exactly that.
+        """
+        if self.covers_site:
+            return "covers site"
+        pct = float(self.coverage) * 100.0
+        if pct <= 0.0:
+            return "covers none"
+        if pct < 1.0:
+            return "covers <1 %"
+        if pct > 99.0:
+            return "covers >99 %"
+        return f"covers {pct:.0f} %"
+
+    def base_description(self) -> str:
+        """Where the base term comes from, in words (with the frame-change part when there is one)."""
+        text = "published position's σ from its covariance (horizontal √λmax of east/north, vertical √σ²up)"
+        if self.frame_change_note:
+            text += "; " + self.frame_change_note
+        return text
 
 
 @dataclass
@@ -175,6 +218,7 @@ class ScreeningResult:
                 "grid_spacing_m": round(self.grid.spacing_m, 3),
                 "grid_cells": self.grid.n_cells,
                 "boundary_samples": int((~self.grid.is_cell).sum()),
+                "heights_given": len(s.site.heights_m),
             },
             "frame": {"epsg": s.frame_epsg, "name": self.frame_label},
             "epoch_yr": s.epoch_yr,
@@ -261,13 +305,20 @@ def _candidate_dict(c: Candidate) -> dict[str, Any]:
         "margin_mm": _mm(c.margin_mm),
         "coverage": round(float(c.coverage), 4),
         "covers_site": c.covers_site,
+        "coverage_words": c.coverage_words,
+        "max_height_difference_m": _m(c.max_dh_m),
         "excluded": c.excluded,
         "reasons": [{"code": r, "words": rtk.REASON_WORDS[r]} for r in c.reasons],
         "budget": None
         if c.budget is None
         else [
-            {"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"])}
-            for t in ("rtk", "base", "drift", "setup")
+            {"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"]), "description": d}
+            for t, d in (
+                ("rtk", "receiver a + b·d at the farthest site point (job's error model)"),
+                ("base", c.base_description()),
+                ("drift", "epoch change to the job's epoch (velocity σ × |Δt|, or the assumed rate × |Δt|)"),
+                ("setup", "base centring (per axis) and antenna height"),
+            )
         ],
         "sigma_h_mm": None if c.budget is None else _mm(c.budget["sigma_h"]),
         "sigma_v_mm": None if c.budget is None else _mm(c.budget["sigma_v"]),
@@ -417,7 +468,27 @@ def _place(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
     se, sn, su = (float(v) for v in r.added_sigma_enu_m)
     cand.drift_h_mm, cand.drift_v_mm = max(se, sn) * 1e3, su * 1e3
     bh, bv = rtk.base_sigma_from_covariance_mm(p.cov_ee_m2, p.cov_en_m2, p.cov_nn_m2, p.cov_uu_m2)
-    cand.base_h_mm, cand.base_v_mm = float(bh), float(bv)
+    cand.position_h_mm, cand.position_v_mm = float(bh), float(bv)
+    fc = 0.0
+    notes = []
+    if p.frame_epsg != s.frame_epsg:
+        for st in r.steps:
+            if st.kind != "frame_change":
+                continue
+            term = rtk.frame_change_sigma_mm(st.accuracy_m)
+            fc = math.hypot(fc, term)
+            if st.accuracy_m is None:
+                notes.append(f"frame change {st.from_label} → {st.to_label}: accuracy not stated, nothing added")
+            elif term == 0.0:
+                notes.append(f"frame change {st.from_label} → {st.to_label}: stated exact (0 m), adds nothing")
+            else:
+                notes.append(
+                    f"+ frame change {st.from_label} → {st.to_label}: stated accuracy {st.accuracy_m:g} m, "
+                    f"read as 1σ per axis ({term:.1f} mm, horizontal and vertical)"
+                )
+    cand.frame_change_mm = fc
+    cand.frame_change_note = "; ".join(notes)
+    cand.base_h_mm, cand.base_v_mm = math.hypot(float(bh), fc), math.hypot(float(bv), fc)
     cand.steps = [st.as_dict() for st in r.steps]
     cand.warnings.extend(r.warnings)
 
@@ -476,6 +547,8 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     az, _, geodesic_m = Geod(ellps="GRS80").inv(
         np.full(k, s.site.ref_lon_deg), np.full(k, s.site.ref_lat_deg), lon, lat
     )
+    base_h = np.array([math.nan if c.position is None else c.h_m for c in cands], dtype=float)
+    max_dh = rtk.max_abs_height_difference_m(base_h, np.array(s.site.heights_m, dtype=float))
     for i, c in enumerate(cands):
         c.e_m, c.n_m = float(ce[i]), float(cn[i])
         if s.site.is_point:  # the exact geodesic distance (the core's planar one agrees to < 1e-5)
@@ -491,6 +564,13 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
             c.v95_mm = float(core.worst_v95_mm[i])
             c.margin_mm = float(core.margin_mm[i])
             c.coverage = float(core.coverage[i])
+            c.max_dh_m = float(max_dh[i])
+            if c.max_dh_m > rtk.HEIGHT_DIFFERENCE_WARN_M:
+                c.warnings.append(
+                    f"{c.mark.code} is up to {c.max_dh_m:.0f} m above or below the site (ellipsoidal heights): "
+                    f"beyond {rtk.HEIGHT_DIFFERENCE_WARN_M:.0f} m, unmodelled troposphere degrades RTK, mostly in "
+                    "height (common practice); the budget does not include it."
+                )
             c.budget = rtk.error_budget_mm(
                 core.max_distance_m[i],
                 model=s.model,

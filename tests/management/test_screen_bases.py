@@ -41,6 +41,8 @@ def test_job_json(marks):
     }
     assert cand["code"] == "NB-1" and cand["horizontal_95_mm"] == 23.7  # hand value 23.7318 (service test)
     assert [b["term"] for b in cand["budget"]] == ["rtk", "base", "drift", "setup"]
+    assert all(b["description"] for b in cand["budget"])
+    assert cand["coverage_words"] == "covers site" and cand["max_height_difference_m"] is None
     assert "best_pair" in data and [c["code"] for c in data["check_marks"]] == ["CK-1"]
 
 
@@ -49,6 +51,12 @@ def test_job_text(marks):
     text = run("J-CMD", "--as-of", "2025-07-01")
     assert "NB-1" in text and "sky_obstructed" in text and "Chosen bases: NB-1" in text
     assert "Caution:" in text and "covers the whole site" in text
+    # Coverage words (review S-13) and the height-difference column (N-6): NB-1 covers the site; the site has
+    # no heights, so |Δh| is not computed and the output says why.
+    assert "covers site" in text and "partial" not in text
+    assert "|Δh|: not computed, the site has no heights" in text
+    assert "Base term of NB-1: published position's σ" in text
+    assert "fixed (ambiguity-resolved) solution" in text  # N-7 caution
 
 
 def test_ad_hoc(marks, tmp_path):

@@ -231,9 +231,10 @@ def test_polygon_site_pair_and_check_marks(viewer):
     ck1 = r.check_marks[0]
     allow = {a["base"]: a for a in ck1.allowances}
     c = by_code(r)
-    # [hand] CK-1 from WE-1: baseline b; rtk (8 + b_km) per axis, WE-1 3 mm, setup 2 mm, CK-1 12 mm:
+    # [hand] CK-1 from WE-1: baseline b; rtk (8 + b_km) per axis, WE-1 3 mm, base setup 2 mm, rover centring on
+    # CK-1 2 mm (common practice), CK-1 12 mm:
     b = allow["WE-1"]["baseline_m"]
-    h = K_H * math.sqrt((8 + b / 1000) ** 2 + 3**2 + 2**2 + 12**2)
+    h = K_H * math.sqrt((8 + b / 1000) ** 2 + 3**2 + 2**2 + 2**2 + 12**2)
     assert allow["WE-1"]["horizontal_95_mm"] == pytest.approx(h, abs=0.06)
     assert b == pytest.approx(math.hypot(c["WE-1"].e_m - c["CK-1"].e_m, c["WE-1"].n_m - c["CK-1"].n_m), abs=1e-3)
     assert "cannot be covered" in r.statement

@@ -7,14 +7,16 @@
 Like any ``manage.py`` command it runs with the server's own authority (no user). The
 screening is the same call the job page and the API make (``registry.services.screening``).
 ``--json`` prints the same document as ``GET /api/jobs/<code>/screening/``: candidates (each
-with code, distance_m, horizontal_95_mm, vertical_95_mm, coverage, excluded, reasons and the
-budget with one entry per term), best_pair, check_marks, the statement and the cautions.
+with code, distance_m, horizontal_95_mm, vertical_95_mm, coverage, coverage_words ("covers site",
+"covers N %", "covers none"), max_height_difference_m, excluded, reasons and the budget with one
+entry per term and its description), best_pair, check_marks, the statement and the cautions.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import json
+import math
 from pathlib import Path
 
 from django.core.exceptions import ValidationError
@@ -103,11 +105,12 @@ class Command(BaseCommand):
         )
         w("")
         w(
-            f"{'#':>3} {'mark':<14} {'state':<9} {'dist m':>10} {'H95 mm':>7} {'V95 mm':>7} {'margin':>7} {'cover %':>7}  "
-            f"budget H rtk/base/drift/setup | V ...   reasons"
+            f"{'#':>3} {'mark':<14} {'state':<13} {'dist m':>10} {'H95 mm':>7} {'V95 mm':>7} {'margin':>7} {'cover %':>7} "
+            f"{'|Δh| m':>7}  budget H rtk/base/drift/setup | V ...   reasons"
         )
         for c in result.candidates:
-            state = "excluded" if c.excluded else ("covers" if c.covers_site else "partial")
+            state = "excluded" if c.excluded else c.coverage_words
+            dh = f"{c.max_dh_m:7.1f}" if math.isfinite(c.max_dh_m) else f"{'—':>7}"
             if c.budget:
                 b = c.budget
                 budget = (
@@ -118,9 +121,19 @@ class Command(BaseCommand):
             else:
                 budget, nums = "no usable position", f"{'—':>7} {'—':>7} {'—':>7} {'—':>7}"
             w(
-                f"{c.rank:>3} {c.mark.code:<14} {state:<9} {c.distance_m:10.1f} {nums}  {budget}   {', '.join(c.reasons)}"
+                f"{c.rank:>3} {c.mark.code:<14} {state:<13} {c.distance_m:10.1f} {nums} {dh}  {budget}   "
+                f"{', '.join(c.reasons)}"
             )
         w("")
+        if s.site.heights_m:
+            w(
+                f"|Δh|: largest ellipsoidal height difference from the base to the site's {len(s.site.heights_m)} "
+                "given height(s); not part of the budget."
+            )
+        else:
+            w("|Δh|: not computed, the site has no heights (give ellipsoidal heights as GeoJSON third coordinates).")
+        for c in result.chosen:
+            w(f"Base term of {c.mark.code}: {c.base_description()}.")
         if result.pair:
             core = result.core
             w(
