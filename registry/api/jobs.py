@@ -107,6 +107,7 @@ class BudgetTermSerializer(serializers.Serializer):
     term = serializers.ChoiceField(choices=["rtk", "base", "drift", "setup"])
     h_mm = serializers.FloatField(help_text="1σ per horizontal axis, mm.")
     v_mm = serializers.FloatField(help_text="1σ vertical, mm.")
+    description = serializers.CharField(help_text="Where the term comes from (base: with any frame-change part).")
 
 
 class ReasonSerializer(serializers.Serializer):
@@ -130,6 +131,10 @@ class CandidateSerializer(serializers.Serializer):
     margin_mm = serializers.FloatField(allow_null=True)
     coverage = serializers.FloatField(help_text="Fraction of the site inside both tolerances.")
     covers_site = serializers.BooleanField()
+    coverage_words = serializers.CharField(help_text='"covers site", "covers N %" or "covers none".')
+    max_height_difference_m = serializers.FloatField(
+        allow_null=True, help_text="Largest |Δh| base → the site's given ellipsoidal heights (null: none given)."
+    )
     excluded = serializers.BooleanField()
     reasons = ReasonSerializer(many=True)
     budget = BudgetTermSerializer(many=True, allow_null=True)
