@@ -35,7 +35,6 @@ from registry.models import (
 from registry.services.access import access_mark_by_code
 from registry.services.fieldwork import attachment_add, occupation_record, visit_record
 
-
 # ----------------------------------------------------------------------------- serializers
 
 
@@ -76,7 +75,17 @@ class VisitSerializer(serializers.ModelSerializer):
 
     class Meta:
         model = Visit
-        fields = ("id", "mark", "visited_on", "condition", "visitor", "notes", "created_by", "created_at", "attachments")
+        fields = (
+            "id",
+            "mark",
+            "visited_on",
+            "condition",
+            "visitor",
+            "notes",
+            "created_by",
+            "created_at",
+            "attachments",
+        )
         read_only_fields = fields
 
 
@@ -174,9 +183,7 @@ class _MarkChildren(APIView):
         return paginator.get_paginated_response(data)
 
     def created(self, request, obj):
-        fresh = (
-            self.model.objects.select_related("mark", *self.related).prefetch_related(*self.prefetch).get(pk=obj.pk)
-        )
+        fresh = self.model.objects.select_related("mark", *self.related).prefetch_related(*self.prefetch).get(pk=obj.pk)
         return Response(
             self.serializer_class(fresh, context={"request": request}).data, status=http_status.HTTP_201_CREATED
         )

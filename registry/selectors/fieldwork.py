@@ -135,8 +135,7 @@ def position_compatibility(*, position: Position) -> PositionCheck:
         check.added_sigma_enu_m = added
         intro = (
             f"The published position (epoch {published.epoch_yr:.3f}) was brought to the proposed epoch "
-            f"{position.epoch_yr:.3f} in the same frame"
-            + (f", along {whose}." if whose else ".")
+            f"{position.epoch_yr:.3f} in the same frame" + (f", along {whose}." if whose else ".")
         )
         check.epoch_steps = [intro, *(s.description for s in moved.steps)]
         check.warnings = list(moved.warnings)
@@ -158,7 +157,13 @@ def position_compatibility(*, position: Position) -> PositionCheck:
             r = compatibility_test(d, cov_pub, cov_obs, components=components)
             check.rows.append(
                 CompatibilityRow(
-                    label, components, float(r.statistic), int(r.dof), float(r.critical), float(r.p_value), bool(r.compatible)
+                    label,
+                    components,
+                    float(r.statistic),
+                    int(r.dof),
+                    float(r.critical),
+                    float(r.p_value),
+                    bool(r.compatible),
                 )
             )
     except ComputationInputError as exc:

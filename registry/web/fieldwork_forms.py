@@ -201,7 +201,9 @@ class PositionForm(ServiceErrorsMixin, forms.Form):
     sigma_e_mm = forms.FloatField(label="σ east (mm)", min_value=0.0, help_text="One standard deviation.")
     sigma_n_mm = forms.FloatField(label="σ north (mm)", min_value=0.0)
     sigma_u_mm = forms.FloatField(label="σ up (mm)", min_value=0.0)
-    vel_e_mm_yr = forms.FloatField(label="Velocity east (mm/yr)", required=False, help_text="Optional: all three or none.")
+    vel_e_mm_yr = forms.FloatField(
+        label="Velocity east (mm/yr)", required=False, help_text="Optional: all three or none."
+    )
     vel_n_mm_yr = forms.FloatField(label="Velocity north (mm/yr)", required=False)
     vel_u_mm_yr = forms.FloatField(label="Velocity up (mm/yr)", required=False)
     source = forms.CharField(max_length=200, help_text="Campaign, adjustment or occupation the solution comes from.")

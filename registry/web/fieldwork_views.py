@@ -61,7 +61,11 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
             call = _Call(visit_record, actor=request.user, mark_code=mark.code, data=form.visit_data())
             try:
                 visit, n = _record_with_files(
-                    call, form.cleaned_data["photos"], kind="photo", link="visit_id", caption=form.cleaned_data["caption"]
+                    call,
+                    form.cleaned_data["photos"],
+                    kind="photo",
+                    link="visit_id",
+                    caption=form.cleaned_data["caption"],
                 )
             except ValidationError as exc:
                 form.add_service_error(exc)
@@ -101,7 +105,9 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
         status = 400
     else:
         form = OccupationForm()
-    return render(request, "registry/occupation_form.html", {"form": form, "mark": mark, **form.groups()}, status=status)
+    return render(
+        request, "registry/occupation_form.html", {"form": form, "mark": mark, **form.groups()}, status=status
+    )
 
 
 @ability_required(Ability.MANAGE)
@@ -115,7 +121,11 @@ def mark_status(request: HttpRequest, code: str) -> HttpResponse:
             d = form.cleaned_data
             try:
                 mark = mark_set_status(
-                    actor=request.user, code=mark.code, status=d["status"], expected_version=d["version"], note=d["note"]
+                    actor=request.user,
+                    code=mark.code,
+                    status=d["status"],
+                    expected_version=d["version"],
+                    note=d["note"],
                 )
             except ValidationError as exc:
                 form.add_service_error(exc)

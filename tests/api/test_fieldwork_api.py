@@ -60,7 +60,9 @@ def test_write_role_matrix(request, mark, api_client_for, role):
     r1 = client.post("/api/marks/FW-01/visits/", VISIT, format="json")
     r2 = client.post("/api/marks/FW-01/occupations/", OCC, format="json")
     r3 = client.post(
-        "/api/marks/FW-01/attachments/", {"file": SimpleUploadedFile("a.txt", b"abc"), "kind": "other"}, format="multipart"
+        "/api/marks/FW-01/attachments/",
+        {"file": SimpleUploadedFile("a.txt", b"abc"), "kind": "other"},
+        format="multipart",
     )
     if role in WRITERS:
         assert (r1.status_code, r2.status_code, r3.status_code) == (201, 201, 201)
@@ -76,7 +78,9 @@ def test_anonymous_gets_401(mark, api_client_for):
 
 def test_unknown_mark_is_404(mark, api_client_for, technician):
     assert_error_shape(api_client_for(technician).get("/api/marks/NOPE/visits/"), 404, "not_found")
-    assert_error_shape(api_client_for(technician).post("/api/marks/NOPE/visits/", VISIT, format="json"), 404, "not_found")
+    assert_error_shape(
+        api_client_for(technician).post("/api/marks/NOPE/visits/", VISIT, format="json"), 404, "not_found"
+    )
 
 
 def test_visit_record_and_list(mark, api_client_for, technician):
@@ -148,7 +152,11 @@ def test_attachment_upload_list_and_download(mark, api_client_for, technician, c
         ({"file": SimpleUploadedFile("big.bin", b"x" * 101), "kind": "other"}, "file", "file_too_large"),
         ({"file": SimpleUploadedFile("a.bin", b"abc"), "kind": "movie"}, "kind", "invalid_choice"),
         ({"kind": "other"}, "file", "required"),
-        ({"file": SimpleUploadedFile("a.bin", b"abc"), "kind": "other", "visit_id": "999999"}, "visit_id", "visit_other_mark"),
+        (
+            {"file": SimpleUploadedFile("a.bin", b"abc"), "kind": "other", "visit_id": "999999"},
+            "visit_id",
+            "visit_other_mark",
+        ),
     ],
 )
 def test_attachment_bad_input_changes_nothing(mark, api_client_for, technician, settings, payload, field, code):

@@ -87,7 +87,13 @@ def test_visit_with_two_photos(kestrel, signed_in, technician, media_root):
     ]
     response = client.post(
         reverse("web:visit-create", kwargs={"code": "KV-001"}),
-        {"visited_on": "2024-06-02", "condition": "poor", "visitor": "Crew 3 (invented)", "notes": "Disk bent.", "photos": photos},
+        {
+            "visited_on": "2024-06-02",
+            "condition": "poor",
+            "visitor": "Crew 3 (invented)",
+            "notes": "Disk bent.",
+            "photos": photos,
+        },
     )
     assert response.status_code == 302, response.content.decode()[:2000]
     visit = Visit.objects.get(mark__code="KV-001", visited_on="2024-06-02")
@@ -97,7 +103,9 @@ def test_visit_with_two_photos(kestrel, signed_in, technician, media_root):
     assert all(a.kind == "photo" for a in attachments)
     actions = list(AuditEvent.objects.filter(actor=technician).values_list("action", flat=True))
     assert actions.count("visit_record") >= 2  # the scenario's visit and this one
-    assert AuditEvent.objects.filter(action="attachment_add", object_id__in=[str(a.pk) for a in attachments]).count() == 2
+    assert (
+        AuditEvent.objects.filter(action="attachment_add", object_id__in=[str(a.pk) for a in attachments]).count() == 2
+    )
 
 
 @pytest.mark.django_db
@@ -195,7 +203,12 @@ def test_occupation_slant_is_reduced_and_files_attached(kestrel, signed_in, mana
     [
         ({"end_utc": "2024-05-03 13:59"}, "end_utc", b"ends before it starts"),
         (
-            {"antenna_height_kind": "slant", "antenna_height_measured_m": "0.05", "antenna_radius_m": "0.0953", "arp_offset_m": "-0.03"},
+            {
+                "antenna_height_kind": "slant",
+                "antenna_height_measured_m": "0.05",
+                "antenna_radius_m": "0.0953",
+                "arp_offset_m": "-0.03",
+            },
             "antenna_height_measured_m",
             b"shorter than the antenna radius",
         ),

@@ -250,7 +250,9 @@ def test_publish_supersedes_and_audits(pair, signed_in, manager):
     assert (pub.state, obs.state, pub.superseded_by_id) == ("superseded", "published", obs.pk)
     mark = Mark.objects.get(code="TS-01")
     assert (mark.search_lat_deg, mark.search_lon_deg) == (obs.lat_deg, obs.lon_deg)
-    assert AuditEvent.objects.filter(action="position_publish", object_id=str(obs.pk), note="Compatible re-observation.").exists()
+    assert AuditEvent.objects.filter(
+        action="position_publish", object_id=str(obs.pk), note="Compatible re-observation."
+    ).exists()
     assert AuditEvent.objects.filter(action="position_supersede", object_id=str(pub.pk)).exists()
 
 
