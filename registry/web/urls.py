@@ -4,8 +4,8 @@ from django.conf import settings
 from django.urls import path
 
 from registry.web import auth_views, convert_views, import_views, job_views, mark_views, views
-from registry.web.accuracy_views import accuracy_page  # accuracy area
 from registry.web import fieldwork_views, nearby_views, position_views  # fieldwork and position pages
+from registry.web.accuracy_views import accuracy_page  # accuracy area
 
 app_name = "web"
 
