@@ -3,8 +3,17 @@
 from django.conf import settings
 from django.urls import path
 
-from registry.web import auth_views, convert_views, import_views, job_views, mark_views, views
-from registry.web import fieldwork_views, nearby_views, position_views  # fieldwork and position pages
+from registry.web import (  # fieldwork and position pages
+    auth_views,
+    convert_views,
+    fieldwork_views,
+    import_views,
+    job_views,
+    mark_views,
+    nearby_views,
+    position_views,
+    views,
+)
 from registry.web.accuracy_views import accuracy_page  # accuracy area
 
 app_name = "web"
