@@ -3,7 +3,7 @@
 from django.conf import settings
 from django.urls import path
 
-from registry.web import (  # fieldwork and position pages
+from registry.web import (
     auth_views,
     convert_views,
     fieldwork_views,
