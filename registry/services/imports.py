@@ -193,6 +193,12 @@ def _last_position_change(mark: Mark, frame_epsg: int) -> str:
     return f"last {verb} by {who} at {_when(latest.decided_at)}"
 
 
+def _moved(in_file: int, in_registry: int) -> str:
+    if in_file > in_registry:
+        return "does not match this file (the file is ahead of the registry: made from another registry, or edited?)"
+    return "was changed since this file was made"
+
+
 def _concurrency_errors(records: list[MarkRecord], existing: dict[str, Mark], overwrite: bool) -> list[RowError]:
     """Stale or unversioned rows of existing marks (the ``--update`` check, before anything is written)."""
     marks = [existing[r.code] for r in records if r.code in existing]
@@ -231,7 +237,7 @@ def _concurrency_errors(records: list[MarkRecord], existing: dict[str, Mark], ov
             err(
                 record,
                 "stale_row",
-                f"mark {record.code} was changed since this file was made: file version {record.version}, "
+                f"mark {record.code} {_moved(record.version, mark.version)}: file version {record.version}, "
                 f"registry version {mark.version}, last changed {_last_mark_change(mark)}",
                 VERSION_FIELD,
             )
@@ -244,7 +250,7 @@ def _concurrency_errors(records: list[MarkRecord], existing: dict[str, Mark], ov
                 err(
                     record,
                     "stale_row",
-                    f"the position of {record.code} in EPSG:{frame} changed since this file was made: file revision "
+                    f"the position of {record.code} in EPSG:{frame} {_moved(record.position_revision, stored)}: file revision "
                     f"{record.position_revision}, {now}, {_last_position_change(mark, frame)}",
                     REVISION_FIELD,
                 )

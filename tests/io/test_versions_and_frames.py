@@ -275,3 +275,15 @@ def test_page_overwrite_needs_update(client, manager, seeded):
     upload = SimpleUploadedFile("hand.csv", text_of(TWO_FRAMES[2]).encode(), content_type="text/csv")
     response = client.post("/marks/import/", {"file": upload, "update": "on"})
     assert response.status_code == 400 and "version_required" in response.content.decode()
+
+
+def test_a_file_ahead_of_the_registry_is_refused_with_its_own_words(seeded, manager):
+    """A file from another registry (or an edited version cell) is not 'changed since': it says so."""
+    ahead = export_marks_text(fmt="csv").replace(
+        "Gate pin,other,,unknown,,,unknown,,active,,1,", "Gate pin,other,,unknown,,,unknown,,active,,7,"
+    )
+    with pytest.raises(ImportRejected) as info:
+        mark_import(actor=manager, content=ahead, filename="other.csv", update=True)
+    (error,) = info.value.errors
+    assert error.code == "stale_row" and "file version 7, registry version 1" in error.message
+    assert "the file is ahead of the registry" in error.message
