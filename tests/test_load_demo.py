@@ -273,7 +273,8 @@ def test_demo_jobs_show_three_outcomes(db, fast_hashing, viewer, as_of):
     covering = [c for c in usable if c.covers_site]
     assert len(covering) >= 5
     best = usable[0]
-    assert best.covers_site and r.chosen == [best] and r.pair is not None
+    # A single base covers the point, so no pair is proposed (a second base would add nothing).
+    assert best.covers_site and r.chosen == [best] and r.pair is None
     assert best.margin_mm >= 3.0 and best.margin_mm > usable[1].margin_mm
     assert r.statement.startswith(f"{best.mark.code} covers the whole site within 30.0 mm horizontal")
     assert len(r.check_marks) == 2 and all(cm.candidate.distance_m <= 2000.0 for cm in r.check_marks)

@@ -582,6 +582,12 @@ def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm,
             if best is None or key > best[0]:
                 best = (key, int(s))
     (cov_count, worst_margin), s = best
+    # A pair is only worth proposing when it covers more of the site than the best single base
+    # does on its own; otherwise the second base adds nothing in the field.
+    single_cov = np.bitwise_count(bits).sum(axis=1, dtype=np.int64)
+    if cov_count <= int(single_cov.max()):
+        core.info["pair_note"] = "no second base adds coverage to the best single base"
+        return
     i, j = int(pool[iu[s]]), int(pool[ju[s]])
     core.pair = (i, j)
     core.pair_coverage = cov_count / max(int(cells.sum()), 1)

@@ -453,6 +453,36 @@ def test_best_pair_covers_a_long_site_no_single_base_does():
     assert core.pair_worst_h95_mm <= 27.0
 
 
+def test_no_pair_when_a_second_base_adds_no_coverage():
+    # Regression: a far-off second base covering none of the site used to be proposed as "the best
+    # pair". Strip 0-6 km, A at its west end covers [0, 3.03 km] (hand: 27/2.4477468 - 8 = 3.0306 km);
+    # B sits 9.5 km east of A's end, beyond reach of every strip point within tolerance, so no pair
+    # covers more than A alone.
+    xs = (np.arange(240) + 0.5) * 25.0
+    pe = xs.copy()
+    pn = np.full(xs.size, 250.0)
+    core = screen_candidates(
+        pe,
+        pn,
+        np.ones(pe.size, bool),
+        np.array([0.0, 15500.0]),
+        np.array([250.0, 250.0]),
+        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0),
+        tol_h_mm=27.0,
+        tol_v_mm=1000,
+        max_baseline_m=20_000,
+        base_h_mm=np.zeros(2),
+        base_v_mm=np.zeros(2),
+        drift_h_mm=np.zeros(2),
+        drift_v_mm=np.zeros(2),
+        usable=np.ones(2, bool),
+    )
+    assert 0.45 < core.coverage[0] < 0.55
+    assert core.coverage[1] == 0.0
+    assert core.pair is None
+    assert "no second base" in core.info["pair_note"]
+
+
 def test_farthest_point_selection_spreads():
     e = np.array([0.0, 100.0, 2000.0, 1000.0, 1900.0])
     n = np.array([0.0, 0.0, 0.0, 1000.0, 100.0])
