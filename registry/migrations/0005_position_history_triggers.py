@@ -91,7 +91,7 @@ PG_BACKWARD = [
     "DROP TRIGGER IF EXISTS position_state_transition ON registry_position",
     "DROP FUNCTION IF EXISTS registry_position_state_transition()",
     # position_frozen: back to migration 0003's function (published and superseded only)
-    *[sql for sql in _0003.PG_FORWARD if "FUNCTION registry_position_frozen()" in sql],
+    *[sql for sql in _0003.PG_FORWARD if "CREATE OR REPLACE FUNCTION registry_position_frozen()" in sql],
 ]
 
 

@@ -205,3 +205,10 @@ def test_installed_trigger_names_every_frozen_column():
     missing = [c for c in POSITION_FROZEN_FIELDS if f"NEW.{c} " not in body]
     assert missing == []
     assert "'withdrawn'" in body
+
+
+def test_reverse_migration_sql_restores_0003_without_recreating_its_triggers():
+    """Regression: migrating back to 0004 on PostgreSQL once re-ran CREATE TRIGGER position_frozen."""
+    assert [sql for sql in M0005.PG_BACKWARD if "CREATE TRIGGER" in sql] == []
+    assert sum("CREATE OR REPLACE FUNCTION registry_position_frozen()" in sql for sql in M0005.PG_BACKWARD) == 1
+    assert sum(sql.startswith("CREATE TRIGGER position_frozen ") for sql in M0005.SQLITE_BACKWARD) == 1
