@@ -137,3 +137,28 @@ def check_proj(app_configs=None, **kwargs):
             )
         )
     return out
+
+
+# --- basemap tiles for the job map (web area; ids registry.W020–W029) ---
+
+
+@register()
+def check_basemap(app_configs=None, **kwargs):
+    """registry.W020: REGISTRY_BASEMAP_URL, when set, is an http(s) template with {z}, {x} and {y}."""
+    from django.conf import settings
+
+    from registry.web.basemap import basemap_url_problems
+
+    url = settings.REGISTRY.get("BASEMAP_URL") or ""
+    problems = basemap_url_problems(url)
+    if not problems:
+        return []
+    return [
+        Warning(
+            f"REGISTRY_BASEMAP_URL is not a usable tile template ({'; '.join(problems)}); the job map is drawn "
+            "without a basemap.",
+            hint="Use an XYZ template such as https://tiles.example.org/{z}/{x}/{y}.png (and set "
+            "REGISTRY_BASEMAP_ATTRIBUTION to the provider's attribution), or leave it empty for no basemap.",
+            id="registry.W020",
+        )
+    ]

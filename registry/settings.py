@@ -10,6 +10,7 @@ from the environment (see ``deploy/README.md`` for the full list):
 ``REGISTRY_DATA_DIR``    where the SQLite file, uploads and generated files live (default ``var/``)
 ``REGISTRY_GEOID_DIR``   folder holding the office's geoid grids (added to PROJ's search path)
 ``REGISTRY_BASEMAP_URL`` optional XYZ tile URL for map panels; empty: no basemap
+``REGISTRY_BASEMAP_ATTRIBUTION`` the tile provider's attribution text, shown under the map
 """
 
 from __future__ import annotations
@@ -173,7 +174,10 @@ REGISTRY = {
     "GEOID_DIR": os.environ.get("REGISTRY_GEOID_DIR", str(DATA_DIR / "grids")),
     # Default geoid model file (office grid); EGM96 (egm96_15.gtx) is the labelled fallback.
     "GEOID_MODEL": os.environ.get("REGISTRY_GEOID_MODEL", ""),
-    "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", ""),
+    # Optional XYZ tile template (https://…/{z}/{x}/{y}.png) drawn faded under the job map, loaded by the
+    # user's browser; checked at start (registry.W020). Empty: no basemap. Attribution shown in the caption.
+    "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", "").strip(),
+    "BASEMAP_ATTRIBUTION": os.environ.get("REGISTRY_BASEMAP_ATTRIBUTION", "").strip(),
     "MAX_BASELINE_M": float(os.environ.get("REGISTRY_MAX_BASELINE_M", "10000")),
     "RECOVERY_YEARS": float(os.environ.get("REGISTRY_RECOVERY_YEARS", "10")),
     # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)

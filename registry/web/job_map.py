@@ -17,6 +17,11 @@ many. Labels are placed greedily (chosen bases, check marks, then usable marks b
 excluded marks), each at the first of eight positions around its symbol that overlaps no symbol and
 no label already placed; a label with no free position is left out (its code stays in the symbol's
 tooltip), except for the chosen bases and check marks, which are always labelled.
+
+Basemap: when ``REGISTRY["BASEMAP_URL"]`` holds an XYZ tile template, the tiles covering the drawing
+are its bottom layer, faded, loaded by the user's browser (never by the server), placed unrotated
+(see :mod:`registry.web.basemap`); the caption names their source and says they are for orientation
+only. Empty setting: no basemap, the map is as before.
 """
 
 from __future__ import annotations
@@ -28,10 +33,13 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 import pyproj
+from django.conf import settings
 
 from registry.geodesy.dms import format_signed_dms
 from registry.geodesy.site import display_utm_zone
+from registry.geodesy.webmercator import tile_width_m
 from registry.services.screening import Candidate, ScreeningResult
+from registry.web.basemap import basemap_layer
 
 WIDTH_PX = 760
 HEIGHT_PX = 560
@@ -72,6 +80,13 @@ class JobMap:
     outside_excluded: int
     unlabelled: int
     labelled_codes: list[str] = field(default_factory=list)
+    #: Basemap tiles drawn (0: no basemap), their zoom, source host, attribution text, and how far
+    #: (m) tile content may sit off because tiles are not rotated by the convergence.
+    basemap_tiles: int = 0
+    basemap_zoom: int | None = None
+    basemap_host: str = ""
+    basemap_attribution: str = ""
+    basemap_offset_m: float = 0.0
 
     @property
     def outside_total(self) -> int:
@@ -306,6 +321,27 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         'stroke-width="1.4"/></pattern></defs>',
         f'<rect x="0" y="0" width="{WIDTH_PX}" height="{HEIGHT_PX}" fill="#fdfdfb" stroke="#c9c5bc"/>',
     ]
+    # Optional basemap, the bottom layer above the paper. Tiles are placed by their projected corners
+    # and NOT rotated by the meridian convergence (under 1° near a zone's central meridian, up to
+    # 3°·sin φ at its edge): orientation only (registry.web.basemap).
+    reg = settings.REGISTRY
+    edge = np.linspace(0.0, 1.0, 17)
+    out_px = np.concatenate([edge * WIDTH_PX, np.full(17, WIDTH_PX), edge[::-1] * WIDTH_PX, np.zeros(17)])
+    out_py = np.concatenate([np.zeros(17), edge * HEIGHT_PX, np.full(17, HEIGHT_PX), edge[::-1] * HEIGHT_PX])
+    o_lon, o_lat = utm(x0 + (out_px - PAD_PX) / scale, y1 - (out_py - PAD_PX) / scale, inverse=True)
+    basemap = basemap_layer(
+        reg.get("BASEMAP_URL", ""),
+        to_px=lambda lon, lat: px(*utm(lon, lat)),
+        outline_lon_deg=np.asarray(o_lon),
+        outline_lat_deg=np.asarray(o_lat),
+        ref_lon_deg=s.site.ref_lon_deg,
+        ref_lat_deg=s.site.ref_lat_deg,
+        px_per_m=scale,
+        width_px=WIDTH_PX,
+        height_px=HEIGHT_PX,
+    )
+    if basemap is not None:
+        out.append(basemap.svg)
     obstacles: list[Box] = []
     # Coverage cells (or the point).
     best = result.core.best_h95_mm if result.core is not None else np.full(gx.size, np.inf)
@@ -432,6 +468,16 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         outside_excluded=sum(1 for c in outside if c.excluded),
         unlabelled=unlabelled,
         labelled_codes=labelled,
+        basemap_tiles=basemap.tiles if basemap else 0,
+        basemap_zoom=basemap.zoom if basemap else None,
+        basemap_host=basemap.host if basemap else "",
+        basemap_attribution=(reg.get("BASEMAP_ATTRIBUTION") or "").strip() if basemap else "",
+        # Half a tile's diagonal turned by the convergence: the farthest tile content can sit off.
+        basemap_offset_m=(
+            float(tile_width_m(s.site.ref_lat_deg, basemap.zoom)) / math.sqrt(2) * abs(math.radians(convergence_deg))
+            if basemap
+            else 0.0
+        ),
     )
 
 

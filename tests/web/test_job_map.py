@@ -201,3 +201,145 @@ def test_map_frame_and_label_placement_units():
     b_start = label_box(100, 100, "ABC", (9.0, -6.0, "start"))
     b_end = label_box(100, 100, "ABC", (-9.0, -6.0, "end"))
     assert b_start.x0 == pytest.approx(109.0) and b_end.x1 == pytest.approx(91.0)
+
+
+# ----------------------------------------------------------------------------- basemap (issue 4)
+#
+# Outside reference for tile numbers: the OpenStreetMap wiki, "Slippy map tilenames"
+# (https://wiki.openstreetmap.org/wiki/Slippy_map_tilenames), formulas from memory, written here
+# with math only (not with registry.geodesy.webmercator):
+#   xtile = floor((lon + 180) / 360 · 2**z)
+#   ytile = floor((1 − ln(tan(lat) + 1/cos(lat)) / π) / 2 · 2**z)
+
+TEMPLATE = "https://tiles.example.org/{z}/{x}/{y}.png"
+
+
+def _slippy(lon_deg: float, lat_deg: float, z: int) -> tuple[float, float]:
+    """Fractional tile (x, y) from the wiki's formulas (floor gives the tile number)."""
+    lat = math.radians(lat_deg)
+    n = 2**z
+    return (lon_deg + 180.0) / 360.0 * n, (1.0 - math.log(math.tan(lat) + 1.0 / math.cos(lat)) / math.pi) / 2.0 * n
+
+
+def _images(svg: str):
+    root = ET.fromstring(svg)
+    return root, [
+        (im.get("href"), *(float(im.get(k)) for k in ("x", "y", "width", "height"))) for im in root.iter(f"{SVG}image")
+    ]
+
+
+def _with_basemap(settings, url: str, attribution: str = "") -> None:
+    settings.REGISTRY = {**settings.REGISTRY, "BASEMAP_URL": url, "BASEMAP_ATTRIBUTION": attribution}
+
+
+def test_no_basemap_when_the_setting_is_empty(crowded, viewer, client, settings):
+    _with_basemap(settings, "")
+    jm = build_job_map(job_screen(actor=viewer, code="J-MAP"))
+    assert "<image" not in jm.svg and 'class="basemap"' not in jm.svg
+    assert jm.basemap_tiles == 0 and jm.basemap_zoom is None
+    client.force_login(viewer)
+    page = client.get("/jobs/J-MAP/").content.decode()
+    assert "<image" not in page and "map-basemap" not in page
+
+
+def test_basemap_tiles_have_the_slippy_map_numbers_and_sit_under_the_marks(crowded, viewer, settings):
+    _with_basemap(settings, TEMPLATE, "Tiles © Example Tiles (invented)")
+    result = job_screen(actor=viewer, code="J-MAP")
+    jm = build_job_map(result)
+    root, images = _images(jm.svg)
+    z = jm.basemap_zoom
+    assert z is not None and jm.basemap_tiles == len(images) > 0
+    # The basemap is the bottom layer: right after the paper rect, before the coverage cells and marks.
+    children = [c.get("class") or c.tag.removeprefix(SVG) for c in root]
+    assert children.index("basemap") < children.index("coverage") < children.index("marks")
+    basemap = next(c for c in root if c.get("class") == "basemap")
+    assert float(basemap.get("opacity")) == pytest.approx(0.5)
+    # A tile is roughly 128–512 px on the drawing.
+    for _, _, _, w, h in images:
+        assert 128.0 <= w <= 512.0 and 128.0 <= h <= 512.0
+    # Every drawn base and check mark lies in the tile the wiki's formulas give for it, at the place
+    # inside that tile where its fraction says (within 3 px: unrotated tiles, 0.5 px overlap, rounding).
+    _, marks, _ = _parse(jm.svg)
+    by_href = {href: (x, y, w, h) for href, x, y, w, h in images}
+    for c in [*result.chosen, *(cm.candidate for cm in result.check_marks)]:
+        fx, fy = _slippy(c.lon_deg, c.lat_deg, z)
+        href = f"https://tiles.example.org/{z}/{math.floor(fx)}/{math.floor(fy)}.png"
+        assert href in by_href, (c.mark.code, href)
+        x, y, w, h = by_href[href]
+        mx, my = _centre(marks[c.mark.code])
+        assert mx == pytest.approx(x + 0.5 + (fx % 1.0) * (w - 1.0), abs=3.0)
+        assert my == pytest.approx(y + 0.5 + (fy % 1.0) * (h - 1.0), abs=3.0)
+    # Images are stretched into their boxes, not letter-boxed.
+    assert all(im.get("preserveAspectRatio") == "none" for im in root.iter(f"{SVG}image"))
+
+
+def _covers(images, width: float, height: float, step: float = 2.0) -> bool:
+    xs, ys = np.meshgrid(np.arange(0.0, width + 0.01, step), np.arange(0.0, height + 0.01, step))
+    hit = np.zeros(xs.shape, dtype=bool)
+    for _, x, y, w, h in images:
+        hit |= (xs >= x) & (xs <= x + w) & (ys >= y) & (ys <= y + h)
+    return bool(hit.all())
+
+
+def test_basemap_images_cover_the_whole_drawing(crowded, viewer, settings):
+    from registry.web.job_map import HEIGHT_PX, WIDTH_PX
+
+    _with_basemap(settings, TEMPLATE)
+    _, images = _images(build_job_map(job_screen(actor=viewer, code="J-MAP")).svg)
+    assert _covers(images, WIDTH_PX, HEIGHT_PX)
+    # No tile lies wholly outside the drawing.
+    assert all(x < WIDTH_PX and y < HEIGHT_PX and x + w > 0 and y + h > 0 for _, x, y, w, h in images)
+
+
+def test_the_tile_cap_lowers_the_zoom_and_still_covers(crowded, viewer, settings, monkeypatch):
+    import registry.web.basemap as basemap
+    from registry.web.job_map import HEIGHT_PX, WIDTH_PX
+
+    _with_basemap(settings, TEMPLATE)
+    result = job_screen(actor=viewer, code="J-MAP")
+    free = build_job_map(result)
+    assert 4 < free.basemap_tiles <= basemap.MAX_TILES
+    monkeypatch.setattr(basemap, "MAX_TILES", 4)
+    capped = build_job_map(result)
+    assert capped.basemap_tiles <= 4 and capped.basemap_zoom < free.basemap_zoom
+    _, images = _images(capped.svg)
+    assert _covers(images, WIDTH_PX, HEIGHT_PX)
+
+
+def test_a_hostile_template_is_escaped_and_a_bad_scheme_draws_nothing(crowded, viewer, client, settings):
+    hostile = 'https://tiles.example.org/{z}/{x}/{y}.png?k="><script>alert(1)</script>&a=1'
+    _with_basemap(settings, hostile, "<b>Tiles</b> & co")
+    jm = build_job_map(job_screen(actor=viewer, code="J-MAP"))
+    root, images = _images(jm.svg)  # still well-formed XML
+    assert images and not list(root.iter(f"{SVG}script")) and "<script" not in jm.svg
+    href = images[0][0]
+    assert href.startswith("https://tiles.example.org/") and href.endswith('"><script>alert(1)</script>&a=1')
+    client.force_login(viewer)
+    page = client.get("/jobs/J-MAP/").content.decode()
+    assert "&lt;b&gt;Tiles&lt;/b&gt; &amp; co" in page and "<b>Tiles</b>" not in page
+    assert "for orientation only" in page and "not rotated by the meridian convergence" in page
+    for bad in ("javascript:alert(1)//{z}/{x}/{y}", "https://tiles.example.org/{z}/{x}.png", "tiles/{z}/{x}/{y}.png"):
+        _with_basemap(settings, bad)
+        jm = build_job_map(job_screen(actor=viewer, code="J-MAP"))
+        assert "<image" not in jm.svg and jm.basemap_tiles == 0, bad
+
+
+@pytest.mark.parametrize(
+    ("url", "warns"),
+    [
+        ("", False),
+        (TEMPLATE, False),
+        ("http://127.0.0.1:8001/t/{z}/{x}/{y}.png", False),
+        ("ftp://tiles.example.org/{z}/{x}/{y}.png", True),
+        ("javascript:alert(1)//{z}/{x}/{y}", True),
+        ("https://tiles.example.org/{z}/{x}.png", True),
+        ("https://tiles.example.org/{zoom}/{x}/{y}.png", True),
+        ("https:///{z}/{x}/{y}.png", True),
+    ],
+)
+def test_system_check_w020(settings, url, warns):
+    from django.core.checks import run_checks
+
+    _with_basemap(settings, url)
+    ids = [m.id for m in run_checks() if m.id == "registry.W020"]
+    assert ids == (["registry.W020"] if warns else [])
