@@ -81,6 +81,15 @@ CAUTIONS = (
 )
 
 
+#: Where each error-budget term comes from (the base term's text is per candidate: ``Candidate.base_description``).
+BUDGET_TERM_DESCRIPTIONS = (
+    ("rtk", "receiver a + b·d at the farthest site point (job's error model)"),
+    ("base", "published position's σ from its covariance, plus any frame change's stated accuracy"),
+    ("drift", "epoch change to the job's epoch (velocity σ × |Δt|, or the assumed rate × |Δt|)"),
+    ("setup", "base centring (per axis) and antenna height"),
+)
+
+
 @dataclass(frozen=True)
 class ScreeningSettings:
     """Everything a screening needs besides the marks (from a job, or given ad hoc)."""
@@ -313,12 +322,7 @@ def _candidate_dict(c: Candidate) -> dict[str, Any]:
         if c.budget is None
         else [
             {"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"]), "description": d}
-            for t, d in (
-                ("rtk", "receiver a + b·d at the farthest site point (job's error model)"),
-                ("base", c.base_description()),
-                ("drift", "epoch change to the job's epoch (velocity σ × |Δt|, or the assumed rate × |Δt|)"),
-                ("setup", "base centring (per axis) and antenna height"),
-            )
+            for t, d in ((t, c.base_description() if t == "base" else d) for t, d in BUDGET_TERM_DESCRIPTIONS)
         ],
         "sigma_h_mm": None if c.budget is None else _mm(c.budget["sigma_h"]),
         "sigma_v_mm": None if c.budget is None else _mm(c.budget["sigma_v"]),

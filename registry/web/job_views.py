@@ -2,7 +2,8 @@
 and the export of the chosen bases and check marks (CSV, GeoJSON) for field controllers.
 
 Views parse input and render; writes go through :mod:`registry.services.jobs`, the screening
-through :mod:`registry.services.screening` (the same calls the API and the command make).
+through :mod:`registry.services.screening` (the same calls the API and the command make), cached per
+job and registry state by :mod:`registry.services.screening_cache` so the page and its exports share it.
 """
 
 from __future__ import annotations
@@ -10,6 +11,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import math
 
 from django import forms
 from django.contrib import messages
@@ -25,7 +27,8 @@ from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.roles import Ability, has_ability
 from registry.services.access import access_job_by_code
 from registry.services.jobs import job_create, job_update
-from registry.services.screening import ScreeningResult, job_screen
+from registry.services.screening import BUDGET_TERM_DESCRIPTIONS, ScreeningResult
+from registry.services.screening_cache import job_screen_cached
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.job_map import build_job_map, legend_rows
 from registry.web.views import ability_required
@@ -225,12 +228,16 @@ def _grouped(value: float) -> str:
 
 
 def _row(c, role: str) -> dict:
+    dh_known = math.isfinite(c.max_dh_m)
     return {
         "c": c,
         "role": role,
         "budget": c.budget,
         "coverage_pct": c.coverage * 100,
         "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
+        "dh_m": c.max_dh_m if dh_known else None,
+        "dh_warn": dh_known and c.max_dh_m > rtk.HEIGHT_DIFFERENCE_WARN_M,
+        "base_title": c.base_description() if c.budget else "",
     }
 
 
@@ -271,13 +278,16 @@ def _screening_context(result: ScreeningResult) -> dict:
         "boundary_count": int((~result.grid.is_cell).sum()),
         "area_text": f"{_grouped(area_m2)} m² ({area_m2 / 10_000:.1f} ha)",
         "max_baseline_text": f"{_grouped(result.settings.max_baseline_m)} m",
+        "budget_terms": dict(BUDGET_TERM_DESCRIPTIONS),
+        "site_heights_count": len(result.settings.site.heights_m),
+        "dh_warn_m": rtk.HEIGHT_DIFFERENCE_WARN_M,
     }
 
 
 @ability_required(Ability.VIEW)
 def job_page(request: HttpRequest, code: str) -> HttpResponse:
     job = access_job_by_code(request.user, code)
-    result = job_screen(actor=request.user, code=code)
+    result = job_screen_cached(actor=request.user, code=code)
     context = {"job": job, "can_manage": has_ability(request.user, Ability.MANAGE), **_screening_context(result)}
     return render(request, "registry/job_detail.html", context)
 
@@ -419,7 +429,7 @@ def export_rows(result: ScreeningResult) -> list[dict]:
 
 @ability_required(Ability.VIEW)
 def job_export_csv(request: HttpRequest, code: str) -> HttpResponse:
-    result = job_screen(actor=request.user, code=code)
+    result = job_screen_cached(actor=request.user, code=code)
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=EXPORT_COLUMNS, lineterminator="\r\n")
     writer.writeheader()
@@ -431,7 +441,7 @@ def job_export_csv(request: HttpRequest, code: str) -> HttpResponse:
 
 @ability_required(Ability.VIEW)
 def job_export_geojson(request: HttpRequest, code: str) -> HttpResponse:
-    result = job_screen(actor=request.user, code=code)
+    result = job_screen_cached(actor=request.user, code=code)
     features = []
     for row in export_rows(result):
         props = {k: v for k, v in row.items() if k not in ("lat_deg", "lon_deg", "h_m")}

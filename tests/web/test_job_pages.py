@@ -196,3 +196,129 @@ def test_manager_edit_and_conflict(client, manager, make_user, scenario):
     body = r.content.decode()
     assert "someone changed this job" in body and "45.0" in body
     assert Job.objects.get(code="J-WEB").tol_h_mm == 40.0
+
+
+# ----------------------------------------------------------------------------- screening cache (review S-11)
+
+
+@pytest.fixture
+def empty_cache():
+    from django.core.cache import cache
+
+    cache.clear()
+    yield
+    cache.clear()
+
+
+def _counting_screen():
+    """Patch the screening with a wrapper that counts calls and still runs the real computation."""
+    from unittest import mock
+
+    from registry.services import screening
+
+    return mock.patch.object(screening, "job_screen", wraps=screening.job_screen)
+
+
+def test_job_page_and_exports_share_one_screening(client, viewer, scenario, empty_cache):
+    client.force_login(viewer)
+    with _counting_screen() as spy:
+        first = client.get("/jobs/J-WEB/")
+        assert spy.call_count == 1
+        second = client.get("/jobs/J-WEB/")
+        csv_body = client.get("/jobs/J-WEB/control.csv").content.decode()
+        geo = json.loads(client.get("/jobs/J-WEB/control.geojson").content)
+        assert spy.call_count == 1  # the second view and both exports came from the cache
+    assert first.status_code == second.status_code == 200
+    ranked = lambda body: body.split('<table class="ranked">')[1].split("</table>")[0]  # noqa: E731
+    assert ranked(first.content.decode()) == ranked(second.content.decode())
+    assert "BASE-N" in csv_body and geo["features"]
+    # The permission check still runs on a cache hit: a signed-out client is sent to sign in.
+    client.logout()
+    with _counting_screen() as spy:
+        assert client.get("/jobs/J-WEB/control.csv").status_code == 302
+        assert spy.call_count == 0
+
+
+def test_any_audited_write_invalidates_the_cached_screening(client, viewer, technician, manager, scenario, empty_cache):
+    import datetime as dt
+
+    from registry.services.fieldwork import visit_record
+    from registry.services.jobs import job_update
+
+    client.force_login(viewer)
+    with _counting_screen() as spy:
+        before = client.get("/jobs/J-WEB/").content.decode()
+        assert 'data-code="BASE-N"' in before.split('<table class="ranked">')[1].split("</table>")[0]
+        # A technician reports the best base destroyed, through the service (one audit row).
+        visit_record(
+            actor=technician,
+            mark_code="BASE-N",
+            data={"visited_on": dt.date.today().isoformat(), "condition": "destroyed"},
+        )
+        after = client.get("/jobs/J-WEB/").content.decode()
+        assert spy.call_count == 2
+        excluded = after.split('<details class="more more-excluded">')[1].split("</details>")[0]
+        assert 'data-code="BASE-N"' in excluded and "last_visit_destroyed" in excluded
+        client.get("/jobs/J-WEB/")
+        assert spy.call_count == 2
+        # A job change (new version) invalidates too, and the page shows the new tolerance.
+        job_update(actor=manager, code="J-WEB", expected_version=1, changes={"tol_h_mm": 60})
+        body = client.get("/jobs/J-WEB/").content.decode()
+        assert spy.call_count == 3 and "60.0</span> mm horizontal (circle)" in body
+
+
+def test_cache_key_follows_as_of_and_settings(viewer, scenario, settings, empty_cache):
+    import datetime as dt
+
+    from registry.services.screening_cache import screening_cache_key
+
+    job = Job.objects.get(code="J-WEB")
+    key = screening_cache_key(job, dt.date(2025, 7, 1))
+    assert key == screening_cache_key(job, dt.date(2025, 7, 1))
+    assert key != screening_cache_key(job, dt.date(2025, 7, 2))
+    settings.REGISTRY = {**settings.REGISTRY, "PLATE": "EURA" if settings.REGISTRY.get("PLATE") != "EURA" else "NOAM"}
+    assert key != screening_cache_key(job, dt.date(2025, 7, 1))
+
+
+# ----------------------------------------------------------------------------- |Δh| and budget-term legend
+
+
+def _dh_cell(body: str, code: str) -> str:
+    row = re.search(rf'<tr data-code="{code}">(.*?)</tr>', body, re.S).group(1)
+    return re.search(r'<td class="num dh">(.*?)</td>', row, re.S).group(1)
+
+
+def test_height_difference_column_and_warning(client, viewer, db, empty_cache):
+    # Invented marks at h = 1500.000 m (tests.services.test_screening.make_mark); site point at 1850 m.
+    make_mark("HI-1", 400.0, 10.0)
+    make_job(code="J-HIGH", site={"type": "Point", "coordinates": [SITE_LON, SITE_LAT, 1850.0]})
+    make_job(code="J-LOW", site={"type": "Point", "coordinates": [SITE_LON, SITE_LAT, 1620.0]})
+    client.force_login(viewer)
+    high = client.get("/jobs/J-HIGH/").content.decode()
+    # |1850 − 1500| = 350 m (hand arithmetic), above the 300 m warning threshold (common practice,
+    # registry.geodesy.rtk.HEIGHT_DIFFERENCE_WARN_M).
+    cell = _dh_cell(high, "HI-1")
+    assert "over 300 m" in cell and "350.0" in cell and "state-dh-over" in cell
+    assert "|Δh| (m)" in high and "no-site-heights" not in high
+    assert 'site\'s <span class="num">1</span> given height' in high
+    low = client.get("/jobs/J-LOW/").content.decode()
+    # |1620 − 1500| = 120 m (hand arithmetic): shown, no warning.
+    assert _dh_cell(low, "HI-1").strip() == "120.0"
+
+
+def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, empty_cache):
+    from registry.services.screening import BUDGET_TERM_DESCRIPTIONS
+
+    client.force_login(viewer)
+    body = client.get("/jobs/J-WEB/").content.decode()
+    assert 'class="small muted dh-note no-site-heights"' in body and "the site has no heights" in body
+    assert _dh_cell(body, "BASE-N").strip() == "—"
+    legend = body.split('<dl class="budget-terms small">')[1].split("</dl>")[0]
+    ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
+    from django.utils.html import escape
+
+    for term, words in BUDGET_TERM_DESCRIPTIONS:
+        assert escape(words) in legend
+        assert f'title="{escape(words)}"' in ranked  # tooltip on the budget column headers
+    # The per-mark base tooltip names the covariance origin of that mark's base term.
+    assert "published position&#x27;s σ from its covariance (horizontal √λmax" in ranked
