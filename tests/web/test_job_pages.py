@@ -317,7 +317,7 @@ def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, e
     ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
     from django.utils.html import escape
 
-    for term, words in BUDGET_TERM_DESCRIPTIONS:
+    for _term, words in BUDGET_TERM_DESCRIPTIONS:
         assert escape(words) in legend
         assert f'title="{escape(words)}"' in ranked  # tooltip on the budget column headers
     # The per-mark base tooltip names the covariance origin of that mark's base term.
