@@ -1,9 +1,11 @@
-"""Writes on user accounts: create a user, set a user's roles (admin ability, audited).
+"""Writes on user accounts: create a user, set a user's roles, deactivate or reactivate a user
+(admin ability, audited).
 
 Roles are Django groups (:mod:`registry.roles`). Giving someone the manager role lets them publish
 positions, so a role change is a write like any other: one transaction, a role check, validation and
-an audit row (``user_create``, ``user_set_roles``) with the roles before and after. Passwords never
-appear in the audit trail.
+an audit row (``user_create``, ``user_set_roles``, ``user_set_active``) with the values before and
+after. Passwords never appear in the audit trail. Accounts are never deleted (the audit trail refers
+to them); a deactivated account cannot sign in or use its API token.
 
 The change is refused when it would leave the registry without an active administrator (a user in
 the admin group, or a superuser), so an admin cannot lock the office out by mistake.
@@ -198,3 +200,96 @@ def user_create(
             },
         )
     return candidate
+
+
+def _lock_active_admins() -> None:
+    """Lock the rows of the active administrators (by id, in id order) until the transaction ends."""
+    User = get_user_model()
+    ids = set(User.objects.filter(is_active=True, is_superuser=True).values_list("pk", flat=True))
+    ids |= set(User.objects.filter(is_active=True, groups__name=Role.ADMIN.value).values_list("pk", flat=True))
+    list(User.objects.select_for_update().filter(pk__in=ids).order_by("pk").values_list("pk", flat=True))
+
+
+def user_set_active(*, actor, username: str, active: bool, note: str):
+    """Deactivate (``active=False``) or reactivate (``active=True``) an account (admin ability; audited).
+
+    A deactivated account keeps its roles and its place in the audit trail, but can no longer sign in:
+    Django's authentication backend refuses inactive users, so its open sessions and its API token stop
+    working at the next request.
+
+    Parameters
+    ----------
+    actor
+        The administrator making the change (ability ADMINISTER).
+    username
+        The account to change.
+    active
+        The wanted state (a real bool).
+    note
+        The reason (required, stored with the audit row).
+
+    Returns
+    -------
+    User
+        The changed user.
+
+    Raises
+    ------
+    PermissionDeniedError
+        ``actor`` lacks the ADMINISTER ability.
+    NotFound
+        No such user.
+    ValidationError
+        ``invalid_type`` (``active`` is not a bool); ``required`` (no note); ``active_unchanged``
+        (already in that state, nothing written); ``self_deactivation`` (an administrator cannot
+        deactivate their own account); ``last_admin`` (no active administrator would remain).
+    """
+    require_ability(actor, Ability.ADMINISTER)
+    if not isinstance(active, bool):
+        raise ValidationError({"active": ValidationError("Give true or false.", code="invalid_type")})
+    note = note.strip() if isinstance(note, str) else ""
+    if not note:
+        raise ValidationError(
+            {"note": ValidationError("Give the reason; it is stored in the audit trail.", code="required")}
+        )
+    with transaction.atomic():
+        _lock_active_admins()  # two admins deactivating each other at once: the second waits, then is refused
+        user = _access_user(username)
+        if user.is_active == active:
+            raise ValidationError(
+                {
+                    "active": ValidationError(
+                        "%(user)s is already %(state)s.",
+                        code="active_unchanged",
+                        params={"user": user.username, "state": "active" if active else "inactive"},
+                    )
+                }
+            )
+        if not active and user.pk == getattr(actor, "pk", None):
+            raise ValidationError(
+                {
+                    "username": ValidationError(
+                        "You cannot deactivate your own account; ask another administrator.",
+                        code="self_deactivation",
+                    )
+                }
+            )
+        user.is_active = active
+        user.save(update_fields=["is_active"])
+        if not _active_admins_exist():
+            raise ValidationError(
+                {
+                    "active": ValidationError(
+                        "This would leave the registry without an active administrator.", code="last_admin"
+                    )
+                }
+            )  # the transaction rolls back: nothing changed
+        audit_record(
+            actor=actor,
+            action="user_set_active",
+            obj=user,
+            before={"username": user.username, "is_active": not active},
+            after={"username": user.username, "is_active": active},
+            note=note,
+        )
+    return user

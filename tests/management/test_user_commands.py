@@ -92,3 +92,38 @@ def test_production_does_not_mount_the_admin_site():
     development = run_python(["-c", code])
     assert production.stdout.strip().splitlines()[-1] == "absent", production.stderr
     assert development.stdout.strip().splitlines()[-1] == "mounted", development.stderr
+
+
+def test_set_active_command_off_and_on(ada, viewer, capsys):
+    call_command("set_active", "vera", "--off", "--as", "ada", "--note", "left the office")
+    assert "vera is now inactive: cannot sign in" in capsys.readouterr().out
+    viewer.refresh_from_db()
+    assert not viewer.is_active
+    event = AuditEvent.objects.get(action="user_set_active")
+    assert event.actor == ada and event.note == "left the office" and event.after["is_active"] is False
+    call_command("set_active", "vera", "--on", "--as", "ada", "--note", "back")
+    viewer.refresh_from_db()
+    assert viewer.is_active and AuditEvent.objects.filter(action="user_set_active").count() == 2
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (["vera", "--off", "--as", "vera", "--note", "x"], "does not allow you to administer"),
+        (["vera", "--off", "--as", "ghost", "--note", "x"], "no user named 'ghost'"),
+        (["ghost", "--off", "--as", "ada", "--note", "x"], "No user named 'ghost'"),
+        (["ada", "--off", "--as", "ada", "--note", "x"], "cannot deactivate your own account"),
+        (["vera", "--on", "--as", "ada", "--note", "x"], "vera is already active"),
+        (["vera", "--off", "--as", "ada", "--note", " "], "Give the reason"),
+        (["vera", "--as", "ada", "--note", "x"], "one of the arguments --off --on is required"),
+        (["vera", "--off", "--on", "--as", "ada", "--note", "x"], "not allowed with argument"),
+        (["vera", "--off", "--as", "ada"], "the following arguments are required: --note"),
+    ],
+)
+def test_set_active_refusals_change_nothing(ada, viewer, args, message):
+    with pytest.raises(CommandError, match=message):
+        call_command("set_active", *args)
+    viewer.refresh_from_db()
+    ada.refresh_from_db()
+    assert viewer.is_active and ada.is_active
+    assert not AuditEvent.objects.exists()

@@ -124,3 +124,93 @@ def test_create_user_bad_input(ada, viewer, kwargs, field, code):
 def test_create_user_needs_admin(manager):
     with pytest.raises(PermissionDeniedError):
         user_create(actor=manager, username="tomas", roles=["admin"])
+
+
+# ----------------------------------------------------------------------------- user_set_active
+
+
+def test_deactivate_and_reactivate_with_one_audit_row_each(ada, viewer, client):
+    from registry.services.users import user_set_active
+
+    client.force_login(viewer)
+    assert client.get("/marks/").status_code == 200
+    user_set_active(actor=ada, username="vera", active=False, note="left the office")
+    viewer.refresh_from_db()
+    assert not viewer.is_active and role_names(viewer) == ["viewer"]  # roles kept
+    # The open session no longer authenticates (Django's ModelBackend refuses inactive users),
+    # nor does the API token (DRF's TokenAuthentication refuses inactive users).
+    assert client.get("/marks/").status_code == 302
+    from rest_framework.authtoken.models import Token
+
+    token = Token.objects.create(user=viewer)
+    assert client.get("/api/marks/", HTTP_AUTHORIZATION=f"Token {token.key}").status_code == 401
+    (event,) = AuditEvent.objects.filter(action="user_set_active")
+    assert (event.actor, event.object_type, event.object_id, event.note) == (
+        ada,
+        "user",
+        str(viewer.pk),
+        "left the office",
+    )
+    assert event.before == {"username": "vera", "is_active": True}
+    assert event.after == {"username": "vera", "is_active": False}
+    user_set_active(actor=ada, username="vera", active=True, note="back for the field season")
+    viewer.refresh_from_db()
+    assert viewer.is_active
+    assert client.get("/api/marks/", HTTP_AUTHORIZATION=f"Token {token.key}").status_code == 200
+    assert [e.after["is_active"] for e in AuditEvent.objects.filter(action="user_set_active").order_by("id")] == [
+        False,
+        True,
+    ]
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "field", "code"),
+    [
+        ({"username": "vera", "active": True, "note": "x"}, "active", "active_unchanged"),
+        ({"username": "vera", "active": "no", "note": "x"}, "active", "invalid_type"),
+        ({"username": "vera", "active": False, "note": "  "}, "note", "required"),
+        ({"username": "ada", "active": False, "note": "x"}, "username", "self_deactivation"),
+    ],
+)
+def test_set_active_refusals_change_nothing(ada, viewer, kwargs, field, code):
+    from registry.services.users import user_set_active
+
+    with pytest.raises(ValidationError) as info:
+        user_set_active(actor=ada, **kwargs)
+    assert codes_of(info.value) == {field: [code]}
+    ada.refresh_from_db()
+    viewer.refresh_from_db()
+    assert ada.is_active and viewer.is_active
+    assert not AuditEvent.objects.exists()
+
+
+def test_set_active_needs_admin_and_an_existing_user(ada, manager, viewer):
+    from registry.services.users import user_set_active
+
+    with pytest.raises(PermissionDeniedError):
+        user_set_active(actor=manager, username="vera", active=False, note="x")
+    with pytest.raises(NotFound):
+        user_set_active(actor=ada, username="nobody", active=False, note="x")
+    viewer.refresh_from_db()
+    assert viewer.is_active and not AuditEvent.objects.exists()
+
+
+def test_the_last_active_admin_cannot_be_deactivated(ada, make_user, django_user_model):
+    """An actor holding the administer permission directly (no admin role) tries to deactivate the only admin."""
+    from django.contrib.auth.models import Permission
+
+    from registry.services.users import user_set_active
+
+    helper = make_user("hal", None)
+    helper.user_permissions.add(Permission.objects.get(codename=Ability.ADMINISTER.value))
+    helper = django_user_model.objects.get(pk=helper.pk)  # fresh permission cache
+    assert has_ability(helper, Ability.ADMINISTER)
+    with pytest.raises(ValidationError) as info:
+        user_set_active(actor=helper, username="ada", active=False, note="x")
+    assert codes_of(info.value) == {"active": ["last_admin"]}
+    ada.refresh_from_db()
+    assert ada.is_active and not AuditEvent.objects.exists()  # rolled back
+    make_user("bo", "admin")
+    user_set_active(actor=helper, username="ada", active=False, note="another admin remains")
+    ada.refresh_from_db()
+    assert not ada.is_active
