@@ -186,6 +186,10 @@ class OccupationForm(ServiceErrorsMixin, forms.Form):
 # ----------------------------------------------------------------------------- position
 
 
+SIGMA_MAX_MM = 100_000.0
+VELOCITY_MAX_MM_YR = 1_000.0
+
+
 class PositionForm(ServiceErrorsMixin, forms.Form):
     frame_choice = forms.ChoiceField(label="Frame")
     frame_other = forms.IntegerField(
@@ -198,14 +202,26 @@ class PositionForm(ServiceErrorsMixin, forms.Form):
     lat = AngleField(kind="lat", label="Latitude", help_text="Decimal degrees (45.2) or D M S (45 12 03.51234 N).")
     lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees (-110.6) or D M S (110 36 00.0 W).")
     h_m = forms.FloatField(label="Ellipsoidal height h (m)")
-    sigma_e_mm = forms.FloatField(label="σ east (mm)", min_value=0.0, help_text="One standard deviation.")
-    sigma_n_mm = forms.FloatField(label="σ north (mm)", min_value=0.0)
-    sigma_u_mm = forms.FloatField(label="σ up (mm)", min_value=0.0)
-    vel_e_mm_yr = forms.FloatField(
-        label="Velocity east (mm/yr)", required=False, help_text="Optional: all three or none."
+    # Upper bounds: a σ above 100 m is a unit mistake (the services refuse it too) and keeps the
+    # squaring into m² finite; 1 m/yr is far beyond any tectonic or local motion of a mark.
+    sigma_e_mm = forms.FloatField(
+        label="σ east (mm)", min_value=0.0, max_value=SIGMA_MAX_MM, help_text="One standard deviation."
     )
-    vel_n_mm_yr = forms.FloatField(label="Velocity north (mm/yr)", required=False)
-    vel_u_mm_yr = forms.FloatField(label="Velocity up (mm/yr)", required=False)
+    sigma_n_mm = forms.FloatField(label="σ north (mm)", min_value=0.0, max_value=SIGMA_MAX_MM)
+    sigma_u_mm = forms.FloatField(label="σ up (mm)", min_value=0.0, max_value=SIGMA_MAX_MM)
+    vel_e_mm_yr = forms.FloatField(
+        label="Velocity east (mm/yr)",
+        required=False,
+        min_value=-VELOCITY_MAX_MM_YR,
+        max_value=VELOCITY_MAX_MM_YR,
+        help_text="Optional: all three or none.",
+    )
+    vel_n_mm_yr = forms.FloatField(
+        label="Velocity north (mm/yr)", required=False, min_value=-VELOCITY_MAX_MM_YR, max_value=VELOCITY_MAX_MM_YR
+    )
+    vel_u_mm_yr = forms.FloatField(
+        label="Velocity up (mm/yr)", required=False, min_value=-VELOCITY_MAX_MM_YR, max_value=VELOCITY_MAX_MM_YR
+    )
     source = forms.CharField(max_length=200, help_text="Campaign, adjustment or occupation the solution comes from.")
     note = forms.CharField(widget=forms.Textarea(attrs={"rows": 2}), required=False)
     service_field_map = {

@@ -156,6 +156,9 @@ def test_propose_with_dms_writes_position_and_audit(kestrel, signed_in, technici
         ({"frame_choice": "other", "frame_other": "4326"}, "frame_other", b"geographic 3D"),
         ({"epoch_yr": "1850"}, "epoch_yr", b"1900"),
         ({"source": ""}, "source", b"required"),
+        # Regression: 1e300 mm used to overflow when squared into m² and gave a server error.
+        ({"sigma_e_mm": "1e300"}, "sigma_e_mm", b"less than or equal to"),
+        ({"vel_e_mm_yr": "1e300", "vel_n_mm_yr": "0", "vel_u_mm_yr": "0"}, "vel_e_mm_yr", b"less than or equal to"),
     ],
 )
 def test_propose_bad_input_changes_nothing(kestrel, signed_in, technician, changes, field, text):
