@@ -8,6 +8,18 @@ from __future__ import annotations
 import pytest
 
 
+@pytest.fixture(autouse=True)
+def _fresh_cache():
+    """Empty Django's cache around each test, as the database is: the cached job screening
+    (registry.services.screening_cache) is keyed on audit rows, which fixtures writing models
+    directly do not make."""
+    from django.core.cache import cache
+
+    cache.clear()
+    yield
+    cache.clear()
+
+
 @pytest.fixture
 def roles(db):
     from registry.roles import ensure_roles

@@ -311,9 +311,9 @@ def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, e
 
     client.force_login(viewer)
     body = client.get("/jobs/J-WEB/").content.decode()
-    assert 'class="small muted dh-note no-site-heights"' in body and "the site has no heights" in body
-    assert _dh_cell(body, "BASE-N").strip() == "—"
-    legend = body.split('<dl class="budget-terms small">')[1].split("</dl>")[0]
+    assert 'class="dh-note no-site-heights"' in body and "the site has no heights" in body
+    assert "|Δh| (m)" not in body and 'class="num dh"' not in body  # no column of dashes
+    legend = body.split('<span class="budget-terms">')[1].split("</span>")[0]
     ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
     from django.utils.html import escape
 
