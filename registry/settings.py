@@ -167,9 +167,11 @@ REGISTRY = {
     # Assumed unmodelled horizontal/vertical rate for marks without a velocity (mm/yr per axis).
     "ASSUMED_RATE_MM_YR": float(os.environ.get("REGISTRY_ASSUMED_RATE_MM_YR", "2.0")),
     # Plate of the ITRF2020 plate motion model (Altamimi et al. 2023) used to move a position without
-    # its own velocity to another epoch in a dynamic frame (ITRF): "NOAM" suits the demo district; set
-    # your office's plate (registry/geodesy/platemotion.py lists them); empty: no model, a warning only.
-    "PLATE": os.environ.get("REGISTRY_PLATE", "NOAM").strip().upper(),
+    # its own velocity to another epoch in a dynamic frame (ITRF). Development and the demo default to
+    # "NOAM" (the demo district's plate); production defaults to none, because a wrong plate moves marks
+    # by centimetres a year: set your office's plate (registry/geodesy/platemotion.py lists them).
+    # Empty: no model; such positions keep a loud warning and are excluded from base screening.
+    "PLATE": os.environ.get("REGISTRY_PLATE", "" if PRODUCTION else "NOAM").strip().upper(),
     # Folder with the office's own geoid grids (added to PROJ's data search path).
     "GEOID_DIR": os.environ.get("REGISTRY_GEOID_DIR", str(DATA_DIR / "grids")),
     # Default geoid model file (office grid); EGM96 (egm96_15.gtx) is the labelled fallback.

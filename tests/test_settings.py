@@ -40,6 +40,7 @@ print(json.dumps({
     "hsts": getattr(s, "SECURE_HSTS_SECONDS", 0), "ssl_redirect": getattr(s, "SECURE_SSL_REDIRECT", False),
     "proxy_header": getattr(s, "SECURE_PROXY_SSL_HEADER", None),
     "staticfiles": s.STORAGES["staticfiles"]["BACKEND"],
+    "plate": s.REGISTRY["PLATE"],
 }))
 """
 
@@ -138,6 +139,7 @@ def test_database_url_selects_postgresql():
 def test_development_mode_defaults():
     s = settings_with()
     assert s["debug"] is True
+    assert s["plate"] == "NOAM"  # the demo district's plate, development only
     assert "127.0.0.1" in s["hosts"]
     assert s["session_secure"] is False
 
@@ -151,6 +153,10 @@ def test_production_mode_hardens_cookies_tls_and_static():
     assert s["hsts"] >= 31536000  # one year: the usual HSTS preload minimum (common practice)
     assert s["proxy_header"] == ["HTTP_X_FORWARDED_PROTO", "https"]  # nginx sets it (deploy/nginx)
     assert s["staticfiles"] == "whitenoise.storage.CompressedManifestStaticFilesStorage"
+    # No plate model unless the office names its plate: a wrong default would move ITRF positions by
+    # centimetres a year (development keeps the demo district's NOAM).
+    assert s["plate"] == ""
+    assert settings_with(**PROD, REGISTRY_PLATE="eura")["plate"] == "EURA"
 
 
 def test_check_deploy_passes_with_production_settings():

@@ -142,6 +142,9 @@ class FrameTransformResult:
     added_sigma_enu_m: tuple  # (σE, σN, σU) added by the epoch change, metres
     steps: list[Step] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    #: Years over which the point was held in a dynamic frame with neither a velocity nor a plate
+    #: model: its motion over that span is not modelled (0.0 when nothing of the kind happened).
+    unmodelled_dynamic_hold_yr: float = 0.0
 
 
 def _network_off() -> None:
@@ -401,9 +404,10 @@ def transform_position(
     zero = np.zeros_like(lat)
     sig = (zero, zero, zero)
     same_frame = src.epsg == dst.epsg
+    unmodelled_hold_yr = 0.0
 
     def _hold(frame: FrameInfo, la, lo, hh):
-        nonlocal sig
+        nonlocal sig, unmodelled_hold_yr
         added = rate_m_yr * abs(dt)
         sig = tuple(np.sqrt(s**2 + added**2) for s in sig)
         if plate_code is not None and (frame.dynamic or frame.ensemble):
@@ -423,6 +427,7 @@ def transform_position(
             )
         )
         if frame.dynamic or frame.ensemble:
+            unmodelled_hold_yr = max(unmodelled_hold_yr, abs(dt))
             warnings.append(
                 f"{frame.label} is a dynamic frame: marks move in it with their plate, typically by centimetres "
                 f"a year. Without the mark's velocity, the epoch change {t1:.3f} → {t2:.3f} is NOT modelled "
@@ -532,6 +537,7 @@ def transform_position(
         added_sigma_enu_m=sig,
         steps=steps,
         warnings=warnings,
+        unmodelled_dynamic_hold_yr=float(unmodelled_hold_yr),
     )
 
 

@@ -91,6 +91,11 @@ REASON_NO_PUBLISHED_POSITION = "no_published_position"
 REASON_FRAME_NOT_TRANSFORMABLE = "frame_not_transformable"
 REASON_BEYOND_MAX_BASELINE = "beyond_max_baseline"
 REASON_SKY_OBSTRUCTED = "sky_obstructed"
+REASON_EPOCH_GAP_DYNAMIC = "epoch_gap_dynamic_frame"
+#: Longest epoch gap (years) over which a position may be held unmodelled in a dynamic frame before
+#: it is excluded: 0.1 yr of typical plate motion (1–7 cm/yr) is 1–7 mm, still inside the assumed
+#: unmodelled rate's reach; a year is not.
+DYNAMIC_HOLD_LIMIT_YR = 0.1
 
 REASON_WORDS: dict[str, str] = {
     REASON_NOT_ACTIVE: "the mark is not active (retired or destroyed)",
@@ -102,6 +107,9 @@ REASON_WORDS: dict[str, str] = {
     REASON_FRAME_NOT_TRANSFORMABLE: "its published frame cannot be transformed to the job's frame",
     REASON_BEYOND_MAX_BASELINE: "part of the site lies beyond the maximum baseline",
     REASON_SKY_OBSTRUCTED: "its sky view is recorded as obstructed",
+    REASON_EPOCH_GAP_DYNAMIC: (
+        "its position is in a dynamic frame at another epoch, with no velocity and no plate model to move it"
+    ),
 }
 _LAST_VISIT_REASON = {
     "disturbed": REASON_LAST_VISIT_DISTURBED,

@@ -135,6 +135,8 @@ class Candidate:
     max_dh_m: float = math.nan
     steps: list[dict] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    #: Years its position was held unmodelled in a dynamic frame (see frames.FrameTransformResult).
+    unmodelled_hold_yr: float = 0.0
     # filled after the core has run
     rank: int = 0
     distance_m: float = math.nan
@@ -439,6 +441,10 @@ def _gather(s: ScreeningSettings, plane: site_geo.LocalPlane, radius_m: float, a
             transformable=transformable,
         )
         cand.reasons = rtk.rule_reasons(facts, recovery_years=s.recovery_years)
+        if cand.unmodelled_hold_yr > rtk.DYNAMIC_HOLD_LIMIT_YR:
+            # Held in ITRF (or WGS 84) across the gap with neither velocity nor plate model: the
+            # plate's centimetres a year are missing from the coordinates, not just from σ.
+            cand.reasons.append(rtk.REASON_EPOCH_GAP_DYNAMIC)
         if cand.lat_deg is None:  # no usable position: place it by its search location, for the map only
             cand.lat_deg, cand.lon_deg = mark.search_lat_deg, mark.search_lon_deg
         out.append(cand)
@@ -495,6 +501,7 @@ def _place(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
     cand.base_h_mm, cand.base_v_mm = math.hypot(float(bh), fc), math.hypot(float(bv), fc)
     cand.steps = [st.as_dict() for st in r.steps]
     cand.warnings.extend(r.warnings)
+    cand.unmodelled_hold_yr = r.unmodelled_dynamic_hold_yr
 
 
 # ----------------------------------------------------------------------------- screening

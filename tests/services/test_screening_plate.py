@@ -52,6 +52,23 @@ def test_plate_setting_off_holds_the_mark_with_the_same_drift(viewer, settings):
     assert (c.lat_deg, c.lon_deg) == (p.lat_deg, p.lon_deg)
     assert c.budget["drift"] == {"h": pytest.approx(20.0), "v": pytest.approx(20.0)}
     assert any("NOT modelled" in w for w in c.warnings)
+    # Held 10 years in ITRF with no velocity and no plate model: the plate's centimetres a year are
+    # missing from the coordinates, so the mark must never serve as a base.
+    assert c.unmodelled_hold_yr == pytest.approx(10.0)
+    assert "epoch_gap_dynamic_frame" in c.reasons
+    assert not c.covers_site
+
+
+@pytest.mark.django_db
+def test_short_unmodelled_hold_in_a_dynamic_frame_is_tolerated(viewer, settings):
+    # 0.05 yr (about 18 days) in ITRF without velocity or plate: at most a few mm of plate motion,
+    # inside the assumed-rate term; not excluded (limit rtk.DYNAMIC_HOLD_LIMIT_YR = 0.1 yr).
+    with_plate(settings, "")
+    make_mark("PM-4", 1500.0, 45.0, frame=7912, epoch=2025.45)
+    make_job(frame_epsg=7912, epoch_yr=2025.5)
+    c = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))["PM-4"]
+    assert c.unmodelled_hold_yr == pytest.approx(0.05)
+    assert "epoch_gap_dynamic_frame" not in c.reasons
 
 
 @pytest.mark.django_db
