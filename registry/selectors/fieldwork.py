@@ -99,19 +99,23 @@ def position_compatibility(*, position: Position) -> PositionCheck:
     cov_pub = _cov_enu_m2(published)
     if abs(published.epoch_yr - position.epoch_yr) > SAME_EPOCH_TOLERANCE_YR:
         velocity, velocity_sigma, whose = None, None, ""
+        rate = float(settings.REGISTRY.get("ASSUMED_RATE_MM_YR", 2.0))
+        # A velocity without a stated σ gets the assumed unmodelled rate per axis, as base screening
+        # does (services.screening._place), so the two never disagree about the same epoch gap.
         if published.has_velocity:
-            velocity = (published.vel_e_m_yr, published.vel_n_m_yr, published.vel_u_m_yr)
-            if published.vel_sigma_e_m_yr is not None:
-                velocity_sigma = (
-                    published.vel_sigma_e_m_yr,
-                    published.vel_sigma_n_m_yr or 0.0,
-                    published.vel_sigma_u_m_yr or 0.0,
-                )
+            source = published
             whose = "the published position's velocity"
         elif position.has_velocity:
-            velocity = (position.vel_e_m_yr, position.vel_n_m_yr, position.vel_u_m_yr)
+            source = position
             whose = "the proposed position's velocity"
-        rate = float(settings.REGISTRY.get("ASSUMED_RATE_MM_YR", 2.0))
+        else:
+            source = None
+        if source is not None:
+            velocity = (source.vel_e_m_yr, source.vel_n_m_yr, source.vel_u_m_yr)
+            velocity_sigma = tuple(
+                rate / 1000.0 if v is None else v
+                for v in (source.vel_sigma_e_m_yr, source.vel_sigma_n_m_yr, source.vel_sigma_u_m_yr)
+            )
         try:
             moved = transform_position(
                 lat,

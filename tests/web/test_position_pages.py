@@ -220,6 +220,9 @@ def test_compatibility_brings_published_along_its_velocity(pair, signed_in, mana
     assert "propagated along (10.0, -5.0, 0.0) mm/yr" in page
     assert "No significant movement at 95 %" in page
     assert "0.0 / 0.0 / 0.0" in page  # d after propagation, mm
+    # The velocity has no stated σ: the assumed rate stands in, as in base screening
+    # (2 mm/yr default, common practice, × 5 yr = 10.0 mm per axis added to the published covariance).
+    assert "10.0 / 10.0 / 10.0" in page
 
 
 @pytest.mark.django_db
