@@ -73,7 +73,11 @@ class JobSerializer(serializers.ModelSerializer):
 class ScreeningSettingsInput(serializers.Serializer):
     """Ad-hoc screening: the site and the job settings that matter (defaults as for a new job)."""
 
-    site_geojson = serializers.JSONField(help_text="GeoJSON Point or Polygon (longitude, latitude in degrees).")
+    site_geojson = serializers.JSONField(
+        help_text="GeoJSON Point or Polygon (longitude, latitude in degrees). An optional third coordinate is read "
+        "as the ELLIPSOIDAL height in the job's frame (not an orthometric height from a plan); it is used only "
+        "for the base-to-site height difference."
+    )
     frame_epsg = serializers.IntegerField(help_text="Deliverable frame: EPSG code of a geographic 3D CRS.")
     epoch_yr = serializers.FloatField(help_text="Deliverable coordinate epoch, decimal year.")
     tol_h_mm = serializers.FloatField(help_text="Horizontal tolerance, 95 % circle, mm.")

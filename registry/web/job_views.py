@@ -80,6 +80,10 @@ class JobForm(forms.Form):
         label="Site as GeoJSON (Point or Polygon, longitude/latitude in degrees)",
         required=False,
         widget=forms.Textarea(attrs={"rows": 5, "cols": 70, "class": "mono", "spellcheck": "false"}),
+        help_text=(
+            "An optional third coordinate is the ellipsoidal height in the job's frame (not an orthometric "
+            "height from a plan); it only feeds the base-to-site height difference."
+        ),
     )
     site_lat_deg = _text("…or a site point: latitude (decimal degrees)")
     site_lon_deg = _text("…and longitude (decimal degrees, west negative)")
