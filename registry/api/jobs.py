@@ -26,7 +26,7 @@ from rest_framework.views import APIView
 from registry.api.permissions import IsViewer, ReadViewerWriteManager
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.services.access import access_job_by_code
-from registry.services.jobs import job_create, job_update
+from registry.services.jobs import CREATE_FIELDS, job_create, job_update
 from registry.services.screening import job_screen, site_screen
 
 ERRORS = {
@@ -39,34 +39,7 @@ ERRORS = {
 class JobSerializer(serializers.ModelSerializer):
     class Meta:
         model = Job
-        fields = [
-            "code",
-            "name",
-            "client",
-            "status",
-            "site_geojson",
-            "frame_epsg",
-            "epoch_yr",
-            "grid_epsg",
-            "tol_h_mm",
-            "tol_v_mm",
-            "rtk_h_fixed_mm",
-            "rtk_h_ppm",
-            "rtk_v_fixed_mm",
-            "rtk_v_ppm",
-            "rtk_combination",
-            "rtk_h_meaning",
-            "setup_h_mm",
-            "setup_v_mm",
-            "assumed_rate_mm_yr",
-            "max_baseline_m",
-            "recovery_years",
-            "grid_spacing_m",
-            "notes",
-            "version",
-            "created_at",
-            "updated_at",
-        ]
+        fields = [*CREATE_FIELDS, "version", "created_at", "updated_at"]
         read_only_fields = fields
 
 

@@ -26,7 +26,7 @@ from registry.geodesy.frames import frame_info
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.roles import Ability, has_ability
 from registry.services.access import access_job_by_code
-from registry.services.jobs import job_create, job_update
+from registry.services.jobs import CREATE_FIELDS, job_create, job_update
 from registry.services.screening import BUDGET_TERM_DESCRIPTIONS, ScreeningResult
 from registry.services.screening_cache import job_screen_cached
 from registry.web.csv_safe import spreadsheet_safe_rows
@@ -107,34 +107,13 @@ class JobForm(forms.Form):
         super().__init__(*args, **kwargs)
         for name, label in NUMBER_FIELDS:
             self.fields[name] = _text(label, help_text=HELP.get(name, ""))
-        order = [
-            "code",
-            "name",
-            "client",
-            "status",
-            "site_geojson",
-            "site_lat_deg",
-            "site_lon_deg",
-            "frame_epsg",
-            "epoch_yr",
-            "grid_epsg",
-            "tol_h_mm",
-            "tol_v_mm",
-            "rtk_h_fixed_mm",
-            "rtk_h_ppm",
-            "rtk_v_fixed_mm",
-            "rtk_v_ppm",
-            "rtk_combination",
-            "rtk_h_meaning",
-            "setup_h_mm",
-            "setup_v_mm",
-            "assumed_rate_mm_yr",
-            "max_baseline_m",
-            "recovery_years",
-            "grid_spacing_m",
-            "notes",
-            "version",
-        ]
+        # The service's field order, with the point entry beside the GeoJSON site.
+        order = []
+        for name in CREATE_FIELDS:
+            order.append(name)
+            if name == "site_geojson":
+                order += ["site_lat_deg", "site_lon_deg"]
+        order.append("version")
         self.order_fields(order)
         if editing:
             del self.fields["code"]
