@@ -29,7 +29,15 @@ def _azimuth_dms(azimuth_deg: float | None) -> str | None:
 
 @ability_required(Ability.VIEW)
 def marks_near_page(request: HttpRequest) -> HttpResponse:
-    form = NearbyForm(request.GET or None, initial={"radius_km": 5.0, "limit": 50})
+    defaults = {"radius_km": "5", "limit": "50"}
+    data = None
+    if request.GET:
+        # A link that gives only the point (e.g. ?lat=..&lon=..) searches with the form's defaults.
+        data = request.GET.copy()
+        for key, value in defaults.items():
+            if not data.get(key):
+                data[key] = value
+    form = NearbyForm(data, initial=defaults)
     rows = None
     status = 200
     search = None

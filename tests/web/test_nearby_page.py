@@ -60,6 +60,16 @@ def test_results_with_dms_point(kestrel, signed_in, viewer):
 
 
 @pytest.mark.django_db
+def test_point_only_link_searches_with_the_defaults(kestrel, signed_in, viewer):
+    # Regression: ?lat=..&lon=.. alone used to answer 400 (radius and limit required).
+    response = signed_in(viewer).get(URL, {"lat": "45.2", "lon": "-110.6"})
+    assert response.status_code == 200
+    page = response.content.decode()
+    assert "2 marks within" in page and ">5.0</span> km" in page
+    assert 'value="50"' in page  # the default limit is shown in the form
+
+
+@pytest.mark.django_db
 def test_filters(kestrel, signed_in, viewer):
     client = signed_in(viewer)
     base = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10"}
