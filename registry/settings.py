@@ -140,7 +140,13 @@ REST_FRAMEWORK = {
         "rest_framework.authentication.SessionAuthentication",
     ],
     "DEFAULT_PERMISSION_CLASSES": ["registry.api.permissions.IsViewer"],
-    "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",
+    "DEFAULT_PAGINATION_CLASS": "registry.api.pagination.RegistryPagination",
+    # JSON with limits: nesting depth and text that is not Unicode are 400s (registry/api/parsers.py).
+    "DEFAULT_PARSER_CLASSES": [
+        "registry.api.parsers.SafeJSONParser",
+        "rest_framework.parsers.FormParser",
+        "rest_framework.parsers.MultiPartParser",
+    ],
     "PAGE_SIZE": 100,
     "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
     "EXCEPTION_HANDLER": "registry.api.errors.api_exception_handler",
