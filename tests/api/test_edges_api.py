@@ -42,13 +42,13 @@ def _counts():
 @pytest.mark.parametrize(
     ("method", "url", "body", "who"),
     [
-        ("post", "/api/marks/", '{"code": "S-1", "name": %s}' % SURROGATE, "manager"),
-        ("patch", "/api/marks/ED-01/", '{"version": 1, "name": %s}' % SURROGATE, "manager"),
-        ("post", "/api/marks/", '{"code": "S-1", %s: "x"}' % SURROGATE, "manager"),
+        ("post", "/api/marks/", '{"code": "S-1", "name": @}'.replace("@", SURROGATE), "manager"),
+        ("patch", "/api/marks/ED-01/", '{"version": 1, "name": @}'.replace("@", SURROGATE), "manager"),
+        ("post", "/api/marks/", '{"code": "S-1", @: "x"}'.replace("@", SURROGATE), "manager"),
         (
             "post",
             "/api/marks/ED-01/visits/",
-            '{"visited_on": "2024-05-01", "condition": "good", "visitor": %s, "notes": "a"}' % SURROGATE,
+            '{"visited_on": "2024-05-01", "condition": "good", "visitor": @, "notes": "a"}'.replace("@", SURROGATE),
             "technician",
         ),
     ],
@@ -103,7 +103,7 @@ def test_job_form_with_deeply_nested_site_is_a_form_error(client, manager):
     client.force_login(manager)
     for site, words in (
         (DEEP, "nested more than 32 levels deep"),
-        ('{"type": "Point", "name": %s, "coordinates": [-110.6, 45.0]}' % SURROGATE, "not valid Unicode"),
+        ('{"type": "Point", "name": @, "coordinates": [-110.6, 45.0]}'.replace("@", SURROGATE), "not valid Unicode"),
     ):
         r = client.post("/jobs/new/", {**JOB_FORM, "site_geojson": site})
         assert r.status_code == 400  # the form again, with the message
