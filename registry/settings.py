@@ -160,6 +160,11 @@ SPECTACULAR_SETTINGS = {
     ),
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    "POSTPROCESSING_HOOKS": [
+        "drf_spectacular.hooks.postprocess_schema_enums",
+        # The error answers every operation can give, and the Idempotency-Key header on writes.
+        "registry.api.schema.add_error_responses",
+    ],
     # Several enumerations share field names (a mark's and a job's "status"...): name them once.
     "ENUM_NAME_OVERRIDES": {
         "MarkStatusEnum": "registry.models.MarkStatus",
