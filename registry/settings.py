@@ -91,6 +91,10 @@ DATABASES = {
         conn_max_age=int(os.environ.get("REGISTRY_DB_CONN_MAX_AGE", "60" if PRODUCTION else "0")),
     )
 }
+# PostgreSQL roles (registry/dbroles.py, deploy/README.md "Database roles"): REGISTRY_DB_ROLE is
+# assumed after connecting (SET ROLE), e.g. the owner role for "manage.py migrate".
+if os.environ.get("REGISTRY_DB_ROLE", "").strip() and "postgresql" in DATABASES["default"]["ENGINE"]:
+    DATABASES["default"].setdefault("OPTIONS", {})["assume_role"] = os.environ["REGISTRY_DB_ROLE"].strip()
 if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
     DATABASES["default"].setdefault("OPTIONS", {})
     DATABASES["default"]["OPTIONS"].update({"timeout": 20, "transaction_mode": "IMMEDIATE"})
@@ -196,6 +200,9 @@ REGISTRY = {
     # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)
     # after the sign-in and role check (registry/web/views.py media_file; deploy/nginx/registry.conf).
     "MEDIA_ACCEL_PREFIX": os.environ.get("REGISTRY_MEDIA_ACCEL_PREFIX", "/_protected_media/"),
+    # PostgreSQL role the application logs in as in production; after each migrate run as the owner it
+    # gets rows only, and INSERT/SELECT on the audit trail (registry/dbroles.py). Empty: no grants.
+    "DB_RUNTIME_ROLE": os.environ.get("REGISTRY_DB_RUNTIME_ROLE", "").strip(),
 }
 
 LOGGING = {
