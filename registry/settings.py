@@ -200,6 +200,14 @@ REGISTRY = {
     # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)
     # after the sign-in and role check (registry/web/views.py media_file; deploy/nginx/registry.conf).
     "MEDIA_ACCEL_PREFIX": os.environ.get("REGISTRY_MEDIA_ACCEL_PREFIX", "/_protected_media/"),
+    # Sign-in throttle (registry/services/signin.py): failures per account / per client address within
+    # SIGNIN_LOCK_MINUTES before sign-in is paused for that long.
+    "SIGNIN_ACCOUNT_FAILURES": int(os.environ.get("REGISTRY_SIGNIN_ACCOUNT_FAILURES", "5")),
+    "SIGNIN_ADDRESS_FAILURES": int(os.environ.get("REGISTRY_SIGNIN_ADDRESS_FAILURES", "20")),
+    "SIGNIN_LOCK_MINUTES": float(os.environ.get("REGISTRY_SIGNIN_LOCK_MINUTES", "15")),
+    # Request header (as Django's META key) holding the client's address set by the proxy; production
+    # default X-Real-IP, which deploy/nginx/registry.conf sets. Empty: the connection's address.
+    "CLIENT_IP_HEADER": os.environ.get("REGISTRY_CLIENT_IP_HEADER", "HTTP_X_REAL_IP" if PRODUCTION else "").strip(),
     # PostgreSQL role the application logs in as in production; after each migrate run as the owner it
     # gets rows only, and INSERT/SELECT on the audit trail (registry/dbroles.py). Empty: no grants.
     "DB_RUNTIME_ROLE": os.environ.get("REGISTRY_DB_RUNTIME_ROLE", "").strip(),

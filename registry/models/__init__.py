@@ -31,6 +31,7 @@ from registry.models.marks import (
     SkyView,
     Stability,
 )
+from registry.models.security import IdempotencyRecord, SigninThrottle
 
 __all__ = [
     "CODE_VALIDATOR",
@@ -50,6 +51,7 @@ __all__ = [
     "FrozenPositionError",
     "HeightMethod",
     "HeightRecord",
+    "IdempotencyRecord",
     "Job",
     "JobStatus",
     "Mark",
@@ -63,6 +65,7 @@ __all__ = [
     "PositionStateError",
     "RtkCombination",
     "RtkHorizontalMeaning",
+    "SigninThrottle",
     "SkyView",
     "Stability",
     "Visit",
