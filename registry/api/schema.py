@@ -9,9 +9,8 @@ matches what the endpoints return (checked by schemathesis in ``tests/api/test_s
   header the operation cannot answer);
 - operations with a request body: 413 (body larger than the server accepts) and 415 (a media
   type the operation does not read);
-- writes (POST, PUT, PATCH, DELETE): the ``Idempotency-Key`` header, 409 (a request with the
-  same key is still running, or a state/version conflict) and 422 (the key was used for a
-  different request).
+- writes (POST, PUT, PATCH, DELETE): the ``Idempotency-Key`` header, 409 (a stale version or a
+  state that does not allow the action) and 422 (the key was used for a different request).
 
 A 4xx answer declared without a body schema gets the error shape.
 """
@@ -35,8 +34,7 @@ WITH_BODY = {
     "415": "The request body's media type is not one this operation reads.",
 }
 WRITES = {
-    "409": "A conflict: a stale version, a state that does not allow the action, or a request with the same "
-    "Idempotency-Key still running (code idempotency_key_in_use).",
+    "409": "A conflict: a stale version, or a state that does not allow the action.",
     "422": "The Idempotency-Key was already used for a different request (code idempotency_key_reused).",
 }
 
