@@ -50,11 +50,14 @@ INSTALLED_APPS = [
     "rest_framework",
     "rest_framework.authtoken",
     "drf_spectacular",
+    "drf_spectacular_sidecar",  # Swagger UI files served from our own static files (no CDN, works offline)
     "registry.apps.RegistryConfig",
 ]
 
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
+    # A strict Content-Security-Policy on every answer (registry/web/csp.py).
+    "registry.web.csp.ContentSecurityPolicyMiddleware",
     "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
@@ -146,6 +149,9 @@ REST_FRAMEWORK = {
         "rest_framework.authentication.SessionAuthentication",
     ],
     "DEFAULT_PERMISSION_CLASSES": ["registry.api.permissions.IsViewer"],
+    # JSON only: DRF's browsable HTML pages use inline scripts and styles, which our
+    # Content-Security-Policy refuses (registry/web/csp.py); /api/docs/ is the readable view.
+    "DEFAULT_RENDERER_CLASSES": ["rest_framework.renderers.JSONRenderer"],
     "DEFAULT_PAGINATION_CLASS": "registry.api.pagination.RegistryPagination",
     # JSON with limits: nesting depth and text that is not Unicode are 400s (registry/api/parsers.py).
     "DEFAULT_PARSER_CLASSES": [
@@ -166,6 +172,10 @@ SPECTACULAR_SETTINGS = {
     ),
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    # /api/docs/: Swagger UI from drf-spectacular-sidecar's vendored files, under our strict CSP.
+    "SWAGGER_UI_DIST": "SIDECAR",
+    "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
+    "REDOC_DIST": "SIDECAR",
     "POSTPROCESSING_HOOKS": [
         "drf_spectacular.hooks.postprocess_schema_enums",
         # The error answers every operation can give, and the Idempotency-Key header on writes.

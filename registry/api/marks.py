@@ -13,7 +13,7 @@ from django.core.exceptions import ValidationError
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
 from rest_framework import status as http_status
-from rest_framework.renderers import BrowsableAPIRenderer, JSONRenderer
+from rest_framework.renderers import JSONRenderer
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
@@ -75,12 +75,12 @@ class MarkListView(APIView):
     """``GET /api/marks/``: search marks; ``POST /api/marks/``: create one (manager)."""
 
     permission_classes = [ReadViewerWriteManager]
-    renderer_classes = [JSONRenderer, BrowsableAPIRenderer, GeoJSONRenderer]
+    renderer_classes = [JSONRenderer, GeoJSONRenderer]
     pagination_class = RegistryPagination
 
     def get_renderers(self):
         if getattr(self, "request", None) is not None and self.request.method not in ("GET", "HEAD"):
-            return [JSONRenderer(), BrowsableAPIRenderer()]
+            return [JSONRenderer()]
         return super().get_renderers()
 
     @extend_schema(
