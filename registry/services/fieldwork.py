@@ -58,6 +58,7 @@ from registry.services._input import (
 )
 from registry.services.access import access_mark_by_code
 from registry.services.audit import audit_record, snapshot
+from registry.services.limits import check_text_limits
 
 VISIT_FIELDS = ("visited_on", "condition", "visitor", "notes")
 OCCUPATION_FIELDS = (
@@ -117,6 +118,7 @@ def visit_record(*, actor, mark_code: str, data: dict) -> Visit:
         visit = Visit(
             mark=mark, visited_on=visited_on, condition=condition, visitor=visitor, notes=notes, created_by=actor
         )
+        check_text_limits(visit)
         visit.full_clean()
         visit.save(force_insert=True)
         audit_record(actor=actor, action="visit_record", obj=visit, after=snapshot(visit), mark=mark)
@@ -229,6 +231,7 @@ def occupation_record(*, actor, mark_code: str, data: dict) -> Occupation:
             notes=notes,
             created_by=actor,
         )
+        check_text_limits(occupation)
         occupation.full_clean()
         occupation.save(force_insert=True)
         after = snapshot(occupation)

@@ -30,6 +30,7 @@ from registry.roles import Ability
 from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
+from registry.services.limits import check_text_limits
 
 # Descriptive fields a manager edits with mark_update.
 EDITABLE_FIELDS: tuple[str, ...] = (
@@ -97,6 +98,7 @@ def _validate_on(mark: Mark, changes: dict[str, Any]) -> Mark:
     for key, value in changes.items():
         setattr(candidate, key, value)
     untouched = [f.name for f in Mark._meta.concrete_fields if f.name not in changes]
+    check_text_limits(candidate, fields=set(changes))
     candidate.full_clean(exclude=untouched, validate_constraints=True)
     return candidate
 
@@ -170,6 +172,7 @@ def mark_create(*, actor, data: dict) -> Mark:
     if not cleaned.get("code"):
         raise ValidationError({"code": ValidationError("A mark needs a code.", code="required")})
     mark = Mark(**cleaned)
+    check_text_limits(mark)
     mark.full_clean()
     try:
         with transaction.atomic():
