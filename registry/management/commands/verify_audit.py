@@ -2,8 +2,8 @@
 
 Walks every row in order (``registry/selectors/audit.py``) and says whether the chain is
 intact; if not, which row is the first broken link and what is wrong with it. Prints the head
-of the chain (its last place and hash): keep that line outside the database (the backup log
-does), so that a later run can show the rows up to it were not rewritten.
+of the chain (its last place and hash): keep that line outside the database (a log on another
+machine, a printed register), so that a later run can show the rows up to it were not rewritten.
 
 Exit status: 0 the chain is intact; 1 a broken link was found (details on standard error);
 2 the check could not run (e.g. the database is unreachable).
