@@ -29,7 +29,22 @@ CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance,
 
 
 @pytest.fixture
-def registry_data(manager, technician):
+def keep_test_connection():
+    """Calls go through Django's real WSGI handler, which closes "old" database connections at the
+    start and end of each request; inside the test's transaction (PostgreSQL) that would close the
+    test's own connection. Django's test client switches this off the same way."""
+    from django.core.signals import request_finished, request_started
+    from django.db import close_old_connections
+
+    request_started.disconnect(close_old_connections)
+    request_finished.disconnect(close_old_connections)
+    yield
+    request_started.connect(close_old_connections)
+    request_finished.connect(close_old_connections)
+
+
+@pytest.fixture
+def registry_data(manager, technician, keep_test_connection):
     """Invented: a mark with a published and a proposed position (decided_by null), a visit, a job."""
     from rest_framework.authtoken.models import Token
 
