@@ -34,7 +34,7 @@ OUR_VIEWS = (
 )
 METHODS = {"get", "post", "put", "patch", "delete"}
 # Enumerations our serializers expose; a naming collision on them gives clients odd type names.
-OUR_ENUM_FIELDS = ("status", "state", "monument_type", "stability", "sky_view")
+OUR_ENUM_FIELDS = ("status", "state", "monument", "stability", "sky_view")
 
 
 def test_schema_endpoint_serves_our_paths(viewer, api_client_for):

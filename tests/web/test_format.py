@@ -123,9 +123,11 @@ def test_filters_in_a_template():
     template = Template(
         "{% load registry_format %}{{ lat|lat_dms }}|{{ lat|deg9 }}|{{ none|m3 }}|{{ s|state }}|{{ c|state }}|{{ e|epoch }}"
     )
-    out = template.render(Context({"lat": 45.2, "none": None, "s": "superseded", "c": "not_found", "e": 2010.0}))
+    out = template.render(
+        Context({"lat": 45.2, "none": None, "s": "superseded", "c": "searched_not_found", "e": 2010.0})
+    )
     assert out == (
         "45°12′00.00000″ N|45.200000000|—|"
         '<span class="state state-superseded">superseded</span>|'
-        '<span class="state state-not_found">not found</span>|2010.000 (2010-01-01)'
+        '<span class="state state-searched_not_found">searched, not found</span>|2010.000 (2010-01-01)'
     )

@@ -173,10 +173,10 @@ def format_utc(value: dt.datetime) -> str:
 
 
 def _state_labels() -> dict[str, str]:
-    from registry.models import Condition, DocumentState, MarkStatus, PositionState
+    from registry.models import DocumentState, Finding, MarkStatus, PositionState
 
     labels: dict[str, str] = {}
-    for choices in (MarkStatus, PositionState, Condition, DocumentState):
+    for choices in (MarkStatus, PositionState, Finding, DocumentState):
         labels.update({value: str(label) for value, label in choices.choices})
     return labels
 
@@ -268,7 +268,7 @@ def utc(value):
 
 @register.filter
 def state(value):
-    """A state or condition as a word in a bordered badge; the colour class is secondary."""
+    """A state or a visit's finding as a word in a bordered badge; the colour class is secondary."""
     if not value:
         return DASH
     label = _state_labels().get(str(value), str(value).replace("_", " "))
@@ -289,7 +289,7 @@ def field_label(name, model_name="mark"):
 
 @register.filter
 def choice_label(value, field_name):
-    """The label of a Mark choice value (monument type, stability, sky view, status)."""
+    """The label of a Mark choice value (monument, stability, sky view, status)."""
     from registry.models import Mark
 
     try:
