@@ -91,7 +91,7 @@ def test_sign_in_search_open_edit(page, district, screenshot, make_user):
         expected_version=3,
         changes={"marking": "KESTREL RIDGE 2009 RESET 2024"},
     )
-    page.get_by_label("Stamping").fill("KESTREL RIDGE 2009 (worn)")
+    page.get_by_label("Marking as inscribed").fill("KESTREL RIDGE 2009 (worn)")
     page.get_by_role("button", name="Save changes").click()
     expect(page.get_by_role("heading", level=2, name=re.compile("Not saved"))).to_be_visible()
     expect(page.locator("table.compare")).to_contain_text("KESTREL RIDGE 2009 RESET 2024")
@@ -134,7 +134,7 @@ def test_the_whole_flow_works_without_javascript(chromium, live_server, district
         expect(page.locator("#counts")).to_contain_text("of 1 matching mark")
         page.get_by_role("link", name="KV-003", exact=True).click()
         page.get_by_role("link", name="Edit description").click()
-        page.get_by_label("Custodian").fill("Heron Point Wildlife Refuge (invented)")
+        page.get_by_label("Keeper").fill("Heron Point Wildlife Refuge (invented)")
         page.get_by_role("button", name="Save changes").click()
         expect(page.locator("dl.facts")).to_contain_text("Heron Point Wildlife Refuge (invented)")
         assert Mark.objects.get(code="KV-003").version == 2

@@ -131,3 +131,8 @@ def test_filters_in_a_template():
         '<span class="state state-superseded">superseded</span>|'
         '<span class="state state-searched_not_found">searched, not found</span>|2010.000 (2010-01-01)'
     )
+
+
+def test_the_suspect_badge_is_a_word_with_the_whole_label_as_its_title():
+    out = Template("{% load registry_format %}{{ s|state }}").render(Context({"s": "suspect"}))
+    assert out == '<span class="state state-suspect" title="suspect — awaiting re-observation">suspect</span>'

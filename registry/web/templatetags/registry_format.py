@@ -172,6 +172,10 @@ def format_utc(value: dt.datetime) -> str:
 # --------------------------------------------------------------------------- state words
 
 
+#: States whose label is a phrase: the badge shows this word (the label is its title).
+_SHORT_STATE_WORDS = {"suspect": "suspect"}
+
+
 def _state_labels() -> dict[str, str]:
     from registry.models import DocumentState, Finding, MarkStatus, PositionState
 
@@ -272,6 +276,9 @@ def state(value):
     if not value:
         return DASH
     label = _state_labels().get(str(value), str(value).replace("_", " "))
+    short = _SHORT_STATE_WORDS.get(str(value))
+    if short:  # a compact word in tables; the whole label as its title (and on the mark page itself)
+        return format_html('<span class="state state-{}" title="{}">{}</span>', str(value), label, short)
     return format_html('<span class="state state-{}">{}</span>', str(value), label)
 
 
