@@ -153,7 +153,9 @@ def test_publishing_a_new_position_clears_it_in_the_same_audit_row(published_mar
 
 def test_a_manager_clears_it_with_a_note_audited(published_mark, manager, technician):
     make_suspect(technician)
-    mark = mark_clear_suspect(actor=manager, code="QR-101", note="Re-checked with a check shot: 4 mm", expected_version=2)
+    mark = mark_clear_suspect(
+        actor=manager, code="QR-101", note="Re-checked with a check shot: 4 mm", expected_version=2
+    )
     assert (mark.status, mark.suspect_since, mark.suspect_reason, mark.version) == ("active", None, "", 3)
     event = AuditEvent.objects.get(action="mark_clear_suspect")
     assert event.actor == manager and event.note == "Re-checked with a check shot: 4 mm"

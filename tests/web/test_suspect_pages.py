@@ -58,10 +58,14 @@ def test_clearance_through_the_api_per_role(request, suspect_mark, api_client_fo
 
 def test_api_clearance_refusals_change_nothing(suspect_mark, manager, api_client_for):
     client = api_client_for(manager)
-    error = assert_error_shape(client.post("/api/marks/QR-101/clear-suspect/", {"version": 2}, format="json"), 400, "invalid")
+    error = assert_error_shape(
+        client.post("/api/marks/QR-101/clear-suspect/", {"version": 2}, format="json"), 400, "invalid"
+    )
     assert error["details"]["note"][0]["code"] == "note_required"
     error = assert_error_shape(
-        client.post("/api/marks/QR-101/clear-suspect/", {"version": 1, "note": "x"}, format="json"), 409, "stale_version"
+        client.post("/api/marks/QR-101/clear-suspect/", {"version": 1, "note": "x"}, format="json"),
+        409,
+        "stale_version",
     )
     assert error["details"]["version"] == {"yours": 1, "theirs": 2, "changed_by": None, "changed_at": None}
     assert_error_shape(
