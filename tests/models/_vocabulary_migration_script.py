@@ -9,13 +9,9 @@ from __future__ import annotations
 import datetime as dt
 import json
 
-import django
-
-django.setup()
-
-from django.core.management import call_command  # noqa: E402
-from django.db import DatabaseError, connection, transaction  # noqa: E402
-from django.db.migrations.executor import MigrationExecutor  # noqa: E402
+from django.core.management import call_command
+from django.db import DatabaseError, connection, transaction
+from django.db.migrations.executor import MigrationExecutor
 
 BEFORE, AFTER = ("registry", "0005_position_history_triggers"), ("registry", "0006_own_vocabulary_and_suspect")
 UTC = dt.UTC
@@ -125,17 +121,25 @@ def snapshot():
     }
 
 
-call_command("migrate", *BEFORE, verbosity=0)
-seed()
-with connection.cursor() as cur:  # one audit row, so that the append-only guard has something to refuse
-    cur.execute(
-        "INSERT INTO registry_auditevent (at, action, object_type, object_id, object_repr, note) "
-        "VALUES (CURRENT_TIMESTAMP, 'seed', 'test', '1', 'seed', '')"
-    )
-call_command("migrate", *AFTER, verbosity=0)
-forward = snapshot()
-call_command("migrate", *BEFORE, verbosity=0)
-backward = snapshot()
-call_command("migrate", *AFTER, verbosity=0)
-again = snapshot()
-print(json.dumps({"vendor": connection.vendor, "forward": forward, "backward": backward, "again": again}))
+def main():
+    call_command("migrate", *BEFORE, verbosity=0)
+    seed()
+    with connection.cursor() as cur:  # one audit row, so that the append-only guard has something to refuse
+        cur.execute(
+            "INSERT INTO registry_auditevent (at, action, object_type, object_id, object_repr, note) "
+            "VALUES (CURRENT_TIMESTAMP, 'seed', 'test', '1', 'seed', '')"
+        )
+    call_command("migrate", *AFTER, verbosity=0)
+    forward = snapshot()
+    call_command("migrate", *BEFORE, verbosity=0)
+    backward = snapshot()
+    call_command("migrate", *AFTER, verbosity=0)
+    again = snapshot()
+    print(json.dumps({"vendor": connection.vendor, "forward": forward, "backward": backward, "again": again}))
+
+
+if __name__ == "__main__":  # only in its own process (pytest imports this file for doctests)
+    import django
+
+    django.setup()
+    main()
