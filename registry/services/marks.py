@@ -62,7 +62,7 @@ def _clean_input(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
     """Check the keys and the types of submitted values; strings are stripped."""
     if not isinstance(data, dict):
         raise ValidationError("Send the fields as an object.", code="invalid_payload")
-    data = rename_old_keys(data, OLD_MARK_FIELDS)  # the names before 0.2, accepted for one release
+    data = rename_old_keys(data, OLD_MARK_FIELDS)  # the earlier names, accepted for one more release
     errors: dict[str, list[ValidationError]] = {}
     cleaned: dict[str, Any] = {}
     for key, value in data.items():

@@ -319,3 +319,23 @@ def test_exception_handler_gives_the_one_shape(viewer, exc, status, code):
     response = Raiser.as_view()(request)
     response.render()
     assert_error_shape(response, status, code)
+
+
+def test_create_and_edit_still_take_the_earlier_field_names(manager, api_client_for):
+    """Deprecated for one release (README, earlier names): to_reach, monument_type, setting, stamping, custodian."""
+    client = api_client_for(manager)
+    response = client.post(
+        "/api/marks/",
+        {"code": "EN-1", "monument_type": "pillar", "stamping": "EN-1 2020", "to_reach": "Trail end"},
+        format="json",
+    )
+    assert response.status_code == 201, response.content
+    body = response.json()
+    assert (body["monument"], body["marking"], body["access_directions"]) == ("pillar", "EN-1 2020", "Trail end")
+    assert "monument_type" not in body and "stamping" not in body
+    response = client.patch("/api/marks/EN-1/", {"version": 1, "custodian": "Ridge Trust"}, format="json")
+    assert response.status_code == 200 and response.json()["keeper"] == "Ridge Trust"
+    error = assert_error_shape(
+        client.patch("/api/marks/EN-1/", {"version": 2, "custodian": "A", "keeper": "B"}, format="json"), 400, "invalid"
+    )
+    assert error["details"]["custodian"][0]["code"] == "old_and_new_name"
