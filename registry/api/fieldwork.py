@@ -28,7 +28,7 @@ from registry.models import (
     AntennaHeightKind,
     Attachment,
     AttachmentKind,
-    Condition,
+    Finding,
     Occupation,
     OccupationMethod,
     Visit,
@@ -80,7 +80,7 @@ class VisitSerializer(serializers.ModelSerializer):
             "id",
             "mark",
             "visited_on",
-            "condition",
+            "finding",
             "visitor",
             "notes",
             "created_by",
@@ -123,8 +123,14 @@ class OccupationSerializer(serializers.ModelSerializer):
 
 
 class VisitInput(serializers.Serializer):
+    """The earlier name ``condition`` and values good / poor / not_found are still accepted (deprecated)."""
+
     visited_on = serializers.DateField()
-    condition = serializers.ChoiceField(Condition.choices)
+    finding = serializers.ChoiceField(
+        Finding.choices,
+        help_text="What the visit found. disturbed or searched_not_found makes an active mark suspect when the visit "
+        "is not older than the mark's newest published position.",
+    )
     visitor = serializers.CharField(max_length=120, required=False, allow_blank=True)
     notes = serializers.CharField(required=False, allow_blank=True)
 
@@ -191,7 +197,7 @@ class _MarkChildren(APIView):
 
 
 class MarkVisitsView(_MarkChildren):
-    """``GET /api/marks/<code>/visits/``; ``POST`` to record a condition visit."""
+    """``GET /api/marks/<code>/visits/``; ``POST`` to record a visit (what the crew found)."""
 
     model = Visit
     serializer_class = VisitSerializer

@@ -3,10 +3,11 @@
 from registry.models.audit import AuditEvent, AuditTrailError
 from registry.models.documents import Document, DocumentKind, DocumentState
 from registry.models.fieldwork import (
+    SUSPECT_FINDINGS,
     AntennaHeightKind,
     Attachment,
     AttachmentKind,
-    Condition,
+    Finding,
     Occupation,
     OccupationMethod,
     Visit,
@@ -14,6 +15,7 @@ from registry.models.fieldwork import (
 from registry.models.jobs import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.models.marks import (
     CODE_VALIDATOR,
+    DESCRIPTION_FIELDS,
     POSITION_FROZEN_FIELDS,
     POSITION_HISTORY_STATES,
     POSITION_MUTABLE_FIELDS,
@@ -23,7 +25,7 @@ from registry.models.marks import (
     HeightRecord,
     Mark,
     MarkStatus,
-    MonumentType,
+    MonumentKind,
     Position,
     PositionHistoryError,
     PositionState,
@@ -35,6 +37,7 @@ from registry.models.security import IdempotencyRecord, SigninThrottle
 
 __all__ = [
     "CODE_VALIDATOR",
+    "DESCRIPTION_FIELDS",
     "POSITION_FROZEN_FIELDS",
     "POSITION_HISTORY_STATES",
     "POSITION_MUTABLE_FIELDS",
@@ -44,10 +47,10 @@ __all__ = [
     "AttachmentKind",
     "AuditEvent",
     "AuditTrailError",
-    "Condition",
     "Document",
     "DocumentKind",
     "DocumentState",
+    "Finding",
     "FrozenPositionError",
     "HeightMethod",
     "HeightRecord",
@@ -56,7 +59,7 @@ __all__ = [
     "JobStatus",
     "Mark",
     "MarkStatus",
-    "MonumentType",
+    "MonumentKind",
     "Occupation",
     "OccupationMethod",
     "Position",
@@ -65,6 +68,7 @@ __all__ = [
     "PositionStateError",
     "RtkCombination",
     "RtkHorizontalMeaning",
+    "SUSPECT_FINDINGS",
     "SigninThrottle",
     "SkyView",
     "Stability",

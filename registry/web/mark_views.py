@@ -141,7 +141,7 @@ def mark_edit(request: HttpRequest, code: str) -> HttpResponse:
 
 
 #: The free texts of a mark that a page may show cut short, by the name in the address.
-_MARK_TEXTS = {"to-reach": ("to_reach", "To reach"), "notes": ("notes", "Notes")}
+_MARK_TEXTS = {"access-directions": ("access_directions", "Access directions"), "notes": ("notes", "Notes")}
 
 
 @ability_required(Ability.VIEW)

@@ -48,7 +48,7 @@ def _counts():
         (
             "post",
             "/api/marks/ED-01/visits/",
-            '{"visited_on": "2024-05-01", "condition": "good", "visitor": @, "notes": "a"}'.replace("@", SURROGATE),
+            '{"visited_on": "2024-05-01", "finding": "intact", "visitor": @, "notes": "a"}'.replace("@", SURROGATE),
             "technician",
         ),
     ],

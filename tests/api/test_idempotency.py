@@ -16,7 +16,7 @@ from registry.services.marks import mark_create
 from tests.api._shape import assert_error_shape
 
 pytestmark = pytest.mark.django_db
-VISIT = {"visited_on": "2024-05-01", "condition": "good", "visitor": "Crew 2 (invented)", "notes": "Clean."}
+VISIT = {"visited_on": "2024-05-01", "finding": "intact", "visitor": "Crew 2 (invented)", "notes": "Clean."}
 
 
 @pytest.fixture

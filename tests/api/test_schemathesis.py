@@ -59,7 +59,7 @@ def registry_data(manager, technician, keep_test_connection):
     visit_record(
         actor=technician,
         mark_code="ST-1",
-        data={"visited_on": "2024-05-01", "condition": "good", "visitor": "Crew 1 (invented)", "notes": "x"},
+        data={"visited_on": "2024-05-01", "finding": "intact", "visitor": "Crew 1 (invented)", "notes": "x"},
     )
     make_job(code="J-ST")
     return {

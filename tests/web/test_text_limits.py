@@ -31,7 +31,7 @@ def _json(client, method, url, body):
 
 def test_a_15_mb_visit_note_is_refused_and_nothing_saved(mark, technician, api_client_for, settings):
     settings.DATA_UPLOAD_MAX_MEMORY_SIZE = 40 * 1024 * 1024  # let the body reach the service
-    body = {"visited_on": "2024-05-01", "condition": "good", "notes": HUGE}
+    body = {"visited_on": "2024-05-01", "finding": "intact", "notes": HUGE}
     error = assert_error_shape(
         _json(api_client_for(technician), "post", "/api/marks/TL-01/visits/", body), 400, "invalid"
     )
@@ -44,7 +44,7 @@ def test_a_15_mb_visit_note_is_refused_and_nothing_saved(mark, technician, api_c
     ("method", "url", "body", "field"),
     [
         ("patch", "/api/marks/TL-01/", {"version": 1, "notes": "x" * (NOTES_MAX + 1)}, "notes"),
-        ("patch", "/api/marks/TL-01/", {"version": 1, "to_reach": "x" * (NOTES_MAX + 1)}, "to_reach"),
+        ("patch", "/api/marks/TL-01/", {"version": 1, "access_directions": "x" * (NOTES_MAX + 1)}, "access_directions"),
         ("post", "/api/marks/", {"code": "TL-02", "notes": "x" * (NOTES_MAX + 1)}, "notes"),
         ("post", "/api/marks/TL-01/positions/", position_data(note="x" * (NOTES_MAX + 1)), "note"),
         (
@@ -100,10 +100,10 @@ def test_every_text_field_has_a_documented_maximum():
 def test_a_page_never_renders_an_unbounded_text(mark, viewer, technician, client):
     """Data stored before the limits (written directly here) is shown cut short, with "show all"."""
     visit = Visit.objects.create(
-        mark=mark, visited_on=dt.date(2024, 5, 1), condition="good", notes=HUGE, created_by=technician
+        mark=mark, visited_on=dt.date(2024, 5, 1), finding="intact", notes=HUGE, created_by=technician
     )
     audit_record(actor=technician, action="visit_record", obj=visit, after=snapshot(visit), mark=mark)  # history too
-    Mark.objects.filter(pk=mark.pk).update(notes=HUGE, to_reach=HUGE)
+    Mark.objects.filter(pk=mark.pk).update(notes=HUGE, access_directions=HUGE)
     client.force_login(viewer)
     r = client.get("/marks/TL-01/")
     assert r.status_code == 200
@@ -112,6 +112,6 @@ def test_a_page_never_renders_an_unbounded_text(mark, viewer, technician, client
     assert body.count(f"show all ({len(HUGE):,} characters)") == 3
     full = client.get(f"/marks/TL-01/text/visit/{visit.pk}/")
     assert full.status_code == 200 and full.content.decode().count("Found the disk under gravel.") == 540_000
-    assert client.get("/marks/TL-01/text/to-reach/").status_code == 200
+    assert client.get("/marks/TL-01/text/access-directions/").status_code == 200
     assert client.get("/marks/TL-01/text/visit/999999/").status_code == 404
     assert client.get("/marks/TL-01/text/password/").status_code == 404
