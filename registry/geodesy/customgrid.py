@@ -40,7 +40,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from registry.geodesy.grid import UNITS, GridCRS, GridError
+from registry.geodesy.grid import UNITS, GridCRS
 
 __all__ = [
     "METHODS",
