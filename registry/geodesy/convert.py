@@ -152,6 +152,7 @@ class PointConversion:
             "cautions": list(CAUTIONS),
         }
 
+
 def _finite(value, name: str, field_name: str) -> float:
     try:
         v = float(value)

@@ -486,7 +486,9 @@ def transform_position(
         how = {
             _plates.AUTO: "plate chosen from the point's location",
             None: "",
-        }.get(plate_code, "the plate asked for" if plate_explicit else "the office's plate, checked against the location")
+        }.get(
+            plate_code, "the plate asked for" if plate_explicit else "the office's plate, checked against the location"
+        )
         if len(distinct) == 1:
             model = _pmm.model_label(distinct[0], origin_rate_bias=plate_origin_rate_bias)
         else:
