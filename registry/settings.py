@@ -159,6 +159,9 @@ SPECTACULAR_SETTINGS = {
         "MarkStatusEnum": "registry.models.MarkStatus",
         "JobStatusEnum": "registry.models.JobStatus",
         "PositionStateEnum": "registry.models.PositionState",
+        "GridMethodEnum": "registry.models.GridMethod",
+        "OccupationMethodEnum": "registry.models.OccupationMethod",
+        "GridUnitEnum": "registry.models.GridUnit",
     },
 }
 
