@@ -52,10 +52,7 @@ GRS80_E2 = GRS80_F * (2 - GRS80_F)
 #: Least-squares fit to EGM96 (egm96_15.gtx, PROJ 9.5.1 vgridshift) on a 7×7 grid over
 #: 45.05…45.35° N, 110.82…110.38° W; max residual 0.051 m. Recomputed once, stored here.
 N_FIT_COEF = (-8.5423, -2.2607, 1.3607, -5.3530, 0.6804, -0.4221)
-N_FIT_LABEL = (
-    "EGM96 (global model, approximate ±0.4 m; the demo uses a quadratic fit of its 15′ grid over the district), "
-    "applied to ITRF2014 ellipsoidal heights"
-)
+N_FIT_LABEL = "EGM96 global model (approximate, ±0.4 m; the demo uses a quadratic fit of its 15′ grid)"
 EGM96_HEIGHT = 5773  # EGM96 height (vertical CRS)
 #: Invented offset of the demo district's NAVD88 surface from the EGM96 fit (true N = fit + offset).
 NAVD88_OFFSET_M = -0.45

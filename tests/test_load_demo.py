@@ -345,6 +345,7 @@ def test_demo_geoid_heights_are_egm96_heights_of_itrf2014_ellipsoidal_heights():
         m = marks[rec.mark_code]
         assert rec.datum_epsg == 5773  # EGM96 height, not NAVD88 (EPSG:5703)
         assert rec.geoid_model.startswith("EGM96") and "ITRF2014" in rec.source
+        assert len(rec.geoid_model) <= 120 and len(rec.source) <= 200  # the columns' lengths
         lon, lat, h_itrf, _ = to_itrf.transform(m.lon_deg, m.lat_deg, m.h_m, 2010.0)
         _, _, n = egm96.transform(lon, lat, 0.0)
         # The fit's residual (≤ 0.051 m) and the 1 mm rounding of the stored height.
