@@ -7,6 +7,7 @@ from registry.api import accuracy as accuracy_api  # accuracy area
 from registry.api import convert as convert_api  # geodesy area
 from registry.api import exports as exports_api
 from registry.api import fieldwork as fieldwork_api  # fieldwork pages area
+from registry.api import grids as grids_api  # geodesy area
 from registry.api import jobs as jobs_api  # screening area
 from registry.api import marks as marks_api
 from registry.api import nearby as nearby_api  # search area
@@ -61,4 +62,5 @@ urlpatterns = [
     path("screening/", jobs_api.SiteScreeningView.as_view(), name="screening"),
     # point conversion (geodesy area)
     path("convert/", convert_api.ConvertView.as_view(), name="convert"),
+    path("grids/", grids_api.CustomGridListView.as_view(), name="grid-list"),
 ]
