@@ -12,7 +12,7 @@ def _allow_audit_truncate(sender, connection, **kwargs):
     """PostgreSQL: let this test session's flushes TRUNCATE the audit table.
 
     pytest-django empties the tables after each transactional test with one TRUNCATE, which the
-    audit trail's guard (migration 0007) refuses unless the session sets ``registry.audit_truncate``
+    audit trail's guard (migration 0008) refuses unless the session sets ``registry.audit_truncate``
     to ``allow``. Tests of the guard itself clear the setting in their own transaction.
     """
     if connection.vendor == "postgresql":

@@ -49,6 +49,7 @@ PAGES = [
     "/jobs/new/",
     "/tools/convert/",
     "/tools/accuracy/",
+    "/tools/grids/",
     "/api/marks/",
 ]
 

@@ -35,6 +35,7 @@ PAGES = [
     "/jobs/",
     "/tools/convert/",
     "/tools/accuracy/",
+    "/tools/grids/",
     "/marks/import/",
     "/api/marks/",
     "/api/schema/",

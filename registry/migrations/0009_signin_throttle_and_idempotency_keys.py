@@ -9,7 +9,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('registry', '0007_audit_hash_chain'),
+        ('registry', '0008_audit_hash_chain'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 

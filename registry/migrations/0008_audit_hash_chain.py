@@ -105,7 +105,7 @@ def restore_sqlite_triggers(apps, schema_editor):
 
 class Migration(migrations.Migration):
     dependencies = [
-        ("registry", "0006_own_vocabulary_and_suspect"),
+        ("registry", "0007_custom_grids"),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 
