@@ -8,6 +8,24 @@ from __future__ import annotations
 import pytest
 
 
+def _allow_audit_truncate(sender, connection, **kwargs):
+    """PostgreSQL: let this test session's flushes TRUNCATE the audit table.
+
+    pytest-django empties the tables after each transactional test with one TRUNCATE, which the
+    audit trail's guard (migration 0008) refuses unless the session sets ``registry.audit_truncate``
+    to ``allow``. Tests of the guard itself clear the setting in their own transaction.
+    """
+    if connection.vendor == "postgresql":
+        with connection.cursor() as cur:
+            cur.execute("SET registry.audit_truncate = 'allow'")
+
+
+def pytest_configure(config):
+    from django.db.backends.signals import connection_created
+
+    connection_created.connect(_allow_audit_truncate, dispatch_uid="registry_tests_allow_audit_truncate")
+
+
 @pytest.fixture(autouse=True)
 def _fresh_cache():
     """Empty Django's cache around each test, as the database is: the cached job screening

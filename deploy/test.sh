@@ -7,11 +7,13 @@
 #   1. .venv with requirements-dev.txt (creates it with Python 3.11 if missing).
 #   2. System packages when root (or with password-less sudo): PostgreSQL and the PostGIS
 #      package matching the server's major version, proj-data (EGM96 grid), chromium (browser
-#      tests), fonts-dejavu-core (PDF fonts), poppler-utils (PDF checks). One apt-get update,
+#      tests), fonts-dejavu-core (PDF fonts), poppler-utils (PDF checks), nginx (the site
+#      configuration is checked with nginx -t and served in a test). One apt-get update,
 #      and only when something is missing.
 #   3. PostgreSQL: uses $DATABASE_URL if set, else postgres://registry@127.0.0.1:5432/registry.
 #      For a local server it starts the cluster if it is down (pg_ctlcluster) and, with
-#      superuser access, provisions the role `registry` (LOGIN CREATEDB), the database
+#      superuser access, provisions the role `registry` (LOGIN CREATEDB CREATEROLE: the tests make a
+#      runtime role to check its rights on the audit trail), its owner role, the database
 #      `registry` and PostGIS in template1 (so that test databases get it). It never drops a
 #      database; pytest-django creates and drops test_<name> itself.
 #   4. pytest without DATABASE_URL (SQLite), then with it (PostgreSQL + PostGIS).
@@ -95,7 +97,7 @@ postgis_package_for() {
 
 # ---------------------------------------------------------------------------------------------
 step "[2/5] System packages"
-WANTED=(proj-data chromium fonts-dejavu-core poppler-utils)
+WANTED=(proj-data chromium fonts-dejavu-core poppler-utils nginx)
 if [ "$PG_LOCAL" = 1 ]; then
   PG_VERSION="$(local_pg_version)"
   if [ -z "$PG_VERSION" ]; then
@@ -231,8 +233,9 @@ setup_postgres() {
         { PG_PROBLEM="PostGIS is not available on PostgreSQL $ver and could not be installed ($(postgis_package_for "$ver"))"; return 1; }
     fi
     if [ "$PG_URL_GIVEN" = 0 ]; then
-      info "provisioning role 'registry' (LOGIN CREATEDB), database 'registry', PostGIS in template1"
-      pg_super_sql -d postgres -v db_user=registry -v db_name=registry -v createdb=true -v template_postgis=true \
+      info "provisioning role 'registry' (LOGIN CREATEDB CREATEROLE), database 'registry', PostGIS in template1"
+      pg_super_sql -d postgres -v db_user=registry -v db_name=registry -v createdb=true -v createrole=true \
+        -v template_postgis=true \
         <deploy/postgres/provision.sql >/dev/null ||
         { PG_PROBLEM="provisioning failed (deploy/postgres/provision.sql; see the messages above)"; return 1; }
       ok "provisioned (deploy/postgres/provision.sql)"

@@ -190,3 +190,38 @@ def check_basemap(app_configs=None, **kwargs):
             id="registry.W020",
         )
     ]
+
+
+# --- database roles and the audit trail (infrastructure area; ids registry.W030–W039) ---
+
+
+@register(Tags.database, deploy=True)
+def check_audit_role(app_configs=None, databases=None, **kwargs):
+    """registry.W030: in production the application's login must not own or be able to rewrite the audit table."""
+    from django.conf import settings
+
+    from registry.dbroles import audit_table_risks
+
+    if not getattr(settings, "PRODUCTION", False):
+        return []
+    warnings = []
+    for alias in databases or []:
+        conn = connections[alias]
+        if conn.vendor != "postgresql":
+            continue
+        try:
+            risks = audit_table_risks(conn)
+        except Exception:  # unreachable, or not migrated yet: reported elsewhere
+            continue
+        if risks:
+            warnings.append(
+                Warning(
+                    f"The application's database login on '{alias}' could rewrite the audit trail: "
+                    + "; ".join(risks)
+                    + ".",
+                    hint="Run the application as the runtime role and migrations as the owner role "
+                    "(deploy/README.md, 'Database roles'; deploy/postgres/provision.sql).",
+                    id="registry.W030",
+                )
+            )
+    return warnings

@@ -50,16 +50,21 @@ INSTALLED_APPS = [
     "rest_framework",
     "rest_framework.authtoken",
     "drf_spectacular",
+    "drf_spectacular_sidecar",  # Swagger UI files served from our own static files (no CDN, works offline)
     "registry.apps.RegistryConfig",
 ]
 
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
+    # A strict Content-Security-Policy on every answer (registry/web/csp.py).
+    "registry.web.csp.ContentSecurityPolicyMiddleware",
     "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
     "django.contrib.auth.middleware.AuthenticationMiddleware",
+    # Idempotency-Key on API writes: a retried write is answered once (registry/api/idempotency.py).
+    "registry.api.idempotency.IdempotencyMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
 ]
@@ -91,6 +96,10 @@ DATABASES = {
         conn_max_age=int(os.environ.get("REGISTRY_DB_CONN_MAX_AGE", "60" if PRODUCTION else "0")),
     )
 }
+# PostgreSQL roles (registry/dbroles.py, deploy/README.md "Database roles"): REGISTRY_DB_ROLE is
+# assumed after connecting (SET ROLE), e.g. the owner role for "manage.py migrate".
+if os.environ.get("REGISTRY_DB_ROLE", "").strip() and "postgresql" in DATABASES["default"]["ENGINE"]:
+    DATABASES["default"].setdefault("OPTIONS", {})["assume_role"] = os.environ["REGISTRY_DB_ROLE"].strip()
 if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
     DATABASES["default"].setdefault("OPTIONS", {})
     DATABASES["default"]["OPTIONS"].update({"timeout": 20, "transaction_mode": "IMMEDIATE"})
@@ -140,7 +149,16 @@ REST_FRAMEWORK = {
         "rest_framework.authentication.SessionAuthentication",
     ],
     "DEFAULT_PERMISSION_CLASSES": ["registry.api.permissions.IsViewer"],
-    "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.LimitOffsetPagination",
+    # JSON only: DRF's browsable HTML pages use inline scripts and styles, which our
+    # Content-Security-Policy refuses (registry/web/csp.py); /api/docs/ is the readable view.
+    "DEFAULT_RENDERER_CLASSES": ["rest_framework.renderers.JSONRenderer"],
+    "DEFAULT_PAGINATION_CLASS": "registry.api.pagination.RegistryPagination",
+    # JSON with limits: nesting depth and text that is not Unicode are 400s (registry/api/parsers.py).
+    "DEFAULT_PARSER_CLASSES": [
+        "registry.api.parsers.SafeJSONParser",
+        "rest_framework.parsers.FormParser",
+        "rest_framework.parsers.MultiPartParser",
+    ],
     "PAGE_SIZE": 100,
     "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
     "EXCEPTION_HANDLER": "registry.api.errors.api_exception_handler",
@@ -154,6 +172,15 @@ SPECTACULAR_SETTINGS = {
     ),
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    # /api/docs/: Swagger UI from drf-spectacular-sidecar's vendored files, under our strict CSP.
+    "SWAGGER_UI_DIST": "SIDECAR",
+    "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
+    "REDOC_DIST": "SIDECAR",
+    "POSTPROCESSING_HOOKS": [
+        "drf_spectacular.hooks.postprocess_schema_enums",
+        # The error answers every operation can give, and the Idempotency-Key header on writes.
+        "registry.api.schema.add_error_responses",
+    ],
     # Several enumerations share field names (a mark's and a job's "status"...): name them once.
     "ENUM_NAME_OVERRIDES": {
         "MarkStatusEnum": "registry.models.MarkStatus",
@@ -192,6 +219,17 @@ REGISTRY = {
     # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)
     # after the sign-in and role check (registry/web/views.py media_file; deploy/nginx/registry.conf).
     "MEDIA_ACCEL_PREFIX": os.environ.get("REGISTRY_MEDIA_ACCEL_PREFIX", "/_protected_media/"),
+    # Sign-in throttle (registry/services/signin.py): failures per account / per client address within
+    # SIGNIN_LOCK_MINUTES before sign-in is paused for that long.
+    "SIGNIN_ACCOUNT_FAILURES": int(os.environ.get("REGISTRY_SIGNIN_ACCOUNT_FAILURES", "5")),
+    "SIGNIN_ADDRESS_FAILURES": int(os.environ.get("REGISTRY_SIGNIN_ADDRESS_FAILURES", "20")),
+    "SIGNIN_LOCK_MINUTES": float(os.environ.get("REGISTRY_SIGNIN_LOCK_MINUTES", "15")),
+    # Request header (as Django's META key) holding the client's address set by the proxy; production
+    # default X-Real-IP, which deploy/nginx/registry.conf sets. Empty: the connection's address.
+    "CLIENT_IP_HEADER": os.environ.get("REGISTRY_CLIENT_IP_HEADER", "HTTP_X_REAL_IP" if PRODUCTION else "").strip(),
+    # PostgreSQL role the application logs in as in production; after each migrate run as the owner it
+    # gets rows only, and INSERT/SELECT on the audit trail (registry/dbroles.py). Empty: no grants.
+    "DB_RUNTIME_ROLE": os.environ.get("REGISTRY_DB_RUNTIME_ROLE", "").strip(),
 }
 
 LOGGING = {

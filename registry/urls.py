@@ -13,3 +13,10 @@ urlpatterns = [
     *([] if getattr(settings, "PRODUCTION", False) else [path("django-admin/", admin.site.urls)]),
     path("", include("registry.web.urls")),
 ]
+
+# Under /api/ Django's own error answers (unknown address, body too large, server error) use the
+# API's error shape; elsewhere the usual pages (registry/api/fallback.py).
+handler400 = "registry.api.fallback.bad_request"
+handler403 = "registry.api.fallback.permission_denied"
+handler404 = "registry.api.fallback.not_found"
+handler500 = "registry.api.fallback.server_error"

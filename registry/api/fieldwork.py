@@ -15,12 +15,13 @@ from __future__ import annotations
 from drf_spectacular.utils import OpenApiResponse, extend_schema
 from rest_framework import serializers
 from rest_framework import status as http_status
-from rest_framework.pagination import LimitOffsetPagination
-from rest_framework.parsers import FormParser, JSONParser, MultiPartParser
+from rest_framework.parsers import FormParser, MultiPartParser
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.pagination import RegistryPagination
+from registry.api.parsers import SafeJSONParser
 from registry.api.positions import ReadViewerWriteRecorder
 from registry.api.serializers import ErrorSerializer, RoundedFloatField
 from registry.models import (
@@ -170,7 +171,7 @@ class _MarkChildren(APIView):
     """List a mark's rows (newest first, paginated) and record a new one through a service."""
 
     permission_classes = [ReadViewerWriteRecorder]
-    pagination_class = LimitOffsetPagination
+    pagination_class = RegistryPagination
     model = None
     serializer_class = None
     order: tuple[str, ...] = ()
@@ -249,7 +250,7 @@ class MarkAttachmentsView(_MarkChildren):
     order = ("-uploaded_at", "-pk")
     related = ("uploaded_by",)
     prefetch = ()
-    parser_classes = [MultiPartParser, FormParser, JSONParser]
+    parser_classes = [MultiPartParser, FormParser, SafeJSONParser]
 
     @extend_schema(
         operation_id="marks_attachments_list", responses={200: AttachmentSerializer(many=True), **ERROR_RESPONSES}

@@ -13,12 +13,12 @@ from django.core.exceptions import ValidationError
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
 from rest_framework import status as http_status
-from rest_framework.pagination import LimitOffsetPagination
-from rest_framework.renderers import BrowsableAPIRenderer, JSONRenderer
+from rest_framework.renderers import JSONRenderer
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.api.geojson import GEOJSON_MEDIA_TYPE, GeoJSONRenderer, feature_collection
+from registry.api.pagination import RegistryPagination
 from registry.api.permissions import ReadViewerWriteManager
 from registry.api.serializers import (
     ErrorSerializer,
@@ -77,12 +77,12 @@ class MarkListView(APIView):
     """``GET /api/marks/``: search marks; ``POST /api/marks/``: create one (manager)."""
 
     permission_classes = [ReadViewerWriteManager]
-    renderer_classes = [JSONRenderer, BrowsableAPIRenderer, GeoJSONRenderer]
-    pagination_class = LimitOffsetPagination
+    renderer_classes = [JSONRenderer, GeoJSONRenderer]
+    pagination_class = RegistryPagination
 
     def get_renderers(self):
         if getattr(self, "request", None) is not None and self.request.method not in ("GET", "HEAD"):
-            return [JSONRenderer(), BrowsableAPIRenderer()]
+            return [JSONRenderer()]
         return super().get_renderers()
 
     @extend_schema(

@@ -10,12 +10,12 @@ from django.core.exceptions import ValidationError
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
 from rest_framework import status as http_status
-from rest_framework.pagination import LimitOffsetPagination
 from rest_framework.permissions import SAFE_METHODS, BasePermission
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.pagination import RegistryPagination
 from registry.api.permissions import IsManager
 from registry.api.serializers import DecisionInput, ErrorSerializer, PositionProposeInput, PositionSerializer
 from registry.models import Position, PositionState
@@ -49,7 +49,7 @@ class MarkPositionsView(APIView):
     """``GET /api/marks/<code>/positions/`` (every state, newest first); ``POST`` to propose one."""
 
     permission_classes = [ReadViewerWriteRecorder]
-    pagination_class = LimitOffsetPagination
+    pagination_class = RegistryPagination
 
     @extend_schema(
         operation_id="marks_positions_list",

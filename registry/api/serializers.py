@@ -96,8 +96,8 @@ class PositionSerializer(serializers.ModelSerializer):
     vel_sigma_e_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
     vel_sigma_n_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
     vel_sigma_u_m_yr = RoundedFloatField(VELOCITY_M_YR_DECIMALS, allow_null=True)
-    created_by = serializers.SlugRelatedField(slug_field="username", read_only=True)
-    decided_by = serializers.SlugRelatedField(slug_field="username", read_only=True)
+    created_by = serializers.SlugRelatedField(slug_field="username", read_only=True, allow_null=True)
+    decided_by = serializers.SlugRelatedField(slug_field="username", read_only=True, allow_null=True)
 
     class Meta:
         model = Position

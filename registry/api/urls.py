@@ -1,7 +1,7 @@
 """JSON API routes. Each area adds its routes in its own module and is included here."""
 
 from django.urls import path, re_path
-from drf_spectacular.views import SpectacularAPIView, SpectacularRedocView
+from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerSplitView
 
 from registry.api import accuracy as accuracy_api  # accuracy area
 from registry.api import convert as convert_api  # geodesy area
@@ -17,7 +17,8 @@ app_name = "api"
 
 urlpatterns = [
     path("schema/", SpectacularAPIView.as_view(), name="schema"),
-    path("docs/", SpectacularRedocView.as_view(url_name="api:schema"), name="docs"),
+    # Swagger UI with its start-up script served as a file (no inline script: registry/web/csp.py).
+    path("docs/", SpectacularSwaggerSplitView.as_view(url_name="api:schema"), name="docs"),
     # accuracy statement (accuracy area)
     path("accuracy/", accuracy_api.AccuracyView.as_view(), name="accuracy"),
     # exports (import-export area); before marks/<code>/ so that the names never read as a code

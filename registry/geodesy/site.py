@@ -33,13 +33,14 @@ cases but not for area fractions.
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 import pyproj
+
+from registry.jsonlimits import JSONLimitError, check_json_value, loads_checked
 
 #: Largest site extent accepted (m). A bigger site is not an RTK job for one base.
 MAX_SITE_EXTENT_M = 50_000.0
@@ -211,11 +212,15 @@ def parse_site_geojson(value: Any) -> Site:
     ...
     registry.geodesy.site.SiteError: The site must be a GeoJSON Point or Polygon, not LineString.
     """
-    if isinstance(value, str | bytes):
-        try:
-            value = json.loads(value)
-        except (ValueError, TypeError) as exc:
-            raise SiteError(f"The site is not valid JSON: {exc}.", code="invalid_json") from None
+    try:
+        if isinstance(value, str | bytes):
+            value = loads_checked(value)
+        else:
+            check_json_value(value)
+    except JSONLimitError as exc:
+        raise SiteError(f"The site is not usable: {exc.message}", code=exc.code) from None
+    except (ValueError, TypeError) as exc:
+        raise SiteError(f"The site is not valid JSON: {exc}.", code="invalid_json") from None
     if not isinstance(value, dict):
         raise SiteError("The site must be a GeoJSON object.", code="unsupported_geometry")
     if value.get("type") == "Feature":

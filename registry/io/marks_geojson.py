@@ -30,6 +30,7 @@ from registry.io.common import (
     new_column_names,
     validate_row,
 )
+from registry.jsonlimits import JSONLimitError, loads_checked
 
 MEDIA_TYPE = "application/geo+json"
 #: Properties written on export, in order.
@@ -48,7 +49,10 @@ def parse_marks_geojson(text: str) -> ParseResult:
     if text.startswith("\ufeff"):
         text = text[1:]
     try:
-        doc = json.loads(text, parse_constant=_reject_constant)
+        doc = loads_checked(text, parse_constant=_reject_constant)
+    except JSONLimitError as exc:
+        result.errors.append(RowError("file", 0, exc.code, exc.message))
+        return result
     except (json.JSONDecodeError, ValueError) as exc:
         result.errors.append(RowError("file", 0, "malformed_json", f"not valid JSON: {exc}"))
         return result

@@ -34,6 +34,7 @@ from registry.models.marks import (
     SkyView,
     Stability,
 )
+from registry.models.security import IdempotencyRecord, SigninThrottle
 
 __all__ = [
     "CODE_VALIDATOR",
@@ -58,6 +59,7 @@ __all__ = [
     "FrozenPositionError",
     "HeightMethod",
     "HeightRecord",
+    "IdempotencyRecord",
     "Job",
     "JobStatus",
     "Mark",
@@ -72,6 +74,7 @@ __all__ = [
     "RtkCombination",
     "RtkHorizontalMeaning",
     "SUSPECT_FINDINGS",
+    "SigninThrottle",
     "SkyView",
     "Stability",
     "Visit",

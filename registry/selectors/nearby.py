@@ -509,11 +509,13 @@ def marks_near_polygon(
     Other parameters as for ``marks_near``. Edges are treated as geodesics
     (``registry.geodesy.proximity``).
     """
-    import json
+    from registry.jsonlimits import JSONLimitError, loads_checked
 
     if isinstance(polygon_geojson, str):
         try:
-            polygon_geojson = json.loads(polygon_geojson)
+            polygon_geojson = loads_checked(polygon_geojson)
+        except JSONLimitError as exc:
+            raise InvalidInput(f"The site is not usable: {exc.message}", code=exc.code) from None
         except ValueError:
             raise InvalidInput("The site is not valid JSON.", code="polygon_json") from None
     try:

@@ -14,6 +14,8 @@ from django.core.exceptions import ValidationError
 from django.utils import timezone
 from django.utils.dateparse import parse_date, parse_datetime
 
+from registry.services.limits import REASON_MAX
+
 # Integers must fit the databases' 64-bit columns.
 _MAX_INT64 = 2**63 - 1
 
@@ -167,6 +169,10 @@ def parse_note(note: Any, *, required: bool, what: str = "this action") -> str:
         raise field_error("note", "Null characters are not allowed.", "null_characters_not_allowed")
     if required and not note:
         raise field_error("note", f"Give the reason for {what}.", "note_required")
+    if len(note) > REASON_MAX:
+        raise field_error(
+            "note", "At most %(limit_value)d characters.", "max_length", limit_value=REASON_MAX, show_value=len(note)
+        )
     return note
 
 

@@ -58,6 +58,7 @@ from registry.services._input import (
 )
 from registry.services.access import access_mark_by_code
 from registry.services.audit import audit_record, snapshot
+from registry.services.limits import check_text_limits
 from registry.services.suspect import visit_suspicion
 from registry.vocabulary import OLD_VISIT_FIELDS, new_finding, rename_old_keys
 
@@ -126,6 +127,7 @@ def visit_record(*, actor, mark_code: str, data: dict) -> Visit:
     with transaction.atomic():
         mark = access_mark_by_code(actor, mark_code, ability=Ability.RECORD, for_update=True)
         visit = Visit(mark=mark, visited_on=visited_on, finding=finding, visitor=visitor, notes=notes, created_by=actor)
+        check_text_limits(visit)
         visit.full_clean()
         visit.save(force_insert=True)
         audit_record(actor=actor, action="visit_record", obj=visit, after=snapshot(visit), mark=mark)
@@ -239,6 +241,7 @@ def occupation_record(*, actor, mark_code: str, data: dict) -> Occupation:
             notes=notes,
             created_by=actor,
         )
+        check_text_limits(occupation)
         occupation.full_clean()
         occupation.save(force_insert=True)
         after = snapshot(occupation)

@@ -23,6 +23,7 @@ from registry.selectors.grids import definition_of
 from registry.services._input import field_error
 from registry.services.access import require_ability
 from registry.services.audit import audit_record, snapshot
+from registry.services.limits import NOTES_MAX
 
 NUMBER_FIELDS = (
     "lat0_deg",
@@ -98,7 +99,7 @@ def _clean(data: Any) -> dict[str, Any]:
                 text = "" if value is None else value
                 if not isinstance(text, str):
                     raise field_error(key, "Expected text.", "invalid_type")
-                limit = 200 if key == "name" else 20_000
+                limit = 200 if key == "name" else NOTES_MAX
                 if len(text.strip()) > limit:
                     raise field_error(key, f"At most {limit} characters.", "max_length")
                 cleaned[key] = text.strip()

@@ -31,6 +31,7 @@ from registry.roles import Ability
 from registry.services._input import field_error
 from registry.services.access import access_job_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
+from registry.services.limits import NOTES_MAX
 
 #: Numeric fields: (lower bound, lower bound open?, upper bound, unit words).
 NUMBER_RANGES: dict[str, tuple[float, bool, float, str]] = {
@@ -48,7 +49,7 @@ NUMBER_RANGES: dict[str, tuple[float, bool, float, str]] = {
     "recovery_years": (0.0, True, 200.0, "years"),
     "grid_spacing_m": (0.0, True, 10_000.0, "m"),
 }
-TEXT_FIELDS = {"name": 200, "client": 200, "notes": 20_000}
+TEXT_FIELDS = {"name": 200, "client": 200, "notes": NOTES_MAX}
 EDITABLE_FIELDS: tuple[str, ...] = (
     "name",
     "client",
@@ -212,7 +213,13 @@ def _clean(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
                     raise field_error(key, "Expected text.", "invalid_type")
                 value = value.strip()
                 if len(value) > TEXT_FIELDS[key]:
-                    raise field_error(key, f"At most {TEXT_FIELDS[key]} characters.", "max_length")
+                    raise field_error(
+                        key,
+                        "At most %(limit_value)d characters (this has %(show_value)d).",
+                        "max_length",
+                        limit_value=TEXT_FIELDS[key],
+                        show_value=len(value),
+                    )
                 cleaned[key] = value
             else:
                 choices = {

@@ -34,6 +34,7 @@ from registry.roles import Ability
 from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
+from registry.services.limits import check_text_limits
 from registry.vocabulary import OLD_MARK_FIELDS, rename_old_keys
 
 # Descriptive fields a manager edits with mark_update (the description block in its display order).
@@ -97,6 +98,7 @@ def _validate_on(mark: Mark, changes: dict[str, Any]) -> Mark:
     for key, value in changes.items():
         setattr(candidate, key, value)
     untouched = [f.name for f in Mark._meta.concrete_fields if f.name not in changes]
+    check_text_limits(candidate, fields=set(changes))
     candidate.full_clean(exclude=untouched, validate_constraints=True)
     return candidate
 
@@ -172,6 +174,7 @@ def mark_create(*, actor, data: dict) -> Mark:
     if cleaned.get("status") == MarkStatus.SUSPECT:
         raise ValidationError({"status": _suspect_not_settable()})
     mark = Mark(**cleaned)
+    check_text_limits(mark)
     mark.full_clean()
     try:
         with transaction.atomic():

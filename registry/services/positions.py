@@ -38,6 +38,7 @@ from registry.services._input import (
 )
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
+from registry.services.limits import check_text_limits
 from registry.services.suspect import lift_suspicion
 
 COV_FIELDS = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
@@ -213,6 +214,7 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
                 code="mark_destroyed",
             )
         position = Position(mark=mark, created_by=actor, state=PositionState.PROPOSED, **cleaned)
+        check_text_limits(position)
         position.full_clean()
         position.save(force_insert=True)
         audit_record(actor=actor, action="position_propose", obj=position, after=snapshot(position), mark=mark)

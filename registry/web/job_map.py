@@ -65,6 +65,7 @@ class LegendRow:
     colour: str
     label: str
     hatched: bool = False
+    index: int = 0  # the class (0-4): the page draws it with the stylesheet's .swatch-<index>
 
 
 @dataclass
@@ -122,9 +123,9 @@ def legend_rows(tol_h_mm: float) -> list[LegendRow]:
     lo = 0.0
     for i, f in enumerate(CLASS_BOUNDS):
         hi = f * tol_h_mm
-        rows.append(LegendRow(CLASS_COLOURS[i], f"{lo:.1f}–{hi:.1f} mm" if i else f"≤ {hi:.1f} mm"))
+        rows.append(LegendRow(CLASS_COLOURS[i], f"{lo:.1f}–{hi:.1f} mm" if i else f"≤ {hi:.1f} mm", index=i))
         lo = hi
-    rows.append(LegendRow(CLASS_COLOURS[4], f"> {tol_h_mm:.1f} mm ({OVER_LABEL})", hatched=True))
+    rows.append(LegendRow(CLASS_COLOURS[4], f"> {tol_h_mm:.1f} mm ({OVER_LABEL})", hatched=True, index=4))
     return rows
 
 
@@ -313,8 +314,7 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         f'aria-labelledby="jobmap-title">',
         f'<title id="jobmap-title">Map of job {escape(s.job_code or "site")}: site, bases, check marks and coverage '
         f"(UTM zone {zone_label}, grid north up)</title>",
-        "<style>.lbl{font:11px 'DejaVu Sans',Arial,sans-serif;fill:#1d1f21;paint-order:stroke;stroke:#fdfdfb;"
-        "stroke-width:3px;stroke-linejoin:round}.lbl.muted{fill:#77736c}.lbl.strong{font-weight:bold}</style>",
+        # label styles are in registry.css (svg.jobmap .lbl): no inline style element under the page CSP
         "<defs>"
         '<pattern id="over-hatch" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(45)">'
         f'<rect width="6" height="6" fill="{CLASS_COLOURS[4]}"/><line x1="0" y1="0" x2="0" y2="6" stroke="#7a4a33" '

@@ -453,3 +453,13 @@ def job_export_geojson(request: HttpRequest, code: str) -> HttpResponse:
     response["Content-Type"] = "application/geo+json"
     response["Content-Disposition"] = f'attachment; filename="{code}-control.geojson"'
     return response
+
+
+@ability_required(Ability.VIEW)
+def job_notes(request: HttpRequest, code: str) -> HttpResponse:
+    """A job's notes in full (the job page shows the first part)."""
+    job = access_job_by_code(request.user, code)
+    back = redirect("web:job-detail", code=job.code).url
+    return render(
+        request, "registry/full_text.html", {"title": "Notes", "subject": job.code, "text": job.notes, "back": back}
+    )

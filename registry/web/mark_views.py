@@ -138,3 +138,35 @@ def mark_edit(request: HttpRequest, code: str) -> HttpResponse:
         {"form": form, "mark": mark, "conflict": conflict},
         status=status,
     )
+
+
+#: The free texts of a mark that a page may show cut short, by the name in the address.
+_MARK_TEXTS = {"access-directions": ("access_directions", "Access directions"), "notes": ("notes", "Notes")}
+
+
+@ability_required(Ability.VIEW)
+def mark_text(request: HttpRequest, code: str, what: str, pk: int | None = None) -> HttpResponse:
+    """One free text of a mark in full: its description fields, a visit's notes, a position's note."""
+    from registry.models import Position, Visit
+    from registry.services.access import access_mark_by_code
+
+    mark = access_mark_by_code(request.user, code)
+    if what in _MARK_TEXTS and pk is None:
+        field, title = _MARK_TEXTS[what]
+        text = getattr(mark, field, "")
+    elif what == "visit" and pk is not None:
+        visit = Visit.objects.filter(mark=mark, pk=pk).first()
+        if visit is None:
+            raise Http404("No such visit.")
+        text, title = visit.notes, f"Notes of the visit on {visit.visited_on:%Y-%m-%d}"
+    elif what == "position" and pk is not None:
+        position = Position.objects.filter(mark=mark, pk=pk).first()
+        if position is None:
+            raise Http404("No such position.")
+        text, title = position.note, f"Note of position {position.pk}"
+    else:
+        raise Http404("No such text.")
+    back = redirect("web:mark-detail", code=mark.code).url
+    return render(
+        request, "registry/full_text.html", {"title": title, "subject": mark.code, "text": text, "back": back}
+    )

@@ -32,6 +32,9 @@ urlpatterns: list = [
     path("marks/near/", nearby_views.marks_near_page, name="marks-near"),
     path("marks/<str:code>/", mark_views.mark_page, name="mark-detail"),
     path("marks/<str:code>/edit/", mark_views.mark_edit, name="mark-edit"),
+    # a free text in full, behind a page's "show all" (registry/services/limits.py)
+    path("marks/<str:code>/text/<str:what>/", mark_views.mark_text, name="mark-text"),
+    path("marks/<str:code>/text/<str:what>/<int:pk>/", mark_views.mark_text, name="mark-text-item"),
     # fieldwork, positions and status (fieldwork pages area)
     path("marks/<str:code>/visits/new/", fieldwork_views.visit_new, name="visit-create"),
     path("marks/<str:code>/occupations/new/", fieldwork_views.occupation_new, name="occupation-create"),
@@ -53,6 +56,7 @@ urlpatterns: list = [
     path("jobs/new/", job_views.job_new, name="job-create"),
     path("jobs/<str:code>/", job_views.job_page, name="job-detail"),
     path("jobs/<str:code>/edit/", job_views.job_edit, name="job-edit"),
+    path("jobs/<str:code>/notes/", job_views.job_notes, name="job-notes"),
     path("jobs/<str:code>/control.csv", job_views.job_export_csv, name="job-export-csv"),
     path("jobs/<str:code>/control.geojson", job_views.job_export_geojson, name="job-export-geojson"),
     # uploaded files in development (DEBUG); the web server serves them in production

@@ -41,6 +41,7 @@ from registry.models import (
     Position,
     Visit,
 )
+from registry.models.audit import GENESIS_HASH, row_hash_of
 from registry.models.marks import position_history_delete_allowed
 from registry.roles import ensure_roles
 from registry.services.audit import snapshot
@@ -334,13 +335,14 @@ class Command(BaseCommand):
                 marks = Mark.objects.filter(code__in=codes)
                 users = User.objects.filter(username__in=usernames)
                 jobs = Job.objects.filter(code__in=job_codes)
-                with _audit_guard_lifted():
+                with _audit_guard_lifted(), _audit_update_guard_lifted():
                     counts["audit events"] = AuditEvent.objects.filter(
                         Q(mark__in=marks)
                         | Q(actor__in=users)
                         | Q(action="demo_load")
                         | Q(object_type="job", object_id__in=[str(pk) for pk in jobs.values_list("pk", flat=True)])
                     ).delete()[0]
+                    _relink_audit_chain()
                 for doc in Document.objects.filter(Q(mark__in=marks) | Q(job__in=jobs)):
                     if doc.pdf:
                         doc.pdf.delete(save=False)
@@ -410,6 +412,31 @@ class _audit_guard_lifted(_delete_guard_lifted):
 
     table, sqlite_trigger, pg_trigger = "registry_auditevent", "audit_no_delete", "audit_append_only"
     migration = "0003_integrity_triggers"
+
+
+class _audit_update_guard_lifted(_delete_guard_lifted):
+    """The audit trail's guard on UPDATE, for re-linking the hash chain after the reset's deletions.
+
+    On PostgreSQL the same trigger guards UPDATE and DELETE, so lifting it twice is harmless."""
+
+    table, sqlite_trigger, pg_trigger = "registry_auditevent", "audit_no_update", "audit_append_only"
+    migration = "0003_integrity_triggers"
+
+
+def _relink_audit_chain() -> None:
+    """Re-link the rows left after the reset deleted the demo's (development only, guards lifted).
+
+    Deleting rows from the middle breaks the hash chain (registry/models/audit.py), and
+    ``verify_audit`` would rightly report it; a development database that was reset starts its
+    chain afresh from the rows that remain, in their order.
+    """
+    seq, prev = 0, GENESIS_HASH
+    for event in AuditEvent.objects.order_by("seq", "id").iterator(chunk_size=2000):
+        seq += 1
+        digest = row_hash_of(event, seq=seq, prev_hash=prev)
+        if (event.seq, event.prev_hash, event.row_hash) != (seq, prev, digest):
+            AuditEvent.objects.filter(pk=event.pk).update(seq=seq, prev_hash=prev, row_hash=digest)
+        prev = digest
 
 
 class _position_guard_lifted(_delete_guard_lifted):

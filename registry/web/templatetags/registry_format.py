@@ -304,3 +304,25 @@ def choice_label(value, field_name):
     except Exception:
         return value
     return dict(field.choices or []).get(value, value)
+
+
+@register.simple_tag
+def clipped_text(text, full_url="", limit=None):
+    """A free text for a page: at most ``SHOWN_MAX`` characters (cut at a space), line breaks kept,
+    and a "show all" link to the whole text when it was cut (registry/services/limits.py)."""
+    from django.template.defaultfilters import linebreaksbr
+
+    from registry.services.limits import SHOWN_MAX
+
+    text = str(text or "")
+    limit = int(limit or SHOWN_MAX)
+    if len(text) <= limit:
+        return linebreaksbr(text)
+    cut = text[:limit]
+    if " " in cut[limit // 2 :]:
+        cut = cut.rsplit(" ", 1)[0]
+    if not full_url:
+        return format_html("{}…", linebreaksbr(cut))
+    return format_html(
+        '{}… <a class="show-all" href="{}">show all ({} characters)</a>', linebreaksbr(cut), full_url, f"{len(text):,}"
+    )
