@@ -50,6 +50,8 @@ INSTALLED_APPS = [
     "rest_framework",
     "rest_framework.authtoken",
     "drf_spectacular",
+    "django_tasks",
+    "django_tasks_db",
     "registry.apps.RegistryConfig",
 ]
 
@@ -185,7 +187,41 @@ REGISTRY = {
     # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)
     # after the sign-in and role check (registry/web/views.py media_file; deploy/nginx/registry.conf).
     "MEDIA_ACCEL_PREFIX": os.environ.get("REGISTRY_MEDIA_ACCEL_PREFIX", "/_protected_media/"),
+    # Documents (station description sheets, control reports; registry/reports/).
+    "OFFICE_NAME": os.environ.get("REGISTRY_OFFICE_NAME", "Survey office (set REGISTRY_OFFICE_NAME)").strip(),
+    # PNG or JPEG drawn in the documents' heading; empty: none.
+    "OFFICE_LOGO": os.environ.get("REGISTRY_OFFICE_LOGO", "").strip(),
+    "PAGE_SIZE": os.environ.get("REGISTRY_PAGE_SIZE", "A4").strip(),
+    # Frames (EPSG codes, comma-separated) a sheet prints; empty: every published position of the mark.
+    "SHEET_FRAMES": os.environ.get("REGISTRY_SHEET_FRAMES", "").strip(),
+    # The office's grid (EPSG code of a projected CRS); empty: the UTM zone of each mark.
+    "GRID_EPSG": os.environ.get("REGISTRY_GRID_EPSG", "").strip(),
+    # Frame (EPSG code) the office geoid model is tied to; empty: the office model is applied to none
+    # (the EGM96 fallback, labelled approximate, to any).
+    "GEOID_FRAME_EPSG": os.environ.get("REGISTRY_GEOID_FRAME_EPSG", "").strip(),
+    "GEOID_NAME": os.environ.get("REGISTRY_GEOID_NAME", "").strip(),
+    # Statement style for check-point residuals uploaded with a control report: nssda or asprs2023.
+    "REPORT_STATEMENT_STYLE": os.environ.get("REGISTRY_REPORT_STATEMENT_STYLE", "nssda").strip(),
+    # Address the QR codes of documents open (the public verification page); no trailing slash.
+    "PUBLIC_URL": os.environ.get("REGISTRY_PUBLIC_URL", "http://127.0.0.1:8000").strip().rstrip("/"),
+    # Encrypts signing keys at rest (required in production; see deploy/README.md).
+    "SIGNING_KEY_SECRET": os.environ.get(
+        "REGISTRY_SIGNING_KEY_SECRET", "" if PRODUCTION else "dev-only-signing-key-secret-never-in-production"
+    ),
+    # Public verification page: at most this many requests per client address per minute.
+    "VERIFY_RATE_PER_MIN": int(os.environ.get("REGISTRY_VERIFY_RATE_PER_MIN", "30")),
 }
+
+# Background work (document builds) through Django's tasks interface (the django-tasks backport on
+# Django 5.2). "database": the ORM queue of django-tasks-db, worked by ``manage.py db_worker`` (any number
+# of workers, on any machine that reaches the database); "immediate": run in the request (tests). Another
+# backend of the same interface (RQ, Celery) is a settings change: REGISTRY_TASK_BACKEND=dotted.path.
+_TASK_BACKENDS = {
+    "database": "django_tasks_db.DatabaseBackend",
+    "immediate": "django_tasks.backends.immediate.ImmediateBackend",
+}
+_task_backend = os.environ.get("REGISTRY_TASK_BACKEND", "database").strip() or "database"
+TASKS = {"default": {"BACKEND": _TASK_BACKENDS.get(_task_backend, _task_backend)}}
 
 LOGGING = {
     "version": 1,

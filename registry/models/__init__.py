@@ -1,7 +1,19 @@
 """The registry's data model (see the brief's vocabulary)."""
 
 from registry.models.audit import AuditEvent, AuditTrailError
-from registry.models.documents import Document, DocumentKind, DocumentState
+from registry.models.documents import (
+    DOCUMENT_FROZEN_FIELDS,
+    DOCUMENT_ISSUED_STATES,
+    DOCUMENT_STANDING_FIELDS,
+    BuildState,
+    Document,
+    DocumentBuild,
+    DocumentFrozenError,
+    DocumentKind,
+    DocumentMark,
+    DocumentState,
+    PageSize,
+)
 from registry.models.fieldwork import (
     AntennaHeightKind,
     Attachment,
@@ -31,8 +43,20 @@ from registry.models.marks import (
     SkyView,
     Stability,
 )
+from registry.models.signing import CertificateAuthority, SignatoryProfile, SigningCertificate
 
 __all__ = [
+    "DOCUMENT_FROZEN_FIELDS",
+    "DOCUMENT_ISSUED_STATES",
+    "DOCUMENT_STANDING_FIELDS",
+    "BuildState",
+    "CertificateAuthority",
+    "DocumentBuild",
+    "DocumentFrozenError",
+    "DocumentMark",
+    "PageSize",
+    "SignatoryProfile",
+    "SigningCertificate",
     "CODE_VALIDATOR",
     "POSITION_FROZEN_FIELDS",
     "POSITION_HISTORY_STATES",
