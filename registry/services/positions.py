@@ -38,6 +38,7 @@ from registry.services._input import (
 )
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
+from registry.services.documents import documents_mark_changed
 
 COV_FIELDS = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
 VEL_FIELDS = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
@@ -278,6 +279,7 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             note=note,
             mark=mark,
         )
+        documents_mark_changed(mark, f"position published in EPSG:{position.frame_epsg}", actor=actor)
     return position
 
 
@@ -332,4 +334,5 @@ def position_withdraw(*, actor, position_id: int, note: str) -> Position:
             note=note,
             mark=mark,
         )
+        documents_mark_changed(mark, f"published position in EPSG:{position.frame_epsg} withdrawn", actor=actor)
     return position
