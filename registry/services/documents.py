@@ -603,11 +603,8 @@ def documents_mark_changed(mark: Mark | int, reason: str, *, actor=None) -> int:
     """
     mark_id = mark.pk if isinstance(mark, Mark) else int(mark)
     now = timezone.now()
-    docs = list(
-        Document.objects.select_for_update()
-        .filter(covered__mark_id=mark_id, state=DocumentState.SIGNED, out_of_date=False)
-        .distinct()
-    )
+    ids = DocumentMark.objects.filter(mark_id=mark_id).values("document_id")
+    docs = list(Document.objects.select_for_update().filter(pk__in=ids, state=DocumentState.SIGNED, out_of_date=False))
     for doc in docs:
         Document.objects.filter(pk=doc.pk).update(out_of_date=True, out_of_date_at=now, out_of_date_reason=reason[:500])
         audit_record(

@@ -93,9 +93,8 @@ def _draft_overlay(content: bytes) -> bytes:
     from registry.reports.layout import register_fonts
 
     register_fonts()
-    reader = PdfReader(io.BytesIO(content))
-    writer = PdfWriter()
-    for page in reader.pages:
+    writer = PdfWriter(clone_from=io.BytesIO(content))
+    for page in writer.pages:
         w, h = float(page.mediabox.width), float(page.mediabox.height)
         buf = io.BytesIO()
         c = canvas.Canvas(buf, pagesize=(w, h))
@@ -108,7 +107,6 @@ def _draft_overlay(content: bytes) -> bytes:
         c.drawCentredString(0, -26, "not for use: no licensed surveyor has signed it")
         c.save()
         page.merge_page(PdfReader(io.BytesIO(buf.getvalue())).pages[0])
-        writer.add_page(page)
     out = io.BytesIO()
     writer.write(out)
     return out.getvalue()
