@@ -20,13 +20,13 @@ from registry.reports import layout as L
 from registry.reports.vicinity import vicinity_drawing
 from registry.selectors.sheets import PositionBlock, SheetContent
 
-__all__ = ["render_sheet"]
+__all__ = ["closing", "render_sheet", "sheet_story"]
 
 
 def _position_flowables(block: PositionBlock, width: float) -> list:
     st = L.styles()
     half = (width - 8) / 2
-    left = L.facts_table([(r.label, r.value, r.note) for r in block.rows], (0.27 * half, 0.40 * half, 0.33 * half))
+    left = L.facts_table([(r.label, r.value, r.note) for r in block.rows], (0.30 * half, 0.40 * half, 0.30 * half))
     if block.grid_rows:
         right = L.facts_table(
             [(r.label, r.value, r.note) for r in block.grid_rows], (0.29 * half, 0.36 * half, 0.35 * half)
@@ -75,22 +75,19 @@ def _photo(att, max_w: float, max_h: float):
     return Image(path, width=iw * ratio, height=ih * ratio)
 
 
-def render_sheet(
+def sheet_story(
     content: SheetContent,
     *,
-    code: str,
-    revision: int,
-    issued: dt.date,
-    size_name: str,
-    office: str,
-    logo_path: str,
-    verify_url: str,
+    width: float,
+    verify_url: str | None,
     include_photos: bool = True,
-) -> L.BuiltPdf:
-    """The sheet's PDF bytes with its page count and where the signature goes."""
+    title_prefix: str = "",
+) -> list:
+    """The sheet's flowables (without cautions and signature): a sheet's body, or an appendix of a report.
+
+    ``verify_url`` None: no QR code (in a report the report's own QR code and signature cover the appendix).
+    """
     st = L.styles()
-    size = L.page_size(size_name)
-    width = size[0] - 2 * L.MARGIN
     mark = content.mark
     story: list = []
 
@@ -109,15 +106,18 @@ def render_sheet(
         )
         story += [banner, Spacer(1, 6)]
 
-    qr_size = 27 * mm
+    qr_size = 27 * mm if verify_url else 0.0
     title_cell = [
-        L.Paragraph(f"Mark {L.esc(mark.code)}", st["title"]),
+        L.Paragraph(f"{L.esc(title_prefix)}Mark {L.esc(mark.code)}", st["title"]),
         L.para(f"Status: {content.status_words}", "subtitle"),
         Spacer(1, 5),
         L.facts_table([(r.label, r.value) for r in content.description[1:]], (30 * mm, width - qr_size - 36 * mm)),
     ]
-    qr_cell = [L.QrCode(verify_url, qr_size), L.para("Scan to verify this document", "grey")]
-    top = Table([[title_cell, qr_cell]], colWidths=[width - qr_size - 4, qr_size + 4])
+    if verify_url:
+        qr_cell = [L.QrCode(verify_url, qr_size), L.para("Scan to verify this document", "grey")]
+        top = Table([[title_cell, qr_cell]], colWidths=[width - qr_size - 4, qr_size + 4])
+    else:
+        top = Table([[title_cell]], colWidths=[width])
     top.setStyle(TableStyle(L.PLAIN))
     story += [top, Spacer(1, 4)]
 
@@ -225,22 +225,40 @@ def render_sheet(
     else:
         story.append(L.para("No occupation recorded.", "grey"))
 
-    story += _closing(width, record := {})
+    return story
+
+
+def render_sheet(
+    content: SheetContent,
+    *,
+    code: str,
+    revision: int,
+    issued: dt.date,
+    size_name: str,
+    office: str,
+    logo_path: str,
+    verify_url: str,
+    include_photos: bool = True,
+) -> L.BuiltPdf:
+    """The sheet's PDF bytes with its page count and where the signature goes."""
+    width = L.page_size(size_name)[0] - 2 * L.MARGIN
+    story = sheet_story(content, width=width, verify_url=verify_url, include_photos=include_photos)
+    story += closing(width, record := {})
     heading = L.DocumentHeading(
         office=office,
         kind_title="Station description sheet",
-        subject=f"Mark {mark.code}",
+        subject=f"Mark {content.mark.code}",
         code=code,
         revision=revision,
         issued=issued.isoformat(),
         logo_path=logo_path,
     )
     return L.build_pdf(
-        story, heading, size_name=size_name, title=f"Station description sheet {mark.code}", record=record
+        story, heading, size_name=size_name, title=f"Station description sheet {content.mark.code}", record=record
     )
 
 
-def _closing(width: float, record: dict) -> list:
+def closing(width: float, record: dict, *, extra: list | None = None) -> list:
     """Cautions and the signature block, kept together."""
     st = L.styles()
     cautions = [L.para("Cautions", "h2")]
@@ -257,4 +275,4 @@ def _closing(width: float, record: dict) -> list:
     ]
     block = Table([[left, sig]], colWidths=[width * 0.45 - 6, width * 0.55 + 6])
     block.setStyle(TableStyle(L.PLAIN))
-    return [Spacer(1, 6), KeepTogether([*cautions, Spacer(1, 6), block])]
+    return [Spacer(1, 6), KeepTogether([*cautions, *(extra or []), Spacer(1, 6), block])]

@@ -243,7 +243,9 @@ def document_build_sheet(*, actor, mark_code: str, page_size: str | None = None)
         )
 
 
-def _report_options(*, residuals_csv: str | None, style: str | None, page_size: str | None) -> dict:
+def _report_options(
+    *, residuals_csv: str | None, style: str | None, page_size: str | None, appendix: str | None = None
+) -> dict:
     from registry.geodesy.accuracy import ComputationInputError
     from registry.geodesy.statements import parse_residuals_csv
 
@@ -252,7 +254,16 @@ def _report_options(*, residuals_csv: str | None, style: str | None, page_size: 
         raise ValidationError(
             {"style": ValidationError("The statement style is nssda or asprs2023.", code="invalid_choice")}
         )
-    options: dict[str, Any] = {"statement_style": style, "page_size": office_page_size(page_size)}
+    appendix = (appendix or "used").strip().lower()
+    if appendix not in ("used", "candidates"):
+        raise ValidationError(
+            {"appendix": ValidationError("The appendix holds the marks used or all candidates.", code="invalid_choice")}
+        )
+    options: dict[str, Any] = {
+        "statement_style": style,
+        "page_size": office_page_size(page_size),
+        "appendix": appendix,
+    }
     if residuals_csv:
         if len(residuals_csv) > 2_000_000:
             raise ValidationError(
@@ -268,12 +279,18 @@ def _report_options(*, residuals_csv: str | None, style: str | None, page_size: 
 
 
 def document_request_report(
-    *, actor, job_code: str, residuals_csv: str | None = None, style: str | None = None, page_size: str | None = None
+    *,
+    actor,
+    job_code: str,
+    residuals_csv: str | None = None,
+    style: str | None = None,
+    page_size: str | None = None,
+    appendix: str | None = None,
 ) -> DocumentBuild:
     """Queue the build of a job's control report; the page follows its progress. Input is checked now."""
     _require_prepare(actor)
     job = access_job_by_code(actor, job_code)
-    options = _report_options(residuals_csv=residuals_csv, style=style, page_size=page_size)
+    options = _report_options(residuals_csv=residuals_csv, style=style, page_size=page_size, appendix=appendix)
     with transaction.atomic():
         running = DocumentBuild.objects.filter(job=job, state__in=(BuildState.QUEUED, BuildState.RUNNING)).first()
         if running is not None:
@@ -332,12 +349,13 @@ def document_retry_build(*, actor, build_id: int) -> DocumentBuild:
     return build
 
 
-def run_build(build_id: int) -> int | None:
+def run_build(build_id: int, *, on_progress: Callable[[float, str], None] | None = None) -> int | None:
     """Do one build (the task's body; also run inline by ``build_report``). Returns the document's id.
 
-    Progress goes to the build row as it happens (each write commits on its own, so a page polling it
-    sees it). The document is written in one transaction at the end; a failure records its message and
-    leaves no document.
+    The PDF is made first, outside any transaction, so that each progress write commits on its own and
+    a page polling the build sees it. The document is then written in one short transaction, after
+    checking (with the job's row locked) that no other revision of the job was issued meanwhile; a
+    failure records its message on the build and leaves no document.
     """
     from registry.reports.control_report import build_report_pdf
 
@@ -351,26 +369,34 @@ def run_build(build_id: int) -> int | None:
 
     def progress(fraction: float, step: str) -> None:
         fraction = min(max(float(fraction), 0.0), 1.0)
-        if fraction - last[0] >= 0.01 or fraction >= 1.0:
+        if fraction - last[0] >= 0.01 or fraction >= 0.99:
             last[0] = fraction
             DocumentBuild.objects.filter(pk=build.pk).update(progress=fraction, step=step[:200])
+        if on_progress is not None:
+            on_progress(fraction, step)
 
     actor = build.requested_by
     try:
+        job = build.job
+        revision, current = _next_revision(job=job)
+        code = new_document_code(DocumentKind.REPORT)
+        built, covered = build_report_pdf(
+            job=job,
+            actor=actor,
+            code=code,
+            revision=revision,
+            options=build.options,
+            verify_url=verify_url(code),
+            progress=progress,
+        )
+        progress(0.99, "saving the document")
         with transaction.atomic():
             job = Job.objects.select_for_update().get(pk=build.job_id)
-            revision, current = _next_revision(job=job)
-            code = new_document_code(DocumentKind.REPORT)
-            built, covered = build_report_pdf(
-                job=job,
-                actor=actor,
-                code=code,
-                revision=revision,
-                options=build.options,
-                verify_url=verify_url(code),
-                progress=progress,
-            )
-            progress(0.99, "saving the document")
+            if _next_revision(job=job) != (revision, current):
+                raise Conflict(
+                    f"Another revision of job {job.code}'s report was issued while this one was built; start again.",
+                    code="revision_changed",
+                )
             _discard_open(actor, job=job)
             doc = _store_document(
                 actor=actor,
@@ -382,7 +408,7 @@ def run_build(build_id: int) -> int | None:
                 supersedes=current,
                 page_size=build.options.get("page_size", "A4"),
                 built=built,
-                options={k: v for k, v in build.options.items()},
+                options=dict(build.options),
                 covered_mark_ids=covered,
             )
     except Exception as exc:
@@ -410,12 +436,13 @@ def document_build_report(
     residuals_csv: str | None = None,
     style: str | None = None,
     page_size: str | None = None,
+    appendix: str | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> Document:
     """Build a job's control report now, in this process (the command line); same rules as the page."""
     _require_prepare(actor)
     job = access_job_by_code(actor, job_code)
-    options = _report_options(residuals_csv=residuals_csv, style=style, page_size=page_size)
+    options = _report_options(residuals_csv=residuals_csv, style=style, page_size=page_size, appendix=appendix)
     build = DocumentBuild.objects.create(
         kind=DocumentKind.REPORT,
         job=job,
@@ -424,7 +451,7 @@ def document_build_report(
         step="building in process",
     )
     try:
-        doc_id = run_build(build.pk)
+        doc_id = run_build(build.pk, on_progress=progress)
     except RegistryError:
         raise
     except ValidationError:
