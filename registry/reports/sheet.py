@@ -128,7 +128,8 @@ def sheet_story(
                 L.para(
                     "Each position is given in its own frame at its own coordinate epoch, as published; "
                     "nothing on this sheet has been transformed. Latitude and longitude are on the frame's "
-                    "ellipsoid; accuracies are network accuracies at 95 % confidence from the published covariance.",
+                    "ellipsoid; accuracies are network accuracies at 95 % confidence from the published covariance. "
+                    "Convergence γ follows the PROJ sign: grid azimuth = geodetic azimuth − γ.",
                     "grey",
                 )
             )
@@ -138,13 +139,17 @@ def sheet_story(
         for note in content.notes:
             story.append(L.para(note, "grey"))
         if content.heights:
-            story.append(L.para("Recorded orthometric heights", "h3"))
             story.append(
-                L.grid_table(
-                    ["Datum", "Height", "How it was obtained"],
-                    [[r.label.split(", ", 1)[1], r.value, r.note] for r in content.heights],
-                    [0.30 * width, 0.16 * width, 0.54 * width],
-                    numeric={1},
+                KeepTogether(
+                    [
+                        L.para("Recorded orthometric heights", "h3"),
+                        L.grid_table(
+                            ["Datum", "Height", "How it was obtained"],
+                            [[r.label.split(", ", 1)[1], r.value, r.note] for r in content.heights],
+                            [0.30 * width, 0.16 * width, 0.54 * width],
+                            numeric={1},
+                        ),
+                    ]
                 )
             )
 

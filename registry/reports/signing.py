@@ -56,19 +56,23 @@ def _appearance_pdf(width: float, height: float, lines: list[tuple[str, str]]) -
     c.setStrokeColor(INK)
     c.setLineWidth(1.0)
     c.rect(0.5, 0.5, width - 1, height - 1, stroke=1, fill=1)
-    y = height - 12
+    from reportlab.lib.utils import simpleSplit
+
+    fonts = {"head": ("Doc-Bold", 9.0, INK, 10.5), "grey": ("Doc", 6.8, GREY, 8.4), "body": ("Doc", 7.6, INK, 9.2)}
+    laid: list[tuple[str, float, object, float, str]] = []
     for style, text in lines:
-        if style == "head":
-            c.setFont("Doc-Bold", 9)
-            c.setFillColor(INK)
-        elif style == "grey":
-            c.setFont("Doc", 6.8)
-            c.setFillColor(GREY)
-        else:
-            c.setFont("Doc", 7.6)
-            c.setFillColor(INK)
-        c.drawString(6, y, text)
-        y -= 10.5 if style == "head" else 9.2
+        font, size, ink, leading = fonts[style]
+        for part in simpleSplit(text, font, size, width - 12):  # wrap what does not fit the box
+            laid.append((font, size, ink, leading, part))
+    # shrink evenly when the wrapped lines would overflow the box
+    total = sum(item[3] for item in laid) + 6
+    k = min(1.0, (height - 4) / total)
+    y = height - 12 * k
+    for font, size, ink, leading, part in laid:
+        c.setFont(font, size * k)
+        c.setFillColor(ink)
+        c.drawString(6, y, part)
+        y -= leading * k
     c.showPage()
     c.save()
     return buf.getvalue()

@@ -223,7 +223,7 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
             Row("Easting", f"{format_m3(c.easting_m)} m", ""),
             Row("Northing", f"{format_m3(c.northing_m)} m", ""),
             Row("Point scale factor", f"{c.scale_factor:.8f}", ""),
-            Row("Convergence γ", format_signed_dms(c.convergence_deg, decimals=2), "grid az. = geodetic az. − γ"),
+            Row("Convergence γ", format_signed_dms(c.convergence_deg, decimals=2), ""),
             Row("Elevation factor", f"{c.elevation_factor:.8f}", "R/(R+h), h ellipsoidal"),
             Row("Combined factor", f"{c.combined_factor:.8f}", "grid = ground × factor"),
         ]
@@ -240,8 +240,8 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
             )
         )
     if p.has_velocity:
-        vel = f"E {p.vel_e_m_yr * 1000:+.1f}  N {p.vel_n_m_yr * 1000:+.1f}  U {p.vel_u_m_yr * 1000:+.1f} mm/yr"
-        rows.append(Row("Velocity", vel, "in this frame"))
+        vel = f"E {p.vel_e_m_yr * 1000:+.1f}  N {p.vel_n_m_yr * 1000:+.1f}  U {p.vel_u_m_yr * 1000:+.1f}"
+        rows.append(Row("Velocity", vel, "mm/yr, in this frame"))
     else:
         rows.append(Row("Velocity", "none known", "valid at its epoch"))
     h95, v95 = acc.network_accuracy_95_m(_cov(p))
