@@ -57,7 +57,7 @@ def _synthetic_marks(n: int) -> None:
     import numpy as np
     from django.utils import timezone
 
-    from registry.models import Condition, Job, Mark, Occupation, Position, PositionState, Visit
+    from registry.models import Finding, Job, Mark, Occupation, Position, PositionState, Visit
 
     rng = np.random.default_rng(20261204)
     r_m = 6_000 * np.sqrt(rng.random(n))
@@ -69,10 +69,10 @@ def _synthetic_marks(n: int) -> None:
             Mark(
                 code=f"BN-{i:04d}",
                 name=f"Benchmark mark {i}",
-                monument_type="disk_concrete",
+                monument="disk_concrete",
                 stability="moderate",
                 sky_view="clear",
-                to_reach="Invented access description for the benchmark.",
+                access_directions="Invented access description for the benchmark.",
                 search_lat_deg=float(lat[i]),
                 search_lon_deg=float(lon[i]),
             )
@@ -102,7 +102,7 @@ def _synthetic_marks(n: int) -> None:
     )
     Visit.objects.bulk_create(
         [
-            Visit(mark=m, visited_on=dt.date(2025, 5, 1) - dt.timedelta(days=k * 400), condition=Condition.GOOD)
+            Visit(mark=m, visited_on=dt.date(2025, 5, 1) - dt.timedelta(days=k * 400), finding=Finding.INTACT)
             for m in marks
             for k in range(4)
         ]

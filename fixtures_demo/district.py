@@ -69,13 +69,13 @@ class DemoUser:
 class DemoMark:
     code: str
     name: str
-    monument_type: str
-    setting: str
+    access_directions: str
+    monument: str
+    monument_detail: str
+    marking: str
     stability: str
-    stamping: str
-    to_reach: str
     sky_view: str
-    custodian: str
+    keeper: str
     status: str
     notes: str
     established: dt.datetime
@@ -134,7 +134,7 @@ class DemoOccupation:
 class DemoVisit:
     mark_code: str
     visited_on: dt.date
-    condition: str
+    finding: str
     visitor: str
     notes: str
 
@@ -244,7 +244,7 @@ PLACES = [
     "Highway 9",
 ]
 
-SETTINGS = {
+MONUMENT_DETAILS = {
     "disk_rock": ("bronze disk cemented in a drill hole in a granite outcrop", "high"),
     "disk_concrete": ("bronze disk in the top of a 30 cm concrete post set 1.2 m deep", "moderate"),
     "deep_rod": ("stainless rod driven 9 m to refusal, in a sleeve with a logo cap", "high"),
@@ -404,7 +404,7 @@ class _Builder:
             k = len(STREETS)
             street, cross = STREETS[n % k], STREETS[(n + 1 + (n // k) % (k - 1)) % k]
             name = f"{street} & {cross}"
-            custodian = PUBLIC_WORKS if n % 3 == 0 else OFFICE
+            keeper = PUBLIC_WORKS if n % 3 == 0 else OFFICE
             sky = str(rng.choice(["clear", "partial", "obstructed"], p=[0.45, 0.38, 0.17]))
             established_yr = float(rng.uniform(1998, 2011.4)) if n <= 48 else float(rng.uniform(2019.1, 2021.2))
         else:
@@ -417,10 +417,10 @@ class _Builder:
                 mtype = str(rng.choice(["bolt_structure", "disk_concrete"]))
             place = "Highway 9" if highway else PLACES[n % (len(PLACES) - 1)]
             name = f"{place} {n}" if not highway else f"Highway 9 milepost {28 + x * 0.62:.1f}"
-            custodian = TRANSPORT if highway else (IRRIGATION if n % 11 == 0 else OFFICE)
+            keeper = TRANSPORT if highway else (IRRIGATION if n % 11 == 0 else OFFICE)
             sky = str(rng.choice(["clear", "partial", "obstructed"], p=[0.8, 0.16, 0.04]))
             established_yr = float(rng.uniform(1985, 2011.4)) if n <= 100 else float(rng.uniform(2014.2, 2017.8))
-        setting, stability = SETTINGS[mtype]
+        monument_detail, stability = MONUMENT_DETAILS[mtype]
         established = yr_to_datetime(established_yr)
         dist = math.hypot(x, y)
         bearing = math.degrees(math.atan2(x, y)) % 360
@@ -428,12 +428,12 @@ class _Builder:
             n % 5
         ]
         if in_town:
-            to_reach = (
+            access_directions = (
                 f"From the courthouse steps in Ashby Crossing go {dist:.1f} km {_compass(bearing)} to {name}. "
                 f"The mark is {3 + n % 9} m {_compass(bearing + 90)} of the {['curb return', 'hydrant', 'light pole'][n % 3]}."
             )
         else:
-            to_reach = (
+            access_directions = (
                 f"From the courthouse in Ashby Crossing go {dist:.1f} km {_compass(bearing)} "
                 f"by {'Highway 9' if highway else 'county road ' + str(100 + n % 40)}; "
                 f"the mark is {8 + n % 30} m {_compass(bearing + 135)} of {landmark}. Park off the road."
@@ -444,13 +444,13 @@ class _Builder:
         mark = DemoMark(
             code=code,
             name=name[:120],
-            monument_type=mtype,
-            setting=setting,
+            access_directions=access_directions,
+            monument=mtype,
+            monument_detail=monument_detail,
+            marking=f"{code} {established.year} CORVID CO SURVEY" if mtype not in ("nail", "iron_pipe") else "",
             stability=stability,
-            stamping=f"{code} {established.year} CORVID CO SURVEY" if mtype not in ("nail", "iron_pipe") else "",
-            to_reach=to_reach,
             sky_view=sky,
-            custodian=custodian,
+            keeper=keeper,
             status="active",
             notes="",
             established=established,
@@ -517,9 +517,7 @@ class _Builder:
         ne_disturbed.fate, ne_disturbed.fate_yr = "disturbed", 2025.4
         # Monitoring marks with velocities: stable monuments away from town, still good.
         pool = [
-            m
-            for m in list(picks) + leftovers
-            if m.fate == "good" and m.monument_type in ("pillar", "deep_rod", "disk_rock")
+            m for m in list(picks) + leftovers if m.fate == "good" and m.monument in ("pillar", "deep_rod", "disk_rock")
         ]
         pool.sort(key=lambda m: m.code)
         self.monitoring = pool[:8]
@@ -672,7 +670,7 @@ class _Builder:
         )
         if method in ("static_gnss", "rtk", "network_rtk"):
             occ.receiver, occ.antenna = RECEIVERS[k], ANTENNAS[k]
-            if m.monument_type == "pillar":
+            if m.monument == "pillar":
                 occ.antenna_height_measured_m = occ.antenna_height_arp_m = 0.1000
                 occ.notes = (occ.notes + " Forced-centring adapter, 0.100 m to the ARP.").strip()
             elif method == "network_rtk":
@@ -876,10 +874,10 @@ class _Builder:
             if occ.method == "levelling":
                 continue
             m = self.by_code[occ.mark_code]
-            cond = "poor" if rng.random() < 0.06 else "good"
+            cond = "damaged" if rng.random() < 0.06 else "intact"
             note = (
                 "Recovered for the campaign session."
-                if cond == "good"
+                if cond == "intact"
                 else "Recovered; logo cap cracked, mark itself sound."
             )
             by_mark.setdefault(m.code, []).append(DemoVisit(m.code, occ.start_utc.date(), cond, occ.observer, note))
@@ -887,10 +885,10 @@ class _Builder:
             yr = max(datetime_to_yr(m.established), 2011.2) + float(rng.uniform(0.3, 2.5))
             while yr < 2026.85:
                 if self.alive(m, yr):
-                    cond = "poor" if rng.random() < 0.07 else "good"
+                    cond = "damaged" if rng.random() < 0.07 else "intact"
                     note = (
                         "Inspection: mark and witness post in place."
-                        if cond == "good"
+                        if cond == "intact"
                         else "Inspection: witness post missing; mark sound."
                     )
                     by_mark.setdefault(m.code, []).append(
@@ -912,10 +910,11 @@ class _Builder:
                 text = {
                     "destroyed": "Monument gone; the site is now under new pavement/fill.",
                     "disturbed": "Post leaning about 5°; mark may have moved. Do not use until re-observed.",
-                    "not_found": "Searched 30 min with a metal detector at the to-reach position; not found.",
+                    "not_found": "Searched 30 min with a metal detector where the access directions lead; not found.",
                 }[m.fate]
+                finding = "searched_not_found" if m.fate == "not_found" else m.fate
                 by_mark.setdefault(m.code, []).append(
-                    DemoVisit(m.code, yr_to_datetime(m.fate_yr).date(), m.fate, crew, text)
+                    DemoVisit(m.code, yr_to_datetime(m.fate_yr).date(), finding, crew, text)
                 )
         for code in sorted(by_mark):
             visits = sorted(by_mark[code], key=lambda v: v.visited_on)

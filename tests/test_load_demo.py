@@ -64,7 +64,7 @@ def test_demo_counts_constraints_and_coherence(db, fast_hashing, capsys):
     # Counts the issue asks for.
     assert Mark.objects.count() >= 150
     assert Mark.objects.filter(code__startswith="ASH-").count() >= 50  # the denser town core
-    assert Mark.objects.values("monument_type").distinct().count() >= 6
+    assert Mark.objects.values("monument").distinct().count() >= 6
     published = Position.objects.filter(state="published")
     assert {7912, 6319} <= set(published.values_list("frame_epsg", flat=True))
     assert published.filter(frame_epsg=7912).values("epoch_yr").distinct().count() >= 10  # several epochs
@@ -96,9 +96,9 @@ def test_demo_counts_constraints_and_coherence(db, fast_hashing, capsys):
 
     # Last visits: some marks were found disturbed / destroyed / not found.
     last = {}
-    for mark_id, cond in Visit.objects.order_by("mark_id", "visited_on", "id").values_list("mark_id", "condition"):
+    for mark_id, cond in Visit.objects.order_by("mark_id", "visited_on", "id").values_list("mark_id", "finding"):
         last[mark_id] = cond
-    for cond in ("disturbed", "destroyed", "not_found"):
+    for cond in ("disturbed", "destroyed", "searched_not_found"):
         assert list(last.values()).count(cond) >= 2, cond
 
     # Supersession chains: same mark and frame, successor decided when the older one was superseded.
@@ -190,8 +190,8 @@ def test_scenario_is_deterministic():
     assert [(p.mark_code, p.lat_deg, p.h_m, p.cov_m2) for p in a.positions] == [
         (p.mark_code, p.lat_deg, p.h_m, p.cov_m2) for p in b.positions
     ]
-    assert [(v.mark_code, v.visited_on, v.condition) for v in a.visits] == [
-        (v.mark_code, v.visited_on, v.condition) for v in b.visits
+    assert [(v.mark_code, v.visited_on, v.finding) for v in a.visits] == [
+        (v.mark_code, v.visited_on, v.finding) for v in b.visits
     ]
 
 
@@ -214,10 +214,12 @@ def test_refuses_in_production_mode(db, settings):
 def test_reset_reloads_and_restores_the_audit_guard(db, fast_hashing, capsys):
     load()
     counts = (Mark.objects.count(), Position.objects.count(), Job.objects.count(), get_user_model().objects.count())
+    n_suspect = Mark.objects.filter(status="suspect").count()
     load("--reset")
     out = capsys.readouterr().out
     assert "Reset: deleted" in out and f"{counts[0]} marks" in out and "5 users" in out
-    assert f"{counts[0] + 4} audit events" in out  # mark_create per mark, job_create per job, demo_load
+    # mark_create per mark, job_create per job, demo_load, mark_make_suspect per suspect mark
+    assert f"{counts[0] + 4 + n_suspect} audit events" in out
     assert counts == (
         Mark.objects.count(),
         Position.objects.count(),
@@ -321,3 +323,32 @@ def test_demo_jobs_show_three_outcomes(db, fast_hashing, viewer, as_of):
     start, end = along.min(), along.max()
     assert ok[along < start + 0.25 * (end - start)].mean() > 0.5
     assert not ok[along > end - 0.25 * (end - start)].any()
+
+
+def test_demo_suspect_marks_follow_the_visit_rule(db, fast_hashing):
+    """Suspect marks of the demo: recomputed here from the visits and the publication days, by hand.
+
+    Rule (services.suspect; issue 9 item 5 and issue 7 item 2): an active mark whose latest disturbed or
+    not-found visit is dated on or after the UTC day its newest published position was published (or that
+    has no published position) is suspect; later intact visits do not clear it.
+    """
+    load()
+    expected = set()
+    for mark in Mark.objects.exclude(status__in=("retired", "destroyed")):
+        bad = [v.visited_on for v in mark.visits.all() if v.finding in ("disturbed", "searched_not_found")]
+        if not bad:
+            continue
+        published = [p.decided_at.astimezone(dt.UTC).date() for p in mark.positions.filter(state="published")]
+        if not published or max(bad) >= max(published):
+            expected.add(mark.code)
+    suspect = set(Mark.objects.filter(status="suspect").values_list("code", flat=True))
+    assert suspect == expected
+    # The mark of issue 7 item 2: last report "disturbed ... do not use until re-observed".
+    ash030 = Mark.objects.get(code="ASH-030")
+    last = ash030.visits.order_by("-visited_on", "-id").first()
+    assert ash030.status == "suspect" and last.finding == "disturbed" and "re-observed" in last.notes
+    assert ash030.suspect_since == last.visited_on and "found it disturbed" in ash030.suspect_reason
+    # Marks re-observed after they moved were re-published after their disturbed visit: not suspect.
+    moved = Mark.objects.filter(notes__contains="re-observed and re-published")
+    assert moved.count() >= 5 and not moved.filter(status="suspect").exists()
+    assert AuditEvent.objects.filter(action="mark_make_suspect").count() == len(suspect) >= 8

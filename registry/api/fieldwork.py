@@ -27,7 +27,7 @@ from registry.models import (
     AntennaHeightKind,
     Attachment,
     AttachmentKind,
-    Condition,
+    Finding,
     Occupation,
     OccupationMethod,
     Visit,
@@ -79,7 +79,7 @@ class VisitSerializer(serializers.ModelSerializer):
             "id",
             "mark",
             "visited_on",
-            "condition",
+            "finding",
             "visitor",
             "notes",
             "created_by",
@@ -122,8 +122,14 @@ class OccupationSerializer(serializers.ModelSerializer):
 
 
 class VisitInput(serializers.Serializer):
+    """The earlier name ``condition`` and values good / poor / not_found are still accepted (deprecated)."""
+
     visited_on = serializers.DateField()
-    condition = serializers.ChoiceField(Condition.choices)
+    finding = serializers.ChoiceField(
+        Finding.choices,
+        help_text="What the visit found. disturbed or searched_not_found makes an active mark suspect when the visit "
+        "is not older than the mark's newest published position.",
+    )
     visitor = serializers.CharField(max_length=120, required=False, allow_blank=True)
     notes = serializers.CharField(required=False, allow_blank=True)
 
@@ -190,7 +196,7 @@ class _MarkChildren(APIView):
 
 
 class MarkVisitsView(_MarkChildren):
-    """``GET /api/marks/<code>/visits/``; ``POST`` to record a condition visit."""
+    """``GET /api/marks/<code>/visits/``; ``POST`` to record a visit (what the crew found)."""
 
     model = Visit
     serializer_class = VisitSerializer

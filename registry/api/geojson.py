@@ -56,7 +56,7 @@ def mark_feature(mark: Mark) -> dict[str, Any]:
             "code": mark.code,
             "name": mark.name,
             "status": mark.status,
-            "monument_type": mark.monument_type,
+            "monument": mark.monument,
             "stability": mark.stability,
             "sky_view": mark.sky_view,
             "frame_epsg": frame_epsg if geometry else None,

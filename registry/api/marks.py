@@ -1,4 +1,4 @@
-"""API views for marks: list/search (JSON or GeoJSON), create, read, edit, status.
+"""API views for marks: list/search (JSON or GeoJSON), create, read, edit, status, clearing a suspect mark.
 
 Thin views: they parse the request, call a selector or a service, and serialize the
 result. Permissions: reading needs the viewer ability; creating, editing and changing
@@ -22,6 +22,7 @@ from registry.api.geojson import GEOJSON_MEDIA_TYPE, GeoJSONRenderer, feature_co
 from registry.api.permissions import ReadViewerWriteManager
 from registry.api.serializers import (
     ErrorSerializer,
+    MarkClearSuspectInput,
     MarkCreateInput,
     MarkDetailSerializer,
     MarkFeatureCollectionSerializer,
@@ -33,6 +34,7 @@ from registry.models import MarkStatus, Position, PositionState
 from registry.selectors.marks import MATCH_CONTAINS, mark_search
 from registry.services.access import access_mark_by_code
 from registry.services.marks import mark_create, mark_set_status, mark_update
+from registry.services.suspect import mark_clear_suspect
 
 ERROR_RESPONSES = {
     400: OpenApiResponse(ErrorSerializer, description="Invalid input; details per field."),
@@ -204,5 +206,31 @@ class MarkStatusView(APIView):
             status=data.get("status"),
             expected_version=data.get("version"),
             note=data.get("note", ""),
+        )
+        return Response(MarkDetailSerializer(mark_with_published(request.user, code)).data)
+
+
+class MarkClearSuspectView(APIView):
+    """``POST /api/marks/<code>/clear-suspect/``: a manager's clearance of a suspect mark (note required)."""
+
+    permission_classes = [ReadViewerWriteManager]
+    http_method_names = ["post", "options"]
+
+    @extend_schema(
+        operation_id="marks_clear_suspect",
+        request=MarkClearSuspectInput,
+        responses={
+            200: MarkDetailSerializer,
+            409: OpenApiResponse(
+                ErrorSerializer,
+                description="stale_version (details per field as for an edit), or not_suspect (the mark is not suspect).",
+            ),
+            **ERROR_RESPONSES,
+        },
+    )
+    def post(self, request, code: str):
+        data = request_body(request)
+        mark_clear_suspect(
+            actor=request.user, code=code, note=data.get("note", ""), expected_version=data.get("version")
         )
         return Response(MarkDetailSerializer(mark_with_published(request.user, code)).data)

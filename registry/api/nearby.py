@@ -55,8 +55,11 @@ class NearbyQuery(serializers.Serializer):
     frame_epsg = serializers.IntegerField(
         required=False, min_value=1024, help_text="Only marks with a published position in this frame (EPSG code)."
     )
-    good_visit_within_yr = serializers.FloatField(
-        required=False, min_value=0.001, max_value=200.0, help_text="Only marks found in good condition within N years."
+    intact_visit_within_yr = serializers.FloatField(
+        required=False,
+        min_value=0.001,
+        max_value=200.0,
+        help_text="Only marks a visit found intact within N years. (The earlier name good_visit_within_yr is still accepted.)",
     )
     accuracy_class_max_m = serializers.FloatField(
         required=False,
@@ -72,7 +75,7 @@ class NearbyMarkOut(serializers.Serializer):
     name = serializers.CharField()
     status = serializers.CharField()
     stability = serializers.CharField()
-    monument_type = serializers.CharField()
+    monument = serializers.CharField()
     lat_deg = serializers.FloatField(help_text="Search location (current published position), degrees.")
     lon_deg = serializers.FloatField()
     distance_m = serializers.FloatField(help_text="Geodesic distance on GRS80 from the search point, m (3 decimals).")
@@ -98,7 +101,7 @@ class NearbyOut(serializers.Serializer):
     cautions = serializers.ListField(child=serializers.CharField())
 
 
-_FILTERS = ("status", "stability", "frame_epsg", "good_visit_within_yr", "accuracy_class_max_m")
+_FILTERS = ("status", "stability", "frame_epsg", "intact_visit_within_yr", "accuracy_class_max_m")
 
 
 class MarksNearView(APIView):
@@ -112,7 +115,10 @@ class MarksNearView(APIView):
         },
     )
     def get(self, request):
-        query = NearbyQuery(data=request.query_params.dict() | self._lists(request))
+        params = request.query_params.dict()
+        if "good_visit_within_yr" in params and "intact_visit_within_yr" not in params:
+            params["intact_visit_within_yr"] = params.pop("good_visit_within_yr")  # the earlier name (deprecated)
+        query = NearbyQuery(data=params | self._lists(request))
         query.is_valid(raise_exception=True)
         q = query.validated_data
         filters = {k: q[k] for k in _FILTERS if k in q}

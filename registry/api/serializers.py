@@ -23,7 +23,7 @@ from registry.models import (
     POSITION_FROZEN_FIELDS,
     Mark,
     MarkStatus,
-    MonumentType,
+    MonumentKind,
     Position,
     PositionState,
     SkyView,
@@ -184,6 +184,8 @@ class MarkSerializer(serializers.ModelSerializer):
             "code",
             "name",
             "status",
+            "suspect_since",
+            "suspect_reason",
             # the descriptive fields a manager edits (services.marks.EDITABLE_FIELDS), name already first
             *(f for f in MARK_EDITABLE_FIELDS if f != "name"),
             "search_location",
@@ -244,7 +246,7 @@ class MarkFeaturePropertiesSerializer(serializers.Serializer):
     code = serializers.CharField()
     name = serializers.CharField()
     status = serializers.CharField()
-    monument_type = serializers.CharField()
+    monument = serializers.CharField()
     stability = serializers.CharField()
     sky_view = serializers.CharField()
     frame_epsg = serializers.IntegerField(allow_null=True)
@@ -273,38 +275,65 @@ class MarkFeatureCollectionSerializer(serializers.Serializer):
 
 
 class MarkCreateInput(serializers.Serializer):
+    """The earlier names (to_reach, monument_type, setting, stamping, custodian) are still accepted (deprecated)."""
+
     code = serializers.CharField(max_length=32, help_text="1–32 characters: capital letters, digits, '_', '.', '-'.")
     name = serializers.CharField(max_length=120, required=False, allow_blank=True)
-    status = serializers.ChoiceField(MarkStatus.choices, required=False)
-    monument_type = serializers.ChoiceField(MonumentType.choices, required=False)
-    setting = serializers.CharField(max_length=200, required=False, allow_blank=True)
-    stability = serializers.ChoiceField(Stability.choices, required=False)
-    stamping = serializers.CharField(max_length=120, required=False, allow_blank=True)
-    to_reach = serializers.CharField(required=False, allow_blank=True)
+    status = serializers.ChoiceField(
+        MarkStatus.choices, required=False, help_text="Not suspect: a mark is not created suspect (refused)."
+    )
+    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
+    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
+    monument_detail = serializers.CharField(
+        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
+    )
+    marking = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
+    )
+    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
     sky_view = serializers.ChoiceField(SkyView.choices, required=False)
-    custodian = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    keeper = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
+    )
     notes = serializers.CharField(required=False, allow_blank=True)
 
 
 class MarkPatchInput(serializers.Serializer):
+    """The earlier names (to_reach, monument_type, setting, stamping, custodian) are still accepted (deprecated)."""
+
     version = serializers.IntegerField(min_value=1, help_text="The version you started from (optimistic concurrency).")
     name = serializers.CharField(max_length=120, required=False, allow_blank=True)
-    monument_type = serializers.ChoiceField(MonumentType.choices, required=False)
-    setting = serializers.CharField(max_length=200, required=False, allow_blank=True)
-    stability = serializers.ChoiceField(Stability.choices, required=False)
-    stamping = serializers.CharField(max_length=120, required=False, allow_blank=True)
-    to_reach = serializers.CharField(required=False, allow_blank=True)
+    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
+    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
+    monument_detail = serializers.CharField(
+        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
+    )
+    marking = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
+    )
+    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
     sky_view = serializers.ChoiceField(SkyView.choices, required=False)
-    custodian = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    keeper = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
+    )
     notes = serializers.CharField(required=False, allow_blank=True)
 
 
 class MarkStatusInput(serializers.Serializer):
     version = serializers.IntegerField(min_value=1)
-    status = serializers.ChoiceField(MarkStatus.choices)
+    status = serializers.ChoiceField(
+        MarkStatus.choices,
+        help_text="Not suspect (refused: a visit or a check sets it). A suspect mark is made active only by "
+        "clearing it (clear-suspect) or by publishing a new position (refused here: suspect_needs_clearance).",
+    )
     note = serializers.CharField(
         required=False, allow_blank=True, help_text="Required when retiring or reporting destroyed."
     )
+
+
+class MarkClearSuspectInput(serializers.Serializer):
+    version = serializers.IntegerField(min_value=1, help_text="The version you started from (optimistic concurrency).")
+    note = serializers.CharField(help_text="Why the mark can be used again (required).")
 
 
 class PositionProposeInput(serializers.Serializer):

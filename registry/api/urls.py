@@ -30,6 +30,9 @@ urlpatterns = [
     path("marks/", marks_api.MarkListView.as_view(), name="mark-list"),
     path("marks/<str:code>/", marks_api.MarkDetailView.as_view(), name="mark-detail"),
     re_path(r"^marks/(?P<code>[^/]+)/status/?$", marks_api.MarkStatusView.as_view(), name="mark-status"),
+    re_path(
+        r"^marks/(?P<code>[^/]+)/clear-suspect/?$", marks_api.MarkClearSuspectView.as_view(), name="mark-clear-suspect"
+    ),
     path("marks/<str:code>/positions/", positions_api.MarkPositionsView.as_view(), name="mark-positions"),
     # visits, occupations, attachments (fieldwork pages area)
     path("marks/<str:code>/visits/", fieldwork_api.MarkVisitsView.as_view(), name="mark-visits"),

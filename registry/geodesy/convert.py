@@ -415,7 +415,7 @@ def display_rows(c: PointConversion) -> dict:
             (
                 "Convergence γ",
                 _dms.format_signed_dms(c.convergence_deg, decimals=2),
-                "PROJ/NGS sign: grid azimuth = geodetic azimuth − γ",
+                "γ from true north to grid north, clockwise; grid azimuth = geodetic azimuth − γ",
             ),
         ]
     rows.append(

@@ -19,10 +19,11 @@ Sources
 
 Conventions (pinned in ``tests/geodesy/test_grid.py``)
 ------------------------------------------------------
-- Meridian convergence γ follows PROJ and NGS: the angle from true north to grid north, clockwise
-  positive, so γ ≈ Δλ · sin φ (positive east of the central meridian in the northern hemisphere),
-  and **grid azimuth t = geodetic azimuth α − γ** (arc-to-chord correction neglected). Some agencies
-  (ICSM GDA Technical Manual) state "grid bearing = azimuth + γ", i.e. their γ is the negative of ours.
+- Meridian convergence γ is the angle from true north to grid north, clockwise positive (the sign
+  ``pyproj``'s ``get_factors`` gives), so γ ≈ Δλ · sin φ (positive east of the central meridian in the
+  northern hemisphere), and **grid azimuth t = geodetic azimuth α − γ** (arc-to-chord correction
+  neglected). Some published manuals define γ the other way round and write "grid bearing = azimuth
+  + γ"; their γ is the negative of ours.
 - Elevation factor radius: by default the Gaussian mean radius √(ρν) at the point's latitude.
   The radius in the line's azimuth R_α differs from it by up to ±0.17 % (about ±10.7 km at 45°),
   which changes EF by h·ΔR/R², at most about 2.6e-7 (0.26 ppm) at h = 1 km — below the precision of
@@ -253,7 +254,7 @@ def _proj(grid: GridCRS):
 
 
 def point_factors(lat_deg, lon_deg, *, grid: GridCRS):
-    """Point scale factor k and meridian convergence γ (degrees, PROJ/NGS sign).
+    """Point scale factor k and meridian convergence γ (degrees, clockwise from true north to grid north).
 
     Transverse Mercator grids (UTM, most state-plane TM zones) use the analytic Krüger series
     (:func:`tm_factors_kruger`, agreeing with PROJ's ``get_factors`` to 1e-10 in k and 1e-6″ in γ, and
@@ -307,7 +308,8 @@ def to_grid(lat_deg, lon_deg, *, frame_epsg: int, grid) -> GridCoordinates:
     -------
     GridCoordinates
         Easting and northing in metres (converted from the CRS's unit if it is not the metre), point
-        scale factor and meridian convergence (degrees, PROJ/NGS sign), and the resolved grid.
+        scale factor and meridian convergence (degrees, clockwise from true north to grid north), and the
+        resolved grid.
 
     Examples
     --------
@@ -393,7 +395,8 @@ def tm_factors_kruger(lat_deg, lon_deg, *, lon0_deg: float, k0: float, ellipsoid
     k : ndarray
         Point scale factor.
     gamma_deg : ndarray
-        Meridian convergence, degrees, PROJ/NGS sign (clockwise from true north to grid north).
+        Meridian convergence, degrees, clockwise from true north to grid north (grid azimuth = geodetic
+        azimuth − γ).
 
     Notes
     -----

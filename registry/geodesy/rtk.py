@@ -98,11 +98,11 @@ REASON_EPOCH_GAP_DYNAMIC = "epoch_gap_dynamic_frame"
 DYNAMIC_HOLD_LIMIT_YR = 0.1
 
 REASON_WORDS: dict[str, str] = {
-    REASON_NOT_ACTIVE: "the mark is not active (retired or destroyed)",
+    REASON_NOT_ACTIVE: "the mark is not active (retired, destroyed or suspect)",
     REASON_LAST_VISIT_DISTURBED: "the last visit found the mark disturbed",
     REASON_LAST_VISIT_DESTROYED: "the last visit found the mark destroyed",
     REASON_LAST_VISIT_NOT_FOUND: "the last visit did not find the mark",
-    REASON_NO_RECENT_GOOD_VISIT: "no visit found it in good condition within the recovery period",
+    REASON_NO_RECENT_GOOD_VISIT: "no visit found it intact within the recovery period",
     REASON_NO_PUBLISHED_POSITION: "the mark has no published position",
     REASON_FRAME_NOT_TRANSFORMABLE: "its published frame cannot be transformed to the job's frame",
     REASON_BEYOND_MAX_BASELINE: "part of the site lies beyond the maximum baseline",
@@ -114,7 +114,7 @@ REASON_WORDS: dict[str, str] = {
 _LAST_VISIT_REASON = {
     "disturbed": REASON_LAST_VISIT_DISTURBED,
     "destroyed": REASON_LAST_VISIT_DESTROYED,
-    "not_found": REASON_LAST_VISIT_NOT_FOUND,
+    "searched_not_found": REASON_LAST_VISIT_NOT_FOUND,
 }
 
 
@@ -122,7 +122,7 @@ _LAST_VISIT_REASON = {
 class MarkFacts:
     """What the exclusion rules need to know about one candidate mark.
 
-    ``years_since_good_visit`` is None when no visit ever found it in good condition;
+    ``years_since_good_visit`` is None when no visit ever found it intact;
     ``transformable`` is None when there is no published position to transform.
     """
 
@@ -138,15 +138,15 @@ def rule_reasons(facts: MarkFacts, *, recovery_years: float) -> list[str]:
     """Reason codes excluding a mark, from everything except the baseline rule.
 
     The baseline rule depends on the site geometry and is applied by
-    :func:`screen_candidates`. A last visit in ``poor`` condition does not exclude a
-    mark by itself; a ``good`` visit within ``recovery_years`` is still required.
+    :func:`screen_candidates`. A last visit that found it ``damaged`` (but usable) does not exclude a
+    mark by itself; an ``intact`` visit within ``recovery_years`` is still required.
 
     Examples
     --------
-    >>> f = MarkFacts("active", "clear", "good", 1.5, True, True)
+    >>> f = MarkFacts("active", "clear", "intact", 1.5, True, True)
     >>> rule_reasons(f, recovery_years=10)
     []
-    >>> rule_reasons(MarkFacts("retired", "obstructed", "not_found", None, False, None), recovery_years=10)
+    >>> rule_reasons(MarkFacts("retired", "obstructed", "searched_not_found", None, False, None), recovery_years=10)
     ['not_active', 'last_visit_not_found', 'no_recent_good_visit', 'no_published_position', 'sky_obstructed']
     """
     reasons = []

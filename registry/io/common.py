@@ -25,6 +25,7 @@ local east/north/up frame at the point, in m² (as in ``registry.models.Position
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -32,38 +33,33 @@ from typing import Any
 
 import numpy as np
 
-from registry.models.marks import CODE_VALIDATOR, MarkStatus, MonumentType, SkyView, Stability
+from registry.models.marks import CODE_VALIDATOR, DESCRIPTION_FIELDS, MarkStatus, MonumentKind, SkyView, Stability
+from registry.vocabulary import OLD_MARK_FIELDS, old_name_clashes
 
 # --- The record -------------------------------------------------------------------------------------
 
-#: Mark description fields, in file order. ``code`` is required; the others default like the model.
-MARK_FIELDS: tuple[str, ...] = (
-    "code",
-    "name",
-    "monument_type",
-    "setting",
-    "stability",
-    "stamping",
-    "to_reach",
-    "sky_view",
-    "custodian",
-    "status",
-    "notes",
-)
+#: Why and since when a mark is suspect (written with status ``suspect``, empty otherwise).
+SUSPECT_FIELDS: tuple[str, ...] = ("suspect_since", "suspect_reason")
+#: Mark fields, in file order: the description block in its display order, then status. ``code`` is
+#: required; the others default like the model.
+MARK_FIELDS: tuple[str, ...] = ("code", "name", *DESCRIPTION_FIELDS, "status", *SUSPECT_FIELDS, "notes")
 MARK_TEXT_MAX = {
     "name": 120,
-    "setting": 200,
-    "stamping": 120,
-    "to_reach": None,
-    "custodian": 120,
+    "access_directions": None,
+    "monument_detail": 200,
+    "marking": 120,
+    "keeper": 120,
+    "suspect_reason": 200,
     "notes": None,
 }
 MARK_CHOICES: dict[str, tuple[str, ...]] = {
-    "monument_type": tuple(MonumentType.values),
+    "monument": tuple(MonumentKind.values),
     "stability": tuple(Stability.values),
     "sky_view": tuple(SkyView.values),
     "status": tuple(MarkStatus.values),
 }
+#: Earlier column (property) names accepted on import for one more release (``registry.vocabulary``).
+OLD_COLUMNS: dict[str, str] = dict(OLD_MARK_FIELDS)
 
 #: Concurrency columns (whole numbers): the mark's edit version, the position's revision in its frame.
 VERSION_FIELD = "version"
@@ -163,6 +159,21 @@ class ParseResult:
     records: list[MarkRecord] = field(default_factory=list)
     errors: list[RowError] = field(default_factory=list)
     format: str = ""
+
+
+def new_column_names(names: list[str], *, where: str = "line 1", index: int = 1) -> tuple[list[str], list[RowError]]:
+    """Column (property) names with the earlier names translated; both names of one field is an error.
+
+    >>> new_column_names(["code", "stamping"])[0]
+    ['code', 'marking']
+    >>> [e.code for e in new_column_names(["code", "custodian", "keeper"])[1]]
+    ['old_and_new_column']
+    """
+    errors = [
+        RowError(where, index, "old_and_new_column", f"'{old}' is the earlier name of '{new}'; give one of them", old)
+        for old, new in old_name_clashes(names, OLD_COLUMNS)
+    ]
+    return [OLD_COLUMNS.get(name, name) for name in names], errors
 
 
 # --- Frames -----------------------------------------------------------------------------------------
@@ -294,6 +305,20 @@ class _RowChecker:
             return None
         return number
 
+    def date(self, raw: dict[str, Any], name: str):
+        """A calendar date written as YYYY-MM-DD (None when blank or wrong; wrong is an error)."""
+        value = raw.get(name)
+        if _is_blank(value):
+            return None
+        if not isinstance(value, str):
+            self.add("invalid_date", f"expected a date as YYYY-MM-DD, got {type(value).__name__}", name)
+            return None
+        try:
+            return dt.date.fromisoformat(value.strip())
+        except ValueError:
+            self.add("invalid_date", f"expected a date as YYYY-MM-DD, got {value!r}", name)
+            return None
+
     def text(self, raw: dict[str, Any], name: str, max_length: int | None) -> str | None:
         value = raw.get(name)
         if value is None:
@@ -344,6 +369,11 @@ def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRe
     for name in MARK_FIELDS[1:]:
         if name not in raw:
             continue
+        if name == "suspect_since":
+            day = chk.date(raw, name)
+            if day is not None:
+                mark[name] = day
+            continue
         if name in MARK_CHOICES:
             value = raw[name]
             if _is_blank(value):
@@ -356,6 +386,13 @@ def validate_row(raw: dict[str, Any], *, where: str, index: int) -> tuple[MarkRe
             text = chk.text(raw, name, MARK_TEXT_MAX[name])
             if text is not None:
                 mark[name] = text
+
+    if mark.get("status") != MarkStatus.SUSPECT and (mark.get("suspect_since") or mark.get("suspect_reason")):
+        chk.add(
+            "suspect_fields_without_suspect",
+            "suspect_since and suspect_reason go with status suspect; leave them empty otherwise",
+            "suspect_since" if mark.get("suspect_since") else "suspect_reason",
+        )
 
     version = chk.number(raw, VERSION_FIELD, integer=True)
     if version is not None and not 1 <= version <= MAX_VERSION:
@@ -567,6 +604,8 @@ def export_values(mark, position, position_revision: int | None = None) -> dict[
     the covariance is authoritative on import.
     """
     values: dict[str, Any] = {name: getattr(mark, name) for name in MARK_FIELDS}
+    if values["suspect_since"] is not None:
+        values["suspect_since"] = values["suspect_since"].isoformat()
     for name in CSV_COLUMNS[len(MARK_FIELDS) :]:
         values[name] = None
     values[VERSION_FIELD] = mark.version

@@ -5,7 +5,8 @@ mark's description fields and version and, optionally, one published position wi
 are ``registry.io.common.CSV_COLUMNS`` (documented in README.md, section import-export). On import only
 ``code`` is required; any other column may be left out (an absent column keeps the model default on
 create and the stored value with ``--update``). Unknown or repeated column names are refused, so that a
-misspelt header never silently drops data.
+misspelt header never silently drops data. The earlier names of renamed columns (``to_reach``,
+``monument_type``, ``setting``, ``stamping``, ``custodian``) are read as the new ones for one more release.
 
 Errors name the CSV line where the record starts (the header is line 1; a quoted field may span lines).
 """
@@ -15,7 +16,7 @@ from __future__ import annotations
 import csv
 import io
 
-from registry.io.common import CSV_COLUMNS, ParseResult, RowError, format_cell, validate_row
+from registry.io.common import CSV_COLUMNS, ParseResult, RowError, format_cell, new_column_names, validate_row
 
 MEDIA_TYPE = "text/csv"
 
@@ -34,7 +35,10 @@ def parse_marks_csv(text: str) -> ParseResult:
     except csv.Error as exc:
         result.errors.append(RowError("line 1", 1, "malformed_csv", f"cannot read the header: {exc}"))
         return result
-    header = [h.strip() for h in header]
+    header, renamed = new_column_names([h.strip() for h in header])
+    if renamed:
+        result.errors.extend(renamed)
+        return result
     unknown = [h for h in header if h not in CSV_COLUMNS]
     repeated = sorted({h for h in header if header.count(h) > 1})
     if unknown:

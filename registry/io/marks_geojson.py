@@ -4,7 +4,8 @@ One feature per (mark, published position): a mark with positions in several fra
 features (its fields repeated), a mark without one takes one feature with a ``null`` geometry.
 ``properties`` hold the mark's description fields and ``version``, and the position's frame, epoch,
 uncertainty, velocity, source and ``position_revision`` (the names of ``registry.io.common``;
-README.md, section import-export). The geometry is the published position: ``[lon, lat, h]`` in
+README.md, section import-export; the earlier names of renamed properties are read as the new ones for
+one more release). The geometry is the published position: ``[lon, lat, h]`` in
 degrees and metres, or ``[lon, lat]`` with the ellipsoidal height in the ``h_m`` property.
 
 Coordinates are in the position's own frame (``frame_epsg``), not necessarily WGS 84 as RFC 7946 §4
@@ -15,6 +16,7 @@ feature by its index in ``features`` (0-based, as in ``features[3]``).
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 import math
 from typing import Any
@@ -25,6 +27,7 @@ from registry.io.common import (
     VERSION_FIELD,
     ParseResult,
     RowError,
+    new_column_names,
     validate_row,
 )
 
@@ -88,6 +91,11 @@ def _feature_to_row(feature: Any, where: str, index: int) -> tuple[dict[str, Any
     if not isinstance(props, dict):
         err("properties_required", "a feature needs a 'properties' object with at least 'code'")
         return {}, errors
+    names, renamed = new_column_names(list(props), where=where, index=index)
+    if renamed:
+        errors.extend(renamed)
+        return {}, errors
+    props = dict(zip(names, props.values(), strict=True))  # earlier property names read as the new ones
     unknown = [k for k in props if k not in ACCEPTED_PROPERTIES]
     if unknown:
         err(
@@ -123,6 +131,11 @@ def _feature_to_row(feature: Any, where: str, index: int) -> tuple[dict[str, Any
     return raw, errors
 
 
+def _json_value(value: Any) -> Any:
+    """Dates (``suspect_since``) as YYYY-MM-DD text; everything else as it is."""
+    return value.isoformat() if isinstance(value, dt.date) else value
+
+
 def write_marks_geojson(rows: list[dict]) -> str:
     """GeoJSON text of export rows (``registry.io.common.export_values``).
 
@@ -138,7 +151,7 @@ def write_marks_geojson(rows: list[dict]) -> str:
             if has_position
             else None
         )
-        properties = {name: values.get(name) for name in PROPERTY_NAMES}
+        properties = {name: _json_value(values.get(name)) for name in PROPERTY_NAMES}
         features.append({"type": "Feature", "geometry": geometry, "properties": properties})
     # One feature per line: readable, and a change to one mark is a one-line difference.
     lines = [json.dumps(f, ensure_ascii=False, allow_nan=False) for f in features]

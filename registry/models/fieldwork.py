@@ -1,4 +1,4 @@
-"""What happened at a mark: occupations, condition visits, and their files."""
+"""What happened at a mark: occupations, visits (what a crew found) and their files."""
 
 from __future__ import annotations
 
@@ -69,20 +69,26 @@ class Occupation(models.Model):
         return f"{self.mark_id} {self.method} {self.start_utc:%Y-%m-%d}"
 
 
-class Condition(models.TextChoices):
-    GOOD = "good", "good"
-    POOR = "poor", "poor"
+class Finding(models.TextChoices):
+    """What a visit found at the mark."""
+
+    INTACT = "intact", "intact"
+    DAMAGED = "damaged", "damaged but usable"
     DISTURBED = "disturbed", "disturbed"
     DESTROYED = "destroyed", "destroyed"
-    NOT_FOUND = "not_found", "not found"
+    SEARCHED_NOT_FOUND = "searched_not_found", "searched, not found"
+
+
+#: Findings that make an active mark suspect (registry.services.suspect).
+SUSPECT_FINDINGS: tuple[str, ...] = (Finding.DISTURBED, Finding.SEARCHED_NOT_FOUND)
 
 
 class Visit(models.Model):
-    """A condition report."""
+    """A visit to a mark: the date, what the crew found, notes and photos."""
 
     mark = models.ForeignKey(Mark, on_delete=models.PROTECT, related_name="visits")
     visited_on = models.DateField()
-    condition = models.CharField(max_length=10, choices=Condition.choices)
+    finding = models.CharField(max_length=20, choices=Finding.choices)
     visitor = models.CharField(max_length=120, blank=True)
     notes = models.TextField(blank=True)
     created_by = models.ForeignKey(
@@ -95,7 +101,7 @@ class Visit(models.Model):
         indexes = [models.Index(fields=["mark", "visited_on"], name="visit_mark_date")]
 
     def __str__(self) -> str:
-        return f"{self.mark_id} {self.visited_on} {self.condition}"
+        return f"{self.mark_id} {self.visited_on} {self.finding}"
 
 
 class AttachmentKind(models.TextChoices):

@@ -18,12 +18,19 @@ CODE_VALIDATOR = RegexValidator(
 
 
 class MarkStatus(models.TextChoices):
+    """A mark's status. ``suspect`` is set and cleared only by the services (``registry.services.suspect``):
+    a visit that found the mark disturbed or did not find it, and cleared by a newly published position
+    or a manager's clearance."""
+
     ACTIVE = "active", "active"
+    SUSPECT = "suspect", "suspect — awaiting re-observation"
     RETIRED = "retired", "retired"
     DESTROYED = "destroyed", "destroyed"
 
 
-class MonumentType(models.TextChoices):
+class MonumentKind(models.TextChoices):
+    """The kind of monument (the mark's ``monument`` field)."""
+
     DISK_ROCK = "disk_rock", "disk set in rock outcrop"
     DISK_CONCRETE = "disk_concrete", "disk in concrete post"
     DEEP_ROD = "deep_rod", "deep driven rod in sleeve"
@@ -51,17 +58,35 @@ class SkyView(models.TextChoices):
     UNKNOWN = "unknown", "not assessed"
 
 
+#: The mark description block, in the order pages, files and documents show it.
+DESCRIPTION_FIELDS: tuple[str, ...] = (
+    "access_directions",
+    "monument",
+    "monument_detail",
+    "marking",
+    "stability",
+    "sky_view",
+    "keeper",
+)
+
+
 class Mark(models.Model):
     code = models.CharField(max_length=32, unique=True, validators=[CODE_VALIDATOR])
     name = models.CharField(max_length=120, blank=True)
-    monument_type = models.CharField(max_length=20, choices=MonumentType.choices, default=MonumentType.OTHER)
-    setting = models.CharField(max_length=200, blank=True, help_text="How the monument is set.")
-    stability = models.CharField(max_length=10, choices=Stability.choices, default=Stability.UNKNOWN)
-    stamping = models.CharField(max_length=120, blank=True)
-    to_reach = models.TextField("to-reach description", blank=True)
+    # The description block, in display order (DESCRIPTION_FIELDS below).
+    access_directions = models.TextField("access directions", blank=True)
+    monument = models.CharField(max_length=20, choices=MonumentKind.choices, default=MonumentKind.OTHER)
+    monument_detail = models.CharField("how it is set", max_length=200, blank=True)
+    marking = models.CharField("marking as inscribed", max_length=120, blank=True)
+    stability = models.CharField(
+        "expected stability", max_length=10, choices=Stability.choices, default=Stability.UNKNOWN
+    )
     sky_view = models.CharField(max_length=12, choices=SkyView.choices, default=SkyView.UNKNOWN)
-    custodian = models.CharField(max_length=120, blank=True)
+    keeper = models.CharField(max_length=120, blank=True, help_text="Who looks after the mark or the land it is on.")
     status = models.CharField(max_length=10, choices=MarkStatus.choices, default=MarkStatus.ACTIVE)
+    # Why and since when the mark is suspect (kept by registry.services.suspect; empty otherwise).
+    suspect_since = models.DateField(null=True, blank=True)
+    suspect_reason = models.CharField(max_length=200, blank=True)
     notes = models.TextField(blank=True)
     # Search location: latitude/longitude of the current published position (kept by services).
     # On PostgreSQL a generated geography column (geog) follows these two; see migration 0002.
@@ -361,8 +386,9 @@ __all__ = [
     "HeightMethod",
     "HeightRecord",
     "Mark",
+    "DESCRIPTION_FIELDS",
     "MarkStatus",
-    "MonumentType",
+    "MonumentKind",
     "POSITION_FROZEN_FIELDS",
     "POSITION_HISTORY_STATES",
     "POSITION_MUTABLE_FIELDS",

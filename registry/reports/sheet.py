@@ -189,7 +189,7 @@ def sheet_story(
             L.grid_table(
                 ["Date", "Finding", "By", "Notes"],
                 [
-                    [f"{v.visited_on:%Y-%m-%d}", v.get_condition_display(), v.visitor or "—", v.notes or "—"]
+                    [f"{v.visited_on:%Y-%m-%d}", v.get_finding_display(), v.visitor or "—", v.notes or "—"]
                     for v in content.visits
                 ],
                 [0.13 * width, 0.14 * width, 0.17 * width, 0.56 * width],

@@ -85,7 +85,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
         ``"prefix"`` (default) or ``"contains"``.
     text
         Free text: every word must occur (anywhere, case-insensitive) in the code, name,
-        stamping or custodian.
+        marking or keeper.
     status
         A :class:`~registry.models.MarkStatus` value, or empty for all.
 
@@ -94,7 +94,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
     QuerySet[Mark]
         Annotated with ``src_frame_epsg``/``src_epoch_yr`` (the published position the
         search location comes from), ``n_positions``, ``n_published``, ``last_visit_on`` and
-        ``last_visit_condition``.
+        ``last_visit_finding``.
     """
     qs = mark_filter(q=q, match=match, text=text)
     if status:
@@ -106,7 +106,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
         n_positions=_count_subquery(Position.objects.filter(mark=OuterRef("pk"))),
         n_published=_count_subquery(Position.objects.filter(mark=OuterRef("pk"), state=PositionState.PUBLISHED)),
         last_visit_on=Subquery(last_visit.values("visited_on")[:1]),
-        last_visit_condition=Subquery(last_visit.values("condition")[:1]),
+        last_visit_finding=Subquery(last_visit.values("finding")[:1]),
     ).order_by("code")
 
 
@@ -121,10 +121,7 @@ def mark_filter(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> Qu
             qs = qs.filter(Q(code__istartswith=q) | Q(name__istartswith=q))
     for word in (text or "").split():
         qs = qs.filter(
-            Q(code__icontains=word)
-            | Q(name__icontains=word)
-            | Q(stamping__icontains=word)
-            | Q(custodian__icontains=word)
+            Q(code__icontains=word) | Q(name__icontains=word) | Q(marking__icontains=word) | Q(keeper__icontains=word)
         )
     return qs
 

@@ -27,8 +27,8 @@ survey work, and verify control in the field.
 Filters (all optional):
 
 - ``status``, ``stability``: one value or several (``MarkStatus``, ``Stability``).
-- ``good_visit_within_yr``: the mark has a visit whose condition is ``good`` on or after
-  ``as_of`` − N years (N × 365.25 days). Only ``good`` counts; a ``poor`` visit shows the
+- ``intact_visit_within_yr``: the mark has a visit that found it ``intact`` on or after
+  ``as_of`` − N years (N × 365.25 days). Only ``intact`` counts; a ``damaged`` visit shows the
   mark was found but damaged, which is not enough to trust it unseen.
 - ``frame_epsg``: the mark has a published position in that frame.
 - ``accuracy_class_max_m``: the mark has a published position (in ``frame_epsg`` when
@@ -80,7 +80,7 @@ SEARCH_LOCATION_NOTE = (
 CAUTIONS = (
     "Distances here are for finding marks, not for staking or computing baselines: use the mark's published "
     "position in the job's frame and epoch.",
-    "Recover and verify every mark in the field before relying on it (check its stamping, condition and a "
+    "Recover and verify every mark in the field before relying on it (check its marking as inscribed, its state and a "
     "check shot to another trusted mark); a mark can be disturbed since its last visit.",
     "Local codes and licensed surveying practice govern the use of control.",
 )
@@ -129,7 +129,7 @@ class NearbyMark:
             "name": mark.name,
             "status": mark.status,
             "stability": mark.stability,
-            "monument_type": mark.monument_type,
+            "monument": mark.monument,
             "lat_deg": round(mark.search_lat_deg, 9),
             "lon_deg": round(mark.search_lon_deg, 9),
             "distance_m": round(self.distance_m, 3),
@@ -179,7 +179,7 @@ def _filters(
     *,
     status,
     stability,
-    good_visit_within_yr,
+    intact_visit_within_yr,
     frame_epsg,
     accuracy_class_max_m,
     as_of: dt.date | None,
@@ -187,8 +187,8 @@ def _filters(
     statuses = _choices("status", status, MarkStatus)
     stabilities = _choices("stability", stability, Stability)
     cutoff = None
-    if good_visit_within_yr is not None:
-        years = _number("good_visit_within_yr", good_visit_within_yr, lo=0.0, hi=200.0, lo_open=True)
+    if intact_visit_within_yr is not None:
+        years = _number("intact_visit_within_yr", intact_visit_within_yr, lo=0.0, hi=200.0, lo_open=True)
         today = as_of or dt.datetime.now(dt.UTC).date()
         cutoff = today - dt.timedelta(days=math.floor(years * 365.25))
     if frame_epsg is not None:
@@ -210,7 +210,7 @@ def _filters(
         stabilities=stabilities,
         frame=frame_epsg is not None,
         needs_published=accuracy is not None,
-        good_visit=cutoff is not None,
+        intact_visit=cutoff is not None,
     )
     return _Filters(shape, frame_epsg, cutoff, accuracy)
 
@@ -431,7 +431,7 @@ def marks_near(
     radius_m: float,
     limit: int | None = None,
     status: str | Sequence[str] | None = None,
-    good_visit_within_yr: float | None = None,
+    intact_visit_within_yr: float | None = None,
     frame_epsg: int | None = None,
     accuracy_class_max_m: float | None = None,
     stability: str | Sequence[str] | None = None,
@@ -449,10 +449,10 @@ def marks_near(
         Geodesic radius on GRS80 (m), 0 < radius ≤ 1 000 km.
     limit : int, optional
         At most this many marks (the nearest ones).
-    status, stability, good_visit_within_yr, frame_epsg, accuracy_class_max_m
+    status, stability, intact_visit_within_yr, frame_epsg, accuracy_class_max_m
         Filters (module docstring).
     as_of : date, optional
-        Reference date for ``good_visit_within_yr`` (default: today, UTC).
+        Reference date for ``intact_visit_within_yr`` (default: today, UTC).
     path : {"auto", "postgis", "portable"}
         Candidate search. "auto": PostGIS on PostgreSQL, the portable box elsewhere.
 
@@ -473,7 +473,7 @@ def marks_near(
     filters = _filters(
         status=status,
         stability=stability,
-        good_visit_within_yr=good_visit_within_yr,
+        intact_visit_within_yr=intact_visit_within_yr,
         frame_epsg=frame_epsg,
         accuracy_class_max_m=accuracy_class_max_m,
         as_of=as_of,
@@ -489,7 +489,7 @@ def marks_near_polygon(
     distance_m: float,
     limit: int | None = None,
     status: str | Sequence[str] | None = None,
-    good_visit_within_yr: float | None = None,
+    intact_visit_within_yr: float | None = None,
     frame_epsg: int | None = None,
     accuracy_class_max_m: float | None = None,
     stability: str | Sequence[str] | None = None,
@@ -525,7 +525,7 @@ def marks_near_polygon(
     filters = _filters(
         status=status,
         stability=stability,
-        good_visit_within_yr=good_visit_within_yr,
+        intact_visit_within_yr=intact_visit_within_yr,
         frame_epsg=frame_epsg,
         accuracy_class_max_m=accuracy_class_max_m,
         as_of=as_of,

@@ -33,7 +33,7 @@ from registry.geodesy.heights import GeoidModel
 from registry.models import (
     Attachment,
     AttachmentKind,
-    Condition,
+    Finding,
     HeightRecord,
     Mark,
     MarkStatus,
@@ -61,9 +61,9 @@ MAX_PHOTOS = 2
 
 #: Visit findings after which the mark awaits re-positioning (unless a position was published since).
 _UNUSABLE_FINDINGS = {
-    Condition.DISTURBED: "disturbed",
-    Condition.DESTROYED: "found destroyed",
-    Condition.NOT_FOUND: "searched for and not found",
+    Finding.DISTURBED: "disturbed",
+    Finding.DESTROYED: "found destroyed",
+    Finding.SEARCHED_NOT_FOUND: "searched for and not found",
 }
 
 
@@ -126,7 +126,7 @@ class SheetContent:
 
 
 def _status_words(mark: Mark) -> str:
-    if mark.status == "suspect":  # status added on main ("suspect — awaiting re-observation")
+    if mark.status == MarkStatus.SUSPECT:
         return "suspect, awaiting re-observation"
     return {
         MarkStatus.ACTIVE: "in use",
@@ -148,11 +148,11 @@ def withheld_reason(mark: Mark, last_visit: Visit | None, last_published_at: dt.
             f"MARK RETIRED: mark {mark.code} is no longer maintained by the office; "
             "no coordinates are given as current."
         )
-    if last_visit is not None and last_visit.condition in _UNUSABLE_FINDINGS:
+    if last_visit is not None and last_visit.finding in _UNUSABLE_FINDINGS:
         published_since = last_published_at is not None and last_published_at.date() > last_visit.visited_on
         if not published_since:
             return (
-                f"MARK {_UNUSABLE_FINDINGS[last_visit.condition].upper()} ON {last_visit.visited_on:%Y-%m-%d}, "
+                f"MARK {_UNUSABLE_FINDINGS[last_visit.finding].upper()} ON {last_visit.visited_on:%Y-%m-%d}, "
                 f"AWAITING RE-POSITIONING: do not use mark {mark.code}; no coordinates are given as current."
             )
     return ""
@@ -329,12 +329,12 @@ def sheet_content(mark: Mark, *, with_nearby: bool = True) -> SheetContent:
     description = [
         Row("Status", _status_words(mark)),
         Row("Name", mark.name or "—"),
-        Row("Monument", mark.get_monument_type_display()),
-        Row("How it is set", mark.setting or "—"),
-        Row("Marking", mark.stamping or "—"),
+        Row("Monument", mark.get_monument_display()),
+        Row("How it is set", mark.monument_detail or "—"),
+        Row("Marking as inscribed", mark.marking or "—"),
         Row("Expected stability", mark.get_stability_display()),
         Row("Sky view", mark.get_sky_view_display()),
-        Row("Keeper", mark.custodian or "—"),
+        Row("Keeper", mark.keeper or "—"),
     ]
     positions: list[PositionBlock] = []
     heights: list[Row] = []
@@ -362,7 +362,7 @@ def sheet_content(mark: Mark, *, with_nearby: bool = True) -> SheetContent:
         status_words=_status_words(mark),
         withheld=withheld,
         description=description,
-        access=mark.to_reach or "",
+        access=mark.access_directions or "",
         positions=positions,
         heights=heights,
         nearby=_nearby(mark) if with_nearby else [],

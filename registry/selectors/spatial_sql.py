@@ -76,7 +76,7 @@ visit_table = Table(
     metadata,
     Column("id", BigInteger, primary_key=True),
     Column("mark_id", BigInteger),
-    Column("condition", String(10)),
+    Column("finding", String(20)),
     Column("visited_on", Date),
 )
 
@@ -98,7 +98,7 @@ class FilterShape:
     stabilities: tuple[str, ...] | None = None
     frame: bool = False
     needs_published: bool = False
-    good_visit: bool = False
+    intact_visit: bool = False
 
 
 @dataclass(frozen=True)
@@ -131,14 +131,14 @@ def _filter_clauses(shape: FilterShape) -> list:
         if shape.frame:
             cond.append(p.c.frame_epsg == bindparam("frame_epsg", value=0, type_=Integer))
         clauses.append(exists(select(p.c.id).where(and_(*cond))))
-    if shape.good_visit:
+    if shape.intact_visit:
         v = visit_table
         clauses.append(
             exists(
                 select(v.c.id).where(
                     and_(
                         v.c.mark_id == m.c.id,
-                        v.c.condition == "good",
+                        v.c.finding == "intact",
                         v.c.visited_on >= bindparam("visit_cutoff", value=dt.date(1900, 1, 1), type_=Date),
                     )
                 )
@@ -276,7 +276,7 @@ def filter_params(shape: FilterShape, *, frame_epsg: int | None, visit_cutoff: d
     params: dict = {}
     if shape.frame:
         params["frame_epsg"] = int(frame_epsg)
-    if shape.good_visit:
+    if shape.intact_visit:
         params["visit_cutoff"] = visit_cutoff.isoformat() if vendor == "sqlite" else visit_cutoff
     return params
 

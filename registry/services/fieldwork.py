@@ -1,4 +1,4 @@
-"""Writes of fieldwork: condition visits, occupations and attached files.
+"""Writes of fieldwork: visits (what a crew found at a mark), occupations and attached files.
 
 Technicians and managers (ability RECORD) record these. Each function validates its
 input (coded ``ValidationError``), runs in one transaction and writes an audit row.
@@ -38,7 +38,7 @@ from registry.models import (
     AntennaHeightKind,
     Attachment,
     AttachmentKind,
-    Condition,
+    Finding,
     Occupation,
     OccupationMethod,
     Position,
@@ -58,8 +58,10 @@ from registry.services._input import (
 )
 from registry.services.access import access_mark_by_code
 from registry.services.audit import audit_record, snapshot
+from registry.services.suspect import visit_suspicion
+from registry.vocabulary import OLD_VISIT_FIELDS, new_finding, rename_old_keys
 
-VISIT_FIELDS = ("visited_on", "condition", "visitor", "notes")
+VISIT_FIELDS = ("visited_on", "finding", "visitor", "notes")
 OCCUPATION_FIELDS = (
     "method",
     "start_utc",
@@ -98,28 +100,36 @@ def _collect(*calls) -> list[Any]:
 
 
 def visit_record(*, actor, mark_code: str, data: dict) -> Visit:
-    """Record a condition visit: ``visited_on`` (date), ``condition``, optional ``visitor``, ``notes``.
+    """Record a visit: ``visited_on`` (date), ``finding``, optional ``visitor``, ``notes``.
 
-    A visit reporting the mark destroyed or not found does not change the mark's
-    status by itself; the control manager decides that (mark_set_status).
+    A visit that found an active mark ``disturbed`` or ``searched_not_found`` makes it suspect in the
+    same transaction when it is dated on or after the publication of the mark's newest published
+    position (``registry.services.suspect``). A visit that found it destroyed does not change the
+    mark's status; the control manager decides that (mark_set_status).
+
+    The earlier field name ``condition`` and values ``good``, ``poor``, ``not_found`` are accepted for
+    one more release (``registry.vocabulary``).
     """
+    if isinstance(data, dict):
+        data = rename_old_keys(data, OLD_VISIT_FIELDS)
+        if "finding" in data:
+            data["finding"] = new_finding(data["finding"])
     check_keys(data, VISIT_FIELDS)
-    visited_on, condition, visitor, notes = _collect(
+    visited_on, finding, visitor, notes = _collect(
         (parse_date_value, (data, "visited_on"), {"required": True}),
-        (parse_choice, (data, "condition", Condition), {"required": True}),
+        (parse_choice, (data, "finding", Finding), {"required": True}),
         (parse_text, (data, "visitor"), {"max_length": 120}),
         (parse_text, (data, "notes"), {}),
     )
     if visited_on > timezone.now().date():
         raise field_error("visited_on", "A visit cannot be dated in the future.", "date_in_future")
     with transaction.atomic():
-        mark = access_mark_by_code(actor, mark_code, ability=Ability.RECORD)
-        visit = Visit(
-            mark=mark, visited_on=visited_on, condition=condition, visitor=visitor, notes=notes, created_by=actor
-        )
+        mark = access_mark_by_code(actor, mark_code, ability=Ability.RECORD, for_update=True)
+        visit = Visit(mark=mark, visited_on=visited_on, finding=finding, visitor=visitor, notes=notes, created_by=actor)
         visit.full_clean()
         visit.save(force_insert=True)
         audit_record(actor=actor, action="visit_record", obj=visit, after=snapshot(visit), mark=mark)
+        visit_suspicion(visit=visit, mark=mark, actor=actor)
     return visit
 
 

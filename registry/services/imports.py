@@ -22,7 +22,9 @@ event lists those marks under ``unversioned``. ``overwrite`` never lets a *stale
 to apply an old file on purpose, remove its version columns and import with ``overwrite``.
 
 An accepted row's fields (only the columns or properties the file carries) are applied with
-``mark_update``, its status with ``mark_set_status``, and a position that differs from the published
+``mark_update``, its status with ``mark_set_status`` (status ``suspect`` with ``mark_make_suspect``, after
+the row's positions, with the file's ``suspect_since`` and ``suspect_reason``; a suspect mark that the file
+calls active becomes active only through a new position in the file, as on the pages), and a position that differs from the published
 one in the same frame is proposed and published (the earlier one is superseded, never overwritten).
 An identical position is left alone. On creation the file's version columns are not used (a new mark
 starts at version 1).
@@ -60,8 +62,9 @@ from registry.io.marks_geojson import parse_marks_geojson
 from registry.models import AuditEvent, Mark, MarkStatus, Position, PositionState
 from registry.roles import Ability
 from registry.services.access import require_ability
-from registry.services.marks import mark_create, mark_set_status, mark_update
+from registry.services.marks import VERSIONED_ACTIONS, mark_create, mark_set_status, mark_update
 from registry.services.positions import position_propose, position_publish
+from registry.services.suspect import mark_make_suspect
 
 FORMATS = ("csv", "geojson")
 _EXTENSIONS = {".csv": "csv", ".geojson": "geojson", ".json": "geojson"}
@@ -168,7 +171,7 @@ def _when(moment) -> str:
 def _last_mark_change(mark: Mark) -> str:
     """ "by X at T" for the latest versioned change of ``mark``, from the audit trail."""
     event = (
-        AuditEvent.objects.filter(mark=mark, action__in=("mark_create", "mark_update", "mark_set_status"))
+        AuditEvent.objects.filter(mark=mark, action__in=("mark_create", *VERSIONED_ACTIONS))
         .select_related("actor")
         .order_by("-at", "-id")
         .first()
@@ -264,16 +267,22 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
     """
     first = at[0] = group[0]
     data = dict(first.mark)
+    suspect_since = data.pop("suspect_since", None)
+    suspect_reason = data.pop("suspect_reason", None)
     status = data.get("status")
     any_position = any(r.position is not None for r in group)
     # A destroyed mark takes no new positions: publish first, record the destruction last.
     late_destroyed = status == MarkStatus.DESTROYED
+    # A suspect mark becomes suspect through its own service, after the positions (publishing clears it).
+    late_suspect = status == MarkStatus.SUSPECT
     changed = False
     if mark is None:
         if late_destroyed and any_position:
             data["status"] = MarkStatus.ACTIVE
         else:
             late_destroyed = False
+        if late_suspect:
+            data["status"] = MarkStatus.ACTIVE
         mark = mark_create(actor=actor, data=data)
         changed = True
     else:
@@ -290,7 +299,9 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
         if changes:
             mark = mark_update(actor=actor, code=mark.code, expected_version=expected, changes=changes)
             expected, changed = mark.version, True
-        if status is not None and status != mark.status and not late_destroyed:
+        # A suspect mark made active by the file: after its positions (a new one ends the suspicion).
+        late_active = mark.status == MarkStatus.SUSPECT and status == MarkStatus.ACTIVE
+        if status is not None and status != mark.status and not (late_destroyed or late_suspect or late_active):
             mark = mark_set_status(actor=actor, code=mark.code, status=status, expected_version=expected, note=note)
             changed = True
     for record in group:
@@ -311,7 +322,44 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
                 actor=actor, code=mark.code, status=MarkStatus.DESTROYED, expected_version=mark.version, note=note
             )
             changed = True
+    mark = Mark.objects.select_for_update().get(pk=mark.pk)
+    if late_suspect:
+        changed = _apply_suspect(actor, mark, suspect_since, suspect_reason, note) or changed
+    elif status == MarkStatus.ACTIVE and mark.status == MarkStatus.SUSPECT:
+        # still suspect after the file's positions: the status action refuses (suspect_needs_clearance)
+        mark_set_status(actor=actor, code=mark.code, status=status, expected_version=mark.version, note=note)
     return changed
+
+
+def _apply_suspect(actor, mark: Mark, since: dt.date | None, reason: str | None, note: str) -> bool:
+    """The file says the mark is suspect: make it so (``services.suspect``), or check that it already is."""
+    if mark.status == MarkStatus.SUSPECT:
+        differ = [
+            name
+            for name, given, stored in (
+                ("suspect_since", since, mark.suspect_since),
+                ("suspect_reason", reason, mark.suspect_reason),
+            )
+            if given is not None and given != stored
+        ]
+        if differ:
+            raise Conflict(
+                f"mark {mark.code} is suspect since {mark.suspect_since} ({mark.suspect_reason}); the file gives "
+                f"another {' and '.join(differ)}, which an import does not change",
+                code="suspect_fields_differ",
+            )
+        return False
+    if mark.status != MarkStatus.ACTIVE:
+        raise Conflict(
+            f"mark {mark.code} is {mark.status}; only an active mark can become suspect", code="suspect_not_applied"
+        )
+    return mark_make_suspect(
+        mark=mark,
+        reason=reason or "marked suspect in an imported file",
+        since=since or timezone.now().date(),
+        actor=actor,
+        note=note,
+    )
 
 
 def mark_import(

@@ -1,5 +1,9 @@
 """Writes on marks: create, edit (with optimistic concurrency), change status.
 
+Suspect marks have their own rules and functions (``registry.services.suspect``); here
+``mark_set_status`` refuses to set ``suspect`` or to make a suspect mark active (see
+:func:`mark_set_status`), and ``mark_create`` refuses to create a mark as suspect.
+
 Every function checks the actor's role, validates with the model's own validators
 (``full_clean``; each ``ValidationError`` carries a ``code``), runs in one
 transaction and appends an audit event.
@@ -25,25 +29,16 @@ from django.db.models import F
 from django.utils import timezone
 
 from registry.errors import Conflict
-from registry.models import AuditEvent, Mark, MarkStatus
+from registry.models import DESCRIPTION_FIELDS, AuditEvent, Mark, MarkStatus
 from registry.roles import Ability
 from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
 from registry.services.documents import documents_mark_changed
+from registry.vocabulary import OLD_MARK_FIELDS, rename_old_keys
 
-# Descriptive fields a manager edits with mark_update.
-EDITABLE_FIELDS: tuple[str, ...] = (
-    "name",
-    "monument_type",
-    "setting",
-    "stability",
-    "stamping",
-    "to_reach",
-    "sky_view",
-    "custodian",
-    "notes",
-)
+# Descriptive fields a manager edits with mark_update (the description block in its display order).
+EDITABLE_FIELDS: tuple[str, ...] = ("name", *DESCRIPTION_FIELDS, "notes")
 # Descriptive fields a station description sheet prints (a change makes its signed sheets out of date).
 SHEET_FIELDS = frozenset(EDITABLE_FIELDS) - {"notes"}
 # Fields accepted when a mark is created (status defaults to active).
@@ -52,12 +47,16 @@ CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS, "status")
 _NOT_EDITABLE_HINT = {
     "code": "A mark's code is its identity and does not change.",
     "status": "Use the status action (mark_set_status).",
+    "suspect_since": "A mark becomes suspect from a visit or a check, and is cleared by a manager or a new position.",
+    "suspect_reason": "A mark becomes suspect from a visit or a check, and is cleared by a manager or a new position.",
     "search_lat_deg": "The search location follows the published positions.",
     "search_lon_deg": "The search location follows the published positions.",
     "version": "Send the version you started from separately, as expected_version.",
 }
 # The largest value of a PositiveIntegerField on every supported database.
 _MAX_VERSION = 2_147_483_647
+# Audit actions that bump a mark's edit version.
+VERSIONED_ACTIONS = ("mark_update", "mark_set_status", "mark_make_suspect", "mark_clear_suspect")
 # Statuses that need a reason in the note.
 _STATUS_NEEDS_NOTE = {MarkStatus.RETIRED, MarkStatus.DESTROYED}
 
@@ -66,6 +65,7 @@ def _clean_input(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
     """Check the keys and the types of submitted values; strings are stripped."""
     if not isinstance(data, dict):
         raise ValidationError("Send the fields as an object.", code="invalid_payload")
+    data = rename_old_keys(data, OLD_MARK_FIELDS)  # the earlier names, accepted for one more release
     errors: dict[str, list[ValidationError]] = {}
     cleaned: dict[str, Any] = {}
     for key, value in data.items():
@@ -125,7 +125,7 @@ def _parse_version(expected_version: Any) -> int:
 def _who_changed(mark: Mark, field: str, since_version: int) -> tuple[str | None, str | None]:
     """Who last changed ``field`` of ``mark`` after ``since_version``, from the audit trail."""
     events = (
-        AuditEvent.objects.filter(mark=mark, action__in=("mark_update", "mark_set_status"))
+        AuditEvent.objects.filter(mark=mark, action__in=VERSIONED_ACTIONS)
         .select_related("actor")
         .order_by("-at", "-id")[:200]
     )
@@ -172,6 +172,8 @@ def mark_create(*, actor, data: dict) -> Mark:
     cleaned = _clean_input(data, CREATE_FIELDS)
     if not cleaned.get("code"):
         raise ValidationError({"code": ValidationError("A mark needs a code.", code="required")})
+    if cleaned.get("status") == MarkStatus.SUSPECT:
+        raise ValidationError({"status": _suspect_not_settable()})
     mark = Mark(**cleaned)
     mark.full_clean()
     try:
@@ -249,21 +251,49 @@ def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Ma
     return mark
 
 
+def _suspect_not_settable() -> ValidationError:
+    return ValidationError(
+        "A mark becomes suspect when a visit finds it disturbed or does not find it; record the visit.",
+        code="suspect_not_settable",
+    )
+
+
 def mark_set_status(*, actor, code: str, status: str, expected_version: int, note: str = "") -> Mark:
     """Set a mark's status (active, retired, destroyed), starting from ``expected_version``.
 
     Retiring a mark or reporting it destroyed needs a reason in ``note``.
     The same concurrency rule as :func:`mark_update` applies.
+
+    ``suspect`` is not set here (``suspect_not_settable``: visits and checks set it,
+    ``registry.services.suspect``), and a suspect mark is not made active here
+    (``suspect_needs_clearance``: a manager's clearance or a new published position does that).
+    A suspect mark may be retired or recorded destroyed (that ends the suspicion; the audit row keeps
+    what it was). A retired or destroyed mark made active again gets the visit rule applied at once: if
+    its latest disturbed or not-found visit is not older than its newest published position, it comes
+    back suspect (``services.suspect.history_suspicion``, audited).
     """
     version = _parse_version(expected_version)
     if status not in MarkStatus.values:
         raise ValidationError(
             {"status": ValidationError("Unknown status %(value)r.", code="invalid_choice", params={"value": status})}
         )
+    if status == MarkStatus.SUSPECT:
+        raise ValidationError({"status": _suspect_not_settable()})
     note = parse_note(note, required=status in _STATUS_NEEDS_NOTE, what="this status")
     conflict: Conflict | None = None
     with transaction.atomic():
-        mark = access_mark_by_code(actor, code, ability=Ability.MANAGE)
+        mark = access_mark_by_code(actor, code, ability=Ability.MANAGE, for_update=True)
+        if mark.status == MarkStatus.SUSPECT and status == MarkStatus.ACTIVE:
+            raise ValidationError(
+                {
+                    "status": ValidationError(
+                        "Mark %(code)s is suspect (%(reason)s). Clear the suspicion with a note, or publish a new "
+                        "position, to make it active.",
+                        code="suspect_needs_clearance",
+                        params={"code": mark.code, "reason": mark.suspect_reason or "awaiting re-observation"},
+                    )
+                }
+            )
         # Same status: a no-op whatever version the caller started from (no version bump, no audit row).
         if mark.status == status:
             raise ValidationError(
@@ -274,8 +304,13 @@ def mark_set_status(*, actor, code: str, status: str, expected_version: int, not
                 }
             )
         before_status = mark.status
+        before = {"status": before_status, "version": version}
+        ending_suspicion = {}
+        if before_status == MarkStatus.SUSPECT:  # retired or recorded destroyed: that ends the suspicion
+            before.update(suspect_since=mark.suspect_since, suspect_reason=mark.suspect_reason)
+            ending_suspicion = {"suspect_since": None, "suspect_reason": ""}
         updated = Mark.objects.filter(pk=mark.pk, version=version).update(
-            status=status, version=F("version") + 1, updated_at=timezone.now()
+            status=status, version=F("version") + 1, updated_at=timezone.now(), **ending_suspicion
         )
         if updated == 0:
             current, conflict = _conflict(mark.pk, {"status": status}, version)
@@ -293,11 +328,15 @@ def mark_set_status(*, actor, code: str, status: str, expected_version: int, not
                 actor=actor,
                 action="mark_set_status",
                 obj=mark,
-                before={"status": before_status, "version": version},
-                after={"status": status, "version": mark.version},
+                before=before,
+                after={"status": status, "version": mark.version, **ending_suspicion},
                 note=note,
             )
             documents_mark_changed(mark, f"status changed from {before_status} to {status}", actor=actor)
+            if status == MarkStatus.ACTIVE:  # back into use: the visits may still say it is suspect
+                from registry.services.suspect import history_suspicion
+
+                history_suspicion(mark=mark, actor=actor, note="made active again; its last visit report stands")
     if conflict is not None:
         raise conflict
     return mark

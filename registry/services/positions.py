@@ -39,6 +39,7 @@ from registry.services._input import (
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
 from registry.services.documents import documents_mark_changed
+from registry.services.suspect import lift_suspicion
 
 COV_FIELDS = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
 VEL_FIELDS = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
@@ -220,7 +221,12 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
 
 
 def position_publish(*, actor, position_id: int, note: str = "") -> Position:
-    """Publish a proposed position (manager); supersede the earlier one of the same mark and frame."""
+    """Publish a proposed position (manager); supersede the earlier one of the same mark and frame.
+
+    A suspect mark becomes active again (a new position answers the suspicion; ``services.suspect``);
+    the change is recorded in the ``position_publish`` audit row (``mark_status`` and the suspicion
+    before and after) and bumps the mark's version.
+    """
     note = parse_note(note, required=False)
     with transaction.atomic():
         position = access_position_by_id(actor, position_id, ability=Ability.MANAGE, for_update=True)
@@ -261,21 +267,27 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
                 code="already_published",
             ) from None
         lat, lon = _refresh_search_location(mark.pk)
+        before = {
+            "state": PositionState.PROPOSED,
+            "search_lat_deg": mark.search_lat_deg,
+            "search_lon_deg": mark.search_lon_deg,
+        }
+        after = {
+            "state": PositionState.PUBLISHED,
+            "supersedes_id": previous.pk if previous else None,
+            "search_lat_deg": lat,
+            "search_lon_deg": lon,
+        }
+        lifted = lift_suspicion(mark)
+        if lifted is not None:
+            before.update({f"mark_{k}": v for k, v in lifted["before"].items()})
+            after.update({f"mark_{k}": v for k, v in lifted["after"].items()})
         audit_record(
             actor=actor,
             action="position_publish",
             obj=position,
-            before={
-                "state": PositionState.PROPOSED,
-                "search_lat_deg": mark.search_lat_deg,
-                "search_lon_deg": mark.search_lon_deg,
-            },
-            after={
-                "state": PositionState.PUBLISHED,
-                "supersedes_id": previous.pk if previous else None,
-                "search_lat_deg": lat,
-                "search_lon_deg": lon,
-            },
+            before=before,
+            after=after,
             note=note,
             mark=mark,
         )

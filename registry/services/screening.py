@@ -5,7 +5,7 @@ Steps:
 1. Candidates: every mark within ``site radius + 1.25 × maximum baseline`` of the site's
    reference point, through the nearby-search selector (so marks just beyond the baseline
    limit are listed, excluded, with their reason).
-2. Facts per mark: status, sky view, last visit, last *good* visit (``as_of`` minus it, in
+2. Facts per mark: status, sky view, last visit, last *intact* visit (``as_of`` minus it, in
    years of 365.25 days), published positions.
 3. Position per mark: the published one in the job's frame, else the first published one
    that transforms to it (``registry.geodesy.frames.transform_position``, which also moves it
@@ -48,7 +48,7 @@ from django.db.models import Max
 from registry.geodesy import rtk
 from registry.geodesy import site as site_geo
 from registry.geodesy.frames import FrameTransformError, frame_info, transform_position
-from registry.models import Condition, Job, Mark, Position, PositionState, Visit
+from registry.models import Finding, Job, Mark, Position, PositionState, Visit
 from registry.roles import Ability
 from registry.selectors.conversion import configured_plate
 from registry.services.access import access_job_by_code, require_ability
@@ -402,11 +402,11 @@ def _gather(s: ScreeningSettings, plane: site_geo.LocalPlane, radius_m: float, a
     for mark_id, cond in (
         Visit.objects.filter(mark_id__in=ids, visited_on__lte=as_of)
         .order_by("mark_id", "-visited_on", "-created_at", "-id")
-        .values_list("mark_id", "condition")
+        .values_list("mark_id", "finding")
     ):
         last_visit.setdefault(mark_id, cond)
     last_good = dict(
-        Visit.objects.filter(mark_id__in=ids, condition=Condition.GOOD, visited_on__lte=as_of)
+        Visit.objects.filter(mark_id__in=ids, finding=Finding.INTACT, visited_on__lte=as_of)
         .values("mark_id")
         .annotate(last=Max("visited_on"))
         .values_list("mark_id", "last")

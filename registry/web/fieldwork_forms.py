@@ -14,7 +14,7 @@ from django import forms
 from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
 
 from registry.geodesy import dms
-from registry.models import AntennaHeightKind, Condition, MarkStatus, OccupationMethod, Stability
+from registry.models import AntennaHeightKind, Finding, MarkStatus, OccupationMethod, Stability
 
 #: Frames offered on the propose form even before any position uses them (shared contracts).
 DEFAULT_FRAMES = (7912, 9989, 6319)
@@ -96,7 +96,7 @@ class VisitForm(ServiceErrorsMixin, forms.Form):
     visited_on = forms.DateField(
         label="Date of the visit", widget=forms.DateInput(attrs={"type": "date"}), help_text="YYYY-MM-DD."
     )
-    condition = forms.ChoiceField(choices=Condition.choices)
+    finding = forms.ChoiceField(label="What was found", choices=Finding.choices)
     visitor = forms.CharField(max_length=120, required=False, help_text="Who visited (name or crew).")
     notes = forms.CharField(widget=forms.Textarea(attrs={"rows": 4}), required=False)
     photos = MultipleFileField(
@@ -107,7 +107,7 @@ class VisitForm(ServiceErrorsMixin, forms.Form):
 
     def visit_data(self) -> dict[str, Any]:
         d = self.cleaned_data
-        return {k: d[k] for k in ("visited_on", "condition", "visitor", "notes")}
+        return {k: d[k] for k in ("visited_on", "finding", "visitor", "notes")}
 
 
 # ----------------------------------------------------------------------------- occupation
@@ -307,11 +307,24 @@ class DecisionForm(forms.Form):
 
 class MarkStatusForm(ServiceErrorsMixin, forms.Form):
     version = forms.IntegerField(widget=forms.HiddenInput, min_value=1)
-    status = forms.ChoiceField(label="New status", choices=MarkStatus.choices)
+    # Not "suspect": visits set it, and a clearance or a new position ends it (services.suspect).
+    status = forms.ChoiceField(
+        label="New status", choices=[c for c in MarkStatus.choices if c[0] != MarkStatus.SUSPECT]
+    )
     note = forms.CharField(
         widget=forms.Textarea(attrs={"rows": 3}),
         required=False,
         help_text="Required to retire a mark or record it destroyed: what was found, by whom, when.",
+    )
+
+
+class ClearSuspectForm(ServiceErrorsMixin, forms.Form):
+    version = forms.IntegerField(widget=forms.HiddenInput, min_value=1)
+    note = forms.CharField(
+        label="Why the mark can be used again",
+        widget=forms.Textarea(attrs={"rows": 3}),
+        required=False,  # the service asks for it (note_required), so the message is the same everywhere
+        help_text="Required: e.g. who re-checked it in the field, when, and against what.",
     )
 
 
@@ -327,8 +340,8 @@ class NearbyForm(forms.Form):
     stability = forms.ChoiceField(
         label="Stability", required=False, choices=[("", "any stability"), *Stability.choices]
     )
-    good_visit_within_yr = forms.FloatField(
-        label="Found good within (years)", required=False, min_value=0.001, max_value=200.0
+    intact_visit_within_yr = forms.FloatField(
+        label="Found intact within (years)", required=False, min_value=0.001, max_value=200.0
     )
     frame_epsg = forms.IntegerField(
         label="Published in frame (EPSG)", required=False, min_value=1024, help_text="e.g. 7912, 9989, 6319."
@@ -337,7 +350,7 @@ class NearbyForm(forms.Form):
     def search_args(self) -> dict[str, Any]:
         d = self.cleaned_data
         args = {"lat_deg": d["lat"], "lon_deg": d["lon"], "radius_m": d["radius_km"] * 1000.0, "limit": d["limit"]}
-        for key in ("status", "stability", "good_visit_within_yr", "frame_epsg"):
+        for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg"):
             if d.get(key) not in (None, ""):
                 args[key] = d[key]
         return args

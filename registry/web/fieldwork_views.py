@@ -1,4 +1,5 @@
-"""Fieldwork pages: record a visit (with photos), record an occupation (with files), change a mark's status.
+"""Fieldwork pages: record a visit (with photos), record an occupation (with files), change a mark's status,
+clear a suspect mark.
 
 Thin views: the form parses, the services (:mod:`registry.services.fieldwork`,
 :mod:`registry.services.marks`) check the role, validate, write and audit. A visit or
@@ -19,7 +20,8 @@ from registry.roles import Ability
 from registry.services.access import access_mark_by_code
 from registry.services.fieldwork import attachment_add, occupation_record, visit_record
 from registry.services.marks import mark_set_status
-from registry.web.fieldwork_forms import MarkStatusForm, OccupationForm, VisitForm
+from registry.services.suspect import mark_clear_suspect
+from registry.web.fieldwork_forms import ClearSuspectForm, MarkStatusForm, OccupationForm, VisitForm
 from registry.web.views import ability_required
 
 
@@ -146,4 +148,45 @@ def mark_status(request: HttpRequest, code: str) -> HttpResponse:
         form = MarkStatusForm(initial={"version": mark.version, "status": mark.status})
     return render(
         request, "registry/mark_status_form.html", {"form": form, "mark": mark, "conflict": conflict}, status=status
+    )
+
+
+@ability_required(Ability.MANAGE)
+def mark_clear_suspect_page(request: HttpRequest, code: str) -> HttpResponse:
+    """A manager's clearance of a suspect mark (the form is on the mark page; errors are shown here)."""
+    mark = access_mark_by_code(request.user, code, ability=Ability.MANAGE)
+    status = 200
+    conflict = ""
+    if request.method == "POST":
+        form = ClearSuspectForm(request.POST)
+        if form.is_valid():
+            d = form.cleaned_data
+            try:
+                mark = mark_clear_suspect(
+                    actor=request.user, code=mark.code, note=d["note"], expected_version=d["version"]
+                )
+            except ValidationError as exc:
+                form.add_service_error(exc)
+            except Conflict as exc:
+                conflict = exc.message
+                mark.refresh_from_db()
+                data = request.POST.copy()
+                data["version"] = str(mark.version)
+                form = ClearSuspectForm(data)
+                form.is_valid()
+                status = 409
+            else:
+                messages.success(
+                    request, f"Mark {mark.code} is no longer suspect; it is active (version {mark.version})."
+                )
+                return redirect("web:mark-detail", code=mark.code)
+        if status == 200:
+            status = 400
+    else:
+        form = ClearSuspectForm(initial={"version": mark.version})
+    return render(
+        request,
+        "registry/mark_clear_suspect_form.html",
+        {"form": form, "mark": mark, "conflict": conflict},
+        status=status,
     )

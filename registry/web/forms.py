@@ -25,7 +25,7 @@ class MarkSearchForm(forms.Form):
         required=False,
         choices=[(MATCH_PREFIX, "starts with"), (MATCH_CONTAINS, "contains")],
     )
-    text = forms.CharField(label="Free text (code, name, stamping, custodian)", required=False, max_length=200)
+    text = forms.CharField(label="Free text (code, name, marking, keeper)", required=False, max_length=200)
     status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
 
     def filters(self) -> dict[str, str]:
@@ -51,7 +51,7 @@ class MarkForm(forms.Form):
         self.fields.update(model_fields)
         self.fields["version"] = version
         self.editing = editing
-        self.fields["to_reach"].widget.attrs.update(rows=4)
+        self.fields["access_directions"].widget.attrs.update(rows=4)
         self.fields["notes"].widget.attrs.update(rows=3)
         self.fields["code"].help_text = "1–32 characters: capital letters, digits, '_', '.', '-'."
         if editing:

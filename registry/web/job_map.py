@@ -2,8 +2,8 @@
 coverage show without any basemap or script.
 
 Projection: UTM (GRS80) of the zone holding the site's reference point, for display only; grid
-north is up and the meridian convergence at the site is stated beside the north arrow (PROJ/NGS
-sign: the angle from true north to grid north, clockwise positive; see
+north is up and the meridian convergence at the site is stated beside the north arrow (the angle
+from true north to grid north, clockwise positive: grid azimuth = geodetic azimuth − γ; see
 :mod:`registry.geodesy.grid`). Coverage cells are the screening grid's cells (squares on the
 site's local plane, rotated against UTM by the convergence difference, well under a degree
 within a zone, drawn unrotated). Cells are coloured by the best horizontal 95 % figure any usable

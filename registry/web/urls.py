@@ -36,6 +36,7 @@ urlpatterns: list = [
     path("marks/<str:code>/visits/new/", fieldwork_views.visit_new, name="visit-create"),
     path("marks/<str:code>/occupations/new/", fieldwork_views.occupation_new, name="occupation-create"),
     path("marks/<str:code>/status/", fieldwork_views.mark_status, name="mark-status"),
+    path("marks/<str:code>/clear-suspect/", fieldwork_views.mark_clear_suspect_page, name="mark-clear-suspect"),
     path("marks/<str:code>/positions/new/", position_views.position_new, name="position-create"),
     path(
         "marks/<str:code>/positions/<int:position_id>/<str:action>/",

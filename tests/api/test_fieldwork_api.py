@@ -33,7 +33,7 @@ def _state():
     return (Visit.objects.count(), Occupation.objects.count(), Attachment.objects.count(), AuditEvent.objects.count())
 
 
-VISIT = {"visited_on": "2024-05-01", "condition": "good", "visitor": "Crew 2 (invented)", "notes": "Clean."}
+VISIT = {"visited_on": "2024-05-01", "finding": "intact", "visitor": "Crew 2 (invented)", "notes": "Clean."}
 OCC = {
     "method": "static_gnss",
     "start_utc": "2024-05-01T14:00:00Z",
@@ -88,7 +88,7 @@ def test_visit_record_and_list(mark, api_client_for, technician):
     response = client.post("/api/marks/FW-01/visits/", VISIT, format="json")
     assert response.status_code == 201
     body = response.json()
-    assert body["mark"] == "FW-01" and body["condition"] == "good" and body["created_by"] == "theo"
+    assert body["mark"] == "FW-01" and body["finding"] == "intact" and body["created_by"] == "theo"
     assert AuditEvent.objects.filter(action="visit_record", object_id=str(body["id"]), actor=technician).exists()
     listed = client.get("/api/marks/FW-01/visits/").json()
     assert [v["id"] for v in listed["results"]] == [body["id"]]

@@ -217,22 +217,22 @@ def test_patch_needs_the_version(district, manager, api_client_for):
 
 def test_two_patches_from_the_same_version(district, manager, make_user, api_client_for):
     first = api_client_for(manager).patch(
-        "/api/marks/QR-101/", {"version": 1, "to_reach": "From the gate, 200 m north."}, format="json"
+        "/api/marks/QR-101/", {"version": 1, "access_directions": "From the gate, 200 m north."}, format="json"
     )
     assert first.status_code == 200 and first.json()["version"] == 2
     other = make_user("omar", "manager")
     second = api_client_for(other).patch(
-        "/api/marks/QR-101/", {"version": 1, "to_reach": "Park at the quarry office."}, format="json"
+        "/api/marks/QR-101/", {"version": 1, "access_directions": "Park at the quarry office."}, format="json"
     )
     error = assert_error_shape(second, 409, "stale_version")
-    assert error["details"]["to_reach"]["yours"] == "Park at the quarry office."
-    assert error["details"]["to_reach"]["theirs"] == "From the gate, 200 m north."
-    assert error["details"]["to_reach"]["changed_by"] == "mona"
+    assert error["details"]["access_directions"]["yours"] == "Park at the quarry office."
+    assert error["details"]["access_directions"]["theirs"] == "From the gate, 200 m north."
+    assert error["details"]["access_directions"]["changed_by"] == "mona"
     assert error["details"]["version"] == {"yours": 1, "theirs": 2, "changed_by": None, "changed_at": None}
-    assert Mark.objects.get(code="QR-101").to_reach == "From the gate, 200 m north."
+    assert Mark.objects.get(code="QR-101").access_directions == "From the gate, 200 m north."
     trail = {e.action: e.after for e in AuditEvent.objects.filter(action__startswith="mark_update")}
-    assert trail["mark_update"]["to_reach"] == "From the gate, 200 m north."
-    assert trail["mark_update_refused"]["to_reach"] == "Park at the quarry office."
+    assert trail["mark_update"]["access_directions"] == "From the gate, 200 m north."
+    assert trail["mark_update_refused"]["access_directions"] == "Park at the quarry office."
 
 
 def test_status_endpoint(district, manager, api_client_for):
@@ -267,9 +267,9 @@ def test_status_endpoint(district, manager, api_client_for):
         (
             "post",
             "/api/marks/",
-            {"code": "CW-1", "custodian": "a\x00"},
+            {"code": "CW-1", "keeper": "a\x00"},
             400,
-            "custodian",
+            "keeper",
             "null_characters_not_allowed",
         ),
         (
@@ -319,3 +319,23 @@ def test_exception_handler_gives_the_one_shape(viewer, exc, status, code):
     response = Raiser.as_view()(request)
     response.render()
     assert_error_shape(response, status, code)
+
+
+def test_create_and_edit_still_take_the_earlier_field_names(manager, api_client_for):
+    """Deprecated for one release (README, earlier names): to_reach, monument_type, setting, stamping, custodian."""
+    client = api_client_for(manager)
+    response = client.post(
+        "/api/marks/",
+        {"code": "EN-1", "monument_type": "pillar", "stamping": "EN-1 2020", "to_reach": "Trail end"},
+        format="json",
+    )
+    assert response.status_code == 201, response.content
+    body = response.json()
+    assert (body["monument"], body["marking"], body["access_directions"]) == ("pillar", "EN-1 2020", "Trail end")
+    assert "monument_type" not in body and "stamping" not in body
+    response = client.patch("/api/marks/EN-1/", {"version": 1, "custodian": "Ridge Trust"}, format="json")
+    assert response.status_code == 200 and response.json()["keeper"] == "Ridge Trust"
+    error = assert_error_shape(
+        client.patch("/api/marks/EN-1/", {"version": 2, "custodian": "A", "keeper": "B"}, format="json"), 400, "invalid"
+    )
+    assert error["details"]["custodian"][0]["code"] == "old_and_new_name"

@@ -13,6 +13,7 @@ OUR_PATHS = {
     "/api/marks/": {"get", "post"},
     "/api/marks/{code}/": {"get", "patch"},
     "/api/marks/{code}/status/": {"post"},
+    "/api/marks/{code}/clear-suspect/": {"post"},
     "/api/marks/{code}/positions/": {"get", "post"},
     "/api/positions/{position_id}/": {"get"},
     "/api/positions/{position_id}/publish/": {"post"},
@@ -23,6 +24,7 @@ OUR_VIEWS = (
     "MarkListView",
     "MarkDetailView",
     "MarkStatusView",
+    "MarkClearSuspectView",
     "MarkPositionsView",
     "PositionDetailView",
     "PositionPublishView",
@@ -34,7 +36,7 @@ OUR_VIEWS = (
 )
 METHODS = {"get", "post", "put", "patch", "delete"}
 # Enumerations our serializers expose; a naming collision on them gives clients odd type names.
-OUR_ENUM_FIELDS = ("status", "state", "monument_type", "stability", "sky_view")
+OUR_ENUM_FIELDS = ("status", "state", "monument", "stability", "sky_view", "finding")
 
 
 def test_schema_endpoint_serves_our_paths(viewer, api_client_for):

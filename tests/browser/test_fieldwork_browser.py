@@ -30,7 +30,7 @@ def test_visit_propose_check_publish(page, district, screenshot, tmp_path, chrom
     sign_in(page, "theo", "pw-theo-123!", start="/marks/KV-002/")
     page.get_by_role("link", name="Record visit").click()
     page.get_by_label("Date of the visit").fill("2024-06-03")
-    page.get_by_label("Condition").select_option("good")
+    page.get_by_label("What was found").select_option("intact")
     page.get_by_label("Visitor").fill("T. Field (invented)")
     page.get_by_label("Notes").fill("Bolt clean; deck joint repaired since last visit.")
     photo = tmp_path / "kv002-east.png"

@@ -14,7 +14,7 @@ import io
 import pytest
 from PIL import Image
 
-from registry.models import Condition, MarkStatus, SkyView
+from registry.models import Finding, MarkStatus, SkyView
 from tests.services.test_screening import at, make_job, make_mark
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
@@ -31,7 +31,7 @@ def job(manager):
     make_mark("SAGE-5", 500.0, 120.0, sigma_h_mm=9.0)
     make_mark("CRK-6", 1800.0, 250.0, epoch=2012.0)
     make_mark("CRK-7", 900.0, 70.0, status=MarkStatus.RETIRED)
-    make_mark("CRK-8", 1200.0, 160.0, visits=(("2019-04-02", "good"), ("2024-09-10", Condition.NOT_FOUND)))
+    make_mark("CRK-8", 1200.0, 160.0, visits=(("2019-04-02", "intact"), ("2024-09-10", Finding.SEARCHED_NOT_FOUND)))
     make_mark("CRK-9", 2600.0, 330.0, sky=SkyView.OBSTRUCTED)
     make_mark("FAR-10", 11_900.0, 80.0)
     return make_job(

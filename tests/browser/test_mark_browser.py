@@ -45,12 +45,12 @@ def test_sign_in_search_open_edit(page, district, screenshot, make_user):
     expect(page.get_by_role("heading", name="Marks")).to_be_visible()
     expect(page.locator("#counts")).to_contain_text("11 in the registry")
 
-    # Search: free text on the custodian, then narrow by code prefix.
-    page.get_by_label("Free text (code, name, stamping, custodian)").fill("kestrel valley")
+    # Search: free text on the keeper, then narrow by code prefix.
+    page.get_by_label("Free text (code, name, marking, keeper)").fill("kestrel valley")
     page.get_by_role("button", name="Search").click()
     expect(page.locator("#counts")).to_contain_text("of 5 matching marks")
     page.get_by_label("Code or name").fill("kv-00")
-    page.get_by_label("Free text (code, name, stamping, custodian)").fill("")
+    page.get_by_label("Free text (code, name, marking, keeper)").fill("")
     page.get_by_role("button", name="Search").click()
     expect(page.locator("#counts")).to_contain_text("of 8 matching marks")
     assert "q=kv-00" in page.url
@@ -89,15 +89,15 @@ def test_sign_in_search_open_edit(page, district, screenshot, make_user):
         actor=make_user("marta", "manager"),
         code="KV-001",
         expected_version=3,
-        changes={"stamping": "KESTREL RIDGE 2009 RESET 2024"},
+        changes={"marking": "KESTREL RIDGE 2009 RESET 2024"},
     )
-    page.get_by_label("Stamping").fill("KESTREL RIDGE 2009 (worn)")
+    page.get_by_label("Marking as inscribed").fill("KESTREL RIDGE 2009 (worn)")
     page.get_by_role("button", name="Save changes").click()
     expect(page.get_by_role("heading", level=2, name=re.compile("Not saved"))).to_be_visible()
     expect(page.locator("table.compare")).to_contain_text("KESTREL RIDGE 2009 RESET 2024")
     expect(page.locator("table.compare")).to_contain_text("marta")
     screenshot(page, "mark-edit-conflict")
-    assert Mark.objects.get(code="KV-001").stamping == "KESTREL RIDGE 2009 RESET 2024"
+    assert Mark.objects.get(code="KV-001").marking == "KESTREL RIDGE 2009 RESET 2024"
 
 
 def test_viewer_sees_no_edit_and_is_refused(page, district):
@@ -134,7 +134,7 @@ def test_the_whole_flow_works_without_javascript(chromium, live_server, district
         expect(page.locator("#counts")).to_contain_text("of 1 matching mark")
         page.get_by_role("link", name="KV-003", exact=True).click()
         page.get_by_role("link", name="Edit description").click()
-        page.get_by_label("Custodian").fill("Heron Point Wildlife Refuge (invented)")
+        page.get_by_label("Keeper").fill("Heron Point Wildlife Refuge (invented)")
         page.get_by_role("button", name="Save changes").click()
         expect(page.locator("dl.facts")).to_contain_text("Heron Point Wildlife Refuge (invented)")
         assert Mark.objects.get(code="KV-003").version == 2

@@ -10,7 +10,7 @@ import datetime as dt
 
 import pytest
 
-from registry.models import Condition, Mark, Occupation, Position, PositionState, Visit
+from registry.models import Finding, Mark, Occupation, Position, PositionState, Visit
 
 
 @pytest.fixture(autouse=True)
@@ -43,13 +43,13 @@ def make_mark(code: str = "CR-100", *, lat: float | None = None, lon: float | No
     mark = Mark.objects.create(
         code=code,
         name=fields.pop("name", "Ferry Rd & Third Ave"),
-        monument_type="disk_concrete",
-        setting="bronze disk in a concrete post",
+        monument="disk_concrete",
+        monument_detail="bronze disk in a concrete post",
         stability="moderate",
-        stamping=f"{code} 2004",
-        to_reach="From the courthouse go 2.4 km north-east; the mark is 4 m south-east of the hydrant.",
+        marking=f"{code} 2004",
+        access_directions="From the courthouse go 2.4 km north-east; the mark is 4 m south-east of the hydrant.",
         sky_view="clear",
-        custodian="Invented County Survey Office",
+        keeper="Invented County Survey Office",
         search_lat_deg=lat,
         search_lon_deg=lon,
         **fields,
@@ -68,7 +68,7 @@ def make_mark(code: str = "CR-100", *, lat: float | None = None, lon: float | No
 def mark(db) -> Mark:
     m = make_mark()
     make_mark("CR-101", lat=POSITION["lat_deg"] - 0.005, lon=POSITION["lon_deg"] + 0.004)
-    Visit.objects.create(mark=m, visited_on=dt.date(2025, 5, 2), condition=Condition.GOOD, visitor="T. Farrow")
+    Visit.objects.create(mark=m, visited_on=dt.date(2025, 5, 2), finding=Finding.INTACT, visitor="T. Farrow")
     Occupation.objects.create(
         mark=m,
         method="static_gnss",

@@ -67,7 +67,7 @@ def test_document_list_shows_out_of_date_sheets_to_reissue(client, signed_sheet,
     from registry.services.marks import mark_update
 
     mark = signed_sheet.mark
-    mark_update(actor=manager, code=mark.code, expected_version=mark.version, changes={"stamping": "CR-100 RESET"})
+    mark_update(actor=manager, code=mark.code, expected_version=mark.version, changes={"marking": "CR-100 RESET"})
     page = _login(client, signatory).get(reverse("web:document-list")).content.decode()
     assert "Out of date: to reissue" in page and signed_sheet.code in page and "Prepare revision 2" in page
 

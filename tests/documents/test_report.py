@@ -12,7 +12,7 @@ import pytest
 from django.urls import reverse
 from pypdf import PdfReader
 
-from registry.models import BuildState, Condition, Document, DocumentBuild, DocumentKind, Job, Visit
+from registry.models import BuildState, Document, DocumentBuild, DocumentKind, Finding, Job, Visit
 from registry.services.documents import (
     document_build_report,
     document_check,
@@ -35,7 +35,7 @@ RESIDUALS = "point_id,de_m,dn_m,du_m\n" + "\n".join(
 def job(mark, manager):
     from registry.models import Mark
 
-    Visit.objects.create(mark=Mark.objects.get(code="CR-101"), visited_on=dt.date(2025, 6, 1), condition=Condition.GOOD)
+    Visit.objects.create(mark=Mark.objects.get(code="CR-101"), visited_on=dt.date(2025, 6, 1), finding=Finding.INTACT)
     return Job.objects.create(
         code="J-1",
         name="Invented stake-out",

@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 from pypdf import PdfReader
 
-from registry.models import Condition, DocumentState, MarkStatus, Visit
+from registry.models import DocumentState, Finding, MarkStatus, Visit
 from registry.services.documents import document_build_sheet, verify_url
 from tests.documents.conftest import POSITION
 
@@ -160,15 +160,17 @@ def test_page_size_setting(mark, technician, settings):
     assert (round(float(box.width)), round(float(box.height))) == (595, 842)  # 210 × 297 mm (ISO 216)
 
 
-@pytest.mark.parametrize("status", [MarkStatus.DESTROYED, MarkStatus.RETIRED])
+@pytest.mark.parametrize("status", [MarkStatus.DESTROYED, MarkStatus.RETIRED, MarkStatus.SUSPECT])
 def test_unusable_mark_says_so_first_and_prints_no_coordinates(mark, technician, status):
     mark.status = status
+    mark.suspect_reason = "the visit of 2026-01-05 found it disturbed" if status == MarkStatus.SUSPECT else ""
     mark.save()
     doc = document_build_sheet(actor=technician, mark_code=mark.code)
     first_page = _pages_text(bytes(doc.content))[0]
     body_lines = [ln for ln in first_page.splitlines() if ln.strip()]
     # the body's first line is the warning (the page heading is drawn after the body, so it comes later)
-    assert body_lines[0].startswith("MARK " + ("DESTROYED" if status == MarkStatus.DESTROYED else "RETIRED"))
+    word = {MarkStatus.DESTROYED: "DESTROYED", MarkStatus.RETIRED: "RETIRED", MarkStatus.SUSPECT: "SUSPECT"}[status]
+    assert body_lines[0].startswith("MARK " + word)
     text = _flat(" ".join(_pages_text(bytes(doc.content))))
     assert _dms(POSITION["lat_deg"], "N", "S") not in text
     assert "Published positions" not in text and "network accuracy" not in text
@@ -177,7 +179,7 @@ def test_unusable_mark_says_so_first_and_prints_no_coordinates(mark, technician,
 def test_disturbed_visit_withholds_coordinates_until_a_new_position(mark, technician, manager):
     import datetime as dt
 
-    Visit.objects.create(mark=mark, visited_on=dt.date(2026, 1, 5), condition=Condition.DISTURBED)
+    Visit.objects.create(mark=mark, visited_on=dt.date(2026, 1, 5), finding=Finding.DISTURBED)
     doc = document_build_sheet(actor=technician, mark_code=mark.code)
     text = _flat(" ".join(_pages_text(bytes(doc.content))))
     assert "MARK DISTURBED ON 2026-01-05, AWAITING RE-POSITIONING" in text

@@ -150,3 +150,17 @@ def test_drafts_are_not_flagged(mark, technician, manager):
     doc = document_build_sheet(actor=technician, mark_code=mark.code)
     assert documents_mark_changed(mark, "x") == 0
     assert not Document.objects.get(pk=doc.pk).out_of_date
+
+
+def test_a_disturbed_visit_makes_the_mark_suspect_and_the_sheet_out_of_date(signed_sheet, technician):
+    import datetime as dt
+
+    from registry.services.fieldwork import visit_record
+
+    visit_record(
+        actor=technician,
+        mark_code=signed_sheet.mark.code,
+        data={"visited_on": (dt.date.today()).isoformat(), "finding": "disturbed", "notes": "disk loose"},
+    )
+    doc = Document.objects.get(pk=signed_sheet.pk)
+    assert doc.out_of_date and "suspect" in doc.out_of_date_reason

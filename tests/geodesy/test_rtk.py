@@ -190,7 +190,7 @@ def test_error_budget_drms_and_rss_options():
 GOOD = MarkFacts(
     status="active",
     sky_view="clear",
-    last_visit_condition="good",
+    last_visit_condition="intact",
     years_since_good_visit=2.0,
     has_published_position=True,
     transformable=True,
@@ -204,7 +204,7 @@ GOOD = MarkFacts(
         ({"status": "destroyed"}, "not_active"),
         ({"last_visit_condition": "disturbed"}, "last_visit_disturbed"),
         ({"last_visit_condition": "destroyed"}, "last_visit_destroyed"),
-        ({"last_visit_condition": "not_found"}, "last_visit_not_found"),
+        ({"last_visit_condition": "searched_not_found"}, "last_visit_not_found"),
         ({"years_since_good_visit": 10.01}, "no_recent_good_visit"),
         ({"years_since_good_visit": None}, "no_recent_good_visit"),
         ({"has_published_position": False, "transformable": None}, "no_published_position"),
@@ -226,7 +226,7 @@ def test_rule_edges():
     # Exactly at the recovery limit still counts; a poor last visit alone does not exclude;
     # partial sky view does not exclude.
     assert rule_reasons(replace(GOOD, years_since_good_visit=10.0), recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, last_visit_condition="poor"), recovery_years=10) == []
+    assert rule_reasons(replace(GOOD, last_visit_condition="damaged"), recovery_years=10) == []
     assert rule_reasons(replace(GOOD, sky_view="partial"), recovery_years=10) == []
 
 

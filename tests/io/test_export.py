@@ -17,7 +17,7 @@ from django.urls import reverse
 from registry.io.common import CSV_COLUMNS, format_exact
 from registry.services.imports import mark_import
 
-HEADER = "code,name,monument_type,stability,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,cov_ee_m2,cov_en_m2,cov_nn_m2,cov_uu_m2,source"
+HEADER = "code,name,monument,stability,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,cov_ee_m2,cov_en_m2,cov_nn_m2,cov_uu_m2,source"
 ROWS = [
     "EXP-002,Creek bolt,bolt_structure,moderate,7912,2021.5,45.2,-110.6,1500,1.6e-05,-2.5e-06,2.5e-05,8.1e-05,demo 2021",
     "EXP-001,Willow gate,disk_concrete,high,6319,2010.0,45.19999522590536,-110.59998285610777,1500.6182599775493,9e-06,0,9e-06,4e-05,demo 2010",

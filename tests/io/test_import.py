@@ -16,7 +16,7 @@ from registry.errors import PermissionDeniedError
 from registry.models import AuditEvent, Mark, MarkStatus, Position, PositionState
 from registry.services.imports import ImportRejected, mark_import
 
-HEADER = "code,name,monument_type,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,sigma_e_mm,sigma_n_mm,sigma_u_mm,source"
+HEADER = "code,name,monument,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,sigma_e_mm,sigma_n_mm,sigma_u_mm,source"
 GOOD = [
     "TST-001,Willow gate,disk_concrete,7912,2021.5,45.201234567,-110.601234567,1502.3456,4,5,9,demo campaign 2021",
     "TST-002,Creek bolt,bolt_structure,7912,2021.5,45.212345678,-110.589876543,1498.1234,3,3,7,demo campaign 2021",
@@ -98,7 +98,7 @@ def test_duplicate_codes_and_frames_inside_one_file(manager):
         ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,1500,four,4,8,x", "sigma_e_mm", "not_a_number"),
         ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,nan,4,4,8,x", "h_m", "not_a_number"),
         ("tst-009,,disk_rock,,,,,,,,,", "code", "invalid_code"),
-        ("TST-009,,Disk_Rock,,,,,,,,,", "monument_type", "invalid_choice"),
+        ("TST-009,,Disk_Rock,,,,,,,,,", "monument", "invalid_choice"),
         ("TST-009,,disk_rock,7912,2021.5,45.2,-181.0,1500,4,4,8,x", "lon_deg", "out_of_range"),
         ("TST-009,,disk_rock,7912,2021.5,-90.5,-110.6,1500,4,4,8,x", "lat_deg", "out_of_range"),
         ("TST-009,,disk_rock,7912,1850.0,45.2,-110.6,1500,4,4,8,x", "epoch_yr", "out_of_range"),
@@ -227,7 +227,7 @@ POS = {"frame_epsg": 6319, "epoch_yr": 2010.0, "sigma_e_mm": 5, "sigma_n_mm": 5,
 
 def test_geojson_import_and_feature_index_errors(manager):
     good = [
-        feature("GJ-001", [-110.6, 45.2, 1500.25], monument_type="deep_rod", **POS),
+        feature("GJ-001", [-110.6, 45.2, 1500.25], monument="deep_rod", **POS),
         feature("GJ-002", [-110.61, 45.21], h_m=1490.5, **POS),  # 2D coordinates + h_m property
         feature("GJ-003", None, name="no position"),
     ]
@@ -372,7 +372,7 @@ def test_sample_files_behave_as_documented(manager):
         ("line 4", "frame_epsg", "frame_required"),
         ("line 5", "frame_epsg", "invalid_frame"),
         ("line 6", "frame_epsg", "duplicate_frame"),
-        ("line 7", "monument_type", "invalid_choice"),
+        ("line 7", "monument", "invalid_choice"),
         ("line 7", "lon_deg", "out_of_range"),
         ("line 7", "sigma_e_mm", "sigmas_incomplete"),
     ]

@@ -8,6 +8,7 @@ and published positions cannot be deleted, by design). Marks are invented.
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import io
 import json
 import math
@@ -36,8 +37,8 @@ def rich_csv() -> str:
             **base,
             "code": "RT-001",
             "name": 'Quarry "north" pin, east wall',
-            "monument_type": "pin_concrete",
-            "to_reach": "From the mill go 2.4 km north;\nturn right at the gate — 30 m.",
+            "monument": "pin_concrete",
+            "access_directions": "From the mill go 2.4 km north;\nturn right at the gate — 30 m.",
             "notes": "Ünïcode ✓, commas, and\r\nCRLF inside",
             "lat_deg": "45.21345678901234",
             "lon_deg": "-110.6123456789012",
@@ -67,7 +68,7 @@ def rich_csv() -> str:
             "sigma_e_mm": "7",
             "sigma_n_mm": "7",
             "sigma_u_mm": "15",
-            "monument_type": "nail",
+            "monument": "nail",
         }
     )
     w.writerow(
@@ -87,7 +88,7 @@ def rich_csv() -> str:
             "stability": "high",
         }
     )
-    w.writerow({"code": "RT-004", "name": "No position", "custodian": "Corvid County Survey Office"})
+    w.writerow({"code": "RT-004", "name": "No position", "keeper": "Corvid County Survey Office"})
     return out.getvalue()
 
 
@@ -152,16 +153,20 @@ def export_rows(draw):
     values.update(
         code=draw(CODE),
         name=draw(_stripped(120)),
-        monument_type=draw(st.sampled_from(["disk_rock", "deep_rod", "pillar", "nail", "other"])),
-        setting=draw(_stripped(200)),
+        monument=draw(st.sampled_from(["disk_rock", "deep_rod", "pillar", "nail", "other"])),
+        monument_detail=draw(_stripped(200)),
         stability=draw(st.sampled_from(["high", "moderate", "low", "unknown"])),
-        stamping=draw(_stripped(120)),
-        to_reach=draw(_stripped(2000)),
+        marking=draw(_stripped(120)),
+        access_directions=draw(_stripped(2000)),
         sky_view=draw(st.sampled_from(["clear", "partial", "obstructed", "unknown"])),
-        custodian=draw(_stripped(120)),
-        status=draw(st.sampled_from(["active", "retired", "destroyed"])),
+        keeper=draw(_stripped(120)),
+        status=draw(st.sampled_from(["active", "suspect", "retired", "destroyed"])),
+        suspect_reason="",
         notes=draw(_stripped(2000)),
     )
+    if values["status"] == "suspect":
+        values["suspect_since"] = draw(st.dates(dt.date(1900, 1, 1), dt.date(2100, 12, 31))).isoformat()
+        values["suspect_reason"] = draw(_stripped(200))
     if draw(st.booleans()):
         finite = {"allow_nan": False, "allow_infinity": False}
         # Covariance L·Lᵀ with a positive diagonal in L: positive definite by construction.
@@ -197,7 +202,9 @@ def export_rows(draw):
 
 
 def _expected(values):
-    mark = {name: values[name] for name in MARK_FIELDS}
+    mark = {name: values[name] for name in MARK_FIELDS if name != "suspect_since"}
+    if values["suspect_since"] is not None:  # written as YYYY-MM-DD, read as a date; blank is "not given"
+        mark["suspect_since"] = dt.date.fromisoformat(values["suspect_since"])
     if values["frame_epsg"] is None:
         return mark, None
     return mark, {name: values[name] for name in POSITION_MODEL_FIELDS}

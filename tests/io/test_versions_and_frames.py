@@ -218,7 +218,7 @@ def test_rows_without_version_need_overwrite_which_is_audited(seeded, manager):
 
 def test_overwrite_does_not_let_a_stale_version_through(seeded, manager, other_manager):
     old_export = export_marks_text(fmt="csv")
-    mark_update(actor=other_manager, code="VF-002", expected_version=1, changes={"custodian": "Ashby public works"})
+    mark_update(actor=other_manager, code="VF-002", expected_version=1, changes={"keeper": "Ashby public works"})
     with pytest.raises(ImportRejected) as info:
         mark_import(actor=manager, content=old_export, filename="old.csv", update=True, overwrite=True)
     assert [(e.where, e.code) for e in info.value.errors] == [("line 4", "stale_row")]
@@ -280,7 +280,7 @@ def test_page_overwrite_needs_update(client, manager, seeded):
 def test_a_file_ahead_of_the_registry_is_refused_with_its_own_words(seeded, manager):
     """A file from another registry (or an edited version cell) is not 'changed since': it says so."""
     ahead = export_marks_text(fmt="csv").replace(
-        "Gate pin,other,,unknown,,,unknown,,active,,1,", "Gate pin,other,,unknown,,,unknown,,active,,7,"
+        "Gate pin,,other,,,unknown,unknown,,active,,,,1,", "Gate pin,,other,,,unknown,unknown,,active,,,,7,"
     )
     with pytest.raises(ImportRejected) as info:
         mark_import(actor=manager, content=ahead, filename="other.csv", update=True)

@@ -24,7 +24,7 @@ from django.db import connection, transaction
 from geographiclib.geodesic import Geodesic
 
 from registry.errors import InvalidInput
-from registry.models import Condition, Mark, MarkStatus, Position, PositionState, Stability, Visit
+from registry.models import Finding, Mark, MarkStatus, Position, PositionState, Stability, Visit
 from registry.selectors.nearby import marks_near, marks_near_polygon
 
 pytestmark = pytest.mark.django_db
@@ -76,7 +76,7 @@ class World:
         self.codes = [f"M{perm[i]:05d}" for i in range(n)]
         self.lat = lat
         self.lon = lon
-        self.status = rng.choice(MarkStatus.values, n, p=[0.8, 0.1, 0.1])
+        self.status = rng.choice(MarkStatus.values, n, p=[0.7, 0.1, 0.1, 0.1])  # active, suspect, retired, destroyed
         self.stability = rng.choice(Stability.values, n)
         # Published positions: a random subset of frames per mark, with random E/N covariances.
         self.positions: list[tuple[int, int, float, float, float]] = []  # (mark index, frame, ee, en, nn)
@@ -86,11 +86,11 @@ class World:
                     s_e, s_n = rng.uniform(0.002, 0.04, 2)
                     rho = rng.uniform(-0.8, 0.8)
                     self.positions.append((i, frame, s_e**2, rho * s_e * s_n, s_n**2))
-        # Visits: condition and date.
+        # Visits: finding and date.
         self.visits: list[tuple[int, str, dt.date]] = []
         for i in range(n):
             for _ in range(rng.integers(0, 3)):
-                cond = rng.choice(["good", "poor", "disturbed", "not_found"], p=[0.5, 0.2, 0.2, 0.1])
+                cond = rng.choice(["intact", "damaged", "disturbed", "searched_not_found"], p=[0.5, 0.2, 0.2, 0.1])
                 days_ago = int(rng.integers(0, 12 * 365))
                 self.visits.append((i, str(cond), AS_OF - dt.timedelta(days=days_ago)))
         self.with_location = np.ones(n, dtype=bool)
@@ -131,7 +131,7 @@ class World:
             ]
         )
         Visit.objects.bulk_create(
-            [Visit(mark_id=int(self.pk[i]), visited_on=day, condition=cond) for i, cond, day in self.visits]
+            [Visit(mark_id=int(self.pk[i]), visited_on=day, finding=cond) for i, cond, day in self.visits]
         )
         return self
 
@@ -164,9 +164,9 @@ def reference(world: World, lat, lon, radius_m, limit=None, **filters):
     if frame is not None:
         has = {i for i, f, *_ in world.positions if f == frame}
         ok &= np.array([i in has for i in range(n)])
-    if filters.get("good_visit_within_yr") is not None:
-        cutoff = AS_OF - dt.timedelta(days=math.floor(filters["good_visit_within_yr"] * 365.25))
-        has = {i for i, cond, day in world.visits if cond == "good" and day >= cutoff}
+    if filters.get("intact_visit_within_yr") is not None:
+        cutoff = AS_OF - dt.timedelta(days=math.floor(filters["intact_visit_within_yr"] * 365.25))
+        has = {i for i, cond, day in world.visits if cond == "intact" and day >= cutoff}
         ok &= np.array([i in has for i in range(n)])
     acc = filters.get("accuracy_class_max_m")
     if acc is not None:
@@ -213,7 +213,7 @@ def _random_filters(rng):
     if rng.random() < 0.3:
         f["frame_epsg"] = int(rng.choice(FRAMES))
     if rng.random() < 0.3:
-        f["good_visit_within_yr"] = float(rng.choice([1.0, 2.5, 5.0, 10.0]))
+        f["intact_visit_within_yr"] = float(rng.choice([1.0, 2.5, 5.0, 10.0]))
     if rng.random() < 0.3:
         f["accuracy_class_max_m"] = float(rng.choice([0.01, 0.02, 0.05]))
     return f
@@ -328,8 +328,8 @@ def small_district():
     pos("COARSE1", 7912, 0.030, 0.0)
     for code in marks:
         day = {"OLDVISIT1": dt.date(2015, 6, 1)}.get(code, dt.date(2025, 6, 1))
-        cond = Condition.POOR if code == "POORVISIT1" else Condition.GOOD
-        Visit.objects.create(mark=marks[code], visited_on=day, condition=cond)
+        cond = Finding.DAMAGED if code == "POORVISIT1" else Finding.INTACT
+        Visit.objects.create(mark=marks[code], visited_on=day, finding=cond)
     # EDGE1's only good visit is exactly 5 × 365.25 days (floored: 1826) before AS_OF.
     Visit.objects.filter(mark=marks["EDGE1"]).update(visited_on=AS_OF - dt.timedelta(days=1826))
     return marks
@@ -346,10 +346,10 @@ def test_each_filter_excludes_what_it_should(small_district, path):
     assert "RETIRED1" not in _codes(path=path, status="active")
     assert _codes(path=path, status=["retired"]) == ["RETIRED1"]
     assert "LOWSTAB1" not in _codes(path=path, stability=["high", "moderate"])
-    recent = _codes(path=path, good_visit_within_yr=5)
-    assert "OLDVISIT1" not in recent and "POORVISIT1" not in recent  # 'poor' does not count as good
+    recent = _codes(path=path, intact_visit_within_yr=5)
+    assert "OLDVISIT1" not in recent and "POORVISIT1" not in recent  # 'damaged' does not count as intact
     assert "EDGE1" in recent  # the cut-off day itself counts
-    assert "EDGE1" not in _codes(path=path, good_visit_within_yr=4.999)
+    assert "EDGE1" not in _codes(path=path, intact_visit_within_yr=4.999)
     assert "NAD83ONLY1" not in _codes(path=path, frame_epsg=7912)
     assert _codes(path=path, frame_epsg=6319) == ["NAD83ONLY1"]
     # r95 of 24.508 mm passes 25 mm, fails 24.5 mm; COARSE1's 58.824 mm fails both.
@@ -362,7 +362,12 @@ def test_each_filter_excludes_what_it_should(small_district, path):
     assert "NAD83ONLY1" in _codes(path=path, accuracy_class_max_m=0.02)
     assert "NAD83ONLY1" not in _codes(path=path, accuracy_class_max_m=0.02, frame_epsg=7912)
     assert _codes(
-        path=path, status="active", stability="high", good_visit_within_yr=5, frame_epsg=7912, accuracy_class_max_m=0.05
+        path=path,
+        status="active",
+        stability="high",
+        intact_visit_within_yr=5,
+        frame_epsg=7912,
+        accuracy_class_max_m=0.05,
     ) == ["GOOD1", "EDGE1"]
 
 
@@ -472,7 +477,7 @@ def test_polygon_limit_and_bad_polygons():
         ({"limit": 0}, "out_of_range"),
         ({"status": "lost"}, "invalid_choice"),
         ({"stability": ["high", "granite"]}, "invalid_choice"),
-        ({"good_visit_within_yr": -1}, "out_of_range"),
+        ({"intact_visit_within_yr": -1}, "out_of_range"),
         ({"accuracy_class_max_m": 0}, "out_of_range"),
         ({"frame_epsg": "ITRF"}, "invalid_number"),
         ({"path": "fastest"}, "invalid_choice"),

@@ -71,7 +71,7 @@ def test_every_service_call_writes_exactly_one_row_per_change(manager, technicia
     q = step(position_propose, actor=technician, mark_code="QR-101", data=position_data(epoch_yr=2024.0))
     step(position_reject, actor=manager, position_id=q.pk, note="float only")
     step(position_withdraw, actor=manager, position_id=p.pk, note="blunder")
-    step(visit_record, actor=technician, mark_code="QR-101", data={"visited_on": "2024-05-01", "condition": "good"})
+    step(visit_record, actor=technician, mark_code="QR-101", data={"visited_on": "2024-05-01", "finding": "intact"})
     step(
         occupation_record,
         actor=technician,

@@ -49,23 +49,23 @@ def test_visit_is_recorded_and_audited(mark, technician):
     visit = visit_record(
         actor=technician,
         mark_code="QR-101",
-        data={"visited_on": "2024-05-01", "condition": "disturbed", "notes": "Tilted"},
+        data={"visited_on": "2024-05-01", "finding": "destroyed", "notes": "Gone under new pavement"},
     )
-    assert visit.visited_on == dt.date(2024, 5, 1) and visit.condition == "disturbed"
+    assert visit.visited_on == dt.date(2024, 5, 1) and visit.finding == "destroyed"
     event = AuditEvent.objects.get(action="visit_record")
     assert event.after["visited_on"] == "2024-05-01" and event.mark_id == mark.pk
     mark.refresh_from_db()
-    assert mark.status == "active"  # a visit report does not change the status by itself
+    assert mark.status == "active"  # a destroyed report does not change the status by itself: the manager decides
 
 
 @pytest.mark.parametrize(
     ("data", "field", "code"),
     [
-        ({"visited_on": "2024-13-01", "condition": "good"}, "visited_on", "invalid_date"),
-        ({"condition": "good"}, "visited_on", "required"),
-        ({"visited_on": "2024-05-01", "condition": "lost"}, "condition", "invalid_choice"),
-        ({"visited_on": "2024-05-01"}, "condition", "required"),
-        ({"visited_on": "2024-05-01", "condition": "good", "weather": "rain"}, "weather", "unknown_field"),
+        ({"visited_on": "2024-13-01", "finding": "intact"}, "visited_on", "invalid_date"),
+        ({"finding": "intact"}, "visited_on", "required"),
+        ({"visited_on": "2024-05-01", "finding": "lost"}, "finding", "invalid_choice"),
+        ({"visited_on": "2024-05-01"}, "finding", "required"),
+        ({"visited_on": "2024-05-01", "finding": "intact", "weather": "rain"}, "weather", "unknown_field"),
     ],
 )
 def test_visit_rejects_bad_input(mark, technician, data, field, code):
@@ -78,12 +78,12 @@ def test_visit_rejects_bad_input(mark, technician, data, field, code):
 def test_visit_cannot_be_in_the_future(mark, technician):
     tomorrow = (timezone.now() + dt.timedelta(days=2)).date().isoformat()
     with pytest.raises(ValidationError) as info:
-        visit_record(actor=technician, mark_code="QR-101", data={"visited_on": tomorrow, "condition": "good"})
+        visit_record(actor=technician, mark_code="QR-101", data={"visited_on": tomorrow, "finding": "intact"})
     assert codes_of(info.value) == {"visited_on": ["date_in_future"]}
 
 
 def test_visit_roles(mark, viewer, signatory, make_user):
-    data = {"visited_on": "2024-05-01", "condition": "good"}
+    data = {"visited_on": "2024-05-01", "finding": "intact"}
     for user in (viewer, signatory):
         with pytest.raises(PermissionDeniedError):
             visit_record(actor=user, mark_code="QR-101", data=data)
@@ -251,7 +251,7 @@ def test_attachment_refusals(mark, technician, media, content, kind, field, code
 def test_attachment_link_must_belong_to_the_mark(mark, manager, technician, media):
     make_mark(manager, code="QR-102")
     other_visit = visit_record(
-        actor=technician, mark_code="QR-102", data={"visited_on": "2024-05-01", "condition": "good"}
+        actor=technician, mark_code="QR-102", data={"visited_on": "2024-05-01", "finding": "intact"}
     )
     with pytest.raises(ValidationError) as info:
         attachment_add(

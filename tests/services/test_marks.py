@@ -21,7 +21,7 @@ def codes_of(exc: ValidationError) -> dict[str, list[str]]:
 
 
 def test_create_stores_the_mark_and_one_audit_row(manager):
-    mark = mark_create(actor=manager, data={"code": "QR-101", "name": " Quarry Ridge ", "monument_type": "disk_rock"})
+    mark = mark_create(actor=manager, data={"code": "QR-101", "name": " Quarry Ridge ", "monument": "disk_rock"})
     assert mark.pk and mark.version == 1 and mark.name == "Quarry Ridge"
     event = AuditEvent.objects.get()
     assert (event.action, event.actor, event.mark_id, event.object_id) == (

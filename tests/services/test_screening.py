@@ -15,7 +15,7 @@ from django.core.exceptions import ValidationError
 from pyproj import Geod
 
 from registry.errors import NotFound
-from registry.models import Condition, Job, Mark, MarkStatus, Position, PositionState, SkyView, Visit
+from registry.models import Finding, Job, Mark, MarkStatus, Position, PositionState, SkyView, Visit
 from registry.services.screening import job_screen, site_screen
 
 AS_OF = dt.date(2025, 7, 1)
@@ -36,7 +36,7 @@ def make_mark(
     *,
     status=MarkStatus.ACTIVE,
     sky=SkyView.CLEAR,
-    visits=(("2024-06-01", "good"),),
+    visits=(("2024-06-01", "intact"),),
     frame=6319,
     epoch=2025.5,
     sigma_h_mm=3.0,
@@ -73,7 +73,7 @@ def make_mark(
             **extra,
         )
     for day, cond in visits:
-        Visit.objects.create(mark=mark, visited_on=dt.date.fromisoformat(day), condition=cond)
+        Visit.objects.create(mark=mark, visited_on=dt.date.fromisoformat(day), finding=cond)
     return mark
 
 
@@ -131,10 +131,10 @@ def test_every_exclusion_is_listed_with_its_reason(viewer):
     make_mark("OK-1", 800.0, 10.0)
     make_mark("OK-2", 1500.0, 120.0)
     make_mark("RT-1", 900.0, 20.0, status=MarkStatus.RETIRED)
-    make_mark("DS-1", 900.0, 30.0, visits=(("2020-01-01", "good"), ("2024-05-01", Condition.DISTURBED)))
-    make_mark("DT-1", 900.0, 40.0, visits=(("2020-01-01", "good"), ("2024-05-01", Condition.DESTROYED)))
-    make_mark("NF-1", 900.0, 50.0, visits=(("2020-01-01", "good"), ("2024-05-01", Condition.NOT_FOUND)))
-    make_mark("OL-1", 900.0, 60.0, visits=(("2013-01-01", "good"), ("2024-05-01", Condition.POOR)))
+    make_mark("DS-1", 900.0, 30.0, visits=(("2020-01-01", "intact"), ("2024-05-01", Finding.DISTURBED)))
+    make_mark("DT-1", 900.0, 40.0, visits=(("2020-01-01", "intact"), ("2024-05-01", Finding.DESTROYED)))
+    make_mark("NF-1", 900.0, 50.0, visits=(("2020-01-01", "intact"), ("2024-05-01", Finding.SEARCHED_NOT_FOUND)))
+    make_mark("OL-1", 900.0, 60.0, visits=(("2013-01-01", "intact"), ("2024-05-01", Finding.DAMAGED)))
     make_mark("NP-1", 900.0, 70.0, state=PositionState.WITHDRAWN)
     make_mark("FR-1", 900.0, 80.0, frame=4959)  # NZGD2000: only a ballpark route to NAD83(2011), refused
     make_mark("SK-1", 900.0, 90.0, sky=SkyView.OBSTRUCTED)
@@ -163,7 +163,7 @@ def test_every_exclusion_is_listed_with_its_reason(viewer):
     assert rows["FR-1"]["reasons"][0]["words"].startswith("its published frame cannot")
     assert rows["NP-1"]["horizontal_95_mm"] is None
     # A visit after the as-of date is ignored (screening "as of" a date is reproducible).
-    Visit.objects.create(mark=Mark.objects.get(code="OK-1"), visited_on=dt.date(2025, 8, 1), condition="destroyed")
+    Visit.objects.create(mark=Mark.objects.get(code="OK-1"), visited_on=dt.date(2025, 8, 1), finding="destroyed")
     assert by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))["OK-1"].reasons == []
 
 

@@ -49,7 +49,7 @@ def many_marks(roles):
                 Mark(
                     code=f"{prefix}-{i:04d}",
                     name=f"Pager {i}",
-                    custodian="Alder County Roads" if i % 2 else "",
+                    keeper="Alder County Roads" if i % 2 else "",
                     **fields,
                 )
                 for i in range(1, n + 1)

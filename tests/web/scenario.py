@@ -57,13 +57,13 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
         data={
             "code": "KV-001",
             "name": "Kestrel Ridge",
-            "monument_type": "disk_rock",
-            "setting": "Bronze disk cemented in a drill hole in granite outcrop",
+            "monument": "disk_rock",
+            "monument_detail": "Bronze disk cemented in a drill hole in granite outcrop",
             "stability": "high",
-            "stamping": "KESTREL RIDGE 2009",
-            "to_reach": "From the Mill Creek road bridge go 2.4 km north on the ranch track to the gate; the outcrop is 40 m east.",
+            "marking": "KESTREL RIDGE 2009",
+            "access_directions": "From the Mill Creek road bridge go 2.4 km north on the ranch track to the gate; the outcrop is 40 m east.",
             "sky_view": "clear",
-            "custodian": "Kestrel Valley Survey Office",
+            "keeper": "Kestrel Valley Survey Office",
         },
     )
     bridge = mark_create(
@@ -71,15 +71,15 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
         data={
             "code": "KV-002",
             "name": "Mill Creek Bridge",
-            "monument_type": "bolt_structure",
-            "stamping": "MC BR 1998",
-            "custodian": "Alder County Roads",
+            "monument": "bolt_structure",
+            "marking": "MC BR 1998",
+            "keeper": "Alder County Roads",
             "sky_view": "partial",
         },
     )
     quarry = mark_create(
         actor=manager,
-        data={"code": "HW-07", "name": "Old Quarry", "monument_type": "iron_pipe", "custodian": "Hawthorn Township"},
+        data={"code": "HW-07", "name": "Old Quarry", "monument": "iron_pipe", "keeper": "Hawthorn Township"},
     )
     quarry = mark_set_status(
         actor=manager, code="HW-07", status="retired", expected_version=1, note="Quarry reopened; mark inaccessible."
@@ -131,9 +131,9 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
         mark_code="KV-001",
         data={
             "visited_on": "2024-04-18",
-            "condition": "good",
+            "finding": "intact",
             "visitor": "T. Field (invented)",
-            "notes": "Disk clean, stamping legible.",
+            "notes": "Disk clean, marking legible.",
         },
     )
     occupation = occupation_record(
@@ -168,7 +168,7 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
         occupation_id=occupation.pk,
     )
     ridge = mark_update(
-        actor=manager, code="KV-001", expected_version=1, changes={"custodian": "Kestrel Valley Survey Office, Room 4"}
+        actor=manager, code="KV-001", expected_version=1, changes={"keeper": "Kestrel Valley Survey Office, Room 4"}
     )
     ridge.refresh_from_db()
     bridge.refresh_from_db()
@@ -191,13 +191,13 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
 
 # Invented neighbours of the Kestrel Valley marks, for a list that looks like a working registry.
 NEIGHBOURS = [
-    ("KV-003", "Heron Point", "deep_rod", "Kestrel Valley Survey Office", 45.2213, -110.5877, "good"),
-    ("KV-004", "Granary Corner", "disk_concrete", "Alder County Roads", 45.1932, -110.6121, "poor"),
-    ("KV-005", "Larkspur Tank", "bolt_structure", "Larkspur Water Co-op", 45.2377, -110.6415, "good"),
+    ("KV-003", "Heron Point", "deep_rod", "Kestrel Valley Survey Office", 45.2213, -110.5877, "intact"),
+    ("KV-004", "Granary Corner", "disk_concrete", "Alder County Roads", 45.1932, -110.6121, "damaged"),
+    ("KV-005", "Larkspur Tank", "bolt_structure", "Larkspur Water Co-op", 45.2377, -110.6415, "intact"),
     ("KV-006", "Schoolhouse Flat", "pin_concrete", "Kestrel Valley Survey Office", 45.1788, -110.5702, "disturbed"),
     ("KV-007", "Wren Gulch", "disk_rock", "Kestrel Valley Survey Office", 45.2541, -110.5519, None),
-    ("KV-008", "Saddle Pillar", "pillar", "Kestrel Valley Survey Office", 45.2104, -110.6633, "good"),
-    ("AC-101", "County Yard", "disk_concrete", "Alder County Roads", 45.1650, -110.6248, "not_found"),
+    ("KV-008", "Saddle Pillar", "pillar", "Kestrel Valley Survey Office", 45.2104, -110.6633, "intact"),
+    ("AC-101", "County Yard", "disk_concrete", "Alder County Roads", 45.1650, -110.6248, "searched_not_found"),
     ("AC-102", "Ferry Landing", "iron_pipe", "Alder County Roads", 45.1519, -110.5934, None),
 ]
 
@@ -208,15 +208,15 @@ def build_neighbours(manager, technician):
     from registry.services.marks import mark_create
     from registry.services.positions import position_propose, position_publish
 
-    for i, (code, name, monument, custodian, lat, lon, condition) in enumerate(NEIGHBOURS):
+    for i, (code, name, monument, keeper, lat, lon, finding) in enumerate(NEIGHBOURS):
         mark_create(
             actor=manager,
             data={
                 "code": code,
                 "name": name,
-                "monument_type": monument,
-                "custodian": custodian,
-                "stamping": f"{code} 2012",
+                "monument": monument,
+                "keeper": keeper,
+                "marking": f"{code} 2012",
             },
         )
         p = position_propose(
@@ -233,9 +233,9 @@ def build_neighbours(manager, technician):
             ),
         )
         position_publish(actor=manager, position_id=p.pk)
-        if condition:
+        if finding:
             visit_record(
-                actor=technician, mark_code=code, data={"visited_on": f"2023-0{1 + i % 9}-15", "condition": condition}
+                actor=technician, mark_code=code, data={"visited_on": f"2023-0{1 + i % 9}-15", "finding": finding}
             )
 
 

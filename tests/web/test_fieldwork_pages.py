@@ -58,7 +58,7 @@ def test_status_page_only_for_managers(request, kestrel, signed_in, role):
 @pytest.mark.django_db
 def test_anonymous_post_is_sent_to_sign_in_and_changes_nothing(kestrel, client):
     before = _counts()
-    response = client.post(reverse("web:visit-create", kwargs={"code": "KV-001"}), {"condition": "good"})
+    response = client.post(reverse("web:visit-create", kwargs={"code": "KV-001"}), {"finding": "intact"})
     assert response.status_code == 302
     assert _counts() == before
 
@@ -67,7 +67,7 @@ def test_anonymous_post_is_sent_to_sign_in_and_changes_nothing(kestrel, client):
 def test_viewer_post_changes_nothing(kestrel, signed_in, viewer):
     before = _counts()
     response = signed_in(viewer).post(
-        reverse("web:visit-create", kwargs={"code": "KV-001"}), {"visited_on": "2024-05-01", "condition": "good"}
+        reverse("web:visit-create", kwargs={"code": "KV-001"}), {"visited_on": "2024-05-01", "finding": "intact"}
     )
     assert response.status_code == 403
     assert _counts() == before
@@ -89,7 +89,7 @@ def test_visit_with_two_photos(kestrel, signed_in, technician, media_root):
         reverse("web:visit-create", kwargs={"code": "KV-001"}),
         {
             "visited_on": "2024-06-02",
-            "condition": "poor",
+            "finding": "damaged",
             "visitor": "Crew 3 (invented)",
             "notes": "Disk bent.",
             "photos": photos,
@@ -97,7 +97,7 @@ def test_visit_with_two_photos(kestrel, signed_in, technician, media_root):
     )
     assert response.status_code == 302, response.content.decode()[:2000]
     visit = Visit.objects.get(mark__code="KV-001", visited_on="2024-06-02")
-    assert visit.condition == "poor" and visit.created_by == technician
+    assert visit.finding == "damaged" and visit.created_by == technician
     attachments = list(visit.attachments.order_by("original_name"))
     assert [a.original_name for a in attachments] == ["north.png", "south.png"]
     assert all(a.kind == "photo" for a in attachments)
@@ -112,9 +112,9 @@ def test_visit_with_two_photos(kestrel, signed_in, technician, media_root):
 @pytest.mark.parametrize(
     "data,field,code_text",
     [
-        ({"visited_on": "2999-01-01", "condition": "good"}, "visited_on", b"future"),
-        ({"visited_on": "not a date", "condition": "good"}, "visited_on", b"valid date"),
-        ({"visited_on": "2024-01-01", "condition": "lost"}, "condition", b"valid choice"),
+        ({"visited_on": "2999-01-01", "finding": "intact"}, "visited_on", b"future"),
+        ({"visited_on": "not a date", "finding": "intact"}, "visited_on", b"valid date"),
+        ({"visited_on": "2024-01-01", "finding": "lost"}, "finding", b"valid choice"),
     ],
 )
 def test_visit_bad_input_changes_nothing(kestrel, signed_in, technician, data, field, code_text):
@@ -133,7 +133,7 @@ def test_visit_with_an_empty_photo_saves_nothing(kestrel, signed_in, technician,
         reverse("web:visit-create", kwargs={"code": "KV-001"}),
         {
             "visited_on": "2024-06-02",
-            "condition": "good",
+            "finding": "intact",
             "photos": [SimpleUploadedFile("ok.png", tiny_png()), SimpleUploadedFile("empty.png", b"")],
         },
     )
@@ -151,7 +151,7 @@ def test_visit_with_a_too_large_photo_saves_nothing(kestrel, signed_in, technici
         reverse("web:visit-create", kwargs={"code": "KV-001"}),
         {
             "visited_on": "2024-06-02",
-            "condition": "good",
+            "finding": "intact",
             # the first file is fine and gets stored before the second is refused: it must be removed again
             "photos": [SimpleUploadedFile("small.png", b"x" * 50), SimpleUploadedFile("big.png", b"x" * 101)],
         },

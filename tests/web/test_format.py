@@ -123,9 +123,16 @@ def test_filters_in_a_template():
     template = Template(
         "{% load registry_format %}{{ lat|lat_dms }}|{{ lat|deg9 }}|{{ none|m3 }}|{{ s|state }}|{{ c|state }}|{{ e|epoch }}"
     )
-    out = template.render(Context({"lat": 45.2, "none": None, "s": "superseded", "c": "not_found", "e": 2010.0}))
+    out = template.render(
+        Context({"lat": 45.2, "none": None, "s": "superseded", "c": "searched_not_found", "e": 2010.0})
+    )
     assert out == (
         "45°12′00.00000″ N|45.200000000|—|"
         '<span class="state state-superseded">superseded</span>|'
-        '<span class="state state-not_found">not found</span>|2010.000 (2010-01-01)'
+        '<span class="state state-searched_not_found">searched, not found</span>|2010.000 (2010-01-01)'
     )
+
+
+def test_the_suspect_badge_is_a_word_with_the_whole_label_as_its_title():
+    out = Template("{% load registry_format %}{{ s|state }}").render(Context({"s": "suspect"}))
+    assert out == '<span class="state state-suspect" title="suspect — awaiting re-observation">suspect</span>'

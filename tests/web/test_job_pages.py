@@ -54,7 +54,7 @@ def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
     assert 'Excluded marks: <span class="num">2</span>' in excluded
     assert 'not_active <span class="num">1</span>' in excluded and "sky_obstructed" in excluded
     assert 'data-code="OLD-1"' in excluded and 'data-code="SKY-1"' in excluded
-    assert "the mark is not active (retired or destroyed)" in excluded
+    assert "the mark is not active (retired, destroyed or suspect)" in excluded
     assert "<details open" not in body  # collapsed: readable without JavaScript, one click to open
     assert "Local codes, agency specifications and licensed professional practice govern" in body
     assert "/jobs/J-WEB/control.csv" in body and "/jobs/J-WEB/control.geojson" in body
@@ -66,7 +66,7 @@ def test_long_candidate_lists_fold_into_details(client, viewer, db):
     """30 usable marks: the top 25 are shown, the other 5 behind "show all"; nothing is lost."""
     for i in range(30):
         make_mark(f"M-{i:02d}", 300.0 + 60.0 * i, 12.0 * i)
-    make_mark("GONE-1", 500.0, 200.0, visits=(("2024-06-01", "good"), ("2025-03-01", "destroyed")))
+    make_mark("GONE-1", 500.0, 200.0, visits=(("2024-06-01", "intact"), ("2025-03-01", "destroyed")))
     make_job(code="J-MANY", site={"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}, tol_h_mm=30.0, tol_v_mm=50.0)
     client.force_login(viewer)
     body = client.get("/jobs/J-MANY/").content.decode()
@@ -253,7 +253,7 @@ def test_any_audited_write_invalidates_the_cached_screening(client, viewer, tech
         visit_record(
             actor=technician,
             mark_code="BASE-N",
-            data={"visited_on": dt.date.today().isoformat(), "condition": "destroyed"},
+            data={"visited_on": dt.date.today().isoformat(), "finding": "destroyed"},
         )
         after = client.get("/jobs/J-WEB/").content.decode()
         assert spy.call_count == 2

@@ -54,18 +54,18 @@ def test_manager_creates_a_mark(signed_in, manager):
         {
             "code": "KV-050",
             "name": "Heron Point",
-            "monument_type": "deep_rod",
+            "monument": "deep_rod",
             "stability": "high",
             "sky_view": "clear",
-            "stamping": "KV 050 2024",
-            "custodian": "Kestrel Valley Survey Office",
-            "to_reach": "End of Heron Lane, 15 m west of the gate.",
+            "marking": "KV 050 2024",
+            "keeper": "Kestrel Valley Survey Office",
+            "access_directions": "End of Heron Lane, 15 m west of the gate.",
         },
     )
     assert response.status_code == 302
     assert response["Location"] == reverse("web:mark-detail", kwargs={"code": "KV-050"})
     mark = Mark.objects.get(code="KV-050")
-    assert (mark.name, mark.monument_type, mark.version, mark.status) == ("Heron Point", "deep_rod", 1, "active")
+    assert (mark.name, mark.monument, mark.version, mark.status) == ("Heron Point", "deep_rod", 1, "active")
     event = AuditEvent.objects.get(action="mark_create", mark=mark)
     assert event.actor == manager
     page = client.get(response["Location"])
@@ -79,14 +79,14 @@ def test_manager_creates_a_mark(signed_in, manager):
         ({"code": "kv 50"}, "code", "capital letters, digits"),  # the model's invalid_code
         ({"code": ""}, "code", "This field is required."),
         ({"code": "KV-002"}, "code", "already exists"),  # unique
-        ({"code": "KV-051", "monument_type": "cairn"}, "monument_type", "Select a valid choice."),
+        ({"code": "KV-051", "monument": "cairn"}, "monument", "Select a valid choice."),
         ({"code": "KV-051", "name": "x" * 121}, "name", "at most 120 characters"),
     ],
 )
 def test_create_shows_errors_per_field_and_stores_nothing(kestrel, signed_in, manager, data, field, message):
     before = Mark.objects.count()
     audit_before = AuditEvent.objects.count()
-    payload = {"monument_type": "other", "stability": "unknown", "sky_view": "unknown", **data}
+    payload = {"monument": "other", "stability": "unknown", "sky_view": "unknown", **data}
     response = signed_in(manager).post(CREATE, payload)
     assert response.status_code == 200
     html = response.content.decode()
@@ -146,13 +146,13 @@ def test_saving_unchanged_values_changes_nothing(kestrel, signed_in, manager):
 def test_edit_validation_error_is_shown_and_nothing_changes(kestrel, signed_in, manager):
     client = signed_in(manager)
     values = form_values(client.get(edit_url("KV-002")))
-    values["stamping"] = "S" * 121
+    values["marking"] = "S" * 121
     values["name"] = "Should not be stored"
     stored = Mark.objects.filter(code="KV-002").values().get()
     response = client.post(edit_url("KV-002"), values)
     assert response.status_code == 200
     html = response.content.decode()
-    assert re.search(r'id="id_stamping_errors">.*?at most 120 characters', html, flags=re.S)
+    assert re.search(r'id="id_marking_errors">.*?at most 120 characters', html, flags=re.S)
     assert 'value="Should not be stored"' in html  # the entry is kept in the form
     assert Mark.objects.filter(code="KV-002").values().get() == stored
 
@@ -175,11 +175,11 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
     client = signed_in(manager)
     values = form_values(client.get(edit_url("KV-002")))  # loaded at version 1
     colleague = make_user("marta", "manager")
-    mark_update(actor=colleague, code="KV-002", expected_version=1, changes={"custodian": "Alder County Bridges Unit"})
+    mark_update(actor=colleague, code="KV-002", expected_version=1, changes={"keeper": "Alder County Bridges Unit"})
     stored = Mark.objects.filter(code="KV-002").values().get()
     audit_before = AuditEvent.objects.filter(action="mark_update").count()
 
-    values["name"] = "Mill Creek Bridge (north rail)"  # my own change; custodian still holds the old value
+    values["name"] = "Mill Creek Bridge (north rail)"  # my own change; keeper still holds the old value
     response = client.post(edit_url("KV-002"), values)
 
     assert response.status_code == 409
@@ -199,8 +199,8 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
             flags=re.S,
         )
     }
-    assert rows["Custodian"][:2] == ("Alder County Roads", "Alder County Bridges Unit")
-    assert "marta" in rows["Custodian"][2] and "UTC" in rows["Custodian"][2]
+    assert rows["Keeper"][:2] == ("Alder County Roads", "Alder County Bridges Unit")
+    assert "marta" in rows["Keeper"][2] and "UTC" in rows["Keeper"][2]
     assert rows["Name"][:2] == ("Mill Creek Bridge (north rail)", "Mill Creek Bridge")
     # the form keeps what I entered and now carries the stored version
     again = form_values(response)
@@ -208,11 +208,11 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
     assert again["version"] == "2"
 
     # A deliberate second save, after reading the comparison, is checked against version 2.
-    again["custodian"] = "Alder County Bridges Unit"  # keep the colleague's value
+    again["keeper"] = "Alder County Bridges Unit"  # keep the colleague's value
     saved = client.post(edit_url("KV-002"), again)
     assert saved.status_code == 302
     mark = Mark.objects.get(code="KV-002")
-    assert (mark.name, mark.custodian, mark.version) == (
+    assert (mark.name, mark.keeper, mark.version) == (
         "Mill Creek Bridge (north rail)",
         "Alder County Bridges Unit",
         3,
@@ -225,9 +225,9 @@ def test_stale_save_of_an_untouched_form_is_still_refused(kestrel, signed_in, ma
     client = signed_in(manager)
     values = form_values(client.get(edit_url("KV-002")))
     mark_update(actor=make_user("marta", "manager"), code="KV-002", expected_version=1, changes={"sky_view": "clear"})
-    values["stamping"] = "MC BR 1998 (worn)"
+    values["marking"] = "MC BR 1998 (worn)"
     response = client.post(edit_url("KV-002"), values)
     assert response.status_code == 409
     mark = Mark.objects.get(code="KV-002")
-    assert (mark.sky_view, mark.stamping, mark.version) == ("clear", "MC BR 1998", 2)
+    assert (mark.sky_view, mark.marking, mark.version) == ("clear", "MC BR 1998", 2)
     assert "clear" in text_of(response) and "partly obstructed" in text_of(response)  # choice labels, not codes

@@ -73,8 +73,8 @@ def test_point_only_link_searches_with_the_defaults(kestrel, signed_in, viewer):
 def test_filters(kestrel, signed_in, viewer):
     client = signed_in(viewer)
     base = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10"}
-    page = client.get(URL, {**base, "good_visit_within_yr": "50"}).content.decode()
-    assert "1 mark within" in page and "KV-001" in page  # only KV-001 was found in good condition
+    page = client.get(URL, {**base, "intact_visit_within_yr": "50"}).content.decode()
+    assert "1 mark within" in page and "KV-001" in page  # only KV-001 was found intact
     page = client.get(URL, {**base, "stability": "high"}).content.decode()
     assert "1 mark within" in page and "KV-001" in page
     page = client.get(URL, {**base, "status": "retired"}).content.decode()

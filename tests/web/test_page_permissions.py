@@ -69,11 +69,11 @@ def test_refused_writes_change_nothing(request, kestrel, signed_in, role):
     before_audit = AuditEvent.objects.count()
     created = client.post(
         reverse("web:mark-create"),
-        {"code": "KV-999", "name": "Sneaky", "monument_type": "other", "stability": "unknown", "sky_view": "unknown"},
+        {"code": "KV-999", "name": "Sneaky", "monument": "other", "stability": "unknown", "sky_view": "unknown"},
     )
     edited = client.post(
         reverse("web:mark-edit", kwargs={"code": "KV-002"}),
-        {"name": "Renamed", "monument_type": "other", "stability": "unknown", "sky_view": "unknown", "version": "1"},
+        {"name": "Renamed", "monument": "other", "stability": "unknown", "sky_view": "unknown", "version": "1"},
     )
     expected = 302 if role == "anonymous" else 403
     assert created.status_code == expected

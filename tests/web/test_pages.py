@@ -33,8 +33,8 @@ def text_of(response) -> str:
         ({"q": "creek"}, []),  # not a prefix of code or name
         ({"q": "creek", "match": "contains"}, ["KV-002"]),
         ({"q": "01", "match": "contains"}, ["KV-001"]),
-        ({"text": "alder"}, ["KV-002"]),  # custodian
-        ({"text": "ridge 2009"}, ["KV-001"]),  # every word, stamping and name
+        ({"text": "alder"}, ["KV-002"]),  # keeper
+        ({"text": "ridge 2009"}, ["KV-001"]),  # every word, marking and name
         ({"text": "ridge"}, ["KV-001", "KV-002"]),  # "Kestrel Ridge", "Mill Creek Bridge"
         ({"text": "kestrel alder"}, []),
         ({"text": "township"}, ["HW-07"]),
@@ -67,7 +67,7 @@ def test_list_shows_search_location_with_its_frame_and_epoch(kestrel, signed_in,
     html = response.content.decode()
     assert '<td class="num">45.200000123</td>' in html  # right-aligned, tabular digits
     assert '<span class="state state-active">active</span>' in html  # word first, colour class second
-    assert "2024-04-18" in text and "good" in text  # last visit
+    assert "2024-04-18" in text and "intact" in text  # last visit
 
 
 @pytest.mark.django_db
@@ -94,7 +94,7 @@ def test_counts_by_status_and_total(kestrel, signed_in, viewer):
 
 @pytest.mark.django_db
 def test_pagination_50_per_page_keeps_the_filters(many_marks, signed_in, viewer):
-    many_marks(120, "PG")  # odd numbers have custodian "Alder County Roads": 60 of them
+    many_marks(120, "PG")  # odd numbers have keeper "Alder County Roads": 60 of them
     client = signed_in(viewer)
     first = client.get(LIST, {"q": "pg", "text": "alder"})
     assert len(codes_on(first)) == 50
@@ -183,7 +183,7 @@ def test_mark_page_heights_fieldwork_files_history(kestrel, signed_in, viewer):
     assert "12.0" in text  # σ 0.012 m in mm
     assert "static GNSS" in text and "2020-07-01 15:00:00 UTC" in text and "1.500" in text
     assert f'href="#position-{kestrel["second"].pk}"' in html  # occupation result → its position
-    assert "T. Field (invented)" in text and "Disk clean, stamping legible." in text
+    assert "T. Field (invented)" in text and "Disk clean, marking legible." in text
     photo = kestrel["photo"]
     assert f'<img src="{photo.file.url}"' in html
     assert photo.sha256 in html and kestrel["rinex"].sha256 in html
@@ -214,9 +214,9 @@ def test_mark_page_query_count_is_fixed(kestrel, signed_in, viewer, technician):
         client.get(url)
     for day in range(1, 11):
         visit_record(
-            actor=technician, mark_code="KV-001", data={"visited_on": f"2023-05-{day:02d}", "condition": "good"}
+            actor=technician, mark_code="KV-001", data={"visited_on": f"2023-05-{day:02d}", "finding": "intact"}
         )
     with CaptureQueriesContext(connection) as after:
         response = client.get(url)
-    assert response.content.count(b"state-good") >= 11
+    assert response.content.count(b"state-intact") >= 11
     assert len(after) == len(before)

@@ -4,7 +4,9 @@ The scenario comes from ``fixtures_demo/district.py`` (deterministic, seeded; se
 Loading is all or nothing, in one transaction, with bulk inserts for speed; the database's own
 constraints (one published position per mark and frame, ranges, frozen published positions) still apply
 to every row. Audit rows: one ``demo_load`` event, plus one ``mark_create`` and one ``job_create`` per
-mark and job.
+mark and job. Last, the suspect-mark rule is applied to the loaded visits (``services.suspect``, as
+migration 0006 does for an existing registry): each active mark whose latest disturbed or not-found visit
+is not older than its newest published position becomes suspect, with a ``mark_make_suspect`` row.
 
 Running it again when the demo is loaded changes nothing and prints the demo users again. If marks with
 the demo's codes (or the demo's user names) exist but were not loaded by this command, it refuses.
@@ -45,6 +47,7 @@ from registry.models import (
 from registry.models.marks import position_history_delete_allowed
 from registry.roles import ensure_roles
 from registry.services.audit import snapshot
+from registry.services.suspect import suspects_from_history
 
 REGISTRY_START = dt.datetime(2011, 6, 1, tzinfo=dt.UTC)
 #: The demo signatory's invented licence (printed in the signature box of what she signs).
@@ -143,13 +146,13 @@ class Command(BaseCommand):
                 Mark(
                     code=m.code,
                     name=m.name,
-                    monument_type=m.monument_type,
-                    setting=m.setting,
+                    access_directions=m.access_directions,
+                    monument=m.monument,
+                    monument_detail=m.monument_detail,
+                    marking=m.marking,
                     stability=m.stability,
-                    stamping=m.stamping,
-                    to_reach=m.to_reach,
                     sky_view=m.sky_view,
-                    custodian=m.custodian,
+                    keeper=m.keeper,
                     status=m.status,
                     notes=m.notes,
                     search_lat_deg=where.lat_deg if where else None,
@@ -233,7 +236,7 @@ class Command(BaseCommand):
             Visit(
                 mark=mark_by_code[v.mark_code],
                 visited_on=v.visited_on,
-                condition=v.condition,
+                finding=v.finding,
                 visitor=v.visitor,
                 notes=v.notes,
                 created_by=technician,
@@ -327,7 +330,9 @@ class Command(BaseCommand):
             for j in jobs
         ]
         AuditEvent.objects.bulk_create(events, batch_size=500)
-        counts["audit events"] = len(events)
+        suspect = suspects_from_history(actor=None, note=note)
+        counts["audit events"] = len(events) + len(suspect)
+        counts["suspect marks"] = len(suspect)
         counts.update(self._demo_signing(users))
         return counts
 
@@ -465,10 +470,10 @@ class _audit_guard_lifted(_delete_guard_lifted):
 
 
 class _document_guard_lifted(_delete_guard_lifted):
-    """The guard that keeps signed and superseded documents (migration 0007)."""
+    """The guard that keeps signed and superseded documents (migration 0008)."""
 
     table, sqlite_trigger, pg_trigger = "registry_document", "document_no_delete", "document_no_delete"
-    migration = "0007_signed_document_triggers"
+    migration = "0008_signed_document_triggers"
 
 
 class _position_guard_lifted(_delete_guard_lifted):

@@ -2,7 +2,7 @@
 
     python manage.py marks_near LAT LON --radius-km R [--limit N] [--json]
         [--status active ...] [--stability high ...] [--frame-epsg 7912]
-        [--good-visit-within-yr 5] [--accuracy-max-m 0.02] [--path auto|postgis|portable]
+        [--intact-visit-within-yr 5] [--accuracy-max-m 0.02] [--path auto|postgis|portable]
 
 LAT and LON are decimal degrees (a negative longitude is fine: ``45.2 -110.6``). The same
 selector (:func:`registry.selectors.nearby.marks_near`) serves ``GET /api/marks/near/``;
@@ -33,7 +33,11 @@ class Command(BaseCommand):
         parser.add_argument("--stability", nargs="+", choices=Stability.values, help="Only these monument stabilities.")
         parser.add_argument("--frame-epsg", type=int, help="Only marks with a published position in this frame.")
         parser.add_argument(
-            "--good-visit-within-yr", type=float, help="Only marks found in good condition within this many years."
+            "--intact-visit-within-yr",
+            "--good-visit-within-yr",  # the earlier name, accepted for one more release
+            dest="intact_visit_within_yr",
+            type=float,
+            help="Only marks a visit found intact within this many years.",
         )
         parser.add_argument(
             "--accuracy-max-m",
@@ -55,7 +59,7 @@ class Command(BaseCommand):
                 status=options["status"],
                 stability=options["stability"],
                 frame_epsg=options["frame_epsg"],
-                good_visit_within_yr=options["good_visit_within_yr"],
+                intact_visit_within_yr=options["intact_visit_within_yr"],
                 accuracy_class_max_m=options["accuracy_max_m"],
                 path=options["path"],
             )

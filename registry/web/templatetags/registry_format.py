@@ -172,11 +172,15 @@ def format_utc(value: dt.datetime) -> str:
 # --------------------------------------------------------------------------- state words
 
 
+#: States whose label is a phrase: the badge shows this word (the label is its title).
+_SHORT_STATE_WORDS = {"suspect": "suspect"}
+
+
 def _state_labels() -> dict[str, str]:
-    from registry.models import Condition, DocumentState, MarkStatus, PositionState
+    from registry.models import DocumentState, Finding, MarkStatus, PositionState
 
     labels: dict[str, str] = {}
-    for choices in (MarkStatus, PositionState, Condition, DocumentState):
+    for choices in (MarkStatus, PositionState, Finding, DocumentState):
         labels.update({value: str(label) for value, label in choices.choices})
     return labels
 
@@ -268,10 +272,13 @@ def utc(value):
 
 @register.filter
 def state(value):
-    """A state or condition as a word in a bordered badge; the colour class is secondary."""
+    """A state or a visit's finding as a word in a bordered badge; the colour class is secondary."""
     if not value:
         return DASH
     label = _state_labels().get(str(value), str(value).replace("_", " "))
+    short = _SHORT_STATE_WORDS.get(str(value))
+    if short:  # a compact word in tables; the whole label as its title (and on the mark page itself)
+        return format_html('<span class="state state-{}" title="{}">{}</span>', str(value), label, short)
     return format_html('<span class="state state-{}">{}</span>', str(value), label)
 
 
@@ -289,7 +296,7 @@ def field_label(name, model_name="mark"):
 
 @register.filter
 def choice_label(value, field_name):
-    """The label of a Mark choice value (monument type, stability, sky view, status)."""
+    """The label of a Mark choice value (monument, stability, sky view, status)."""
     from registry.models import Mark
 
     try:
