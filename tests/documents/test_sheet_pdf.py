@@ -186,3 +186,31 @@ def test_disturbed_visit_withholds_coordinates_until_a_new_position(mark, techni
     assert _dms(POSITION["lat_deg"], "N", "S") not in text
     assert doc.options == {"withheld": True}
     assert doc.state == DocumentState.DRAFT
+
+
+def test_photos_and_logo_are_drawn(mark, technician, settings, tmp_path):
+    from django.core.files.uploadedfile import SimpleUploadedFile
+    from PIL import Image
+
+    from registry.services.fieldwork import attachment_add
+
+    settings.MEDIA_ROOT = str(tmp_path / "media")
+    for i in range(3):  # three photos: the sheet shows the two newest
+        buf = io.BytesIO()
+        Image.new("RGB", (64, 48), (120, 140, 90 + 40 * i)).save(buf, format="PNG")
+        attachment_add(
+            actor=technician,
+            mark_code=mark.code,
+            file=SimpleUploadedFile(f"photo{i}.png", buf.getvalue(), content_type="image/png"),
+            kind="photo",
+            caption=f"invented photo {i}",
+        )
+    logo = tmp_path / "logo.png"
+    Image.new("RGB", (40, 20), (0, 0, 0)).save(logo)
+    settings.REGISTRY = {**settings.REGISTRY, "OFFICE_LOGO": str(logo)}
+    doc = document_build_sheet(actor=technician, mark_code=mark.code)
+    reader = PdfReader(io.BytesIO(bytes(doc.content)))
+    images = [img for page in reader.pages for img in page.images]
+    assert len(images) == 2 + doc.page_count  # two photos, and the logo in every page's heading
+    text = _flat(" ".join(_pages_text(bytes(doc.content))))
+    assert "invented photo 2" in text and "invented photo 1" in text and "invented photo 0" not in text
