@@ -9,12 +9,17 @@ through pyproj, no grids, network off), plus observation noise drawn from the po
 So transforming any ITRF2014 position at its epoch back to NAD83(2011) lands within its stated
 uncertainty of the NAD83(2011) position of the same mark.
 
-Heights: orthometric heights (NAVD88, EPSG:5703) are ``h − N``. N for the levelled heights is an
-invented "true" geoid: ``N_FIT`` (a quadratic surface fitted to EGM96 over the district, from the
-``egm96_15.gtx`` grid of the Debian ``proj-data`` package through PROJ's ``vgridshift``; fit residual
-≤ 0.05 m) plus an invented NAVD88 offset of ``NAVD88_OFFSET_M``. Heights "via geoid" use ``N_FIT``
-alone and are labelled as a global-model approximation, so they differ from levelled heights by about
-that offset: the usual reason a global model is never survey grade.
+Heights. Levelled heights are NAVD88 (EPSG:5703): the true NAD83(2011) ellipsoidal height minus an
+invented "true" separation of the district's NAVD88 surface from the NAD83(2011) ellipsoid (what a
+national *hybrid* model would give; the demo has no real national grid, so it invents this surface:
+``N_FIT`` + ``NAVD88_OFFSET_M`` + a 3 cm ripple). Heights "via a geoid model" are what an office
+would get from the *global* model EGM96 and are stored as EGM96 heights (EPSG:5773), not NAVD88:
+EGM96 gives N above the WGS 84 ellipsoid as WGS 84/ITRF places it, so the NAD83(2011) ellipsoidal
+height is first transformed to ITRF2014 at 2010.0 (PROJ, as the positions; about −0.63 m here),
+then ``N_FIT`` is subtracted — ``N_FIT`` being a quadratic surface fitted to EGM96 over the district
+(``egm96_15.gtx`` of Debian's ``proj-data`` through PROJ's ``vgridshift``; fit residual ≤ 0.05 m).
+They are labelled as a global-model approximation (σ 0.40 m): a different height system from the
+levelled NAVD88 heights, which is the usual reason a global model is never survey grade.
 
 No Django import: ``registry.management.commands.load_demo`` writes the scenario to the database.
 """
@@ -47,7 +52,8 @@ GRS80_E2 = GRS80_F * (2 - GRS80_F)
 #: Least-squares fit to EGM96 (egm96_15.gtx, PROJ 9.5.1 vgridshift) on a 7×7 grid over
 #: 45.05…45.35° N, 110.82…110.38° W; max residual 0.051 m. Recomputed once, stored here.
 N_FIT_COEF = (-8.5423, -2.2607, 1.3607, -5.3530, 0.6804, -0.4221)
-N_FIT_LABEL = "DEMO-EGM96-FIT: quadratic fit to EGM96 over the demo district (global model, approximate, ±0.4 m)"
+N_FIT_LABEL = "EGM96 global model (approximate, ±0.4 m; the demo uses a quadratic fit of its 15′ grid)"
+EGM96_HEIGHT = 5773  # EGM96 height (vertical CRS)
 #: Invented offset of the demo district's NAVD88 surface from the EGM96 fit (true N = fit + offset).
 NAVD88_OFFSET_M = -0.45
 
@@ -969,18 +975,19 @@ class _Builder:
                 )
         rural = [m for m in self.scenario.marks if not m.in_town and m not in loop and m.fate == "good"]
         for m in rural[:: max(1, len(rural) // 8)][:8]:
-            lat, lon, h = self.true_nad83(m, 2010.0)
+            # EGM96 applies to heights in ITRF (WGS 84): transform the NAD83(2011) height first.
+            lat, lon, h = self.true_in(m, ITRF2014, 2010.0)
             sigma = 0.40  # the global model's error dominates (module docstring)
             self.scenario.heights.append(
                 DemoHeight(
                     m.code,
-                    NAVD88,
+                    EGM96_HEIGHT,
                     round(h - n_fit_m(lat, lon), 3),
                     sigma,
                     "geoid",
                     N_FIT_LABEL,
                     2010.0,
-                    "NAD83(2011) ellipsoidal height minus N (approximate)",
+                    "ITRF2014 ellipsoidal height at 2010.0 (from NAD83(2011)) minus EGM96 N (approximate)",
                     True,
                     dt.datetime(2012, 4, 2, tzinfo=dt.UTC),
                 )

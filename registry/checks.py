@@ -109,7 +109,34 @@ def check_proj(app_configs=None, **kwargs):
                 id="registry.E011",
             )
         )
+    geoid_frame = str(reg.get("GEOID_FRAME") or "").strip()
+    if model and not geoid_frame:
+        out.append(
+            Error(
+                "REGISTRY_GEOID_MODEL is set but REGISTRY_GEOID_FRAME is not: the registry cannot know which "
+                "frame's ellipsoidal heights the office geoid model applies to, so it computes no orthometric "
+                "heights with it.",
+                hint="Set REGISTRY_GEOID_FRAME to the EPSG code of that geographic 3D frame (e.g. 6319 for a model "
+                "fitted on NAD83(2011)); the model's documentation states it.",
+                id="registry.E014",
+            )
+        )
+    elif geoid_frame:
+        from registry.geodesy.frames import FrameTransformError, frame_info
+
+        try:
+            frame_info(int(geoid_frame.upper().removeprefix("EPSG:")))
+        except (FrameTransformError, ValueError) as exc:
+            out.append(
+                Error(
+                    f"REGISTRY_GEOID_FRAME={geoid_frame!r} is not a geographic 3D frame: {exc}",
+                    hint="Give the EPSG code of a geographic 3D CRS (latitude, longitude, ellipsoidal height).",
+                    id="registry.E015",
+                )
+            )
     plate = (reg.get("PLATE") or "").strip()
+    if plate.upper() == "AUTO":
+        plate = ""
     if plate:
         from registry.geodesy.platemotion import PlateMotionError
         from registry.geodesy.platemotion import plate as plate_of
@@ -120,7 +147,8 @@ def check_proj(app_configs=None, **kwargs):
             out.append(
                 Error(
                     f"REGISTRY_PLATE: {exc}",
-                    hint="Set REGISTRY_PLATE to the plate code of the office's area, or empty to apply no plate model.",
+                    hint="Set REGISTRY_PLATE to AUTO (each point's plate from its location), to the plate code of "
+                    "the office's area, or empty to apply no plate model.",
                     id="registry.E013",
                 )
             )

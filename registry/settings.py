@@ -161,6 +161,9 @@ SPECTACULAR_SETTINGS = {
         "MarkStatusEnum": "registry.models.MarkStatus",
         "JobStatusEnum": "registry.models.JobStatus",
         "PositionStateEnum": "registry.models.PositionState",
+        "GridMethodEnum": "registry.models.GridMethod",
+        "OccupationMethodEnum": "registry.models.OccupationMethod",
+        "GridUnitEnum": "registry.models.GridUnit",
     },
 }
 
@@ -168,16 +171,20 @@ SPECTACULAR_SETTINGS = {
 REGISTRY = {
     # Assumed unmodelled horizontal/vertical rate for marks without a velocity (mm/yr per axis).
     "ASSUMED_RATE_MM_YR": float(os.environ.get("REGISTRY_ASSUMED_RATE_MM_YR", "2.0")),
-    # Plate of the ITRF2020 plate motion model (Altamimi et al. 2023) used to move a position without
-    # its own velocity to another epoch in a dynamic frame (ITRF). Development and the demo default to
-    # "NOAM" (the demo district's plate); production defaults to none, because a wrong plate moves marks
-    # by centimetres a year: set your office's plate (registry/geodesy/platemotion.py lists them).
+    # Plate rule of the ITRF2020 plate motion model (Altamimi et al. 2023) for moving a position without
+    # its own velocity to another epoch in a dynamic frame (ITRF): "AUTO" chooses each point's plate from
+    # its location (registry/geodesy/plates.py); a plate code (NOAM, EURA, AUST...) is the office's plate,
+    # and a point located on another plate is refused. Development and the demo default to "AUTO";
+    # production defaults to none, so that an office decides: set AUTO or your office's plate.
     # Empty: no model; such positions keep a loud warning and are excluded from base screening.
-    "PLATE": os.environ.get("REGISTRY_PLATE", "" if PRODUCTION else "NOAM").strip().upper(),
+    "PLATE": os.environ.get("REGISTRY_PLATE", "" if PRODUCTION else "AUTO").strip().upper(),
     # Folder with the office's own geoid grids (added to PROJ's data search path).
     "GEOID_DIR": os.environ.get("REGISTRY_GEOID_DIR", str(DATA_DIR / "grids")),
     # Default geoid model file (office grid); EGM96 (egm96_15.gtx) is the labelled fallback.
     "GEOID_MODEL": os.environ.get("REGISTRY_GEOID_MODEL", ""),
+    # EPSG code of the geographic 3D frame whose ellipsoidal heights the office model's N refers to
+    # (e.g. 6319 for a hybrid model fitted on NAD83(2011)); required with GEOID_MODEL (system check E014).
+    "GEOID_FRAME": os.environ.get("REGISTRY_GEOID_FRAME", "").strip(),
     # Optional XYZ tile template (https://…/{z}/{x}/{y}.png) drawn faded under the job map, loaded by the
     # user's browser; checked at start (registry.W020). Empty: no basemap. Attribution shown in the caption.
     "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", "").strip(),
@@ -196,9 +203,7 @@ REGISTRY = {
     "SHEET_FRAMES": os.environ.get("REGISTRY_SHEET_FRAMES", "").strip(),
     # The office's grid (EPSG code of a projected CRS); empty: the UTM zone of each mark.
     "GRID_EPSG": os.environ.get("REGISTRY_GRID_EPSG", "").strip(),
-    # Frame (EPSG code) the office geoid model is tied to; empty: the office model is applied to none
-    # (the EGM96 fallback, labelled approximate, to any).
-    "GEOID_FRAME_EPSG": os.environ.get("REGISTRY_GEOID_FRAME_EPSG", "").strip(),
+    # The office geoid model's name as documents and pages print it (default: its file name).
     "GEOID_NAME": os.environ.get("REGISTRY_GEOID_NAME", "").strip(),
     # Statement style for check-point residuals uploaded with a control report: nssda or asprs2023.
     "REPORT_STATEMENT_STYLE": os.environ.get("REGISTRY_REPORT_STATEMENT_STYLE", "nssda").strip(),

@@ -352,3 +352,33 @@ def test_demo_suspect_marks_follow_the_visit_rule(db, fast_hashing):
     moved = Mark.objects.filter(notes__contains="re-observed and re-published")
     assert moved.count() >= 5 and not moved.filter(status="suspect").exists()
     assert AuditEvent.objects.filter(action="mark_make_suspect").count() == len(suspect) >= 8
+
+
+def test_demo_geoid_heights_are_egm96_heights_of_itrf2014_ellipsoidal_heights():
+    """Issue 7 item 9: the demo's "via geoid" records apply EGM96 to ITRF2014 heights and say so.
+
+    Independent route: PROJ's NAD83(2011) → ITRF2014 transformation at 2010.0 (direct pyproj) and the
+    EGM96 grid (egm96_15.gtx, vgridshift). Before the issue the records held h_NAD83 − N labelled NAVD88.
+    """
+    grid = "/usr/share/proj/egm96_15.gtx"
+    if not os.path.exists(grid):
+        pytest.skip("egm96_15.gtx (Debian proj-data) is not installed")
+    egm96 = pyproj.Transformer.from_pipeline(
+        "+proj=pipeline +step +proj=unitconvert +xy_in=deg +xy_out=rad "
+        f"+step +proj=vgridshift +grids={grid} +multiplier=1 +step +proj=unitconvert +xy_in=rad +xy_out=deg"
+    )
+    to_itrf = pyproj.Transformer.from_crs(6319, 7912, always_xy=True, only_best=True, allow_ballpark=False)
+    scenario = build_scenario()
+    marks = {m.code: m for m in scenario.marks}
+    records = [h for h in scenario.heights if h.method == "geoid"]
+    assert len(records) >= 3
+    for rec in records:
+        m = marks[rec.mark_code]
+        assert rec.datum_epsg == 5773  # EGM96 height, not NAVD88 (EPSG:5703)
+        assert rec.geoid_model.startswith("EGM96") and "ITRF2014" in rec.source
+        assert len(rec.geoid_model) <= 120 and len(rec.source) <= 200  # the columns' lengths
+        lon, lat, h_itrf, _ = to_itrf.transform(m.lon_deg, m.lat_deg, m.h_m, 2010.0)
+        _, _, n = egm96.transform(lon, lat, 0.0)
+        # The fit's residual (≤ 0.051 m) and the 1 mm rounding of the stored height.
+        assert rec.height_m == pytest.approx(h_itrf - n, abs=0.053)
+        assert abs(rec.height_m - (m.h_m - n)) > 0.5  # what the old rule (NAD83 height − N) gave

@@ -142,7 +142,7 @@ def test_database_url_selects_postgresql():
 def test_development_mode_defaults():
     s = settings_with()
     assert s["debug"] is True
-    assert s["plate"] == "NOAM"  # the demo district's plate, development only
+    assert s["plate"] == "AUTO"  # each point's plate from its location, development only
     assert "127.0.0.1" in s["hosts"]
     assert s["session_secure"] is False
 

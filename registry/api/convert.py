@@ -3,12 +3,15 @@
 Input (query parameters for GET, JSON body for POST; one input form):
 ``lat``, ``lon`` (decimal degrees or DMS text), ``h`` (ellipsoidal height, m) — or ``x``, ``y``, ``z``
 (ECEF, m) — or ``easting``, ``northing`` (m) with ``grid_in`` (EPSG) and ``h``; plus ``frame`` (EPSG of
-a geographic 3D CRS), ``epoch`` (decimal year), optional ``to_frame``, ``to_epoch``, ``grid`` (EPSG or
-``utm``, default ``utm``).
+a geographic 3D CRS), ``epoch`` (decimal year), optional ``to_frame``, ``to_epoch``, ``grid`` (EPSG,
+``utm`` or a custom grid's code, default ``utm``; ``grid_in`` likewise), and for an epoch change
+without the office's plate rule: ``plate`` (``AUTO`` or a plate code of ITRF2020-PMM) or the point's
+own velocity ``vel_e_mm_yr``, ``vel_n_mm_yr``, ``vel_u_mm_yr`` (mm/yr, in the input frame).
 
 Output: the same keys as ``manage.py convert_point --json`` (``registry.geodesy.convert.JSON_KEYS``),
-plus ``added_sigma_mm``, ``chain``, ``warnings`` and ``cautions``. Rounding: degrees 9 decimals,
-metres 3 (ECEF 4), factors 8. Bad input: 400 in the API's one error shape, ``details`` naming the field.
+plus ``grid_native`` (feet beside metres for a grid in feet), ``plate``, ``added_sigma_mm``, ``chain``,
+``warnings`` and ``cautions``. Numbers are NOT rounded (full double precision); rounding belongs to
+pages and documents. Bad input: 400 in the API's one error shape, ``details`` naming the field.
 """
 
 from __future__ import annotations
@@ -46,8 +49,19 @@ class ConvertInputSerializer(serializers.Serializer):
     to_frame = serializers.CharField(required=False, allow_blank=True, help_text="target frame (EPSG); default: frame")
     to_epoch = serializers.FloatField(required=False, help_text="target epoch (decimal year); default: epoch")
     grid = serializers.CharField(
-        required=False, allow_blank=True, help_text="output grid: EPSG code of a projected CRS, or 'utm'"
+        required=False,
+        allow_blank=True,
+        help_text="output grid: EPSG code of a projected CRS, 'utm', or the code of a custom grid",
     )
+    plate = serializers.CharField(
+        required=False,
+        allow_blank=True,
+        help_text="plate motion for this conversion: 'AUTO' (from the location) or an ITRF2020-PMM plate code; "
+        "default: the office's setting",
+    )
+    vel_e_mm_yr = serializers.FloatField(required=False, help_text="the point's own velocity east, mm/yr")
+    vel_n_mm_yr = serializers.FloatField(required=False, help_text="the point's own velocity north, mm/yr")
+    vel_u_mm_yr = serializers.FloatField(required=False, help_text="the point's own velocity up, mm/yr")
 
 
 def convert_inputs(data: dict) -> dict:
@@ -58,8 +72,24 @@ def convert_inputs(data: dict) -> dict:
         raise ConversionError("ECEF input needs all of x, y and z (m).", code="incomplete", field="xyz")
     if any(v is not None for v in en) and not all(v is not None for v in en):
         raise ConversionError("Grid input needs both easting and northing (m).", code="incomplete", field="en")
+    vel = [data.get(k) for k in ("vel_e_mm_yr", "vel_n_mm_yr", "vel_u_mm_yr")]
+    if any(v is not None for v in vel) and not all(v is not None for v in vel):
+        raise ConversionError(
+            "A velocity needs all three components east, north and up (mm/yr).", code="incomplete", field="velocity"
+        )
+    plate = (data.get("plate") or "").strip() or None
+    if plate and vel[0] is not None:
+        raise ConversionError(
+            "Give either the point's velocity or a plate, not both.", code="velocity_and_plate", field="plate"
+        )
     grid = data.get("grid")
+    extra = {}
+    if plate:
+        extra["plate"] = plate
+    if vel[0] is not None:
+        extra["velocity_enu_m_yr"] = tuple(float(v) / 1000.0 for v in vel)
     return {
+        **extra,
         "frame_epsg": data["frame"],
         "epoch_yr": data["epoch"],
         "lat": data.get("lat") or None,

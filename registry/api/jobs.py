@@ -76,6 +76,9 @@ class JobCreateInput(ScreeningSettingsInput):
     client = serializers.CharField(required=False, allow_blank=True)
     status = serializers.ChoiceField(choices=JobStatus.choices, required=False)
     grid_epsg = serializers.IntegerField(required=False, allow_null=True)
+    custom_grid = serializers.CharField(
+        required=False, allow_null=True, allow_blank=True, help_text="code of a custom grid (instead of grid_epsg)"
+    )
     notes = serializers.CharField(required=False, allow_blank=True)
     as_of = None
 

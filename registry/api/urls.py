@@ -8,6 +8,7 @@ from registry.api import convert as convert_api  # geodesy area
 from registry.api import documents as documents_api  # documents area
 from registry.api import exports as exports_api
 from registry.api import fieldwork as fieldwork_api  # fieldwork pages area
+from registry.api import grids as grids_api  # geodesy area
 from registry.api import jobs as jobs_api  # screening area
 from registry.api import marks as marks_api
 from registry.api import nearby as nearby_api  # search area
@@ -71,4 +72,5 @@ urlpatterns = [
     path("verify/", documents_api.VerifyView.as_view(), name="verify"),
     # point conversion (geodesy area)
     path("convert/", convert_api.ConvertView.as_view(), name="convert"),
+    path("grids/", grids_api.CustomGridListView.as_view(), name="grid-list"),
 ]

@@ -89,39 +89,64 @@ class PointConversion:
     input_form: str
     steps: list[_frames.Step] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    #: Ellipsoidal height in the geoid model's frame (None: no orthometric height), and the steps
+    #: that brought it there (empty when the point is already in that frame).
+    h_geoid_frame_m: float | None = None
+    geoid_steps: list[_frames.Step] = field(default_factory=list)
+    #: Plate motion applied for the epoch change: the model plate(s) and how chosen ("" = none).
+    plate_codes: tuple[str, ...] = ()
+    plate_rule: str = ""
+
+    @property
+    def plate_json(self) -> dict | None:
+        if not self.plate_codes:
+            return None
+        return {"codes": sorted(set(self.plate_codes)), "chosen_by": self.plate_rule, "model": "ITRF2020-PMM"}
+
+    def native_grid_json(self) -> dict | None:
+        if self.grid is None or self.easting_m is None:
+            return None
+        return _grid.native_units(self.easting_m, self.northing_m, grid=self.grid)
 
     def as_json(self) -> dict:
-        """The JSON form. Rounding: degrees 9 decimals, metres 3 (ECEF 4), factors 8 (documented in the API)."""
+        """The JSON form, numbers UNROUNDED (full double precision; rounding belongs to pages and documents)."""
 
-        def r(v, nd):
-            return None if v is None else round(float(v), nd)
+        def r(v):
+            return None if v is None else float(v)
 
         grid = None
         if self.grid is not None:
-            grid = {"epsg": self.grid.epsg, "name": self.grid.name}
+            grid = self.grid.as_dict()
         geoid = None
         if self.geoid is not None and self.orthometric_height_m is not None:
-            geoid = {**self.geoid.as_dict(), "geoid_height_m": r(self.geoid_height_m, 3)}
+            geoid = {
+                **self.geoid.as_dict(),
+                "geoid_height_m": r(self.geoid_height_m),
+                "h_in_model_frame_m": r(self.h_geoid_frame_m),
+                "frame_change": [st.as_dict() for st in self.geoid_steps],
+            }
         return {
-            "lat_deg": r(self.lat_deg, 9),
-            "lon_deg": r(self.lon_deg, 9),
-            "h_m": r(self.h_m, 3),
-            "x_m": r(self.x_m, 4),
-            "y_m": r(self.y_m, 4),
-            "z_m": r(self.z_m, 4),
-            "easting_m": r(self.easting_m, 3),
-            "northing_m": r(self.northing_m, 3),
+            "lat_deg": r(self.lat_deg),
+            "lon_deg": r(self.lon_deg),
+            "h_m": r(self.h_m),
+            "x_m": r(self.x_m),
+            "y_m": r(self.y_m),
+            "z_m": r(self.z_m),
+            "easting_m": r(self.easting_m),
+            "northing_m": r(self.northing_m),
             "grid_crs": grid,
-            "scale_factor": r(self.scale_factor, 8),
-            "convergence_deg": r(self.convergence_deg, 9),
-            "elevation_factor": r(self.elevation_factor, 8),
-            "combined_factor": r(self.combined_factor, 8),
-            "orthometric_height_m": r(self.orthometric_height_m, 3),
+            "scale_factor": r(self.scale_factor),
+            "convergence_deg": r(self.convergence_deg),
+            "elevation_factor": r(self.elevation_factor),
+            "combined_factor": r(self.combined_factor),
+            "orthometric_height_m": r(self.orthometric_height_m),
             "geoid_model": geoid,
             "frame": {"epsg": self.frame.epsg, "name": self.frame.name, "kind": self.frame.kind},
-            "epoch": round(self.epoch_yr, 3),
+            "epoch": float(self.epoch_yr),
             # Beyond the 17 keys: how the numbers were obtained (shown to the user).
-            "added_sigma_mm": round(self.added_sigma_m * 1000.0, 1),
+            "grid_native": self.native_grid_json(),
+            "plate": self.plate_json,
+            "added_sigma_mm": float(self.added_sigma_m * 1000.0),
             "chain": [s.as_dict() for s in self.steps],
             "warnings": list(self.warnings),
             "cautions": list(CAUTIONS),
@@ -181,6 +206,7 @@ def convert_point(
     assumed_rate_mm_yr: float = _frames.DEFAULT_ASSUMED_RATE_MM_YR,
     velocity_enu_m_yr=None,
     plate: str | None = None,
+    plate_explicit: bool = False,
 ) -> PointConversion:
     """Convert one point given in one of three forms to every form, in a target frame and epoch.
 
@@ -194,19 +220,25 @@ def convert_point(
     xyz_m
         ECEF input (X, Y, Z) in metres, in the frame's geocentric form (same datum and ellipsoid).
     en_m, grid_in
-        Grid input: (easting, northing) in metres on projected CRS ``grid_in`` (EPSG), whose datum
-        must be the input frame's.
+        Grid input: (easting, northing) in metres on projected CRS ``grid_in`` (EPSG, or a ready
+        :class:`registry.geodesy.grid.GridCRS` such as a custom grid), whose datum must be the input
+        frame's.
     to_frame_epsg, to_epoch_yr
         Target frame and epoch (default: the input's).
     grid
-        Output grid: an EPSG code of a projected CRS on the target frame's datum, or "utm".
+        Output grid: an EPSG code of a projected CRS on the target frame's datum, "utm", or a
+        :class:`registry.geodesy.grid.GridCRS` (a custom grid). Points outside the grid's area of
+        use are converted with a warning.
         ``grid_explicit`` says the user asked for it (then a grid failure is an error; otherwise
         the grid part is left empty with a warning).
     geoid
-        Geoid model for the orthometric height (None: no orthometric height).
-    assumed_rate_mm_yr, velocity_enu_m_yr, plate
-        See :func:`registry.geodesy.frames.transform_position` (``plate``: the ITRF2020 plate
-        motion model's plate for epoch changes in a dynamic frame without a velocity).
+        Geoid model for the orthometric height (None: no orthometric height). The height is first
+        brought into the model's frame at the target epoch (see
+        :func:`registry.geodesy.heights.orthometric_from_ellipsoidal`).
+    assumed_rate_mm_yr, velocity_enu_m_yr, plate, plate_explicit
+        See :func:`registry.geodesy.frames.transform_position` (``plate``: "AUTO" or the ITRF2020
+        plate motion model's plate for epoch changes in a dynamic frame without a velocity;
+        ``velocity_enu_m_yr``: the point's own velocity in the input frame, m/yr east, north, up).
 
     Raises
     ------
@@ -287,7 +319,8 @@ def convert_point(
             raise ConversionError("Grid input needs two numbers E N (m).", code="incomplete", field="en") from exc
         h = _finite(h_m, "Ellipsoidal height", "h")
         try:
-            la, lo = _grid.from_grid(e, n, grid=_epsg(grid_in, "grid_in"), frame_epsg=src_epsg)
+            gin = grid_in if isinstance(grid_in, _grid.GridCRS) else _epsg(grid_in, "grid_in")
+            la, lo = _grid.from_grid(e, n, grid=gin, frame_epsg=src_epsg)
         except _grid.GridError as exc:
             raise ConversionError(str(exc), code=exc.code, field="grid_in") from exc
         lat_deg, lon_deg = float(la), float(lo)
@@ -308,9 +341,16 @@ def convert_point(
             velocity_enu_m_yr=velocity_enu_m_yr,
             assumed_rate_mm_yr=assumed_rate_mm_yr,
             plate=plate,
+            plate_explicit=plate_explicit,
         )
     except _frames.FrameTransformError as exc:
-        fld = "epoch" if exc.code == "bad_epoch" else "to_frame"
+        fld = {
+            "bad_epoch": "epoch",
+            "bad_velocity": "velocity",
+            "unknown_plate": "plate",
+            "plate_not_in_model": "plate",
+            "outside_office_plate": "plate",
+        }.get(exc.code, "to_frame")
         raise ConversionError(str(exc), code=exc.code, field=fld) from exc
     dst = moved.frame
     lat2, lon2, h2 = float(moved.lat_deg), float(moved.lon_deg), float(moved.h_m)
@@ -328,19 +368,26 @@ def convert_point(
         else:
             grid_crs, easting, northing = g.grid, float(g.easting_m), float(g.northing_m)
             k, gamma = float(g.scale_factor), float(g.convergence_deg)
+            warnings.extend(g.warnings)
     radius = float(_grid.radius_gaussian_m(lat2, dst.ellipsoid))
     ef = float(_grid.elevation_factor(h2, radius_m=radius))
     if k is not None:
         cf = float(_grid.combined_factor(k, ef))
 
-    n_geoid = ortho = None
+    n_geoid = ortho = h_geoid = None
+    geoid_steps: list[_frames.Step] = []
     if geoid is not None:
         try:
-            n_geoid = float(_heights.geoid_undulation_m(lat2, lon2, model=geoid))
+            oh = _heights.orthometric_from_ellipsoidal(
+                lat2, lon2, h2, frame_epsg=dst.epsg, epoch_yr=moved.epoch_yr, model=geoid
+            )
         except _heights.HeightError as exc:
             warnings.append(f"No orthometric height: {exc}")
         else:
-            ortho = float(_heights.orthometric_height_m(h2, n_geoid))
+            n_geoid = float(oh.geoid_height_m)
+            ortho = float(oh.orthometric_height_m)
+            h_geoid = float(oh.h_model_frame_m)
+            geoid_steps = list(oh.steps)
             if geoid.approximate:
                 warnings.append(f"Orthometric height from {geoid.label}: use an office geoid model for survey work.")
     else:
@@ -374,6 +421,10 @@ def convert_point(
         input_form=form,
         steps=list(moved.steps),
         warnings=warnings,
+        h_geoid_frame_m=h_geoid,
+        geoid_steps=geoid_steps,
+        plate_codes=tuple(moved.plate_codes),
+        plate_rule=moved.plate_rule,
     )
 
 
@@ -406,11 +457,22 @@ def display_rows(c: PointConversion) -> dict:
         ("ECEF Z", f"{c.z_m:.4f} m", ""),
     ]
     if c.grid is not None:
-        code = f"EPSG:{c.grid.epsg}" if c.grid.epsg else "no EPSG code"
+        native = c.native_grid_json()
+        feet_e = feet_n = ""
+        if native:
+            legacy = " (legacy)"
+            mark_ft = " — the grid's unit" if native["grid_unit"] == "international foot" else ""
+            mark_us = " — the grid's unit" if native["grid_unit"] == "US survey foot" else ""
+            feet_e = (
+                f"{native['easting_ft']:.3f} ft{mark_ft}; {native['easting_us_ft']:.3f} US survey ft{legacy}{mark_us}"
+            )
+            feet_n = (
+                f"{native['northing_ft']:.3f} ft{mark_ft}; {native['northing_us_ft']:.3f} US survey ft{legacy}{mark_us}"
+            )
         rows += [
-            ("Grid", f"{c.grid.name} ({code})", ""),
-            ("Easting", f"{c.easting_m:.3f} m", ""),
-            ("Northing", f"{c.northing_m:.3f} m", ""),
+            ("Grid", c.grid.label, ""),
+            ("Easting", f"{c.easting_m:.3f} m", feet_e),
+            ("Northing", f"{c.northing_m:.3f} m", feet_n),
             ("Point scale factor k", f"{c.scale_factor:.8f}", ""),
             (
                 "Convergence γ",
@@ -428,6 +490,15 @@ def display_rows(c: PointConversion) -> dict:
     if c.combined_factor is not None:
         rows.append(("Combined factor", f"{c.combined_factor:.8f}", "k × elevation factor; grid = ground × factor"))
     if c.orthometric_height_m is not None:
+        if c.geoid_steps:
+            model_frame = c.geoid_steps[-1].to_label
+            rows.append(
+                (
+                    "h in the geoid model's frame",
+                    f"{c.h_geoid_frame_m:.3f} m",
+                    f"{model_frame} at {c.epoch_yr:.3f}: {c.geoid.name} applies to heights in that frame",
+                )
+            )
         rows += [
             ("Geoid height N", f"{c.geoid_height_m:.3f} m", c.geoid.label),
             ("Orthometric height H", f"{c.orthometric_height_m:.3f} m", f"H = h − N, {c.geoid.label}"),
@@ -440,6 +511,11 @@ def display_rows(c: PointConversion) -> dict:
     ]
     if not chain:
         chain = ["none (same frame and epoch)"]
+    chain += [
+        f"for the orthometric height only: {s.from_label} @ {s.from_epoch_yr:.3f} → {s.to_label} "
+        f"@ {s.to_epoch_yr:.3f}: {s.description} ({_accuracy_text(s)})"
+        for s in c.geoid_steps
+    ]
     source = (
         f"{c.source_frame.name} (EPSG:{c.source_frame.epsg}) at {_frames.format_epoch(c.source_epoch_yr)}, "
         f"given as {dict(geodetic='latitude/longitude/height', ecef='ECEF X/Y/Z', grid='easting/northing')[c.input_form]}"

@@ -49,6 +49,7 @@ from functools import lru_cache
 import numpy as np
 
 from registry.geodesy import platemotion as _pmm
+from registry.geodesy import plates as _plates
 from registry.geodesy.conversions import (
     Ellipsoid,
     ecef_to_geodetic,
@@ -145,6 +146,11 @@ class FrameTransformResult:
     #: Years over which the point was held in a dynamic frame with neither a velocity nor a plate
     #: model: its motion over that span is not modelled (0.0 when nothing of the kind happened).
     unmodelled_dynamic_hold_yr: float = 0.0
+    #: Plates of the plate motion model applied (one per point, flattened; empty when none) and how
+    #: they were chosen: "location" (AUTO), "office" (the setting, checked against the location),
+    #: "asked" (given for this computation).
+    plate_codes: tuple[str, ...] = ()
+    plate_rule: str = ""
 
 
 def _network_off() -> None:
@@ -333,6 +339,7 @@ def transform_position(
     velocity_sigma_enu_m_yr=None,
     assumed_rate_mm_yr: float = DEFAULT_ASSUMED_RATE_MM_YR,
     plate: str | None = None,
+    plate_explicit: bool = False,
     plate_origin_rate_bias: bool = False,
 ) -> FrameTransformResult:
     """Move positions from (frame A, epoch t1) to (frame B, epoch t2).
@@ -353,9 +360,14 @@ def transform_position(
         Assumed unmodelled rate per axis when no velocity is given (mm/yr). With a plate model
         applied, the assumed residual rate relative to the rigid plate.
     plate : str, optional
-        Plate code of the ITRF2020 plate motion model (e.g. ``"NOAM"``). When given, a point
-        without a velocity that has to change epoch in a dynamic frame moves with the plate
-        (:mod:`registry.geodesy.platemotion`). None or "": held, with a warning.
+        ``"AUTO"`` or a plate code of the ITRF2020 plate motion model (e.g. ``"NOAM"``). When given,
+        a point without a velocity that has to change epoch in a dynamic frame moves with a plate
+        (:mod:`registry.geodesy.platemotion`), chosen by :func:`registry.geodesy.plates.choose_plates`:
+        AUTO, each point's plate from its location; a code, that plate — refused for a point located
+        on another plate unless ``plate_explicit``. None or "": held, with a warning.
+    plate_explicit : bool
+        True when ``plate`` was asked for this computation by the user (used as asked, with a
+        warning where the location disagrees); False when it is the office's setting.
     plate_origin_rate_bias : bool
         Add the model's origin rate bias to the plate velocity (off by default).
 
@@ -387,10 +399,14 @@ def transform_position(
         raise FrameTransformError("The assumed rate must be a non-negative number (mm/yr).", code="bad_rate")
     plate_code = None
     if plate not in (None, ""):
-        try:
-            plate_code = _pmm.plate(plate).code
-        except _pmm.PlateMotionError as exc:
-            raise FrameTransformError(str(exc), code=exc.code) from exc
+        if str(plate).strip().upper() == _plates.AUTO:
+            plate_code = _plates.AUTO
+        else:
+            try:
+                plate_code = _pmm.plate(plate).code
+            except _pmm.PlateMotionError as exc:
+                raise FrameTransformError(str(exc), code=exc.code) from exc
+    applied_plates: tuple[str, ...] = ()
     lat, lon, h = (np.asarray(v, dtype=float) for v in (lat_deg, lon_deg, h_m))
     lat, lon, h = np.broadcast_arrays(lat, lon, h)
     if not (np.all(np.isfinite(lat)) and np.all(np.isfinite(lon)) and np.all(np.isfinite(h))):
@@ -437,24 +453,52 @@ def transform_position(
         return la, lo, hh
 
     def _plate_motion(frame: FrameInfo, la, lo, hh, added):
-        ve, vn, vu = _pmm.velocity_enu_m_yr(
-            la, lo, hh, plate=plate_code, ellipsoid=frame.ellipsoid, origin_rate_bias=plate_origin_rate_bias
-        )
+        nonlocal applied_plates
+        try:
+            choice = _plates.choose_plates(la, lo, plate=plate_code, explicit=plate_explicit)
+        except _plates.PlateChoiceError as exc:
+            raise FrameTransformError(str(exc), code=exc.code) from exc
+        applied_plates = choice.codes
+        codes = np.asarray(choice.codes, dtype=object).reshape(np.shape(la))
+        ve, vn, vu = (np.zeros(np.shape(la)) for _ in range(3))
+        for code in sorted(set(choice.codes)):
+            mask = codes == code
+            e_, n_, u_ = _pmm.velocity_enu_m_yr(
+                np.asarray(la)[mask],
+                np.asarray(lo)[mask],
+                np.asarray(hh)[mask],
+                plate=code,
+                ellipsoid=frame.ellipsoid,
+                origin_rate_bias=plate_origin_rate_bias,
+            )
+            ve[mask], vn[mask], vu[mask] = e_, n_, u_
+        if np.ndim(la) == 0:
+            ve, vn, vu = (float(v) for v in (ve, vn, vu))
         la, lo, hh = propagate_velocity(la, lo, hh, velocity_enu_m_yr=(ve, vn, vu), dt_yr=dt, ellipsoid=frame.ellipsoid)
         if np.size(ve) == 1:
             vtext = (
-                f"model velocity ({float(ve) * 1000:.1f}, {float(vn) * 1000:.1f}, {float(vu) * 1000:.1f}) mm/yr "
-                "east, north, up"
+                f"model velocity ({float(np.ravel(ve)[0]) * 1000:.1f}, {float(np.ravel(vn)[0]) * 1000:.1f}, "
+                f"{float(np.ravel(vu)[0]) * 1000:.1f}) mm/yr east, north, up"
             )
         else:
             vtext = "each point's model velocity"
+        distinct = sorted(set(choice.codes))
+        how = {
+            _plates.AUTO: "plate chosen from the point's location",
+            None: "",
+        }.get(
+            plate_code, "the plate asked for" if plate_explicit else "the office's plate, checked against the location"
+        )
+        if len(distinct) == 1:
+            model = _pmm.model_label(distinct[0], origin_rate_bias=plate_origin_rate_bias)
+        else:
+            model = f"{_pmm.MODEL_NAME} (Altamimi et al. 2023), plates {', '.join(distinct)}"
         steps.append(
             Step(
                 kind="plate_motion",
                 description=(
-                    f"moved with the plate: {_pmm.model_label(plate_code, origin_rate_bias=plate_origin_rate_bias)}, "
-                    f"{vtext} × {dt:+.3f} yr; residual rate {assumed_rate_mm_yr:g} mm/yr per axis × {abs(dt):.3f} yr "
-                    "added to σ"
+                    f"moved with the plate: {model} ({how}), {vtext} × {dt:+.3f} yr; residual rate "
+                    f"{assumed_rate_mm_yr:g} mm/yr per axis × {abs(dt):.3f} yr added to σ"
                 ),
                 accuracy_m=added,
                 from_label=frame.label,
@@ -463,11 +507,13 @@ def transform_position(
                 to_epoch_yr=t2,
             )
         )
+        names = " and ".join(f"{_pmm.plate(c).name} ({c})" for c in distinct)
         warnings.append(
-            f"The epoch change {t1:.3f} → {t2:.3f} in {frame.label} uses the rigid motion of the {plate_code} plate "
+            f"The epoch change {t1:.3f} → {t2:.3f} in {frame.label} uses the rigid motion of the {names} plate "
             f"({_pmm.MODEL_NAME}), not the mark's own velocity. Near plate boundaries and in deforming areas marks "
             "move differently; give the mark's velocity where it is known."
         )
+        warnings.extend(choice.warnings)
         return la, lo, hh
 
     if dt != 0.0 and velocity_enu_m_yr is not None:
@@ -538,6 +584,16 @@ def transform_position(
         steps=steps,
         warnings=warnings,
         unmodelled_dynamic_hold_yr=float(unmodelled_hold_yr),
+        plate_codes=applied_plates,
+        plate_rule=(
+            ""
+            if not applied_plates
+            else "location"
+            if plate_code == _plates.AUTO
+            else "asked"
+            if plate_explicit
+            else "office"
+        ),
     )
 
 

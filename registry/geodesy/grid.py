@@ -40,6 +40,12 @@ import numpy as np
 from registry.geodesy.conversions import GRS80, Ellipsoid, ellipsoid_of_epsg, radii_of_curvature_m
 
 __all__ = [
+    "FOOT_M",
+    "US_SURVEY_FOOT_M",
+    "UNITS",
+    "outside_area",
+    "area_of_use_warnings",
+    "native_units",
     "GridError",
     "GridCRS",
     "GridCoordinates",
@@ -71,14 +77,49 @@ class GridError(ValueError):
         self.code = code
 
 
+#: Length units of grids, by PROJ's unit name: (our label, metres per unit, legacy?).
+#: International foot = 0.3048 m exactly; US survey foot = 1200/3937 m, deprecated in the United
+#: States from 2023 (NIST/NOAA Federal Register notice 85 FR 62698, 2020; from memory) — "legacy".
+FOOT_M = 0.3048
+US_SURVEY_FOOT_M = 1200.0 / 3937.0
+UNITS = {
+    "metre": ("metre", 1.0, False),
+    "foot": ("international foot", FOOT_M, False),
+    "US survey foot": ("US survey foot", US_SURVEY_FOOT_M, True),
+}
+
+
 @dataclass(frozen=True)
 class GridCRS:
-    """A projected CRS ready for use: its PROJ object, EPSG code (None when not registered), name."""
+    """A projected CRS ready for use.
+
+    ``epsg``: its EPSG code (None when not registered); ``code``: the registry's own code for a
+    custom grid (None otherwise); ``area``: its area of use (west, south, east, north in degrees;
+    west > east when it crosses the antimeridian) and ``area_name``; ``unit_name``: PROJ's name of
+    the axis unit (``unit_to_m`` metres per unit).
+    """
 
     crs: object
     epsg: int | None
     name: str
     unit_to_m: float
+    code: str | None = None
+    area: tuple[float, float, float, float] | None = None
+    area_name: str = ""
+    unit_name: str = "metre"
+
+    @property
+    def label(self) -> str:
+        if self.code:
+            return f"{self.name} (custom grid {self.code})"
+        return f"{self.name} ({f'EPSG:{self.epsg}' if self.epsg else 'no EPSG code'})"
+
+    @property
+    def in_feet(self) -> bool:
+        return self.unit_name in ("foot", "US survey foot")
+
+    def as_dict(self) -> dict:
+        return {"epsg": self.epsg, "name": self.name, "custom_code": self.code}
 
 
 @dataclass(frozen=True)
@@ -88,6 +129,8 @@ class GridCoordinates:
     scale_factor: np.ndarray
     convergence_deg: np.ndarray
     grid: GridCRS
+    #: Sentences for the user: e.g. points outside the grid's area of use.
+    warnings: tuple[str, ...] = ()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -161,7 +204,19 @@ def utm_grid(zone: int, north: bool, *, frame_epsg: int) -> GridCRS:
     name = f"{base.name} / UTM zone {int(zone)}{'N' if north else 'S'}"
     crs = ProjectedCRS(conversion=UTMConversion(int(zone), "N" if north else "S"), geodetic_crs=base2d, name=name)
     epsg = crs.to_epsg(min_confidence=90)
-    return GridCRS(crs=crs, epsg=epsg, name=name, unit_to_m=1.0)
+    # Area of use: the zone itself (6° wide, its hemisphere up to UTM's latitude limits 80°S / 84°N);
+    # a zone chosen for the points is used as a zone, wherever the datum's EPSG entry is registered.
+    cm = -183.0 + 6.0 * int(zone)
+    area = (cm - 3.0, 0.0, cm + 3.0, 84.0) if north else (cm - 3.0, -80.0, cm + 3.0, 0.0)
+    area_name = f"UTM zone {int(zone)}{'N' if north else 'S'}"
+    return GridCRS(crs=crs, epsg=epsg, name=name, unit_to_m=1.0, area=area, area_name=area_name)
+
+
+def _area_of(crs) -> tuple[tuple[float, float, float, float] | None, str]:
+    aou = getattr(crs, "area_of_use", None)
+    if aou is None:
+        return None, ""
+    return (float(aou.west), float(aou.south), float(aou.east), float(aou.north)), str(aou.name or "")
 
 
 @lru_cache(maxsize=256)
@@ -175,7 +230,16 @@ def _epsg_grid(epsg: int) -> GridCRS:
     if not crs.is_projected:
         raise GridError(f"EPSG:{epsg} ({crs.name}) is not a projected (grid) CRS.", code="not_projected")
     unit = crs.axis_info[0].unit_conversion_factor or 1.0
-    return GridCRS(crs=crs, epsg=int(epsg), name=crs.name, unit_to_m=float(unit))
+    area, area_name = _area_of(crs)
+    return GridCRS(
+        crs=crs,
+        epsg=int(epsg),
+        name=crs.name,
+        unit_to_m=float(unit),
+        area=area,
+        area_name=area_name,
+        unit_name=str(crs.axis_info[0].unit_name or "metre"),
+    )
 
 
 @lru_cache(maxsize=256)
@@ -330,7 +394,89 @@ def to_grid(lat_deg, lon_deg, *, frame_epsg: int, grid) -> GridCoordinates:
     if not (np.all(np.isfinite(e)) and np.all(np.isfinite(n))):
         raise GridError(f"Some points are outside the domain of {g.name}.", code="outside_grid")
     k, gamma = point_factors(lat, lon, grid=g)
-    return GridCoordinates(e, n, k, gamma, g)
+    return GridCoordinates(e, n, k, gamma, g, tuple(area_of_use_warnings(lat, lon, grid=g, scale_factor=k)))
+
+
+def outside_area(lat_deg, lon_deg, *, grid: GridCRS):
+    """Boolean array: points outside ``grid``'s area of use (False everywhere when it has none).
+
+    The area is PROJ's (EPSG's) area of use of the CRS, a UTM zone's own extent for a UTM grid
+    with no EPSG code, or the area stated with a custom grid. Bounds are inclusive; an area whose
+    west bound exceeds its east bound crosses the antimeridian.
+
+    >>> g = resolve_grid(6341, frame_epsg=6319)
+    >>> bool(outside_area(45.2, -110.6, grid=g)), bool(outside_area(45.2, -117.5, grid=g))
+    (False, True)
+    """
+    lat = np.asarray(lat_deg, dtype=float)
+    lon = np.mod(np.asarray(lon_deg, dtype=float) + 180.0, 360.0) - 180.0
+    if grid.area is None:
+        return np.zeros(np.broadcast(lat, lon).shape, dtype=bool)
+    west, south, east, north = grid.area
+    in_lat = (lat >= south) & (lat <= north)
+    if west <= east:
+        in_lon = (lon >= west) & (lon <= east)
+    else:  # crosses the antimeridian
+        in_lon = (lon >= west) | (lon <= east)
+    return ~(in_lat & in_lon)
+
+
+def area_of_use_warnings(lat_deg, lon_deg, *, grid: GridCRS, scale_factor=None) -> list[str]:
+    """Sentences for the user when points fall outside ``grid``'s area of use (empty list otherwise).
+
+    Outside its area a projection still computes, but its distortion grows quickly (a transverse
+    Mercator ≈ k0 (1 + Δλ² cos²φ / 2) away from its central meridian) and the grid is not the one
+    agreed for that place: the figures are not wrong arithmetic, they are the wrong grid.
+    """
+    out = outside_area(lat_deg, lon_deg, grid=grid)
+    if not np.any(out):
+        return []
+    west, south, east, north = grid.area
+    n_out, n_all = int(np.count_nonzero(out)), int(out.size)
+    who = "The point is" if n_all == 1 else f"{n_out} of {n_all} points are"
+    k_text = ""
+    if scale_factor is not None:
+        k = np.asarray(scale_factor, dtype=float).reshape(out.shape)[out]
+        worst = float(k[np.argmax(np.abs(k - 1.0))])
+        k_text = f" There the point scale factor is {worst:.8f} ({(worst - 1.0) * 1e6:+.0f} ppm)."
+    where = f" ({grid.area_name})" if grid.area_name else ""
+    return [
+        f"{who} outside the area of use of {grid.label}: {_deg_text(south, 'N', 'S')} to "
+        f"{_deg_text(north, 'N', 'S')}, {_deg_text(west, 'E', 'W')} to {_deg_text(east, 'E', 'W')}{where}."
+        f"{k_text} Grid coordinates and factors outside that area are distorted and not those of the "
+        "grid's agreed extent; use the grid that covers the point (e.g. its own UTM zone or the local grid)."
+    ]
+
+
+def native_units(easting_m, northing_m, *, grid: GridCRS) -> dict | None:
+    """Easting and northing in feet beside metres, for a grid whose unit is a foot (else None).
+
+    Both feet are given: the international foot (0.3048 m) and the US survey foot (1200/3937 m,
+    legacy); ``grid_unit`` names the one the grid is defined in.
+
+    >>> g = resolve_grid(2256, frame_epsg=4269)   # NAD83 / Montana (ft): international feet
+    >>> d = native_units(600000.0, 300000.0, grid=g)
+    >>> d["grid_unit"], round(d["easting_ft"], 4), round(d["easting_us_ft"], 4)
+    ('international foot', 1968503.937, 1968500.0)
+    """
+    if not grid.in_feet:
+        return None
+    e = float(easting_m)
+    n = float(northing_m)
+    label, _, legacy = UNITS[grid.unit_name]
+    return {
+        "grid_unit": label,
+        "grid_unit_legacy": legacy,
+        "metres_per_grid_unit": grid.unit_to_m,
+        "easting_ft": e / FOOT_M,
+        "northing_ft": n / FOOT_M,
+        "easting_us_ft": e / US_SURVEY_FOOT_M,
+        "northing_us_ft": n / US_SURVEY_FOOT_M,
+    }
+
+
+def _deg_text(value: float, pos: str, neg: str) -> str:
+    return f"{abs(value):.2f}°{pos if value >= 0 else neg}"
 
 
 def from_grid(easting_m, northing_m, *, grid, frame_epsg: int):

@@ -609,27 +609,23 @@ def accuracy_report(
     return report
 
 
-#: Decimal places for numbers in JSON output: metres to 0.1 mm, dimensionless ratios and factors finer.
-_JSON_DECIMALS_M = 4
-_JSON_DECIMALS_RATIO = 6
-
-
-def _round_json(key: str, value: Any) -> Any:
+def _plain_json(key: str, value: Any) -> Any:
     if isinstance(value, dict):
-        return {k: _round_json(k, v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_round_json(key, v) for v in value]
-    if isinstance(value, bool) or not isinstance(value, float):
-        return value
-    if key.endswith("_m"):
-        return round(value, _JSON_DECIMALS_M)
-    return round(value, _JSON_DECIMALS_RATIO)
+        return {k: _plain_json(k, v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_plain_json(key, v) for v in value]
+    if isinstance(value, np.floating):
+        return float(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
 
 
 def report_as_json(report: dict[str, Any]) -> dict[str, Any]:
-    """The report with numbers rounded for JSON (command ``--json`` and the API alike).
+    """The report as plain JSON values (command ``--json`` and the API alike), numbers UNROUNDED.
 
-    Values in metres (keys ending ``_m``) to 4 decimals (0.1 mm, the API's rounding for accuracies);
-    ratios and factors to 6 decimals. Classes are decided on the unrounded values.
+    Machine output keeps full double precision (metres, ratios and factors as computed) so that a
+    program reading it can round once, where it presents the figure; the rounding of statements,
+    pages and PDFs (millimetres to 0.1, classes decided on the unrounded values) is theirs alone.
     """
-    return {k: _round_json(k, v) for k, v in report.items()}
+    return {k: _plain_json(k, v) for k, v in report.items()}

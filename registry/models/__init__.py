@@ -24,6 +24,7 @@ from registry.models.fieldwork import (
     OccupationMethod,
     Visit,
 )
+from registry.models.grids import GRID_CODE_VALIDATOR, CustomGrid, GridMethod, GridUnit
 from registry.models.jobs import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.models.marks import (
     CODE_VALIDATOR,
@@ -70,6 +71,10 @@ __all__ = [
     "AttachmentKind",
     "AuditEvent",
     "AuditTrailError",
+    "CustomGrid",
+    "GRID_CODE_VALIDATOR",
+    "GridMethod",
+    "GridUnit",
     "Document",
     "DocumentKind",
     "DocumentState",

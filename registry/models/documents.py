@@ -3,7 +3,7 @@
 A document moves ``draft`` → ``checked`` → ``signed``; a signed document is ``superseded`` by a newer
 revision of the same subject, never changed. What was signed (the PDF bytes, their SHA-256 and size, the
 file path, the code, revision, subject, who prepared, checked and signed it, and with which certificate)
-is frozen by database triggers (migration ``0008_signed_document_triggers``) on SQLite and PostgreSQL alike; only
+is frozen by database triggers (migration ``0009_signed_document_triggers``) on SQLite and PostgreSQL alike; only
 its standing moves forward: ``signed`` → ``superseded``, and ``out_of_date`` from false to true when the
 mark it describes changes after signing. :data:`DOCUMENT_FROZEN_FIELDS` and
 :data:`DOCUMENT_STANDING_FIELDS` list every column between them (a test checks it).
@@ -173,7 +173,7 @@ class Document(models.Model):
         return self.state in DOCUMENT_ISSUED_STATES
 
     def save(self, *args, **kwargs):
-        # The same rule as the triggers of migration 0008, checked first for a clear message.
+        # The same rule as the triggers of migration 0009, checked first for a clear message.
         if self.pk is not None:
             stored = (
                 Document.objects.filter(pk=self.pk)

@@ -34,6 +34,15 @@ class Job(models.Model):
     grid_epsg = models.PositiveIntegerField(
         null=True, blank=True, help_text="Deliverable grid (EPSG); empty: UTM zone chosen automatically."
     )
+    custom_grid = models.ForeignKey(
+        "registry.CustomGrid",
+        to_field="code",
+        null=True,
+        blank=True,
+        on_delete=models.PROTECT,
+        related_name="jobs",
+        help_text="Deliverable grid as one of the office's custom grids (instead of an EPSG code).",
+    )
     tol_h_mm = models.FloatField(help_text="Horizontal tolerance, 95 % circle, mm.")
     tol_v_mm = models.FloatField(help_text="Vertical tolerance, 95 %, mm.")
     rtk_h_fixed_mm = models.FloatField(default=8.0)
@@ -77,6 +86,9 @@ class Job(models.Model):
             models.CheckConstraint(condition=Q(max_baseline_m__gt=0, recovery_years__gt=0), name="job_limits_positive"),
             models.CheckConstraint(
                 condition=Q(grid_spacing_m__isnull=True) | Q(grid_spacing_m__gt=0), name="job_grid_spacing_positive"
+            ),
+            models.CheckConstraint(
+                condition=Q(grid_epsg__isnull=True) | Q(custom_grid__isnull=True), name="job_one_grid"
             ),
         ]
 

@@ -6,8 +6,8 @@ published position itself, same frame and epoch: nothing is transformed), networ
 stored covariance (:func:`registry.geodesy.accuracy.network_accuracy_95_m`, FGDC-STD-007.2-1998, with
 :func:`~registry.geodesy.accuracy.accuracy_class` and the wording of
 :func:`registry.geodesy.statements.fgdc_statement_lines`), orthometric heights from the mark's height
-records or H = h − N with the office's geoid model where that model is tied to the position's frame
-(the EGM96 fallback, labelled approximate, for any frame). Numbers are formatted here, once, the way the
+records, and H = h − N with the office's geoid model, the height first taken into the frame the model is
+tied to by the geodesy core (the EGM96 fallback is labelled approximate). Numbers are formatted here, once, the way the
 pages print them (``registry.web.templatetags.registry_format``), so the PDF and the tests read the
 same strings.
 
@@ -170,16 +170,6 @@ def _office_grid():
     return int(raw) if raw.isdigit() else "utm"
 
 
-def _geoid_for(frame_epsg: int, geoid: GeoidModel | None) -> GeoidModel | None:
-    """The geoid model to apply to a position in ``frame_epsg``: the office model only in its own frame."""
-    if geoid is None:
-        return None
-    if geoid.approximate:
-        return geoid
-    tied = str(settings.REGISTRY.get("GEOID_FRAME_EPSG") or "").strip()
-    return geoid if tied.isdigit() and int(tied) == frame_epsg else None
-
-
 def _cov(p: Position) -> np.ndarray:
     return np.array(
         [
@@ -203,7 +193,7 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
             h_m=p.h_m,
             grid=grid,
             grid_explicit=False,
-            geoid=_geoid_for(p.frame_epsg, geoid),
+            geoid=geoid,
         )
     except ConversionError as exc:
         raise FrameTransformError(str(exc), code=exc.code) from exc
@@ -231,14 +221,10 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
         warnings.extend(w for w in c.warnings if w.startswith("No grid"))
     height_rows: list[Row] = []
     if c.orthometric_height_m is not None:
-        label = c.geoid.label
-        height_rows.append(
-            Row(
-                "Orthometric height H = h − N",
-                f"{format_m3(c.orthometric_height_m)} m",
-                f"N = {c.geoid_height_m:.3f} m from {label}",
-            )
-        )
+        note = f"N = {c.geoid_height_m:.3f} m from {c.geoid.label}"
+        if c.geoid_steps and c.geoid.frame_epsg:
+            note += f", with h taken in EPSG:{c.geoid.frame_epsg} ({c.h_geoid_frame_m:.3f} m), the model's frame"
+        height_rows.append(Row("Orthometric height H = h − N", f"{format_m3(c.orthometric_height_m)} m", note))
     if p.has_velocity:
         vel = f"E {p.vel_e_m_yr * 1000:+.1f}  N {p.vel_n_m_yr * 1000:+.1f}  U {p.vel_u_m_yr * 1000:+.1f}"
         rows.append(Row("Velocity", vel, "mm/yr, in this frame"))

@@ -12,7 +12,7 @@ The workflow (brief §2, issue 8):
 - **sign**: a signatory with a licence on their profile and a valid, unrevoked certificate, who types
   their password again, signs exactly the checked bytes (PAdES, ``registry.reports.signing``). The
   previous signed revision of the subject becomes ``superseded`` in the same transaction. From then on
-  the row is frozen (database triggers, migration ``0008_signed_document_triggers``).
+  the row is frozen (database triggers, migration ``0009_signed_document_triggers``).
 - **out of date**: :func:`documents_mark_changed` is called by the mark and position services inside
   their transactions; the signed documents that print that mark are flagged (never edited) and listed
   for the signatories to reissue.

@@ -57,6 +57,7 @@ EDITABLE_FIELDS: tuple[str, ...] = (
     "frame_epsg",
     "epoch_yr",
     "grid_epsg",
+    "custom_grid",
     "tol_h_mm",
     "tol_v_mm",
     "rtk_h_fixed_mm",
@@ -75,7 +76,7 @@ EDITABLE_FIELDS: tuple[str, ...] = (
 )
 CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS)
 REQUIRED_ON_CREATE = ("code", "name", "site_geojson", "frame_epsg", "epoch_yr", "tol_h_mm", "tol_v_mm")
-NULLABLE = {"grid_epsg", "grid_spacing_m"}
+NULLABLE = {"grid_epsg", "custom_grid", "grid_spacing_m"}
 
 
 def _settings_defaults() -> dict[str, float]:
@@ -141,6 +142,24 @@ def _epsg(field: str, value: Any) -> int | None:
     return code
 
 
+def _custom_grid(value: Any):
+    """A custom grid's code → the stored grid (None for empty)."""
+    from registry.models import CustomGrid
+
+    if value is None or value == "":
+        return None
+    if isinstance(value, CustomGrid):
+        return value
+    if not isinstance(value, str):
+        raise field_error("custom_grid", "Expected a custom grid's code.", "invalid_grid")
+    grid = CustomGrid.objects.filter(code=value.strip().upper()).first()
+    if grid is None:
+        raise field_error(
+            "custom_grid", f"No custom grid '{value.strip()}' is stored (see the list of custom grids).", "invalid_grid"
+        )
+    return grid
+
+
 def _site(value: Any) -> dict:
     try:
         parsed = site_geo.parse_site_geojson(value)
@@ -182,6 +201,8 @@ def _clean(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
                 cleaned[key] = _number(key, value)
             elif key in ("frame_epsg", "grid_epsg"):
                 cleaned[key] = _epsg(key, value)
+            elif key == "custom_grid":
+                cleaned[key] = _custom_grid(value)
             elif key == "site_geojson":
                 cleaned[key] = _site(value)
             elif key in TEXT_FIELDS:
@@ -214,6 +235,20 @@ def _validate_whole(job: Job) -> None:
     """Checks across fields: the name is there, and the grid spacing suits the site."""
     if not job.name:
         raise field_error("name", "A job needs a name.", "required")
+    if job.grid_epsg is not None and job.custom_grid_id is not None:
+        raise field_error(
+            "custom_grid",
+            "Give the deliverable grid either as an EPSG code or as a custom grid, not both.",
+            "two_grids",
+        )
+    if job.custom_grid_id is not None:
+        from registry.geodesy.grid import GridError, resolve_grid
+        from registry.selectors.grids import grid_crs_of
+
+        try:
+            resolve_grid(grid_crs_of(job.custom_grid), frame_epsg=job.frame_epsg)
+        except GridError as exc:
+            raise field_error("custom_grid", str(exc), "invalid_grid") from None
     if job.grid_spacing_m is not None:
         site = site_geo.parse_site_geojson(job.site_geojson)
         try:

@@ -14,6 +14,7 @@ from registry.api.convert import convert_inputs
 from registry.geodesy.convert import ConversionError, display_rows
 from registry.roles import Ability
 from registry.selectors.conversion import point_convert
+from registry.selectors.grids import custom_grids
 from registry.web.views import ability_required
 
 #: Frames offered in the form's suggestion list (any geographic 3D EPSG code is accepted).
@@ -42,7 +43,33 @@ class ConvertForm(forms.Form):
     epoch = forms.FloatField(label="Coordinate epoch (decimal year)", initial=2024.5)
     to_frame = forms.CharField(label="Target frame (EPSG)", required=False, help_text="empty: same frame")
     to_epoch = forms.FloatField(label="Target epoch (decimal year)", required=False, help_text="empty: same epoch")
-    grid = forms.CharField(label="Output grid", required=False, initial="utm", help_text="'utm' or an EPSG code")
+    grid = forms.CharField(
+        label="Output grid",
+        required=False,
+        initial="utm",
+        help_text="'utm', an EPSG code, or the code of one of the office's custom grids",
+    )
+    plate = forms.ChoiceField(
+        label="Plate motion (epoch change without a velocity)",
+        required=False,
+        choices=(),
+        help_text="empty: the office's setting",
+    )
+    vel_e_mm_yr = forms.FloatField(label="Velocity east (mm/yr)", required=False)
+    vel_n_mm_yr = forms.FloatField(label="Velocity north (mm/yr)", required=False)
+    vel_u_mm_yr = forms.FloatField(
+        label="Velocity up (mm/yr)", required=False, help_text="the point's own velocity, in the input frame"
+    )
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        from registry.geodesy.platemotion import PLATES
+
+        self.fields["plate"].choices = [
+            ("", "the office's setting"),
+            ("AUTO", "from the point's location"),
+            *[(code, f"{p.name} ({code})") for code, p in sorted(PLATES.items())],
+        ]
 
     def conversion_inputs(self) -> dict:
         data = dict(self.cleaned_data)
@@ -56,7 +83,7 @@ class ConvertForm(forms.Form):
         for key in ("lat", "lon", "h", "x", "y", "z", "easting", "northing", "grid_in"):
             if key not in keep[chosen]:
                 data[key] = None
-        for key in ("lat", "lon", "grid_in", "to_frame", "grid"):
+        for key in ("lat", "lon", "grid_in", "to_frame", "grid", "plate"):
             if data.get(key) == "":
                 data[key] = None
         if chosen == "geodetic" and (data["lat"] is None or data["lon"] is None or data["h"] is None):
@@ -79,6 +106,8 @@ _FIELD_FOR = {
     "epoch": "epoch",
     "to_epoch": "to_epoch",
     "grid": "grid",
+    "plate": "plate",
+    "velocity": "vel_e_mm_yr",
 }
 
 
@@ -99,6 +128,7 @@ def convert_page(request: HttpRequest) -> HttpResponse:
         "result": result,
         "display": display,
         "common_frames": COMMON_FRAMES,
+        "custom_grids": list(custom_grids()),
         "status": 200,
     }
     status = 400 if submitted and form.errors else 200

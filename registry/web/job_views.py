@@ -92,6 +92,7 @@ class JobForm(forms.Form):
         help_text="e.g. 6319 NAD83(2011), 7912 ITRF2014, 9989 ITRF2020",
     )
     grid_epsg = _text("Deliverable grid (EPSG; empty: UTM zone chosen automatically)")
+    custom_grid = _text("…or one of the office's custom grids (its code)")
     rtk_combination = forms.ChoiceField(
         label="RTK error combination", choices=RtkCombination.choices, initial=RtkCombination.ADDITIVE
     )
@@ -147,7 +148,7 @@ class JobForm(forms.Form):
         for n in names:
             value = self.cleaned_data.get(n)
             data[n] = value.strip() if isinstance(value, str) else value
-        for n in ("grid_epsg", "grid_spacing_m"):
+        for n in ("grid_epsg", "custom_grid", "grid_spacing_m"):
             if n in data and data[n] == "":
                 data[n] = None
         if not only_changed:
@@ -170,6 +171,7 @@ def _initial(job: Job) -> dict:
         for name in ("name", "client", "status", "frame_epsg", "grid_epsg", "rtk_combination", "rtk_h_meaning", "notes")
     }
     initial["grid_epsg"] = "" if job.grid_epsg is None else str(job.grid_epsg)
+    initial["custom_grid"] = job.custom_grid_id or ""
     initial["frame_epsg"] = str(job.frame_epsg)
     for name, _ in NUMBER_FIELDS:
         value = getattr(job, name)

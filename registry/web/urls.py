@@ -8,6 +8,7 @@ from registry.web import (
     convert_views,
     document_views,
     fieldwork_views,
+    grid_views,
     import_views,
     job_views,
     mark_views,
@@ -47,6 +48,7 @@ urlpatterns: list = [
     path("tools/accuracy/", accuracy_page, name="accuracy"),
     # tools (geodesy area)
     path("tools/convert/", convert_views.convert_page, name="convert"),
+    path("tools/grids/", grid_views.grid_list, name="grid-list"),
     # jobs and base screening (screening area)
     path("jobs/", job_views.job_list, name="job-list"),
     path("jobs/new/", job_views.job_new, name="job-create"),

@@ -1,4 +1,4 @@
-"""A signed document never changes (migration 0008 triggers + Document.save/delete), on SQLite and PostgreSQL.
+"""A signed document never changes (migration 0009 triggers + Document.save/delete), on SQLite and PostgreSQL.
 
 (Here rather than in tests/models/ for the signed-document fixtures of tests/documents/conftest.py.)
 
@@ -23,14 +23,14 @@ from registry.models import (
     DocumentState,
 )
 
-M0008 = importlib.import_module("registry.migrations.0008_signed_document_triggers")
+M0009 = importlib.import_module("registry.migrations.0009_signed_document_triggers")
 
 pytestmark = pytest.mark.django_db
 
 
 def test_column_lists_match_the_model():
-    assert list(M0008.FROZEN) == list(DOCUMENT_FROZEN_FIELDS)
-    assert tuple(M0008.ISSUED) == DOCUMENT_ISSUED_STATES
+    assert list(M0009.FROZEN) == list(DOCUMENT_FROZEN_FIELDS)
+    assert tuple(M0009.ISSUED) == DOCUMENT_ISSUED_STATES
     columns = {f.attname for f in Document._meta.concrete_fields}
     assert set(DOCUMENT_FROZEN_FIELDS) | set(DOCUMENT_STANDING_FIELDS) | {"id"} == columns
 

@@ -82,7 +82,7 @@ def test_command_json_has_the_specified_keys_in_the_target_frame_and_epoch():
     assert data["epoch"] == 2020.0
     assert data["lat_deg"] == pytest.approx(FLINDERS_LAT, abs=1e-8)
     assert data["x_m"] == pytest.approx(FLINDERS_XYZ[0], abs=1e-3)
-    assert data["grid_crs"] == {"epsg": None, "name": "ITRF2014 / UTM zone 55S"}
+    assert data["grid_crs"] == {"epsg": None, "name": "ITRF2014 / UTM zone 55S", "custom_code": None}
     assert data["geoid_model"]["label"] == EGM96_LABEL
     assert data["orthometric_height_m"] == pytest.approx(data["h_m"] - data["geoid_model"]["geoid_height_m"], abs=1e-3)
 

@@ -360,7 +360,7 @@ def test_plate_motion_step_names_the_model_in_the_chain():
     assert "(-15.4, -8.5, -0.0) mm/yr east, north, up × +13.000 yr" in text
     assert "residual rate 2 mm/yr per axis × 13.000 yr" in text
     assert not any("NOT modelled" in w for w in r.warnings)
-    assert any("rigid motion of the NOAM plate" in w for w in r.warnings)
+    assert any("rigid motion of the North American (NOAM) plate" in w for w in r.warnings)
 
 
 def test_plate_setting_off_is_the_old_behaviour():

@@ -52,9 +52,9 @@ def test_command_chain_names_the_plate_model_and_the_point_moves(settings):
         )
     )
     # |v_horizontal| · 13 yr = √(15.407² + 8.536²) mm/yr × 13 = 17.614 × 13 ≈ 229 mm (see test_frames, PROJ value);
-    # the JSON rounds degrees to 9 places (≈ 0.1 mm).
+    # the JSON carries degrees unrounded.
     assert (e**2 + n**2) ** 0.5 == pytest.approx(0.2290, abs=5e-4)
-    assert data["added_sigma_mm"] == 26.0
+    assert data["added_sigma_mm"] == pytest.approx(26.0, abs=1e-9)
     assert data["chain"][0]["kind"] == "plate_motion"
 
 

@@ -256,6 +256,9 @@ def test_json_rounding_and_keys():
     for key in ("horizontal_95_m", "vertical_95_m", "horizontal_class", "vertical_class", "statement"):
         assert key in r
     assert r["vertical_95_m"] is None and r["vertical_class"] is None
-    # K(0.75) × 4 mm = 8.7396 mm (standard's polynomial) → 0.0087 m at 4 decimals (0.1 mm)
-    assert r["horizontal_95_m"] == 0.0087
-    assert r["k_factor"] == round(1.960790 + 0.004071 * 0.75 + 0.114276 * 0.75**2 + 0.371625 * 0.75**3, 6)
+    # Machine output keeps its precision (issue 7): K(0.75) × 4 mm with the standard's polynomial
+    # (FGDC-STD-007.2-1998; hand formula here), unrounded — no longer 0.0087 (0.1 mm rounding).
+    k = 1.960790 + 0.004071 * 0.75 + 0.114276 * 0.75**2 + 0.371625 * 0.75**3
+    assert r["horizontal_95_m"] == pytest.approx(k * 0.004, rel=1e-12)
+    assert r["horizontal_95_m"] != round(r["horizontal_95_m"], 4)
+    assert r["k_factor"] == pytest.approx(k, rel=1e-12)

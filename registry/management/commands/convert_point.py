@@ -1,7 +1,8 @@
 """``python manage.py convert_point`` — one point in every form, in a target frame and epoch.
 
     python manage.py convert_point (--lat DEG --lon DEG --h M | --xyz X Y Z | --en E N --grid-in EPSG [--h M])
-        --frame EPSG --epoch YEAR [--to-frame EPSG] [--to-epoch YEAR] [--grid EPSG|utm] [--json]
+        --frame EPSG --epoch YEAR [--to-frame EPSG] [--to-epoch YEAR] [--grid EPSG|utm|CODE]
+        [--plate AUTO|CODE | --velocity VE VN VU] [--json]
 
 Latitude/longitude accept decimal degrees or DMS ("45 12 03.5 N", "-110:36:00"). The same
 conversion is on the page /tools/convert/ and at /api/convert/ (same function, same JSON keys).
@@ -39,7 +40,22 @@ class Command(BaseCommand):
         parser.add_argument(
             "--to-epoch", dest="to_epoch", type=float, help="target epoch (decimal year); default: --epoch"
         )
-        parser.add_argument("--grid", help="output grid: EPSG code of a projected CRS, or 'utm' (default)")
+        parser.add_argument(
+            "--grid", help="output grid: EPSG code of a projected CRS, 'utm' (default), or a custom grid's code"
+        )
+        motion = parser.add_mutually_exclusive_group()
+        motion.add_argument(
+            "--plate",
+            help="plate motion for an epoch change without a velocity: AUTO (from the location) or an "
+            "ITRF2020-PMM plate code (NOAM, EURA, AUST, ...); default: the office's setting",
+        )
+        motion.add_argument(
+            "--velocity",
+            nargs=3,
+            type=float,
+            metavar=("VE", "VN", "VU"),
+            help="the point's own velocity east, north, up (mm/yr) in the input frame",
+        )
         parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
 
     def handle(self, *args, **opts):
@@ -55,8 +71,14 @@ class Command(BaseCommand):
         if opts["grid_in"] and en is None:
             raise CommandError("--grid-in goes with --en E N.")
         grid = opts["grid"]
+        extra = {}
+        if opts["plate"]:
+            extra["plate"] = opts["plate"]
+        if opts["velocity"] is not None:
+            extra["velocity_enu_m_yr"] = tuple(v / 1000.0 for v in opts["velocity"])
         try:
             result = point_convert(
+                **extra,
                 frame_epsg=opts["frame"],
                 epoch_yr=opts["epoch"],
                 lat=lat,

@@ -470,10 +470,10 @@ class _audit_guard_lifted(_delete_guard_lifted):
 
 
 class _document_guard_lifted(_delete_guard_lifted):
-    """The guard that keeps signed and superseded documents (migration 0008)."""
+    """The guard that keeps signed and superseded documents (migration 0009)."""
 
     table, sqlite_trigger, pg_trigger = "registry_document", "document_no_delete", "document_no_delete"
-    migration = "0008_signed_document_triggers"
+    migration = "0009_signed_document_triggers"
 
 
 class _position_guard_lifted(_delete_guard_lifted):

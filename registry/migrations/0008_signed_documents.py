@@ -8,7 +8,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('registry', '0006_own_vocabulary_and_suspect'),
+        ('registry', '0007_custom_grids'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 

@@ -116,5 +116,5 @@ def backward(apps, schema_editor):
 
 
 class Migration(migrations.Migration):
-    dependencies = [("registry", "0007_signed_documents")]
+    dependencies = [("registry", "0008_signed_documents")]
     operations = [migrations.RunPython(forward, backward)]
