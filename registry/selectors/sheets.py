@@ -227,7 +227,7 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
         height_rows.append(Row("Orthometric height H = h − N", f"{format_m3(c.orthometric_height_m)} m", note))
     if p.has_velocity:
         vel = f"E {p.vel_e_m_yr * 1000:+.1f}  N {p.vel_n_m_yr * 1000:+.1f}  U {p.vel_u_m_yr * 1000:+.1f}"
-        rows.append(Row("Velocity", vel, "mm/yr, in this frame"))
+        rows.append(Row("Velocity", vel, "mm/yr"))
     else:
         rows.append(Row("Velocity", "none known", "valid at its epoch"))
     h95, v95 = acc.network_accuracy_95_m(_cov(p))
