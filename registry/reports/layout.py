@@ -98,6 +98,9 @@ def styles() -> dict[str, ParagraphStyle]:
             "h2", parent=base, fontName="Doc-Bold", fontSize=10, leading=13, spaceBefore=7, spaceAfter=3
         ),
         "h3": ParagraphStyle("h3", parent=base, fontName="Doc-Bold", fontSize=8.8, leading=11, spaceBefore=3),
+        "h3grey": ParagraphStyle(
+            "h3grey", parent=base, fontName="Doc-Bold", fontSize=8.8, leading=11, spaceBefore=3, textColor=GREY
+        ),
         "alarm": ParagraphStyle("alarm", parent=base, fontName="Doc-Bold", fontSize=11, leading=14.5),
         "caution": ParagraphStyle("caution", parent=base, fontSize=7.6, leading=9.6, leftIndent=8, bulletIndent=0),
     }
@@ -108,15 +111,66 @@ def esc(text: str) -> str:
     return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
-def para(text: str, style: str = "body") -> Paragraph:
-    return Paragraph(esc(text).replace("\n", "<br/>"), styles()[style])
+class TextLine(Flowable):
+    """One line of text in one or more styled segments: what a Paragraph does for a heading, without
+    parsing and line breaking (sheets print dozens of them; see benchmarks/bench_documents.py)."""
+
+    def __init__(self, segments: list[tuple[str, ParagraphStyle]], style: ParagraphStyle):
+        super().__init__()
+        self.segments = segments
+        self.style = style
+        self.spaceBefore = style.spaceBefore
+        self.spaceAfter = style.spaceAfter
+
+    def wrap(self, avail_width, avail_height):
+        self.width = avail_width
+        self.height = self.style.leading
+        return self.width, self.height
+
+    def draw(self):
+        c = self.canv
+        x = 0.0
+        baseline = self.style.leading - self.style.fontSize
+        for text, st in self.segments:
+            c.setFont(st.fontName, st.fontSize)
+            c.setFillColor(st.textColor)
+            c.drawString(x, baseline, text)
+            x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
+
+
+def _fits(text: str, st: ParagraphStyle, width: float) -> bool:
+    return "\n" not in text and pdfmetrics.stringWidth(text, st.fontName, st.fontSize) <= width
+
+
+#: Usable width of the narrowest page (Letter is wider than A4), for one-line decisions made before layout.
+LINE_WIDTH = A4[0] - 2 * MARGIN
+
+
+def para(text: str, style: str = "body", width: float | None = None):
+    """``text`` in ``style``: one drawn line when it fits on one (of ``width``, default the text column),
+    else a wrapping Paragraph."""
+    st = styles()[style]
+    text = "" if text is None else str(text)
+    if text and _fits(text, st, (width or LINE_WIDTH) - 2):
+        return TextLine([(text, st)], st)
+    return Paragraph(esc(text).replace("\n", "<br/>"), st)
+
+
+def segments(parts: list[tuple[str, str]], style: str):
+    """A one-line heading in several styles (``parts`` of (text, style name)); wraps when too long."""
+    st = styles()[style]
+    segs = [(t, styles()[name]) for t, name in parts]
+    total = sum(pdfmetrics.stringWidth(t, s.fontName, s.fontSize) for t, s in segs)
+    if total <= LINE_WIDTH - 2:
+        return TextLine(segs, st)
+    return Paragraph("".join(esc(t) for t, _ in parts), st)
 
 
 def fit(text: str, style: str, width: float):
-    """``text`` as a plain string when it fits on one line of ``width`` points (fast), else a Paragraph."""
+    """``text`` as a plain string when each of its lines fits in ``width`` points (fast), else a Paragraph."""
     text = "" if text is None else str(text)
     st = styles()[style]
-    if "\n" not in text and pdfmetrics.stringWidth(text, st.fontName, st.fontSize) <= width:
+    if all(pdfmetrics.stringWidth(line, st.fontName, st.fontSize) <= width for line in text.split("\n")):
         return text
     return Paragraph(esc(text).replace("\n", "<br/>"), st)
 

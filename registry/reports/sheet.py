@@ -24,7 +24,6 @@ __all__ = ["closing", "render_sheet", "sheet_story"]
 
 
 def _position_flowables(block: PositionBlock, width: float) -> list:
-    st = L.styles()
     half = (width - 8) / 2
     left = L.facts_table([(r.label, r.value, r.note) for r in block.rows], (0.30 * half, 0.40 * half, 0.30 * half))
     if block.grid_rows:
@@ -35,9 +34,7 @@ def _position_flowables(block: PositionBlock, width: float) -> list:
         right = L.para("No grid coordinates for this position.", "grey")
     pair = Table([[left, right]], colWidths=[half + 8, half])
     pair.setStyle(TableStyle(L.PLAIN))
-    head = L.Paragraph(
-        f"{L.esc(block.title)} <font color='#6b6b6b'>· coordinate epoch</font> {L.esc(block.epoch)}", st["h3"]
-    )
+    head = L.segments([(block.title + " ", "h3"), ("· coordinate epoch ", "h3grey"), (block.epoch, "h3")], "h3")
     lines = list(block.accuracy_lines)
     lines += [r.label + ": " + r.value + (f" ({r.note})" if r.note else "") for r in block.height_rows]
     box = Table(
@@ -87,7 +84,6 @@ def sheet_story(
 
     ``verify_url`` None: no QR code (in a report the report's own QR code and signature cover the appendix).
     """
-    st = L.styles()
     mark = content.mark
     story: list = []
 
@@ -108,13 +104,13 @@ def sheet_story(
 
     qr_size = 27 * mm if verify_url else 0.0
     title_cell = [
-        L.Paragraph(f"{L.esc(title_prefix)}Mark {L.esc(mark.code)}", st["title"]),
+        L.para(f"{title_prefix}Mark {mark.code}", "title"),
         L.para(f"Status: {content.status_words}", "subtitle"),
         Spacer(1, 5),
         L.facts_table([(r.label, r.value) for r in content.description[1:]], (30 * mm, width - qr_size - 36 * mm)),
     ]
     if verify_url:
-        qr_cell = [L.QrCode(verify_url, qr_size), L.para("Scan to verify this document", "grey")]
+        qr_cell = [L.QrCode(verify_url, qr_size), L.para("Scan to verify this document", "grey", width=qr_size)]
         top = Table([[title_cell, qr_cell]], colWidths=[width - qr_size - 4, qr_size + 4])
     else:
         top = Table([[title_cell]], colWidths=[width])
@@ -165,7 +161,7 @@ def sheet_story(
         for att in content.photos:
             img = _photo(att, 0.48 * width, 29 * mm)
             if img is not None:
-                photos += [img, L.para(att.caption or att.original_name, "grey"), Spacer(1, 2)]
+                photos += [img, L.para(att.caption or att.original_name, "grey", width=0.48 * width), Spacer(1, 2)]
     side = photos or [L.para("No photo on record.", "grey")]
     vic = Table([[diagram, side]], colWidths=[diag_w + 6, width - diag_w - 6])
     vic.setStyle(TableStyle(L.PLAIN))
