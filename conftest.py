@@ -38,6 +38,12 @@ def _fresh_cache():
     cache.clear()
 
 
+@pytest.fixture(autouse=True)
+def _tasks_run_immediately(settings):
+    """Background tasks (document builds) run at once, in the test's own transaction."""
+    settings.TASKS = {"default": {"BACKEND": "django_tasks.backends.immediate.ImmediateBackend"}}
+
+
 @pytest.fixture
 def roles(db):
     from registry.roles import ensure_roles

@@ -98,4 +98,12 @@ cat <<EOF
     Stop the server with Ctrl-C. Start again: bash deploy/demo.sh (keeps the data).
 
 EOF
-exec "$VPY" manage.py runserver "127.0.0.1:$PORT" --noreload
+# Documents: the demo office's name on every sheet, QR codes that open this server's verification page,
+# and a background worker (report builds) beside the server, stopped with it.
+export REGISTRY_OFFICE_NAME="${REGISTRY_OFFICE_NAME:-Corvid County Survey Office (DEMO, invented)}"
+export REGISTRY_PUBLIC_URL="${REGISTRY_PUBLIC_URL:-http://127.0.0.1:$PORT}"
+"$VPY" manage.py db_worker --interval 1 --no-reload >"$DATA_DIR/worker.log" 2>&1 &
+WORKER_PID=$!
+trap 'kill "$WORKER_PID" 2>/dev/null || true' EXIT INT TERM
+info "background worker started (pid $WORKER_PID, log $DATA_DIR/worker.log)"
+"$VPY" manage.py runserver "127.0.0.1:$PORT" --noreload

@@ -225,3 +225,55 @@ def check_audit_role(app_configs=None, databases=None, **kwargs):
                 )
             )
     return warnings
+
+
+# --- documents: fonts, signing secret, page size (documents area; ids registry.E030–E039, W040–W049) ---
+
+
+@register()
+def check_documents(app_configs=None, **kwargs):
+    """registry.E030 report fonts; E031 signing secret in production; E032 page size; W040 public address."""
+    from django.conf import settings
+
+    from registry.reports.layout import FONT_DIRS, FONT_FILES, font_path
+
+    messages = []
+    missing = [f for f in FONT_FILES.values() if font_path(f) is None]
+    if missing:
+        messages.append(
+            Error(
+                f"Fonts for documents are missing: {', '.join(missing)} (looked in {', '.join(FONT_DIRS)}).",
+                hint="Install the Debian package fonts-dejavu-core (deploy/test.sh and demo.sh do).",
+                id="registry.E030",
+            )
+        )
+    reg = settings.REGISTRY
+    if getattr(settings, "PRODUCTION", False) and len(reg.get("SIGNING_KEY_SECRET") or "") < 32:
+        messages.append(
+            Error(
+                "REGISTRY_SIGNING_KEY_SECRET is unset or shorter than 32 characters: signing keys cannot be stored "
+                "safely.",
+                hint='Generate one: python3 -c "import secrets; print(secrets.token_urlsafe(48))"; keep a copy in '
+                "the office's safe (see deploy/README.md).",
+                id="registry.E031",
+            )
+        )
+    if str(reg.get("PAGE_SIZE", "A4")).lower() not in ("a4", "letter"):
+        messages.append(
+            Error(
+                f"REGISTRY_PAGE_SIZE is {reg.get('PAGE_SIZE')!r}; documents are printed on A4 or Letter.",
+                hint="Set REGISTRY_PAGE_SIZE=A4 or REGISTRY_PAGE_SIZE=Letter.",
+                id="registry.E032",
+            )
+        )
+    public = str(reg.get("PUBLIC_URL") or "")
+    if getattr(settings, "PRODUCTION", False) and not public.startswith("https://"):
+        messages.append(
+            Warning(
+                f"REGISTRY_PUBLIC_URL is {public!r}: the QR codes of documents and the revocation list address in "
+                "certificates should name the registry's public https address.",
+                hint="Set REGISTRY_PUBLIC_URL=https://registry.example.org (no trailing slash).",
+                id="registry.W040",
+            )
+        )
+    return messages

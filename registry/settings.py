@@ -51,6 +51,8 @@ INSTALLED_APPS = [
     "rest_framework.authtoken",
     "drf_spectacular",
     "drf_spectacular_sidecar",  # Swagger UI files served from our own static files (no CDN, works offline)
+    "django_tasks",
+    "django_tasks_db",
     "registry.apps.RegistryConfig",
 ]
 
@@ -230,7 +232,39 @@ REGISTRY = {
     # PostgreSQL role the application logs in as in production; after each migrate run as the owner it
     # gets rows only, and INSERT/SELECT on the audit trail (registry/dbroles.py). Empty: no grants.
     "DB_RUNTIME_ROLE": os.environ.get("REGISTRY_DB_RUNTIME_ROLE", "").strip(),
+    # Documents (station description sheets, control reports; registry/reports/).
+    "OFFICE_NAME": os.environ.get("REGISTRY_OFFICE_NAME", "Survey office (set REGISTRY_OFFICE_NAME)").strip(),
+    # PNG or JPEG drawn in the documents' heading; empty: none.
+    "OFFICE_LOGO": os.environ.get("REGISTRY_OFFICE_LOGO", "").strip(),
+    "PAGE_SIZE": os.environ.get("REGISTRY_PAGE_SIZE", "A4").strip(),
+    # Frames (EPSG codes, comma-separated) a sheet prints; empty: every published position of the mark.
+    "SHEET_FRAMES": os.environ.get("REGISTRY_SHEET_FRAMES", "").strip(),
+    # The office's grid (EPSG code of a projected CRS); empty: the UTM zone of each mark.
+    "GRID_EPSG": os.environ.get("REGISTRY_GRID_EPSG", "").strip(),
+    # The office geoid model's name as documents and pages print it (default: its file name).
+    "GEOID_NAME": os.environ.get("REGISTRY_GEOID_NAME", "").strip(),
+    # Statement style for check-point residuals uploaded with a control report: nssda or asprs2023.
+    "REPORT_STATEMENT_STYLE": os.environ.get("REGISTRY_REPORT_STATEMENT_STYLE", "nssda").strip(),
+    # Address the QR codes of documents open (the public verification page); no trailing slash.
+    "PUBLIC_URL": os.environ.get("REGISTRY_PUBLIC_URL", "http://127.0.0.1:8000").strip().rstrip("/"),
+    # Encrypts signing keys at rest (required in production; see deploy/README.md).
+    "SIGNING_KEY_SECRET": os.environ.get(
+        "REGISTRY_SIGNING_KEY_SECRET", "" if PRODUCTION else "dev-only-signing-key-secret-never-in-production"
+    ),
+    # Public verification page: at most this many requests per client address per minute.
+    "VERIFY_RATE_PER_MIN": int(os.environ.get("REGISTRY_VERIFY_RATE_PER_MIN", "30")),
 }
+
+# Background work (document builds) through Django's tasks interface (the django-tasks backport on
+# Django 5.2). "database": the ORM queue of django-tasks-db, worked by ``manage.py db_worker`` (any number
+# of workers, on any machine that reaches the database); "immediate": run in the request (tests). Another
+# backend of the same interface (RQ, Celery) is a settings change: REGISTRY_TASK_BACKEND=dotted.path.
+_TASK_BACKENDS = {
+    "database": "django_tasks_db.DatabaseBackend",
+    "immediate": "django_tasks.backends.immediate.ImmediateBackend",
+}
+_task_backend = os.environ.get("REGISTRY_TASK_BACKEND", "database").strip() or "database"
+TASKS = {"default": {"BACKEND": _TASK_BACKENDS.get(_task_backend, _task_backend)}}
 
 LOGGING = {
     "version": 1,

@@ -107,7 +107,7 @@ def test_systemd_units_verify(tmp_path):
         text = unit.read_text(encoding="utf-8").replace("/srv/registry/app", str(BASE_DIR))
         (tmp_path / unit.name).write_text(text, encoding="utf-8")
     units = sorted(str(p) for p in tmp_path.iterdir())
-    assert len(units) == 3
+    assert len(units) == 4  # registry, registry-worker, registry-backup (.service, .timer)
     proc = subprocess.run(["systemd-analyze", "verify", *units], cwd=tmp_path, capture_output=True, text=True)
     assert proc.returncode == 0, proc.stdout + proc.stderr
     assert proc.stderr.strip() == "", proc.stderr

@@ -24,6 +24,9 @@ PROD = {
     "REGISTRY_PRODUCTION": "1",
     "REGISTRY_SECRET_KEY": GOOD_SECRET,
     "REGISTRY_ALLOWED_HOSTS": "registry.example.org",
+    # documents (registry.E031, registry.W040): signing keys are encrypted with it; QR codes name the address
+    "REGISTRY_SIGNING_KEY_SECRET": "test-only-signing-secret-" + "k" * 20,
+    "REGISTRY_PUBLIC_URL": "https://registry.example.org",
 }
 
 SHOW_SETTINGS = """

@@ -5,6 +5,7 @@ from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerSplitVie
 
 from registry.api import accuracy as accuracy_api  # accuracy area
 from registry.api import convert as convert_api  # geodesy area
+from registry.api import documents as documents_api  # documents area
 from registry.api import exports as exports_api
 from registry.api import fieldwork as fieldwork_api  # fieldwork pages area
 from registry.api import grids as grids_api  # geodesy area
@@ -60,6 +61,16 @@ urlpatterns = [
     path("jobs/<str:code>/", jobs_api.JobDetailView.as_view(), name="job-detail"),
     path("jobs/<str:code>/screening/", jobs_api.JobScreeningView.as_view(), name="job-screening"),
     path("screening/", jobs_api.SiteScreeningView.as_view(), name="screening"),
+    # documents: sheets, control reports, signing, public verification (documents area)
+    path("marks/<str:code>/sheet/", documents_api.SheetBuildView.as_view(), name="sheet-build"),
+    path("jobs/<str:code>/report/", documents_api.ReportBuildView.as_view(), name="report-build"),
+    path("documents/", documents_api.DocumentListView.as_view(), name="document-list"),
+    path("documents/builds/<int:build_id>/", documents_api.BuildDetailView.as_view(), name="document-build"),
+    path("documents/<str:code>/", documents_api.DocumentDetailView.as_view(), name="document-detail"),
+    path("documents/<str:code>/pdf", documents_api.DocumentPdfView.as_view(), name="document-pdf"),
+    path("documents/<str:code>/check/", documents_api.DocumentCheckView.as_view(), name="document-check"),
+    path("documents/<str:code>/sign/", documents_api.DocumentSignView.as_view(), name="document-sign"),
+    path("verify/", documents_api.VerifyView.as_view(), name="verify"),
     # point conversion (geodesy area)
     path("convert/", convert_api.ConvertView.as_view(), name="convert"),
     path("grids/", grids_api.CustomGridListView.as_view(), name="grid-list"),

@@ -1,7 +1,19 @@
 """The registry's data model (see the brief's vocabulary)."""
 
 from registry.models.audit import AuditEvent, AuditTrailError
-from registry.models.documents import Document, DocumentKind, DocumentState
+from registry.models.documents import (
+    DOCUMENT_FROZEN_FIELDS,
+    DOCUMENT_ISSUED_STATES,
+    DOCUMENT_STANDING_FIELDS,
+    BuildState,
+    Document,
+    DocumentBuild,
+    DocumentFrozenError,
+    DocumentKind,
+    DocumentMark,
+    DocumentState,
+    PageSize,
+)
 from registry.models.fieldwork import (
     SUSPECT_FINDINGS,
     AntennaHeightKind,
@@ -35,8 +47,20 @@ from registry.models.marks import (
     Stability,
 )
 from registry.models.security import IdempotencyRecord, SigninThrottle
+from registry.models.signing import CertificateAuthority, SignatoryProfile, SigningCertificate
 
 __all__ = [
+    "DOCUMENT_FROZEN_FIELDS",
+    "DOCUMENT_ISSUED_STATES",
+    "DOCUMENT_STANDING_FIELDS",
+    "BuildState",
+    "CertificateAuthority",
+    "DocumentBuild",
+    "DocumentFrozenError",
+    "DocumentMark",
+    "PageSize",
+    "SignatoryProfile",
+    "SigningCertificate",
     "CODE_VALIDATOR",
     "DESCRIPTION_FIELDS",
     "POSITION_FROZEN_FIELDS",

@@ -34,11 +34,14 @@ from registry.roles import Ability
 from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
+from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
 from registry.vocabulary import OLD_MARK_FIELDS, rename_old_keys
 
 # Descriptive fields a manager edits with mark_update (the description block in its display order).
 EDITABLE_FIELDS: tuple[str, ...] = ("name", *DESCRIPTION_FIELDS, "notes")
+# Descriptive fields a station description sheet prints (a change makes its signed sheets out of date).
+SHEET_FIELDS = frozenset(EDITABLE_FIELDS) - {"notes"}
 # Fields accepted when a mark is created (status defaults to active).
 CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS, "status")
 # Fields that exist but change only through their own service.
@@ -243,6 +246,9 @@ def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Ma
                 before={**before, "version": version},
                 after={**diff, "version": mark.version},
             )
+            printed = sorted(set(diff) & SHEET_FIELDS)
+            if printed:
+                documents_mark_changed(mark, f"description changed ({', '.join(printed)})", actor=actor)
     if conflict is not None:
         raise conflict
     return mark
@@ -329,6 +335,7 @@ def mark_set_status(*, actor, code: str, status: str, expected_version: int, not
                 after={"status": status, "version": mark.version, **ending_suspicion},
                 note=note,
             )
+            documents_mark_changed(mark, f"status changed from {before_status} to {status}", actor=actor)
             if status == MarkStatus.ACTIVE:  # back into use: the visits may still say it is suspect
                 from registry.services.suspect import history_suspicion
 

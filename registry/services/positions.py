@@ -38,6 +38,7 @@ from registry.services._input import (
 )
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
+from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
 from registry.services.suspect import lift_suspicion
 
@@ -292,6 +293,7 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             note=note,
             mark=mark,
         )
+        documents_mark_changed(mark, f"position published in EPSG:{position.frame_epsg}", actor=actor)
     return position
 
 
@@ -346,4 +348,5 @@ def position_withdraw(*, actor, position_id: int, note: str) -> Position:
             note=note,
             mark=mark,
         )
+        documents_mark_changed(mark, f"published position in EPSG:{position.frame_epsg} withdrawn", actor=actor)
     return position

@@ -44,6 +44,7 @@ from registry.roles import Ability
 from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code
 from registry.services.audit import audit_record
+from registry.services.documents import documents_mark_changed
 
 #: Longest reason stored (the model's max_length).
 REASON_MAX = 200
@@ -120,6 +121,7 @@ def mark_make_suspect(*, mark: Mark, reason: str, since: dt.date, actor, note: s
         },
         note=note,
     )
+    documents_mark_changed(mark, f"status changed from active to suspect ({reason})", actor=actor)
     return True
 
 
@@ -227,6 +229,7 @@ def mark_clear_suspect(*, actor, code: str, note: str, expected_version: Any) ->
                 },
                 note=note,
             )
+            documents_mark_changed(mark, "status changed from suspect to active (cleared)", actor=actor)
     if conflict is not None:
         raise conflict
     return mark

@@ -13,9 +13,10 @@ from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 
 from registry.errors import Conflict
-from registry.models import Mark
+from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
 from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_search, mark_status_counts
+from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
 from registry.web.views import ability_required
@@ -58,6 +59,11 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
         "mark": detail.mark,
         "can_manage": has_ability(request.user, Ability.MANAGE),
         "can_record": has_ability(request.user, Ability.RECORD),
+        # documents area: the mark's current and open sheets, and whether the user may prepare one
+        "sheets": Document.objects.filter(mark=detail.mark, state__in=("signed", "draft", "checked")).order_by(
+            "-revision"
+        )[:3],
+        "can_prepare": can_prepare(request.user),
     }
     return render(request, "registry/mark_detail.html", context)
 

@@ -6,6 +6,7 @@ from django.urls import path
 from registry.web import (
     auth_views,
     convert_views,
+    document_views,
     fieldwork_views,
     grid_views,
     import_views,
@@ -59,6 +60,21 @@ urlpatterns: list = [
     path("jobs/<str:code>/notes/", job_views.job_notes, name="job-notes"),
     path("jobs/<str:code>/control.csv", job_views.job_export_csv, name="job-export-csv"),
     path("jobs/<str:code>/control.geojson", job_views.job_export_geojson, name="job-export-geojson"),
+    # documents: sheets, control reports, signing; public verification (documents area)
+    path("marks/<str:code>/sheet/", document_views.sheet_build_view, name="sheet-build"),
+    path("jobs/<str:code>/report/", document_views.report_build_view, name="report-build"),
+    path("documents/", document_views.document_list, name="document-list"),
+    path("documents/builds/<int:build_id>/", document_views.build_page, name="document-build"),
+    path("documents/builds/<int:build_id>/status.json", document_views.build_status_json, name="document-build-status"),
+    path("documents/builds/<int:build_id>/retry/", document_views.build_retry_view, name="document-build-retry"),
+    path("documents/<str:code>/", document_views.document_page, name="document-detail"),
+    path("documents/<str:code>/pdf/", document_views.document_download, name="document-pdf"),
+    path("documents/<str:code>/check/", document_views.document_check_view, name="document-check"),
+    path("documents/<str:code>/sign/", document_views.document_sign_view, name="document-sign"),
+    path("verify/", document_views.verify_page, name="verify-upload"),
+    path("verify/<str:code>/", document_views.verify_page, name="verify"),
+    path("ca/office-ca.pem", document_views.ca_certificate, name="ca-certificate"),
+    path("ca/office-ca.crl", document_views.ca_crl, name="ca-crl"),
     # uploaded files in development (DEBUG); the web server serves them in production
     path(f"{settings.MEDIA_URL.strip('/')}/<path:path>", views.media_file, name="media"),
 ]

@@ -33,12 +33,15 @@ from django.db.models import ProtectedError, Q
 from registry.models import (
     Attachment,
     AuditEvent,
+    CertificateAuthority,
     Document,
     HeightRecord,
     Job,
     Mark,
     Occupation,
     Position,
+    SignatoryProfile,
+    SigningCertificate,
     Visit,
 )
 from registry.models.audit import GENESIS_HASH, row_hash_of
@@ -48,6 +51,9 @@ from registry.services.audit import snapshot
 from registry.services.suspect import suspects_from_history
 
 REGISTRY_START = dt.datetime(2011, 6, 1, tzinfo=dt.UTC)
+#: The demo signatory's invented licence (printed in the signature box of what she signs).
+DEMO_LICENCE = "DEMO-0412"
+DEMO_JURISDICTION = "Corvid State Board of Survey Licensure (invented, DEMO)"
 
 
 def _scenario():
@@ -107,6 +113,10 @@ class Command(BaseCommand):
             self.stdout.write(
                 f"  {u.role:<10} {u.username:<16} {u.password:<26} {u.first_name} {u.last_name}, {u.title}"
             )
+        self.stdout.write(
+            f"The demo signatory signs with a DEMO certificate (invented licence {DEMO_LICENCE}); signing asks for "
+            "her password again."
+        )
         self.stdout.write("All names, agencies, marks and coordinates are invented. Verify real control in the field.")
 
     def _load(self, scenario, seed) -> dict[str, int]:
@@ -324,7 +334,42 @@ class Command(BaseCommand):
         suspect = suspects_from_history(actor=None, note=note)
         counts["audit events"] = len(events) + len(suspect)
         counts["suspect marks"] = len(suspect)
+        counts.update(self._demo_signing(users))
         return counts
+
+    def _demo_signing(self, users) -> dict[str, int]:
+        """A DEMO certificate authority (unless the office already runs one), the demo signatory's
+        invented licence, and a DEMO signing certificate, through the audited services."""
+        from registry.services.certificates import (
+            active_authority,
+            certificate_issue,
+            office_ca_init,
+            signatory_set_licence,
+        )
+
+        admin, signatory = users["admin"], users["signatory"]
+        made = {}
+        authority = active_authority()
+        if authority is None:
+            authority = office_ca_init(
+                actor=admin, name="DEMO Corvid County signing authority", organisation="DEMO", demo=True
+            )
+            made["DEMO certificate authority"] = 1
+        signatory_set_licence(
+            actor=admin,
+            username=signatory.username,
+            licence_number=DEMO_LICENCE,
+            jurisdiction=DEMO_JURISDICTION,
+        )
+        if authority.is_demo:
+            certificate_issue(actor=admin, username=signatory.username, demo=True)
+            made["DEMO signing certificate"] = 1
+        else:
+            self.stderr.write(
+                "The office already runs a (non-demo) certificate authority: no DEMO certificate was issued to the "
+                "demo signatory."
+            )
+        return made
 
     # ------------------------------------------------------------------------------------------------
     def _wipe(self, codes: list[str], usernames: list[str], job_codes: list[str]) -> dict[str, int]:
@@ -343,10 +388,22 @@ class Command(BaseCommand):
                         | Q(object_type="job", object_id__in=[str(pk) for pk in jobs.values_list("pk", flat=True)])
                     ).delete()[0]
                     _relink_audit_chain()
-                for doc in Document.objects.filter(Q(mark__in=marks) | Q(job__in=jobs)):
-                    if doc.pdf:
-                        doc.pdf.delete(save=False)
-                counts["documents"] = Document.objects.filter(Q(mark__in=marks) | Q(job__in=jobs)).delete()[0]
+                docs = Document.objects.filter(
+                    Q(mark__in=marks) | Q(job__in=jobs) | Q(covered__mark__in=marks) | Q(created_by__in=users)
+                ).distinct()
+                counts["documents"] = 0
+                with _document_guard_lifted():
+                    # newest revision first: a revision refers to the one it supersedes
+                    for doc in sorted(docs, key=lambda d: (-d.revision, -d.pk)):
+                        if doc.pdf:
+                            doc.pdf.delete(save=False)
+                        counts["documents"] += (
+                            Document.objects.filter(pk=doc.pk).delete()[1].get("registry.Document", 0)
+                        )
+                demo_certs = SigningCertificate.objects.filter(user__in=users)
+                counts["signing certificates"] = demo_certs.delete()[0]
+                SignatoryProfile.objects.filter(user__in=users).delete()
+                CertificateAuthority.objects.filter(is_demo=True, certificates__isnull=True).delete()
                 for att in Attachment.objects.filter(mark__in=marks):
                     att.file.delete(save=False)
                 Attachment.objects.filter(mark__in=marks).delete()
@@ -437,6 +494,13 @@ def _relink_audit_chain() -> None:
         if (event.seq, event.prev_hash, event.row_hash) != (seq, prev, digest):
             AuditEvent.objects.filter(pk=event.pk).update(seq=seq, prev_hash=prev, row_hash=digest)
         prev = digest
+
+
+class _document_guard_lifted(_delete_guard_lifted):
+    """The guard that keeps signed and superseded documents (migration 0011)."""
+
+    table, sqlite_trigger, pg_trigger = "registry_document", "document_no_delete", "document_no_delete"
+    migration = "0011_signed_document_triggers"
 
 
 class _position_guard_lifted(_delete_guard_lifted):

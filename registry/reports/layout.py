@@ -1,0 +1,419 @@
+"""The documents' shared look: fonts, styles, the page frame ("page N of M"), QR code, signature block.
+
+Our own calm, print-like layout: black text on white, one grey for rules and labels, DejaVu Sans (its
+digits are tabular, so numbers line up in columns), numbers right-aligned. Every page carries the
+office's name, the document's kind, code, revision and issue date in its heading and "page N of M" in its
+foot. The signature block is an empty box on the signature page; at signing, the visible signature is
+placed in that box (``registry.reports.signing``), and where it is (page, box) is recorded when the PDF
+is built.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT
+from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase.ttfonts import TTFont
+from reportlab.pdfgen import canvas as rl_canvas
+from reportlab.platypus import Flowable, Paragraph, Table, TableStyle
+from reportlab.platypus.doctemplate import BaseDocTemplate, PageTemplate
+from reportlab.platypus.frames import Frame
+
+FONT_DIRS = ("/usr/share/fonts/truetype/dejavu", "/usr/share/fonts/dejavu")
+FONT_FILES = {
+    "Doc": "DejaVuSans.ttf",
+    "Doc-Bold": "DejaVuSans-Bold.ttf",
+    "Doc-Mono": "DejaVuSansMono.ttf",
+}
+INK = colors.black
+GREY = colors.Color(0.42, 0.42, 0.42)
+RULE = colors.Color(0.72, 0.72, 0.72)
+SHADE = colors.Color(0.94, 0.94, 0.94)
+MARGIN = 16 * mm
+
+#: Cautions printed on every document (plain words; the issue's list).
+CAUTIONS = (
+    "Verify a position on site before using it: occupy the mark and take a check shot on a second trusted mark, "
+    "and compare the result with the published coordinates in the same frame and at the same epoch.",
+    "A mark may have been disturbed since it was last visited; the recovery history shows when it was last "
+    "found and in what condition.",
+    "Accuracies are stated at 95 % confidence: the true position lies within the stated figure of the published "
+    "one in about 19 cases out of 20; it can lie further away.",
+    "Use for boundary, engineering or construction work is subject to local regulations and licensed "
+    "professional practice. A licensed surveyor decides whether a mark and its figures are fit for a purpose.",
+)
+
+
+class FontMissing(RuntimeError):
+    """The report fonts are not installed (system check registry.E030 says so at start)."""
+
+
+def font_path(name: str) -> str | None:
+    for d in FONT_DIRS:
+        path = os.path.join(d, name)
+        if os.path.isfile(path):
+            return path
+    return None
+
+
+@lru_cache(maxsize=1)
+def register_fonts() -> None:
+    for alias, filename in FONT_FILES.items():
+        path = font_path(filename)
+        if path is None:
+            raise FontMissing(
+                f"Font {filename} not found in {', '.join(FONT_DIRS)} (Debian package fonts-dejavu-core)."
+            )
+        pdfmetrics.registerFont(TTFont(alias, path))
+    from reportlab.pdfbase.pdfmetrics import registerFontFamily
+
+    registerFontFamily("Doc", normal="Doc", bold="Doc-Bold", italic="Doc", boldItalic="Doc-Bold")
+
+
+def page_size(name: str):
+    return LETTER if str(name).lower() == "letter" else A4
+
+
+@lru_cache(maxsize=1)
+def styles() -> dict[str, ParagraphStyle]:
+    register_fonts()
+    base = ParagraphStyle("body", fontName="Doc", fontSize=8.4, leading=10.6, textColor=INK, alignment=TA_LEFT)
+    return {
+        "body": base,
+        "small": ParagraphStyle("small", parent=base, fontSize=7.2, leading=9.0),
+        "grey": ParagraphStyle("grey", parent=base, fontSize=7.2, leading=9.0, textColor=GREY),
+        "label": ParagraphStyle("label", parent=base, fontSize=7.4, leading=9.2, textColor=GREY),
+        "cell": ParagraphStyle("cell", parent=base, fontSize=7.8, leading=9.6),
+        "title": ParagraphStyle("title", parent=base, fontName="Doc-Bold", fontSize=15, leading=19),
+        "subtitle": ParagraphStyle("subtitle", parent=base, fontSize=9.5, leading=12.5, textColor=GREY),
+        "h2": ParagraphStyle(
+            "h2", parent=base, fontName="Doc-Bold", fontSize=10, leading=13, spaceBefore=7, spaceAfter=3
+        ),
+        "h3": ParagraphStyle("h3", parent=base, fontName="Doc-Bold", fontSize=8.8, leading=11, spaceBefore=3),
+        "h3grey": ParagraphStyle(
+            "h3grey", parent=base, fontName="Doc-Bold", fontSize=8.8, leading=11, spaceBefore=3, textColor=GREY
+        ),
+        "alarm": ParagraphStyle("alarm", parent=base, fontName="Doc-Bold", fontSize=11, leading=14.5),
+        "caution": ParagraphStyle("caution", parent=base, fontSize=7.6, leading=9.6, leftIndent=8, bulletIndent=0),
+    }
+
+
+def esc(text: str) -> str:
+    """Escape text for a reportlab Paragraph."""
+    return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+
+
+class TextLine(Flowable):
+    """One line of text in one or more styled segments: what a Paragraph does for a heading, without
+    parsing and line breaking (sheets print dozens of them; see benchmarks/bench_documents.py)."""
+
+    def __init__(self, segments: list[tuple[str, ParagraphStyle]], style: ParagraphStyle):
+        super().__init__()
+        self.segments = segments
+        self.style = style
+        self.spaceBefore = style.spaceBefore
+        self.spaceAfter = style.spaceAfter
+
+    def wrap(self, avail_width, avail_height):
+        self.width = avail_width
+        self.height = self.style.leading
+        return self.width, self.height
+
+    def draw(self):
+        c = self.canv
+        x = 0.0
+        baseline = self.style.leading - self.style.fontSize
+        for text, st in self.segments:
+            c.setFont(st.fontName, st.fontSize)
+            c.setFillColor(st.textColor)
+            c.drawString(x, baseline, text)
+            x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
+
+
+def _fits(text: str, st: ParagraphStyle, width: float) -> bool:
+    return "\n" not in text and pdfmetrics.stringWidth(text, st.fontName, st.fontSize) <= width
+
+
+#: Usable width of the narrowest page (Letter is wider than A4), for one-line decisions made before layout.
+LINE_WIDTH = A4[0] - 2 * MARGIN
+
+
+def para(text: str, style: str = "body", width: float | None = None):
+    """``text`` in ``style``: one drawn line when it fits on one (of ``width``, default the text column),
+    else a wrapping Paragraph."""
+    st = styles()[style]
+    text = "" if text is None else str(text)
+    if text and _fits(text, st, (width or LINE_WIDTH) - 2):
+        return TextLine([(text, st)], st)
+    return Paragraph(esc(text).replace("\n", "<br/>"), st)
+
+
+def segments(parts: list[tuple[str, str]], style: str):
+    """A one-line heading in several styles (``parts`` of (text, style name)); wraps when too long."""
+    st = styles()[style]
+    segs = [(t, styles()[name]) for t, name in parts]
+    total = sum(pdfmetrics.stringWidth(t, s.fontName, s.fontSize) for t, s in segs)
+    if total <= LINE_WIDTH - 2:
+        return TextLine(segs, st)
+    return Paragraph("".join(esc(t) for t, _ in parts), st)
+
+
+def fit(text: str, style: str, width: float):
+    """``text`` as a plain string when each of its lines fits in ``width`` points (fast), else a Paragraph."""
+    text = "" if text is None else str(text)
+    st = styles()[style]
+    if all(pdfmetrics.stringWidth(line, st.fontName, st.fontSize) <= width for line in text.split("\n")):
+        return text
+    return Paragraph(esc(text).replace("\n", "<br/>"), st)
+
+
+def _font_cmds(style_name: str, cols: tuple[int, int], rows: tuple[int, int] = (0, -1)) -> list:
+    st = styles()[style_name]
+    (c0, c1), (r0, r1) = cols, rows
+    return [
+        ("FONT", (c0, r0), (c1, r1), st.fontName, st.fontSize, st.leading),
+        ("TEXTCOLOR", (c0, r0), (c1, r1), st.textColor),
+    ]
+
+
+PLAIN = [
+    ("VALIGN", (0, 0), (-1, -1), "TOP"),
+    ("LEFTPADDING", (0, 0), (-1, -1), 0),
+    ("RIGHTPADDING", (0, 0), (-1, -1), 4),
+    ("TOPPADDING", (0, 0), (-1, -1), 1.2),
+    ("BOTTOMPADDING", (0, 0), (-1, -1), 1.2),
+]
+
+
+def facts_table(rows: list[tuple[str, ...]], widths: tuple[float, ...], *, styles_by_col=("label", "cell", "grey")):
+    """Rows of label / value [/ note]: labels grey, values wrapped only when they must."""
+    data = [[fit(v, styles_by_col[i], widths[i] - 4) for i, v in enumerate(row)] for row in rows]
+    t = Table(data, colWidths=list(widths))
+    cmds = list(PLAIN)
+    for i in range(len(widths)):
+        cmds += _font_cmds(styles_by_col[i], (i, i))
+    t.setStyle(TableStyle(cmds))
+    return t
+
+
+def grid_table(header: list[str], rows: list[list[str]], widths: list[float], *, numeric: set[int] = frozenset()):
+    """A ruled table with a header row; columns in ``numeric`` right-aligned."""
+    body = [[fit(v, "cell", widths[i] - 5) for i, v in enumerate(r)] for r in rows]
+    head = [fit(h, "label", widths[i] - 5) for i, h in enumerate(header)]
+    t = Table([head, *body], colWidths=widths, repeatRows=1)
+    cmds = [
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("LINEBELOW", (0, 0), (-1, 0), 0.6, INK),
+        ("LINEBELOW", (0, 1), (-1, -1), 0.25, RULE),
+        ("LEFTPADDING", (0, 0), (-1, -1), 2),
+        ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 1.5),
+        *_font_cmds("label", (0, -1), (0, 0)),
+        *_font_cmds("cell", (0, -1), (1, -1)),
+    ]
+    for i in numeric:
+        cmds.append(("ALIGN", (i, 0), (i, -1), "RIGHT"))
+    t.setStyle(TableStyle(cmds))
+    return t
+
+
+# --------------------------------------------------------------------------------------------------
+# QR code (segno), drawn as vector squares
+# --------------------------------------------------------------------------------------------------
+
+
+#: QR data mask pattern (ISO/IEC 18004:2015 §7.8). Fixed instead of chosen by segno's penalty scoring,
+#: which is pure Python and costs ~3 ms per code (a tenth of a sheet's budget); the mask only balances
+#: dark and light modules, any of the eight decodes, and the tests decode every code with zxing-cpp.
+QR_MASK = 2
+
+
+class QrCode(Flowable):
+    """A QR code (segno, error correction M) of ``text``, ``size`` points square, quiet zone included."""
+
+    def __init__(self, text: str, size: float):
+        super().__init__()
+        import segno
+
+        self.text = text
+        self.qr = segno.make(text, error="m", micro=False, mask=QR_MASK)
+        self.size = size
+        self.width = self.height = size
+
+    def draw(self):
+        rows = [list(r) for r in self.qr.matrix_iter(scale=1, border=4)]
+        n = len(rows)
+        cell = self.size / n
+        c = self.canv
+        c.setFillColor(INK)
+        c.setStrokeColor(INK)
+        for i, row in enumerate(rows):
+            j = 0
+            while j < n:
+                if row[j]:
+                    k = j
+                    while k < n and row[k]:
+                        k += 1
+                    c.rect(j * cell, self.size - (i + 1) * cell, (k - j) * cell, cell, stroke=0, fill=1)
+                    j = k
+                else:
+                    j += 1
+
+
+# --------------------------------------------------------------------------------------------------
+# Signature block: an empty box whose page and position are recorded for the signing step
+# --------------------------------------------------------------------------------------------------
+
+
+class SignatureBox(Flowable):
+    """The box the visible signature goes into; records (page index, x1, y1, x2, y2) when drawn."""
+
+    def __init__(self, width: float, height: float, record: dict):
+        super().__init__()
+        self.width, self.height = width, height
+        self.record = record
+
+    def draw(self):
+        c = self.canv
+        c.setStrokeColor(GREY)
+        c.setLineWidth(0.6)
+        c.setDash(2, 2)
+        c.rect(0, 0, self.width, self.height, stroke=1, fill=0)
+        c.setDash()
+        c.setFont("Doc", 7)
+        c.setFillColor(GREY)
+        c.drawString(4, self.height - 10, "Signature of the licensed surveyor (electronic, applied by the registry)")
+        x1, y1 = c.absolutePosition(0, 0)
+        self.record.update(
+            page=c.getPageNumber() - 1,
+            box=[round(x1, 2), round(y1, 2), round(x1 + self.width, 2), round(y1 + self.height, 2)],
+        )
+
+
+# --------------------------------------------------------------------------------------------------
+# The page frame
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class DocumentHeading:
+    office: str
+    kind_title: str  # "Station description sheet"
+    subject: str  # "Mark CR104"
+    code: str
+    revision: int
+    issued: str  # ISO date
+    logo_path: str = ""
+    footer_note: str = "Verify control on site before use; see the cautions in this document."
+    extra: dict = field(default_factory=dict)
+
+
+def _numbered_canvas(heading: DocumentHeading):
+    class NumberedCanvas(rl_canvas.Canvas):
+        """Defers each page so that the heading and foot can say "page N of M"."""
+
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            self._saved: list[dict] = []
+
+        def showPage(self):
+            self._saved.append(dict(self.__dict__))
+            self._startPage()
+
+        def save(self):
+            total = len(self._saved)
+            heading.extra["page_count"] = total
+            for state in self._saved:
+                self.__dict__.update(state)
+                _draw_frame(self, heading, self._pageNumber, total)
+                super().showPage()
+            super().save()
+
+    return NumberedCanvas
+
+
+def _draw_frame(c, h: DocumentHeading, page: int, total: int) -> None:
+    width, height = c._pagesize
+    top = height - 10 * mm
+    x0, x1 = MARGIN, width - MARGIN
+    c.saveState()
+    logo_w = 0.0
+    if h.logo_path and os.path.isfile(h.logo_path):
+        try:
+            c.drawImage(
+                h.logo_path, x0, top - 9 * mm, width=14 * mm, height=9 * mm, preserveAspectRatio=True, mask="auto"
+            )
+            logo_w = 16 * mm
+        except OSError:
+            logo_w = 0.0
+    c.setFillColor(INK)
+    c.setFont("Doc-Bold", 9.5)
+    c.drawString(x0 + logo_w, top - 3.5 * mm, h.office[:90])
+    c.setFont("Doc", 8)
+    c.setFillColor(GREY)
+    c.drawString(x0 + logo_w, top - 7.5 * mm, f"{h.kind_title} · {h.subject}")
+    c.setFillColor(INK)
+    c.setFont("Doc", 8)
+    c.drawRightString(x1, top - 3.5 * mm, f"Document {h.code} · revision {h.revision}")
+    c.setFillColor(GREY)
+    c.drawRightString(x1, top - 7.5 * mm, f"Issued {h.issued} · page {page} of {total}")
+    c.setStrokeColor(INK)
+    c.setLineWidth(0.6)
+    c.line(x0, top - 10 * mm, x1, top - 10 * mm)
+    # foot
+    c.setStrokeColor(RULE)
+    c.setLineWidth(0.4)
+    c.line(x0, 12 * mm, x1, 12 * mm)
+    c.setFont("Doc", 7)
+    c.setFillColor(GREY)
+    c.drawString(x0, 8.5 * mm, h.footer_note)
+    c.drawRightString(x1, 8.5 * mm, f"{h.code} rev. {h.revision} · page {page} of {total}")
+    c.restoreState()
+
+
+@dataclass
+class BuiltPdf:
+    content: bytes
+    page_count: int
+    signature_page: int
+    signature_box: list[float]
+
+
+def build_pdf(flowables: list, heading: DocumentHeading, *, size_name: str, title: str, record: dict) -> BuiltPdf:
+    """Lay out ``flowables`` in the document frame; ``record`` is the dict a :class:`SignatureBox` fills."""
+    register_fonts()
+    buf = io.BytesIO()
+    size = page_size(size_name)
+    doc = BaseDocTemplate(
+        buf,
+        pagesize=size,
+        leftMargin=MARGIN,
+        rightMargin=MARGIN,
+        topMargin=24 * mm,
+        bottomMargin=16 * mm,
+        title=title,
+        author=heading.office,
+        subject=f"Document {heading.code}, revision {heading.revision}",
+        creator="Control-mark registry",
+        keywords=[heading.code],
+    )
+    frame = Frame(doc.leftMargin, doc.bottomMargin, doc.width, doc.height, id="body", leftPadding=0, rightPadding=0)
+    doc.addPageTemplates([PageTemplate(id="page", frames=[frame])])
+    doc.build(flowables, canvasmaker=_numbered_canvas(heading))
+    if "box" not in record:
+        raise RuntimeError("The signature block was not placed.")
+    return BuiltPdf(
+        content=buf.getvalue(),
+        page_count=heading.extra["page_count"],
+        signature_page=record["page"],
+        signature_box=record["box"],
+    )
