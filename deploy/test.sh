@@ -17,9 +17,14 @@
 #      `registry` and PostGIS in template1 (so that test databases get it). It never drops a
 #      database; pytest-django creates and drops test_<name> itself.
 #   4. pytest without DATABASE_URL (SQLite), then with it (PostgreSQL + PostGIS).
-#   5. A summary with both counts and the elapsed time. Exit status 0 only if both halves
-#      passed; "no tests collected" (pytest exit 5) and a PostgreSQL half that could not run
-#      are failures.
+#   5. The point-in-time recovery drill (deploy/restore_drill.sh --self-test: a throwaway source
+#      cluster with WAL archiving, a base backup, a restore to a chosen time into a fresh cluster,
+#      counts, audit chain and signed documents checked). Only on a full run (no pytest arguments)
+#      or with REGISTRY_DRILL=1; REGISTRY_DRILL=0 skips it. Its clusters live in a temporary folder
+#      on their own ports; the server above is not touched.
+#   6. A summary with both counts and the elapsed time. Exit status 0 only if both halves (and the
+#      drill, when it runs) passed; "no tests collected" (pytest exit 5) and a PostgreSQL half that
+#      could not run are failures.
 set -Eeuo pipefail
 
 # shellcheck source=deploy/common.sh
@@ -50,7 +55,7 @@ info "PostgreSQL URL: $(masked_url "$PG_URL")$([ "$PG_URL_GIVEN" = 1 ] && echo '
 [ "$#" -gt 0 ] && info "extra pytest arguments: $*"
 
 # ---------------------------------------------------------------------------------------------
-step "[1/5] Python environment (.venv, requirements-dev.txt)"
+step "[1/6] Python environment (.venv, requirements-dev.txt)"
 ensure_venv requirements-dev.txt
 
 # Split the URL once (host, port, user) with the venv's Python.
@@ -96,7 +101,7 @@ postgis_package_for() {
 }
 
 # ---------------------------------------------------------------------------------------------
-step "[2/5] System packages"
+step "[2/6] System packages"
 WANTED=(proj-data chromium fonts-dejavu-core poppler-utils nginx)
 if [ "$PG_LOCAL" = 1 ]; then
   PG_VERSION="$(local_pg_version)"
@@ -121,7 +126,7 @@ else
 fi
 
 # ---------------------------------------------------------------------------------------------
-step "[3/5] PostgreSQL + PostGIS"
+step "[3/6] PostgreSQL + PostGIS"
 
 pg_ready() {
   if command -v pg_isready >/dev/null 2>&1; then
@@ -309,13 +314,13 @@ meaning_of() {
 
 PYTEST_ARGS=("$@")
 
-step "[4/5] Tests on SQLite"
+step "[4/6] Tests on SQLite"
 T0=$SECONDS
 RC_SQLITE=0
 run_half sqlite "$LOG_DIR/sqlite.log" -u DATABASE_URL || RC_SQLITE=$?
 T_SQLITE=$((SECONDS - T0))
 
-step "[5/5] Tests on PostgreSQL + PostGIS ($(masked_url "$PG_URL"))"
+step "[5/6] Tests on PostgreSQL + PostGIS ($(masked_url "$PG_URL"))"
 T0=$SECONDS
 RC_PG=0
 if [ -z "$PG_PROBLEM" ]; then
@@ -326,6 +331,28 @@ else
   : >"$LOG_DIR/postgresql.log"
 fi
 T_PG=$((SECONDS - T0))
+
+RUN_DRILL="${REGISTRY_DRILL:-}"
+if [ -z "$RUN_DRILL" ]; then
+  if [ "${#PYTEST_ARGS[@]}" -eq 0 ]; then RUN_DRILL=1; else RUN_DRILL=0; fi
+fi
+RC_DRILL=0
+T_DRILL=0
+if [ "$RUN_DRILL" = 1 ]; then
+  step "[6/6] Point-in-time recovery drill (deploy/restore_drill.sh --self-test)"
+  T0=$SECONDS
+  if [ -n "$PG_PROBLEM" ]; then
+    RC_DRILL=99
+    printf '    %snot run:%s %s\n' "$_R" "$_N" "$PG_PROBLEM"
+    : >"$LOG_DIR/restore-drill.log"
+  else
+    set +e
+    bash "$REPO_DIR/deploy/restore_drill.sh" --self-test </dev/null 2>&1 | tee "$LOG_DIR/restore-drill.log"
+    RC_DRILL="${PIPESTATUS[0]}"
+    set -e
+  fi
+  T_DRILL=$((SECONDS - T0))
+fi
 
 # ---------------------------------------------------------------------------------------------
 step "Summary"
@@ -338,10 +365,19 @@ else
   printf '    %-24s %s  %s  (%s)\n' "PostgreSQL + PostGIS" "$(paint "$RC_PG" "$(meaning_of "$RC_PG")")" \
     "$(summary_line "$LOG_DIR/postgresql.log")" "$(fmt_duration "$T_PG")"
 fi
+if [ "$RUN_DRILL" = 1 ]; then
+  if [ "$RC_DRILL" = 0 ]; then
+    printf '    %-24s %s  %s  (%s)\n' "Restore drill" "$(paint 0 PASSED)" "base backup + WAL to a chosen time" "$(fmt_duration "$T_DRILL")"
+  elif [ "$RC_DRILL" = 99 ]; then
+    printf '    %-24s %s  %s\n' "Restore drill" "$(paint 1 "NOT RUN")" "$PG_PROBLEM"
+  else
+    printf '    %-24s %s  %s\n' "Restore drill" "$(paint 1 FAILED)" "see var/test-logs/restore-drill.log"
+  fi
+fi
 printf '    %-24s %s (setup %s)\n' "Elapsed" "$(fmt_duration $((SECONDS - T_START)))" "$(fmt_duration "$T_SETUP")"
 printf '    %-24s %s\n' "Logs" "var/test-logs/sqlite.log, var/test-logs/postgresql.log"
 
-if [ "$RC_SQLITE" = 0 ] && [ "$RC_PG" = 0 ]; then
+if [ "$RC_SQLITE" = 0 ] && [ "$RC_PG" = 0 ] && [ "$RC_DRILL" = 0 ]; then
   printf '\n%sAll tests passed on both databases.%s\n' "$_G" "$_N"
   exit 0
 fi
