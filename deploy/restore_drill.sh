@@ -135,7 +135,7 @@ if [ "$SELFTEST" = 1 ]; then
   cp "$REPO_DIR/deploy/wal_archive.sh" "$WORK/wal_archive.sh"
   chmod 0755 "$WORK/wal_archive.sh"
   mkdir -m 0700 "$SRC"
-  [ "${#AS_PG[@]}" -gt 0 ] && chown postgres "$ARCH" "$BACKUP" "$SRC"
+  [ "${#AS_PG[@]}" -gt 0 ] && chown postgres "$ARCH" "$SRC"
   pg "$PGBIN/initdb" -D "$SRC" -U postgres --auth=trust -E UTF8 --locale=C.UTF-8 >"$WORK/initdb.log" 2>&1 ||
     fail "initdb of the source cluster failed: $(tail -n 5 "$WORK/initdb.log")"
   SRC_PORT="$(free_port)"
@@ -167,9 +167,13 @@ CONF
   log "source: migrated, demo district and a signed sheet loaded ($(elapsed "$T"))"
 
   T=$(date +%s.%N)
-  pg "$PGBIN/pg_basebackup" -h "$SOCK" -p "$SRC_PORT" -U postgres -D "$BACKUP" -Ft -z -X fetch -c fast \
-    >"$WORK/basebackup.log" 2>&1 || fail "pg_basebackup failed: $(tail -n 5 "$WORK/basebackup.log")"
-  log "base backup taken ($(elapsed "$T"), $(du -sh "$BACKUP" | cut -f1))"
+  # The nightly backup as an office runs it (deploy/backup.sh): dump, media, and the base backup.
+  REGISTRY_BACKUP_DIR="$BACKUP" REGISTRY_WAL_ARCHIVE_DIR="$ARCH" REGISTRY_DATA_DIR="$WORK" \
+    PATH="$PGBIN:$PATH" bash "$REPO_DIR/deploy/backup.sh" >"$LOGS/backup.log" 2>&1 ||
+    fail "deploy/backup.sh failed: $(tail -n 5 "$LOGS/backup.log")"
+  BACKUP="$(find "$BACKUP" -mindepth 1 -maxdepth 1 -type d -name '20*Z' | sort | tail -n 1)/base"
+  [ -f "$BACKUP/base.tar.gz" ] || fail "deploy/backup.sh wrote no base backup"
+  log "nightly backup with a base backup taken ($(elapsed "$T"), base $(du -sh "$BACKUP" | cut -f1), starts at WAL $(cat "$BACKUP/START_WAL"))"
 
   "$VPY" "$REPO_DIR/deploy/drill_data.py" between >/dev/null || fail "the writes after the base backup failed"
   sleep 1.1
