@@ -19,6 +19,7 @@ import os
 from pathlib import Path
 
 import dj_database_url
+from django.core.exceptions import ImproperlyConfigured
 
 from registry.envconfig import env_bool, env_list, env_secret
 
@@ -69,6 +70,9 @@ MIDDLEWARE = [
     "registry.api.idempotency.IdempotencyMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    # Lag-tolerant reads (lists, searches, public verification) from the streaming replica when one is
+    # configured (REGISTRY_REPLICA_URL; registry/dbrouter.py). Last, so that it wraps the view itself.
+    "registry.dbrouter.ReplicaReadsMiddleware",
 ]
 
 ROOT_URLCONF = "registry.urls"
@@ -105,6 +109,16 @@ if os.environ.get("REGISTRY_DB_ROLE", "").strip() and "postgresql" in DATABASES[
 if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
     DATABASES["default"].setdefault("OPTIONS", {})
     DATABASES["default"]["OPTIONS"].update({"timeout": 20, "transaction_mode": "IMMEDIATE"})
+# A PostgreSQL streaming replica of the same database for reads that tolerate a little lag
+# (registry/dbrouter.py; deploy/README.md "Running it for many offices"). Empty: the primary does all.
+_replica_url = os.environ.get("REGISTRY_REPLICA_URL", "").strip()
+if _replica_url:
+    DATABASES["replica"] = dj_database_url.parse(_replica_url, conn_max_age=DATABASES["default"]["CONN_MAX_AGE"])
+    # A replica that does not answer must not hold a request up for long: the primary serves instead.
+    DATABASES["replica"].setdefault("OPTIONS", {}).setdefault("connect_timeout", 3)
+    # Tests: the replica alias reads the test database itself.
+    DATABASES["replica"]["TEST"] = {"MIRROR": "default"}
+DATABASE_ROUTERS = ["registry.dbrouter.ReplicaRouter"]
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
 AUTH_PASSWORD_VALIDATORS = [
@@ -124,8 +138,37 @@ STATIC_ROOT = DATA_DIR / "static"
 STATICFILES_DIRS = [BASE_DIR / "registry" / "web" / "static"]
 MEDIA_ROOT = Path(os.environ.get("REGISTRY_MEDIA_ROOT", DATA_DIR / "media"))
 MEDIA_URL = "media/"
+# Uploads and signed documents: the local media folder (default), or with REGISTRY_STORAGE=s3 an
+# S3-compatible object store shared by several application servers and workers (django-storages).
+STORAGE_KIND = os.environ.get("REGISTRY_STORAGE", "local").strip().lower() or "local"
+if STORAGE_KIND not in ("local", "s3"):
+    raise ImproperlyConfigured(f"REGISTRY_STORAGE must be 'local' or 's3', not {STORAGE_KIND!r}.")
+if STORAGE_KIND == "s3":
+    _s3_bucket = os.environ.get("REGISTRY_S3_BUCKET", "").strip()
+    if not _s3_bucket:
+        raise ImproperlyConfigured("REGISTRY_STORAGE=s3 needs REGISTRY_S3_BUCKET (the bucket's name).")
+    _default_storage = {
+        "BACKEND": "registry.storage.SharedObjectStorage",
+        "OPTIONS": {
+            "bucket_name": _s3_bucket,
+            "endpoint_url": os.environ.get("REGISTRY_S3_ENDPOINT_URL", "").strip() or None,
+            "region_name": os.environ.get("REGISTRY_S3_REGION", "").strip() or None,
+            # Credentials: these two, or boto3's usual sources (AWS_* variables, instance roles).
+            "access_key": os.environ.get("REGISTRY_S3_ACCESS_KEY_ID", "").strip() or None,
+            "secret_key": os.environ.get("REGISTRY_S3_SECRET_ACCESS_KEY", "").strip() or None,
+            "location": os.environ.get("REGISTRY_S3_PREFIX", "").strip().strip("/"),
+            "addressing_style": os.environ.get("REGISTRY_S3_ADDRESSING", "path").strip() or "path",
+            # Objects are private; every download passes the application's sign-in and role check.
+            "default_acl": None,
+            "querystring_auth": True,
+            # Never replace an object: a second file of the same name gets a new name.
+            "file_overwrite": False,
+        },
+    }
+else:
+    _default_storage = {"BACKEND": "django.core.files.storage.FileSystemStorage"}
 STORAGES = {
-    "default": {"BACKEND": "django.core.files.storage.FileSystemStorage"},
+    "default": _default_storage,
     "staticfiles": {
         "BACKEND": (
             "whitenoise.storage.CompressedManifestStaticFilesStorage"
@@ -251,6 +294,15 @@ REGISTRY = {
     "SIGNING_KEY_SECRET": os.environ.get(
         "REGISTRY_SIGNING_KEY_SECRET", "" if PRODUCTION else "dev-only-signing-key-secret-never-in-production"
     ),
+    # Streaming replica (REGISTRY_REPLICA_URL): after a write, the same client reads from the primary this
+    # long; a replica further behind than MAX_LAG is not used; one that failed is retried after RETRY.
+    "REPLICA_PIN_SECONDS": float(os.environ.get("REGISTRY_REPLICA_PIN_SECONDS", "10")),
+    "REPLICA_MAX_LAG_SECONDS": float(os.environ.get("REGISTRY_REPLICA_MAX_LAG_SECONDS", "30")),
+    "REPLICA_RETRY_SECONDS": float(os.environ.get("REGISTRY_REPLICA_RETRY_SECONDS", "15")),
+    # Background workers (manage.py task_worker; registry/services/workers.py): a task whose worker was
+    # killed runs again, up to MAX_ATTEMPTS runs in all, then fails; workers look every RECOVER seconds.
+    "TASK_MAX_ATTEMPTS": int(os.environ.get("REGISTRY_TASK_MAX_ATTEMPTS", "3")),
+    "TASK_RECOVER_SECONDS": float(os.environ.get("REGISTRY_TASK_RECOVER_SECONDS", "30")),
     # Public verification page: at most this many requests per client address per minute.
     "VERIFY_RATE_PER_MIN": int(os.environ.get("REGISTRY_VERIFY_RATE_PER_MIN", "30")),
 }

@@ -57,7 +57,7 @@ def _site_for_test(tmp: Path, *, https_port: int, http_port: int, upstream_port:
         "/var/log/nginx/registry.error.log": str(tmp / "error.log"),
         "/srv/registry/var/media/": str(tmp / "media") + "/",
         "/srv/registry/var/static/": str(tmp / "static") + "/",
-        "server 127.0.0.1:8001;": f"server 127.0.0.1:{upstream_port};",
+        "server 127.0.0.1:8001 max_fails=1 fail_timeout=10s;": f"server 127.0.0.1:{upstream_port} max_fails=1 fail_timeout=10s;",
         "listen 443 ssl http2;": f"listen 127.0.0.1:{https_port} ssl http2;",
         "listen 80;": f"listen 127.0.0.1:{http_port};",
         "listen [::]:443 ssl http2;": "",

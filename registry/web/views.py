@@ -70,6 +70,44 @@ def home(request: HttpRequest) -> HttpResponse:
 
 
 DEFAULT_MEDIA_ACCEL_PREFIX = "/_protected_media/"
+#: Uploaded files a browser may show (the rest is always a download); the same list as nginx's map.
+INLINE_TYPES = {".jpg": "image/jpeg", ".jpeg": "image/jpeg", ".png": "image/png", ".webp": "image/webp", ".pdf": "application/pdf"}
+
+
+def _local_media() -> bool:
+    """Are uploads in the local media folder (else a shared object store: REGISTRY_STORAGE=s3)?"""
+    from django.core.files.storage import FileSystemStorage, default_storage
+
+    return isinstance(default_storage, FileSystemStorage)
+
+
+def _stored_media_file(path: str) -> HttpResponse:
+    """An upload kept in the shared object store, streamed through the application with the headers
+    nginx gives local ones: photos and PDFs inline, everything else as a download, never as a page."""
+    from django.core.files.storage import default_storage
+    from django.http import FileResponse
+
+    if not path or "\x00" in path or "\\" in path or path.startswith("/"):
+        raise Http404("No such file.")
+    parts = path.split("/")
+    if any(part in ("", ".", "..") for part in parts):
+        raise Http404("No such file.")
+    rel = "/".join(parts)
+    if not default_storage.exists(rel):
+        raise Http404("No such file.")
+    fh = default_storage.open(rel, "rb")
+    suffix = Path(rel).suffix.lower()
+    inline = suffix in INLINE_TYPES
+    response = FileResponse(
+        fh,
+        as_attachment=not inline,
+        filename=parts[-1],
+        content_type=INLINE_TYPES.get(suffix, "application/octet-stream"),
+    )
+    response["Cache-Control"] = "private"
+    response["X-Content-Type-Options"] = "nosniff"
+    response["Content-Security-Policy"] = "default-src 'none'; img-src 'self'; sandbox"
+    return response
 
 
 def safe_media_path(path: str) -> str:
@@ -103,6 +141,8 @@ def media_file(request: HttpRequest, path: str) -> HttpResponse:
     from its ``internal`` location (``deploy/nginx/registry.conf``), which no browser can reach
     directly, so every download passes this sign-in and role check first.
     """
+    if not _local_media():
+        return _stored_media_file(path)
     rel = safe_media_path(path)
     if settings.DEBUG:
         return serve(request, rel, document_root=settings.MEDIA_ROOT)
