@@ -361,3 +361,28 @@ def api(office: Office, who: str, index: int = 0):
     s.headers["Authorization"] = f"Token {office.tokens[who]}"
     s.base = office.app_url(index)
     return s
+
+
+#: The demo users' DEMO-only passwords (fixtures_demo/district.py).
+DEMO_PASSWORDS = {"viewer": "demo-only-viewer-Q7", "technician": "demo-only-technician-K4", "manager": "demo-only-manager-W2"}
+
+
+def signed_in(office: Office, who: str, index: int = 0, base: str | None = None):
+    """A requests session signed in through the sign-in page (pages and /media/ use the session)."""
+    import re
+
+    import requests
+
+    s = requests.Session()
+    s.base = base or office.app_url(index)
+    page = s.get(s.base + "/signin/", timeout=30)
+    token = re.search(r'name="csrfmiddlewaretoken" value="([^"]+)"', page.text).group(1)
+    r = s.post(
+        s.base + "/signin/",
+        data={"username": f"demo_{who}", "password": DEMO_PASSWORDS[who], "csrfmiddlewaretoken": token},
+        headers={"Referer": s.base + "/signin/"},
+        timeout=30,
+        allow_redirects=False,
+    )
+    assert r.status_code == 302, r.text[:500]
+    return s
