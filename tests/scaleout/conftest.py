@@ -358,6 +358,7 @@ def api(office: Office, who: str, index: int = 0):
     import requests
 
     s = requests.Session()
+    s.trust_env = False  # loopback only: no proxy from the environment
     s.headers["Authorization"] = f"Token {office.tokens[who]}"
     s.base = office.app_url(index)
     return s
@@ -374,6 +375,7 @@ def signed_in(office: Office, who: str, index: int = 0, base: str | None = None)
     import requests
 
     s = requests.Session()
+    s.trust_env = False  # loopback only: no proxy from the environment
     s.base = base or office.app_url(index)
     page = s.get(s.base + "/signin/", timeout=30)
     token = re.search(r'name="csrfmiddlewaretoken" value="([^"]+)"', page.text).group(1)
