@@ -102,7 +102,7 @@ EOF
 # and a background worker (report builds) beside the server, stopped with it.
 export REGISTRY_OFFICE_NAME="${REGISTRY_OFFICE_NAME:-Corvid County Survey Office (DEMO, invented)}"
 export REGISTRY_PUBLIC_URL="${REGISTRY_PUBLIC_URL:-http://127.0.0.1:$PORT}"
-"$VPY" manage.py db_worker --interval 1 --no-reload >"$DATA_DIR/worker.log" 2>&1 &
+"$VPY" manage.py task_worker --interval 1 --no-reload >"$DATA_DIR/worker.log" 2>&1 &
 WORKER_PID=$!
 trap 'kill "$WORKER_PID" 2>/dev/null || true' EXIT INT TERM
 info "background worker started (pid $WORKER_PID, log $DATA_DIR/worker.log)"
