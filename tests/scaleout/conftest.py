@@ -156,6 +156,21 @@ class Office:
             {"REGISTRY_GUNICORN_BIND": f"127.0.0.1:{port}", "REGISTRY_GUNICORN_WORKERS": "2"},
         )
         wait_port(port, 60, proc)
+        # Listening is not serving: wait until a worker answers a page (as an administrator checks).
+        import urllib.request
+
+        opener = urllib.request.build_opener(urllib.request.ProxyHandler({}))  # loopback: no proxy
+        end = time.monotonic() + 120
+        while True:
+            try:
+                with opener.open(f"http://127.0.0.1:{port}/signin/", timeout=10) as r:
+                    if r.status == 200:
+                        break
+            except OSError:
+                pass
+            if time.monotonic() > end or proc.poll() is not None:
+                raise RuntimeError(f"application server {index} does not answer: " + self.log_text(f"app{index}"))
+            time.sleep(0.2)
         return proc
 
     def stop(self, name: str, sig: int = signal.SIGTERM, timeout_s: float = 30) -> None:
