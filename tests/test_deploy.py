@@ -84,7 +84,7 @@ def test_gunicorn_config_loads_the_app_in_production_mode():
     # nginx must wait longer than gunicorn, so that a slow request ends in gunicorn's log.
     nginx = (DEPLOY / "nginx" / "registry.conf").read_text(encoding="utf-8")
     assert int(re.search(r"proxy_read_timeout (\d+)s;", nginx).group(1)) > int(values["timeout"])
-    assert "server 127.0.0.1:8001;" in nginx
+    assert "server 127.0.0.1:8001 " in nginx
 
 
 def test_gunicorn_refuses_production_without_a_secret():
