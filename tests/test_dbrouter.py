@@ -27,8 +27,13 @@ def _run(path: str, *, method: str = "get", cookies: dict | None = None, view=No
     seen = []
 
     def default_view(request, *args, **kwargs):
-        seen.append((dbrouter.current_read_alias(), dbrouter.ReplicaRouter().db_for_read(Mark),
-                     dbrouter.ReplicaRouter().db_for_read(User)))
+        seen.append(
+            (
+                dbrouter.current_read_alias(),
+                dbrouter.ReplicaRouter().db_for_read(Mark),
+                dbrouter.ReplicaRouter().db_for_read(User),
+            )
+        )
         return HttpResponse("ok")
 
     request = getattr(RequestFactory(), method)(path)

@@ -123,9 +123,12 @@ def recover_orphaned_tasks(using: str = "default") -> Recovery:
         if not worker or worker_alive(worker, using) is not False:
             continue
         with transaction.atomic(using=using):
-            task = DBTaskResult.objects.using(using).select_for_update(skip_locked=True).filter(
-                pk=candidate.pk, status="RUNNING"
-            ).first()
+            task = (
+                DBTaskResult.objects.using(using)
+                .select_for_update(skip_locked=True)
+                .filter(pk=candidate.pk, status="RUNNING")
+                .first()
+            )
             if task is None or (task.worker_ids or [None])[-1] != worker:
                 continue  # taken care of meanwhile
             runs = len(task.worker_ids or [])
@@ -142,7 +145,9 @@ def recover_orphaned_tasks(using: str = "default") -> Recovery:
                         progress=0.0,
                     )
                 result.requeued += 1
-                log.warning("Task %s lost its worker %s; queued again (run %d of %d).", task.pk, worker, runs, max_attempts)
+                log.warning(
+                    "Task %s lost its worker %s; queued again (run %d of %d).", task.pk, worker, runs, max_attempts
+                )
             else:
                 reason = (
                     f"The work was interrupted {runs} times (the worker doing it stopped each time); "

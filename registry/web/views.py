@@ -71,7 +71,13 @@ def home(request: HttpRequest) -> HttpResponse:
 
 DEFAULT_MEDIA_ACCEL_PREFIX = "/_protected_media/"
 #: Uploaded files a browser may show (the rest is always a download); the same list as nginx's map.
-INLINE_TYPES = {".jpg": "image/jpeg", ".jpeg": "image/jpeg", ".png": "image/png", ".webp": "image/webp", ".pdf": "application/pdf"}
+INLINE_TYPES = {
+    ".jpg": "image/jpeg",
+    ".jpeg": "image/jpeg",
+    ".png": "image/png",
+    ".webp": "image/webp",
+    ".pdf": "application/pdf",
+}
 
 
 def _local_media() -> bool:

@@ -105,7 +105,18 @@ class Cluster:
 
     def start(self) -> None:
         subprocess.run(
-            [*self.as_pg, str(self.pgbin / "pg_ctl"), "-D", str(self.data), "-l", str(self.log), "-w", "-t", "60", "start"],
+            [
+                *self.as_pg,
+                str(self.pgbin / "pg_ctl"),
+                "-D",
+                str(self.data),
+                "-l",
+                str(self.log),
+                "-w",
+                "-t",
+                "60",
+                "start",
+            ],
             check=True,
             capture_output=True,
             cwd="/",
@@ -209,7 +220,18 @@ def _make_primary(tmp: Path, pgbin: Path, as_pg: list[str], sock: Path) -> Clust
     if as_pg:
         shutil.chown(data, "postgres")
     subprocess.run(
-        [*as_pg, str(pgbin / "initdb"), "-D", str(data), "-U", "postgres", "--auth=trust", "-E", "UTF8", "--locale=C.UTF-8"],
+        [
+            *as_pg,
+            str(pgbin / "initdb"),
+            "-D",
+            str(data),
+            "-U",
+            "postgres",
+            "--auth=trust",
+            "-E",
+            "UTF8",
+            "--locale=C.UTF-8",
+        ],
         check=True,
         capture_output=True,
         cwd="/",
@@ -310,7 +332,9 @@ def office():
                 "PYTHONUNBUFFERED": "1",
             }
         )
-        office = Office(tmp, primary, None, env, s3_port, "registry-office", [free_port(), free_port()], 0, {}, logs=logs)
+        office = Office(
+            tmp, primary, None, env, s3_port, "registry-office", [free_port(), free_port()], 0, {}, logs=logs
+        )
         office.spawn("s3", [PY, "-m", "moto.server", "-H", "127.0.0.1", "-p", str(s3_port)])
         wait_port(s3_port, 60, office.procs["s3"])
         import boto3
@@ -380,7 +404,11 @@ def api(office: Office, who: str, index: int = 0):
 
 
 #: The demo users' DEMO-only passwords (fixtures_demo/district.py).
-DEMO_PASSWORDS = {"viewer": "demo-only-viewer-Q7", "technician": "demo-only-technician-K4", "manager": "demo-only-manager-W2"}
+DEMO_PASSWORDS = {
+    "viewer": "demo-only-viewer-Q7",
+    "technician": "demo-only-technician-K4",
+    "manager": "demo-only-manager-W2",
+}
 
 
 def signed_in(office: Office, who: str, index: int = 0, base: str | None = None):

@@ -36,7 +36,9 @@ def nginx(office, tmp_path):
     one = f"server 127.0.0.1:{office.app_ports[0]} max_fails=1 fail_timeout=10s;"
     text = site.read_text()
     assert one in text
-    site.write_text(text.replace(one, one + f"\n    server 127.0.0.1:{office.app_ports[1]} max_fails=1 fail_timeout=10s;"))
+    site.write_text(
+        text.replace(one, one + f"\n    server 127.0.0.1:{office.app_ports[1]} max_fails=1 fail_timeout=10s;")
+    )
     check = subprocess.run([NGINX, "-t", "-p", str(tmp_path), "-c", str(main)], capture_output=True, text=True)
     assert check.returncode == 0, check.stderr
     proc = subprocess.Popen([NGINX, "-p", str(tmp_path), "-c", str(main)], stderr=subprocess.DEVNULL)
@@ -139,12 +141,14 @@ def test_stopping_an_application_server_under_load_loses_no_acknowledged_write(o
     )
     assert len(acked) > 5 and load.reads_ok > 5, load.read_failures[:5]
     # Every acknowledged write is there, once.
-    in_db = set(
-        office.primary.psql("SELECT code FROM registry_mark WHERE code ~ '^W[0-9]+-[0-9]+$'").split()
-    )
+    in_db = set(office.primary.psql("SELECT code FROM registry_mark WHERE code ~ '^W[0-9]+-[0-9]+$'").split())
     assert set(acked) <= in_db
     # Reads: nginx sent each one that failed on a stopping or dead server to the other one.
-    assert load.read_failures == [], (load.read_failures[:3], (tmp_path / 'error.log').read_text()[-3000:], office.log_text('app0'))
+    assert load.read_failures == [], (
+        load.read_failures[:3],
+        (tmp_path / "error.log").read_text()[-3000:],
+        office.log_text("app0"),
+    )
     # Writes that got no answer: the client retries with the same key; each ends with exactly one mark.
     s = load._session(office.tokens["manager"])
     for key, code, body in unanswered:

@@ -61,11 +61,19 @@ def test_a_killed_workers_task_is_run_again_and_never_half_done(office):
         assert status == "SUCCESSFUL", office.log_text("worker0") + office.log_text("worker1")
         assert len(workers) == 2 and workers[0] == first and workers[1] != first
         # Both marks, once each, with one audit row each: the killed run left nothing behind.
-        assert office.primary.psql("SELECT string_agg(code, ',' ORDER BY code) FROM registry_mark WHERE code LIKE 'KILL-%'") == "KILL-1,KILL-2"
-        assert office.primary.psql(
-            "SELECT count(*) FROM registry_auditevent a JOIN registry_mark m ON a.object_id = m.id::text "
-            "WHERE a.action = 'mark_create' AND m.code LIKE 'KILL-%'"
-        ) == "2"
+        assert (
+            office.primary.psql(
+                "SELECT string_agg(code, ',' ORDER BY code) FROM registry_mark WHERE code LIKE 'KILL-%'"
+            )
+            == "KILL-1,KILL-2"
+        )
+        assert (
+            office.primary.psql(
+                "SELECT count(*) FROM registry_auditevent a JOIN registry_mark m ON a.object_id = m.id::text "
+                "WHERE a.action = 'mark_create' AND m.code LIKE 'KILL-%'"
+            )
+            == "2"
+        )
         assert office.manage("verify_audit").returncode == 0
     finally:
         office.spawn(name, [sys.executable, "manage.py", "task_worker", "--interval", "0.5", "--no-startup-delay"])
