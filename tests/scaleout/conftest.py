@@ -378,6 +378,7 @@ def office():
         timings["app servers and workers"] = time.monotonic() - t
         timings["total"] = time.monotonic() - t0
         office.timings = timings
+        print("\noffice built: " + ", ".join(f"{k} {v:.1f} s" for k, v in timings.items()))
         yield office
     finally:
         if office is not None:
