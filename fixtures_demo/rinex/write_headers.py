@@ -89,7 +89,9 @@ def v3_header() -> list[str]:
         rec(f"{'AN-0203':<20}{'OFFICE GEOD ANT2':<20}", "ANT # / TYPE"),
         rec(f"{x:14.4f}{y:14.4f}{z:14.4f}", "APPROX POSITION XYZ"),
         rec(f"{1.8120:14.4f}{0.0:14.4f}{0.0:14.4f}", "ANTENNA: DELTA H/E/N"),
-        *sys_recs("G", ["C1C", "L1C", "D1C", "S1C", "C2W", "L2W", "D2W", "S2W", "C5Q", "L5Q", "D5Q", "S5Q", "C2L", "L2L"]),
+        *sys_recs(
+            "G", ["C1C", "L1C", "D1C", "S1C", "C2W", "L2W", "D2W", "S2W", "C5Q", "L5Q", "D5Q", "S5Q", "C2L", "L2L"]
+        ),
         *sys_recs("R", ["C1C", "L1C", "D1C", "S1C", "C2P", "L2P", "D2P", "S2P"]),
         *sys_recs("E", ["C1C", "L1C", "S1C", "C5Q", "L5Q", "S5Q"]),
         rec("DBHZ", "SIGNAL STRENGTH UNIT"),

@@ -306,7 +306,9 @@ def _time(line: str, number: int, what: str) -> tuple[_dt.datetime, str]:
     try:
         stamp = _dt.datetime(year, month, day, hour, minute) + _dt.timedelta(seconds=seconds)
     except (ValueError, OverflowError):
-        raise RinexError("bad_time", f"{what}: {year}-{month}-{day} {hour}:{minute} is not a date.", line=number) from None
+        raise RinexError(
+            "bad_time", f"{what}: {year}-{month}-{day} {hour}:{minute} is not a date.", line=number
+        ) from None
     if not 1980 <= stamp.year <= 2100:
         raise RinexError("bad_time", f"{what}: the year {stamp.year} is outside 1980-2100.", line=number)
     return stamp, line[48:51].strip().upper()
