@@ -122,7 +122,9 @@ def _read_rinex(request: HttpRequest, mark) -> tuple[OccupationForm, dict, int]:
     except ValidationError as exc:
         errors = [f"RINEX file {upload.name}: {message} Nothing was saved." for message in exc.messages]
         return OccupationForm(), {"rinex_errors": errors}, 400
-    token = hold_upload(actor=request.user, content=content, filename=upload.name, purpose=RINEX_PURPOSE)
+    token = hold_upload(
+        actor=request.user, content=content, filename=upload.name, purpose=f"{RINEX_PURPOSE}:{mark.code}"
+    )
     form = OccupationForm(initial={**_rinex_initial(prefill), "held_rinex": token})
     return form, {"rinex": prefill}, 200
 
@@ -140,7 +142,9 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
             token = form.cleaned_data.get("held_rinex") or ""
             try:
                 if token:
-                    content, filename = take_held_upload(actor=request.user, token=token, purpose=RINEX_PURPOSE)
+                    content, filename = take_held_upload(
+                        actor=request.user, token=token, purpose=f"{RINEX_PURPOSE}:{mark.code}"
+                    )
                     call = _RinexCall(
                         actor=request.user,
                         mark_code=mark.code,
