@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import datetime as dt
 import gzip
+import os
 from pathlib import Path
 
 import pytest
@@ -173,7 +174,12 @@ def test_missing_first_obs_is_refused():
 
 # ----------------------------------------------------------------------------- fuzzing (hypothesis)
 
-FUZZ = settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+# 300 examples per fuzz test in the suite; RINEX_FUZZ_EXAMPLES=5000 for a longer run by hand.
+FUZZ = settings(
+    max_examples=int(os.environ.get("RINEX_FUZZ_EXAMPLES", "300")),
+    deadline=None,
+    suppress_health_check=[HealthCheck.too_slow],
+)
 
 
 @FUZZ
