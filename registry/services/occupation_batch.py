@@ -36,7 +36,7 @@ from django.db import DatabaseError, transaction
 from registry.errors import RegistryError
 from registry.io.common import RowError
 from registry.io.occupations_csv import DEFAULT_MAX_ROWS, OccupationRow, parse_occupations_csv
-from registry.models import Occupation, Position
+from registry.models import Occupation, OccupationMethod, Position
 from registry.roles import Ability
 from registry.services.access import require_ability
 from registry.services.fieldwork import occupation_record
@@ -51,11 +51,15 @@ class BatchRow:
     line: int
     mark: str
     method: str
-    start_utc: str
-    end_utc: str
+    start_utc: Any  # aware datetime, UTC
+    end_utc: Any
     antenna_height_arp_m: float | None
     result: dict[str, Any] | None
     check: dict[str, Any] | None = None
+
+    @property
+    def method_label(self) -> str:
+        return str(OccupationMethod(self.method).label)
 
 
 @dataclass
@@ -189,8 +193,8 @@ def occupation_batch_import(*, actor, content: bytes, filename: str, dry_run: bo
                         line=row.line,
                         mark=row.mark,
                         method=occupation.method,
-                        start_utc=occupation.start_utc.isoformat().replace("+00:00", "Z"),
-                        end_utc=occupation.end_utc.isoformat().replace("+00:00", "Z"),
+                        start_utc=occupation.start_utc,
+                        end_utc=occupation.end_utc,
                         antenna_height_arp_m=occupation.antenna_height_arp_m,
                         result=None
                         if position is None
