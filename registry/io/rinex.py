@@ -42,13 +42,17 @@ They are converted to UTC with the GPS − UTC leap-second count (IERS Bulletin 
 from memory, 18 s since 2017-01-01). Positions: the approximate position is in metres, geocentric
 (the specifications call it ITRF; it is only approximate and serves as a plausibility check).
 
+>>> def rec(content, label):
+...     return f"{content:<60}{label:<20}\\n"
 >>> text = (
-...     "     3.05           OBSERVATION DATA    M                   RINEX VERSION / TYPE\\n"
-...     "ASH-001                                                     MARKER NAME\\n"
-...     "END OF HEADER                                                                   \\n")
+...     rec("     3.05           OBSERVATION DATA    M", "RINEX VERSION / TYPE")
+...     + rec("ASH-001", "MARKER NAME")
+...     + rec("  2025     6     9    14     0    0.0000000     GPS", "TIME OF FIRST OBS")
+...     + rec("", "END OF HEADER")
+... )
 >>> h = parse_rinex_header(text.encode())
->>> (h.version, h.marker_name)
-('3.05', 'ASH-001')
+>>> (h.version, h.marker_name, h.first_obs_utc.isoformat())
+('3.05', 'ASH-001', '2025-06-09T13:59:42+00:00')
 """
 
 from __future__ import annotations
