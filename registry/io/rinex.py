@@ -262,7 +262,7 @@ def header_text(data: bytes) -> tuple[str, str]:
             "unix_compress", "The file is compressed with Unix compress (.Z); decompress it and send the RINEX file."
         )
     head = bytes(data[:MAX_HEADER_BYTES])
-    if b"\x00" in head:
+    if b"\x00" in head[:1024]:
         raise RinexError("binary", "This is a binary file, not a RINEX observation file (which is text).")
     return head.decode("latin-1"), compression
 
@@ -384,8 +384,10 @@ def parse_rinex_header(data: bytes) -> RinexHeader:
             raise RinexError(
                 "not_rinex", "A header line is longer than 80 columns: this is not a RINEX header.", line=index
             )
+        if "\x00" in line:
+            raise RinexError("binary", "The header holds binary data: this is not a RINEX header.", line=index)
         label = _label(line)
-        if label == "END OF HEADER" or line[60:73] == "END OF HEADER":
+        if label == "END OF HEADER":
             header.header_lines = index
             ended = True
             break

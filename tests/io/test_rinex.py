@@ -270,3 +270,12 @@ def test_fuzz_written_headers_read_back(version, marker, receiver, antenna, dh, 
         seconds=gps_minus_utc_s(start.replace(tzinfo=UTC))
     )
     assert h.last_obs_utc - h.first_obs_utc == end - start
+
+
+def test_binary_bytes_in_the_observations_do_not_matter_but_in_the_header_they_do():
+    """Regression: only the header must be text; a stray NUL in the data section is not the header's business."""
+    lines = v3_header()
+    body = text(lines) + b"G05 \x00\x00 broken epoch\n" * 2000  # past the first kilobyte
+    assert parse_rinex_header(body).marker_name == "CRV-031"
+    lines[2] = lines[2][:5] + "\x00" + lines[2][6:]
+    assert code_of(("\n".join(lines) + "\n").encode("latin-1")) == "binary"
