@@ -70,3 +70,17 @@ def test_held_file_is_only_for_its_uploader(media_root, technician, manager, dem
     response = signed_in(manager).post(url, form)
     assert response.status_code == 400 and "upload it again" in response.content.decode()
     assert Occupation.objects.count() == 0
+
+
+def test_a_form_error_keeps_the_held_file(media_root, technician, demo_mark, signed_in):  # noqa: F811
+    demo_mark("CRV-031")
+    client = signed_in(technician)
+    url = reverse("web:occupation-create", kwargs={"code": "CRV-031"})
+    content = (DEMO / "crv031_2025.rnx.gz").read_bytes()
+    response = client.post(url, {"read_rinex": "1", "rinex_file": SimpleUploadedFile("c.gz", content)})
+    form = {**response.context["form"].initial, "start_utc": "not a time"}
+    response = client.post(url, form)
+    assert response.status_code == 400 and "The RINEX file read before is held" in response.content.decode()
+    form["start_utc"] = "2025-06-09 13:59:42"
+    assert client.post(url, form).status_code == 302
+    assert Attachment.objects.get().sha256 == hashlib.sha256(content).hexdigest()
