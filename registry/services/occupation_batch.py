@@ -8,9 +8,9 @@ its result. So every rule of those services applies to every row, and each row g
 rows (``position_propose``, ``occupation_record``), chained one after the other in the audit trail's
 hash chain by ``AuditEvent.save`` (``registry.models.audit``).
 
-All or nothing: the rows run in one transaction, each in a savepoint so that a refused row does not
-stop the rows after it from being checked; if any row was refused, the whole transaction is rolled
-back and :class:`~registry.services.imports.ImportRejected` lists every problem with its line. A dry
+All or nothing: the rows run in one transaction (a refused row does not stop the rows after it from
+being checked: each service undoes its own writes when it refuses); if any row was refused, the whole
+transaction is rolled back and :class:`~registry.services.imports.ImportRejected` lists every problem with its line. A dry
 run (the preview page) does the same and always rolls back.
 
 Rows already in the registry (same mark, method and start time) are refused, so that importing the
@@ -174,15 +174,18 @@ def occupation_batch_import(*, actor, content: bytes, filename: str, dry_run: bo
         with transaction.atomic():
             errors += _already_recorded(parsed.rows)
             for row in parsed.rows:
+                # No savepoint of our own per row: each service runs in its own atomic block, which rolls
+                # its writes back (and clears PostgreSQL's error state) when it raises; a row whose result
+                # was proposed before its occupation was refused leaves that proposal in the transaction,
+                # which is rolled back as a whole as soon as any row was refused.
                 try:
-                    with transaction.atomic():
-                        position = None
-                        data = dict(row.occupation)
-                        if row.result is not None:
-                            result = {"source": source, **row.result}
-                            position = position_propose(actor=actor, mark_code=row.mark, data=result)
-                            data["result_position_id"] = position.pk
-                        occupation = occupation_record(actor=actor, mark_code=row.mark, data=data)
+                    position = None
+                    data = dict(row.occupation)
+                    if row.result is not None:
+                        result = {"source": source, **row.result}
+                        position = position_propose(actor=actor, mark_code=row.mark, data=result)
+                        data["result_position_id"] = position.pk
+                    occupation = occupation_record(actor=actor, mark_code=row.mark, data=data)
                 except (ValidationError, RegistryError, DatabaseError) as exc:
                     errors += _errors(exc, row)
                     continue
