@@ -260,6 +260,11 @@ REGISTRY = {
     "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", "").strip(),
     "BASEMAP_ATTRIBUTION": os.environ.get("REGISTRY_BASEMAP_ATTRIBUTION", "").strip(),
     "MAX_BASELINE_M": float(os.environ.get("REGISTRY_MAX_BASELINE_M", "10000")),
+    # A RINEX header whose approximate position is farther than this from the mark's published position
+    # is refused (registry/services/rinex.py explains the 100 m default).
+    "RINEX_MAX_OFFSET_M": float(os.environ.get("REGISTRY_RINEX_MAX_OFFSET_M", "100")),
+    # How long an uploaded file waits between its preview and its confirmation (registry/services/held_uploads.py).
+    "HELD_UPLOAD_MINUTES": float(os.environ.get("REGISTRY_HELD_UPLOAD_MINUTES", "30")),
     "RECOVERY_YEARS": float(os.environ.get("REGISTRY_RECOVERY_YEARS", "10")),
     # Production: uploaded files go out through nginx's internal location of this name (X-Accel-Redirect)
     # after the sign-in and role check (registry/web/views.py media_file; deploy/nginx/registry.conf).

@@ -13,6 +13,7 @@ from registry.api import jobs as jobs_api  # screening area
 from registry.api import marks as marks_api
 from registry.api import nearby as nearby_api  # search area
 from registry.api import positions as positions_api
+from registry.api import rinex as rinex_api  # RINEX occupations
 
 app_name = "api"
 
@@ -39,6 +40,11 @@ urlpatterns = [
     # visits, occupations, attachments (fieldwork pages area)
     path("marks/<str:code>/visits/", fieldwork_api.MarkVisitsView.as_view(), name="mark-visits"),
     path("marks/<str:code>/occupations/", fieldwork_api.MarkOccupationsView.as_view(), name="mark-occupations"),
+    path(
+        "marks/<str:code>/occupations/rinex/",
+        rinex_api.MarkOccupationFromRinexView.as_view(),
+        name="mark-occupation-from-rinex",
+    ),
     path("marks/<str:code>/attachments/", fieldwork_api.MarkAttachmentsView.as_view(), name="mark-attachments"),
     path("positions/<int:position_id>/", positions_api.PositionDetailView.as_view(), name="position-detail"),
     re_path(

@@ -145,11 +145,18 @@ class OccupationForm(ServiceErrorsMixin, forms.Form):
         required=False,
     )
     files = MultipleFileField(label="Files", help_text="Optional; several files allowed (RINEX or other).")
+    rinex_file = forms.FileField(
+        label="RINEX observation file",
+        required=False,
+        help_text="Version 2.11, 3.x or 4.x, plain or gzip (.gz). Hatanaka-compressed files: decompress them first.",
+    )
+    held_rinex = forms.CharField(required=False, widget=forms.HiddenInput)
     service_field_map = {"file": "files", "kind": "file_kind"}
     GROUPS = {
         "session_fields": ("method", "start_utc", "end_utc", "observer", "receiver", "antenna", "notes"),
         "height_fields": ("antenna_height_measured_m", "antenna_height_kind", "antenna_radius_m", "arp_offset_m"),
         "file_fields": ("file_kind", "files"),
+        "rinex_fields": ("rinex_file",),
     }
 
     def groups(self) -> dict[str, list]:

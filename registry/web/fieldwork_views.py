@@ -19,7 +19,9 @@ from registry.errors import Conflict
 from registry.roles import Ability
 from registry.services.access import access_mark_by_code
 from registry.services.fieldwork import attachment_add, occupation_record, visit_record
+from registry.services.held_uploads import hold_upload, release_held_upload, take_held_upload
 from registry.services.marks import mark_set_status
+from registry.services.rinex import occupation_from_rinex, rinex_prefill
 from registry.services.suspect import mark_clear_suspect
 from registry.web.fieldwork_forms import ClearSuspectForm, MarkStatusForm, OccupationForm, VisitForm
 from registry.web.views import ability_required
@@ -82,15 +84,78 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
     return render(request, "registry/visit_form.html", {"form": form, "mark": mark}, status=status)
 
 
+#: Purpose of a RINEX file held between reading its header and recording the occupation.
+RINEX_PURPOSE = "occupation-rinex"
+
+
+def _rinex_initial(prefill) -> dict:
+    """The occupation form's initial values from a RINEX pre-fill (times as the form shows them)."""
+    initial = {k: v for k, v in prefill.data.items() if v is not None}
+    for key in ("start_utc", "end_utc"):
+        if initial.get(key) is not None:
+            initial[key] = f"{initial[key]:%Y-%m-%d %H:%M:%S}"
+    return initial
+
+
+class _RinexCall(_Call):
+    """Record the occupation from the held RINEX file (the form's values override the header's)."""
+
+    def __init__(self, *, actor, mark_code: str, data: dict, content: bytes, filename: str):
+        super().__init__(occupation_from_rinex, actor=actor, mark_code=mark_code, data=data)
+        self.content, self.filename = content, filename
+
+    def __call__(self):
+        occupation, _prefill = occupation_from_rinex(
+            actor=self.actor, mark_code=self.mark_code, content=self.content, filename=self.filename, data=self.data
+        )
+        return occupation
+
+
+def _read_rinex(request: HttpRequest, mark) -> tuple[OccupationForm, dict, int]:
+    """ "Read the header" button: check the file, hold it, and show the form filled from its header."""
+    upload = request.FILES.get("rinex_file")
+    if upload is None:
+        return OccupationForm(), {"rinex_errors": ["Choose a RINEX file to read."]}, 400
+    content = upload.read()
+    try:
+        prefill = rinex_prefill(mark=mark, content=content, filename=upload.name)
+    except ValidationError as exc:
+        errors = [f"RINEX file {upload.name}: {message} Nothing was saved." for message in exc.messages]
+        return OccupationForm(), {"rinex_errors": errors}, 400
+    token = hold_upload(
+        actor=request.user, content=content, filename=upload.name, purpose=f"{RINEX_PURPOSE}:{mark.code}"
+    )
+    form = OccupationForm(initial={**_rinex_initial(prefill), "held_rinex": token})
+    return form, {"rinex": prefill}, 200
+
+
 @ability_required(Ability.RECORD)
 def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
     mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
     status = 200
-    if request.method == "POST":
+    extra: dict = {}
+    if request.method == "POST" and "read_rinex" in request.POST:
+        form, extra, status = _read_rinex(request, mark)
+    elif request.method == "POST":
         form = OccupationForm(request.POST, request.FILES)
         if form.is_valid():
-            call = _Call(occupation_record, actor=request.user, mark_code=mark.code, data=form.occupation_data())
+            token = form.cleaned_data.get("held_rinex") or ""
             try:
+                if token:
+                    content, filename = take_held_upload(
+                        actor=request.user, token=token, purpose=f"{RINEX_PURPOSE}:{mark.code}"
+                    )
+                    call = _RinexCall(
+                        actor=request.user,
+                        mark_code=mark.code,
+                        data=form.occupation_data(),
+                        content=content,
+                        filename=filename,
+                    )
+                else:
+                    call = _Call(
+                        occupation_record, actor=request.user, mark_code=mark.code, data=form.occupation_data()
+                    )
                 occupation, n = _record_with_files(
                     call,
                     form.cleaned_data["files"],
@@ -100,6 +165,9 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
             except ValidationError as exc:
                 form.add_service_error(exc)
             else:
+                if token:
+                    release_held_upload(token)
+                    n += 1
                 arp = occupation.antenna_height_arp_m
                 arp_text = f"; ARP height {arp:.3f} m" if arp is not None else ""
                 messages.success(request, f"Occupation recorded for {mark.code}{arp_text}, with {n} file(s).")
@@ -108,7 +176,10 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
     else:
         form = OccupationForm()
     return render(
-        request, "registry/occupation_form.html", {"form": form, "mark": mark, **form.groups()}, status=status
+        request,
+        "registry/occupation_form.html",
+        {"form": form, "mark": mark, **form.groups(), **extra},
+        status=status,
     )
 
 

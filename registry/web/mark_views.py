@@ -16,9 +16,11 @@ from registry.errors import Conflict
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
 from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_search, mark_status_counts
+from registry.selectors.timeseries import mark_timeseries
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
+from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
 PAGE_SIZE = 50
@@ -64,6 +66,8 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
             "-revision"
         )[:3],
         "can_prepare": can_prepare(request.user),
+        # position history plot (registry/selectors/timeseries.py)
+        "timeseries": mark_timeseries(mark=detail.mark, frame_label=format_frame),
     }
     return render(request, "registry/mark_detail.html", context)
 

@@ -13,6 +13,7 @@ from registry.web import (
     job_views,
     mark_views,
     nearby_views,
+    occupation_import_views,
     position_views,
     views,
 )
@@ -31,6 +32,8 @@ urlpatterns: list = [
     path("marks/import/", import_views.import_page, name="import"),
     # marks near a point (fieldwork pages area); before marks/<code>/ so that "near" never reads as a code
     path("marks/near/", nearby_views.marks_near_page, name="marks-near"),
+    # batch occupation results from a CSV file (preview, then record)
+    path("occupations/import/", occupation_import_views.occupation_import_page, name="occupation-import"),
     path("marks/<str:code>/", mark_views.mark_page, name="mark-detail"),
     path("marks/<str:code>/edit/", mark_views.mark_edit, name="mark-edit"),
     # a free text in full, behind a page's "show all" (registry/services/limits.py)
