@@ -27,7 +27,8 @@ from registry.api.permissions import IsViewer, ReadViewerWriteManager
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.services.access import access_job_by_code
 from registry.services.jobs import CREATE_FIELDS, job_create, job_update
-from registry.services.screening import job_screen, site_screen
+from registry.services.screening import site_screen
+from registry.services.screening.cache import job_screen_cached
 
 ERRORS = {
     400: OpenApiResponse(description="Invalid input: {error: {code, message, details: {field: [{code, message}]}}}."),
@@ -210,7 +211,7 @@ class JobScreeningView(APIView):
         responses={200: ScreeningOutput, 404: ERRORS[404]},
     )
     def get(self, request, code: str):
-        result = job_screen(actor=request.user, code=code, as_of=_as_of(request.query_params.get("as_of")))
+        result = job_screen_cached(actor=request.user, code=code, as_of=_as_of(request.query_params.get("as_of")))
         return Response(result.as_dict())
 
 

@@ -21,7 +21,7 @@ from pyproj import Geod
 from scipy import integrate, stats
 
 from registry.geodesy import rtk
-from registry.geodesy.rtk import MarkFacts, RtkErrorModel, rule_reasons, screen_candidates
+from registry.geodesy.rtk import RtkErrorModel, screen_candidates
 from registry.geodesy.site import LocalPlane, build_site_grid, parse_site_geojson, site_plane
 
 # ---------------------------------------------------------------- the RTK error model
@@ -183,51 +183,6 @@ def test_error_budget_drms_and_rss_options():
     assert b["rtk"]["h"] == pytest.approx(18 / math.sqrt(2))
     m2 = RtkErrorModel(combination="rss")
     assert m2.rtk_h_axis_mm(10_000.0) == pytest.approx(math.sqrt(164))
-
-
-# ---------------------------------------------------------------- exclusion rules, one by one
-
-GOOD = MarkFacts(
-    status="active",
-    sky_view="clear",
-    last_visit_condition="intact",
-    years_since_good_visit=2.0,
-    has_published_position=True,
-    transformable=True,
-)
-
-
-@pytest.mark.parametrize(
-    "change, reason",
-    [
-        ({"status": "retired"}, "not_active"),
-        ({"status": "destroyed"}, "not_active"),
-        ({"last_visit_condition": "disturbed"}, "last_visit_disturbed"),
-        ({"last_visit_condition": "destroyed"}, "last_visit_destroyed"),
-        ({"last_visit_condition": "searched_not_found"}, "last_visit_not_found"),
-        ({"years_since_good_visit": 10.01}, "no_recent_good_visit"),
-        ({"years_since_good_visit": None}, "no_recent_good_visit"),
-        ({"has_published_position": False, "transformable": None}, "no_published_position"),
-        ({"transformable": False}, "frame_not_transformable"),
-        ({"sky_view": "obstructed"}, "sky_obstructed"),
-    ],
-)
-def test_each_rule_alone(change, reason):
-    from dataclasses import replace
-
-    assert rule_reasons(GOOD, recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, **change), recovery_years=10) == [reason]
-    assert reason in rtk.REASON_WORDS
-
-
-def test_rule_edges():
-    from dataclasses import replace
-
-    # Exactly at the recovery limit still counts; a poor last visit alone does not exclude;
-    # partial sky view does not exclude.
-    assert rule_reasons(replace(GOOD, years_since_good_visit=10.0), recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, last_visit_condition="damaged"), recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, sky_view="partial"), recovery_years=10) == []
 
 
 def _zero_terms(k):

@@ -214,9 +214,9 @@ def _counting_screen():
     """Patch the screening with a wrapper that counts calls and still runs the real computation."""
     from unittest import mock
 
-    from registry.services import screening
+    from registry.services.screening import run
 
-    return mock.patch.object(screening, "job_screen", wraps=screening.job_screen)
+    return mock.patch.object(run, "job_screen", wraps=run.job_screen)
 
 
 def test_job_page_and_exports_share_one_screening(client, viewer, scenario, empty_cache):
@@ -270,7 +270,7 @@ def test_any_audited_write_invalidates_the_cached_screening(client, viewer, tech
 def test_cache_key_follows_as_of_and_settings(viewer, scenario, settings, empty_cache):
     import datetime as dt
 
-    from registry.services.screening_cache import screening_cache_key
+    from registry.services.screening.cache import screening_cache_key
 
     job = Job.objects.get(code="J-WEB")
     key = screening_cache_key(job, dt.date(2025, 7, 1))

@@ -1,0 +1,88 @@
+"""What a screening needs besides the marks: the settings of a stored job, or of an ad-hoc site.
+
+Ad-hoc settings are checked exactly as a job's fields are (same codes), through the public field
+checks of :mod:`registry.services.job_fields`, and get the same defaults a new job gets.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from django.core.exceptions import ValidationError
+
+from registry.geodesy import rtk
+from registry.geodesy import site as site_geo
+from registry.models import Job
+from registry.selectors.conversion import configured_plate
+from registry.services.job_fields import EDITABLE_FIELDS, clean_job_fields, new_job_defaults, validate_job
+
+#: Fields an ad-hoc screening accepts (a job's, without those that only describe the job).
+AD_HOC_FIELDS: tuple[str, ...] = tuple(
+    f for f in EDITABLE_FIELDS if f not in ("name", "client", "status", "notes", "grid_epsg")
+)
+AD_HOC_REQUIRED = ("site_geojson", "frame_epsg", "epoch_yr", "tol_h_mm", "tol_v_mm")
+
+
+@dataclass(frozen=True)
+class ScreeningSettings:
+    """Everything a screening needs besides the marks (from a job, or given ad hoc)."""
+
+    site: site_geo.Site
+    site_geojson: dict
+    frame_epsg: int
+    epoch_yr: float
+    tol_h_mm: float
+    tol_v_mm: float
+    model: rtk.RtkErrorModel
+    assumed_rate_mm_yr: float
+    max_baseline_m: float
+    recovery_years: float
+    grid_spacing_m: float | None = None
+    job_code: str | None = None
+    #: Plate of the ITRF2020 plate motion model (``REGISTRY["PLATE"]``); "" applies none.
+    plate: str = ""
+
+    @property
+    def site_radius_m(self) -> float:
+        return site_geo.site_radius_m(self.site, site_geo.site_plane(self.site))
+
+
+def settings_from_job(job: Job) -> ScreeningSettings:
+    """The screening settings of a stored (or unsaved, validated) job."""
+    site = site_geo.parse_site_geojson(job.site_geojson)
+    return ScreeningSettings(
+        site=site,
+        site_geojson=job.site_geojson,
+        frame_epsg=job.frame_epsg,
+        epoch_yr=job.epoch_yr,
+        tol_h_mm=job.tol_h_mm,
+        tol_v_mm=job.tol_v_mm,
+        model=rtk.RtkErrorModel(
+            h_fixed_mm=job.rtk_h_fixed_mm,
+            h_ppm=job.rtk_h_ppm,
+            v_fixed_mm=job.rtk_v_fixed_mm,
+            v_ppm=job.rtk_v_ppm,
+            combination=job.rtk_combination,
+            h_meaning=job.rtk_h_meaning,
+            setup_h_mm=job.setup_h_mm,
+            setup_v_mm=job.setup_v_mm,
+        ),
+        assumed_rate_mm_yr=job.assumed_rate_mm_yr,
+        max_baseline_m=job.max_baseline_m,
+        recovery_years=job.recovery_years,
+        grid_spacing_m=job.grid_spacing_m,
+        job_code=job.code,
+        plate=configured_plate() or "",
+    )
+
+
+def settings_from_data(data: dict) -> ScreeningSettings:
+    """Ad-hoc screening settings, validated exactly as a job's fields are (same codes)."""
+    cleaned = clean_job_fields(data, AD_HOC_FIELDS)
+    missing = [f for f in AD_HOC_REQUIRED if cleaned.get(f) is None]
+    if missing:
+        raise ValidationError({f: ValidationError("This field is required.", code="required") for f in missing})
+    job = Job(code="AD-HOC", name="ad-hoc site", **{**new_job_defaults(), **cleaned})
+    validate_job(job)
+    s = settings_from_job(job)
+    return ScreeningSettings(**{**s.__dict__, "job_code": None})

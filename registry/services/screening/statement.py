@@ -1,0 +1,69 @@
+"""The screening in words: its one-paragraph statement, the cautions, and where each budget term comes from."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from registry.geodesy import rtk
+
+if TYPE_CHECKING:
+    from registry.services.screening.params import ScreeningSettings
+    from registry.services.screening.result import Candidate
+
+CAUTIONS = (
+    "Screening is a planning aid computed from the registry's records, the job's error model and "
+    "common-practice defaults. It is not a guarantee of the accuracy achieved in the field.",
+    "Before relying on a base, confirm on site that it is the right mark and undisturbed, check its "
+    "published coordinates, frame and epoch against this sheet, and measure the antenna height twice.",
+    "Check in on at least one other trusted mark at the start and end of each session and compare the "
+    "discrepancy with the allowance shown; stop and investigate if it is larger.",
+    "RTK figures assume a fixed (ambiguity-resolved) solution and an open sky. The a + b ppm error model is a "
+    "reading of receiver specifications (common practice), not a field result: multipath, canopy, float "
+    "solutions and large height differences between base and rover make the field error larger.",
+    "Local codes, agency specifications and licensed professional practice govern. A licensed surveyor "
+    "decides what control is adequate.",
+)
+
+
+#: Where each error-budget term comes from (the base term's text is per candidate: ``Candidate.base_description``).
+BUDGET_TERM_DESCRIPTIONS = (
+    ("rtk", "receiver a + b·d at the farthest site point (job's error model)"),
+    ("base", "published position's σ from its covariance, plus any frame change's stated accuracy"),
+    ("drift", "epoch change to the job's epoch (velocity σ × |Δt|, or the assumed rate × |Δt|)"),
+    ("setup", "base centring (per axis) and antenna height"),
+)
+
+
+def screening_statement(s: ScreeningSettings, core: rtk.ScreeningCore, usable: list[Candidate], pair) -> str:
+    """The screening's outcome in one paragraph of plain English (``usable``: usable candidates, ranked)."""
+    tol = f"{s.tol_h_mm:.1f} mm horizontal and {s.tol_v_mm:.1f} mm vertical at 95 %"
+    if not usable:
+        return (
+            f"No mark within {s.max_baseline_m / 1000:.1f} km of every part of the site passes the screening rules, "
+            f"so no base can be proposed. See the reasons listed for each mark."
+        )
+    best = usable[0]
+    if best.covers_site:
+        return (
+            f"{best.mark.code} covers the whole site within {tol}: worst figures {best.h95_mm:.1f} mm horizontal, "
+            f"{best.v95_mm:.1f} mm vertical (margin {best.margin_mm:.1f} mm)."
+        )
+    if pair is not None and core.pair_worst_margin_mm >= 0:
+        return (
+            f"No single base covers the whole site within {tol}. The pair {pair[0].mark.code} + {pair[1].mark.code} "
+            f"does when each part of the site is surveyed from the better of the two (worst "
+            f"{core.pair_worst_h95_mm:.1f} mm horizontal, {core.pair_worst_v95_mm:.1f} mm vertical)."
+        )
+    pair_text = (
+        f" The best pair, {pair[0].mark.code} + {pair[1].mark.code}, covers {core.pair_coverage * 100:.0f} %."
+        if pair is not None
+        else ""
+    )
+    return (
+        f"The site cannot be covered within {tol} from the marks available. The best single base, "
+        f"{best.mark.code}, covers {best.coverage * 100:.0f} % of the site (worst {best.h95_mm:.1f} mm horizontal, "
+        f"{best.v95_mm:.1f} mm vertical).{pair_text} Using the best base at every point, the tightest "
+        f"tolerances reachable are {core.achievable_h95_mm:.1f} mm horizontal and {core.achievable_v95_mm:.1f} mm "
+        f"vertical. Consider new control on or near the site (static GNSS), a network RTK service, or a review of the "
+        f"tolerances with the client."
+    )
