@@ -24,7 +24,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.api.permissions import IsViewer, ReadViewerWriteManager
-from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.services.access import access_job_by_code
 from registry.services.jobs import CREATE_FIELDS, job_create, job_update
 from registry.services.screening import site_screen
@@ -64,7 +64,14 @@ class ScreeningSettingsInput(serializers.Serializer):
     rtk_h_meaning = serializers.ChoiceField(choices=RtkHorizontalMeaning.choices, required=False)
     setup_h_mm = serializers.FloatField(required=False)
     setup_v_mm = serializers.FloatField(required=False)
-    assumed_rate_mm_yr = serializers.FloatField(required=False)
+    rover_h_mm = serializers.FloatField(required=False, help_text="Rover pole centring per axis, 1σ, mm (default 2).")
+    rover_v_mm = serializers.FloatField(required=False, help_text="Rover rod height, 1σ, mm (default 3).")
+    assumed_rate_mm_yr = serializers.FloatField(required=False, help_text="Dynamic frames, mm/yr per axis.")
+    assumed_rate_plate_fixed_mm_yr = serializers.FloatField(required=False, help_text="Plate-fixed frames, mm/yr.")
+    field_date = serializers.DateField(
+        required=False, allow_null=True, help_text="When the crew observes (default: the screening date)."
+    )
+    vertical_deliverable = serializers.ChoiceField(choices=VerticalDeliverable.choices, required=False)
     max_baseline_m = serializers.FloatField(required=False)
     recovery_years = serializers.FloatField(required=False)
     grid_spacing_m = serializers.FloatField(required=False, allow_null=True)
@@ -85,7 +92,7 @@ class JobCreateInput(ScreeningSettingsInput):
 
 
 class BudgetTermSerializer(serializers.Serializer):
-    term = serializers.ChoiceField(choices=["rtk", "base", "drift", "setup"])
+    term = serializers.ChoiceField(choices=["rtk", "base", "drift", "motion", "setup", "rover", "geoid"])
     h_mm = serializers.FloatField(help_text="1σ per horizontal axis, mm.")
     v_mm = serializers.FloatField(help_text="1σ vertical, mm.")
     description = serializers.CharField(help_text="Where the term comes from (base: with any frame-change part).")
@@ -118,6 +125,13 @@ class CandidateSerializer(serializers.Serializer):
     )
     excluded = serializers.BooleanField()
     reasons = ReasonSerializer(many=True)
+    reaches_whole_site = serializers.BooleanField(help_text="Every site point is within the maximum baseline.")
+    velocity_mm_yr = serializers.ListField(child=serializers.FloatField(), allow_null=True)
+    motion_offset_mm = serializers.ListField(
+        child=serializers.FloatField(),
+        allow_null=True,
+        help_text="Predicted offset east, north, up from the deliverable epoch to the field date (null: none).",
+    )
     budget = BudgetTermSerializer(many=True, allow_null=True)
     sigma_h_mm = serializers.FloatField(allow_null=True)
     sigma_v_mm = serializers.FloatField(allow_null=True)
@@ -136,6 +150,7 @@ class ScreeningOutput(serializers.Serializer):
     candidates = CandidateSerializer(many=True)
     best_pair = serializers.JSONField(allow_null=True)
     chosen_bases = serializers.ListField(child=serializers.CharField())
+    service_areas = serializers.JSONField(help_text="Per chosen base, the share of the site it serves.")
     check_marks = serializers.JSONField()
     achievable = serializers.JSONField(allow_null=True)
     statement = serializers.CharField()

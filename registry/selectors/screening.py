@@ -10,7 +10,7 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass, field
 
-from django.db.models import Max
+from django.db.models import Max, Q
 
 from registry.models import Finding, Mark, Position, PositionState, Visit
 
@@ -19,7 +19,8 @@ from registry.models import Finding, Mark, Position, PositionState, Visit
 class MarkRecords:
     """What the registry holds about one candidate mark, as of the screening date.
 
-    ``published``: its published positions, newest coordinate epoch first (ties: newest id).
+    ``published``: its positions published as of the date (:func:`published_as_of`), newest
+    coordinate epoch first (ties: newest id).
     ``last_visit_finding``: the finding of its latest visit on or before the date (None: no visit).
     ``last_intact_on``: the day of its latest ``intact`` visit on or before the date (None: none).
     """
@@ -28,6 +29,22 @@ class MarkRecords:
     last_visit_finding: str | None
     last_intact_on: dt.date | None
     published: list[Position] = field(default_factory=list)
+
+
+def published_as_of(mark_ids, as_of: dt.date):
+    """The positions of ``mark_ids`` that were published at the end of ``as_of`` (UTC).
+
+    Published on or before that day (``decided_at``; a published position without a recorded
+    decision time counts as always published) and not yet superseded then. A position withdrawn
+    since is left out whatever the date (its publication time is no longer recorded): the
+    registry does not screen with coordinates it has taken back.
+    """
+    end = dt.datetime.combine(as_of + dt.timedelta(days=1), dt.time.min, tzinfo=dt.UTC)
+    published_then = Q(decided_at__isnull=True) | Q(decided_at__lt=end)
+    still = Q(state=PositionState.PUBLISHED) | Q(
+        state=PositionState.SUPERSEDED, superseded_at__isnull=False, superseded_at__gte=end
+    )
+    return Position.objects.filter(published_then & still, mark_id__in=mark_ids)
 
 
 def screening_records(
@@ -53,9 +70,7 @@ def screening_records(
         .values_list("mark_id", "last")
     )
     positions: dict[int, list[Position]] = {}
-    for p in Position.objects.filter(mark_id__in=ids, state=PositionState.PUBLISHED).order_by(
-        "mark_id", "-epoch_yr", "-id"
-    ):
+    for p in published_as_of(ids, as_of).order_by("mark_id", "-epoch_yr", "-id"):
         positions.setdefault(p.mark_id, []).append(p)
     return [
         MarkRecords(

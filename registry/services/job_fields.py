@@ -13,6 +13,7 @@ rate, maximum baseline and recovery period from ``settings.REGISTRY`` (2 mm/yr, 
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 from typing import Any
 
@@ -20,7 +21,7 @@ from django.conf import settings
 from django.core.exceptions import ValidationError
 
 from registry.geodesy import site as site_geo
-from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.models.marks import CODE_VALIDATOR
 from registry.services._input import field_error
 from registry.services.limits import NOTES_MAX
@@ -37,6 +38,9 @@ NUMBER_RANGES: dict[str, tuple[float, bool, float, str]] = {
     "setup_h_mm": (0.0, False, 100.0, "mm"),
     "setup_v_mm": (0.0, False, 100.0, "mm"),
     "assumed_rate_mm_yr": (0.0, False, 100.0, "mm/yr"),
+    "assumed_rate_plate_fixed_mm_yr": (0.0, False, 100.0, "mm/yr"),
+    "rover_h_mm": (0.0, False, 100.0, "mm"),
+    "rover_v_mm": (0.0, False, 100.0, "mm"),
     "max_baseline_m": (0.0, True, 100_000.0, "m"),
     "recovery_years": (0.0, True, 200.0, "years"),
     "grid_spacing_m": (0.0, True, 10_000.0, "m"),
@@ -61,7 +65,12 @@ EDITABLE_FIELDS: tuple[str, ...] = (
     "rtk_h_meaning",
     "setup_h_mm",
     "setup_v_mm",
+    "rover_h_mm",
+    "rover_v_mm",
     "assumed_rate_mm_yr",
+    "assumed_rate_plate_fixed_mm_yr",
+    "field_date",
+    "vertical_deliverable",
     "max_baseline_m",
     "recovery_years",
     "grid_spacing_m",
@@ -69,7 +78,7 @@ EDITABLE_FIELDS: tuple[str, ...] = (
 )
 CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS)
 REQUIRED_ON_CREATE = ("code", "name", "site_geojson", "frame_epsg", "epoch_yr", "tol_h_mm", "tol_v_mm")
-NULLABLE = {"grid_epsg", "custom_grid", "grid_spacing_m"}
+NULLABLE = {"grid_epsg", "custom_grid", "grid_spacing_m", "field_date"}
 
 
 def settings_defaults() -> dict[str, float]:
@@ -77,6 +86,7 @@ def settings_defaults() -> dict[str, float]:
     cfg = settings.REGISTRY
     return {
         "assumed_rate_mm_yr": float(cfg.get("ASSUMED_RATE_MM_YR", 2.0)),
+        "assumed_rate_plate_fixed_mm_yr": float(cfg.get("ASSUMED_RATE_PLATE_FIXED_MM_YR", 0.5)),
         "max_baseline_m": float(cfg.get("MAX_BASELINE_M", 10_000.0)),
         "recovery_years": float(cfg.get("RECOVERY_YEARS", 10.0)),
     }
@@ -100,6 +110,22 @@ def _number(field: str, value: Any) -> float | None:
         bound = f"greater than {lo:g}" if lo_open else f"at least {lo:g}"
         raise field_error(field, f"Must be {bound} and at most {hi:g} ({unit}).", "out_of_range", value=x)
     return x
+
+
+def _date(field: str, value: Any) -> dt.date | None:
+    """A calendar date (``YYYY-MM-DD``) between 1900 and 2100; empty: None."""
+    if value is None or value == "":
+        return None
+    if isinstance(value, dt.datetime):
+        value = value.date()
+    if not isinstance(value, dt.date):
+        try:
+            value = dt.date.fromisoformat(str(value).strip())
+        except ValueError:
+            raise field_error(field, "Expected a date as YYYY-MM-DD.", "invalid_date") from None
+    if not dt.date(1900, 1, 1) <= value <= dt.date(2100, 12, 31):
+        raise field_error(field, "The date must be between 1900 and 2100.", "out_of_range")
+    return value
 
 
 def _epsg(field: str, value: Any) -> int | None:
@@ -197,6 +223,8 @@ def clean_job_fields(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
                 cleaned[key] = _epsg(key, value)
             elif key == "custom_grid":
                 cleaned[key] = _custom_grid(value)
+            elif key == "field_date":
+                cleaned[key] = _date(key, value)
             elif key == "site_geojson":
                 cleaned[key] = _site(value)
             elif key in TEXT_FIELDS:
@@ -219,6 +247,7 @@ def clean_job_fields(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
                     "status": JobStatus,
                     "rtk_combination": RtkCombination,
                     "rtk_h_meaning": RtkHorizontalMeaning,
+                    "vertical_deliverable": VerticalDeliverable,
                 }[key]
                 if value not in choices.values:
                     raise field_error(key, f"{value!r} is not one of: {', '.join(choices.values)}.", "invalid_choice")

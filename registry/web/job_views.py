@@ -22,7 +22,7 @@ from django.utils.safestring import mark_safe
 from registry.errors import Conflict
 from registry.geodesy import rtk
 from registry.geodesy.frames import frame_info
-from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.roles import Ability, has_ability
 from registry.services.access import access_job_by_code
 from registry.services.job_fields import new_job_defaults
@@ -45,7 +45,13 @@ NUMBER_FIELDS = (
     ("rtk_v_ppm", "RTK vertical, distance part (ppm)"),
     ("setup_h_mm", "Base centring per axis, 1σ (mm)"),
     ("setup_v_mm", "Base antenna height, 1σ (mm)"),
-    ("assumed_rate_mm_yr", "Assumed unmodelled motion without velocity (mm/yr per axis)"),
+    ("rover_h_mm", "Rover pole centring per axis, 1σ (mm)"),
+    ("rover_v_mm", "Rover rod height, 1σ (mm)"),
+    ("assumed_rate_mm_yr", "Assumed unmodelled motion without velocity, dynamic frame (mm/yr per axis)"),
+    (
+        "assumed_rate_plate_fixed_mm_yr",
+        "Assumed unmodelled motion without velocity, plate-fixed frame (mm/yr per axis)",
+    ),
     ("max_baseline_m", "Maximum baseline (m)"),
     ("recovery_years", "A base needs a good visit within (years)"),
     ("grid_spacing_m", "Site grid spacing (m; empty: chosen from the site size)"),
@@ -54,6 +60,8 @@ HELP = {
     "epoch_yr": "e.g. 2025.500",
     "rtk_h_fixed_mm": "Common practice: 8 mm + 1 ppm horizontal, 15 mm + 1 ppm vertical (receiver specifications).",
     "max_baseline_m": "Common practice for single-base RTK: 10 000 m.",
+    "rover_h_mm": "Common practice for a pole with a checked bubble: 2 mm centring, 3 mm rod height.",
+    "assumed_rate_plate_fixed_mm_yr": "A plate-fixed frame takes out the plate's motion; what remains is small.",
 }
 
 
@@ -102,6 +110,19 @@ class JobForm(forms.Form):
         label="The horizontal RTK figure is",
         choices=RtkHorizontalMeaning.choices,
         initial=RtkHorizontalMeaning.PER_AXIS,
+        help_text="1σ per axis is the conservative reading (as 2D RMS the per-axis figure is √2 smaller); choose "
+        "2D RMS only when the receiver's specification says so.",
+    )
+    field_date = forms.CharField(
+        label="Field date (YYYY-MM-DD; empty: the day the screening is run)",
+        required=False,
+        help_text="Base motion relative to the site is counted from the deliverable epoch to this date.",
+    )
+    vertical_deliverable = forms.ChoiceField(
+        label="Heights delivered",
+        choices=VerticalDeliverable.choices,
+        initial=VerticalDeliverable.ELLIPSOIDAL,
+        required=False,
     )
     notes = forms.CharField(label="Notes", required=False, widget=forms.Textarea(attrs={"rows": 3, "cols": 70}))
     version = forms.IntegerField(widget=forms.HiddenInput, required=False)
@@ -150,7 +171,7 @@ class JobForm(forms.Form):
         for n in names:
             value = self.cleaned_data.get(n)
             data[n] = value.strip() if isinstance(value, str) else value
-        for n in ("grid_epsg", "custom_grid", "grid_spacing_m"):
+        for n in ("grid_epsg", "custom_grid", "grid_spacing_m", "field_date"):
             if n in data and data[n] == "":
                 data[n] = None
         if not only_changed:
@@ -170,8 +191,19 @@ class JobForm(forms.Form):
 def _initial(job: Job) -> dict:
     initial = {
         name: getattr(job, name)
-        for name in ("name", "client", "status", "frame_epsg", "grid_epsg", "rtk_combination", "rtk_h_meaning", "notes")
+        for name in (
+            "name",
+            "client",
+            "status",
+            "frame_epsg",
+            "grid_epsg",
+            "rtk_combination",
+            "rtk_h_meaning",
+            "vertical_deliverable",
+            "notes",
+        )
     }
+    initial["field_date"] = "" if job.field_date is None else job.field_date.isoformat()
     initial["grid_epsg"] = "" if job.grid_epsg is None else str(job.grid_epsg)
     initial["custom_grid"] = job.custom_grid_id or ""
     initial["frame_epsg"] = str(job.frame_epsg)

@@ -158,9 +158,9 @@ def test_drift_terms():
 def test_error_budget_every_term_by_hand():
     # [hand] d = 5 km, 8 mm + 1 ppm / 15 mm + 1 ppm additive per axis → rtk 13 / 20 mm ([RTK-CP]);
     # base covariance ee = 16e-6, nn = 9e-6, en = 0 m² → √λmax = 4 mm; uu = 36e-6 m² → 6 mm;
-    # drift 2 mm/yr × 2.5 yr = 5 mm both; setup 2 / 3 mm (common practice).
-    # σ_h = √(13² + 4² + 5² + 2²) = √214 = 14.628739 mm → H95 = 2.4477468 × 14.628739 = 35.8074 mm
-    # σ_v = √(20² + 6² + 5² + 3²) = √470 = 21.679483 mm → V95 = 1.959964 × 21.679483 = 42.4910 mm
+    # drift 2 mm/yr × 2.5 yr = 5 mm both; base setup 2 / 3 mm and rover pole 2 / 3 mm (common practice).
+    # σ_h = √(13² + 4² + 5² + 2² + 2²) = √218 = 14.764823 mm → H95 = 2.4477468 × 14.764823 = 36.1405 mm
+    # σ_v = √(20² + 6² + 5² + 3² + 3²) = √479 = 21.886069 mm → V95 = 1.959964 × 21.886069 = 42.8959 mm
     base_h, base_v = rtk.base_sigma_from_covariance_mm(16e-6, 0.0, 9e-6, 36e-6)
     drift = rtk.drift_sigma_mm(2.5)
     b = rtk.error_budget_mm(
@@ -170,15 +170,16 @@ def test_error_budget_every_term_by_hand():
     assert b["base"] == {"h": pytest.approx(4.0), "v": pytest.approx(6.0)}
     assert b["drift"] == {"h": pytest.approx(5.0), "v": pytest.approx(5.0)}
     assert b["setup"] == {"h": pytest.approx(2.0), "v": pytest.approx(3.0)}
-    assert b["sigma_h"] == pytest.approx(math.sqrt(214))
-    assert b["h95"] == pytest.approx(35.8074, abs=1e-4)
-    assert b["sigma_v"] == pytest.approx(math.sqrt(470))
-    assert b["v95"] == pytest.approx(42.4910, abs=1e-4)
+    assert b["rover"] == {"h": pytest.approx(2.0), "v": pytest.approx(3.0)}
+    assert b["sigma_h"] == pytest.approx(math.sqrt(218))
+    assert b["h95"] == pytest.approx(36.1405, abs=1e-4)
+    assert b["sigma_v"] == pytest.approx(math.sqrt(479))
+    assert b["v95"] == pytest.approx(42.8959, abs=1e-4)
 
 
 def test_error_budget_drms_and_rss_options():
     # [hand] drms: 18 mm 2D RMS at 10 km → 18/√2 = 12.7279 mm per axis; RSS: √(8² + 10²) = 12.8062 mm.
-    m = RtkErrorModel(h_meaning="drms", setup_h_mm=0, setup_v_mm=0)
+    m = RtkErrorModel(h_meaning="drms", setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     b = rtk.error_budget_mm(10_000.0, model=m, base_h_mm=0, base_v_mm=0, drift_h_mm=0, drift_v_mm=0)
     assert b["rtk"]["h"] == pytest.approx(18 / math.sqrt(2))
     m2 = RtkErrorModel(combination="rss")
@@ -190,9 +191,10 @@ def _zero_terms(k):
     return dict(base_h_mm=z, base_v_mm=z, drift_h_mm=z, drift_v_mm=z, usable=np.ones(k, bool))
 
 
-def test_beyond_max_baseline_excludes_on_any_site_point():
+def test_max_baseline_applies_per_site_point():
     # Site points at 0 and 9 km east; candidates at 0.5 km west and at 1.5 km west:
-    # farthest baselines 9.5 km (inside 10 km) and 10.5 km (beyond).
+    # farthest baselines 9.5 km (inside 10 km) and 10.5 km (beyond). The second still serves the point
+    # at 0 (1.5 km away), so it stays eligible, with half the site covered and no claim to the whole.
     pe = np.array([0.0, 9000.0])
     pn = np.zeros(2)
     core = screen_candidates(
@@ -208,9 +210,30 @@ def test_beyond_max_baseline_excludes_on_any_site_point():
         **_zero_terms(2),
     )
     assert core.max_distance_m.tolist() == pytest.approx([9500.0, 10500.0])
+    assert core.beyond_baseline.tolist() == [False, False]
+    assert core.reaches_site.tolist() == [True, False]
+    assert core.eligible.tolist() == [True, True]
+    assert core.coverage.tolist() == pytest.approx([1.0, 0.5])
+    assert core.order.tolist() == [0, 1]
+
+
+def test_a_base_with_no_site_point_within_the_baseline_is_excluded():
+    # Site point at 0; candidate at 10 000 m (equality: within) and at 10 000.5 m (beyond).
+    core = screen_candidates(
+        np.zeros(1),
+        np.zeros(1),
+        np.ones(1, bool),
+        np.array([10_000.0, 10_000.5]),
+        np.zeros(2),
+        model=RtkErrorModel(),
+        tol_h_mm=1000,
+        tol_v_mm=1000,
+        max_baseline_m=10_000,
+        **_zero_terms(2),
+    )
     assert core.beyond_baseline.tolist() == [False, True]
     assert core.eligible.tolist() == [True, False]
-    assert core.order.tolist() == [0, 1]
+    assert core.coverage.tolist() == [1.0, 0.0]
 
 
 # ---------------------------------------------------------------- coverage with a known answer
@@ -248,7 +271,9 @@ def test_square_site_corner_base_analytic_coverage(radius_m):
     n = 400  # fine planar grid of cell centres: 5 m cells
     xs = (np.arange(n) + 0.5) * L / n
     gx, gy = np.meshgrid(xs, xs)
-    model = RtkErrorModel(h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0)
+    model = RtkErrorModel(
+        h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0
+    )
     tol_h = rtk.K_H95 * (5 + 5 * radius_m / 1000)
     core = screen_candidates(
         gx.ravel(),
@@ -282,7 +307,9 @@ def test_square_site_from_geojson_end_to_end():
     grid = build_site_grid(site, sp)
     assert 400 <= grid.n_cells <= 2500
     ce, cn = sp.to_local_m(lat[0], lon[0])
-    model = RtkErrorModel(h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0)
+    model = RtkErrorModel(
+        h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0
+    )
     r = 1500.0
     core = screen_candidates(
         grid.e_m,
@@ -336,8 +363,8 @@ def test_planar_screening_matches_geodesic_brute_force():
         _, _, d = geod.inv(np.full(g_lat.size, c_lon[i]), np.full(g_lat.size, c_lat[i]), g_lon, g_lat)
         assert core.max_distance_m[i] == pytest.approx(d.max(), rel=1e-5)
         assert core.min_distance_m[i] == pytest.approx(d.min(), rel=1e-5, abs=0.05)
-        h95 = rtk.K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + 3**2 + 4**2 + 2**2)
-        v95 = rtk.K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + 5**2 + 4**2 + 3**2)
+        h95 = rtk.K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + 3**2 + 4**2 + 2**2 + 2**2)  # + base setup, rover pole
+        v95 = rtk.K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + 5**2 + 4**2 + 3**2 + 3**2)
         assert core.worst_h95_mm[i] == pytest.approx(h95.max(), abs=1e-4)
         ok = (h95 <= 40) & (v95 <= 55)
         assert core.coverage[i] == pytest.approx(ok[grid.is_cell].mean(), abs=2 / grid.n_cells)
@@ -366,10 +393,11 @@ def test_ranking_full_coverage_first_then_margin():
     )
     assert core.order.tolist()[:2] == [1, 0]
     assert set(core.order.tolist()[2:]) == {2, 3}
-    # [hand] at 1 km: H95 = 2.4477·√(9² + 2²) = 22.567 mm; V95 = 1.96·√(16² + 3²) = 31.906 mm.
-    assert core.worst_h95_mm[1] == pytest.approx(rtk.K_H95 * math.sqrt(85), rel=1e-9)
-    assert core.worst_v95_mm[1] == pytest.approx(rtk.K_V95 * math.sqrt(265), rel=1e-9)
-    assert core.margin_mm[1] == pytest.approx(min(50 - 22.5672, 60 - 31.9057), abs=1e-3)
+    # [hand] at 1 km: H95 = 2.4477·√(9² + 2² + 2²) = 23.092 mm; V95 = 1.96·√(16² + 3² + 3²) = 32.443 mm
+    # (base setup and rover pole).
+    assert core.worst_h95_mm[1] == pytest.approx(rtk.K_H95 * math.sqrt(89), rel=1e-9)
+    assert core.worst_v95_mm[1] == pytest.approx(rtk.K_V95 * math.sqrt(274), rel=1e-9)
+    assert core.margin_mm[1] == pytest.approx(min(50 - 23.0920, 60 - 32.4434), abs=1e-3)
     assert core.achievable_h95_mm == pytest.approx(core.worst_h95_mm[1])
 
 
@@ -384,7 +412,7 @@ def test_best_pair_covers_a_long_site_no_single_base_does():
     pe, pn = gx.ravel(), gy.ravel()
     ce = np.array([0.0, 6000.0, 3000.0, -300.0])
     cn = np.array([250.0, 250.0, 250.0, 250.0])
-    model = RtkErrorModel(setup_h_mm=0, setup_v_mm=0)
+    model = RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     core = screen_candidates(
         pe,
         pn,
@@ -422,7 +450,7 @@ def test_no_pair_when_a_second_base_adds_no_coverage():
         np.ones(pe.size, bool),
         np.array([0.0, 15500.0]),
         np.array([250.0, 250.0]),
-        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0),
+        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0),
         tol_h_mm=27.0,
         tol_v_mm=1000,
         max_baseline_m=20_000,
@@ -448,7 +476,7 @@ def test_farthest_point_selection_spreads():
 
 def test_check_shot_allowance_by_hand():
     # [hand] base at 2 km: rtk 10 / 17 mm; base 3 / 5; base drift 2 / 2; base setup 2 / 3; rover centring and rod
-    # height on the check mark 2 / 3 (the same setup figures, common practice); check mark 4 / 6, drift 1 / 1;
+    # height on the check mark 2 / 3 (the job's rover figures, common practice); check mark 4 / 6, drift 1 / 1;
     # base and check independent (no cross-covariance stored).
     # H = 2.4477468·√(100 + 9 + 4 + 4 + 4 + 16 + 1) = 2.4477468·√138 = 28.7545 mm
     # V = 1.959964·√(289 + 25 + 4 + 9 + 9 + 36 + 1) = 1.959964·√373 = 37.8532 mm
@@ -466,10 +494,10 @@ def test_check_shot_allowance_by_hand():
     )
     assert h == pytest.approx(28.7545, abs=1e-4)
     assert v == pytest.approx(37.8532, abs=1e-4)
-    # Without any setup error the rover-centring term goes too: [hand] H = 2.4477468·√130 = 27.9086 mm.
+    # Without base setup and rover pole errors: [hand] H = 2.4477468·√130 = 27.9086 mm.
     h0, _ = rtk.check_shot_allowance_mm(
         2000.0,
-        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0),
+        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0),
         base_h_mm=3,
         base_v_mm=5,
         base_drift_h_mm=2,

@@ -23,6 +23,7 @@ GOOD = MarkFacts(
     [
         ({"status": "retired"}, "not_active"),
         ({"status": "destroyed"}, "not_active"),
+        ({"status": "suspect"}, "suspect"),
         ({"last_visit_condition": "disturbed"}, "last_visit_disturbed"),
         ({"last_visit_condition": "destroyed"}, "last_visit_destroyed"),
         ({"last_visit_condition": "searched_not_found"}, "last_visit_not_found"),
@@ -49,5 +50,3 @@ def test_rule_edges():
     assert rule_reasons(replace(GOOD, years_since_good_visit=10.0), recovery_years=10) == []
     assert rule_reasons(replace(GOOD, last_visit_condition="damaged"), recovery_years=10) == []
     assert rule_reasons(replace(GOOD, sky_view="partial"), recovery_years=10) == []
-
-

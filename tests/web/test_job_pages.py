@@ -54,7 +54,7 @@ def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
     assert 'Excluded marks: <span class="num">2</span>' in excluded
     assert 'not_active <span class="num">1</span>' in excluded and "sky_obstructed" in excluded
     assert 'data-code="OLD-1"' in excluded and 'data-code="SKY-1"' in excluded
-    assert "the mark is not active (retired, destroyed or suspect)" in excluded
+    assert "the mark is retired or recorded destroyed" in excluded
     assert "<details open" not in body  # collapsed: readable without JavaScript, one click to open
     assert "Local codes, agency specifications and licensed professional practice govern" in body
     assert "/jobs/J-WEB/control.csv" in body and "/jobs/J-WEB/control.geojson" in body

@@ -6,12 +6,14 @@ checks of :mod:`registry.services.job_fields`, and get the same defaults a new j
 
 from __future__ import annotations
 
+import datetime as dt
 from dataclasses import dataclass
 
 from django.core.exceptions import ValidationError
 
 from registry.geodesy import rtk
 from registry.geodesy import site as site_geo
+from registry.geodesy.frames import frame_info
 from registry.models import Job
 from registry.selectors.conversion import configured_plate
 from registry.services.job_fields import EDITABLE_FIELDS, clean_job_fields, new_job_defaults, validate_job
@@ -21,6 +23,9 @@ AD_HOC_FIELDS: tuple[str, ...] = tuple(
     f for f in EDITABLE_FIELDS if f not in ("name", "client", "status", "notes", "grid_epsg")
 )
 AD_HOC_REQUIRED = ("site_geojson", "frame_epsg", "epoch_yr", "tol_h_mm", "tol_v_mm")
+#: The vertical σ used for an orthometric deliverable when only the global fallback model is available (mm).
+#: Deliberately large: a global model's height is never presented as survey grade.
+EGM96_RELATIVE_SIGMA_MM = 100.0
 
 
 @dataclass(frozen=True)
@@ -41,10 +46,35 @@ class ScreeningSettings:
     job_code: str | None = None
     #: Plate of the ITRF2020 plate motion model (``REGISTRY["PLATE"]``); "" applies none.
     plate: str = ""
+    #: Assumed unmodelled rate (mm/yr per axis) used when the job's frame is plate-fixed.
+    assumed_rate_plate_fixed_mm_yr: float = 0.5
+    #: When the crew observes; None: the screening's date (``as_of``, default today).
+    field_date: dt.date | None = None
+    #: "ellipsoidal" or "orthometric" (the office geoid model, with its stated σ below).
+    vertical_deliverable: str = "ellipsoidal"
+    #: Stated 1σ of the geoid model (mm; ``REGISTRY["GEOID_SIGMA_MM"]``), used for orthometric deliverables.
+    geoid_sigma_mm: float = 0.0
+    #: The geoid model's name as shown to the user ("" when none is configured).
+    geoid_label: str = ""
 
     @property
     def site_radius_m(self) -> float:
         return site_geo.site_radius_m(self.site, site_geo.site_plane(self.site))
+
+    @property
+    def frame_is_dynamic(self) -> bool:
+        """True for a dynamic frame (ITRF realisations, WGS 84): marks move with their plate in it."""
+        return frame_info(self.frame_epsg).kind != "plate-fixed"
+
+    @property
+    def epoch_rate_mm_yr(self) -> float:
+        """The assumed unmodelled rate (mm/yr per axis) for the job's kind of frame."""
+        return self.assumed_rate_mm_yr if self.frame_is_dynamic else self.assumed_rate_plate_fixed_mm_yr
+
+    @property
+    def geoid_v_mm(self) -> float:
+        """The vertical budget's geoid term: the model's σ for orthometric deliverables, else 0."""
+        return self.geoid_sigma_mm if self.vertical_deliverable == "orthometric" else 0.0
 
 
 def settings_from_job(job: Job) -> ScreeningSettings:
@@ -66,6 +96,8 @@ def settings_from_job(job: Job) -> ScreeningSettings:
             h_meaning=job.rtk_h_meaning,
             setup_h_mm=job.setup_h_mm,
             setup_v_mm=job.setup_v_mm,
+            rover_h_mm=job.rover_h_mm,
+            rover_v_mm=job.rover_v_mm,
         ),
         assumed_rate_mm_yr=job.assumed_rate_mm_yr,
         max_baseline_m=job.max_baseline_m,
@@ -73,7 +105,26 @@ def settings_from_job(job: Job) -> ScreeningSettings:
         grid_spacing_m=job.grid_spacing_m,
         job_code=job.code,
         plate=configured_plate() or "",
+        assumed_rate_plate_fixed_mm_yr=job.assumed_rate_plate_fixed_mm_yr,
+        field_date=job.field_date,
+        vertical_deliverable=job.vertical_deliverable,
+        **_geoid_settings(),
     )
+
+
+def _geoid_settings() -> dict:
+    """The office geoid model's label and its stated σ (the EGM96 fallback states its global-model error)."""
+    from django.conf import settings
+
+    from registry.geodesy.heights import EGM96_LABEL
+
+    cfg = settings.REGISTRY
+    name = cfg.get("GEOID_NAME") or cfg.get("GEOID_MODEL") or ""
+    if name:
+        return {"geoid_label": name, "geoid_sigma_mm": float(cfg.get("GEOID_SIGMA_MM", 15.0))}
+    # Global model: its errors reach decimetres (Lemoine et al. 1998, NASA/TP-1998-206861); between a base and
+    # a rover a few km apart the error of the difference is smaller, but it is not survey grade either way.
+    return {"geoid_label": EGM96_LABEL, "geoid_sigma_mm": EGM96_RELATIVE_SIGMA_MM}
 
 
 def settings_from_data(data: dict) -> ScreeningSettings:

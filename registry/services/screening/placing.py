@@ -5,7 +5,8 @@ transforms to it (``registry.geodesy.frames.transform_position``, which also mov
 epoch: along the mark's velocity where known; else, in a dynamic frame, with the plate's rigid
 motion from the ITRF2020 plate motion model when ``REGISTRY["PLATE"]`` names a plate; else held).
 Without a velocity the assumed rate × |Δt| is added (the residual motion relative to the plate where
-the model was applied). The σ that epoch change adds per axis is the *drift* term (horizontal: the
+the model was applied): the job's rate for dynamic frames, its plate-fixed rate for plate-fixed frames
+(``REGISTRY_ASSUMED_RATE_MM_YR`` / ``REGISTRY_ASSUMED_RATE_PLATE_FIXED_MM_YR`` as a new job's defaults). The σ that epoch change adds per axis is the *drift* term (horizontal: the
 larger of east and north). When the position's frame differs from the job's, the frame change's
 stated accuracy (PROJ/EPSG, metres, no confidence level stated) is read as a 1σ per axis and added in
 quadrature to the *base* term (``rtk.frame_change_sigma_mm``; 0 m "exact by definition" and an
@@ -74,12 +75,15 @@ def candidates_from_records(records: list[MarkRecords], s: ScreeningSettings, as
 def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
     """Move position ``p`` to the job's frame and epoch; fill the base and drift terms."""
     velocity = sigma = None
+    rate_mm_yr = s.epoch_rate_mm_yr
     if p.has_velocity:
         velocity = (p.vel_e_m_yr, p.vel_n_m_yr, p.vel_u_m_yr)
-        rate_m_yr = s.assumed_rate_mm_yr / 1000.0
+        rate_m_yr = rate_mm_yr / 1000.0
         sigma = tuple(
             rate_m_yr if v is None else v for v in (p.vel_sigma_e_m_yr, p.vel_sigma_n_m_yr, p.vel_sigma_u_m_yr)
         )
+        cand.velocity_mm_yr = tuple(float(v) * 1e3 for v in velocity)
+        cand.velocity_sigma_mm_yr = tuple(float(v) * 1e3 for v in sigma)
     r = transform_position(
         p.lat_deg,
         p.lon_deg,
@@ -90,7 +94,7 @@ def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
         to_epoch_yr=s.epoch_yr,
         velocity_enu_m_yr=velocity,
         velocity_sigma_enu_m_yr=sigma,
-        assumed_rate_mm_yr=s.assumed_rate_mm_yr,
+        assumed_rate_mm_yr=rate_mm_yr,
         plate=s.plate or None,
     )
     cand.position = p

@@ -12,7 +12,7 @@ from typing import Any
 from registry.geodesy import rtk
 from registry.services.screening import rules
 from registry.services.screening.result import Candidate, ScreeningResult
-from registry.services.screening.statement import BUDGET_TERM_DESCRIPTIONS
+from registry.services.screening.statement import BUDGET_TERM_DESCRIPTIONS, error_model_words
 
 
 def screening_document(result: ScreeningResult) -> dict[str, Any]:
@@ -46,9 +46,20 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
             "rtk_v_ppm": s.model.v_ppm,
             "rtk_combination": s.model.combination,
             "rtk_h_meaning": s.model.h_meaning,
+            "rtk_reading": error_model_words(s),
             "setup_h_mm": s.model.setup_h_mm,
             "setup_v_mm": s.model.setup_v_mm,
+            "rover_h_mm": s.model.rover_h_mm,
+            "rover_v_mm": s.model.rover_v_mm,
             "assumed_rate_mm_yr": s.assumed_rate_mm_yr,
+            "assumed_rate_plate_fixed_mm_yr": s.assumed_rate_plate_fixed_mm_yr,
+            "frame_kind": "dynamic" if s.frame_is_dynamic else "plate-fixed",
+            "assumed_rate_used_mm_yr": s.epoch_rate_mm_yr,
+            "field_date": None if result.field_date is None else result.field_date.isoformat(),
+            "field_date_given": s.field_date is not None,
+            "vertical_deliverable": s.vertical_deliverable,
+            "geoid_model": s.geoid_label if s.vertical_deliverable == "orthometric" else None,
+            "geoid_sigma_mm": s.geoid_v_mm,
             "plate_model": s.plate or None,
             "max_baseline_m": s.max_baseline_m,
             "recovery_years": s.recovery_years,
@@ -65,6 +76,7 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
             "worst_margin_mm": _mm(core.pair_worst_margin_mm),
         },
         "chosen_bases": [c.mark.code for c in result.chosen],
+        "service_areas": service_shares(result),
         "check_marks": [
             {
                 "code": cm.candidate.mark.code,
@@ -82,6 +94,7 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
             "horizontal_95_mm": _mm(core.achievable_h95_mm),
             "vertical_95_mm": _mm(core.achievable_v95_mm),
             "coverage_any_base": round(core.any_coverage, 4),
+            "from_different_bases": core.achievable_split,
         },
         "statement": result.statement,
         "warnings": result.warnings,
@@ -121,6 +134,7 @@ def _candidate_dict(c: Candidate) -> dict[str, Any]:
         "margin_mm": _mm(c.margin_mm),
         "coverage": round(float(c.coverage), 4),
         "covers_site": c.covers_site,
+        "reaches_whole_site": c.reaches_site,
         "coverage_words": c.coverage_words,
         "max_height_difference_m": _m(c.max_dh_m),
         "excluded": c.excluded,
@@ -129,8 +143,10 @@ def _candidate_dict(c: Candidate) -> dict[str, Any]:
         if c.budget is None
         else [
             {"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"]), "description": d}
-            for t, d in ((t, c.base_description() if t == "base" else d) for t, d in BUDGET_TERM_DESCRIPTIONS)
+            for t, d in ((t, term_description(c, t, d)) for t, d in BUDGET_TERM_DESCRIPTIONS)
         ],
+        "velocity_mm_yr": None if c.velocity_mm_yr is None else [round(x, 2) for x in c.velocity_mm_yr],
+        "motion_offset_mm": None if c.motion_offset_mm is None else [round(x, 1) for x in c.motion_offset_mm],
         "sigma_h_mm": None if c.budget is None else _mm(c.budget["sigma_h"]),
         "sigma_v_mm": None if c.budget is None else _mm(c.budget["sigma_v"]),
         "steps": c.steps,
@@ -150,6 +166,7 @@ def candidate_row(c: Candidate, role: str) -> dict[str, Any]:
         "dh_m": c.max_dh_m if dh_known else None,
         "dh_warn": dh_known and c.max_dh_m > rtk.HEIGHT_DIFFERENCE_WARN_M,
         "base_title": c.base_description() if c.budget else "",
+        "motion_warn": any(c.mark.code in w and "moves relative to the site" in w for w in c.warnings),
     }
 
 
@@ -177,4 +194,27 @@ def page_figures(result: ScreeningResult) -> dict[str, Any]:
         "pair_coverage_pct": None if core is None or result.pair is None else core.pair_coverage * 100,
         "any_coverage_pct": None if core is None else core.any_coverage * 100,
         "budget_terms": dict(BUDGET_TERM_DESCRIPTIONS),
+        "error_model_text": error_model_words(result.settings),
+        "service_shares": {d["base"]: d["share"] * 100 for d in service_shares(result)},
     }
+
+
+def term_description(c: Candidate, term: str, default: str) -> str:
+    """A budget term's description for one candidate (the base and motion terms say where theirs came from)."""
+    if term == "base":
+        return c.base_description()
+    if term == "motion" and c.motion_note:
+        return f"{default}: {c.motion_note}"
+    return default
+
+
+def service_shares(result: ScreeningResult) -> list[dict[str, Any]]:
+    """Per chosen base, the share of the site's cells it serves (within tolerance, best margin there)."""
+    if result.assignment is None:
+        return []
+    cells = result.grid.is_cell
+    n = max(int(cells.sum()), 1)
+    return [
+        {"base": c.mark.code, "share": round(float(((result.assignment == i) & cells).sum()) / n, 4)}
+        for i, c in enumerate(result.chosen)
+    ]

@@ -11,6 +11,8 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
+
 from registry.geodesy import rtk
 from registry.geodesy import site as site_geo
 from registry.geodesy.frames import frame_info
@@ -42,6 +44,17 @@ class Candidate:
     warnings: list[str] = field(default_factory=list)
     #: Years its position was held unmodelled in a dynamic frame (see frames.FrameTransformResult).
     unmodelled_hold_yr: float = 0.0
+    #: The position's published velocity (east, north, up; mm/yr, in the position's frame) and its σ; None: none.
+    velocity_mm_yr: tuple[float, float, float] | None = None
+    velocity_sigma_mm_yr: tuple[float, float, float] | None = None
+    #: Motion relative to the site from the deliverable epoch to the field date: the 1σ-sized terms
+    #: (horizontal, vertical; mm), the predicted offset (east, north, up; mm) and how it was made (words).
+    motion_h_mm: float = 0.0
+    motion_v_mm: float = 0.0
+    motion_offset_mm: tuple[float, float, float] | None = None
+    motion_note: str = ""
+    #: Every site point is within the maximum baseline of this base.
+    reaches_site: bool = True
     # filled after the core has run
     rank: int = 0
     distance_m: float = math.nan
@@ -61,7 +74,7 @@ class Candidate:
 
     @property
     def covers_site(self) -> bool:
-        return not self.excluded and self.margin_mm >= 0
+        return not self.excluded and self.reaches_site and self.margin_mm >= 0
 
     @property
     def coverage_words(self) -> str:
@@ -109,6 +122,10 @@ class ScreeningResult:
     statement: str
     warnings: list[str]
     cautions: tuple[str, ...] = CAUTIONS
+    #: Per site point (grid order), which chosen base serves it (index into ``chosen``; −1: none).
+    assignment: np.ndarray | None = None
+    #: The field date the motion term runs to (the job's, else the screening's date).
+    field_date: dt.date | None = None
 
     @property
     def frame_label(self) -> str:

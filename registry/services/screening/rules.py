@@ -12,6 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 REASON_NOT_ACTIVE = "not_active"
+REASON_SUSPECT = "suspect"
 REASON_LAST_VISIT_DISTURBED = "last_visit_disturbed"
 REASON_LAST_VISIT_DESTROYED = "last_visit_destroyed"
 REASON_LAST_VISIT_NOT_FOUND = "last_visit_not_found"
@@ -27,7 +28,11 @@ REASON_EPOCH_GAP_DYNAMIC = "epoch_gap_dynamic_frame"
 DYNAMIC_HOLD_LIMIT_YR = 0.1
 
 REASON_WORDS: dict[str, str] = {
-    REASON_NOT_ACTIVE: "the mark is not active (retired, destroyed or suspect)",
+    REASON_NOT_ACTIVE: "the mark is retired or recorded destroyed",
+    REASON_SUSPECT: (
+        "the mark is suspect: a disturbed or not-found report is newer than its newest published position; "
+        "it stays out until a new position is published or a manager clears it"
+    ),
     REASON_LAST_VISIT_DISTURBED: "the last visit found the mark disturbed",
     REASON_LAST_VISIT_DESTROYED: "the last visit found the mark destroyed",
     REASON_LAST_VISIT_NOT_FOUND: "the last visit did not find the mark",
@@ -66,8 +71,11 @@ class MarkFacts:
 def rule_reasons(facts: MarkFacts, *, recovery_years: float) -> list[str]:
     """Reason codes excluding a mark, from everything except the baseline rule.
 
-    The baseline rule depends on the site geometry and is applied by
-    :func:`screen_candidates`. A last visit that found it ``damaged`` (but usable) does not exclude a
+    The baseline rule depends on the site geometry and is applied after the core
+    (:func:`registry.geodesy.rtk.screen_candidates`). A suspect mark (``registry.services.suspect``:
+    its latest disturbed or not-found visit is not older than its newest published position) has its
+    own reason; a later intact visit does not bring it back, only a new published position or a
+    manager's audited clearance does. A last visit that found it ``damaged`` (but usable) does not exclude a
     mark by itself; an ``intact`` visit within ``recovery_years`` is still required.
 
     Examples
@@ -77,9 +85,13 @@ def rule_reasons(facts: MarkFacts, *, recovery_years: float) -> list[str]:
     []
     >>> rule_reasons(MarkFacts("retired", "obstructed", "searched_not_found", None, False, None), recovery_years=10)
     ['not_active', 'last_visit_not_found', 'no_recent_good_visit', 'no_published_position', 'sky_obstructed']
+    >>> rule_reasons(MarkFacts("suspect", "clear", "intact", 0.1, True, True), recovery_years=10)
+    ['suspect']
     """
     reasons = []
-    if facts.status != "active":
+    if facts.status == "suspect":
+        reasons.append(REASON_SUSPECT)
+    elif facts.status != "active":
         reasons.append(REASON_NOT_ACTIVE)
     if facts.last_visit_condition in _LAST_VISIT_REASON:
         reasons.append(_LAST_VISIT_REASON[facts.last_visit_condition])

@@ -30,6 +30,7 @@ from registry.selectors.screening import screening_records
 from registry.services.access import access_job_by_code, require_ability
 from registry.services.screening import rules
 from registry.services.screening.checks import choose_check_marks
+from registry.services.screening.motion import apply_site_motion, field_epoch_yr
 from registry.services.screening.params import ScreeningSettings, settings_from_data, settings_from_job
 from registry.services.screening.placing import candidates_from_records
 from registry.services.screening.result import Candidate, ScreeningResult
@@ -73,26 +74,36 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     lat = np.array([c.lat_deg for c in cands], dtype=float)
     lon = np.array([c.lon_deg for c in cands], dtype=float)
     ce, cn = plane.to_local_m(lat, lon)
+    # GRS80 geodesics from the site's reference point (job frames are GRS80-based or within mm of it here).
+    inv = geodesic.inverse(np.full(k, s.site.ref_lat_deg), np.full(k, s.site.ref_lon_deg), lat, lon)
+    az, geodesic_m = inv.azimuth12_deg, inv.distance_m
+    for i, c in enumerate(cands):
+        c.distance_m = float(geodesic_m[i])  # from the reference point; the site's nearest point below
+    apply_site_motion(cands, s, as_of, near_m=site_geo.site_radius_m(s.site, plane) + s.max_baseline_m)
     usable = np.array([not c.reasons for c in cands])
+
+    def terms(name: str) -> np.ndarray:
+        return np.nan_to_num(np.array([getattr(c, name) for c in cands], dtype=float), nan=0.0)
+
     core = rtk.screen_candidates(
         grid.e_m,
         grid.n_m,
         grid.is_cell,
         ce,
         cn,
-        base_h_mm=np.nan_to_num(np.array([c.base_h_mm for c in cands]), nan=0.0),
-        base_v_mm=np.nan_to_num(np.array([c.base_v_mm for c in cands]), nan=0.0),
-        drift_h_mm=np.nan_to_num(np.array([c.drift_h_mm for c in cands]), nan=0.0),
-        drift_v_mm=np.nan_to_num(np.array([c.drift_v_mm for c in cands]), nan=0.0),
+        base_h_mm=terms("base_h_mm"),
+        base_v_mm=terms("base_v_mm"),
+        drift_h_mm=terms("drift_h_mm"),
+        drift_v_mm=terms("drift_v_mm"),
+        motion_h_mm=terms("motion_h_mm"),
+        motion_v_mm=terms("motion_v_mm"),
+        geoid_v_mm=s.geoid_v_mm,
         usable=usable,
         model=s.model,
         tol_h_mm=s.tol_h_mm,
         tol_v_mm=s.tol_v_mm,
         max_baseline_m=s.max_baseline_m,
     )
-    # GRS80 geodesics from the site's reference point (job frames are GRS80-based or within mm of it here).
-    inv = geodesic.inverse(np.full(k, s.site.ref_lat_deg), np.full(k, s.site.ref_lon_deg), lat, lon)
-    az, geodesic_m = inv.azimuth12_deg, inv.distance_m
     base_h = np.array([math.nan if c.position is None else c.h_m for c in cands], dtype=float)
     max_dh = rtk.max_abs_height_difference_m(base_h, np.array(s.site.heights_m, dtype=float))
     for i, c in enumerate(cands):
@@ -103,6 +114,7 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
             c.distance_m = float(core.min_distance_m[i])
             c.max_distance_m = float(core.max_distance_m[i])
         c.azimuth_deg = None if c.distance_m < 0.001 else float(az[i]) % 360.0
+        c.reaches_site = bool(core.reaches_site[i])
         if core.beyond_baseline[i]:
             c.reasons.append(rules.REASON_BEYOND_MAX_BASELINE)
         if c.position is not None:
@@ -124,6 +136,9 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
                 base_v_mm=c.base_v_mm,
                 drift_h_mm=c.drift_h_mm,
                 drift_v_mm=c.drift_v_mm,
+                motion_h_mm=c.motion_h_mm,
+                motion_v_mm=c.motion_v_mm,
+                geoid_v_mm=s.geoid_v_mm,
             )
     ordered = [cands[i] for i in core.order]
     for rank, c in enumerate(ordered, start=1):
@@ -132,20 +147,72 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
     if pair is not None and pair[1].rank < pair[0].rank:
         pair = (pair[1], pair[0])
     usable_ranked = [c for c in ordered if not c.excluded]
-    # The chosen bases: the best single base when it covers the whole site; otherwise the best
-    # pair (better-ranked first); otherwise the best single. Check marks avoid them.
-    chosen: list[Candidate] = []
-    if usable_ranked and (usable_ranked[0].covers_site or pair is None):
-        chosen = [usable_ranked[0]]
-    elif pair is not None:
-        chosen = list(pair)
+    chosen = _choose_bases(core, cands, usable_ranked, pair)
+    assignment = _service_assignment(core, grid, ce, cn, s, [cands.index(c) for c in chosen])
     checks = choose_check_marks(s, ordered, chosen)
     for c in chosen:
         for w in c.warnings:
             if w not in warnings:
                 warnings.append(w)
-    statement = screening_statement(s, core, usable_ranked, pair)
-    return ScreeningResult(s, as_of, plane, grid, ordered, core, pair, chosen, checks, statement, warnings)
+    statement = screening_statement(s, core, usable_ranked, pair, chosen)
+    return ScreeningResult(
+        s,
+        as_of,
+        plane,
+        grid,
+        ordered,
+        core,
+        pair,
+        chosen,
+        checks,
+        statement,
+        warnings,
+        assignment=assignment,
+        field_date=field_epoch_yr(s, as_of)[0],
+    )
+
+
+def _choose_bases(core, cands: list[Candidate], usable_ranked: list[Candidate], pair) -> list[Candidate]:
+    """The chosen bases: coverage first, then margin.
+
+    The best single base when it covers the whole site; else the best pair when it covers the
+    whole site; else the greedy cover (up to ``rtk.MAX_COVER_BASES``) when it covers more than the
+    pair; else the pair when it covers more than one base; else the best single base (by coverage).
+    """
+    if not usable_ranked:
+        return []
+    best = usable_ranked[0]
+    if best.covers_site:
+        return [best]
+    if pair is not None and core.pair_worst_margin_mm >= 0:
+        return list(pair)
+    cover = [cands[i] for i in core.cover]
+    pair_cov = core.pair_coverage if pair is not None else best.coverage
+    if len(cover) > 2 and core.cover_coverage > pair_cov:
+        return cover
+    if pair is not None:
+        return list(pair)
+    return [best]
+
+
+def _service_assignment(core, grid, ce, cn, s: ScreeningSettings, idx: list[int]) -> np.ndarray | None:
+    """Per site point, which chosen base serves it (position in ``idx``; −1: none within tolerance)."""
+    if not idx or core is None:
+        return None
+    m = rtk.point_margins_mm(
+        idx,
+        grid.e_m,
+        grid.n_m,
+        ce,
+        cn,
+        core.const_h2,
+        core.const_v2,
+        model=s.model,
+        tol_h_mm=s.tol_h_mm,
+        tol_v_mm=s.tol_v_mm,
+        max_baseline_m=s.max_baseline_m,
+    )
+    return rtk.assign_service_areas(m)
 
 
 def job_screen(*, actor, code: str, as_of: dt.date | None = None) -> ScreeningResult:
