@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 from django.db.models import Max, Q
 
-from registry.models import Finding, Mark, Position, PositionState, Visit
+from registry.models import Finding, HeightMethod, HeightRecord, Mark, Position, PositionState, Visit
 
 
 @dataclass
@@ -81,3 +81,16 @@ def screening_records(
         )
         for m in marks
     ]
+
+
+def preferred_heights(mark_ids) -> dict[int, HeightRecord]:
+    """Per mark, its current orthometric height record to deliver: a levelled one before a geoid-derived one
+    (a levelled height does not carry the geoid model's error), then the smallest σ, then the newest."""
+    best: dict[int, HeightRecord] = {}
+    rank = {HeightMethod.LEVELLED: 0, HeightMethod.GEOID: 1}
+    for h in HeightRecord.objects.filter(mark_id__in=list(mark_ids), current=True).order_by("-created_at", "-pk"):
+        key = (rank.get(h.method, 2), h.sigma_m)
+        have = best.get(h.mark_id)
+        if have is None or key < (rank.get(have.method, 2), have.sigma_m):
+            best[h.mark_id] = h
+    return best

@@ -56,6 +56,8 @@ class ScreeningSettings:
     geoid_sigma_mm: float = 0.0
     #: The geoid model's name as shown to the user ("" when none is configured).
     geoid_label: str = ""
+    #: The deliverable grid: an EPSG code, a custom grid (GridCRS), or "utm" (the zone of each point).
+    grid: object = "utm"
 
     @property
     def site_radius_m(self) -> float:
@@ -108,8 +110,20 @@ def settings_from_job(job: Job) -> ScreeningSettings:
         assumed_rate_plate_fixed_mm_yr=job.assumed_rate_plate_fixed_mm_yr,
         field_date=job.field_date,
         vertical_deliverable=job.vertical_deliverable,
+        grid=_job_grid(job),
         **_geoid_settings(),
     )
+
+
+def _job_grid(job: Job):
+    """The job's deliverable grid for :func:`registry.geodesy.grid.to_grid`."""
+    if job.grid_epsg:
+        return int(job.grid_epsg)
+    if job.custom_grid_id:
+        from registry.selectors.grids import grid_crs_of
+
+        return grid_crs_of(job.custom_grid)
+    return "utm"
 
 
 def _geoid_settings() -> dict:
