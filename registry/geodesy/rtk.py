@@ -385,6 +385,9 @@ def _sigma2_const(*terms_mm) -> np.ndarray:
 
 #: Most bases the greedy cover proposes for one site (beyond that, new control is the better plan).
 MAX_COVER_BASES = 6
+#: A base joins the greedy cover only when it adds at least this fraction of the site's cells: moving the
+#: base for a sliver of the site costs a set-up and a check shot for almost nothing.
+COVER_MIN_GAIN_FRACTION = 0.02
 
 
 def screen_candidates(
@@ -571,11 +574,11 @@ def assign_service_areas(margins_mm: np.ndarray) -> np.ndarray:
     return np.where(m.max(axis=0) >= 0.0, best, -1).astype(np.int64)
 
 
-def greedy_cover(bits: np.ndarray, *, max_sets: int) -> list[int]:
+def greedy_cover(bits: np.ndarray, *, max_sets: int, min_gain: int = 1) -> list[int]:
     """Greedy set cover over bit-packed coverage rows: each step takes the row adding most new cells.
 
-    Ties go to the lower row (the better-ranked candidate). Stops when nothing more is gained
-    or after ``max_sets`` rows. The classic greedy approximation (Chvátal 1979): within a factor
+    Ties go to the lower row (the better-ranked candidate). Stops when a step would add fewer than
+    ``min_gain`` cells, or after ``max_sets`` rows. The classic greedy approximation (Chvátal 1979): within a factor
     H(n) ≤ 1 + ln n of the fewest sets, and in practice near it on corridor-like sites.
 
     >>> rows = np.packbits(np.array([[1, 1, 0, 0], [0, 1, 1, 0], [0, 0, 1, 1]], dtype=bool), axis=1)
@@ -590,7 +593,7 @@ def greedy_cover(bits: np.ndarray, *, max_sets: int) -> list[int]:
     while len(chosen) < max_sets:
         gain = np.bitwise_count(bits & ~covered).sum(axis=1, dtype=np.int64)
         i = int(np.argmax(gain))
-        if gain[i] <= 0:
+        if gain[i] < max(min_gain, 1):
             break
         chosen.append(i)
         covered |= bits[i]
@@ -630,7 +633,7 @@ def _best_pair(
     ).astype(np.float32)
     bits = np.packbits((m >= 0) & cells[None, :], axis=1)
     n_cells = max(int(cells.sum()), 1)
-    cover = greedy_cover(bits, max_sets=max_bases)
+    cover = greedy_cover(bits, max_sets=max_bases, min_gain=math.ceil(COVER_MIN_GAIN_FRACTION * n_cells))
     if cover:
         union = np.zeros(bits.shape[1], dtype=np.uint8)
         for i in cover:

@@ -13,9 +13,9 @@ moves differently from the ground the site stands on, every rover point inherits
   as its uncertainty; in a dynamic frame without enough velocities, no offset is predicted and the
   job's dynamic rate is the uncertainty.
 - A base without a velocity is assumed to move with the site: no offset; its uncertainty is the
-  scatter of the nearby velocities about their median (1.4826 · MAD: how much one mark's motion
-  differs from the site's there), or the assumed rate of the job's kind of frame where no
-  velocities are known nearby.
+  assumed rate of the job's kind of frame (plate-fixed or dynamic) × |Δt|. (The scatter of the
+  nearby velocities is not used for it: marks that get velocities are usually the monitored,
+  moving ones, so their scatter would overstate how ordinary marks move.)
 
 The budget term per axis is √(offset² + (σ_rel · |Δt|)²), σ_rel = √(σ_v,base² + σ_site²) with σ_site
 the median's standard error (base with a velocity); the
@@ -79,26 +79,26 @@ def apply_site_motion(cands: list[Candidate], s: ScreeningSettings, as_of: dt.da
             continue
         group = site.get(c.position.frame_epsg)
         if group is not None:
-            v_site, scatter, se_site, n = group
+            v_site, _scatter, se_site, n = group
             site_words = (
                 f"site motion: median of {n} published velocities within the maximum baseline "
                 f"({v_site[0]:+.1f}, {v_site[1]:+.1f}, {v_site[2]:+.1f} mm/yr east, north, up)"
             )
         elif not s.frame_is_dynamic:
             v_site = np.zeros(3)
-            scatter = se_site = np.full(3, s.assumed_rate_plate_fixed_mm_yr)
+            se_site = np.full(3, s.assumed_rate_plate_fixed_mm_yr)
             site_words = (
                 f"site motion: none in the plate-fixed frame, ± {s.assumed_rate_plate_fixed_mm_yr:g} mm/yr "
                 "(assumed rate; too few published velocities nearby)"
             )
         else:
             v_site = None
-            scatter = se_site = np.full(3, s.assumed_rate_mm_yr)
+            se_site = np.full(3, s.assumed_rate_mm_yr)
             site_words = f"site motion unknown (too few published velocities nearby), ± {s.assumed_rate_mm_yr:g} mm/yr"
         if c.velocity_mm_yr is None or v_site is None:
-            # Without its own velocity a base is taken to move with the site, give or take how much one mark's
-            # velocity scatters about the site's (or the assumed rate where no velocities are known nearby).
-            sig = scatter if c.velocity_mm_yr is None else se_site
+            # Without its own velocity a base is taken to move with the site, give or take the assumed rate of
+            # the job's kind of frame (the site's own figure, in a dynamic frame without enough velocities).
+            sig = np.full(3, s.epoch_rate_mm_yr) if c.velocity_mm_yr is None else se_site
             h, v, off = rtk.relative_motion_mm(np.zeros(3), np.zeros(3), sig, years)
             base_words = "no velocity: assumed to move with the site" if c.velocity_mm_yr is None else "own velocity"
             c.motion_offset_mm = None
