@@ -317,4 +317,3 @@ def test_orthometric_deliverable_adds_the_geoid_term(viewer, settings):
     assert r.as_dict()["settings"]["geoid_model"] == "Office hybrid geoid"
     make_job(code="J-ELL")
     assert by_code(job_screen(actor=viewer, code="J-ELL", as_of=AS_OF))["NB-1"].budget["geoid"]["v"] == 0.0
-

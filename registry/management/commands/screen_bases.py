@@ -98,6 +98,7 @@ class Command(BaseCommand):
         for line in text_report(result):
             self.stdout.write(line)
 
+
 def _words(exc: ValidationError) -> str:
     if hasattr(exc, "error_dict"):
         return "; ".join(
