@@ -25,6 +25,7 @@ from rest_framework.views import APIView
 
 from registry.api.permissions import IsViewer, ReadViewerWriteManager
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
+from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
 from registry.services.jobs import CREATE_FIELDS, job_create, job_update
 from registry.services.screening import site_screen
@@ -183,7 +184,7 @@ class JobListView(APIView):
 
     @extend_schema(operation_id="jobs_list", responses={200: JobSerializer(many=True)})
     def get(self, request):
-        return Response(JobSerializer(Job.objects.order_by("code"), many=True).data)
+        return Response(JobSerializer(jobs_in_order(), many=True).data)
 
     @extend_schema(operation_id="jobs_create", request=JobCreateInput, responses={201: JobSerializer, **ERRORS})
     def post(self, request):

@@ -11,15 +11,7 @@ Sources and conventions
 - Base position uncertainty: from the position's east/north/up covariance, the
   horizontal per-axis σ is the square root of the largest eigenvalue of the 2×2 E/N
   block (the semi-major axis of the standard error ellipse: a conservative circular
-  stand-in for an elongated ellipse), the vertical σ is √cov_uu. From a network
-  accuracy instead, the factors that made the figure are undone (one rule, review S-7):
-  the registry's network accuracies are FGDC-STD-007.2-1998 Part 2 figures
-  (:func:`registry.geodesy.accuracy.network_accuracy_95_m`: r95 = K(C)·σmax with the K
-  polynomial, v95 = 1.9600·σ_u), so σ_axis = r95 / K(1) = r95 / 2.450762 (the polynomial's
-  value at C = 1, a circular error) and σ_v = v95 / 1.9600. The round trip σ → r95 → σ is
-  then exact; inverting with √(−2 ln 0.05) = 2.447747 instead would lose 0.12 %. When the
-  stored figure came from an elongated ellipse (C < 1), r95/K(1) is the per-axis σ of the
-  circular error with the same 95 % radius, smaller than σmax by up to K(1)/K(0) = 1.25.
+  stand-in for an elongated ellipse), the vertical σ is √cov_uu.
 - Frame change (source frame ≠ job frame): the operation's stated accuracy (PROJ/EPSG
   "accuracy in metres", for which neither states a confidence level) is read as a 1σ per
   axis, horizontal and vertical alike, and added in quadrature to the base term. That is
@@ -61,8 +53,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from registry.geodesy.accuracy import NSSDA_FACTOR_1D, circular_k
-
 #: Radius of the 95 % circle per unit per-axis σ: √(−2 ln 0.05) = √χ²₀.₉₅(2).
 K_H95 = math.sqrt(-2.0 * math.log(0.05))
 #: Normal 97.5 % quantile: the 95 % two-sided factor for one dimension.
@@ -73,9 +63,6 @@ RSS = "rss"
 PER_AXIS = "per_axis"
 DRMS = "drms"
 
-#: Network accuracy → σ: the factors that made the figure (FGDC Part 2 K polynomial at C = 1, and 1.9600).
-K_H95_NETWORK = float(circular_k(1.0))
-K_V95_NETWORK = NSSDA_FACTOR_1D
 #: Base → site ellipsoidal height difference above which a warning is shown (m, common practice).
 HEIGHT_DIFFERENCE_WARN_M = 300.0
 
@@ -196,21 +183,6 @@ def base_sigma_from_covariance_mm(cov_ee_m2, cov_en_m2, cov_nn_m2, cov_uu_m2):
     return np.sqrt(np.maximum(lam_max, 0.0)) * 1e3, np.sqrt(np.maximum(uu, 0.0)) * 1e3
 
 
-def base_sigma_from_network_accuracy_mm(h95_mm, v95_mm):
-    """Per-axis horizontal σ and vertical σ (mm) from FGDC network accuracies (95 %, mm).
-
-    Undoes :func:`registry.geodesy.accuracy.network_accuracy_95_m`: σ_axis = r95 / K(1) with
-    the FGDC Part 2 K polynomial at C = 1 (2.450762), σ_v = v95 / 1.9600. Not 2.4477: that
-    exact circle factor is used for the screening's own 95 % figures, which are not FGDC
-    network accuracies (see the module docstring).
-
-    >>> h, v = base_sigma_from_network_accuracy_mm(24.50762, 19.6)
-    >>> round(float(h), 6), round(float(v), 6)
-    (10.0, 10.0)
-    """
-    return np.asarray(h95_mm, dtype=float) / K_H95_NETWORK, np.asarray(v95_mm, dtype=float) / K_V95_NETWORK
-
-
 def frame_change_sigma_mm(accuracy_m) -> float:
     """1σ per axis (mm) added to the base term by a frame change of stated ``accuracy_m``.
 
@@ -260,16 +232,6 @@ def drift_sigma_mm(epoch_gap_yr, vel_sigma_mm_yr=None, assumed_rate_mm_yr: float
         return gap * assumed_rate_mm_yr
     rate = np.asarray(vel_sigma_mm_yr, dtype=float)
     return gap * np.where(np.isnan(rate), assumed_rate_mm_yr, rate)
-
-
-def h95_mm(sigma_axis_mm):
-    """Horizontal 95 % circle radius from a per-axis σ (mm). ``h95_mm(10) ≈ 24.477``."""
-    return K_H95 * np.asarray(sigma_axis_mm, dtype=float)
-
-
-def v95_mm(sigma_mm):
-    """Vertical 95 % value from σ (mm). ``v95_mm(10) ≈ 19.600``."""
-    return K_V95 * np.asarray(sigma_mm, dtype=float)
 
 
 def error_budget_mm(

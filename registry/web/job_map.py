@@ -497,8 +497,3 @@ def build_job_map(result: ScreeningResult) -> JobMap:
             else 0.0
         ),
     )
-
-
-def job_map_svg(result: ScreeningResult) -> str:
-    """The SVG markup of the job map (a string to put inline in a page)."""
-    return build_job_map(result).svg

@@ -21,9 +21,9 @@ from django.utils.safestring import mark_safe
 
 from registry.errors import Conflict
 from registry.geodesy import rtk
-from registry.geodesy.frames import frame_info
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.roles import Ability, has_ability
+from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
 from registry.services.job_fields import new_job_defaults
 from registry.services.jobs import CREATE_FIELDS, job_create, job_update
@@ -33,6 +33,7 @@ from registry.services.screening.export import EXPORT_COLUMNS, export_geojson, e
 from registry.services.screening.present import page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.job_map import build_job_map, legend_rows
+from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (
@@ -220,14 +221,10 @@ def _initial(job: Job) -> dict:
 
 @ability_required(Ability.VIEW)
 def job_list(request: HttpRequest) -> HttpResponse:
-    jobs = list(Job.objects.order_by("code"))
-    rows = []
-    for job in jobs:
-        try:
-            frame = frame_info(job.frame_epsg).label
-        except Exception:  # an unknown code stored before validation existed: show the number
-            frame = f"EPSG:{job.frame_epsg}"
-        rows.append({"job": job, "frame": frame, "site_kind": (job.site_geojson or {}).get("type", "?")})
+    rows = [
+        {"job": job, "frame": format_frame(job.frame_epsg), "site_kind": (job.site_geojson or {}).get("type", "?")}
+        for job in jobs_in_order()
+    ]
     return render(
         request, "registry/job_list.html", {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)}
     )

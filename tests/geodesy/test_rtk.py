@@ -103,20 +103,8 @@ def test_base_sigma_from_covariance_is_largest_eigenvalue():
         assert v == pytest.approx(math.sqrt(uu) * 1e3, rel=1e-12)
 
 
-def test_base_sigma_from_network_accuracy():
-    # FGDC-STD-007.2-1998 K polynomial at C = 1: 1.960790 + 0.004071 + 0.114276 + 0.371625 = 2.450762
-    # (secondary transcription of the coefficients, Geoscience Australia geodesy package); vertical 1.9600
-    # (FGDC Part 2 / NSSDA as printed). [hand] 12.25381 / 2.450762 = 5.000000 mm; 9.8 / 1.96 = 5.000000 mm.
-    h, v = rtk.base_sigma_from_network_accuracy_mm(12.25381, 9.8)
-    assert h == pytest.approx(5.0, abs=1e-6)
-    assert v == pytest.approx(5.0, abs=1e-6)
-    # Not the 2.4477 circle factor: that would give 12.25381 / 2.4477468 = 5.00616 mm (0.12 % off, review S-7).
-    assert rtk.K_H95_NETWORK == pytest.approx(2.450762, abs=1e-9)
-
-
 def test_network_accuracy_round_trip():
-    # σ → FGDC network accuracy (registry.geodesy.accuracy) → σ is exact for circular covariances, and equals the
-    # covariance route of the budget. [hand] σe = σn = 7 mm, σu = 11 mm: r95 = 2.450762 × 7 = 17.155334 mm,
+    # FGDC network accuracy (registry.geodesy.accuracy) of a circular covariance, and the budget's covariance route. [hand] σe = σn = 7 mm, σu = 11 mm: r95 = 2.450762 × 7 = 17.155334 mm,
     # v95 = 1.96 × 11 = 21.56 mm.
     from registry.geodesy import accuracy as acc
 
@@ -124,10 +112,8 @@ def test_network_accuracy_round_trip():
     r95_m, v95_m = acc.network_accuracy_95_m(cov)
     assert r95_m * 1e3 == pytest.approx(17.155334, abs=1e-6)
     assert v95_m * 1e3 == pytest.approx(21.56, abs=1e-9)
-    h, v = rtk.base_sigma_from_network_accuracy_mm(r95_m * 1e3, v95_m * 1e3)
     ch, cv = rtk.base_sigma_from_covariance_mm(cov[0, 0], cov[0, 1], cov[1, 1], cov[2, 2])
-    assert h == pytest.approx(7.0, rel=1e-12) and v == pytest.approx(11.0, rel=1e-12)
-    assert h == pytest.approx(ch, rel=1e-12) and v == pytest.approx(cv, rel=1e-12)
+    assert ch == pytest.approx(7.0, rel=1e-12) and cv == pytest.approx(11.0, rel=1e-12)
 
 
 def test_frame_change_sigma_reading():
