@@ -317,3 +317,39 @@ def test_orthometric_deliverable_adds_the_geoid_term(viewer, settings):
     assert r.as_dict()["settings"]["geoid_model"] == "Office hybrid geoid"
     make_job(code="J-ELL")
     assert by_code(job_screen(actor=viewer, code="J-ELL", as_of=AS_OF))["NB-1"].budget["geoid"]["v"] == 0.0
+
+
+def test_control_export_carries_grid_factor_and_levelled_height(viewer):
+    """Grid coordinates and scale factor against pyproj directly (EPSG:6319 → EPSG:6341, UTM 12N, and
+    Proj.get_factors); elevation factor written out: R = √(ρν) on GRS80 at the mark's latitude,
+    EF = R / (R + h) with h = 1500 m ellipsoidal; combined = k · EF. A levelled height is delivered before a
+    geoid-derived one even when the latter states a smaller σ."""
+    from pyproj import Proj, Transformer
+
+    from registry.models import HeightRecord
+
+    make_mark("NB-1", 1000.0, 0.0)
+    mark = Mark.objects.get(code="NB-1")
+    HeightRecord.objects.create(mark=mark, datum_epsg=5703, height_m=1512.345, sigma_m=0.008, method="levelled")
+    HeightRecord.objects.create(
+        mark=mark, datum_epsg=3855, height_m=1511.0, sigma_m=0.002, method="geoid", geoid_model="invented model"
+    )
+    make_job()
+    r = job_screen(actor=viewer, code="J-SCR", as_of=AS_OF)
+    row = next(row for row in export_rows(r) if row["code"] == "NB-1")
+    c = by_code(r)["NB-1"]
+    e, n = Transformer.from_crs(6319, 6341, always_xy=True).transform(c.lon_deg, c.lat_deg)
+    assert float(row["easting_m"]) == pytest.approx(e, abs=0.0015)
+    assert float(row["northing_m"]) == pytest.approx(n, abs=0.0015)
+    k = Proj("EPSG:6341").get_factors(c.lon_deg, c.lat_deg).meridional_scale
+    a, f = 6378137.0, 1 / 298.257222101
+    e2 = f * (2 - f)
+    s2 = math.sin(math.radians(c.lat_deg)) ** 2
+    rho = a * (1 - e2) / (1 - e2 * s2) ** 1.5
+    nu = a / math.sqrt(1 - e2 * s2)
+    ef = math.sqrt(rho * nu) / (math.sqrt(rho * nu) + 1500.0)
+    assert float(row["scale_factor"]) == pytest.approx(k, abs=1e-8)
+    assert float(row["combined_factor"]) == pytest.approx(k * ef, abs=1e-8)
+    assert row["orthometric_h_m"] == "1512.345" and row["height_datum_epsg"] == "5703"
+    assert row["height_source"].startswith("levelled")
+    assert "EPSG:6341" in row["grid"]
