@@ -5,6 +5,7 @@ One module per concept:
 - :mod:`.params` the settings of a job or ad-hoc site;
 - :mod:`.rules` the exclusion rules and their words (registry policy);
 - :mod:`.placing` each mark's position in the job's frame and epoch, its terms, its reasons;
+- :mod:`.motion` each base's motion relative to the site up to the field date;
 - :mod:`.run` the screening itself (and the permission-checked entry points);
 - :mod:`.checks` the check-mark policy;
 - :mod:`.statement` the outcome in words, the cautions, the budget terms' descriptions;
