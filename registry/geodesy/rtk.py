@@ -444,18 +444,21 @@ def screen_candidates(
         np.sqrt(d, out=d)  # distances, m
         min_d[sl] = d.min(axis=1) if p else np.inf
         max_d[sl] = d.max(axis=1) if p else 0.0
-        within = d <= max_baseline_m
+        # Only blocks with a site point beyond the baseline need the per-point mask (most do not).
+        within = None if max_d[sl].max(initial=0.0) <= max_baseline_m else d <= max_baseline_m
         _rtk_sq_mm2(d, model.h_fixed_mm, model.h_ppm, model.combination, scale_h, out=h2)
         h2 += const_h2[sl, None]
         _rtk_sq_mm2(d, model.v_fixed_mm, model.v_ppm, model.combination, 1.0, out=v2)
         v2 += const_v2[sl, None]
-        ok = (h2 <= lim_h2) & (v2 <= lim_v2) & within
+        ok = (h2 <= lim_h2) & (v2 <= lim_v2)
+        if within is not None:
+            ok &= within
         covered[sl] = np.count_nonzero(ok & cells[None, :], axis=1)
         elig = usable[sl] & (min_d[sl] <= max_baseline_m)
         if elig.any():
             rows_idx = np.flatnonzero(elig) + start
             for sq, best, best_i in ((h2, best_h2, best_hi), (v2, best_v2, best_vi)):
-                vals = np.where(within[elig], sq[elig], np.inf)
+                vals = sq[elig] if within is None else np.where(within[elig], sq[elig], np.inf)
                 arg = vals.argmin(axis=0)
                 low = vals[arg, np.arange(p)]
                 better = low < best
