@@ -33,6 +33,7 @@ def main() -> None:
     parser.add_argument("--as-of", default="2026-12-04")
     args = parser.parse_args()
     from registry.services.screening import run_screening, settings_from_job
+
     as_of = dt.date.fromisoformat(args.as_of)
     print(f"load average {os.getloadavg()[0]:.2f} (1 min), {os.cpu_count()} CPUs")
     for job in Job.objects.order_by("code"):
