@@ -23,6 +23,7 @@ from rest_framework import status as http_status
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from registry.api.marks import request_body
 from registry.api.permissions import IsViewer, ReadViewerWriteManager
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.selectors.jobs import jobs_in_order
@@ -170,15 +171,6 @@ def _as_of(value) -> dt.date | None:
         ) from None
 
 
-def _body(request) -> dict:
-    data = request.data
-    if hasattr(data, "dict"):
-        return data.dict()
-    if not isinstance(data, dict):
-        raise ValidationError("Send a JSON object.", code="invalid_payload")
-    return dict(data)
-
-
 class JobListView(APIView):
     permission_classes = [ReadViewerWriteManager]
 
@@ -188,7 +180,7 @@ class JobListView(APIView):
 
     @extend_schema(operation_id="jobs_create", request=JobCreateInput, responses={201: JobSerializer, **ERRORS})
     def post(self, request):
-        job = job_create(actor=request.user, data=_body(request))
+        job = job_create(actor=request.user, data=request_body(request))
         return Response(JobSerializer(job).data, status=http_status.HTTP_201_CREATED)
 
 
@@ -210,7 +202,7 @@ class JobDetailView(APIView):
         },
     )
     def patch(self, request, code: str):
-        body = _body(request)
+        body = request_body(request)
         version = body.pop("version", None)
         job = job_update(actor=request.user, code=code, expected_version=version, changes=body)
         return Response(JobSerializer(job).data)
@@ -240,7 +232,7 @@ class SiteScreeningView(APIView):
     def post(self, request):
         ser = ScreeningSettingsInput(data=request.data)
         ser.is_valid(raise_exception=True)
-        body = _body(request)
+        body = request_body(request)
         as_of = _as_of(body.pop("as_of", None))
         result = site_screen(actor=request.user, data=body, as_of=as_of)
         return Response(result.as_dict())
