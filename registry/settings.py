@@ -240,7 +240,17 @@ SPECTACULAR_SETTINGS = {
 # Domain settings. Defaults documented in README.md (common practice where so marked).
 REGISTRY = {
     # Assumed unmodelled horizontal/vertical rate for marks without a velocity (mm/yr per axis).
+    # Used in dynamic frames (ITRF): what is left after the mark's velocity or the plate model (intraplate
+    # deformation, plate-model residuals; a few mm/yr is common practice). A new job's default.
     "ASSUMED_RATE_MM_YR": float(os.environ.get("REGISTRY_ASSUMED_RATE_MM_YR", "2.0")),
+    # The same in plate-fixed frames (NAD83(2011), ETRF/ETRS89 realisations...): the plate's rigid motion is
+    # already taken out, so only the residual motion of the plate interior remains, typically below 1 mm/yr
+    # horizontally (common practice). Where marks subside or deform, give them velocities. A new job's default.
+    "ASSUMED_RATE_PLATE_FIXED_MM_YR": float(os.environ.get("REGISTRY_ASSUMED_RATE_PLATE_FIXED_MM_YR", "0.5")),
+    # Stated 1σ (mm) of the office geoid model (REGISTRY_GEOID_MODEL) for the relative geoid height between a
+    # base and a rover over a few km; added to the vertical budget of jobs whose vertical deliverable is
+    # orthometric. Hybrid national models state about 1–2 cm (common practice); use the model's own figure.
+    "GEOID_SIGMA_MM": float(os.environ.get("REGISTRY_GEOID_SIGMA_MM", "15")),
     # Plate rule of the ITRF2020 plate motion model (Altamimi et al. 2023) for moving a position without
     # its own velocity to another epoch in a dynamic frame (ITRF): "AUTO" chooses each point's plate from
     # its location (registry/geodesy/plates.py); a plate code (NOAM, EURA, AUST...) is the office's plate,

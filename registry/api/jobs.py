@@ -23,11 +23,14 @@ from rest_framework import status as http_status
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from registry.api.marks import request_body
 from registry.api.permissions import IsViewer, ReadViewerWriteManager
-from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
+from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
 from registry.services.jobs import CREATE_FIELDS, job_create, job_update
-from registry.services.screening import job_screen, site_screen
+from registry.services.screening import site_screen
+from registry.services.screening.cache import job_screen_cached
 
 ERRORS = {
     400: OpenApiResponse(description="Invalid input: {error: {code, message, details: {field: [{code, message}]}}}."),
@@ -63,7 +66,14 @@ class ScreeningSettingsInput(serializers.Serializer):
     rtk_h_meaning = serializers.ChoiceField(choices=RtkHorizontalMeaning.choices, required=False)
     setup_h_mm = serializers.FloatField(required=False)
     setup_v_mm = serializers.FloatField(required=False)
-    assumed_rate_mm_yr = serializers.FloatField(required=False)
+    rover_h_mm = serializers.FloatField(required=False, help_text="Rover pole centring per axis, 1σ, mm (default 2).")
+    rover_v_mm = serializers.FloatField(required=False, help_text="Rover rod height, 1σ, mm (default 3).")
+    assumed_rate_mm_yr = serializers.FloatField(required=False, help_text="Dynamic frames, mm/yr per axis.")
+    assumed_rate_plate_fixed_mm_yr = serializers.FloatField(required=False, help_text="Plate-fixed frames, mm/yr.")
+    field_date = serializers.DateField(
+        required=False, allow_null=True, help_text="When the crew observes (default: the screening date)."
+    )
+    vertical_deliverable = serializers.ChoiceField(choices=VerticalDeliverable.choices, required=False)
     max_baseline_m = serializers.FloatField(required=False)
     recovery_years = serializers.FloatField(required=False)
     grid_spacing_m = serializers.FloatField(required=False, allow_null=True)
@@ -84,7 +94,7 @@ class JobCreateInput(ScreeningSettingsInput):
 
 
 class BudgetTermSerializer(serializers.Serializer):
-    term = serializers.ChoiceField(choices=["rtk", "base", "drift", "setup"])
+    term = serializers.ChoiceField(choices=["rtk", "base", "drift", "motion", "setup", "rover", "geoid"])
     h_mm = serializers.FloatField(help_text="1σ per horizontal axis, mm.")
     v_mm = serializers.FloatField(help_text="1σ vertical, mm.")
     description = serializers.CharField(help_text="Where the term comes from (base: with any frame-change part).")
@@ -117,6 +127,13 @@ class CandidateSerializer(serializers.Serializer):
     )
     excluded = serializers.BooleanField()
     reasons = ReasonSerializer(many=True)
+    reaches_whole_site = serializers.BooleanField(help_text="Every site point is within the maximum baseline.")
+    velocity_mm_yr = serializers.ListField(child=serializers.FloatField(), allow_null=True)
+    motion_offset_mm = serializers.ListField(
+        child=serializers.FloatField(),
+        allow_null=True,
+        help_text="Predicted offset east, north, up from the deliverable epoch to the field date (null: none).",
+    )
     budget = BudgetTermSerializer(many=True, allow_null=True)
     sigma_h_mm = serializers.FloatField(allow_null=True)
     sigma_v_mm = serializers.FloatField(allow_null=True)
@@ -135,6 +152,7 @@ class ScreeningOutput(serializers.Serializer):
     candidates = CandidateSerializer(many=True)
     best_pair = serializers.JSONField(allow_null=True)
     chosen_bases = serializers.ListField(child=serializers.CharField())
+    service_areas = serializers.JSONField(help_text="Per chosen base, the share of the site it serves.")
     check_marks = serializers.JSONField()
     achievable = serializers.JSONField(allow_null=True)
     statement = serializers.CharField()
@@ -153,25 +171,16 @@ def _as_of(value) -> dt.date | None:
         ) from None
 
 
-def _body(request) -> dict:
-    data = request.data
-    if hasattr(data, "dict"):
-        return data.dict()
-    if not isinstance(data, dict):
-        raise ValidationError("Send a JSON object.", code="invalid_payload")
-    return dict(data)
-
-
 class JobListView(APIView):
     permission_classes = [ReadViewerWriteManager]
 
     @extend_schema(operation_id="jobs_list", responses={200: JobSerializer(many=True)})
     def get(self, request):
-        return Response(JobSerializer(Job.objects.order_by("code"), many=True).data)
+        return Response(JobSerializer(jobs_in_order(), many=True).data)
 
     @extend_schema(operation_id="jobs_create", request=JobCreateInput, responses={201: JobSerializer, **ERRORS})
     def post(self, request):
-        job = job_create(actor=request.user, data=_body(request))
+        job = job_create(actor=request.user, data=request_body(request))
         return Response(JobSerializer(job).data, status=http_status.HTTP_201_CREATED)
 
 
@@ -193,7 +202,7 @@ class JobDetailView(APIView):
         },
     )
     def patch(self, request, code: str):
-        body = _body(request)
+        body = request_body(request)
         version = body.pop("version", None)
         job = job_update(actor=request.user, code=code, expected_version=version, changes=body)
         return Response(JobSerializer(job).data)
@@ -210,7 +219,7 @@ class JobScreeningView(APIView):
         responses={200: ScreeningOutput, 404: ERRORS[404]},
     )
     def get(self, request, code: str):
-        result = job_screen(actor=request.user, code=code, as_of=_as_of(request.query_params.get("as_of")))
+        result = job_screen_cached(actor=request.user, code=code, as_of=_as_of(request.query_params.get("as_of")))
         return Response(result.as_dict())
 
 
@@ -223,7 +232,7 @@ class SiteScreeningView(APIView):
     def post(self, request):
         ser = ScreeningSettingsInput(data=request.data)
         ser.is_valid(raise_exception=True)
-        body = _body(request)
+        body = request_body(request)
         as_of = _as_of(body.pop("as_of", None))
         result = site_screen(actor=request.user, data=body, as_of=as_of)
         return Response(result.as_dict())

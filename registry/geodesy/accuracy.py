@@ -110,9 +110,9 @@ class Finding:
 
 #: Coefficients of K(C) = c0 + c1·C + c2·C² + c3·C³, FGDC-STD-007.2-1998 (secondary transcription:
 #: Geoscience Australia geodesy package, "circularised horizontal PU (95%)").
-#: One rule for going back (review S-7): :func:`registry.geodesy.rtk.base_sigma_from_network_accuracy_mm`
-#: undoes a network accuracy with the factors that made it, K(1) = 2.450762 and 1.9600, so σ → r95 → σ
-#: is exact; the screening's own 95 % figures keep the exact circle factor √(−2 ln 0.05) = 2.447747.
+#: Going back from a network accuracy to σ must use the factors that made it, K(1) = 2.450762 and 1.9600
+#: (so σ → r95 → σ is exact); base screening takes σ from the covariance instead, and its own 95 % figures
+#: use the exact circle factor √(−2 ln 0.05) = 2.447747.
 K_POLY_COEFFS: tuple[float, float, float, float] = (1.960790, 0.004071, 0.114276, 0.371625)
 
 #: One-dimensional 95 % factor as printed in the standards (z(0.975) = 1.959964 rounded).

@@ -612,6 +612,19 @@ def decimal_year_to_date(epoch_yr: float) -> _dt.date:
     return (start + _dt.timedelta(days=(t - year) * days)).date()
 
 
+def date_to_decimal_year(day: _dt.date) -> float:
+    """Decimal year of the middle of ``day`` (UTC): year + (day of year − 0.5) / days in the year.
+
+    >>> round(date_to_decimal_year(_dt.date(2026, 12, 4)), 4)
+    2026.9247
+    >>> decimal_year_to_date(date_to_decimal_year(_dt.date(2024, 7, 2)))
+    datetime.date(2024, 7, 2)
+    """
+    start = _dt.date(day.year, 1, 1)
+    days = (_dt.date(day.year + 1, 1, 1) - start).days
+    return day.year + ((day - start).days + 0.5) / days
+
+
 def format_epoch(epoch_yr: float) -> str:
     """Epoch as a decimal year to 3 places with the calendar date beside it.
 

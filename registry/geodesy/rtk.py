@@ -11,15 +11,7 @@ Sources and conventions
 - Base position uncertainty: from the position's east/north/up covariance, the
   horizontal per-axis σ is the square root of the largest eigenvalue of the 2×2 E/N
   block (the semi-major axis of the standard error ellipse: a conservative circular
-  stand-in for an elongated ellipse), the vertical σ is √cov_uu. From a network
-  accuracy instead, the factors that made the figure are undone (one rule, review S-7):
-  the registry's network accuracies are FGDC-STD-007.2-1998 Part 2 figures
-  (:func:`registry.geodesy.accuracy.network_accuracy_95_m`: r95 = K(C)·σmax with the K
-  polynomial, v95 = 1.9600·σ_u), so σ_axis = r95 / K(1) = r95 / 2.450762 (the polynomial's
-  value at C = 1, a circular error) and σ_v = v95 / 1.9600. The round trip σ → r95 → σ is
-  then exact; inverting with √(−2 ln 0.05) = 2.447747 instead would lose 0.12 %. When the
-  stored figure came from an elongated ellipse (C < 1), r95/K(1) is the per-axis σ of the
-  circular error with the same 95 % radius, smaller than σmax by up to K(1)/K(0) = 1.25.
+  stand-in for an elongated ellipse), the vertical σ is √cov_uu.
 - Frame change (source frame ≠ job frame): the operation's stated accuracy (PROJ/EPSG
   "accuracy in metres", for which neither states a confidence level) is read as a 1σ per
   axis, horizontal and vertical alike, and added in quadrature to the base term. That is
@@ -31,13 +23,19 @@ Sources and conventions
   term (per axis: the larger of the east and north velocity σ); without one an assumed
   unmodelled rate (default 2 mm/yr per axis, common practice) × |Δt|.
 - Setup error of the base (centring and antenna height): 2 mm per horizontal axis,
-  3 mm vertical, 1σ (common practice). A check shot adds the same again for the rover
-  pole on the check mark (see :func:`check_shot_allowance_mm`).
+  3 mm vertical, 1σ (common practice). The rover pole's centring and rod height (per job;
+  default 2 mm per axis and 3 mm, 1σ, common practice for a pole with a checked bubble)
+  enter every rover point, site points and check shots alike.
+- Motion of the base relative to the site up to the field date (see
+  :func:`relative_motion_mm`): a rover point computed from a base held at its
+  deliverable-epoch coordinates is off by (v_site − v_base)·(t_field − t_deliverable); the
+  predicted offset is carried as a 1σ-sized term together with the uncertainty of the
+  relative velocity × |Δt| (a known offset taken as a σ: conservative, since 2.4477·b > b).
 - Height difference base → site points (ellipsoidal, job frame): reported per candidate
   (largest |Δh| over the site heights given), not part of the budget; above
   ``HEIGHT_DIFFERENCE_WARN_M`` (300 m, common practice) unmodelled troposphere degrades RTK,
   mostly in height, beyond what the a + b·d model says.
-- Combination: σ_axis = √(σ_rtk² + σ_base² + σ_drift² + σ_setup²). Horizontal 95 % =
+- Combination: σ_axis = √(σ_rtk² + σ_base² + σ_drift² + σ_motion² + σ_setup² + σ_rover²). Horizontal 95 % =
   2.4477·σ_axis, the radius of the 95 % circle of a circular bivariate normal
   (√(−2 ln 0.05) = √χ²₀.₉₅(2); FGDC-STD-007.3-1998 §3.2.1, Greenwalt & Shultz 1968);
   vertical 95 % = 1.9600·σ_v (normal 97.5 % quantile).
@@ -55,8 +53,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from registry.geodesy.accuracy import NSSDA_FACTOR_1D, circular_k
-
 #: Radius of the 95 % circle per unit per-axis σ: √(−2 ln 0.05) = √χ²₀.₉₅(2).
 K_H95 = math.sqrt(-2.0 * math.log(0.05))
 #: Normal 97.5 % quantile: the 95 % two-sided factor for one dimension.
@@ -67,9 +63,6 @@ RSS = "rss"
 PER_AXIS = "per_axis"
 DRMS = "drms"
 
-#: Network accuracy → σ: the factors that made the figure (FGDC Part 2 K polynomial at C = 1, and 1.9600).
-K_H95_NETWORK = float(circular_k(1.0))
-K_V95_NETWORK = NSSDA_FACTOR_1D
 #: Base → site ellipsoidal height difference above which a warning is shown (m, common practice).
 HEIGHT_DIFFERENCE_WARN_M = 300.0
 
@@ -79,91 +72,6 @@ DEFAULT_ASSUMED_RATE_MM_YR = 2.0
 PAIR_POOL_SIZE = 128
 #: Pairs whose worst-case margin is evaluated exactly, after ranking all pairs by coverage.
 PAIR_EXACT_EVALUATIONS = 256
-
-# ----------------------------------------------------------------------------- exclusion reasons
-# Our own reason codes; the words are shown to the user beside the code.
-REASON_NOT_ACTIVE = "not_active"
-REASON_LAST_VISIT_DISTURBED = "last_visit_disturbed"
-REASON_LAST_VISIT_DESTROYED = "last_visit_destroyed"
-REASON_LAST_VISIT_NOT_FOUND = "last_visit_not_found"
-REASON_NO_RECENT_GOOD_VISIT = "no_recent_good_visit"
-REASON_NO_PUBLISHED_POSITION = "no_published_position"
-REASON_FRAME_NOT_TRANSFORMABLE = "frame_not_transformable"
-REASON_BEYOND_MAX_BASELINE = "beyond_max_baseline"
-REASON_SKY_OBSTRUCTED = "sky_obstructed"
-REASON_EPOCH_GAP_DYNAMIC = "epoch_gap_dynamic_frame"
-#: Longest epoch gap (years) over which a position may be held unmodelled in a dynamic frame before
-#: it is excluded: 0.1 yr of typical plate motion (1–7 cm/yr) is 1–7 mm, still inside the assumed
-#: unmodelled rate's reach; a year is not.
-DYNAMIC_HOLD_LIMIT_YR = 0.1
-
-REASON_WORDS: dict[str, str] = {
-    REASON_NOT_ACTIVE: "the mark is not active (retired, destroyed or suspect)",
-    REASON_LAST_VISIT_DISTURBED: "the last visit found the mark disturbed",
-    REASON_LAST_VISIT_DESTROYED: "the last visit found the mark destroyed",
-    REASON_LAST_VISIT_NOT_FOUND: "the last visit did not find the mark",
-    REASON_NO_RECENT_GOOD_VISIT: "no visit found it intact within the recovery period",
-    REASON_NO_PUBLISHED_POSITION: "the mark has no published position",
-    REASON_FRAME_NOT_TRANSFORMABLE: "its published frame cannot be transformed to the job's frame",
-    REASON_BEYOND_MAX_BASELINE: "part of the site lies beyond the maximum baseline",
-    REASON_SKY_OBSTRUCTED: "its sky view is recorded as obstructed",
-    REASON_EPOCH_GAP_DYNAMIC: (
-        "its position is in a dynamic frame at another epoch, with no velocity and no plate model to move it"
-    ),
-}
-_LAST_VISIT_REASON = {
-    "disturbed": REASON_LAST_VISIT_DISTURBED,
-    "destroyed": REASON_LAST_VISIT_DESTROYED,
-    "searched_not_found": REASON_LAST_VISIT_NOT_FOUND,
-}
-
-
-@dataclass(frozen=True)
-class MarkFacts:
-    """What the exclusion rules need to know about one candidate mark.
-
-    ``years_since_good_visit`` is None when no visit ever found it intact;
-    ``transformable`` is None when there is no published position to transform.
-    """
-
-    status: str
-    sky_view: str
-    last_visit_condition: str | None
-    years_since_good_visit: float | None
-    has_published_position: bool
-    transformable: bool | None
-
-
-def rule_reasons(facts: MarkFacts, *, recovery_years: float) -> list[str]:
-    """Reason codes excluding a mark, from everything except the baseline rule.
-
-    The baseline rule depends on the site geometry and is applied by
-    :func:`screen_candidates`. A last visit that found it ``damaged`` (but usable) does not exclude a
-    mark by itself; an ``intact`` visit within ``recovery_years`` is still required.
-
-    Examples
-    --------
-    >>> f = MarkFacts("active", "clear", "intact", 1.5, True, True)
-    >>> rule_reasons(f, recovery_years=10)
-    []
-    >>> rule_reasons(MarkFacts("retired", "obstructed", "searched_not_found", None, False, None), recovery_years=10)
-    ['not_active', 'last_visit_not_found', 'no_recent_good_visit', 'no_published_position', 'sky_obstructed']
-    """
-    reasons = []
-    if facts.status != "active":
-        reasons.append(REASON_NOT_ACTIVE)
-    if facts.last_visit_condition in _LAST_VISIT_REASON:
-        reasons.append(_LAST_VISIT_REASON[facts.last_visit_condition])
-    if facts.years_since_good_visit is None or facts.years_since_good_visit > recovery_years:
-        reasons.append(REASON_NO_RECENT_GOOD_VISIT)
-    if not facts.has_published_position:
-        reasons.append(REASON_NO_PUBLISHED_POSITION)
-    elif facts.transformable is False:
-        reasons.append(REASON_FRAME_NOT_TRANSFORMABLE)
-    if facts.sky_view == "obstructed":
-        reasons.append(REASON_SKY_OBSTRUCTED)
-    return reasons
-
 
 # ----------------------------------------------------------------------------- the error terms
 
@@ -184,6 +92,8 @@ class RtkErrorModel:
         ``"per_axis"`` (the horizontal figure is σ per axis) or ``"drms"`` (2D RMS).
     setup_h_mm, setup_v_mm : float
         Base centring per horizontal axis and antenna height error (common practice 2 mm, 3 mm).
+    rover_h_mm, rover_v_mm : float
+        Rover pole centring per horizontal axis and rod height error (common practice 2 mm, 3 mm).
     """
 
     h_fixed_mm: float = 8.0
@@ -194,13 +104,24 @@ class RtkErrorModel:
     h_meaning: str = PER_AXIS
     setup_h_mm: float = 2.0
     setup_v_mm: float = 3.0
+    rover_h_mm: float = 2.0
+    rover_v_mm: float = 3.0
 
     def __post_init__(self):
         if self.combination not in (ADDITIVE, RSS):
             raise ValueError(f"combination must be 'additive' or 'rss', not {self.combination!r}")
         if self.h_meaning not in (PER_AXIS, DRMS):
             raise ValueError(f"h_meaning must be 'per_axis' or 'drms', not {self.h_meaning!r}")
-        for name in ("h_fixed_mm", "h_ppm", "v_fixed_mm", "v_ppm", "setup_h_mm", "setup_v_mm"):
+        for name in (
+            "h_fixed_mm",
+            "h_ppm",
+            "v_fixed_mm",
+            "v_ppm",
+            "setup_h_mm",
+            "setup_v_mm",
+            "rover_h_mm",
+            "rover_v_mm",
+        ):
             value = getattr(self, name)
             if not (math.isfinite(value) and value >= 0):
                 raise ValueError(f"{name} must be a non-negative number, not {value!r}")
@@ -262,21 +183,6 @@ def base_sigma_from_covariance_mm(cov_ee_m2, cov_en_m2, cov_nn_m2, cov_uu_m2):
     return np.sqrt(np.maximum(lam_max, 0.0)) * 1e3, np.sqrt(np.maximum(uu, 0.0)) * 1e3
 
 
-def base_sigma_from_network_accuracy_mm(h95_mm, v95_mm):
-    """Per-axis horizontal σ and vertical σ (mm) from FGDC network accuracies (95 %, mm).
-
-    Undoes :func:`registry.geodesy.accuracy.network_accuracy_95_m`: σ_axis = r95 / K(1) with
-    the FGDC Part 2 K polynomial at C = 1 (2.450762), σ_v = v95 / 1.9600. Not 2.4477: that
-    exact circle factor is used for the screening's own 95 % figures, which are not FGDC
-    network accuracies (see the module docstring).
-
-    >>> h, v = base_sigma_from_network_accuracy_mm(24.50762, 19.6)
-    >>> round(float(h), 6), round(float(v), 6)
-    (10.0, 10.0)
-    """
-    return np.asarray(h95_mm, dtype=float) / K_H95_NETWORK, np.asarray(v95_mm, dtype=float) / K_V95_NETWORK
-
-
 def frame_change_sigma_mm(accuracy_m) -> float:
     """1σ per axis (mm) added to the base term by a frame change of stated ``accuracy_m``.
 
@@ -328,25 +234,28 @@ def drift_sigma_mm(epoch_gap_yr, vel_sigma_mm_yr=None, assumed_rate_mm_yr: float
     return gap * np.where(np.isnan(rate), assumed_rate_mm_yr, rate)
 
 
-def h95_mm(sigma_axis_mm):
-    """Horizontal 95 % circle radius from a per-axis σ (mm). ``h95_mm(10) ≈ 24.477``."""
-    return K_H95 * np.asarray(sigma_axis_mm, dtype=float)
-
-
-def v95_mm(sigma_mm):
-    """Vertical 95 % value from σ (mm). ``v95_mm(10) ≈ 19.600``."""
-    return K_V95 * np.asarray(sigma_mm, dtype=float)
-
-
-def error_budget_mm(distance_m, *, model: RtkErrorModel, base_h_mm, base_v_mm, drift_h_mm, drift_v_mm) -> dict:
+def error_budget_mm(
+    distance_m,
+    *,
+    model: RtkErrorModel,
+    base_h_mm,
+    base_v_mm,
+    drift_h_mm,
+    drift_v_mm,
+    motion_h_mm=0.0,
+    motion_v_mm=0.0,
+    geoid_v_mm: float = 0.0,
+) -> dict:
     """Every term of the rover's error budget at ``distance_m`` from the base, in mm.
 
-    Returns a dict with 1σ terms ``rtk``, ``base``, ``drift``, ``setup`` (each a pair
-    ``h`` per axis / ``v``), the combined σ and the 95 % figures.
+    Returns a dict with 1σ terms ``rtk``, ``base``, ``drift``, ``motion`` (base relative to the
+    site up to the field date), ``setup`` (base), ``rover`` (pole), ``geoid`` (vertical only, when
+    the deliverable is orthometric), each a pair ``h`` per axis / ``v``, the combined σ and the
+    95 % figures.
 
     Examples
     --------
-    >>> m = RtkErrorModel(setup_h_mm=0, setup_v_mm=0)
+    >>> m = RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     >>> b = error_budget_mm(10000.0, model=m, base_h_mm=0, base_v_mm=0, drift_h_mm=0, drift_v_mm=0)
     >>> b["rtk"]["h"], b["rtk"]["v"], round(b["h95"], 2), round(b["v95"], 2)
     (18.0, 25.0, 44.06, 49.0)
@@ -355,7 +264,10 @@ def error_budget_mm(distance_m, *, model: RtkErrorModel, base_h_mm, base_v_mm, d
         "rtk": (float(model.rtk_h_axis_mm(distance_m)), float(model.rtk_v_mm(distance_m))),
         "base": (float(base_h_mm), float(base_v_mm)),
         "drift": (float(drift_h_mm), float(drift_v_mm)),
+        "motion": (float(motion_h_mm), float(motion_v_mm)),
         "setup": (float(model.setup_h_mm), float(model.setup_v_mm)),
+        "rover": (float(model.rover_h_mm), float(model.rover_v_mm)),
+        "geoid": (0.0, float(geoid_v_mm)),
     }
     sigma_h = math.sqrt(sum(h * h for h, _ in terms.values()))
     sigma_v = math.sqrt(sum(v * v for _, v in terms.values()))
@@ -373,13 +285,17 @@ class ScreeningCore:
 
     Per candidate: ``min_distance_m``, ``max_distance_m``, ``worst_h95_mm``,
     ``worst_v95_mm`` (at the farthest site point), ``coverage`` (fraction of the site's
-    cells inside both tolerances), ``margin_mm`` (min of tol − worst, H and V),
-    ``beyond_baseline``, ``eligible`` (usable and within the baseline), ``order``
-    (candidate indices, ranked). Per site point: ``best_h95_mm``, ``best_v95_mm`` over
-    eligible candidates (inf where none). Site-wide: ``achievable_h95_mm`` /
+    cells inside both tolerances *and* within the maximum baseline), ``margin_mm`` (min of
+    tol − worst, H and V), ``reaches_site`` (every site point within the maximum baseline),
+    ``beyond_baseline`` (no site point within it), ``eligible`` (usable and within the
+    baseline of some site point), ``order`` (candidate indices, ranked). Per site point:
+    ``best_h95_mm``, ``best_v95_mm`` over eligible candidates within the baseline of that
+    point (inf where none) and which candidate gives each (``best_h_index``,
+    ``best_v_index``, −1 where none). Site-wide: ``achievable_h95_mm`` /
     ``achievable_v95_mm`` (the worst over the site of the best per point: the tightest
-    tolerance switching bases could meet), ``any_coverage`` (fraction of cells some
-    eligible base covers), and the best pair.
+    tolerance switching bases could meet), ``achievable_split`` (at some point the best
+    horizontal and the best vertical figure come from different bases), ``any_coverage``,
+    the best pair, and the greedy cover (``cover``: up to ``max_bases`` candidates).
     """
 
     min_distance_m: np.ndarray
@@ -396,11 +312,19 @@ class ScreeningCore:
     achievable_h95_mm: float
     achievable_v95_mm: float
     any_coverage: float
+    reaches_site: np.ndarray | None = None
+    best_h_index: np.ndarray | None = None
+    best_v_index: np.ndarray | None = None
+    achievable_split: bool = False
+    const_h2: np.ndarray | None = None
+    const_v2: np.ndarray | None = None
     pair: tuple[int, int] | None = None
     pair_coverage: float = 0.0
     pair_worst_margin_mm: float = -math.inf
     pair_worst_h95_mm: float = math.inf
     pair_worst_v95_mm: float = math.inf
+    cover: list[int] = field(default_factory=list)
+    cover_coverage: float = 0.0
     info: dict = field(default_factory=dict)
 
 
@@ -416,8 +340,16 @@ def _rtk_sq_mm2(d_m: np.ndarray, fixed_mm: float, ppm: float, combination: str, 
     return out
 
 
-def _sigma2_const(base_mm, drift_mm, setup_mm) -> np.ndarray:
-    return np.asarray(base_mm, float) ** 2 + np.asarray(drift_mm, float) ** 2 + float(setup_mm) ** 2
+def _sigma2_const(*terms_mm) -> np.ndarray:
+    """Σ term² (mm²) of the distance-independent 1σ terms (arrays or scalars)."""
+    return sum(np.square(np.asarray(t, dtype=float)) for t in terms_mm)
+
+
+#: Most bases the greedy cover proposes for one site (beyond that, new control is the better plan).
+MAX_COVER_BASES = 6
+#: A base joins the greedy cover only when it adds at least this fraction of the site's cells: moving the
+#: base for a sliver of the site costs a set-up and a check shot for almost nothing.
+COVER_MIN_GAIN_FRACTION = 0.02
 
 
 def screen_candidates(
@@ -436,6 +368,10 @@ def screen_candidates(
     tol_h_mm: float,
     tol_v_mm: float,
     max_baseline_m: float,
+    motion_h_mm=0.0,
+    motion_v_mm=0.0,
+    geoid_v_mm: float = 0.0,
+    max_bases: int = MAX_COVER_BASES,
     block_elements: int = 400_000,
 ) -> ScreeningCore:
     """Screen k candidate bases over p site points on one local plane.
@@ -447,19 +383,25 @@ def screen_candidates(
         that carry area (the others are boundary samples, used for worst cases only).
     cand_e_m, cand_n_m : (k,) arrays
         Candidate marks on the same plane (m).
-    base_h_mm, base_v_mm, drift_h_mm, drift_v_mm : (k,) arrays
+    base_h_mm, base_v_mm, drift_h_mm, drift_v_mm, motion_h_mm, motion_v_mm : (k,) arrays
         1σ terms per candidate (per horizontal axis / vertical).
     usable : (k,) bool
-        False for candidates already excluded by :func:`rule_reasons`.
+        False for candidates already excluded by the registry's screening rules
+        (:mod:`registry.services.screening.rules`).
     model : RtkErrorModel
     tol_h_mm, tol_v_mm : float
         The job's tolerances, 95 % (horizontal circle, vertical).
     max_baseline_m : float
-        A candidate with any site point farther than this is excluded.
+        Per site point: a base serves only the points within this distance (at equality
+        included). A candidate with no site point within it is excluded.
+    geoid_v_mm : float
+        Vertical 1σ of the geoid model (orthometric deliverables; 0 otherwise).
+    max_bases : int
+        Most bases of the greedy cover.
 
     Ranking: eligible first; among them those covering the whole site (every cell and
-    boundary sample inside both tolerances, i.e. margin ≥ 0) first, then larger margin,
-    then shorter distance; then the ineligible ones in the same order.
+    boundary sample inside both tolerances and the baseline) first, then larger coverage,
+    then larger margin, then shorter distance; then the ineligible ones in the same order.
     """
     pe = np.asarray(site_e_m, dtype=float)
     pn = np.asarray(site_n_m, dtype=float)
@@ -469,8 +411,9 @@ def screen_candidates(
     usable = np.asarray(usable, dtype=bool)
     k, p = ce.size, pe.size
     n_cells = max(int(cells.sum()), 1)
-    const_h2 = _sigma2_const(base_h_mm, drift_h_mm, model.setup_h_mm) * np.ones(k)
-    const_v2 = _sigma2_const(base_v_mm, drift_v_mm, model.setup_v_mm) * np.ones(k)
+    ones = np.ones(k)
+    const_h2 = _sigma2_const(base_h_mm, drift_h_mm, motion_h_mm, model.setup_h_mm, model.rover_h_mm) * ones
+    const_v2 = _sigma2_const(base_v_mm, drift_v_mm, motion_v_mm, model.setup_v_mm, model.rover_v_mm, geoid_v_mm) * ones
     lim_h2 = (tol_h_mm / K_H95) ** 2
     lim_v2 = (tol_v_mm / K_V95) ** 2
 
@@ -479,6 +422,8 @@ def screen_candidates(
     covered = np.zeros(k)
     best_h2 = np.full(p, np.inf)
     best_v2 = np.full(p, np.inf)
+    best_hi = np.full(p, -1, dtype=np.int64)
+    best_vi = np.full(p, -1, dtype=np.int64)
     any_cov = np.zeros(p, dtype=bool)
     rows = max(1, block_elements // max(p, 1))
     buf_d = np.empty((rows, p))
@@ -499,30 +444,42 @@ def screen_candidates(
         np.sqrt(d, out=d)  # distances, m
         min_d[sl] = d.min(axis=1) if p else np.inf
         max_d[sl] = d.max(axis=1) if p else 0.0
+        # Only blocks with a site point beyond the baseline need the per-point mask (most do not).
+        within = None if max_d[sl].max(initial=0.0) <= max_baseline_m else d <= max_baseline_m
         _rtk_sq_mm2(d, model.h_fixed_mm, model.h_ppm, model.combination, scale_h, out=h2)
         h2 += const_h2[sl, None]
         _rtk_sq_mm2(d, model.v_fixed_mm, model.v_ppm, model.combination, 1.0, out=v2)
         v2 += const_v2[sl, None]
         ok = (h2 <= lim_h2) & (v2 <= lim_v2)
+        if within is not None:
+            ok &= within
         covered[sl] = np.count_nonzero(ok & cells[None, :], axis=1)
-        elig = usable[sl] & (max_d[sl] <= max_baseline_m)
+        elig = usable[sl] & (min_d[sl] <= max_baseline_m)
         if elig.any():
-            np.minimum(best_h2, h2[elig].min(axis=0), out=best_h2)
-            np.minimum(best_v2, v2[elig].min(axis=0), out=best_v2)
+            rows_idx = np.flatnonzero(elig) + start
+            for sq, best, best_i in ((h2, best_h2, best_hi), (v2, best_v2, best_vi)):
+                vals = sq[elig] if within is None else np.where(within[elig], sq[elig], np.inf)
+                arg = vals.argmin(axis=0)
+                low = vals[arg, np.arange(p)]
+                better = low < best
+                best[better] = low[better]
+                best_i[better] = rows_idx[arg[better]]
             any_cov |= ok[elig].any(axis=0)
 
-    beyond = max_d > max_baseline_m
+    beyond = min_d > max_baseline_m
+    reaches = max_d <= max_baseline_m
     eligible = usable & ~beyond
     worst_h95 = K_H95 * np.sqrt(model.rtk_h_axis_mm(max_d) ** 2 + const_h2)
     worst_v95 = K_V95 * np.sqrt(model.rtk_v_mm(max_d) ** 2 + const_v2)
     coverage = covered / n_cells
     margin = np.minimum(tol_h_mm - worst_h95, tol_v_mm - worst_v95)
-    # Covers the whole site: inside both tolerances at every point, boundary included.
-    full = margin >= 0.0
+    # Covers the whole site: inside both tolerances and the baseline at every point, boundary included.
+    full = (margin >= 0.0) & reaches
     # np.lexsort: the last key is the primary one.
-    order = np.lexsort((min_d, -margin, ~full, ~eligible))
+    order = np.lexsort((min_d, -margin, -coverage, ~full, ~eligible))
     best_h95 = K_H95 * np.sqrt(best_h2)
     best_v95 = K_V95 * np.sqrt(best_v2)
+    both = (best_hi >= 0) & (best_vi >= 0)
     core = ScreeningCore(
         min_distance_m=min_d,
         max_distance_m=max_d,
@@ -538,37 +495,116 @@ def screen_candidates(
         achievable_h95_mm=float(best_h95.max()) if p else math.inf,
         achievable_v95_mm=float(best_v95.max()) if p else math.inf,
         any_coverage=float((any_cov & cells).sum() / n_cells),
+        reaches_site=reaches,
+        best_h_index=best_hi,
+        best_v_index=best_vi,
+        achievable_split=bool(np.any(both & (best_hi != best_vi))),
+        const_h2=const_h2,
+        const_v2=const_v2,
     )
-    _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm)
+    _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm, max_baseline_m, max_bases)
     return core
 
 
-def _margins(idx, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm) -> np.ndarray:
-    """Per-point margin (mm) of candidates ``idx``: min(tol_h − h95, tol_v − v95); (len(idx), p)."""
-    de = ce[idx, None] - pe[None, :]
-    dn = cn[idx, None] - pn[None, :]
+def point_margins_mm(
+    idx, site_e_m, site_n_m, cand_e_m, cand_n_m, const_h2, const_v2, *, model, tol_h_mm, tol_v_mm, max_baseline_m
+) -> np.ndarray:
+    """Per-point margin (mm) of candidates ``idx``: min(tol_h − h95, tol_v − v95); −inf beyond the baseline.
+
+    Returns an array of shape (len(idx), p).
+    """
+    idx = np.asarray(idx, dtype=np.int64)
+    ce, cn = np.asarray(cand_e_m, float), np.asarray(cand_n_m, float)
+    de = ce[idx, None] - np.asarray(site_e_m, float)[None, :]
+    dn = cn[idx, None] - np.asarray(site_n_m, float)[None, :]
     d = np.sqrt(de * de + dn * dn)
-    h95 = K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + const_h2[idx, None])
-    v95 = K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + const_v2[idx, None])
-    return np.minimum(tol_h_mm - h95, tol_v_mm - v95)
+    h95 = K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + np.asarray(const_h2)[idx, None])
+    v95 = K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + np.asarray(const_v2)[idx, None])
+    return np.where(d <= max_baseline_m, np.minimum(tol_h_mm - h95, tol_v_mm - v95), -np.inf)
 
 
-def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm) -> None:
-    """Best pair of bases: per site point the better of the two; maximise coverage, then worst margin.
+def assign_service_areas(margins_mm: np.ndarray) -> np.ndarray:
+    """Per site point, which of the given bases serves it: the one with the largest margin.
+
+    ``margins_mm`` (b, p) from :func:`point_margins_mm`. Returns (p,) row indices, −1 where no
+    base is within tolerance (margin < 0 for all).
+
+    >>> assign_service_areas(np.array([[1.0, -2.0, -1.0], [0.5, 3.0, -0.5]])).tolist()
+    [0, 1, -1]
+    """
+    m = np.asarray(margins_mm, dtype=float)
+    if m.size == 0:
+        return np.full(m.shape[1] if m.ndim == 2 else 0, -1, dtype=np.int64)
+    best = m.argmax(axis=0)
+    return np.where(m.max(axis=0) >= 0.0, best, -1).astype(np.int64)
+
+
+def greedy_cover(bits: np.ndarray, *, max_sets: int, min_gain: int = 1) -> list[int]:
+    """Greedy set cover over bit-packed coverage rows: each step takes the row adding most new cells.
+
+    Ties go to the lower row (the better-ranked candidate). Stops when a step would add fewer than
+    ``min_gain`` cells, or after ``max_sets`` rows. The classic greedy approximation (Chvátal 1979): within a factor
+    H(n) ≤ 1 + ln n of the fewest sets, and in practice near it on corridor-like sites.
+
+    >>> rows = np.packbits(np.array([[1, 1, 0, 0], [0, 1, 1, 0], [0, 0, 1, 1]], dtype=bool), axis=1)
+    >>> greedy_cover(rows, max_sets=6)
+    [0, 2]
+    """
+    bits = np.asarray(bits, dtype=np.uint8)
+    if bits.size == 0:
+        return []
+    covered = np.zeros(bits.shape[1], dtype=np.uint8)
+    chosen: list[int] = []
+    while len(chosen) < max_sets:
+        gain = np.bitwise_count(bits & ~covered).sum(axis=1, dtype=np.int64)
+        i = int(np.argmax(gain))
+        if gain[i] < max(min_gain, 1):
+            break
+        chosen.append(i)
+        covered |= bits[i]
+    return chosen
+
+
+def _best_pair(
+    core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm, max_baseline_m, max_bases
+) -> None:
+    """Best pair of bases (per site point the better of the two; maximise coverage, then worst
+    margin) and the greedy cover of up to ``max_bases`` bases.
 
     Method: the ``PAIR_POOL_SIZE`` best-ranked eligible candidates form the pool. Pair
     coverage for *all* pool pairs is counted exactly from bit-packed cell-coverage rows
     (popcount of A | B). The ``PAIR_EXACT_EVALUATIONS`` pairs with the most coverage (ties:
     larger sum of the two single worst margins) then get their exact worst-case margin:
-    min over points of max(margin_i, margin_j).
+    min over points of max(margin_i, margin_j). A point beyond the maximum baseline of a base
+    has margin −inf for it.
     """
     pool = core.order[core.eligible[core.order]][:PAIR_POOL_SIZE]
     core.info["pair_pool"] = int(pool.size)
     if pool.size < 2:
         return
     # float32: margins are in mm, so its resolution (~1e-6 mm here) is far below anything shown.
-    m = _margins(pool, pe, pn, ce, cn, const_h2, const_v2, model, tol_h_mm, tol_v_mm).astype(np.float32)
+    m = point_margins_mm(
+        pool,
+        pe,
+        pn,
+        ce,
+        cn,
+        const_h2,
+        const_v2,
+        model=model,
+        tol_h_mm=tol_h_mm,
+        tol_v_mm=tol_v_mm,
+        max_baseline_m=max_baseline_m,
+    ).astype(np.float32)
     bits = np.packbits((m >= 0) & cells[None, :], axis=1)
+    n_cells = max(int(cells.sum()), 1)
+    cover = greedy_cover(bits, max_sets=max_bases, min_gain=math.ceil(COVER_MIN_GAIN_FRACTION * n_cells))
+    if cover:
+        union = np.zeros(bits.shape[1], dtype=np.uint8)
+        for i in cover:
+            union |= bits[i]
+        core.cover = [int(pool[i]) for i in cover]
+        core.cover_coverage = int(np.bitwise_count(union).sum()) / n_cells
     iu, ju = np.triu_indices(pool.size, k=1)
     pair_cov = np.empty(iu.size, dtype=np.int64)
     pos = 0
@@ -578,6 +614,7 @@ def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm,
         pos += cnt.size
     single_worst = m.min(axis=1)
     proxy = single_worst[iu] + single_worst[ju]
+    proxy = np.where(np.isfinite(proxy), proxy, -np.inf)
     pick = np.lexsort((-proxy, -pair_cov))[:PAIR_EXACT_EVALUATIONS]
     best = None
     for start in range(0, pick.size, 64):
@@ -598,7 +635,7 @@ def _best_pair(core, pe, pn, cells, ce, cn, const_h2, const_v2, model, tol_h_mm,
         return
     i, j = int(pool[iu[s]]), int(pool[ju[s]])
     core.pair = (i, j)
-    core.pair_coverage = cov_count / max(int(cells.sum()), 1)
+    core.pair_coverage = cov_count / n_cells
     core.pair_worst_margin_mm = float(worst_margin)
     # The pair's worst 95 % figures: per point the better base (by margin), then the worst point.
     mi, mj = m[iu[s]], m[ju[s]]
@@ -642,7 +679,7 @@ def farthest_point_selection(e_m, n_m, *, first: int, count: int, avoid_e_m=(), 
     return chosen
 
 
-def check_shot_allowance_mm(
+def check_shot_terms_mm(
     distance_m,
     *,
     model: RtkErrorModel,
@@ -654,14 +691,36 @@ def check_shot_allowance_mm(
     check_v_mm,
     check_drift_h_mm,
     check_drift_v_mm,
-):
+    base_motion_h_mm=0.0,
+    base_motion_v_mm=0.0,
+    check_motion_h_mm=0.0,
+    check_motion_v_mm=0.0,
+) -> dict[str, tuple[float, float]]:
+    """The 1σ terms (per horizontal axis, vertical; mm) of a check shot's discrepancy.
+
+    RTK at the baseline; the base position, its drift and its motion relative to the site;
+    the base setup (centring, antenna height); the rover pole on the check mark (centring, rod
+    height: ``model.rover_h_mm`` / ``rover_v_mm``); the check mark's position, its drift and its
+    motion relative to the site.
+    """
+    return {
+        "rtk": (float(model.rtk_h_axis_mm(distance_m)), float(model.rtk_v_mm(distance_m))),
+        "base": (float(base_h_mm), float(base_v_mm)),
+        "base drift": (float(base_drift_h_mm), float(base_drift_v_mm)),
+        "base motion": (float(base_motion_h_mm), float(base_motion_v_mm)),
+        "base setup": (float(model.setup_h_mm), float(model.setup_v_mm)),
+        "rover pole": (float(model.rover_h_mm), float(model.rover_v_mm)),
+        "check mark": (float(check_h_mm), float(check_v_mm)),
+        "check drift": (float(check_drift_h_mm), float(check_drift_v_mm)),
+        "check motion": (float(check_motion_h_mm), float(check_motion_v_mm)),
+    }
+
+
+def check_shot_allowance_mm(distance_m, *, model: RtkErrorModel, **terms):
     """Largest check-shot discrepancy still consistent at 95 % (horizontal circle, vertical), mm.
 
-    Terms (1σ, per horizontal axis / vertical), added in quadrature:
-    RTK at the baseline; the base position and its drift; the base setup (centring and
-    antenna height, ``model.setup_h_mm`` / ``setup_v_mm``); the rover pole on the check
-    mark (centring and rod height, the same setup figures again); the check mark's position
-    and its drift. H = 2.4477·√(Σσ_axis²), V = 1.96·√(Σσ_v²).
+    Terms (1σ, per horizontal axis / vertical; :func:`check_shot_terms_mm`), added in
+    quadrature: H = 2.4477·√(Σσ_axis²), V = 1.96·√(Σσ_v²).
 
     Independence: base and check positions are treated as uncorrelated (σ_base² + σ_check²),
     because the registry stores no cross-covariance between marks. When both come from one
@@ -671,28 +730,55 @@ def check_shot_allowance_mm(
     flagged than with the true difference covariance (local accuracy,
     :func:`registry.geodesy.accuracy.difference_covariance_m2`), which would tighten it.
 
-    >>> m = RtkErrorModel(h_fixed_mm=0, v_fixed_mm=0, setup_h_mm=0, setup_v_mm=0)
+    >>> m = RtkErrorModel(h_fixed_mm=0, v_fixed_mm=0, setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     >>> h, v = check_shot_allowance_mm(0.0, model=m, base_h_mm=0, base_v_mm=0, base_drift_h_mm=0,
     ...     base_drift_v_mm=0, check_h_mm=10, check_v_mm=25, check_drift_h_mm=0, check_drift_v_mm=0)
     >>> round(float(h), 3), round(float(v), 3)
     (24.477, 48.999)
     """
-    sh2 = (
-        model.rtk_h_axis_mm(distance_m) ** 2
-        + np.square(base_h_mm)
-        + np.square(base_drift_h_mm)
-        + model.setup_h_mm**2  # base setup
-        + model.setup_h_mm**2  # rover pole on the check mark
-        + np.square(check_h_mm)
-        + np.square(check_drift_h_mm)
-    )
-    sv2 = (
-        model.rtk_v_mm(distance_m) ** 2
-        + np.square(base_v_mm)
-        + np.square(base_drift_v_mm)
-        + model.setup_v_mm**2  # base antenna height
-        + model.setup_v_mm**2  # rover rod height on the check mark
-        + np.square(check_v_mm)
-        + np.square(check_drift_v_mm)
-    )
-    return K_H95 * np.sqrt(sh2), K_V95 * np.sqrt(sv2)
+    t = check_shot_terms_mm(distance_m, model=model, **terms)
+    sh2 = sum(h * h for h, _ in t.values())
+    sv2 = sum(v * v for _, v in t.values())
+    return K_H95 * math.sqrt(sh2), K_V95 * math.sqrt(sv2)
+
+
+# ----------------------------------------------------------------------------- motion to the field date
+
+
+def median_velocity_mm_yr(vel_enu_mm_yr):
+    """Per-axis median of a set of velocities (n, 3), their scatter and the median's standard error (mm/yr).
+
+    Scatter: the normal-consistent median absolute deviation 1.4826 · MAD, a robust σ of one
+    mark's velocity about the median. Standard error of the median: 1.2533 · scatter / √n (the
+    median's asymptotic efficiency factor √(π/2) = 1.2533; e.g. Huber & Ronchetti, *Robust
+    Statistics*, 2009). Returns (median (3,), scatter (3,), standard error (3,)).
+
+    >>> med, sc, se = median_velocity_mm_yr(np.array([[0., 0., -1.], [1., 0., -2.], [2., 0., -9.]]))
+    >>> med.tolist(), [round(float(x), 4) for x in sc], [round(float(x), 4) for x in se]
+    ([1.0, 0.0, -2.0], [1.4826, 0.0, 1.4826], [1.0728, 0.0, 1.0728])
+    """
+    v = np.atleast_2d(np.asarray(vel_enu_mm_yr, dtype=float))
+    med = np.median(v, axis=0)
+    scatter = 1.4826 * np.median(np.abs(v - med), axis=0)
+    return med, scatter, 1.2533 * scatter / math.sqrt(v.shape[0])
+
+
+def relative_motion_mm(site_vel_mm_yr, base_vel_mm_yr, rel_sigma_mm_yr, years):
+    """Motion of a base relative to the site over ``years`` (field date − deliverable epoch).
+
+    Offset per axis (v_site − v_base)·Δt (mm); the term per axis is √(offset² + (σ_rel·|Δt|)²),
+    horizontal from the length of the east/north offset and the larger horizontal σ. Returns
+    (term_h_mm, term_v_mm, offset_enu_mm).
+
+    >>> h, v, off = relative_motion_mm((0, 0, 0), (-0.8, 0.5, -4.5), (0, 0, 0), 16.93)
+    >>> [round(float(x), 1) for x in off], round(h, 1), round(v, 1)
+    ([13.5, -8.5, 76.2], 16.0, 76.2)
+    """
+    site = np.asarray(site_vel_mm_yr, dtype=float)
+    base = np.asarray(base_vel_mm_yr, dtype=float)
+    sig = np.asarray(rel_sigma_mm_yr, dtype=float)
+    off = (site - base) * years
+    spread = sig * abs(years)
+    h = math.hypot(math.hypot(off[0], off[1]), max(spread[0], spread[1]))
+    v = math.hypot(off[2], spread[2])
+    return h, v, off

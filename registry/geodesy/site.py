@@ -426,3 +426,96 @@ def display_utm_zone(lon_deg: float, lat_deg: float) -> tuple[int, bool]:
     """
     zone = int(math.floor((lon_deg + 180.0) / 6.0)) % 60 + 1
     return zone, lat_deg >= 0.0
+
+
+def cells_outline_m(e_m, n_m, spacing_m: float) -> list[list[np.ndarray]]:
+    """Outline of a set of square cells of one regular grid, as polygons with holes (local plane, metres).
+
+    Each cell is the square of side ``spacing_m`` centred on (``e_m``, ``n_m``); the centres lie on one
+    lattice (as :func:`build_site_grid` makes them). The boundary edges (those with no cell on their
+    other side) are chained into closed rings; counter-clockwise rings are exteriors, clockwise rings
+    holes, each hole assigned to the exterior that contains it. Collinear vertices are dropped.
+
+    Returns a list of polygons, each ``[exterior, hole, ...]`` with rings as (k, 2) arrays, closed
+    (first vertex repeated last).
+
+    >>> polys = cells_outline_m([0.0, 10.0, 0.0], [0.0, 0.0, 10.0], 10.0)
+    >>> len(polys), len(polys[0]), polys[0][0].tolist()
+    (1, 1, [[15.0, -5.0], [15.0, 5.0], [5.0, 5.0], [5.0, 15.0], [-5.0, 15.0], [-5.0, -5.0], [15.0, -5.0]])
+    >>> ring = [(0.0, 0.0), (10.0, 0.0), (20.0, 0.0), (0.0, 10.0), (20.0, 10.0), (0.0, 20.0), (10.0, 20.0), (20.0, 20.0)]
+    >>> polys = cells_outline_m([p[0] for p in ring], [p[1] for p in ring], 10.0)
+    >>> len(polys), len(polys[0]), polys[0][1][:-1].tolist()
+    (1, 2, [[5.0, 5.0], [5.0, 15.0], [15.0, 15.0], [15.0, 5.0]])
+    """
+    e = np.atleast_1d(np.asarray(e_m, dtype=float))
+    n = np.atleast_1d(np.asarray(n_m, dtype=float))
+    if e.size == 0 or not spacing_m > 0:
+        return []
+    e0, n0 = float(e.min()), float(n.min())
+    ii = np.rint((e - e0) / spacing_m).astype(np.int64)
+    jj = np.rint((n - n0) / spacing_m).astype(np.int64)
+    cells = set(zip(ii.tolist(), jj.tolist(), strict=True))
+    # Directed boundary edges on the corner lattice (corner (i, j) is the lower-left corner of cell (i, j)),
+    # counter-clockwise around each cell, kept only where the neighbour across the edge is missing.
+    nxt: dict[tuple[int, int], list[tuple[int, int]]] = {}
+    for i, j in cells:
+        for (a, b), (c, d), nb in (
+            ((i, j), (i + 1, j), (i, j - 1)),
+            ((i + 1, j), (i + 1, j + 1), (i + 1, j)),
+            ((i + 1, j + 1), (i, j + 1), (i, j + 1)),
+            ((i, j + 1), (i, j), (i - 1, j)),
+        ):
+            if nb not in cells:
+                nxt.setdefault((a, b), []).append((c, d))
+    rings: list[list[tuple[int, int]]] = []
+    while nxt:
+        start = next(iter(nxt))
+        ring = [start]
+        here = start
+        while True:
+            outs = nxt[here]
+            to = outs.pop()
+            if not outs:
+                del nxt[here]
+            if to == start:
+                break
+            ring.append(to)
+            here = to
+        rings.append(ring)
+
+    def simplify(ring):
+        m = len(ring)
+        keep = []
+        for k in range(m):
+            (ax, ay), (bx, by), (cx, cy) = ring[k - 1], ring[k], ring[(k + 1) % m]
+            if (bx - ax) * (cy - by) - (by - ay) * (cx - bx) != 0:
+                keep.append(ring[k])
+        return keep
+
+    def area2(ring):
+        return sum(ax * by - bx * ay for (ax, ay), (bx, by) in zip(ring, ring[1:] + ring[:1], strict=True))
+
+    def contains(ring, x, y):
+        inside = False
+        for (ax, ay), (bx, by) in zip(ring, ring[1:] + ring[:1], strict=True):
+            if (ay > y) != (by > y) and x < ax + (y - ay) * (bx - ax) / (by - ay):
+                inside = not inside
+        return inside
+
+    rings = [simplify(r) for r in rings]
+    outer = [r for r in rings if area2(r) > 0]
+    holes = [r for r in rings if area2(r) < 0]
+    polys: list[list[list[tuple[int, int]]]] = [[r] for r in outer]
+    for h in holes:
+        # A point just off a corner of the hole lies inside the exterior that encloses the hole.
+        x, y = h[0][0] + 1e-3, h[0][1] + 1e-3
+        for poly in sorted(polys, key=lambda p: area2(p[0])):
+            if contains(poly[0], x, y):
+                poly.append(h)
+                break
+
+    def to_m(ring):
+        arr = np.array(ring + ring[:1], dtype=float)
+        return np.column_stack([e0 + (arr[:, 0] - 0.5) * spacing_m, n0 + (arr[:, 1] - 0.5) * spacing_m])
+
+    return [[to_m(r) for r in poly] for poly in polys]

@@ -25,7 +25,7 @@ from registry.models.fieldwork import (
     Visit,
 )
 from registry.models.grids import GRID_CODE_VALIDATOR, CustomGrid, GridMethod, GridUnit
-from registry.models.jobs import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models.jobs import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.models.marks import (
     CODE_VALIDATOR,
     DESCRIPTION_FIELDS,
@@ -97,6 +97,7 @@ __all__ = [
     "PositionStateError",
     "RtkCombination",
     "RtkHorizontalMeaning",
+    "VerticalDeliverable",
     "SUSPECT_FINDINGS",
     "SigninThrottle",
     "SkyView",

@@ -17,6 +17,11 @@ class RtkHorizontalMeaning(models.TextChoices):
     DRMS = "drms", "2D RMS (σ_E² + σ_N²)^½"
 
 
+class VerticalDeliverable(models.TextChoices):
+    ELLIPSOIDAL = "ellipsoidal", "ellipsoidal heights in the deliverable frame"
+    ORTHOMETRIC = "orthometric", "orthometric heights (the office's geoid model)"
+
+
 class JobStatus(models.TextChoices):
     PLANNING = "planning", "planning"
     ACTIVE = "active", "in the field"
@@ -56,7 +61,18 @@ class Job(models.Model):
     setup_h_mm = models.FloatField(default=2.0, help_text="Centring error per horizontal axis, 1σ, mm.")
     setup_v_mm = models.FloatField(default=3.0, help_text="Antenna height error, 1σ, mm.")
     assumed_rate_mm_yr = models.FloatField(
-        default=2.0, help_text="Unmodelled motion per axis for marks without a velocity."
+        default=2.0, help_text="Unmodelled motion per axis for marks without a velocity, in a dynamic frame."
+    )
+    assumed_rate_plate_fixed_mm_yr = models.FloatField(
+        default=0.5, help_text="Unmodelled motion per axis for marks without a velocity, in a plate-fixed frame."
+    )
+    field_date = models.DateField(
+        null=True, blank=True, help_text="When the crew will observe; empty: the day the screening is run."
+    )
+    rover_h_mm = models.FloatField(default=2.0, help_text="Rover pole centring per horizontal axis, 1σ, mm.")
+    rover_v_mm = models.FloatField(default=3.0, help_text="Rover rod height error, 1σ, mm.")
+    vertical_deliverable = models.CharField(
+        max_length=12, choices=VerticalDeliverable.choices, default=VerticalDeliverable.ELLIPSOIDAL
     )
     max_baseline_m = models.FloatField(default=10000.0)
     recovery_years = models.FloatField(default=10.0, help_text="A base needs a good visit within this many years.")
@@ -84,6 +100,10 @@ class Job(models.Model):
                 condition=Q(setup_h_mm__gte=0, setup_v_mm__gte=0, assumed_rate_mm_yr__gte=0), name="job_budget_nonneg"
             ),
             models.CheckConstraint(condition=Q(max_baseline_m__gt=0, recovery_years__gt=0), name="job_limits_positive"),
+            models.CheckConstraint(
+                condition=Q(rover_h_mm__gte=0, rover_v_mm__gte=0, assumed_rate_plate_fixed_mm_yr__gte=0),
+                name="job_rover_and_rates_nonneg",
+            ),
             models.CheckConstraint(
                 condition=Q(grid_spacing_m__isnull=True) | Q(grid_spacing_m__gt=0), name="job_grid_spacing_positive"
             ),

@@ -268,8 +268,9 @@ def build_report_pdf(
             _table(
                 ["#", "Mark", "km", *[f"{t} H/V" for t in terms], "95 % H/V", "Margin", "Coverage"],
                 rows,
-                [0.04 * w, 0.1 * w, 0.06 * w, *[0.1 * w] * len(terms), 0.12 * w, 0.08 * w, 0.14 * w],
-                numeric={0, 2, 3, 4, 5, 6, 7, 8},
+                # the budget terms share what the fixed columns leave (0.46 of the width)
+                [0.04 * w, 0.1 * w, 0.06 * w, *[0.46 * w / len(terms)] * len(terms), 0.12 * w, 0.08 * w, 0.14 * w],
+                numeric={0, 2, *range(3, 3 + len(terms) + 2)},
             )
         )
     excluded = [c for c in presented["candidates"] if c["excluded"]]

@@ -101,7 +101,7 @@ def position_compatibility(*, position: Position) -> PositionCheck:
         velocity, velocity_sigma, whose = None, None, ""
         rate = float(settings.REGISTRY.get("ASSUMED_RATE_MM_YR", 2.0))
         # A velocity without a stated σ gets the assumed unmodelled rate per axis, as base screening
-        # does (services.screening._place), so the two never disagree about the same epoch gap.
+        # does (services.screening.placing.place_position), so the two never disagree about the same epoch gap.
         if published.has_velocity:
             source = published
             whose = "the published position's velocity"

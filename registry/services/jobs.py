@@ -6,262 +6,34 @@ screening limits. Each function checks the actor's role (planning jobs is a mana
 ability), validates every field with a coded ``ValidationError``, runs in one transaction
 and appends an audit event. Bad input changes nothing.
 
-Defaults for a new job (documented in README, "search-and-screening"):
-8 mm + 1 ppm horizontal and 15 mm + 1 ppm vertical, additive, the horizontal figure read
-as 1σ per axis; setup 2 mm / 3 mm; assumed unmodelled rate, maximum baseline and recovery
-period from ``settings.REGISTRY`` (2 mm/yr, 10 km, 10 years; common practice).
+The fields, their checks and their defaults live in :mod:`registry.services.job_fields`.
 """
 
 from __future__ import annotations
 
-import json
 from typing import Any
 
-from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.db import IntegrityError, transaction
 from django.db.models import F
 from django.utils import timezone
 
 from registry.errors import Conflict
-from registry.geodesy import site as site_geo
-from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
-from registry.models.marks import CODE_VALIDATOR
+from registry.models import Job
 from registry.roles import Ability
 from registry.services._input import field_error
 from registry.services.access import access_job_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
-from registry.services.limits import NOTES_MAX
-
-#: Numeric fields: (lower bound, lower bound open?, upper bound, unit words).
-NUMBER_RANGES: dict[str, tuple[float, bool, float, str]] = {
-    "epoch_yr": (1900.0, False, 2100.0, "a decimal year"),
-    "tol_h_mm": (0.0, True, 10_000.0, "mm"),
-    "tol_v_mm": (0.0, True, 10_000.0, "mm"),
-    "rtk_h_fixed_mm": (0.0, False, 1_000.0, "mm"),
-    "rtk_h_ppm": (0.0, False, 100.0, "ppm"),
-    "rtk_v_fixed_mm": (0.0, False, 1_000.0, "mm"),
-    "rtk_v_ppm": (0.0, False, 100.0, "ppm"),
-    "setup_h_mm": (0.0, False, 100.0, "mm"),
-    "setup_v_mm": (0.0, False, 100.0, "mm"),
-    "assumed_rate_mm_yr": (0.0, False, 100.0, "mm/yr"),
-    "max_baseline_m": (0.0, True, 100_000.0, "m"),
-    "recovery_years": (0.0, True, 200.0, "years"),
-    "grid_spacing_m": (0.0, True, 10_000.0, "m"),
-}
-TEXT_FIELDS = {"name": 200, "client": 200, "notes": NOTES_MAX}
-EDITABLE_FIELDS: tuple[str, ...] = (
-    "name",
-    "client",
-    "status",
-    "site_geojson",
-    "frame_epsg",
-    "epoch_yr",
-    "grid_epsg",
-    "custom_grid",
-    "tol_h_mm",
-    "tol_v_mm",
-    "rtk_h_fixed_mm",
-    "rtk_h_ppm",
-    "rtk_v_fixed_mm",
-    "rtk_v_ppm",
-    "rtk_combination",
-    "rtk_h_meaning",
-    "setup_h_mm",
-    "setup_v_mm",
-    "assumed_rate_mm_yr",
-    "max_baseline_m",
-    "recovery_years",
-    "grid_spacing_m",
-    "notes",
+from registry.services.job_fields import (
+    CREATE_FIELDS,
+    EDITABLE_FIELDS,
+    REQUIRED_ON_CREATE,
+    clean_job_fields,
+    settings_defaults,
+    validate_job,
 )
-CREATE_FIELDS: tuple[str, ...] = ("code", *EDITABLE_FIELDS)
-REQUIRED_ON_CREATE = ("code", "name", "site_geojson", "frame_epsg", "epoch_yr", "tol_h_mm", "tol_v_mm")
-NULLABLE = {"grid_epsg", "custom_grid", "grid_spacing_m"}
 
-
-def _settings_defaults() -> dict[str, float]:
-    cfg = settings.REGISTRY
-    return {
-        "assumed_rate_mm_yr": float(cfg.get("ASSUMED_RATE_MM_YR", 2.0)),
-        "max_baseline_m": float(cfg.get("MAX_BASELINE_M", 10_000.0)),
-        "recovery_years": float(cfg.get("RECOVERY_YEARS", 10.0)),
-    }
-
-
-def _number(field: str, value: Any) -> float | None:
-    if value is None or value == "":
-        if field in NULLABLE:
-            return None
-        raise field_error(field, "This field is required.", "required")
-    if isinstance(value, bool):
-        raise field_error(field, "Expected a number.", "invalid_number")
-    try:
-        x = float(value.strip() if isinstance(value, str) else value)
-    except (TypeError, ValueError):
-        raise field_error(field, "Expected a number.", "invalid_number") from None
-    lo, lo_open, hi, unit = NUMBER_RANGES[field]
-    if not (x == x and abs(x) != float("inf")):
-        raise field_error(field, "Expected a finite number.", "not_finite")
-    if x > hi or x < lo or (lo_open and x == lo):
-        bound = f"greater than {lo:g}" if lo_open else f"at least {lo:g}"
-        raise field_error(field, f"Must be {bound} and at most {hi:g} ({unit}).", "out_of_range", value=x)
-    return x
-
-
-def _epsg(field: str, value: Any) -> int | None:
-    if value is None or value == "":
-        if field in NULLABLE:
-            return None
-        raise field_error(field, "This field is required.", "required")
-    if isinstance(value, bool):
-        raise field_error(field, "Expected an EPSG code.", "invalid_integer")
-    try:
-        code = int(value.strip() if isinstance(value, str) else value)
-    except (TypeError, ValueError):
-        raise field_error(field, "Expected an EPSG code (a whole number).", "invalid_integer") from None
-    if isinstance(value, float) and value != code:
-        raise field_error(field, "Expected an EPSG code (a whole number).", "invalid_integer")
-    if field == "frame_epsg":
-        from registry.geodesy.frames import FrameTransformError, frame_info
-
-        try:
-            frame_info(code)
-        except FrameTransformError as exc:
-            raise field_error(field, str(exc), "invalid_frame", value=code) from None
-    else:
-        import pyproj
-
-        try:
-            crs = pyproj.CRS.from_epsg(code)
-        except pyproj.exceptions.CRSError:
-            raise field_error(
-                field, f"EPSG:{code} is not a known coordinate reference system.", "invalid_grid"
-            ) from None
-        if not crs.is_projected:
-            raise field_error(field, f"EPSG:{code} ({crs.name}) is not a projected grid.", "invalid_grid", value=code)
-    return code
-
-
-def _custom_grid(value: Any):
-    """A custom grid's code → the stored grid (None for empty)."""
-    from registry.models import CustomGrid
-
-    if value is None or value == "":
-        return None
-    if isinstance(value, CustomGrid):
-        return value
-    if not isinstance(value, str):
-        raise field_error("custom_grid", "Expected a custom grid's code.", "invalid_grid")
-    grid = CustomGrid.objects.filter(code=value.strip().upper()).first()
-    if grid is None:
-        raise field_error(
-            "custom_grid", f"No custom grid '{value.strip()}' is stored (see the list of custom grids).", "invalid_grid"
-        )
-    return grid
-
-
-def _site(value: Any) -> dict:
-    try:
-        parsed = site_geo.parse_site_geojson(value)
-    except site_geo.SiteError as exc:
-        raise field_error("site_geojson", exc.message, exc.code) from None
-    obj = json.loads(value) if isinstance(value, str | bytes) else value
-    if obj.get("type") == "Feature":
-        obj = obj["geometry"]
-    del parsed
-    return {"type": obj["type"], "coordinates": obj["coordinates"]}
-
-
-def _clean(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
-    """Check keys and convert every submitted value; all field errors at once."""
-    if not isinstance(data, dict):
-        raise ValidationError("Send the fields as an object.", code="invalid_payload")
-    errors: dict[str, list] = {}
-    cleaned: dict[str, Any] = {}
-    for key, value in data.items():
-        try:
-            if key not in allowed:
-                if key == "code":
-                    raise field_error(key, "A job's code is its identity and does not change.", "not_editable")
-                if key == "version":
-                    raise field_error(key, "Send the version you started from as expected_version.", "not_editable")
-                raise field_error(str(key), f"Unknown field '{key}'.", "unknown_field")
-            if key == "code":
-                code = value.strip() if isinstance(value, str) else value
-                if not isinstance(code, str) or not code:
-                    raise field_error(key, "A job needs a code.", "required")
-                try:
-                    CODE_VALIDATOR(code)
-                except ValidationError:
-                    raise field_error(
-                        key, "A job code is 1–32 characters: capital letters, digits, '_', '.', '-'.", "invalid_code"
-                    ) from None
-                cleaned[key] = code
-            elif key in NUMBER_RANGES:
-                cleaned[key] = _number(key, value)
-            elif key in ("frame_epsg", "grid_epsg"):
-                cleaned[key] = _epsg(key, value)
-            elif key == "custom_grid":
-                cleaned[key] = _custom_grid(value)
-            elif key == "site_geojson":
-                cleaned[key] = _site(value)
-            elif key in TEXT_FIELDS:
-                if value is None:
-                    value = ""
-                if not isinstance(value, str):
-                    raise field_error(key, "Expected text.", "invalid_type")
-                value = value.strip()
-                if len(value) > TEXT_FIELDS[key]:
-                    raise field_error(
-                        key,
-                        "At most %(limit_value)d characters (this has %(show_value)d).",
-                        "max_length",
-                        limit_value=TEXT_FIELDS[key],
-                        show_value=len(value),
-                    )
-                cleaned[key] = value
-            else:
-                choices = {
-                    "status": JobStatus,
-                    "rtk_combination": RtkCombination,
-                    "rtk_h_meaning": RtkHorizontalMeaning,
-                }[key]
-                if value not in choices.values:
-                    raise field_error(key, f"{value!r} is not one of: {', '.join(choices.values)}.", "invalid_choice")
-                cleaned[key] = value
-        except ValidationError as exc:
-            for field, items in exc.error_dict.items():
-                errors.setdefault(field, []).extend(items)
-    if errors:
-        raise ValidationError(errors)
-    return cleaned
-
-
-def _validate_whole(job: Job) -> None:
-    """Checks across fields: the name is there, and the grid spacing suits the site."""
-    if not job.name:
-        raise field_error("name", "A job needs a name.", "required")
-    if job.grid_epsg is not None and job.custom_grid_id is not None:
-        raise field_error(
-            "custom_grid",
-            "Give the deliverable grid either as an EPSG code or as a custom grid, not both.",
-            "two_grids",
-        )
-    if job.custom_grid_id is not None:
-        from registry.geodesy.grid import GridError, resolve_grid
-        from registry.selectors.grids import grid_crs_of
-
-        try:
-            resolve_grid(grid_crs_of(job.custom_grid), frame_epsg=job.frame_epsg)
-        except GridError as exc:
-            raise field_error("custom_grid", str(exc), "invalid_grid") from None
-    if job.grid_spacing_m is not None:
-        site = site_geo.parse_site_geojson(job.site_geojson)
-        try:
-            site_geo.build_site_grid(site, site_geo.site_plane(site), job.grid_spacing_m)
-        except site_geo.SiteError as exc:
-            raise field_error("grid_spacing_m", exc.message, exc.code) from None
+__all__ = ["CREATE_FIELDS", "EDITABLE_FIELDS", "job_create", "job_update"]
 
 
 def job_create(*, actor, data: dict) -> Job:
@@ -280,13 +52,13 @@ def job_create(*, actor, data: dict) -> Job:
         :func:`registry.geodesy.site.parse_site_geojson`.
     """
     require_ability(actor, Ability.MANAGE)
-    cleaned = _clean(data, CREATE_FIELDS)
+    cleaned = clean_job_fields(data, CREATE_FIELDS)
     missing = [f for f in REQUIRED_ON_CREATE if f not in cleaned or cleaned[f] in (None, "")]
     if missing:
         raise ValidationError({f: ValidationError("This field is required.", code="required") for f in missing})
-    values = {**_settings_defaults(), **cleaned}
+    values = {**settings_defaults(), **cleaned}
     job = Job(**values, created_by=actor if getattr(actor, "is_authenticated", False) else None)
-    _validate_whole(job)
+    validate_job(job)
     if Job.objects.filter(code=job.code).exists():
         raise field_error("code", "A job with this code already exists.", "unique")
     try:
@@ -325,7 +97,7 @@ def job_update(*, actor, code: str, expected_version: Any, changes: dict) -> Job
     ones change nothing.
     """
     version = _parse_version(expected_version)
-    cleaned = _clean(changes, EDITABLE_FIELDS)
+    cleaned = clean_job_fields(changes, EDITABLE_FIELDS)
     if not cleaned:
         raise ValidationError("Nothing to change.", code="no_changes")
     conflict: Conflict | None = None
@@ -334,7 +106,7 @@ def job_update(*, actor, code: str, expected_version: Any, changes: dict) -> Job
         candidate = Job.objects.get(pk=job.pk)
         for key, value in cleaned.items():
             setattr(candidate, key, value)
-        _validate_whole(candidate)
+        validate_job(candidate)
         diff = {k: v for k, v in cleaned.items() if getattr(job, k) != v}
         if not diff and job.version == version:
             return job

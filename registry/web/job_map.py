@@ -39,6 +39,7 @@ from registry.geodesy.dms import format_signed_dms
 from registry.geodesy.site import display_utm_zone
 from registry.geodesy.webmercator import tile_width_m
 from registry.services.screening import Candidate, ScreeningResult
+from registry.services.screening.export import service_area_polygons
 from registry.web.basemap import basemap_layer
 
 WIDTH_PX = 760
@@ -96,6 +97,10 @@ class JobMap:
     @property
     def convergence_text(self) -> str:
         return format_signed_dms(self.convergence_deg, decimals=2)
+
+
+#: Dash patterns of the service-area outlines, one per chosen base (told apart in black and white).
+SERVICE_DASHES = ("9 4", "2 3", "12 3 2 3", "5 5", "1 2", "14 6")
 
 
 def _nice_length(target_m: float) -> float:
@@ -362,6 +367,19 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         for rx, ry in rings:
             pts = " ".join(f"{a:.1f},{b:.1f}" for a, b in zip(*px(rx, ry), strict=True))
             out.append(f'<polygon class="site" points="{pts}" fill="none" stroke="#1d1f21" stroke-width="1.8"/>')
+        # One outline per chosen base: the part of the site it serves (registry.services.screening.export).
+        for k, (code, polys) in enumerate(service_area_polygons(result).items()):
+            dash = SERVICE_DASHES[k % len(SERVICE_DASHES)]
+            d = "".join(
+                "M" + "L".join(f"{a:.1f},{b:.1f}" for a, b in zip(*px(*utm(ring[:, 0], ring[:, 1])), strict=True)) + "Z"
+                for poly in polys
+                for ring in poly
+            )
+            out.append(
+                f'<path class="service-area" data-base="{escape(code)}" d="{d}" fill="none" stroke="#2f3b52" '
+                f'stroke-width="2.2" stroke-dasharray="{dash}" fill-rule="evenodd"><title>Served from '
+                f"{escape(code)}</title></path>"
+            )
     else:
         fill = "url(#over-hatch)" if cls[0] == 4 else CLASS_COLOURS[cls[0]]
         out.append(
@@ -479,8 +497,3 @@ def build_job_map(result: ScreeningResult) -> JobMap:
             else 0.0
         ),
     )
-
-
-def job_map_svg(result: ScreeningResult) -> str:
-    """The SVG markup of the job map (a string to put inline in a page)."""
-    return build_job_map(result).svg

@@ -3,7 +3,7 @@ and the export of the chosen bases and check marks (CSV, GeoJSON) for field cont
 
 Views parse input and render; writes go through :mod:`registry.services.jobs`, the screening
 through :mod:`registry.services.screening` (the same calls the API and the command make), cached per
-job and registry state by :mod:`registry.services.screening_cache` so the page and its exports share it.
+job and registry state by :mod:`registry.services.screening.cache` so the page, the API and the exports share it.
 """
 
 from __future__ import annotations
@@ -11,7 +11,6 @@ from __future__ import annotations
 import csv
 import io
 import json
-import math
 
 from django import forms
 from django.contrib import messages
@@ -22,15 +21,19 @@ from django.utils.safestring import mark_safe
 
 from registry.errors import Conflict
 from registry.geodesy import rtk
-from registry.geodesy.frames import frame_info
-from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
+from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.roles import Ability, has_ability
+from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
+from registry.services.job_fields import new_job_defaults
 from registry.services.jobs import CREATE_FIELDS, job_create, job_update
-from registry.services.screening import BUDGET_TERM_DESCRIPTIONS, ScreeningResult
-from registry.services.screening_cache import job_screen_cached
+from registry.services.screening import ScreeningResult
+from registry.services.screening.cache import job_screen_cached
+from registry.services.screening.export import EXPORT_COLUMNS, export_geojson, export_rows
+from registry.services.screening.present import page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.job_map import build_job_map, legend_rows
+from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (
@@ -43,7 +46,13 @@ NUMBER_FIELDS = (
     ("rtk_v_ppm", "RTK vertical, distance part (ppm)"),
     ("setup_h_mm", "Base centring per axis, 1σ (mm)"),
     ("setup_v_mm", "Base antenna height, 1σ (mm)"),
-    ("assumed_rate_mm_yr", "Assumed unmodelled motion without velocity (mm/yr per axis)"),
+    ("rover_h_mm", "Rover pole centring per axis, 1σ (mm)"),
+    ("rover_v_mm", "Rover rod height, 1σ (mm)"),
+    ("assumed_rate_mm_yr", "Assumed unmodelled motion without velocity, dynamic frame (mm/yr per axis)"),
+    (
+        "assumed_rate_plate_fixed_mm_yr",
+        "Assumed unmodelled motion without velocity, plate-fixed frame (mm/yr per axis)",
+    ),
     ("max_baseline_m", "Maximum baseline (m)"),
     ("recovery_years", "A base needs a good visit within (years)"),
     ("grid_spacing_m", "Site grid spacing (m; empty: chosen from the site size)"),
@@ -52,6 +61,8 @@ HELP = {
     "epoch_yr": "e.g. 2025.500",
     "rtk_h_fixed_mm": "Common practice: 8 mm + 1 ppm horizontal, 15 mm + 1 ppm vertical (receiver specifications).",
     "max_baseline_m": "Common practice for single-base RTK: 10 000 m.",
+    "rover_h_mm": "Common practice for a pole with a checked bubble: 2 mm centring, 3 mm rod height.",
+    "assumed_rate_plate_fixed_mm_yr": "A plate-fixed frame takes out the plate's motion; what remains is small.",
 }
 
 
@@ -100,6 +111,19 @@ class JobForm(forms.Form):
         label="The horizontal RTK figure is",
         choices=RtkHorizontalMeaning.choices,
         initial=RtkHorizontalMeaning.PER_AXIS,
+        help_text="1σ per axis is the conservative reading (as 2D RMS the per-axis figure is √2 smaller); choose "
+        "2D RMS only when the receiver's specification says so.",
+    )
+    field_date = forms.CharField(
+        label="Field date (YYYY-MM-DD; empty: the day the screening is run)",
+        required=False,
+        help_text="Base motion relative to the site is counted from the deliverable epoch to this date.",
+    )
+    vertical_deliverable = forms.ChoiceField(
+        label="Heights delivered",
+        choices=VerticalDeliverable.choices,
+        initial=VerticalDeliverable.ELLIPSOIDAL,
+        required=False,
     )
     notes = forms.CharField(label="Notes", required=False, widget=forms.Textarea(attrs={"rows": 3, "cols": 70}))
     version = forms.IntegerField(widget=forms.HiddenInput, required=False)
@@ -148,7 +172,7 @@ class JobForm(forms.Form):
         for n in names:
             value = self.cleaned_data.get(n)
             data[n] = value.strip() if isinstance(value, str) else value
-        for n in ("grid_epsg", "custom_grid", "grid_spacing_m"):
+        for n in ("grid_epsg", "custom_grid", "grid_spacing_m", "field_date"):
             if n in data and data[n] == "":
                 data[n] = None
         if not only_changed:
@@ -168,8 +192,19 @@ class JobForm(forms.Form):
 def _initial(job: Job) -> dict:
     initial = {
         name: getattr(job, name)
-        for name in ("name", "client", "status", "frame_epsg", "grid_epsg", "rtk_combination", "rtk_h_meaning", "notes")
+        for name in (
+            "name",
+            "client",
+            "status",
+            "frame_epsg",
+            "grid_epsg",
+            "rtk_combination",
+            "rtk_h_meaning",
+            "vertical_deliverable",
+            "notes",
+        )
     }
+    initial["field_date"] = "" if job.field_date is None else job.field_date.isoformat()
     initial["grid_epsg"] = "" if job.grid_epsg is None else str(job.grid_epsg)
     initial["custom_grid"] = job.custom_grid_id or ""
     initial["frame_epsg"] = str(job.frame_epsg)
@@ -186,14 +221,10 @@ def _initial(job: Job) -> dict:
 
 @ability_required(Ability.VIEW)
 def job_list(request: HttpRequest) -> HttpResponse:
-    jobs = list(Job.objects.order_by("code"))
-    rows = []
-    for job in jobs:
-        try:
-            frame = frame_info(job.frame_epsg).label
-        except Exception:  # an unknown code stored before validation existed: show the number
-            frame = f"EPSG:{job.frame_epsg}"
-        rows.append({"job": job, "frame": frame, "site_kind": (job.site_geojson or {}).get("type", "?")})
+    rows = [
+        {"job": job, "frame": format_frame(job.frame_epsg), "site_kind": (job.site_geojson or {}).get("type", "?")}
+        for job in jobs_in_order()
+    ]
     return render(
         request, "registry/job_list.html", {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)}
     )
@@ -212,58 +243,27 @@ def _grouped(value: float) -> str:
     return f"{round(value):,d}".replace(",", "\u2009")
 
 
-def _row(c, role: str) -> dict:
-    dh_known = math.isfinite(c.max_dh_m)
-    return {
-        "c": c,
-        "role": role,
-        "budget": c.budget,
-        "coverage_pct": c.coverage * 100,
-        "reasons": [(r, rtk.REASON_WORDS[r]) for r in c.reasons],
-        "dh_m": c.max_dh_m if dh_known else None,
-        "dh_warn": dh_known and c.max_dh_m > rtk.HEIGHT_DIFFERENCE_WARN_M,
-        "base_title": c.base_description() if c.budget else "",
-    }
-
-
 def _screening_context(result: ScreeningResult) -> dict:
-    core = result.core
-    chosen_ids = {id(c) for c in result.chosen}
-    check_ids = {id(cm.candidate) for cm in result.check_marks}
-    usable_rows, excluded_rows = [], []
-    for c in result.candidates:
-        role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
-        (excluded_rows if c.excluded else usable_rows).append(_row(c, role))
-    reason_counts: dict[str, int] = {}
-    for row in excluded_rows:
-        for code, _ in row["reasons"]:
-            reason_counts[code] = reason_counts.get(code, 0) + 1
-    by_reason = [
-        {"code": code, "words": rtk.REASON_WORDS[code], "count": n}
-        for code, n in sorted(reason_counts.items(), key=lambda kv: (-kv[1], kv[0]))
-    ]
+    figures = page_figures(result)
+    usable_rows = figures.pop("usable_rows")
     job_map = build_job_map(result)
     area_m2 = result.grid.area_m2
     return {
         "result": result,
+        **figures,
         "usable_rows": usable_rows[:RANKED_SHOWN],
         "more_usable_rows": usable_rows[RANKED_SHOWN:],
         "ranked_shown": RANKED_SHOWN,
-        "excluded_rows": excluded_rows,
-        "excluded_by_reason": by_reason,
         "usable_count": len(usable_rows),
-        "excluded_count": len(excluded_rows),
+        "excluded_count": len(figures["excluded_rows"]),
         "map_svg": mark_safe(job_map.svg),  # built from escaped values in job_map
         "job_map": job_map,
         "map_span_km": job_map.span_m / 1000.0,
         "legend": legend_rows(result.settings.tol_h_mm),
-        "pair_coverage_pct": None if core is None or result.pair is None else core.pair_coverage * 100,
-        "any_coverage_pct": None if core is None else core.any_coverage * 100,
         "frame_label": result.frame_label,
         "boundary_count": int((~result.grid.is_cell).sum()),
         "area_text": f"{_grouped(area_m2)} m² ({area_m2 / 10_000:.1f} ha)",
         "max_baseline_text": f"{_grouped(result.settings.max_baseline_m)} m",
-        "budget_terms": dict(BUDGET_TERM_DESCRIPTIONS),
         "site_heights_count": len(result.settings.site.heights_m),
         "dh_warn_m": rtk.HEIGHT_DIFFERENCE_WARN_M,
     }
@@ -290,15 +290,7 @@ def job_new(request: HttpRequest) -> HttpResponse:
                 messages.success(request, f"Job {job.code} created (version {job.version}).")
                 return redirect("web:job-detail", code=job.code)
     else:
-        defaults = {f.name: f.default for f in Job._meta.concrete_fields if f.name.startswith(("rtk_", "setup_"))}
-        from django.conf import settings
-
-        cfg = settings.REGISTRY
-        defaults.update(
-            assumed_rate_mm_yr=cfg.get("ASSUMED_RATE_MM_YR", 2.0),
-            max_baseline_m=cfg.get("MAX_BASELINE_M", 10000.0),
-            recovery_years=cfg.get("RECOVERY_YEARS", 10.0),
-        )
+        defaults = new_job_defaults()
         form = JobForm(initial={k: (f"{v:g}" if isinstance(v, float) else v) for k, v in defaults.items()})
     status = 400 if request.method == "POST" else 200
     return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
@@ -349,67 +341,7 @@ def job_edit(request: HttpRequest, code: str) -> HttpResponse:
 
 
 # ----------------------------------------------------------------------------- exports
-
-EXPORT_COLUMNS = (
-    "role",
-    "code",
-    "name",
-    "lat_deg",
-    "lon_deg",
-    "h_m",
-    "frame_epsg",
-    "frame",
-    "epoch_yr",
-    "horizontal_95_mm",
-    "vertical_95_mm",
-    "note",
-)
-
-
-def export_rows(result: ScreeningResult) -> list[dict]:
-    """One row per chosen base and per suggested check mark, in the job's frame at its epoch."""
-    s = result.settings
-    label = result.frame_label
-    rows = []
-    for c in result.chosen:
-        rows.append(
-            {
-                "role": "base",
-                "code": c.mark.code,
-                "name": c.mark.name,
-                "lat_deg": f"{c.lat_deg:.9f}",
-                "lon_deg": f"{c.lon_deg:.9f}",
-                "h_m": f"{c.h_m:.3f}",
-                "frame_epsg": s.frame_epsg,
-                "frame": label,
-                "epoch_yr": f"{s.epoch_yr:.3f}",
-                "horizontal_95_mm": f"{c.h95_mm:.1f}",
-                "vertical_95_mm": f"{c.v95_mm:.1f}",
-                "note": "worst rover 95 % figures over the site from this base; ellipsoidal height",
-            }
-        )
-    for cm in result.check_marks:
-        c = cm.candidate
-        first = cm.allowances[0] if cm.allowances else None
-        rows.append(
-            {
-                "role": "check",
-                "code": c.mark.code,
-                "name": c.mark.name,
-                "lat_deg": f"{c.lat_deg:.9f}",
-                "lon_deg": f"{c.lon_deg:.9f}",
-                "h_m": f"{c.h_m:.3f}",
-                "frame_epsg": s.frame_epsg,
-                "frame": label,
-                "epoch_yr": f"{s.epoch_yr:.3f}",
-                "horizontal_95_mm": "" if first is None else f"{first['horizontal_95_mm']:.1f}",
-                "vertical_95_mm": "" if first is None else f"{first['vertical_95_mm']:.1f}",
-                "note": ""
-                if first is None
-                else f"largest check-shot discrepancy consistent at 95 % from base {first['base']}",
-            }
-        )
-    return rows
+# What the export holds is decided by registry.services.screening.export; these views only write it out.
 
 
 @ability_required(Ability.VIEW)
@@ -427,28 +359,7 @@ def job_export_csv(request: HttpRequest, code: str) -> HttpResponse:
 @ability_required(Ability.VIEW)
 def job_export_geojson(request: HttpRequest, code: str) -> HttpResponse:
     result = job_screen_cached(actor=request.user, code=code)
-    features = []
-    for row in export_rows(result):
-        props = {k: v for k, v in row.items() if k not in ("lat_deg", "lon_deg", "h_m")}
-        features.append(
-            {
-                "type": "Feature",
-                "geometry": {
-                    "type": "Point",
-                    "coordinates": [float(row["lon_deg"]), float(row["lat_deg"]), float(row["h_m"])],
-                },
-                "properties": props,
-            }
-        )
-    body = {
-        "type": "FeatureCollection",
-        "name": f"{code} bases and check marks",
-        "coordinates_note": (
-            f"Longitude, latitude (degrees) and ellipsoidal height (m) in {result.frame_label} at "
-            f"epoch {result.settings.epoch_yr:.3f}, not WGS 84. Verify control in the field before use."
-        ),
-        "features": features,
-    }
+    body = export_geojson(result, name=code)
     response = JsonResponse(body, json_dumps_params={"ensure_ascii": False, "indent": 1})
     response["Content-Type"] = "application/geo+json"
     response["Content-Disposition"] = f'attachment; filename="{code}-control.geojson"'

@@ -21,7 +21,7 @@ from pyproj import Geod
 from scipy import integrate, stats
 
 from registry.geodesy import rtk
-from registry.geodesy.rtk import MarkFacts, RtkErrorModel, rule_reasons, screen_candidates
+from registry.geodesy.rtk import RtkErrorModel, screen_candidates
 from registry.geodesy.site import LocalPlane, build_site_grid, parse_site_geojson, site_plane
 
 # ---------------------------------------------------------------- the RTK error model
@@ -103,20 +103,8 @@ def test_base_sigma_from_covariance_is_largest_eigenvalue():
         assert v == pytest.approx(math.sqrt(uu) * 1e3, rel=1e-12)
 
 
-def test_base_sigma_from_network_accuracy():
-    # FGDC-STD-007.2-1998 K polynomial at C = 1: 1.960790 + 0.004071 + 0.114276 + 0.371625 = 2.450762
-    # (secondary transcription of the coefficients, Geoscience Australia geodesy package); vertical 1.9600
-    # (FGDC Part 2 / NSSDA as printed). [hand] 12.25381 / 2.450762 = 5.000000 mm; 9.8 / 1.96 = 5.000000 mm.
-    h, v = rtk.base_sigma_from_network_accuracy_mm(12.25381, 9.8)
-    assert h == pytest.approx(5.0, abs=1e-6)
-    assert v == pytest.approx(5.0, abs=1e-6)
-    # Not the 2.4477 circle factor: that would give 12.25381 / 2.4477468 = 5.00616 mm (0.12 % off, review S-7).
-    assert rtk.K_H95_NETWORK == pytest.approx(2.450762, abs=1e-9)
-
-
 def test_network_accuracy_round_trip():
-    # σ → FGDC network accuracy (registry.geodesy.accuracy) → σ is exact for circular covariances, and equals the
-    # covariance route of the budget. [hand] σe = σn = 7 mm, σu = 11 mm: r95 = 2.450762 × 7 = 17.155334 mm,
+    # FGDC network accuracy (registry.geodesy.accuracy) of a circular covariance, and the budget's covariance route. [hand] σe = σn = 7 mm, σu = 11 mm: r95 = 2.450762 × 7 = 17.155334 mm,
     # v95 = 1.96 × 11 = 21.56 mm.
     from registry.geodesy import accuracy as acc
 
@@ -124,10 +112,8 @@ def test_network_accuracy_round_trip():
     r95_m, v95_m = acc.network_accuracy_95_m(cov)
     assert r95_m * 1e3 == pytest.approx(17.155334, abs=1e-6)
     assert v95_m * 1e3 == pytest.approx(21.56, abs=1e-9)
-    h, v = rtk.base_sigma_from_network_accuracy_mm(r95_m * 1e3, v95_m * 1e3)
     ch, cv = rtk.base_sigma_from_covariance_mm(cov[0, 0], cov[0, 1], cov[1, 1], cov[2, 2])
-    assert h == pytest.approx(7.0, rel=1e-12) and v == pytest.approx(11.0, rel=1e-12)
-    assert h == pytest.approx(ch, rel=1e-12) and v == pytest.approx(cv, rel=1e-12)
+    assert ch == pytest.approx(7.0, rel=1e-12) and cv == pytest.approx(11.0, rel=1e-12)
 
 
 def test_frame_change_sigma_reading():
@@ -158,9 +144,9 @@ def test_drift_terms():
 def test_error_budget_every_term_by_hand():
     # [hand] d = 5 km, 8 mm + 1 ppm / 15 mm + 1 ppm additive per axis → rtk 13 / 20 mm ([RTK-CP]);
     # base covariance ee = 16e-6, nn = 9e-6, en = 0 m² → √λmax = 4 mm; uu = 36e-6 m² → 6 mm;
-    # drift 2 mm/yr × 2.5 yr = 5 mm both; setup 2 / 3 mm (common practice).
-    # σ_h = √(13² + 4² + 5² + 2²) = √214 = 14.628739 mm → H95 = 2.4477468 × 14.628739 = 35.8074 mm
-    # σ_v = √(20² + 6² + 5² + 3²) = √470 = 21.679483 mm → V95 = 1.959964 × 21.679483 = 42.4910 mm
+    # drift 2 mm/yr × 2.5 yr = 5 mm both; base setup 2 / 3 mm and rover pole 2 / 3 mm (common practice).
+    # σ_h = √(13² + 4² + 5² + 2² + 2²) = √218 = 14.764823 mm → H95 = 2.4477468 × 14.764823 = 36.1405 mm
+    # σ_v = √(20² + 6² + 5² + 3² + 3²) = √479 = 21.886069 mm → V95 = 1.959964 × 21.886069 = 42.8959 mm
     base_h, base_v = rtk.base_sigma_from_covariance_mm(16e-6, 0.0, 9e-6, 36e-6)
     drift = rtk.drift_sigma_mm(2.5)
     b = rtk.error_budget_mm(
@@ -170,64 +156,20 @@ def test_error_budget_every_term_by_hand():
     assert b["base"] == {"h": pytest.approx(4.0), "v": pytest.approx(6.0)}
     assert b["drift"] == {"h": pytest.approx(5.0), "v": pytest.approx(5.0)}
     assert b["setup"] == {"h": pytest.approx(2.0), "v": pytest.approx(3.0)}
-    assert b["sigma_h"] == pytest.approx(math.sqrt(214))
-    assert b["h95"] == pytest.approx(35.8074, abs=1e-4)
-    assert b["sigma_v"] == pytest.approx(math.sqrt(470))
-    assert b["v95"] == pytest.approx(42.4910, abs=1e-4)
+    assert b["rover"] == {"h": pytest.approx(2.0), "v": pytest.approx(3.0)}
+    assert b["sigma_h"] == pytest.approx(math.sqrt(218))
+    assert b["h95"] == pytest.approx(36.1405, abs=1e-4)
+    assert b["sigma_v"] == pytest.approx(math.sqrt(479))
+    assert b["v95"] == pytest.approx(42.8959, abs=1e-4)
 
 
 def test_error_budget_drms_and_rss_options():
     # [hand] drms: 18 mm 2D RMS at 10 km → 18/√2 = 12.7279 mm per axis; RSS: √(8² + 10²) = 12.8062 mm.
-    m = RtkErrorModel(h_meaning="drms", setup_h_mm=0, setup_v_mm=0)
+    m = RtkErrorModel(h_meaning="drms", setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     b = rtk.error_budget_mm(10_000.0, model=m, base_h_mm=0, base_v_mm=0, drift_h_mm=0, drift_v_mm=0)
     assert b["rtk"]["h"] == pytest.approx(18 / math.sqrt(2))
     m2 = RtkErrorModel(combination="rss")
     assert m2.rtk_h_axis_mm(10_000.0) == pytest.approx(math.sqrt(164))
-
-
-# ---------------------------------------------------------------- exclusion rules, one by one
-
-GOOD = MarkFacts(
-    status="active",
-    sky_view="clear",
-    last_visit_condition="intact",
-    years_since_good_visit=2.0,
-    has_published_position=True,
-    transformable=True,
-)
-
-
-@pytest.mark.parametrize(
-    "change, reason",
-    [
-        ({"status": "retired"}, "not_active"),
-        ({"status": "destroyed"}, "not_active"),
-        ({"last_visit_condition": "disturbed"}, "last_visit_disturbed"),
-        ({"last_visit_condition": "destroyed"}, "last_visit_destroyed"),
-        ({"last_visit_condition": "searched_not_found"}, "last_visit_not_found"),
-        ({"years_since_good_visit": 10.01}, "no_recent_good_visit"),
-        ({"years_since_good_visit": None}, "no_recent_good_visit"),
-        ({"has_published_position": False, "transformable": None}, "no_published_position"),
-        ({"transformable": False}, "frame_not_transformable"),
-        ({"sky_view": "obstructed"}, "sky_obstructed"),
-    ],
-)
-def test_each_rule_alone(change, reason):
-    from dataclasses import replace
-
-    assert rule_reasons(GOOD, recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, **change), recovery_years=10) == [reason]
-    assert reason in rtk.REASON_WORDS
-
-
-def test_rule_edges():
-    from dataclasses import replace
-
-    # Exactly at the recovery limit still counts; a poor last visit alone does not exclude;
-    # partial sky view does not exclude.
-    assert rule_reasons(replace(GOOD, years_since_good_visit=10.0), recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, last_visit_condition="damaged"), recovery_years=10) == []
-    assert rule_reasons(replace(GOOD, sky_view="partial"), recovery_years=10) == []
 
 
 def _zero_terms(k):
@@ -235,9 +177,10 @@ def _zero_terms(k):
     return dict(base_h_mm=z, base_v_mm=z, drift_h_mm=z, drift_v_mm=z, usable=np.ones(k, bool))
 
 
-def test_beyond_max_baseline_excludes_on_any_site_point():
+def test_max_baseline_applies_per_site_point():
     # Site points at 0 and 9 km east; candidates at 0.5 km west and at 1.5 km west:
-    # farthest baselines 9.5 km (inside 10 km) and 10.5 km (beyond).
+    # farthest baselines 9.5 km (inside 10 km) and 10.5 km (beyond). The second still serves the point
+    # at 0 (1.5 km away), so it stays eligible, with half the site covered and no claim to the whole.
     pe = np.array([0.0, 9000.0])
     pn = np.zeros(2)
     core = screen_candidates(
@@ -253,9 +196,30 @@ def test_beyond_max_baseline_excludes_on_any_site_point():
         **_zero_terms(2),
     )
     assert core.max_distance_m.tolist() == pytest.approx([9500.0, 10500.0])
+    assert core.beyond_baseline.tolist() == [False, False]
+    assert core.reaches_site.tolist() == [True, False]
+    assert core.eligible.tolist() == [True, True]
+    assert core.coverage.tolist() == pytest.approx([1.0, 0.5])
+    assert core.order.tolist() == [0, 1]
+
+
+def test_a_base_with_no_site_point_within_the_baseline_is_excluded():
+    # Site point at 0; candidate at 10 000 m (equality: within) and at 10 000.5 m (beyond).
+    core = screen_candidates(
+        np.zeros(1),
+        np.zeros(1),
+        np.ones(1, bool),
+        np.array([10_000.0, 10_000.5]),
+        np.zeros(2),
+        model=RtkErrorModel(),
+        tol_h_mm=1000,
+        tol_v_mm=1000,
+        max_baseline_m=10_000,
+        **_zero_terms(2),
+    )
     assert core.beyond_baseline.tolist() == [False, True]
     assert core.eligible.tolist() == [True, False]
-    assert core.order.tolist() == [0, 1]
+    assert core.coverage.tolist() == [1.0, 0.0]
 
 
 # ---------------------------------------------------------------- coverage with a known answer
@@ -293,7 +257,9 @@ def test_square_site_corner_base_analytic_coverage(radius_m):
     n = 400  # fine planar grid of cell centres: 5 m cells
     xs = (np.arange(n) + 0.5) * L / n
     gx, gy = np.meshgrid(xs, xs)
-    model = RtkErrorModel(h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0)
+    model = RtkErrorModel(
+        h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0
+    )
     tol_h = rtk.K_H95 * (5 + 5 * radius_m / 1000)
     core = screen_candidates(
         gx.ravel(),
@@ -327,7 +293,9 @@ def test_square_site_from_geojson_end_to_end():
     grid = build_site_grid(site, sp)
     assert 400 <= grid.n_cells <= 2500
     ce, cn = sp.to_local_m(lat[0], lon[0])
-    model = RtkErrorModel(h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0)
+    model = RtkErrorModel(
+        h_fixed_mm=5, h_ppm=5, v_fixed_mm=5, v_ppm=0, setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0
+    )
     r = 1500.0
     core = screen_candidates(
         grid.e_m,
@@ -381,8 +349,8 @@ def test_planar_screening_matches_geodesic_brute_force():
         _, _, d = geod.inv(np.full(g_lat.size, c_lon[i]), np.full(g_lat.size, c_lat[i]), g_lon, g_lat)
         assert core.max_distance_m[i] == pytest.approx(d.max(), rel=1e-5)
         assert core.min_distance_m[i] == pytest.approx(d.min(), rel=1e-5, abs=0.05)
-        h95 = rtk.K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + 3**2 + 4**2 + 2**2)
-        v95 = rtk.K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + 5**2 + 4**2 + 3**2)
+        h95 = rtk.K_H95 * np.sqrt(model.rtk_h_axis_mm(d) ** 2 + 3**2 + 4**2 + 2**2 + 2**2)  # + base setup, rover pole
+        v95 = rtk.K_V95 * np.sqrt(model.rtk_v_mm(d) ** 2 + 5**2 + 4**2 + 3**2 + 3**2)
         assert core.worst_h95_mm[i] == pytest.approx(h95.max(), abs=1e-4)
         ok = (h95 <= 40) & (v95 <= 55)
         assert core.coverage[i] == pytest.approx(ok[grid.is_cell].mean(), abs=2 / grid.n_cells)
@@ -411,10 +379,11 @@ def test_ranking_full_coverage_first_then_margin():
     )
     assert core.order.tolist()[:2] == [1, 0]
     assert set(core.order.tolist()[2:]) == {2, 3}
-    # [hand] at 1 km: H95 = 2.4477·√(9² + 2²) = 22.567 mm; V95 = 1.96·√(16² + 3²) = 31.906 mm.
-    assert core.worst_h95_mm[1] == pytest.approx(rtk.K_H95 * math.sqrt(85), rel=1e-9)
-    assert core.worst_v95_mm[1] == pytest.approx(rtk.K_V95 * math.sqrt(265), rel=1e-9)
-    assert core.margin_mm[1] == pytest.approx(min(50 - 22.5672, 60 - 31.9057), abs=1e-3)
+    # [hand] at 1 km: H95 = 2.4477·√(9² + 2² + 2²) = 23.092 mm; V95 = 1.96·√(16² + 3² + 3²) = 32.443 mm
+    # (base setup and rover pole).
+    assert core.worst_h95_mm[1] == pytest.approx(rtk.K_H95 * math.sqrt(89), rel=1e-9)
+    assert core.worst_v95_mm[1] == pytest.approx(rtk.K_V95 * math.sqrt(274), rel=1e-9)
+    assert core.margin_mm[1] == pytest.approx(min(50 - 23.0920, 60 - 32.4434), abs=1e-3)
     assert core.achievable_h95_mm == pytest.approx(core.worst_h95_mm[1])
 
 
@@ -429,7 +398,7 @@ def test_best_pair_covers_a_long_site_no_single_base_does():
     pe, pn = gx.ravel(), gy.ravel()
     ce = np.array([0.0, 6000.0, 3000.0, -300.0])
     cn = np.array([250.0, 250.0, 250.0, 250.0])
-    model = RtkErrorModel(setup_h_mm=0, setup_v_mm=0)
+    model = RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     core = screen_candidates(
         pe,
         pn,
@@ -467,7 +436,7 @@ def test_no_pair_when_a_second_base_adds_no_coverage():
         np.ones(pe.size, bool),
         np.array([0.0, 15500.0]),
         np.array([250.0, 250.0]),
-        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0),
+        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0),
         tol_h_mm=27.0,
         tol_v_mm=1000,
         max_baseline_m=20_000,
@@ -493,7 +462,7 @@ def test_farthest_point_selection_spreads():
 
 def test_check_shot_allowance_by_hand():
     # [hand] base at 2 km: rtk 10 / 17 mm; base 3 / 5; base drift 2 / 2; base setup 2 / 3; rover centring and rod
-    # height on the check mark 2 / 3 (the same setup figures, common practice); check mark 4 / 6, drift 1 / 1;
+    # height on the check mark 2 / 3 (the job's rover figures, common practice); check mark 4 / 6, drift 1 / 1;
     # base and check independent (no cross-covariance stored).
     # H = 2.4477468·√(100 + 9 + 4 + 4 + 4 + 16 + 1) = 2.4477468·√138 = 28.7545 mm
     # V = 1.959964·√(289 + 25 + 4 + 9 + 9 + 36 + 1) = 1.959964·√373 = 37.8532 mm
@@ -511,10 +480,10 @@ def test_check_shot_allowance_by_hand():
     )
     assert h == pytest.approx(28.7545, abs=1e-4)
     assert v == pytest.approx(37.8532, abs=1e-4)
-    # Without any setup error the rover-centring term goes too: [hand] H = 2.4477468·√130 = 27.9086 mm.
+    # Without base setup and rover pole errors: [hand] H = 2.4477468·√130 = 27.9086 mm.
     h0, _ = rtk.check_shot_allowance_mm(
         2000.0,
-        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0),
+        model=RtkErrorModel(setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0),
         base_h_mm=3,
         base_v_mm=5,
         base_drift_h_mm=2,

@@ -39,8 +39,8 @@ def test_job_json(marks):
         "reasons",
         "budget",
     }
-    assert cand["code"] == "NB-1" and cand["horizontal_95_mm"] == 23.7  # hand value 23.7318 (service test)
-    assert [b["term"] for b in cand["budget"]] == ["rtk", "base", "drift", "setup"]
+    assert cand["code"] == "NB-1" and cand["horizontal_95_mm"] == 24.2  # hand value 24.2315 (service test)
+    assert [b["term"] for b in cand["budget"]] == ["rtk", "base", "drift", "motion", "setup", "rover", "geoid"]
     assert all(b["description"] for b in cand["budget"])
     assert cand["coverage_words"] == "covers site" and cand["max_height_difference_m"] is None
     assert "best_pair" in data and [c["code"] for c in data["check_marks"]] == ["CK-1"]
@@ -82,8 +82,8 @@ def test_ad_hoc(marks, tmp_path):
         )
     )
     assert data["job"] is None and data["settings"]["rtk_combination"] == "rss"
-    # RSS at 1 km: hand value 21.6179 mm (service test) → 21.6
-    assert data["candidates"][0]["horizontal_95_mm"] == 21.6
+    # RSS at 1 km: hand value 22.1653 mm (service test) → 22.2
+    assert data["candidates"][0]["horizontal_95_mm"] == 22.2
 
 
 def test_refusals(db, tmp_path):

@@ -104,15 +104,17 @@ def test_budget_of_a_near_base_by_hand(viewer):
     assert not c.excluded and c.rank == 1
     assert c.distance_m == pytest.approx(1000.0, rel=1e-5)
     # [hand] rtk at 1 km: 8 + 1 = 9 mm (H per axis), 15 + 1 = 16 mm (V); base 3 / 5; drift 0 (same frame and
-    # epoch); setup 2 / 3. σ_h = √(81 + 9 + 0 + 4) = √94 = 9.69536 → H95 = 2.4477468·9.69536 = 23.7318 mm;
-    # σ_v = √(256 + 25 + 0 + 9) = √290 = 17.02939 → V95 = 1.959964·17.02939 = 33.3770 mm.
+    # epoch); motion to the field date ≈ 0 (as-of date 2025-07-01 ≈ epoch 2025.5); base setup 2 / 3 and rover
+    # pole 2 / 3 (common practice). σ_h = √(81 + 9 + 4 + 4) = √98 = 9.89949 → H95 = 2.4477468·9.89949 = 24.2315 mm;
+    # σ_v = √(256 + 25 + 9 + 9) = √299 = 17.29162 → V95 = 1.959964·17.29162 = 33.8909 mm.
     assert c.budget["rtk"]["h"] == pytest.approx(9.0, abs=1e-3) and c.budget["rtk"]["v"] == pytest.approx(
         16.0, abs=1e-3
     )
     assert c.budget["base"] == {"h": pytest.approx(3.0), "v": pytest.approx(5.0)}
     assert c.budget["drift"] == {"h": 0.0, "v": 0.0}
-    assert c.h95_mm == pytest.approx(23.7318, abs=2e-3)
-    assert c.v95_mm == pytest.approx(33.3770, abs=2e-3)
+    assert c.budget["rover"] == {"h": 2.0, "v": 3.0}
+    assert c.h95_mm == pytest.approx(24.2315, abs=2e-3)
+    assert c.v95_mm == pytest.approx(33.8909, abs=2e-3)
     assert c.covers_site and c.coverage == 1.0
     assert r.chosen == [c]
     # Distance and azimuth from the site (geodesic, pyproj Geod): the mark was placed 1000 m at azimuth 0°.
@@ -121,8 +123,8 @@ def test_budget_of_a_near_base_by_hand(viewer):
     assert "covers the whole site" in r.statement
     d = r.as_dict()
     row = d["candidates"][0]
-    assert row["code"] == "NB-1" and row["horizontal_95_mm"] == 23.7 and row["vertical_95_mm"] == 33.4
-    assert [b["term"] for b in row["budget"]] == ["rtk", "base", "drift", "setup"]
+    assert row["code"] == "NB-1" and row["horizontal_95_mm"] == 24.2 and row["vertical_95_mm"] == 33.9
+    assert [b["term"] for b in row["budget"]] == ["rtk", "base", "drift", "motion", "setup", "rover", "geoid"]
     assert row["excluded"] is False and row["reasons"] == []
 
 
@@ -173,8 +175,8 @@ def test_drift_with_assumed_rate_and_with_velocity(viewer):
     make_mark("VE-1", 2000.0, 180.0, epoch=2015.5, velocity=(0.001, -0.002, 0.0005), vel_sigma=(0.0003, 0.0004, 0.001))
     make_job()
     r = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))
-    # [hand] assumed 2 mm/yr (common practice) × 10 yr = 20 mm per axis.
-    assert r["AR-1"].budget["drift"] == {"h": pytest.approx(20.0), "v": pytest.approx(20.0)}
+    # [hand] NAD83(2011) is plate-fixed: the job's plate-fixed assumed rate 0.5 mm/yr × 10 yr = 5 mm per axis.
+    assert r["AR-1"].budget["drift"] == {"h": pytest.approx(5.0), "v": pytest.approx(5.0)}
     # [hand] velocity σ × 10 yr: max(0.3, 0.4) mm/yr → 4 mm horizontal; 1 mm/yr → 10 mm vertical.
     assert r["VE-1"].budget["drift"] == {"h": pytest.approx(4.0), "v": pytest.approx(10.0)}
     # The position was propagated along its velocity: 10 yr × 2 mm/yr south ≈ 2 cm (1.8e-7° of latitude).
@@ -215,10 +217,10 @@ def test_polygon_site_pair_and_check_marks(viewer):
     assert 400 <= r.grid.n_cells <= 2500
     assert {c.mark.code for c in r.pair} == {"WE-1", "EA-1"}
     assert not any(c.covers_site for c in r.candidates)
-    # [hand] coverage radius of an end base: 2.4477468·√((8 + d_km)² + 3² + 2²) ≤ 27 →
-    # d = √((27/2.4477468)² − 13) − 8 = 2.42485 km. From x = ±3050 m it reaches x = ±(3050 − √(r² − y²)),
+    # [hand] coverage radius of an end base: 2.4477468·√((8 + d_km)² + 3² + 2² + 2²) ≤ 27 (base, base setup,
+    # rover pole) → d = √((27/2.4477468)² − 17) − 8 = 2.23099 km. From x = ±3050 m it reaches x = ±(3050 − √(r² − y²)),
     # so the covered fraction of the strip is the mean over y ∈ [−200, 200] of (√(r² − y²) − 50)/3000.
-    rad = math.sqrt((27 / K_H) ** 2 - 13) * 1000 - 8000
+    rad = math.sqrt((27 / K_H) ** 2 - 17) * 1000 - 8000
     ys = [(-200 + 400 * (i + 0.5) / 1000) for i in range(1000)]
     expected = sum((math.sqrt(rad**2 - y * y) - 50) / 3000 for y in ys) / len(ys)
     assert r.core.pair_coverage == pytest.approx(expected, abs=0.02)
@@ -281,8 +283,9 @@ def test_ad_hoc_site(viewer):
         as_of=AS_OF,
     )
     c = r.candidates[0]
-    # [hand] RSS at 1 km: √(8² + 1²) = 8.0623 mm; σ_h = √(65 + 9 + 4) = √78 → H95 = 2.4477468·8.83176 = 21.6179 mm
-    assert c.h95_mm == pytest.approx(21.6179, abs=2e-3)
+    # [hand] RSS at 1 km: √(8² + 1²) = 8.0623 mm; σ_h = √(65 + 9 + 4 + 4) = √82 → H95 = 2.4477468·9.05539
+    # = 22.1653 mm (base, base setup, rover pole)
+    assert c.h95_mm == pytest.approx(22.1653, abs=2e-3)
     assert r.as_dict()["job"] is None
     with pytest.raises(ValidationError) as info:
         site_screen(actor=viewer, data={"site_geojson": {"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}})

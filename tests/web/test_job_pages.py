@@ -54,7 +54,7 @@ def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
     assert 'Excluded marks: <span class="num">2</span>' in excluded
     assert 'not_active <span class="num">1</span>' in excluded and "sky_obstructed" in excluded
     assert 'data-code="OLD-1"' in excluded and 'data-code="SKY-1"' in excluded
-    assert "the mark is not active (retired, destroyed or suspect)" in excluded
+    assert "the mark is retired or recorded destroyed" in excluded
     assert "<details open" not in body  # collapsed: readable without JavaScript, one click to open
     assert "Local codes, agency specifications and licensed professional practice govern" in body
     assert "/jobs/J-WEB/control.csv" in body and "/jobs/J-WEB/control.geojson" in body
@@ -214,9 +214,9 @@ def _counting_screen():
     """Patch the screening with a wrapper that counts calls and still runs the real computation."""
     from unittest import mock
 
-    from registry.services import screening
+    from registry.services.screening import run
 
-    return mock.patch.object(screening, "job_screen", wraps=screening.job_screen)
+    return mock.patch.object(run, "job_screen", wraps=run.job_screen)
 
 
 def test_job_page_and_exports_share_one_screening(client, viewer, scenario, empty_cache):
@@ -270,7 +270,7 @@ def test_any_audited_write_invalidates_the_cached_screening(client, viewer, tech
 def test_cache_key_follows_as_of_and_settings(viewer, scenario, settings, empty_cache):
     import datetime as dt
 
-    from registry.services.screening_cache import screening_cache_key
+    from registry.services.screening.cache import screening_cache_key
 
     job = Job.objects.get(code="J-WEB")
     key = screening_cache_key(job, dt.date(2025, 7, 1))

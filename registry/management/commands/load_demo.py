@@ -280,6 +280,7 @@ class Command(BaseCommand):
                 tol_h_mm=j.tol_h_mm,
                 tol_v_mm=j.tol_v_mm,
                 notes=j.notes,
+                field_date=j.field_date,
                 created_by=manager,
             )
             for j in scenario.jobs

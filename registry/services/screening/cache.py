@@ -1,6 +1,6 @@
-"""Cached base screening of a stored job, for the job page and its CSV/GeoJSON exports (review S-11).
+"""Cached base screening of a stored job, for the job page, the API and the CSV/GeoJSON exports.
 
-A job page view and each export used to run the whole screening (:func:`registry.services.screening.job_screen`).
+A job page view and each export used to run the whole screening (:func:`registry.services.screening.run.job_screen`).
 The result depends only on the job's row, the registry's marks, positions and visits, the ``as_of`` date and
 the registry settings, so it is cached with Django's cache framework under a key made of:
 
@@ -12,7 +12,7 @@ the registry settings, so it is cached with Django's cache framework under a key
 * a digest of ``settings.REGISTRY`` (``PLATE`` and every other registry setting), so changing a setting
   and restarting never serves a result computed under the old one.
 
-What is cached is the :class:`~registry.services.screening.ScreeningResult` itself (it pickles: plain
+What is cached is the :class:`~registry.services.screening.result.ScreeningResult` itself (it pickles: plain
 dataclasses, numpy arrays and model instances; about 0.2–0.3 MB for the demo jobs). The permission check
 runs on every call, before the cache is read: a cached result is never shown to someone who may not view.
 
@@ -34,8 +34,9 @@ from django.core.cache import cache
 from registry.models import AuditEvent
 from registry.roles import Ability
 from registry.selectors.conversion import configured_plate
-from registry.services import screening
 from registry.services.access import access_job_by_code
+from registry.services.screening import run as screening
+from registry.services.screening.result import ScreeningResult
 
 #: How long a cached screening is kept (s). The key changes on any audited write anyway; this only bounds
 #: how long an unaudited change (admin site, SQL) can go unseen.
@@ -66,8 +67,8 @@ def screening_cache_key(job, as_of: dt.date) -> str:
     return f"{KEY_PREFIX}:{digest}"  # short, no spaces: valid for every cache backend
 
 
-def job_screen_cached(*, actor, code: str, as_of: dt.date | None = None) -> screening.ScreeningResult:
-    """:func:`~registry.services.screening.job_screen`, cached (same permission check, same result).
+def job_screen_cached(*, actor, code: str, as_of: dt.date | None = None) -> ScreeningResult:
+    """:func:`~registry.services.screening.run.job_screen`, cached (same permission check, same result).
 
     Parameters
     ----------

@@ -1,0 +1,96 @@
+"""Reads for base screening: the candidate marks around a site and the records the rules need.
+
+One query per kind of record, whatever the number of marks (no query per mark): the marks
+through the nearby-search selector (:func:`registry.selectors.nearby.marks_near`), then their
+visits and published positions for all of them at once.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+
+from django.db.models import Max, Q
+
+from registry.models import Finding, HeightMethod, HeightRecord, Mark, Position, PositionState, Visit
+
+
+@dataclass
+class MarkRecords:
+    """What the registry holds about one candidate mark, as of the screening date.
+
+    ``published``: its positions published as of the date (:func:`published_as_of`), newest
+    coordinate epoch first (ties: newest id).
+    ``last_visit_finding``: the finding of its latest visit on or before the date (None: no visit).
+    ``last_intact_on``: the day of its latest ``intact`` visit on or before the date (None: none).
+    """
+
+    mark: Mark
+    last_visit_finding: str | None
+    last_intact_on: dt.date | None
+    published: list[Position] = field(default_factory=list)
+
+
+def published_as_of(mark_ids, as_of: dt.date):
+    """The positions of ``mark_ids`` that were published at the end of ``as_of`` (UTC).
+
+    Published on or before that day (``decided_at``; a published position without a recorded
+    decision time counts as always published) and not yet superseded then. A position withdrawn
+    since is left out whatever the date (its publication time is no longer recorded): the
+    registry does not screen with coordinates it has taken back.
+    """
+    end = dt.datetime.combine(as_of + dt.timedelta(days=1), dt.time.min, tzinfo=dt.UTC)
+    published_then = Q(decided_at__isnull=True) | Q(decided_at__lt=end)
+    still = Q(state=PositionState.PUBLISHED) | Q(
+        state=PositionState.SUPERSEDED, superseded_at__isnull=False, superseded_at__gte=end
+    )
+    return Position.objects.filter(published_then & still, mark_id__in=mark_ids)
+
+
+def screening_records(
+    *, lat_deg: float, lon_deg: float, radius_m: float, as_of: dt.date, limit: int
+) -> list[MarkRecords]:
+    """The marks within ``radius_m`` of (``lat_deg``, ``lon_deg``), nearest first, with their records."""
+    from registry.selectors.nearby import marks_near
+
+    found = marks_near(lat_deg=lat_deg, lon_deg=lon_deg, radius_m=radius_m, limit=limit, as_of=as_of)
+    marks = [nm.mark for nm in found]
+    ids = [m.pk for m in marks]
+    last_visit: dict[int, str] = {}
+    for mark_id, finding in (
+        Visit.objects.filter(mark_id__in=ids, visited_on__lte=as_of)
+        .order_by("mark_id", "-visited_on", "-created_at", "-id")
+        .values_list("mark_id", "finding")
+    ):
+        last_visit.setdefault(mark_id, finding)
+    last_good = dict(
+        Visit.objects.filter(mark_id__in=ids, finding=Finding.INTACT, visited_on__lte=as_of)
+        .values("mark_id")
+        .annotate(last=Max("visited_on"))
+        .values_list("mark_id", "last")
+    )
+    positions: dict[int, list[Position]] = {}
+    for p in published_as_of(ids, as_of).order_by("mark_id", "-epoch_yr", "-id"):
+        positions.setdefault(p.mark_id, []).append(p)
+    return [
+        MarkRecords(
+            mark=m,
+            last_visit_finding=last_visit.get(m.pk),
+            last_intact_on=last_good.get(m.pk),
+            published=positions.get(m.pk, []),
+        )
+        for m in marks
+    ]
+
+
+def preferred_heights(mark_ids) -> dict[int, HeightRecord]:
+    """Per mark, its current orthometric height record to deliver: a levelled one before a geoid-derived one
+    (a levelled height does not carry the geoid model's error), then the smallest σ, then the newest."""
+    best: dict[int, HeightRecord] = {}
+    rank = {HeightMethod.LEVELLED: 0, HeightMethod.GEOID: 1}
+    for h in HeightRecord.objects.filter(mark_id__in=list(mark_ids), current=True).order_by("-created_at", "-pk"):
+        key = (rank.get(h.method, 2), h.sigma_m)
+        have = best.get(h.mark_id)
+        if have is None or key < (rank.get(have.method, 2), have.sigma_m):
+            best[h.mark_id] = h
+    return best
