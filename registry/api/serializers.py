@@ -29,6 +29,7 @@ from registry.models import (
     SkyView,
     Stability,
 )
+from registry.services import position_rules
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
 LATLON_DECIMALS = 9
@@ -342,18 +343,45 @@ class PositionProposeInput(serializers.Serializer):
     lat_deg = serializers.FloatField(min_value=-90, max_value=90)
     lon_deg = serializers.FloatField(min_value=-180, max_value=180)
     h_m = serializers.FloatField(help_text="Ellipsoidal height, m.")
-    cov_ee_m2 = serializers.FloatField(min_value=0, help_text="East variance, m².")
-    cov_nn_m2 = serializers.FloatField(min_value=0, help_text="North variance, m².")
-    cov_uu_m2 = serializers.FloatField(min_value=0, help_text="Up variance, m².")
+    cov_ee_m2 = serializers.FloatField(
+        min_value=0, max_value=position_rules.VARIANCE_MAX_M2, help_text="East variance, m² (> 0; σ ≤ 100 m)."
+    )
+    cov_nn_m2 = serializers.FloatField(
+        min_value=0, max_value=position_rules.VARIANCE_MAX_M2, help_text="North variance, m² (> 0; σ ≤ 100 m)."
+    )
+    cov_uu_m2 = serializers.FloatField(
+        min_value=0, max_value=position_rules.VARIANCE_MAX_M2, help_text="Up variance, m² (> 0; σ ≤ 100 m)."
+    )
     cov_en_m2 = serializers.FloatField(required=False, default=0.0)
     cov_eu_m2 = serializers.FloatField(required=False, default=0.0)
     cov_nu_m2 = serializers.FloatField(required=False, default=0.0)
-    vel_e_m_yr = serializers.FloatField(required=False, allow_null=True)
-    vel_n_m_yr = serializers.FloatField(required=False, allow_null=True)
-    vel_u_m_yr = serializers.FloatField(required=False, allow_null=True)
-    vel_sigma_e_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
-    vel_sigma_n_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
-    vel_sigma_u_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
+    vel_e_m_yr = serializers.FloatField(
+        required=False,
+        allow_null=True,
+        min_value=-position_rules.VELOCITY_MAX_M_YR,
+        max_value=position_rules.VELOCITY_MAX_M_YR,
+    )
+    vel_n_m_yr = serializers.FloatField(
+        required=False,
+        allow_null=True,
+        min_value=-position_rules.VELOCITY_MAX_M_YR,
+        max_value=position_rules.VELOCITY_MAX_M_YR,
+    )
+    vel_u_m_yr = serializers.FloatField(
+        required=False,
+        allow_null=True,
+        min_value=-position_rules.VELOCITY_MAX_M_YR,
+        max_value=position_rules.VELOCITY_MAX_M_YR,
+    )
+    vel_sigma_e_m_yr = serializers.FloatField(
+        required=False, allow_null=True, min_value=0, max_value=position_rules.VELOCITY_MAX_M_YR
+    )
+    vel_sigma_n_m_yr = serializers.FloatField(
+        required=False, allow_null=True, min_value=0, max_value=position_rules.VELOCITY_MAX_M_YR
+    )
+    vel_sigma_u_m_yr = serializers.FloatField(
+        required=False, allow_null=True, min_value=0, max_value=position_rules.VELOCITY_MAX_M_YR
+    )
     source = serializers.CharField(max_length=200)
     note = serializers.CharField(required=False, allow_blank=True)
 

@@ -16,10 +16,8 @@ and epoch. Changing the search location does not bump the mark's edit version.
 
 from __future__ import annotations
 
-from functools import lru_cache
 from typing import Any
 
-import numpy as np
 from django.core.exceptions import ValidationError
 from django.db import IntegrityError, transaction
 from django.utils import timezone
@@ -27,6 +25,7 @@ from django.utils import timezone
 from registry.errors import Conflict
 from registry.models import Mark, MarkStatus, Position, PositionState
 from registry.roles import Ability
+from registry.services import position_rules as rules
 from registry.services._input import (
     check_keys,
     field_error,
@@ -42,9 +41,9 @@ from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
 from registry.services.suspect import lift_suspicion
 
-COV_FIELDS = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
-VEL_FIELDS = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
-VEL_SIGMA_FIELDS = ("vel_sigma_e_m_yr", "vel_sigma_n_m_yr", "vel_sigma_u_m_yr")
+COV_FIELDS = rules.COV_FIELDS
+VEL_FIELDS = rules.VEL_FIELDS
+VEL_SIGMA_FIELDS = rules.VEL_SIGMA_FIELDS
 PROPOSE_FIELDS = (
     "frame_epsg",
     "epoch_yr",
@@ -70,30 +69,6 @@ _RANGES = {
         "Coordinate epoch must be a decimal year between 1900 and 2100.",
     ),
 }
-# Largest variance accepted (σ = 100 m): beyond that a value is a unit mistake (mm² for m²...),
-# not a coordinate anyone should find in a control registry.
-MAX_VARIANCE_M2 = 100.0**2
-# A covariance matrix may have an eigenvalue this far below zero (relative to its
-# largest) and still count as positive semi-definite: rounding of published values.
-_PSD_RELATIVE_TOLERANCE = 1e-9
-
-
-@lru_cache(maxsize=256)
-def _frame_problem(frame_epsg: int) -> str | None:
-    """Why ``frame_epsg`` cannot carry a position, or ``None`` when it is a geographic 3D CRS."""
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
-
-    try:
-        crs = CRS.from_epsg(frame_epsg)
-    except CRSError:
-        return f"EPSG:{frame_epsg} is not a coordinate reference system known to PROJ."
-    if not crs.is_geographic or len(crs.axis_info) != 3:
-        return (
-            f"EPSG:{frame_epsg} ({crs.name}) is a {crs.type_name}; a position needs a geographic 3D CRS "
-            "(latitude, longitude, ellipsoidal height), e.g. EPSG:7912 or EPSG:6319."
-        )
-    return None
 
 
 def _parse_position(data: Any) -> dict[str, Any]:
@@ -121,57 +96,16 @@ def _parse_position(data: Any) -> dict[str, Any]:
         raise merge_errors(*errors)
 
     if out["frame_epsg"] is not None:
-        problem = _frame_problem(out["frame_epsg"])
+        problem = rules.frame_problem(out["frame_epsg"])
         if problem:
             errors.append(field_error("frame_epsg", problem, "frame_not_geographic_3d"))
     for name, (lo, hi, code, message) in _RANGES.items():
         if not lo <= out[name] <= hi:
             errors.append(field_error(name, message, code, value=out[name]))
-    for name in ("cov_ee_m2", "cov_nn_m2", "cov_uu_m2"):
-        if out[name] < 0:
-            errors.append(field_error(name, "A variance cannot be negative.", "negative_variance"))
-        elif out[name] > MAX_VARIANCE_M2:
-            errors.append(
-                field_error(
-                    name,
-                    "A variance above %(limit)s m² (σ = 100 m) is refused; covariances are in m².",
-                    "variance_too_large",
-                    limit=MAX_VARIANCE_M2,
-                )
-            )
-    for name in VEL_SIGMA_FIELDS:
-        if out[name] is not None and out[name] < 0:
-            errors.append(field_error(name, "A sigma cannot be negative.", "negative_sigma"))
-    given = [out[n] is not None for n in VEL_FIELDS]
-    if any(given) and not all(given):
-        errors.append(field_error("vel_e_m_yr", "Give all three velocity components or none.", "velocity_incomplete"))
-    if not any(given) and any(out[n] is not None for n in VEL_SIGMA_FIELDS):
-        errors.append(
-            field_error("vel_sigma_e_m_yr", "Velocity sigmas need a velocity.", "velocity_sigma_without_velocity")
-        )
+    problems = rules.covariance_problems(out) + rules.velocity_problems(out, out)
+    errors.extend(field_error(p.field, p.message, p.code, **p.params) for p in problems)
     if errors:
         raise merge_errors(*errors)
-
-    cov = np.array(
-        [
-            [out["cov_ee_m2"], out["cov_en_m2"], out["cov_eu_m2"]],
-            [out["cov_en_m2"], out["cov_nn_m2"], out["cov_nu_m2"]],
-            [out["cov_eu_m2"], out["cov_nu_m2"], out["cov_uu_m2"]],
-        ]
-    )
-    if not np.any(cov):
-        raise field_error(
-            "cov_ee_m2",
-            "Give the uncertainty of the coordinates; a position held fixed in an adjustment still has one.",
-            "covariance_zero",
-        )
-    eig = np.linalg.eigvalsh(cov)
-    if eig[0] < -_PSD_RELATIVE_TOLERANCE * eig[-1]:
-        raise field_error(
-            "cov_ee_m2",
-            "The east/north/up covariance is not positive semi-definite (check the correlations).",
-            "covariance_not_psd",
-        )
     return out
 
 

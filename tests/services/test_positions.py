@@ -70,9 +70,14 @@ def test_propose_accepts_numbers_as_text(mark, technician):
             "negative_sigma",
         ),
         # |ρ| > 1 between east and north: not a covariance matrix.
-        ({"cov_en_m2": 0.005 * 0.005 * 1.5}, "cov_ee_m2", "covariance_not_psd"),
+        ({"cov_en_m2": 0.005 * 0.005 * 1.5}, "cov_ee_m2", "covariance_not_positive_definite"),
         ({"cov_ee_m2": 0.0, "cov_nn_m2": 0.0, "cov_uu_m2": 0.0}, "cov_ee_m2", "covariance_zero"),
         ({"cov_uu_m2": 1.0e6}, "cov_uu_m2", "variance_too_large"),  # σ = 1 km: a unit mistake
+        ({"cov_uu_m2": 1.0e4 * (1 + 1e-12)}, "cov_uu_m2", "variance_too_large"),  # just above σ = 100 m
+        ({"cov_uu_m2": 0.0}, "cov_uu_m2", "zero_variance"),  # exported positions must re-import
+        ({"vel_e_m_yr": 1.5, "vel_n_m_yr": 0.0, "vel_u_m_yr": 0.0}, "vel_e_m_yr", "velocity_too_large"),
+        # rank-2 matrix (ρ_en = 1): semi-definite only
+        ({"cov_en_m2": 0.005 * 0.005}, "cov_ee_m2", "covariance_not_positive_definite"),
         ({"source": "a\x00b"}, "source", "null_characters_not_allowed"),
         ({"note": ["not", "text"]}, "note", "invalid_type"),
         ({"lat": 45.0}, "lat", "unknown_field"),
