@@ -17,11 +17,32 @@ from rest_framework.views import APIView
 from registry.api.marks import ERROR_RESPONSES, request_body
 from registry.api.pagination import RegistryPagination
 from registry.api.permissions import IsManager
-from registry.api.serializers import DecisionInput, ErrorSerializer, PositionProposeInput, PositionSerializer
+from registry.api.serializers import (
+    DecisionInput,
+    ErrorSerializer,
+    MovementCheckSerializer,
+    MovementComparisonSerializer,
+    PositionProposeInput,
+    PositionSerializer,
+    PublishedPositionSerializer,
+    PublishInput,
+)
 from registry.models import Position, PositionState
 from registry.roles import Ability, has_ability
 from registry.services.access import access_mark_by_code, access_position_by_id
-from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
+from registry.services.movement import (
+    comparison_target,
+    latest_check,
+    movement_compare,
+    stored_check_dict,
+)
+from registry.services.positions import (
+    AS_PROPOSED,
+    position_propose,
+    position_publish,
+    position_reject,
+    position_withdraw,
+)
 
 STATE_CONFLICT = OpenApiResponse(
     ErrorSerializer, description="The position is not in a state that allows this (code invalid_state)."
@@ -117,14 +138,50 @@ _DECISION_RESPONSES = {200: PositionSerializer, 409: STATE_CONFLICT, **ERROR_RES
 
 
 class PositionPublishView(_DecisionView):
-    """``POST /api/positions/<id>/publish/``: publish a proposed position; supersedes the one before."""
+    """``POST /api/positions/<id>/publish/``: publish a proposed position; supersedes the one before.
 
-    @extend_schema(operation_id="positions_publish", request=DecisionInput, responses=_DECISION_RESPONSES)
+    The answer carries the movement check stored with the decision (``movement_check``).
+    """
+
+    @extend_schema(
+        operation_id="positions_publish",
+        request=PublishInput,
+        responses={
+            200: PublishedPositionSerializer,
+            409: OpenApiResponse(
+                ErrorSerializer,
+                description=(
+                    "Not a proposed position (invalid_state), the mark is destroyed (mark_destroyed), or the mark's "
+                    "published position changed since the comparison (compared_with_changed)."
+                ),
+            ),
+            **ERROR_RESPONSES,
+        },
+    )
     def post(self, request, position_id: int):
-        return super().post(request, position_id)
+        body = request_body(request)
+        compared_with = body["compared_with"] if "compared_with" in body else AS_PROPOSED
+        position = position_publish(
+            actor=request.user, position_id=position_id, note=body.get("note", ""), compared_with=compared_with
+        )
+        data = _position_out(position.pk)
+        check = latest_check(position.pk, "published")
+        data["movement_check"] = None if check is None else MovementCheckSerializer(stored_check_dict(check)).data
+        return Response(data)
 
-    def decide(self, request, position_id: int):
-        return position_publish(actor=request.user, position_id=position_id, note=request_body(request).get("note", ""))
+
+class PositionMovementView(APIView):
+    """``GET /api/positions/<id>/movement-check/``: compare with the mark's published position now, and the stored checks."""
+
+    @extend_schema(
+        operation_id="positions_movement_check",
+        responses={200: MovementComparisonSerializer, 401: ERROR_RESPONSES[401], 404: ERROR_RESPONSES[404]},
+    )
+    def get(self, request, position_id: int):
+        position = access_position_by_id(request.user, position_id)
+        current = movement_compare(position=position, published=comparison_target(position))
+        stored = [stored_check_dict(c) for c in position.movement_checks.order_by("-created_at", "-id")]
+        return Response(MovementComparisonSerializer({"current": current.as_dict(), "stored": stored}).data)
 
 
 class PositionRejectView(_DecisionView):

@@ -42,6 +42,11 @@ urlpatterns = [
     path("marks/<str:code>/attachments/", fieldwork_api.MarkAttachmentsView.as_view(), name="mark-attachments"),
     path("positions/<int:position_id>/", positions_api.PositionDetailView.as_view(), name="position-detail"),
     re_path(
+        r"^positions/(?P<position_id>[0-9]+)/movement-check/?$",
+        positions_api.PositionMovementView.as_view(),
+        name="position-movement-check",
+    ),
+    re_path(
         r"^positions/(?P<position_id>[0-9]+)/publish/?$",
         positions_api.PositionPublishView.as_view(),
         name="position-publish",

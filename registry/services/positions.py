@@ -23,7 +23,7 @@ from django.db import IntegrityError, transaction
 from django.utils import timezone
 
 from registry.errors import Conflict
-from registry.models import Mark, MarkStatus, Position, PositionState
+from registry.models import CheckStage, Mark, MarkStatus, MovementVerdict, Position, PositionState
 from registry.roles import Ability
 from registry.services import position_rules as rules
 from registry.services._input import (
@@ -39,7 +39,14 @@ from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
 from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
-from registry.services.suspect import lift_suspicion
+from registry.services.movement import (
+    check_summary,
+    comparison_target,
+    latest_check,
+    movement_check_store,
+    movement_compare,
+)
+from registry.services.suspect import lift_suspicion, mark_make_suspect
 
 COV_FIELDS = rules.COV_FIELDS
 VEL_FIELDS = rules.VEL_FIELDS
@@ -131,7 +138,7 @@ def _require_state(position: Position, *allowed: str, action: str) -> None:
         )
 
 
-def position_propose(*, actor, mark_code: str, data: dict) -> Position:
+def position_propose(*, actor, mark_code: str, data: dict, suspect_on_movement: bool = True) -> Position:
     """Record a proposed position of a mark (technician or manager).
 
     ``data``: ``frame_epsg`` (geographic 3D CRS), ``epoch_yr``, ``lat_deg``, ``lon_deg``,
@@ -139,6 +146,10 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
     ``cov_nn_m2``, ``cov_uu_m2`` required; ``cov_en_m2``, ``cov_eu_m2``, ``cov_nu_m2``
     default 0), optional velocity (all three of ``vel_e_m_yr``, ``vel_n_m_yr``,
     ``vel_u_m_yr``, with optional sigmas) and ``source``, optional ``note``.
+
+    The movement check against the mark's published position is stored (``services.movement``); when
+    it shows possible movement the mark becomes suspect, unless ``suspect_on_movement`` is False (only
+    :func:`position_propose_and_publish`, which publishes in the same transaction and so answers it).
     """
     cleaned = _parse_position(data)
     with transaction.atomic():
@@ -152,18 +163,53 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
         check_text_limits(position)
         position.full_clean()
         position.save(force_insert=True)
-        audit_record(actor=actor, action="position_propose", obj=position, after=snapshot(position), mark=mark)
+        check = movement_check_store(
+            outcome=movement_compare(position=position, published=comparison_target(position)),
+            stage=CheckStage.PROPOSED,
+            actor=actor,
+        )
+        audit_record(
+            actor=actor,
+            action="position_propose",
+            obj=position,
+            after={**snapshot(position), **check_summary(check)},
+            mark=mark,
+        )
+        if suspect_on_movement and check.verdict == MovementVerdict.POSSIBLE_MOVEMENT:
+            mark_make_suspect(
+                mark=mark,
+                reason=(
+                    f"position {position.pk}, proposed on {timezone.now().date().isoformat()}, differs from the "
+                    f"published position {check.compared_with_id} more than their uncertainties allow "
+                    "(possible movement)"
+                ),
+                since=timezone.now().date(),
+                actor=actor,
+            )
     return position
 
 
-def position_publish(*, actor, position_id: int, note: str = "") -> Position:
+#: ``compared_with`` not given: the published position of the check stored when the position was proposed.
+AS_PROPOSED: Any = object()
+
+
+def position_publish(*, actor, position_id: int, note: str = "", compared_with: Any = AS_PROPOSED) -> Position:
     """Publish a proposed position (manager); supersede the earlier one of the same mark and frame.
+
+    ``compared_with`` names the published position (id, or None for "none") the manager compared the
+    proposal with; by default the one of the check stored when it was proposed. If the mark's published
+    position is another one now (someone published meanwhile), publishing is refused
+    (``compared_with_changed``): look at the new comparison and decide again. The movement check is run
+    again under the mark's lock and stored with the decision; against "possible movement" a ``note`` (the
+    reason) is required (``movement_note_required``). The audit row keeps the check's verdict, T and p.
 
     A suspect mark becomes active again (a new position answers the suspicion; ``services.suspect``);
     the change is recorded in the ``position_publish`` audit row (``mark_status`` and the suspicion
     before and after) and bumps the mark's version.
     """
     note = parse_note(note, required=False)
+    if compared_with is not AS_PROPOSED and compared_with is not None:
+        compared_with = parse_int({"compared_with": compared_with}, "compared_with")
     with transaction.atomic():
         position = access_position_by_id(actor, position_id, ability=Ability.MANAGE, for_update=True)
         mark = Mark.objects.select_for_update().get(pk=position.mark_id)
@@ -172,6 +218,33 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             raise Conflict(
                 f"Mark {mark.code} is recorded as destroyed; its positions cannot be published.",
                 code="mark_destroyed",
+            )
+        target = comparison_target(position)
+        if compared_with is AS_PROPOSED:
+            stored = latest_check(position.pk, CheckStage.PROPOSED)
+            expected = stored.compared_with_id if stored is not None else (target.pk if target else None)
+        else:
+            expected = compared_with
+        current = target.pk if target else None
+        if expected != current:
+            raise Conflict(
+                f"Position {position.pk} was compared with "
+                + (f"published position {expected}" if expected else "no published position")
+                + f", but the published position of {mark.code} is now "
+                + (f"position {current}" if current else "none")
+                + ". Someone decided in between: look at the new comparison and decide again.",
+                code="compared_with_changed",
+                details={"compared_with": expected, "published_now": current},
+            )
+        check = movement_check_store(
+            outcome=movement_compare(position=position, published=target), stage=CheckStage.PUBLISHED, actor=actor
+        )
+        if check.verdict == MovementVerdict.POSSIBLE_MOVEMENT and not note:
+            raise field_error(
+                "note",
+                "The movement check shows possible movement against the published position; give the reason "
+                "for publishing anyway.",
+                "movement_note_required",
             )
         now = timezone.now()
         previous = (
@@ -213,6 +286,7 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             "supersedes_id": previous.pk if previous else None,
             "search_lat_deg": lat,
             "search_lon_deg": lon,
+            **check_summary(check),
         }
         lifted = lift_suspicion(mark)
         if lifted is not None:
@@ -229,6 +303,13 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
         )
         documents_mark_changed(mark, f"position published in EPSG:{position.frame_epsg}", actor=actor)
     return position
+
+
+def position_propose_and_publish(*, actor, mark_code: str, data: dict, note: str) -> Position:
+    """Propose and publish at once (imports): both checks stored and audited, the publish rules apply."""
+    with transaction.atomic():
+        proposed = position_propose(actor=actor, mark_code=mark_code, data=data, suspect_on_movement=False)
+        return position_publish(actor=actor, position_id=proposed.pk, note=note)
 
 
 def position_reject(*, actor, position_id: int, note: str) -> Position:

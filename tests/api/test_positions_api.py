@@ -59,7 +59,11 @@ def test_publish_then_supersede_through_the_api(mark, technician, manager, api_c
     assert published.status_code == 200 and published.json()["state"] == "published"
     assert published.json()["decided_by"] == "mona"
     second = propose(tech, epoch_yr=2024.5, lat_deg=45.2012346)
-    assert boss.post(f"/api/positions/{second['id']}/publish", format="json").status_code == 200  # no trailing slash
+    # invented data: 4.5 years of plate motion are missing from it, so the movement check asks for a reason
+    refused = boss.post(f"/api/positions/{second['id']}/publish/", {}, format="json")
+    assert assert_error_shape(refused, 400, "invalid")["details"]["note"][0]["code"] == "movement_note_required"
+    reason = {"note": "Invented data, published regardless."}
+    assert boss.post(f"/api/positions/{second['id']}/publish", reason, format="json").status_code == 200  # no slash
     old = boss.get(f"/api/positions/{first['id']}/").json()
     assert old["state"] == "superseded" and old["superseded_by"] == second["id"] and old["superseded_at"]
     detail = boss.get("/api/marks/QR-101/").json()
@@ -90,7 +94,11 @@ def test_withdraw_falls_back_to_the_other_frame(mark, technician, manager, api_c
     itrf = propose(tech)
     nad = propose(tech, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
     boss.post(f"/api/positions/{itrf['id']}/publish/", format="json")
-    boss.post(f"/api/positions/{nad['id']}/publish/", format="json")
+    # nad was proposed when nothing was published: it names what it was compared with
+    stale = boss.post(f"/api/positions/{nad['id']}/publish/", {"note": "x"}, format="json")
+    assert assert_error_shape(stale, 409, "compared_with_changed")["details"]["published_now"] == itrf["id"]
+    body = {"note": "Invented data, published regardless.", "compared_with": itrf["id"]}
+    assert boss.post(f"/api/positions/{nad['id']}/publish/", body, format="json").status_code == 200
     assert boss.get("/api/marks/QR-101/").json()["search_location"]["frame_epsg"] == NAD83_2011_EPSG
     response = boss.post(f"/api/positions/{nad['id']}/withdraw/", {"note": "Wrong antenna (invented)"}, format="json")
     assert response.status_code == 200 and response.json()["state"] == "withdrawn"
