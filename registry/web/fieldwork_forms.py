@@ -299,8 +299,26 @@ class DecisionForm(forms.Form):
     note = forms.CharField(
         widget=forms.Textarea(attrs={"rows": 3}),
         required=False,
-        help_text="The reason (required to reject or withdraw; recorded in the history).",
+        help_text=(
+            "The reason (required to reject or withdraw, and to publish against a possible movement; "
+            "recorded in the history)."
+        ),
     )
+    # The published position shown on the page when the manager decided ("none": nothing was published).
+    compared_with = forms.CharField(widget=forms.HiddenInput, required=False)
+
+    @staticmethod
+    def compared_with_value(position) -> str:
+        return "none" if position is None else str(position.pk)
+
+    def compared_with_id(self):
+        """The position id the page showed, None for "none", or the service's default when absent."""
+        from registry.services.positions import AS_PROPOSED
+
+        raw = (self.cleaned_data.get("compared_with") or "").strip()
+        if raw == "none":
+            return None
+        return int(raw) if raw.isdigit() else AS_PROPOSED
 
 
 # ----------------------------------------------------------------------------- mark status

@@ -26,7 +26,11 @@ pytestmark = pytest.mark.django_db
 S = 0.005**2  # (5 mm)²
 BOUNDARY_CASES = {
     # σ exactly at the bound on every axis
-    "BC-001": {"cov_ee_m2": rules.VARIANCE_MAX_M2, "cov_nn_m2": rules.VARIANCE_MAX_M2, "cov_uu_m2": rules.VARIANCE_MAX_M2},
+    "BC-001": {
+        "cov_ee_m2": rules.VARIANCE_MAX_M2,
+        "cov_nn_m2": rules.VARIANCE_MAX_M2,
+        "cov_uu_m2": rules.VARIANCE_MAX_M2,
+    },
     # a 1 µm σ: its σ column rounds to 0.00 mm, the covariance is authoritative
     "BC-002": {"cov_ee_m2": 1e-12, "cov_nn_m2": 1e-12, "cov_uu_m2": 1e-12},
     # almost singular: ρ_en = 0.999999, still positive definite

@@ -132,7 +132,13 @@ def test_publish_sets_state_decider_and_search_location(mark, manager, technicia
 
 def test_publishing_again_in_the_same_frame_supersedes_in_one_step(mark, manager, technician):
     first = make_published(manager, technician)
-    second = make_published(manager, technician, lat_deg=45.2012346, epoch_yr=2024.5, publish_note="invented data: published regardless of the movement check")
+    second = make_published(
+        manager,
+        technician,
+        lat_deg=45.2012346,
+        epoch_yr=2024.5,
+        publish_note="invented data: published regardless of the movement check",
+    )
     first.refresh_from_db()
     assert first.state == PositionState.SUPERSEDED
     assert first.superseded_by_id == second.pk
@@ -146,7 +152,12 @@ def test_publishing_again_in_the_same_frame_supersedes_in_one_step(mark, manager
 def test_another_frame_does_not_supersede_and_the_search_location_follows_the_latest(mark, manager, technician):
     itrf = make_published(manager, technician)
     nad83 = make_published(
-        manager, technician, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233, publish_note="invented data: published regardless of the movement check"
+        manager,
+        technician,
+        frame_epsg=NAD83_2011_EPSG,
+        lat_deg=45.20122,
+        lon_deg=-110.60233,
+        publish_note="invented data: published regardless of the movement check",
     )
     itrf.refresh_from_db()
     assert itrf.state == nad83.state == PositionState.PUBLISHED
@@ -156,7 +167,12 @@ def test_another_frame_does_not_supersede_and_the_search_location_follows_the_la
 def test_withdrawing_the_driving_position_falls_back_then_clears(mark, manager, technician):
     itrf = make_published(manager, technician)
     nad83 = make_published(
-        manager, technician, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233, publish_note="invented data: published regardless of the movement check"
+        manager,
+        technician,
+        frame_epsg=NAD83_2011_EPSG,
+        lat_deg=45.20122,
+        lon_deg=-110.60233,
+        publish_note="invented data: published regardless of the movement check",
     )
     with pytest.raises(ValidationError) as info:
         position_withdraw(actor=manager, position_id=nad83.pk, note="")
@@ -218,7 +234,12 @@ def test_orm_guard_refuses_to_edit_a_published_position(mark, manager, technicia
 def test_database_trigger_refuses_raw_sql_updates(mark, manager, technician, state):
     first = make_published(manager, technician)
     if state == "superseded":
-        make_published(manager, technician, epoch_yr=2024.0, publish_note="invented data: published regardless of the movement check")
+        make_published(
+            manager,
+            technician,
+            epoch_yr=2024.0,
+            publish_note="invented data: published regardless of the movement check",
+        )
     table = Position._meta.db_table
     with pytest.raises(DatabaseError):
         with transaction.atomic(), connection.cursor() as cursor:
