@@ -116,6 +116,11 @@ def _parse_position(data: Any) -> dict[str, Any]:
     return out
 
 
+def position_validate(data: Any) -> dict[str, Any]:
+    """The checked values of a position given as ``position_propose`` takes them (nothing is stored)."""
+    return _parse_position(data)
+
+
 def _refresh_search_location(mark_id: int) -> tuple[float | None, float | None]:
     """Point the mark's search location at its most recently published position (or clear it)."""
     latest = (
