@@ -161,3 +161,33 @@ def test_notes_with_null_characters_and_huge_ids(mark, technician, manager, api_
     assert_error_shape(boss.get("/api/positions/99999999999999999999999/"), 404, "not_found")
     assert_error_shape(boss.post("/api/positions/99999999999999999999999/publish/", format="json"), 404, "not_found")
     assert Position.objects.get().state == PositionState.PROPOSED
+
+
+def test_publish_returns_the_stored_movement_check_and_the_comparison_endpoint(
+    mark, technician, manager, viewer, api_client_for
+):
+    tech, boss = api_client_for(technician), api_client_for(manager)
+    first = propose(tech)
+    published = boss.post(f"/api/positions/{first['id']}/publish/", {"compared_with": None}, format="json").json()
+    assert (
+        published["movement_check"]["verdict"] == "not_compared"
+        and published["movement_check"]["compared_with"] is None
+    )
+    second = propose(tech, lat_deg=45.2012345678 + 0.001 / 111_132)  # 1 mm north, same frame and epoch
+    check = api_client_for(viewer).get(f"/api/positions/{second['id']}/movement-check/").json()
+    current = check["current"]
+    assert current["compared_with"] == first["id"] and current["verdict"] == "no_movement"
+    assert current["d_north_mm"] == pytest.approx(1.0, abs=0.01) and current["dof"] == 3
+    assert set(current["detectable_mm"]) == {"east", "north", "up"}
+    assert [c["stage"] for c in check["stored"]] == ["proposed"]
+    done = boss.post(f"/api/positions/{second['id']}/publish/", {"compared_with": first["id"]}, format="json")
+    assert done.status_code == 200 and done.json()["movement_check"]["stage"] == "published"
+    assert done.json()["movement_check"]["t_global"] == pytest.approx(current["t_global"])
+
+
+def test_publish_with_a_bad_compared_with_is_a_400(mark, technician, manager, api_client_for):
+    first = propose(api_client_for(technician))
+    response = api_client_for(manager).post(
+        f"/api/positions/{first['id']}/publish/", {"compared_with": "yesterday"}, format="json"
+    )
+    assert assert_error_shape(response, 400, "invalid")["details"]["compared_with"][0]["code"] == "invalid_integer"
