@@ -9,6 +9,7 @@ from __future__ import annotations
 from django.core.exceptions import ValidationError
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
+from rest_framework import serializers
 from rest_framework import status as http_status
 from rest_framework.permissions import SAFE_METHODS, BasePermission
 from rest_framework.response import Response
@@ -29,6 +30,7 @@ from registry.api.serializers import (
 )
 from registry.models import Position, PositionState
 from registry.roles import Ability, has_ability
+from registry.selectors.proposals import proposals_queue
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.movement import (
     comparison_target,
@@ -206,3 +208,49 @@ class PositionWithdrawView(_DecisionView):
         return position_withdraw(
             actor=request.user, position_id=position_id, note=request_body(request).get("note", "")
         )
+
+
+class ProposalQueueItemSerializer(serializers.Serializer):
+    mark = serializers.CharField()
+    mark_status = serializers.CharField()
+    stability = serializers.CharField(allow_blank=True)
+    suspect_since = serializers.DateField(allow_null=True)
+    suspect_reason = serializers.CharField(allow_blank=True)
+    position = PositionSerializer(allow_null=True)
+    movement_check = MovementCheckSerializer(allow_null=True)
+    recent_visits = serializers.ListField(child=serializers.DictField())
+    source_occupations = serializers.ListField(child=serializers.IntegerField())
+
+
+class ProposalQueueView(APIView):
+    """``GET /api/proposals/``: proposed positions (oldest first) and suspect marks without one (managers)."""
+
+    permission_classes = [IsManager]
+
+    @extend_schema(
+        operation_id="proposals_list",
+        responses={
+            200: ProposalQueueItemSerializer(many=True),
+            401: ERROR_RESPONSES[401],
+            403: ERROR_RESPONSES[403],
+        },
+    )
+    def get(self, request):
+        out = []
+        for item in proposals_queue():
+            out.append(
+                {
+                    "mark": item.mark.code,
+                    "mark_status": item.mark.status,
+                    "stability": item.mark.stability or "",
+                    "suspect_since": item.mark.suspect_since,
+                    "suspect_reason": item.mark.suspect_reason or "",
+                    "position": item.position,
+                    "movement_check": stored_check_dict(item.check) if item.check else None,
+                    "recent_visits": [
+                        {"visited_on": v.visited_on.isoformat(), "finding": v.finding} for v in item.visits
+                    ],
+                    "source_occupations": [o.pk for o in item.occupations],
+                }
+            )
+        return Response(ProposalQueueItemSerializer(out, many=True).data)

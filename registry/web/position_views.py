@@ -88,6 +88,9 @@ def position_decide(request: HttpRequest, code: str, position_id: int, action: s
                 position.refresh_from_db()
             else:
                 messages.success(request, f"Position {position.pk} of {mark.code} {PAST[action]}.")
+                back = request.POST.get("next", "")
+                if back == reverse("web:proposals"):  # the queue's forms come back to the queue
+                    return redirect(back)
                 return redirect(reverse("web:mark-detail", kwargs={"code": mark.code}) + f"#position-{position.pk}")
         else:
             status = 400
