@@ -59,3 +59,11 @@ def test_queue_api(kestrel, manager, viewer, api_client_for):
     mine = [i for i in items if i["position"] and i["position"]["id"] == kestrel["proposed"].pk]
     assert len(mine) == 1 and mine[0]["movement_check"]["verdict"] == "no_movement"
     assert mine[0]["recent_visits"][0] == {"visited_on": "2024-04-18", "finding": "intact"}
+
+
+@pytest.mark.django_db
+def test_occupation_row_shows_its_result_compared_with_the_published_position(kestrel, signed_in, viewer):
+    # the scenario's occupation produced the 2020 position, which was proposed against the 2009 one
+    page = signed_in(viewer).get(reverse("web:mark-detail", kwargs={"code": "KV-001"})).content.decode()
+    section = page[page.index('id="h-occupations"') :]
+    assert "possible movement</strong> against position" in section and "T = " in section
