@@ -32,6 +32,7 @@ from registry.models import Position, PositionState
 from registry.roles import Ability, has_ability
 from registry.selectors.proposals import proposals_queue
 from registry.services.access import access_mark_by_code, access_position_by_id
+from registry.services.combination import positions_combine, positions_velocity
 from registry.services.movement import (
     comparison_target,
     latest_check,
@@ -254,3 +255,32 @@ class ProposalQueueView(APIView):
                 }
             )
         return Response(ProposalQueueItemSerializer(out, many=True).data)
+
+
+class CombineInput(serializers.Serializer):
+    position_ids = serializers.ListField(child=serializers.IntegerField(), help_text="the solutions to use")
+    velocity = serializers.BooleanField(
+        required=False, default=False, help_text="fit position and velocity (≥ 3 solutions over ≥ 2.5 yr)"
+    )
+
+
+class MarkCombineView(APIView):
+    """``POST /api/marks/<code>/combine/``: propose the weighted combination (or velocity fit) of solutions."""
+
+    permission_classes = [IsManager]
+
+    @extend_schema(
+        operation_id="marks_positions_combine",
+        request=CombineInput,
+        responses={201: PositionSerializer, **ERROR_RESPONSES},
+    )
+    def post(self, request, code: str):
+        body = request_body(request)
+        service = positions_velocity if body.get("velocity") is True else positions_combine
+        ids = body.get("position_ids")
+        if not isinstance(ids, list):
+            raise ValidationError(
+                {"position_ids": ValidationError("Give a list of position ids.", code="invalid_type")}
+            )
+        proposal, _ = service(actor=request.user, mark_code=code, position_ids=ids)
+        return Response(_position_out(proposal.pk), status=http_status.HTTP_201_CREATED)
