@@ -191,7 +191,10 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
     )
     ridge.refresh_from_db()  # (movement checks made it suspect; publishing and a clearance made it active again)
     ridge = mark_update(
-        actor=manager, code="KV-001", expected_version=ridge.version, changes={"keeper": "Kestrel Valley Survey Office, Room 4"}
+        actor=manager,
+        code="KV-001",
+        expected_version=ridge.version,
+        changes={"keeper": "Kestrel Valley Survey Office, Room 4"},
     )
     ridge.refresh_from_db()
     bridge.refresh_from_db()
