@@ -202,7 +202,8 @@ def position_publish(*, actor, position_id: int, note: str = "", compared_with: 
     """Publish a proposed position (manager); supersede the earlier one of the same mark and frame.
 
     ``compared_with`` names the published position (id, or None for "none") the manager compared the
-    proposal with; by default the one of the check stored when it was proposed. If the mark's published
+    proposal with; by default the one of the check stored when it was proposed (a proposal recorded
+    before checks were stored, e.g. by ``load_demo``, has none: then the current one is taken). If the mark's published
     position is another one now (someone published meanwhile), publishing is refused
     (``compared_with_changed``): look at the new comparison and decide again. The movement check is run
     again under the mark's lock and stored with the decision; against "possible movement" a ``note`` (the
