@@ -269,6 +269,14 @@ REGISTRY = {
     # user's browser; checked at start (registry.W020). Empty: no basemap. Attribution shown in the caption.
     "BASEMAP_URL": os.environ.get("REGISTRY_BASEMAP_URL", "").strip(),
     "BASEMAP_ATTRIBUTION": os.environ.get("REGISTRY_BASEMAP_ATTRIBUTION", "").strip(),
+    # Movement check (registry/services/movement.py): level α of the one global 3D test, the power for the
+    # smallest detectable movement (Baarda 1968), and the office's threshold for that detectable movement
+    # ("horizontal,vertical" in mm): above it the check says it could not have seen such a movement.
+    "MOVEMENT_LEVEL": float(os.environ.get("REGISTRY_MOVEMENT_LEVEL", "0.05")),
+    "MOVEMENT_POWER": float(os.environ.get("REGISTRY_MOVEMENT_POWER", "0.80")),
+    "MOVEMENT_DETECTABLE_MM": tuple(
+        float(v) for v in os.environ.get("REGISTRY_MOVEMENT_DETECTABLE_MM", "20,40").split(",")[:2]
+    ),
     "MAX_BASELINE_M": float(os.environ.get("REGISTRY_MAX_BASELINE_M", "10000")),
     # A RINEX header whose approximate position is farther than this from the mark's published position
     # is refused (registry/services/rinex.py explains the 100 m default).

@@ -21,14 +21,17 @@ from rest_framework import serializers
 from registry.geodesy.accuracy import fgdc_horizontal_95_m, vertical_95_m
 from registry.models import (
     POSITION_FROZEN_FIELDS,
+    CheckStage,
     Mark,
     MarkStatus,
     MonumentKind,
+    MovementVerdict,
     Position,
     PositionState,
     SkyView,
     Stability,
 )
+from registry.services import position_rules
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
 LATLON_DECIMALS = 9
@@ -342,21 +345,113 @@ class PositionProposeInput(serializers.Serializer):
     lat_deg = serializers.FloatField(min_value=-90, max_value=90)
     lon_deg = serializers.FloatField(min_value=-180, max_value=180)
     h_m = serializers.FloatField(help_text="Ellipsoidal height, m.")
-    cov_ee_m2 = serializers.FloatField(min_value=0, help_text="East variance, m².")
-    cov_nn_m2 = serializers.FloatField(min_value=0, help_text="North variance, m².")
-    cov_uu_m2 = serializers.FloatField(min_value=0, help_text="Up variance, m².")
+    cov_ee_m2 = serializers.FloatField(
+        min_value=0, max_value=position_rules.VARIANCE_MAX_M2, help_text="East variance, m² (> 0; σ ≤ 100 m)."
+    )
+    cov_nn_m2 = serializers.FloatField(
+        min_value=0, max_value=position_rules.VARIANCE_MAX_M2, help_text="North variance, m² (> 0; σ ≤ 100 m)."
+    )
+    cov_uu_m2 = serializers.FloatField(
+        min_value=0, max_value=position_rules.VARIANCE_MAX_M2, help_text="Up variance, m² (> 0; σ ≤ 100 m)."
+    )
     cov_en_m2 = serializers.FloatField(required=False, default=0.0)
     cov_eu_m2 = serializers.FloatField(required=False, default=0.0)
     cov_nu_m2 = serializers.FloatField(required=False, default=0.0)
-    vel_e_m_yr = serializers.FloatField(required=False, allow_null=True)
-    vel_n_m_yr = serializers.FloatField(required=False, allow_null=True)
-    vel_u_m_yr = serializers.FloatField(required=False, allow_null=True)
-    vel_sigma_e_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
-    vel_sigma_n_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
-    vel_sigma_u_m_yr = serializers.FloatField(required=False, allow_null=True, min_value=0)
+    vel_e_m_yr = serializers.FloatField(
+        required=False,
+        allow_null=True,
+        min_value=-position_rules.VELOCITY_MAX_M_YR,
+        max_value=position_rules.VELOCITY_MAX_M_YR,
+    )
+    vel_n_m_yr = serializers.FloatField(
+        required=False,
+        allow_null=True,
+        min_value=-position_rules.VELOCITY_MAX_M_YR,
+        max_value=position_rules.VELOCITY_MAX_M_YR,
+    )
+    vel_u_m_yr = serializers.FloatField(
+        required=False,
+        allow_null=True,
+        min_value=-position_rules.VELOCITY_MAX_M_YR,
+        max_value=position_rules.VELOCITY_MAX_M_YR,
+    )
+    vel_sigma_e_m_yr = serializers.FloatField(
+        required=False, allow_null=True, min_value=0, max_value=position_rules.VELOCITY_MAX_M_YR
+    )
+    vel_sigma_n_m_yr = serializers.FloatField(
+        required=False, allow_null=True, min_value=0, max_value=position_rules.VELOCITY_MAX_M_YR
+    )
+    vel_sigma_u_m_yr = serializers.FloatField(
+        required=False, allow_null=True, min_value=0, max_value=position_rules.VELOCITY_MAX_M_YR
+    )
     source = serializers.CharField(max_length=200)
     note = serializers.CharField(required=False, allow_blank=True)
 
 
 class DecisionInput(serializers.Serializer):
     note = serializers.CharField(required=False, allow_blank=True, help_text="Reason; required to reject or withdraw.")
+
+
+class PublishInput(serializers.Serializer):
+    note = serializers.CharField(
+        required=False, allow_blank=True, help_text="Reason; required when the movement check shows possible movement."
+    )
+    compared_with = serializers.IntegerField(
+        required=False,
+        allow_null=True,
+        help_text=(
+            "The published position you compared the proposal with (null: none was published). Omitted: the one "
+            "of the check made when the position was proposed. If the mark's published position is another one "
+            "now, publishing is refused (409, compared_with_changed)."
+        ),
+    )
+
+
+class MovementAxesMm(serializers.Serializer):
+    east = serializers.FloatField(allow_null=True)
+    north = serializers.FloatField(allow_null=True)
+    up = serializers.FloatField(allow_null=True)
+
+
+class MovementCheckSerializer(serializers.Serializer):
+    """A movement check (proposed against published), in millimetres; see the README."""
+
+    verdict = serializers.ChoiceField(choices=MovementVerdict.choices)
+    verdict_words = serializers.CharField()
+    compared_with = serializers.IntegerField(allow_null=True)
+    level = serializers.FloatField(help_text="Level α of the one global 3D test.")
+    power = serializers.FloatField(help_text="Power used for the detectable movement.")
+    d_east_mm = serializers.FloatField(allow_null=True)
+    d_north_mm = serializers.FloatField(allow_null=True)
+    d_up_mm = serializers.FloatField(allow_null=True)
+    t_global = serializers.FloatField(allow_null=True)
+    dof = serializers.IntegerField(allow_null=True)
+    critical = serializers.FloatField(allow_null=True)
+    p_value = serializers.FloatField(allow_null=True)
+    moved_horizontal = serializers.BooleanField(allow_null=True)
+    moved_vertical = serializers.BooleanField(allow_null=True)
+    detectable_mm = MovementAxesMm(allow_null=True)
+    detectable_above_threshold = serializers.BooleanField()
+    added_sigma_mm = MovementAxesMm()
+    used_velocity = serializers.BooleanField()
+    frame_chain = serializers.ListField(child=serializers.CharField())
+    warnings = serializers.ListField(child=serializers.CharField())
+    reason = serializers.CharField(allow_blank=True)
+    stage = serializers.ChoiceField(choices=CheckStage.choices, required=False)
+    checked_at = serializers.DateTimeField(required=False)
+
+
+class PublishedPositionSerializer(PositionSerializer):
+    """A published position with the movement check stored with the decision."""
+
+    movement_check = MovementCheckSerializer(read_only=True, allow_null=True)
+
+    class Meta(PositionSerializer.Meta):
+        fields = [*PositionSerializer.Meta.fields, "movement_check"]
+
+
+class MovementComparisonSerializer(serializers.Serializer):
+    current = MovementCheckSerializer(help_text="The comparison with the mark's published position now (not stored).")
+    stored = MovementCheckSerializer(
+        many=True, help_text="Checks stored when proposed and at publication, newest first."
+    )

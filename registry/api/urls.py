@@ -47,6 +47,13 @@ urlpatterns = [
     ),
     path("marks/<str:code>/attachments/", fieldwork_api.MarkAttachmentsView.as_view(), name="mark-attachments"),
     path("positions/<int:position_id>/", positions_api.PositionDetailView.as_view(), name="position-detail"),
+    re_path(r"^proposals/?$", positions_api.ProposalQueueView.as_view(), name="proposals"),
+    re_path(r"^marks/(?P<code>[^/]+)/combine/?$", positions_api.MarkCombineView.as_view(), name="mark-combine"),
+    re_path(
+        r"^positions/(?P<position_id>[0-9]+)/movement-check/?$",
+        positions_api.PositionMovementView.as_view(),
+        name="position-movement-check",
+    ),
     re_path(
         r"^positions/(?P<position_id>[0-9]+)/publish/?$",
         positions_api.PositionPublishView.as_view(),

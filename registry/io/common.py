@@ -28,12 +28,10 @@ from __future__ import annotations
 import datetime as dt
 import math
 from dataclasses import dataclass, field
-from functools import lru_cache
 from typing import Any
 
-import numpy as np
-
 from registry.models.marks import CODE_VALIDATOR, DESCRIPTION_FIELDS, MarkStatus, MonumentKind, SkyView, Stability
+from registry.services import position_rules as rules
 from registry.vocabulary import OLD_MARK_FIELDS, old_name_clashes
 
 # --- The record -------------------------------------------------------------------------------------
@@ -89,8 +87,8 @@ POSITION_MODEL_FIELDS: tuple[str, ...] = (
 # Plausibility limits (each with its reason).
 EPOCH_MIN_YR, EPOCH_MAX_YR = 1900.0, 2100.0  # same range as the model's CHECK constraint
 H_MIN_M, H_MAX_M = -1000.0, 10000.0  # same range as the model's CHECK constraint
-SIGMA_MAX_MM = 10_000.0  # a 10 m sigma is no longer control; almost certainly a unit mistake
-VEL_MAX_M_YR = 1.0  # the fastest plate moves < 0.2 m/yr; 1 m/yr catches mm/yr typed as m/yr
+SIGMA_MAX_MM = rules.SIGMA_MAX_M * 1000.0  # the bounds are decided once, in services.position_rules
+VEL_MAX_M_YR = rules.VELOCITY_MAX_M_YR
 SOURCE_MAX = 200
 MAX_VERSION = 2_147_483_647  # the largest value of a PositiveIntegerField on every supported database
 #: Agreement needed between a sigma column and √(covariance diagonal) when a file carries both. Exports
@@ -179,32 +177,15 @@ def new_column_names(names: list[str], *, where: str = "line 1", index: int = 1)
 # --- Frames -----------------------------------------------------------------------------------------
 
 
-@lru_cache(maxsize=256)
 def frame_problem(frame_epsg: int) -> str | None:
-    """Return why ``frame_epsg`` cannot be a position's frame, or None when it can.
-
-    A position's frame must be a geographic 3D CRS (latitude, longitude, ellipsoidal height).
+    """Return why ``frame_epsg`` cannot be a position's frame, or None when it can (``position_rules``).
 
     >>> frame_problem(7912) is None and frame_problem(6319) is None
     True
-    >>> frame_problem(4326)
-    'EPSG:4326 (WGS 84) is a 2D CRS; a position needs a geographic 3D frame (latitude, longitude, ellipsoidal height)'
+    >>> frame_problem(4326).startswith("EPSG:4326 (WGS 84) is a 2D CRS")
+    True
     """
-    import pyproj
-    from pyproj.exceptions import CRSError
-
-    try:
-        crs = pyproj.CRS.from_epsg(frame_epsg)
-    except CRSError:
-        return f"EPSG:{frame_epsg} is not in the EPSG database"
-    if not crs.is_geographic:
-        return f"EPSG:{frame_epsg} ({crs.name}) is not a geographic CRS"
-    if len(crs.axis_info) != 3:
-        return (
-            f"EPSG:{frame_epsg} ({crs.name}) is a 2D CRS; a position needs a geographic 3D frame "
-            "(latitude, longitude, ellipsoidal height)"
-        )
-    return None
+    return rules.frame_problem(int(frame_epsg))
 
 
 # --- Number formatting ------------------------------------------------------------------------------
@@ -419,7 +400,7 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
     if frame is None and _is_blank(raw.get("frame_epsg")):
         chk.add("frame_required", "a position needs its frame (EPSG code of a geographic 3D CRS)", "frame_epsg")
     elif frame is not None:
-        problem = frame_problem(int(frame)) if frame > 0 else f"EPSG:{frame} is not a valid code"
+        problem = frame_problem(int(frame))
         if problem:
             chk.add("invalid_frame", problem, "frame_epsg")
         else:
@@ -454,9 +435,10 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
     cov_given = any(not _is_blank(raw.get(n)) for n in COV_FIELDS)
     if any(sigma_given) and not all(sigma_given):
         chk.add("sigmas_incomplete", "give all three of sigma_e_mm, sigma_n_mm, sigma_u_mm, or none", "sigma_e_mm")
-    for name, value in zip(SIGMA_FIELDS, sigmas, strict=True):
-        if value is not None and not 0.0 < value <= SIGMA_MAX_MM:
-            chk.add("out_of_range", f"a sigma must be > 0 and ≤ {SIGMA_MAX_MM:g} mm, got {value}", name)
+    if not cov_given:  # with a covariance, the sigma columns are its rounded display (checked for agreement)
+        given_sigmas = {n: (None if v is None else v / 1000.0) for n, v in zip(SIGMA_FIELDS, sigmas, strict=True)}
+        for problem in rules.sigma_problems(given_sigmas):
+            chk.add(problem.code, problem.message, problem.field)
     if cov_given:
         for name in COV_DIAGONAL:
             if _is_blank(raw.get(name)):
@@ -469,19 +451,11 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
         )
     if len(chk.errors) == n_before and cov_given:
         c = {n: (covs[n] if covs[n] is not None else 0.0) for n in COV_FIELDS}
-        matrix = np.array(
-            [
-                [c["cov_ee_m2"], c["cov_en_m2"], c["cov_eu_m2"]],
-                [c["cov_en_m2"], c["cov_nn_m2"], c["cov_nu_m2"]],
-                [c["cov_eu_m2"], c["cov_nu_m2"], c["cov_uu_m2"]],
-            ]
-        )
-        diagonal = np.diag(matrix)
-        if np.any(diagonal <= 0.0) or np.any(np.sqrt(np.abs(diagonal)) * 1000.0 > SIGMA_MAX_MM):
-            chk.add("invalid_covariance", f"variances must be > 0 and ≤ ({SIGMA_MAX_MM:g} mm)²", "cov_ee_m2")
-        elif np.linalg.eigvalsh(matrix).min() <= 0.0:
-            chk.add("invalid_covariance", "the covariance matrix is not positive definite", "cov_en_m2")
-        else:
+        diagonal = [c[n] for n in COV_DIAGONAL]
+        problems = rules.covariance_problems(c)
+        for problem in problems:
+            chk.add(problem.code, problem.message, problem.field)
+        if not problems:
             pos.update(c)
             if all(sigma_given) and all(s is not None for s in sigmas):
                 for name, s_mm, var in zip(SIGMA_FIELDS, sigmas, diagonal, strict=True):
@@ -513,14 +487,12 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
         chk.add("velocity_incomplete", "give all three velocity sigmas (m/yr), or none", "vel_sigma_e_m_yr")
     if any(vsig_given) and not any(vel_given):
         chk.add("velocity_incomplete", "velocity sigmas need a velocity", "vel_sigma_e_m_yr")
-    for name, value in zip(VEL_FIELDS, vel, strict=True):
-        if value is not None and abs(value) > VEL_MAX_M_YR:
-            chk.add(
-                "out_of_range", f"|velocity| must be ≤ {VEL_MAX_M_YR:g} m/yr, got {value} (mm/yr typed as m/yr?)", name
-            )
-    for name, value in zip(VEL_SIGMA_FIELDS, vsig, strict=True):
-        if value is not None and not 0.0 <= value <= VEL_MAX_M_YR:
-            chk.add("out_of_range", f"a velocity sigma must be within 0 … {VEL_MAX_M_YR:g} m/yr, got {value}", name)
+    problems = rules.velocity_problems(
+        dict(zip(VEL_FIELDS, vel, strict=True)), dict(zip(VEL_SIGMA_FIELDS, vsig, strict=True))
+    )
+    for problem in problems:
+        if problem.code not in ("velocity_incomplete", "velocity_sigma_without_velocity"):  # reported above
+            chk.add(problem.code, problem.message, problem.field)
     for names, values in ((VEL_FIELDS, vel), (VEL_SIGMA_FIELDS, vsig)):
         pos.update({n: v for n, v in zip(names, values, strict=True)})
 

@@ -46,10 +46,14 @@ from registry.models.marks import (
     SkyView,
     Stability,
 )
+from registry.models.movement import CheckStage, MovementCheck, MovementVerdict
 from registry.models.security import IdempotencyRecord, SigninThrottle
 from registry.models.signing import CertificateAuthority, SignatoryProfile, SigningCertificate
 
 __all__ = [
+    "CheckStage",
+    "MovementCheck",
+    "MovementVerdict",
     "DOCUMENT_FROZEN_FIELDS",
     "DOCUMENT_ISSUED_STATES",
     "DOCUMENT_STANDING_FIELDS",

@@ -282,7 +282,10 @@ class Position(models.Model):
             models.CheckConstraint(condition=Q(h_m__gte=-1000, h_m__lte=10000), name="position_h_range"),
             models.CheckConstraint(condition=Q(epoch_yr__gte=1900, epoch_yr__lte=2100), name="position_epoch_range"),
             models.CheckConstraint(
-                condition=Q(cov_ee_m2__gte=0, cov_nn_m2__gte=0, cov_uu_m2__gte=0), name="position_variances_nonneg"
+                # services.position_rules: every variance > 0 and ≤ (100 m)²
+                condition=Q(cov_ee_m2__gt=0, cov_nn_m2__gt=0, cov_uu_m2__gt=0)
+                & Q(cov_ee_m2__lte=1e4, cov_nn_m2__lte=1e4, cov_uu_m2__lte=1e4),
+                name="position_variances_positive",
             ),
             models.CheckConstraint(
                 condition=Q(vel_sigma_e_m_yr__isnull=True) | Q(vel_sigma_e_m_yr__gte=0),

@@ -30,6 +30,7 @@ from registry.models import (
     HeightRecord,
     Mark,
     MarkStatus,
+    MovementCheck,
     Occupation,
     Position,
     PositionState,
@@ -250,8 +251,14 @@ def mark_detail(*, code: str) -> MarkDetail:
             by_occupation[a.occupation_id].append(a)
         if a.visit_id:
             by_visit[a.visit_id].append(a)
+    # Each occupation's result compared with the published position: the newest stored movement check.
+    checks: dict[int, MovementCheck] = {}
+    result_ids = [o.result_position_id for o in occupations if o.result_position_id]
+    for c in MovementCheck.objects.filter(position_id__in=result_ids).order_by("position_id", "-created_at", "-id"):
+        checks.setdefault(c.position_id, c)
     for o in occupations:
         o.attachment_list = by_occupation.get(o.pk, [])
+        o.movement_check = checks.get(o.result_position_id)
     for v in visits:
         v.attachment_list = by_visit.get(v.pk, [])
 

@@ -3,7 +3,7 @@
 ``mark_import`` parses and validates the whole file first (every bad row is reported with its CSV line
 or GeoJSON feature index and the reason). If anything is wrong, nothing is written. Otherwise every
 mark goes through the same services as a manual edit (``mark_create`` / ``mark_update`` /
-``mark_set_status``, ``position_propose`` + ``position_publish``), inside one transaction with a
+``mark_set_status``, ``position_propose_and_publish``), inside one transaction with a
 savepoint per mark, so that a rule enforced only by a service (or by the database) is also reported for
 every row it concerns; any such error rolls the whole import back.
 
@@ -63,7 +63,7 @@ from registry.models import AuditEvent, Mark, MarkStatus, Position, PositionStat
 from registry.roles import Ability
 from registry.services.access import require_ability
 from registry.services.marks import VERSIONED_ACTIONS, mark_create, mark_set_status, mark_update
-from registry.services.positions import position_propose, position_publish
+from registry.services.positions import position_propose_and_publish
 from registry.services.suspect import mark_make_suspect
 
 FORMATS = ("csv", "geojson")
@@ -153,8 +153,7 @@ def _service_errors(exc: Exception, record: MarkRecord) -> list[RowError]:
 
 
 def _publish(actor, code: str, position: dict[str, Any], summary: ImportSummary) -> None:
-    proposed = position_propose(actor=actor, mark_code=code, data=dict(position))
-    position_publish(actor=actor, position_id=proposed.pk, note="published by import")
+    position_propose_and_publish(actor=actor, mark_code=code, data=dict(position), note="published by import")
     summary.positions_published += 1
 
 

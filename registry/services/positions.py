@@ -16,17 +16,16 @@ and epoch. Changing the search location does not bump the mark's edit version.
 
 from __future__ import annotations
 
-from functools import lru_cache
 from typing import Any
 
-import numpy as np
 from django.core.exceptions import ValidationError
 from django.db import IntegrityError, transaction
 from django.utils import timezone
 
 from registry.errors import Conflict
-from registry.models import Mark, MarkStatus, Position, PositionState
+from registry.models import CheckStage, Mark, MarkStatus, MovementVerdict, Position, PositionState
 from registry.roles import Ability
+from registry.services import position_rules as rules
 from registry.services._input import (
     check_keys,
     field_error,
@@ -40,11 +39,18 @@ from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
 from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
-from registry.services.suspect import lift_suspicion
+from registry.services.movement import (
+    check_summary,
+    comparison_target,
+    latest_check,
+    movement_check_store,
+    movement_compare,
+)
+from registry.services.suspect import lift_suspicion, mark_make_suspect
 
-COV_FIELDS = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
-VEL_FIELDS = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
-VEL_SIGMA_FIELDS = ("vel_sigma_e_m_yr", "vel_sigma_n_m_yr", "vel_sigma_u_m_yr")
+COV_FIELDS = rules.COV_FIELDS
+VEL_FIELDS = rules.VEL_FIELDS
+VEL_SIGMA_FIELDS = rules.VEL_SIGMA_FIELDS
 PROPOSE_FIELDS = (
     "frame_epsg",
     "epoch_yr",
@@ -70,30 +76,6 @@ _RANGES = {
         "Coordinate epoch must be a decimal year between 1900 and 2100.",
     ),
 }
-# Largest variance accepted (σ = 100 m): beyond that a value is a unit mistake (mm² for m²...),
-# not a coordinate anyone should find in a control registry.
-MAX_VARIANCE_M2 = 100.0**2
-# A covariance matrix may have an eigenvalue this far below zero (relative to its
-# largest) and still count as positive semi-definite: rounding of published values.
-_PSD_RELATIVE_TOLERANCE = 1e-9
-
-
-@lru_cache(maxsize=256)
-def _frame_problem(frame_epsg: int) -> str | None:
-    """Why ``frame_epsg`` cannot carry a position, or ``None`` when it is a geographic 3D CRS."""
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
-
-    try:
-        crs = CRS.from_epsg(frame_epsg)
-    except CRSError:
-        return f"EPSG:{frame_epsg} is not a coordinate reference system known to PROJ."
-    if not crs.is_geographic or len(crs.axis_info) != 3:
-        return (
-            f"EPSG:{frame_epsg} ({crs.name}) is a {crs.type_name}; a position needs a geographic 3D CRS "
-            "(latitude, longitude, ellipsoidal height), e.g. EPSG:7912 or EPSG:6319."
-        )
-    return None
 
 
 def _parse_position(data: Any) -> dict[str, Any]:
@@ -121,58 +103,22 @@ def _parse_position(data: Any) -> dict[str, Any]:
         raise merge_errors(*errors)
 
     if out["frame_epsg"] is not None:
-        problem = _frame_problem(out["frame_epsg"])
+        problem = rules.frame_problem(out["frame_epsg"])
         if problem:
             errors.append(field_error("frame_epsg", problem, "frame_not_geographic_3d"))
     for name, (lo, hi, code, message) in _RANGES.items():
         if not lo <= out[name] <= hi:
             errors.append(field_error(name, message, code, value=out[name]))
-    for name in ("cov_ee_m2", "cov_nn_m2", "cov_uu_m2"):
-        if out[name] < 0:
-            errors.append(field_error(name, "A variance cannot be negative.", "negative_variance"))
-        elif out[name] > MAX_VARIANCE_M2:
-            errors.append(
-                field_error(
-                    name,
-                    "A variance above %(limit)s m² (σ = 100 m) is refused; covariances are in m².",
-                    "variance_too_large",
-                    limit=MAX_VARIANCE_M2,
-                )
-            )
-    for name in VEL_SIGMA_FIELDS:
-        if out[name] is not None and out[name] < 0:
-            errors.append(field_error(name, "A sigma cannot be negative.", "negative_sigma"))
-    given = [out[n] is not None for n in VEL_FIELDS]
-    if any(given) and not all(given):
-        errors.append(field_error("vel_e_m_yr", "Give all three velocity components or none.", "velocity_incomplete"))
-    if not any(given) and any(out[n] is not None for n in VEL_SIGMA_FIELDS):
-        errors.append(
-            field_error("vel_sigma_e_m_yr", "Velocity sigmas need a velocity.", "velocity_sigma_without_velocity")
-        )
+    problems = rules.covariance_problems(out) + rules.velocity_problems(out, out)
+    errors.extend(field_error(p.field, p.message, p.code, **p.params) for p in problems)
     if errors:
         raise merge_errors(*errors)
-
-    cov = np.array(
-        [
-            [out["cov_ee_m2"], out["cov_en_m2"], out["cov_eu_m2"]],
-            [out["cov_en_m2"], out["cov_nn_m2"], out["cov_nu_m2"]],
-            [out["cov_eu_m2"], out["cov_nu_m2"], out["cov_uu_m2"]],
-        ]
-    )
-    if not np.any(cov):
-        raise field_error(
-            "cov_ee_m2",
-            "Give the uncertainty of the coordinates; a position held fixed in an adjustment still has one.",
-            "covariance_zero",
-        )
-    eig = np.linalg.eigvalsh(cov)
-    if eig[0] < -_PSD_RELATIVE_TOLERANCE * eig[-1]:
-        raise field_error(
-            "cov_ee_m2",
-            "The east/north/up covariance is not positive semi-definite (check the correlations).",
-            "covariance_not_psd",
-        )
     return out
+
+
+def position_validate(data: Any) -> dict[str, Any]:
+    """The checked values of a position given as ``position_propose`` takes them (nothing is stored)."""
+    return _parse_position(data)
 
 
 def _refresh_search_location(mark_id: int) -> tuple[float | None, float | None]:
@@ -197,7 +143,7 @@ def _require_state(position: Position, *allowed: str, action: str) -> None:
         )
 
 
-def position_propose(*, actor, mark_code: str, data: dict) -> Position:
+def position_propose(*, actor, mark_code: str, data: dict, suspect_on_movement: bool = True) -> Position:
     """Record a proposed position of a mark (technician or manager).
 
     ``data``: ``frame_epsg`` (geographic 3D CRS), ``epoch_yr``, ``lat_deg``, ``lon_deg``,
@@ -205,6 +151,10 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
     ``cov_nn_m2``, ``cov_uu_m2`` required; ``cov_en_m2``, ``cov_eu_m2``, ``cov_nu_m2``
     default 0), optional velocity (all three of ``vel_e_m_yr``, ``vel_n_m_yr``,
     ``vel_u_m_yr``, with optional sigmas) and ``source``, optional ``note``.
+
+    The movement check against the mark's published position is stored (``services.movement``); when
+    it shows possible movement the mark becomes suspect, unless ``suspect_on_movement`` is False (only
+    :func:`position_propose_and_publish`, which publishes in the same transaction and so answers it).
     """
     cleaned = _parse_position(data)
     with transaction.atomic():
@@ -222,18 +172,54 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
         # the query that re-reads the mark and user just fetched (foreign keys; the database checks them too).
         position.full_clean(exclude=("mark", "created_by"), validate_constraints=False)
         position.save(force_insert=True)
-        audit_record(actor=actor, action="position_propose", obj=position, after=snapshot(position), mark=mark)
+        check = movement_check_store(
+            outcome=movement_compare(position=position, published=comparison_target(position)),
+            stage=CheckStage.PROPOSED,
+            actor=actor,
+        )
+        audit_record(
+            actor=actor,
+            action="position_propose",
+            obj=position,
+            after={**snapshot(position), **check_summary(check)},
+            mark=mark,
+        )
+        if suspect_on_movement and check.verdict == MovementVerdict.POSSIBLE_MOVEMENT:
+            mark_make_suspect(
+                mark=mark,
+                reason=(
+                    f"position {position.pk}, proposed on {timezone.now().date().isoformat()}, differs from the "
+                    f"published position {check.compared_with_id} more than their uncertainties allow "
+                    "(possible movement)"
+                ),
+                since=timezone.now().date(),
+                actor=actor,
+            )
     return position
 
 
-def position_publish(*, actor, position_id: int, note: str = "") -> Position:
+#: ``compared_with`` not given: the published position of the check stored when the position was proposed.
+AS_PROPOSED: Any = object()
+
+
+def position_publish(*, actor, position_id: int, note: str = "", compared_with: Any = AS_PROPOSED) -> Position:
     """Publish a proposed position (manager); supersede the earlier one of the same mark and frame.
+
+    ``compared_with`` names the published position (id, or None for "none") the manager compared the
+    proposal with; by default the one of the check stored when it was proposed (a proposal recorded
+    before checks were stored, e.g. by ``load_demo``, has none: then the current one is taken). If the mark's published
+    position is another one now (someone published meanwhile), publishing is refused
+    (``compared_with_changed``): look at the new comparison and decide again. The movement check is run
+    again under the mark's lock and stored with the decision; against "possible movement" a ``note`` (the
+    reason) is required (``movement_note_required``). The audit row keeps the check's verdict, T and p.
 
     A suspect mark becomes active again (a new position answers the suspicion; ``services.suspect``);
     the change is recorded in the ``position_publish`` audit row (``mark_status`` and the suspicion
     before and after) and bumps the mark's version.
     """
     note = parse_note(note, required=False)
+    if compared_with is not AS_PROPOSED and compared_with is not None:
+        compared_with = parse_int({"compared_with": compared_with}, "compared_with")
     with transaction.atomic():
         position = access_position_by_id(actor, position_id, ability=Ability.MANAGE, for_update=True)
         mark = Mark.objects.select_for_update().get(pk=position.mark_id)
@@ -242,6 +228,33 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             raise Conflict(
                 f"Mark {mark.code} is recorded as destroyed; its positions cannot be published.",
                 code="mark_destroyed",
+            )
+        target = comparison_target(position)
+        if compared_with is AS_PROPOSED:
+            stored = latest_check(position.pk, CheckStage.PROPOSED)
+            expected = stored.compared_with_id if stored is not None else (target.pk if target else None)
+        else:
+            expected = compared_with
+        current = target.pk if target else None
+        if expected != current:
+            raise Conflict(
+                f"Position {position.pk} was compared with "
+                + (f"published position {expected}" if expected else "no published position")
+                + f", but the published position of {mark.code} is now "
+                + (f"position {current}" if current else "none")
+                + ". Someone decided in between: look at the new comparison and decide again.",
+                code="compared_with_changed",
+                details={"compared_with": expected, "published_now": current},
+            )
+        check = movement_check_store(
+            outcome=movement_compare(position=position, published=target), stage=CheckStage.PUBLISHED, actor=actor
+        )
+        if check.verdict == MovementVerdict.POSSIBLE_MOVEMENT and not note:
+            raise field_error(
+                "note",
+                "The movement check shows possible movement against the published position; give the reason "
+                "for publishing anyway.",
+                "movement_note_required",
             )
         now = timezone.now()
         previous = (
@@ -283,6 +296,7 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
             "supersedes_id": previous.pk if previous else None,
             "search_lat_deg": lat,
             "search_lon_deg": lon,
+            **check_summary(check),
         }
         lifted = lift_suspicion(mark)
         if lifted is not None:
@@ -299,6 +313,13 @@ def position_publish(*, actor, position_id: int, note: str = "") -> Position:
         )
         documents_mark_changed(mark, f"position published in EPSG:{position.frame_epsg}", actor=actor)
     return position
+
+
+def position_propose_and_publish(*, actor, mark_code: str, data: dict, note: str) -> Position:
+    """Propose and publish at once (imports): both checks stored and audited, the publish rules apply."""
+    with transaction.atomic():
+        proposed = position_propose(actor=actor, mark_code=mark_code, data=data, suspect_on_movement=False)
+        return position_publish(actor=actor, position_id=proposed.pk, note=note)
 
 
 def position_reject(*, actor, position_id: int, note: str) -> Position:

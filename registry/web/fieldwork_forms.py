@@ -15,6 +15,7 @@ from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
 
 from registry.geodesy import dms
 from registry.models import AntennaHeightKind, Finding, MarkStatus, OccupationMethod, Stability
+from registry.services import position_rules
 
 #: Frames offered on the propose form even before any position uses them (shared contracts).
 DEFAULT_FRAMES = (7912, 9989, 6319)
@@ -193,8 +194,9 @@ class OccupationForm(ServiceErrorsMixin, forms.Form):
 # ----------------------------------------------------------------------------- position
 
 
-SIGMA_MAX_MM = 100_000.0
-VELOCITY_MAX_MM_YR = 1_000.0
+# The bounds of services.position_rules, in the form's units (the service checks them again).
+SIGMA_MAX_MM = position_rules.SIGMA_MAX_M * 1000.0
+VELOCITY_MAX_MM_YR = position_rules.VELOCITY_MAX_M_YR * 1000.0
 
 
 class PositionForm(ServiceErrorsMixin, forms.Form):
@@ -209,8 +211,7 @@ class PositionForm(ServiceErrorsMixin, forms.Form):
     lat = AngleField(kind="lat", label="Latitude", help_text="Decimal degrees (45.2) or D M S (45 12 03.51234 N).")
     lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees (-110.6) or D M S (110 36 00.0 W).")
     h_m = forms.FloatField(label="Ellipsoidal height h (m)")
-    # Upper bounds: a σ above 100 m is a unit mistake (the services refuse it too) and keeps the
-    # squaring into m² finite; 1 m/yr is far beyond any tectonic or local motion of a mark.
+    # Upper bounds from services.position_rules (σ ≤ 100 m, |v| ≤ 1 m/yr); they keep the squaring into m² finite.
     sigma_e_mm = forms.FloatField(
         label="σ east (mm)", min_value=0.0, max_value=SIGMA_MAX_MM, help_text="One standard deviation."
     )
@@ -305,8 +306,26 @@ class DecisionForm(forms.Form):
     note = forms.CharField(
         widget=forms.Textarea(attrs={"rows": 3}),
         required=False,
-        help_text="The reason (required to reject or withdraw; recorded in the history).",
+        help_text=(
+            "The reason (required to reject or withdraw, and to publish against a possible movement; "
+            "recorded in the history)."
+        ),
     )
+    # The published position shown on the page when the manager decided ("none": nothing was published).
+    compared_with = forms.CharField(widget=forms.HiddenInput, required=False)
+
+    @staticmethod
+    def compared_with_value(position) -> str:
+        return "none" if position is None else str(position.pk)
+
+    def compared_with_id(self):
+        """The position id the page showed, None for "none", or the service's default when absent."""
+        from registry.services.positions import AS_PROPOSED
+
+        raw = (self.cleaned_data.get("compared_with") or "").strip()
+        if raw == "none":
+            return None
+        return int(raw) if raw.isdigit() else AS_PROPOSED
 
 
 # ----------------------------------------------------------------------------- mark status

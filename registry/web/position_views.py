@@ -1,9 +1,9 @@
 """Position pages: propose a position (technician, manager); publish, reject or withdraw one (manager).
 
-Before publishing, the confirmation page shows the compatibility test of the proposed
-position against the published one of the same frame (:mod:`registry.selectors.fieldwork`),
-so that the manager notices movement before the new coordinates replace the old.
-Writes go through :mod:`registry.services.positions`.
+Before publishing, the confirmation page shows the movement check of the proposed position against
+the mark's published one (:mod:`registry.services.movement`, computed afresh), and the form names that
+published position (``compared_with``), so that a publication by someone else in between is refused
+rather than silently superseded. Writes go through :mod:`registry.services.positions`.
 """
 
 from __future__ import annotations
@@ -17,8 +17,8 @@ from django.urls import reverse
 from registry.errors import Conflict
 from registry.models import Position, PositionState
 from registry.roles import Ability
-from registry.selectors.fieldwork import position_compatibility
 from registry.services.access import access_mark_by_code, access_position_by_id
+from registry.services.movement import comparison_target, movement_compare
 from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
 from registry.web.fieldwork_forms import DecisionForm, PositionForm
 from registry.web.views import ability_required
@@ -73,8 +73,9 @@ def position_decide(request: HttpRequest, code: str, position_id: int, action: s
     if request.method == "POST":
         form = DecisionForm(request.POST)
         if form.is_valid():
+            extra = {"compared_with": form.compared_with_id()} if action == "publish" else {}
             try:
-                service(actor=request.user, position_id=position.pk, note=form.cleaned_data["note"])
+                service(actor=request.user, position_id=position.pk, note=form.cleaned_data["note"], **extra)
             except ValidationError as exc:
                 errors = exc.error_dict if hasattr(exc, "error_dict") else {"note": exc.error_list}
                 for key, items in errors.items():
@@ -87,12 +88,22 @@ def position_decide(request: HttpRequest, code: str, position_id: int, action: s
                 position.refresh_from_db()
             else:
                 messages.success(request, f"Position {position.pk} of {mark.code} {PAST[action]}.")
+                back = request.POST.get("next", "")
+                if back == reverse("web:proposals"):  # the queue's forms come back to the queue
+                    return redirect(back)
                 return redirect(reverse("web:mark-detail", kwargs={"code": mark.code}) + f"#position-{position.pk}")
         else:
             status = 400
-    else:
-        form = DecisionForm()
-    check = position_compatibility(position=position) if action == "publish" else None
+    check = (
+        movement_compare(position=position, published=comparison_target(position))
+        if action == "publish" and position.state == PositionState.PROPOSED
+        else None
+    )
+    if request.method != "POST" or status == 409:  # a refusal shows the new comparison: decide on it again
+        initial = {"compared_with": DecisionForm.compared_with_value(check.compared_with if check else None)}
+        if request.method == "POST":
+            initial["note"] = request.POST.get("note", "")
+        form = DecisionForm(initial=initial)
     context = {
         "form": form,
         "mark": mark,

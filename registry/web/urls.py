@@ -15,6 +15,7 @@ from registry.web import (
     nearby_views,
     occupation_import_views,
     position_views,
+    proposal_views,
     views,
 )
 from registry.web.accuracy_views import accuracy_page  # accuracy area
@@ -45,6 +46,7 @@ urlpatterns: list = [
     path("marks/<str:code>/status/", fieldwork_views.mark_status, name="mark-status"),
     path("marks/<str:code>/clear-suspect/", fieldwork_views.mark_clear_suspect_page, name="mark-clear-suspect"),
     path("marks/<str:code>/positions/new/", position_views.position_new, name="position-create"),
+    path("proposals/", proposal_views.proposals_page, name="proposals"),
     path(
         "marks/<str:code>/positions/<int:position_id>/<str:action>/",
         position_views.position_decide,

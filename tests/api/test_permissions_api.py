@@ -48,7 +48,9 @@ ENDPOINTS = [
 def scene(manager, technician):
     make_mark(manager)
     published = make_published(manager, technician)
-    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data(epoch_yr=2024.0))
+    proposed = position_propose(
+        actor=technician, mark_code="QR-101", data=position_data(source="repeat session (invented)")
+    )  # same epoch: no movement
     return {"published": published.pk, "proposed": proposed.pk}
 
 

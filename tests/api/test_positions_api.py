@@ -59,7 +59,11 @@ def test_publish_then_supersede_through_the_api(mark, technician, manager, api_c
     assert published.status_code == 200 and published.json()["state"] == "published"
     assert published.json()["decided_by"] == "mona"
     second = propose(tech, epoch_yr=2024.5, lat_deg=45.2012346)
-    assert boss.post(f"/api/positions/{second['id']}/publish", format="json").status_code == 200  # no trailing slash
+    # invented data: 4.5 years of plate motion are missing from it, so the movement check asks for a reason
+    refused = boss.post(f"/api/positions/{second['id']}/publish/", {}, format="json")
+    assert assert_error_shape(refused, 400, "invalid")["details"]["note"][0]["code"] == "movement_note_required"
+    reason = {"note": "Invented data, published regardless."}
+    assert boss.post(f"/api/positions/{second['id']}/publish", reason, format="json").status_code == 200  # no slash
     old = boss.get(f"/api/positions/{first['id']}/").json()
     assert old["state"] == "superseded" and old["superseded_by"] == second["id"] and old["superseded_at"]
     detail = boss.get("/api/marks/QR-101/").json()
@@ -90,7 +94,11 @@ def test_withdraw_falls_back_to_the_other_frame(mark, technician, manager, api_c
     itrf = propose(tech)
     nad = propose(tech, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
     boss.post(f"/api/positions/{itrf['id']}/publish/", format="json")
-    boss.post(f"/api/positions/{nad['id']}/publish/", format="json")
+    # nad was proposed when nothing was published: it names what it was compared with
+    stale = boss.post(f"/api/positions/{nad['id']}/publish/", {"note": "x"}, format="json")
+    assert assert_error_shape(stale, 409, "compared_with_changed")["details"]["published_now"] == itrf["id"]
+    body = {"note": "Invented data, published regardless.", "compared_with": itrf["id"]}
+    assert boss.post(f"/api/positions/{nad['id']}/publish/", body, format="json").status_code == 200
     assert boss.get("/api/marks/QR-101/").json()["search_location"]["frame_epsg"] == NAD83_2011_EPSG
     response = boss.post(f"/api/positions/{nad['id']}/withdraw/", {"note": "Wrong antenna (invented)"}, format="json")
     assert response.status_code == 200 and response.json()["state"] == "withdrawn"
@@ -153,3 +161,33 @@ def test_notes_with_null_characters_and_huge_ids(mark, technician, manager, api_
     assert_error_shape(boss.get("/api/positions/99999999999999999999999/"), 404, "not_found")
     assert_error_shape(boss.post("/api/positions/99999999999999999999999/publish/", format="json"), 404, "not_found")
     assert Position.objects.get().state == PositionState.PROPOSED
+
+
+def test_publish_returns_the_stored_movement_check_and_the_comparison_endpoint(
+    mark, technician, manager, viewer, api_client_for
+):
+    tech, boss = api_client_for(technician), api_client_for(manager)
+    first = propose(tech)
+    published = boss.post(f"/api/positions/{first['id']}/publish/", {"compared_with": None}, format="json").json()
+    assert (
+        published["movement_check"]["verdict"] == "not_compared"
+        and published["movement_check"]["compared_with"] is None
+    )
+    second = propose(tech, lat_deg=45.2012345678 + 0.001 / 111_132)  # 1 mm north, same frame and epoch
+    check = api_client_for(viewer).get(f"/api/positions/{second['id']}/movement-check/").json()
+    current = check["current"]
+    assert current["compared_with"] == first["id"] and current["verdict"] == "no_movement"
+    assert current["d_north_mm"] == pytest.approx(1.0, abs=0.01) and current["dof"] == 3
+    assert set(current["detectable_mm"]) == {"east", "north", "up"}
+    assert [c["stage"] for c in check["stored"]] == ["proposed"]
+    done = boss.post(f"/api/positions/{second['id']}/publish/", {"compared_with": first["id"]}, format="json")
+    assert done.status_code == 200 and done.json()["movement_check"]["stage"] == "published"
+    assert done.json()["movement_check"]["t_global"] == pytest.approx(current["t_global"])
+
+
+def test_publish_with_a_bad_compared_with_is_a_400(mark, technician, manager, api_client_for):
+    first = propose(api_client_for(technician))
+    response = api_client_for(manager).post(
+        f"/api/positions/{first['id']}/publish/", {"compared_with": "yesterday"}, format="json"
+    )
+    assert assert_error_shape(response, 400, "invalid")["details"]["compared_with"][0]["code"] == "invalid_integer"

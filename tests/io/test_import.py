@@ -108,7 +108,8 @@ def test_duplicate_codes_and_frames_inside_one_file(manager):
         ("TST-009,,disk_rock,7912,,45.2,-110.6,1500,4,4,8,x", "epoch_yr", "epoch_required"),
         ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,,4,4,8,x", "h_m", "coordinate_required"),
         ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,1500,,,,x", "sigma_e_mm", "uncertainty_required"),
-        ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,1500,0,4,8,x", "sigma_e_mm", "out_of_range"),
+        ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,1500,0,4,8,x", "sigma_e_mm", "zero_variance"),
+        ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,1500,100000.001,4,8,x", "sigma_e_mm", "variance_too_large"),
         ("TST-009,,disk_rock,7912,2021.5,45.2,-110.6,1500,4,4,8,", "source", "source_required"),
     ],
 )
@@ -149,7 +150,7 @@ def test_covariance_columns_and_sigma_agreement(manager):
         mark_import(actor=manager, content=csv_text(ok, mismatch, not_pd, header=header), filename="c.csv")
     assert [(e.where, e.field, e.code) for e in info.value.errors] == [
         ("line 3", "sigma_n_mm", "sigma_covariance_mismatch"),
-        ("line 4", "cov_en_m2", "invalid_covariance"),
+        ("line 4", "cov_ee_m2", "covariance_not_positive_definite"),
     ]
     mark_import(actor=manager, content=csv_text(ok, header=header), filename="c.csv")
     p = Position.objects.get(mark__code="TST-010")

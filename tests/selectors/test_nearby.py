@@ -324,8 +324,10 @@ def small_district():
             # polynomial evaluated at C = 1.0).
             pos(code, 7912, 0.010, 0.010)
     pos("NAD83ONLY1", 6319, 0.005, 0.005)
-    # COARSE1: σe = 30 mm, σn = 0 → C = 0, K = 1.960790 → r95 = 58.8237 mm (same table, C = 0.0).
-    pos("COARSE1", 7912, 0.030, 0.0)
+    # COARSE1: σe = 30 mm, σn ≈ 0 → C = 0, K = 1.960790 → r95 = 58.8237 mm (same table, C = 0.0). σn is
+    # 1 µm, not 0: a zero variance is refused (services.position_rules; database constraint); C = 3e-5
+    # moves r95 by 4e-6 mm.
+    pos("COARSE1", 7912, 0.030, 1e-6)
     for code in marks:
         day = {"OLDVISIT1": dt.date(2015, 6, 1)}.get(code, dt.date(2025, 6, 1))
         cond = Finding.DAMAGED if code == "POORVISIT1" else Finding.INTACT

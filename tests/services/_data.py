@@ -34,9 +34,13 @@ def make_mark(actor, code: str = "QR-101", **fields: Any):
     return mark_create(actor=actor, data={"code": code, "name": "Quarry Ridge", **fields})
 
 
-def make_published(manager, technician, code: str = "QR-101", **overrides: Any):
-    """Propose and publish a position of ``code``; returns the published position."""
+def make_published(manager, technician, code: str = "QR-101", *, publish_note: str = "", **overrides: Any):
+    """Propose and publish a position of ``code``; returns the published position.
+
+    ``publish_note``: the reason to publish anyway, for invented data whose movement check shows possible
+    movement (tests of other rules).
+    """
     from registry.services.positions import position_propose, position_publish
 
     position = position_propose(actor=technician, mark_code=code, data=position_data(**overrides))
-    return position_publish(actor=manager, position_id=position.pk)
+    return position_publish(actor=manager, position_id=position.pk, note=publish_note)

@@ -70,9 +70,14 @@ def test_propose_accepts_numbers_as_text(mark, technician):
             "negative_sigma",
         ),
         # |ρ| > 1 between east and north: not a covariance matrix.
-        ({"cov_en_m2": 0.005 * 0.005 * 1.5}, "cov_ee_m2", "covariance_not_psd"),
+        ({"cov_en_m2": 0.005 * 0.005 * 1.5}, "cov_ee_m2", "covariance_not_positive_definite"),
         ({"cov_ee_m2": 0.0, "cov_nn_m2": 0.0, "cov_uu_m2": 0.0}, "cov_ee_m2", "covariance_zero"),
         ({"cov_uu_m2": 1.0e6}, "cov_uu_m2", "variance_too_large"),  # σ = 1 km: a unit mistake
+        ({"cov_uu_m2": 1.0e4 * (1 + 1e-12)}, "cov_uu_m2", "variance_too_large"),  # just above σ = 100 m
+        ({"cov_uu_m2": 0.0}, "cov_uu_m2", "zero_variance"),  # exported positions must re-import
+        ({"vel_e_m_yr": 1.5, "vel_n_m_yr": 0.0, "vel_u_m_yr": 0.0}, "vel_e_m_yr", "velocity_too_large"),
+        # rank-2 matrix (ρ_en = 1): semi-definite only
+        ({"cov_en_m2": 0.005 * 0.005}, "cov_ee_m2", "covariance_not_positive_definite"),
         ({"source": "a\x00b"}, "source", "null_characters_not_allowed"),
         ({"note": ["not", "text"]}, "note", "invalid_type"),
         ({"lat": 45.0}, "lat", "unknown_field"),
@@ -127,7 +132,13 @@ def test_publish_sets_state_decider_and_search_location(mark, manager, technicia
 
 def test_publishing_again_in_the_same_frame_supersedes_in_one_step(mark, manager, technician):
     first = make_published(manager, technician)
-    second = make_published(manager, technician, lat_deg=45.2012346, epoch_yr=2024.5)
+    second = make_published(
+        manager,
+        technician,
+        lat_deg=45.2012346,
+        epoch_yr=2024.5,
+        publish_note="invented data: published regardless of the movement check",
+    )
     first.refresh_from_db()
     assert first.state == PositionState.SUPERSEDED
     assert first.superseded_by_id == second.pk
@@ -140,7 +151,14 @@ def test_publishing_again_in_the_same_frame_supersedes_in_one_step(mark, manager
 
 def test_another_frame_does_not_supersede_and_the_search_location_follows_the_latest(mark, manager, technician):
     itrf = make_published(manager, technician)
-    nad83 = make_published(manager, technician, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
+    nad83 = make_published(
+        manager,
+        technician,
+        frame_epsg=NAD83_2011_EPSG,
+        lat_deg=45.20122,
+        lon_deg=-110.60233,
+        publish_note="invented data: published regardless of the movement check",
+    )
     itrf.refresh_from_db()
     assert itrf.state == nad83.state == PositionState.PUBLISHED
     assert Mark.objects.values_list("search_lat_deg", "search_lon_deg").get() == (45.20122, -110.60233)
@@ -148,7 +166,14 @@ def test_another_frame_does_not_supersede_and_the_search_location_follows_the_la
 
 def test_withdrawing_the_driving_position_falls_back_then_clears(mark, manager, technician):
     itrf = make_published(manager, technician)
-    nad83 = make_published(manager, technician, frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233)
+    nad83 = make_published(
+        manager,
+        technician,
+        frame_epsg=NAD83_2011_EPSG,
+        lat_deg=45.20122,
+        lon_deg=-110.60233,
+        publish_note="invented data: published regardless of the movement check",
+    )
     with pytest.raises(ValidationError) as info:
         position_withdraw(actor=manager, position_id=nad83.pk, note="")
     assert codes_of(info.value) == {"note": ["note_required"]}
@@ -209,7 +234,12 @@ def test_orm_guard_refuses_to_edit_a_published_position(mark, manager, technicia
 def test_database_trigger_refuses_raw_sql_updates(mark, manager, technician, state):
     first = make_published(manager, technician)
     if state == "superseded":
-        make_published(manager, technician, epoch_yr=2024.0)
+        make_published(
+            manager,
+            technician,
+            epoch_yr=2024.0,
+            publish_note="invented data: published regardless of the movement check",
+        )
     table = Position._meta.db_table
     with pytest.raises(DatabaseError):
         with transaction.atomic(), connection.cursor() as cursor:

@@ -101,11 +101,23 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
             source="2020 re-observation, 3 × 6 h static",
         ),
     )
-    position_publish(actor=manager, position_id=second.pk)
+    # The 2009 values were wrong by far more than their σ (the movement check says so): published with the reason.
+    position_publish(
+        actor=manager, position_id=second.pk, note="2009 values were scaled from the station sketch; replaced."
+    )
+    # 2024 check in ITRF2020: the 2020 position moved along its velocity for 3.75 years (about −45 mm east,
+    # −16 mm north, +3 mm up), so the movement check finds no movement.
     proposed = position_propose(
         actor=technician,
         mark_code="KV-001",
-        data=position_data(frame_epsg=9989, epoch_yr=2024.25, source="2024 check session (ITRF2020)"),
+        data=position_data(
+            frame_epsg=9989,
+            epoch_yr=2024.25,
+            lat_deg=45.199999978,
+            lon_deg=-110.600001035,
+            h_m=1523.4542,
+            source="2024 check session (ITRF2020)",
+        ),
     )
     rejected = position_propose(
         actor=technician,
@@ -113,6 +125,16 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
         data=position_data(epoch_yr=2023.0, h_m=1523.600, source="RTK tie, wrong antenna height"),
     )
     position_reject(actor=manager, position_id=rejected.pk, note="Antenna height recorded to the wrong point.")
+    # Its movement check (15 cm up, 137 m from the 2020 position) made the mark suspect; the manager clears it.
+    from registry.services.suspect import mark_clear_suspect
+
+    ridge.refresh_from_db()
+    mark_clear_suspect(
+        actor=manager,
+        code="KV-001",
+        note="The difference came from the wrong antenna height of a rejected proposal, not from the mark.",
+        expected_version=ridge.version,
+    )
     bridge_pos = position_propose(
         actor=technician, mark_code="KV-002", data=position_data(lat_deg=45.1875, lon_deg=-110.6342, h_m=1498.002)
     )
@@ -167,8 +189,12 @@ def build_kestrel(manager, technician, *, photo_png: bytes | None = None):
         kind="rinex",
         occupation_id=occupation.pk,
     )
+    ridge.refresh_from_db()  # (movement checks made it suspect; publishing and a clearance made it active again)
     ridge = mark_update(
-        actor=manager, code="KV-001", expected_version=1, changes={"keeper": "Kestrel Valley Survey Office, Room 4"}
+        actor=manager,
+        code="KV-001",
+        expected_version=ridge.version,
+        changes={"keeper": "Kestrel Valley Survey Office, Room 4"},
     )
     ridge.refresh_from_db()
     bridge.refresh_from_db()

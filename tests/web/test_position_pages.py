@@ -1,12 +1,13 @@
-"""Propose a position; publish / reject / withdraw with the compatibility check shown before publishing.
+"""Propose a position; publish / reject / withdraw with the movement check shown before publishing.
 
 Check values and their sources:
-- 2D compatibility worked example: d = (E, N) = (0.018, −0.021) m, σ_pub = (0.010, 0.012) m,
-  σ_obs = (0.008, 0.010) m, uncorrelated → T = 3.7830, p = 0.1508, critical χ²(0.95, 2) = 5.991,
-  compatible (hand worked example: T = dᵀ(Σ_pub + Σ_obs)⁻¹d, recomputed with SciPy 1.17.1 chi2).
-- χ²(0.95, 3) = 7.815 and χ²(0.95, 1) = 3.841 (recomputed with SciPy 1.17.1, scipy.stats.chi2.ppf).
-- d = (0.050, 0, 0): T_h = 0.050² / (0.010² + 0.008²) = 15.2439 (hand computation, uncorrelated
-  diagonal covariances) > 5.991 → not compatible.
+- Worked example: d = (E, N, U) = (0.018, −0.021, 0) m, σ_pub = (0.010, 0.012, 0.015) m,
+  σ_obs = (0.008, 0.010, 0.012) m, uncorrelated → one 3D test T = 0.018²/1.64e-4 + 0.021²/2.44e-4 =
+  3.7830 (hand computation), p = 0.2859, critical χ²(0.95, 3) = 7.815 (recomputed with SciPy 1.17.1,
+  scipy.stats.chi2) → no movement shown. Detectable movement √(λ₀ σ²) with λ₀(α = 0.05, power 0.80,
+  3 dof) = 10.9026 (scipy.stats.ncx2, SciPy 1.17.1): 42.3 / 51.6 / 63.4 mm.
+- d = (0.050, 0, 0): T = 0.050² / (0.010² + 0.008²) = 15.2439 (hand computation) > 7.815 → possible
+  movement, localised horizontal (T_h = 15.2439 > χ²(0.95, 2) = 5.991).
 - DMS: 45°12′03.51234″ N = 45 + 12/60 + 3.51234/3600 degrees; the sign belongs to the whole
   angle (common practice; as in the ICSM GDA Technical Manual v2.3 examples).
 - Points offset by a given east/north distance are built with pyproj's Geod (Karney's geodesic,
@@ -186,15 +187,12 @@ def test_propose_offers_frames_in_use_and_free_entry(kestrel, signed_in, technic
 def test_compatibility_worked_example_same_epoch(pair, signed_in, manager):
     _, obs = pair()
     page = signed_in(manager).get(_decide_url(obs, "publish")).content.decode()
-    # 2D worked example, recomputed with SciPy 1.17.1: T = 3.7830, critical 5.991, p = 0.1508, compatible
-    assert "3.7830" in page
-    assert "5.991" in page and "0.1508" in page
-    assert "no epoch change was applied" in page
-    assert "No significant movement at 95 %" in page
-    # d shown in mm (E / N / U)
-    assert "18.0 / -21.0 / 0.0" in page
-    # 3D row: same T (vertical d = 0), critical χ²(0.95, 3) = 7.815 (recomputed with SciPy 1.17.1)
-    assert "7.815" in page and "3.841" in page
+    assert "3.7830" in page and "7.815" in page and "0.2859" in page  # see the module docstring
+    assert "same frame at the same epoch" in page
+    assert "No movement shown at the 95 % level" in page
+    assert "18.0" in page and "-21.0" in page  # d in mm
+    assert "42.3" in page and "51.6" in page and "63.4" in page  # detectable movement per axis, mm
+    assert "this check could not have seen" in page  # above the office's 20 mm / 40 mm default
 
 
 @pytest.mark.django_db
@@ -202,7 +200,7 @@ def test_compatibility_flags_movement(pair, signed_in, manager):
     _, obs = pair(east=0.050, north=0.0)
     page = signed_in(manager).get(_decide_url(obs, "publish")).content.decode()
     assert "15.2439" in page  # 0.050² / (0.010² + 0.008²), hand computation
-    assert "not compatible" in page and "Possible movement" in page
+    assert "Possible movement, horizontal." in page
 
 
 @pytest.mark.django_db
@@ -215,11 +213,10 @@ def test_compatibility_brings_published_along_its_velocity(pair, signed_in, mana
         published={"epoch_yr": 2019.0, "vel_e_m_yr": v_e, "vel_n_m_yr": v_n, "vel_u_m_yr": 0.0},
     )
     page = signed_in(manager).get(_decide_url(obs, "publish")).content.decode()
-    assert "Epochs differ" in page
     assert "along the published position&#x27;s velocity" in page or "along the published position's velocity" in page
     assert "propagated along (10.0, -5.0, 0.0) mm/yr" in page
-    assert "No significant movement at 95 %" in page
-    assert "0.0 / 0.0 / 0.0" in page  # d after propagation, mm
+    assert "No movement shown at the 95 % level" in page
+    assert page.count('<td class="num">0.0</td>') == 3  # d after propagation, mm
     # The velocity has no stated σ: the assumed rate stands in, as in base screening
     # (2 mm/yr default, common practice, × 5 yr = 10.0 mm per axis added to the published covariance).
     assert "10.0 / 10.0 / 10.0" in page
@@ -230,7 +227,7 @@ def test_compatibility_without_velocity_uses_assumed_rate_and_warns(pair, signed
     settings.REGISTRY = {**settings.REGISTRY, "ASSUMED_RATE_MM_YR": 2.0}
     _, obs = pair(published={"epoch_yr": 2019.0})
     page = signed_in(manager).get(_decide_url(obs, "publish")).content.decode()
-    assert "Epochs differ" in page and "2019.000" in page
+    assert "2019.000" in page
     assert "2 mm/yr per axis × 5.000 yr" in page
     # σ added = 2 mm/yr × 5 yr = 10.0 mm per axis (the rule stated in registry.geodesy.frames)
     assert "10.0 / 10.0 / 10.0" in page
@@ -238,9 +235,20 @@ def test_compatibility_without_velocity_uses_assumed_rate_and_warns(pair, signed
 
 
 @pytest.mark.django_db
-def test_first_position_in_a_frame_has_nothing_to_compare(kestrel, signed_in, manager):
+def test_first_position_in_a_frame_is_compared_across_frames(kestrel, signed_in, manager):
+    # KV-001 has a published ITRF2014 position; the proposal is in ITRF2020 (scenario: moved along its velocity)
     page = signed_in(manager).get(_decide_url(kestrel["proposed"], "publish")).content.decode()
-    assert "nothing to compare with" in page
+    assert "was brought to EPSG:9989 at epoch 2024.250" in page
+    assert "No movement shown at the 95 % level" in page
+    assert 'name="compared_with" value="' in page
+
+
+@pytest.mark.django_db
+def test_first_position_of_a_mark_has_nothing_to_compare(manager, technician, signed_in):
+    mark_create(actor=manager, data={"code": "TS-02", "name": "New mark (invented)"})
+    first = position_propose(actor=technician, mark_code="TS-02", data=_pos())
+    page = signed_in(manager).get(_decide_url(first, "publish")).content.decode()
+    assert "there is nothing to compare with" in page and 'value="none"' in page
 
 
 # ----------------------------------------------------------------------------- decisions
@@ -310,3 +318,39 @@ def test_scenario_positions_unchanged_by_the_page_reads(kestrel, signed_in, mana
     signed_in(manager).get(_decide_url(Position.objects.get(mark__code="KV-002", state="published"), "withdraw"))
     assert (AuditEvent.objects.count(), list(Position.objects.values_list("pk", "state"))) == before
     assert position_data()["frame_epsg"] == 7912
+
+
+# ----------------------------------------------------------------------------- movement rules on the page
+
+
+@pytest.mark.django_db
+def test_publish_against_possible_movement_needs_a_note(pair, signed_in, manager):
+    pub, obs = pair(east=0.050, north=0.0)
+    assert Mark.objects.get(code="TS-01").status == "suspect"  # the check made on proposing
+    client = signed_in(manager)
+    response = client.post(_decide_url(obs, "publish"), {"compared_with": str(pub.pk)})
+    assert response.status_code == 400 and b"give the reason for publishing anyway" in response.content
+    assert Position.objects.get(pk=obs.pk).state == "proposed"
+    note = "Mark reset by the county in 2023 (invented)."
+    response = client.post(_decide_url(obs, "publish"), {"compared_with": str(pub.pk), "note": note})
+    assert response.status_code == 302
+    event = AuditEvent.objects.get(action="position_publish", object_id=str(obs.pk))
+    assert event.note == note and event.after["movement_verdict"] == "possible_movement"
+    assert event.after["compared_with_id"] == pub.pk
+    assert Mark.objects.get(code="TS-01").status == "active"  # publishing answered the suspicion
+
+
+@pytest.mark.django_db
+def test_page_refuses_when_the_published_position_changed_meanwhile(pair, signed_in, manager, technician):
+    pub, obs = pair()
+    client = signed_in(manager)
+    assert f'name="compared_with" value="{pub.pk}"'.encode() in client.get(_decide_url(obs, "publish")).content
+    # another manager publishes another proposal in between
+    other = position_propose(actor=technician, mark_code="TS-01", data=_pos(source="second crew (invented)"))
+    position_publish(actor=manager, position_id=other.pk, compared_with=pub.pk)
+    response = client.post(_decide_url(obs, "publish"), {"compared_with": str(pub.pk), "note": "ok"})
+    assert response.status_code == 409
+    page = response.content.decode()
+    assert "Someone decided in between" in page
+    assert f'name="compared_with" value="{other.pk}"' in page  # the form now names the new one
+    assert Position.objects.get(pk=obs.pk).state == "proposed"

@@ -235,6 +235,18 @@ def mm(value):
 
 @register.filter
 @_none_safe
+def percent_level(value):
+    """A probability as a percentage for the movement check: level α 0.05 → "95 %", power 0.8 → "80 %".
+
+    Values up to 0.5 are read as a test level α (the confidence 1 − α is shown); above, as a probability.
+    """
+    p = float(value)
+    shown = (1.0 - p) if p <= 0.5 else p
+    return f"{100.0 * shown:g} %"
+
+
+@register.filter
+@_none_safe
 def sigma_mm(value):
     """Variance in m² → standard deviation in mm, 1 decimal."""
     return format_sigma_mm(value)

@@ -1,0 +1,369 @@
+"""The movement check: a proposed position against the mark's published one, in every path.
+
+Proposing (``services.positions.position_propose``, so the page, the API, commands and imports alike)
+stores a check (stage "proposed"); a check that shows possible movement makes the mark suspect
+(``services.suspect.mark_make_suspect``). Publishing names the published position it was compared
+with; if the mark's published position changed since, publishing is refused (``compared_with_changed``,
+HTTP 409); otherwise the check is run again under the mark's lock and stored with the decision (stage
+"published"), and publishing against "possible movement" needs a note (the reason), which is audited.
+
+What is compared with what
+--------------------------
+* The published position of the mark **in the proposal's frame**; if there is none, its most recently
+  published position in any frame (:func:`comparison_target`).
+* That position is brought to the proposal's frame and epoch by the geodesy core
+  (:func:`registry.geodesy.frames.transform_position`): along the published position's velocity if it
+  has one (or the proposal's, when both are in the same frame), else with the office's plate model in a
+  dynamic frame, else held with the office's assumed rate per axis × |Δt| added to σ. Each frame
+  change's stated accuracy (EPSG/PROJ, metres) is added to σ on every axis, as a standard deviation;
+  an accuracy PROJ does not state adds nothing and is warned about.
+* d = proposed − published (east/north/up at the published point), Σ = Σpub + added + Σprop, one global
+  3D test at the office's level, localised by closed testing, with the smallest detectable movement per
+  axis (:mod:`registry.geodesy.movement`, Baarda 1968). When that detectable movement is larger than the
+  office's threshold (``REGISTRY["MOVEMENT_DETECTABLE_MM"]``, horizontal and vertical), a warning says so.
+
+Settings (``settings.REGISTRY``): ``MOVEMENT_LEVEL`` (α, default 0.05), ``MOVEMENT_POWER`` (default
+0.80), ``MOVEMENT_DETECTABLE_MM`` ((horizontal, vertical), default (20, 40)), ``ASSUMED_RATE_MM_YR``,
+``PLATE``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from django.conf import settings
+from django.db.models import Case, IntegerField, Value, When
+
+from registry.geodesy.accuracy import ComputationInputError
+from registry.geodesy.frames import FrameTransformError, format_epoch, transform_position
+from registry.geodesy.movement import MovementResult, movement_test
+from registry.geodesy.stats import enu_difference_m
+from registry.models import CheckStage, MovementCheck, MovementVerdict, Position, PositionState
+from registry.selectors.conversion import configured_plate
+
+#: Epochs closer than this are the same epoch (decimal years; about 9 hours).
+SAME_EPOCH_TOLERANCE_YR = 1e-3
+
+
+@dataclass(frozen=True)
+class MovementSettings:
+    level: float
+    power: float
+    detectable_h_m: float
+    detectable_v_m: float
+    assumed_rate_mm_yr: float
+
+
+def movement_settings() -> MovementSettings:
+    """The office's movement-check settings (read when called, never at import)."""
+    conf = settings.REGISTRY
+    h_mm, v_mm = conf.get("MOVEMENT_DETECTABLE_MM", (20.0, 40.0))
+    return MovementSettings(
+        level=float(conf.get("MOVEMENT_LEVEL", 0.05)),
+        power=float(conf.get("MOVEMENT_POWER", 0.80)),
+        detectable_h_m=float(h_mm) / 1000.0,
+        detectable_v_m=float(v_mm) / 1000.0,
+        assumed_rate_mm_yr=float(conf.get("ASSUMED_RATE_MM_YR", 2.0)),
+    )
+
+
+def cov_enu_m2(p: Position) -> np.ndarray:
+    return np.array(
+        [
+            [p.cov_ee_m2, p.cov_en_m2, p.cov_eu_m2],
+            [p.cov_en_m2, p.cov_nn_m2, p.cov_nu_m2],
+            [p.cov_eu_m2, p.cov_nu_m2, p.cov_uu_m2],
+        ],
+        dtype=float,
+    )
+
+
+@dataclass
+class MovementOutcome:
+    """A comparison, not yet stored (:func:`movement_check_store` keeps it)."""
+
+    position: Position
+    compared_with: Position | None
+    verdict: str
+    level: float
+    power: float
+    result: MovementResult | None = None
+    frame_chain: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+    reason: str = ""
+    added_sigma_enu_m: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    used_velocity: bool = False
+    above_threshold: bool = False
+
+    @property
+    def compared(self) -> bool:
+        return self.result is not None
+
+    @property
+    def possible_movement(self) -> bool:
+        return self.verdict == MovementVerdict.POSSIBLE_MOVEMENT
+
+    def as_dict(self) -> dict[str, Any]:
+        """Plain values for the API and the command (millimetres, rounded to 0.01 mm; T and p unrounded)."""
+        r = self.result
+
+        def mm(value: float) -> float:
+            return round(float(value) * 1000.0, 2)
+
+        return {
+            "verdict": self.verdict,
+            "verdict_words": MovementVerdict(self.verdict).label,
+            "compared_with": None if self.compared_with is None else self.compared_with.pk,
+            "level": self.level,
+            "power": self.power,
+            "d_east_mm": None if r is None else mm(r.d_enu_m[0]),
+            "d_north_mm": None if r is None else mm(r.d_enu_m[1]),
+            "d_up_mm": None if r is None else mm(r.d_enu_m[2]),
+            "t_global": None if r is None else r.statistic,
+            "dof": None if r is None else r.dof,
+            "critical": None if r is None else r.critical,
+            "p_value": None if r is None else r.p_value,
+            "moved_horizontal": None if r is None else r.moved_horizontal,
+            "moved_vertical": None if r is None else r.moved_vertical,
+            "detectable_mm": None
+            if r is None
+            else {k: mm(v) for k, v in zip(("east", "north", "up"), r.detectable_enu_m, strict=True)},
+            "detectable_above_threshold": self.above_threshold,
+            "added_sigma_mm": {k: mm(v) for k, v in zip(("east", "north", "up"), self.added_sigma_enu_m, strict=True)},
+            "used_velocity": self.used_velocity,
+            "frame_chain": list(self.frame_chain),
+            "warnings": list(self.warnings),
+            "reason": self.reason,
+        }
+
+
+def comparison_target(position: Position) -> Position | None:
+    """The published position ``position`` is compared with: same frame first, else the newest in any frame."""
+    same_frame_first = Case(
+        When(frame_epsg=position.frame_epsg, then=Value(0)), default=Value(1), output_field=IntegerField()
+    )
+    qs = Position.objects.filter(mark_id=position.mark_id, state=PositionState.PUBLISHED)
+    if position.pk is not None:
+        qs = qs.exclude(pk=position.pk)
+    return qs.annotate(_other_frame=same_frame_first).order_by("_other_frame", "-decided_at", "-id").first()
+
+
+def movement_compare(*, position: Position, published: Position | None) -> MovementOutcome:
+    """Compare ``position`` (saved or not) with ``published`` (see the module docstring). Reads nothing else."""
+    conf = movement_settings()
+    outcome = MovementOutcome(
+        position=position,
+        compared_with=published,
+        verdict=MovementVerdict.NOT_COMPARED,
+        level=conf.level,
+        power=conf.power,
+    )
+    if published is None:
+        outcome.reason = "No position of this mark is published; there is nothing to compare with."
+        return outcome
+    same_frame = published.frame_epsg == position.frame_epsg
+    same_epoch = abs(published.epoch_yr - position.epoch_yr) <= SAME_EPOCH_TOLERANCE_YR
+    velocity = velocity_sigma = None
+    whose = ""
+    source = published if published.has_velocity else (position if same_frame and position.has_velocity else None)
+    if source is not None and not same_epoch:
+        velocity = (source.vel_e_m_yr, source.vel_n_m_yr, source.vel_u_m_yr)
+        velocity_sigma = tuple(
+            conf.assumed_rate_mm_yr / 1000.0 if v is None else v
+            for v in (source.vel_sigma_e_m_yr, source.vel_sigma_n_m_yr, source.vel_sigma_u_m_yr)
+        )
+        whose = "the published position's velocity" if source is published else "the proposed position's velocity"
+    lat, lon, h = published.lat_deg, published.lon_deg, published.h_m
+    added = np.zeros(3)
+    if same_frame and same_epoch:
+        outcome.frame_chain = ["Both positions are in the same frame at the same epoch: compared directly."]
+    else:
+        try:
+            moved = transform_position(
+                lat,
+                lon,
+                h,
+                from_epsg=published.frame_epsg,
+                from_epoch_yr=published.epoch_yr,
+                to_epsg=position.frame_epsg,
+                to_epoch_yr=position.epoch_yr,
+                velocity_enu_m_yr=velocity,
+                velocity_sigma_enu_m_yr=velocity_sigma,
+                assumed_rate_mm_yr=conf.assumed_rate_mm_yr,
+                plate=configured_plate(),
+            )
+        except FrameTransformError as exc:
+            outcome.reason = (
+                f"The published position could not be brought to the proposal's frame and epoch "
+                f"(EPSG:{position.frame_epsg}, {format_epoch(position.epoch_yr)}): {exc}"
+            )
+            return outcome
+        lat, lon, h = float(moved.lat_deg), float(moved.lon_deg), float(moved.h_m)
+        added = np.array([float(np.asarray(s)) for s in moved.added_sigma_enu_m])
+        frame_sigma = 0.0
+        for step in moved.steps:
+            if step.kind == "frame_change" and step.accuracy_m is not None:
+                frame_sigma = float(np.hypot(frame_sigma, step.accuracy_m))
+        added = np.sqrt(added**2 + frame_sigma**2)
+        intro = (
+            f"The published position (position {published.pk}, EPSG:{published.frame_epsg} at epoch "
+            f"{format_epoch(published.epoch_yr)}) was brought to EPSG:{position.frame_epsg} at epoch "
+            f"{format_epoch(position.epoch_yr)}" + (f", along {whose}." if whose else ".")
+        )
+        outcome.frame_chain = [intro, *(s.description for s in moved.steps)]
+        if frame_sigma:
+            outcome.frame_chain.append(
+                f"the frame change's stated accuracy ({frame_sigma * 1000:.0f} mm) added to σ on every axis"
+            )
+        outcome.warnings = list(moved.warnings)
+        outcome.used_velocity = any(s.kind == "velocity" for s in moved.steps)
+    try:
+        d = enu_difference_m(
+            published_lat_deg=lat,
+            published_lon_deg=lon,
+            published_h_m=h,
+            observed_lat_deg=position.lat_deg,
+            observed_lon_deg=position.lon_deg,
+            observed_h_m=position.h_m,
+            published_frame_epsg=position.frame_epsg,
+            published_epoch_yr=position.epoch_yr,
+            observed_frame_epsg=position.frame_epsg,
+            observed_epoch_yr=position.epoch_yr,
+        )
+        cov = cov_enu_m2(published) + np.diag(added**2) + cov_enu_m2(position)
+        result = movement_test(d, cov, level=conf.level, power=conf.power)
+    except ComputationInputError as exc:
+        outcome.reason = f"The test could not be computed: {exc}"
+        return outcome
+    outcome.result = result
+    outcome.verdict = result.verdict
+    outcome.added_sigma_enu_m = tuple(float(a) for a in added)
+    mdb = result.detectable_enu_m
+    if max(mdb[0], mdb[1]) > conf.detectable_h_m or mdb[2] > conf.detectable_v_m:
+        outcome.above_threshold = True
+        outcome.warnings.append(
+            f"This check could not have seen a movement smaller than about {mdb[0] * 1000:.0f} mm east, "
+            f"{mdb[1] * 1000:.0f} mm north and {mdb[2] * 1000:.0f} mm up (at the {100 * (1 - conf.level):g} % "
+            f"level with {100 * conf.power:g} % power); the office asks to detect "
+            f"{conf.detectable_h_m * 1000:g} mm horizontally and {conf.detectable_v_m * 1000:g} mm vertically. "
+            "A velocity for the mark, or a published position closer in time, makes the check sharper."
+        )
+    return outcome
+
+
+def movement_check_store(*, outcome: MovementOutcome, stage: str, actor) -> MovementCheck:
+    """Keep ``outcome`` for its (saved) position; call inside the caller's transaction."""
+    r = outcome.result
+    values: dict[str, Any] = {}
+    if r is not None:
+        values = {
+            "statistic": r.statistic,
+            "dof": r.dof,
+            "critical": r.critical,
+            "p_value": r.p_value,
+            "statistic_horizontal": r.statistic_horizontal,
+            "statistic_vertical": r.statistic_vertical,
+            "moved_horizontal": r.moved_horizontal,
+            "moved_vertical": r.moved_vertical,
+            "d_east_m": float(r.d_enu_m[0]),
+            "d_north_m": float(r.d_enu_m[1]),
+            "d_up_m": float(r.d_enu_m[2]),
+            "detectable_east_m": float(r.detectable_enu_m[0]),
+            "detectable_north_m": float(r.detectable_enu_m[1]),
+            "detectable_up_m": float(r.detectable_enu_m[2]),
+            "added_sigma_east_m": outcome.added_sigma_enu_m[0],
+            "added_sigma_north_m": outcome.added_sigma_enu_m[1],
+            "added_sigma_up_m": outcome.added_sigma_enu_m[2],
+        }
+    return MovementCheck.objects.create(
+        position=outcome.position,
+        compared_with=outcome.compared_with,
+        stage=stage,
+        verdict=outcome.verdict,
+        level=outcome.level,
+        power=outcome.power,
+        above_threshold=outcome.above_threshold,
+        used_velocity=outcome.used_velocity,
+        frame_chain=outcome.frame_chain,
+        warnings=outcome.warnings,
+        reason=outcome.reason,
+        created_by=actor if getattr(actor, "is_authenticated", False) else None,
+        **values,
+    )
+
+
+def latest_check(position_id: int, stage: str | None = None) -> MovementCheck | None:
+    qs = MovementCheck.objects.filter(position_id=position_id)
+    if stage:
+        qs = qs.filter(stage=stage)
+    return qs.order_by("-created_at", "-id").first()
+
+
+def _mm(value: float | None) -> float | None:
+    return None if value is None else round(float(value) * 1000.0, 2)
+
+
+def stored_check_dict(check: MovementCheck) -> dict[str, Any]:
+    """A stored check in the shape of :meth:`MovementOutcome.as_dict` (plus when, and at which stage)."""
+    compared = check.statistic is not None
+    return {
+        "verdict": check.verdict,
+        "verdict_words": MovementVerdict(check.verdict).label,
+        "compared_with": check.compared_with_id,
+        "level": check.level,
+        "power": check.power,
+        "d_east_mm": _mm(check.d_east_m),
+        "d_north_mm": _mm(check.d_north_m),
+        "d_up_mm": _mm(check.d_up_m),
+        "t_global": check.statistic,
+        "dof": check.dof,
+        "critical": check.critical,
+        "p_value": check.p_value,
+        "moved_horizontal": check.moved_horizontal,
+        "moved_vertical": check.moved_vertical,
+        "detectable_mm": {
+            "east": _mm(check.detectable_east_m),
+            "north": _mm(check.detectable_north_m),
+            "up": _mm(check.detectable_up_m),
+        }
+        if compared
+        else None,
+        "detectable_above_threshold": check.above_threshold,
+        "added_sigma_mm": {
+            "east": _mm(check.added_sigma_east_m) or 0.0,
+            "north": _mm(check.added_sigma_north_m) or 0.0,
+            "up": _mm(check.added_sigma_up_m) or 0.0,
+        },
+        "used_velocity": check.used_velocity,
+        "frame_chain": list(check.frame_chain),
+        "warnings": list(check.warnings),
+        "reason": check.reason,
+        "stage": check.stage,
+        "checked_at": check.created_at,
+    }
+
+
+def check_summary(check: MovementCheck) -> dict[str, Any]:
+    """What the audit row keeps of a stored check."""
+    return {
+        "movement_check_id": check.pk,
+        "movement_verdict": check.verdict,
+        "movement_t": check.statistic,
+        "movement_p": check.p_value,
+        "compared_with_id": check.compared_with_id,
+    }
+
+
+__all__ = [
+    "CheckStage",
+    "MovementOutcome",
+    "check_summary",
+    "comparison_target",
+    "latest_check",
+    "movement_check_store",
+    "movement_compare",
+    "movement_settings",
+    "stored_check_dict",
+]
