@@ -30,11 +30,13 @@ from registry.models import (
     HeightRecord,
     Mark,
     MarkStatus,
+    MonumentKind,
     Occupation,
     Position,
     PositionState,
     Visit,
 )
+from registry.services.usability import Usability, assess
 
 MATCH_PREFIX = "prefix"
 MATCH_CONTAINS = "contains"
@@ -85,7 +87,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
         ``"prefix"`` (default) or ``"contains"``.
     text
         Free text: every word must occur (anywhere, case-insensitive) in the code, name,
-        marking or keeper.
+        marking, keeper, how the monument is set, or the words of its monument kind.
     status
         A :class:`~registry.models.MarkStatus` value, or empty for all.
 
@@ -93,7 +95,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
     -------
     QuerySet[Mark]
         Annotated with ``src_frame_epsg``/``src_epoch_yr`` (the published position the
-        search location comes from), ``n_positions``, ``n_published``, ``last_visit_on`` and
+        search location comes from), ``n_positions``, ``n_published``, ``n_proposed``, ``last_visit_on`` and
         ``last_visit_finding``.
     """
     qs = mark_filter(q=q, match=match, text=text)
@@ -105,6 +107,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
         src_epoch_yr=_search_position("epoch_yr"),
         n_positions=_count_subquery(Position.objects.filter(mark=OuterRef("pk"))),
         n_published=_count_subquery(Position.objects.filter(mark=OuterRef("pk"), state=PositionState.PUBLISHED)),
+        n_proposed=_count_subquery(Position.objects.filter(mark=OuterRef("pk"), state=PositionState.PROPOSED)),
         last_visit_on=Subquery(last_visit.values("visited_on")[:1]),
         last_visit_finding=Subquery(last_visit.values("finding")[:1]),
     ).order_by("code")
@@ -120,10 +123,25 @@ def mark_filter(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> Qu
         else:
             qs = qs.filter(Q(code__istartswith=q) | Q(name__istartswith=q))
     for word in (text or "").split():
+        # the monument's kind is matched by its words ("disk" finds "disk set in rock outcrop")
+        kinds = [value for value, label in MonumentKind.choices if word.lower() in str(label).lower()]
         qs = qs.filter(
-            Q(code__icontains=word) | Q(name__icontains=word) | Q(marking__icontains=word) | Q(keeper__icontains=word)
+            Q(code__icontains=word)
+            | Q(name__icontains=word)
+            | Q(marking__icontains=word)
+            | Q(keeper__icontains=word)
+            | Q(monument_detail__icontains=word)
+            | Q(monument__in=kinds)
         )
     return qs
+
+
+def attach_usability(rows) -> list:
+    """The rows of :func:`mark_search` as a list, each with ``usability`` (status and latest visit)."""
+    rows = list(rows)
+    for m in rows:
+        m.usability = assess(m.status, getattr(m, "last_visit_finding", None), suspect_reason=m.suspect_reason)
+    return rows
 
 
 def mark_status_counts(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> dict[str, int]:
@@ -178,6 +196,7 @@ class MarkDetail:
     files: list[Attachment]
     history: list[HistoryEntry]
     history_truncated: bool
+    usability: Usability | None = None
 
     @property
     def current_positions(self) -> list[Position]:
@@ -266,4 +285,5 @@ def mark_detail(*, code: str) -> MarkDetail:
         files=[a for a in attachments if a.kind != AttachmentKind.PHOTO],
         history=history,
         history_truncated=truncated,
+        usability=assess(mark.status, visits[0].finding if visits else None, suspect_reason=mark.suspect_reason),
     )

@@ -41,6 +41,7 @@ from registry.services.audit import audit_record, snapshot
 from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
 from registry.services.suspect import lift_suspicion
+from registry.services.usability import assess
 
 COV_FIELDS = ("cov_ee_m2", "cov_en_m2", "cov_eu_m2", "cov_nn_m2", "cov_nu_m2", "cov_uu_m2")
 VEL_FIELDS = ("vel_e_m_yr", "vel_n_m_yr", "vel_u_m_yr")
@@ -209,7 +210,7 @@ def position_propose(*, actor, mark_code: str, data: dict) -> Position:
     cleaned = _parse_position(data)
     with transaction.atomic():
         mark = access_mark_by_code(actor, mark_code, ability=Ability.RECORD, for_update=True)
-        if mark.status == MarkStatus.DESTROYED:
+        if not assess(mark.status).new_position_allowed:
             raise Conflict(
                 f"Mark {mark.code} is recorded as destroyed; a destroyed mark gets no new positions.",
                 code="mark_destroyed",

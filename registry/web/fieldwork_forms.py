@@ -336,6 +336,12 @@ class NearbyForm(forms.Form):
     lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees or D M S with E/W.")
     radius_km = forms.FloatField(label="Radius (km)", min_value=0.001, max_value=1000.0, initial=5.0)
     limit = forms.IntegerField(label="At most", min_value=1, max_value=500, initial=50)
+    usable = forms.ChoiceField(
+        label="Show",
+        required=False,
+        choices=[("usable", "usable marks only"), ("all", "all marks, including those not for use")],
+        initial="usable",
+    )
     status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
     stability = forms.ChoiceField(
         label="Stability", required=False, choices=[("", "any stability"), *Stability.choices]
@@ -353,4 +359,9 @@ class NearbyForm(forms.Form):
         for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg"):
             if d.get(key) not in (None, ""):
                 args[key] = d[key]
+        if self.usable_only() and "status" not in args:
+            args["status"] = MarkStatus.ACTIVE  # the rest of the rule (latest visit) is applied to the rows
         return args
+
+    def usable_only(self) -> bool:
+        return (self.cleaned_data.get("usable") or "usable") == "usable"

@@ -21,6 +21,7 @@ from registry.services.access import access_mark_by_code
 from registry.services.fieldwork import attachment_add, occupation_record, visit_record
 from registry.services.marks import mark_set_status
 from registry.services.suspect import mark_clear_suspect
+from registry.services.usability import mark_usability
 from registry.web.fieldwork_forms import ClearSuspectForm, MarkStatusForm, OccupationForm, VisitForm
 from registry.web.views import ability_required
 
@@ -85,6 +86,9 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
 @ability_required(Ability.RECORD)
 def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
     mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
+    if not mark_usability(mark, None).occupation_allowed:
+        messages.error(request, f"Mark {mark.code} is recorded as destroyed; a destroyed mark takes no occupations.")
+        return redirect("web:mark-detail", code=mark.code)
     status = 200
     if request.method == "POST":
         form = OccupationForm(request.POST, request.FILES)
@@ -99,6 +103,8 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
                 )
             except ValidationError as exc:
                 form.add_service_error(exc)
+            except Conflict as exc:
+                form.add_error(None, ValidationError(exc.message, code=exc.code))
             else:
                 arp = occupation.antenna_height_arp_m
                 arp_text = f"; ARP height {arp:.3f} m" if arp is not None else ""

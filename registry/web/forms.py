@@ -25,7 +25,7 @@ class MarkSearchForm(forms.Form):
         required=False,
         choices=[(MATCH_PREFIX, "starts with"), (MATCH_CONTAINS, "contains")],
     )
-    text = forms.CharField(label="Free text (code, name, marking, keeper)", required=False, max_length=200)
+    text = forms.CharField(label="Free text (code, name, marking, keeper, monument)", required=False, max_length=200)
     status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
 
     def filters(self) -> dict[str, str]:

@@ -15,7 +15,7 @@ from django.shortcuts import redirect, render
 from registry.errors import Conflict
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
-from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_search, mark_status_counts
+from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_search, mark_status_counts
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
@@ -33,6 +33,7 @@ def mark_list(request: HttpRequest) -> HttpResponse:
         filters = {"q": "", "match": MATCH_PREFIX, "text": "", "status": ""}
     paginator = Paginator(mark_search(**filters), PAGE_SIZE)
     page = paginator.get_page(request.GET.get("page"))
+    page.object_list = attach_usability(page.object_list)
     status_counts = mark_status_counts(q=filters["q"], match=filters["match"], text=filters["text"])
     context = {
         "form": form,
