@@ -170,6 +170,17 @@ _BOOKKEEPING_KEYS = frozenset(
 )
 
 
+#: Kinds of audited things, in words (the history names a position by frame, epoch and source instead).
+_OBJECT_WORDS = {
+    "visit": "a visit",
+    "occupation": "an occupation",
+    "attachment": "a file",
+    "heightrecord": "a height record",
+    "document": "a document",
+    "job": "a job",
+}
+
+
 @dataclass
 class HistoryEntry:
     """One audit event with its per-field changes ready to print.
@@ -181,6 +192,9 @@ class HistoryEntry:
     event: AuditEvent
     changes: list[tuple[str, Any, Any]] = field(default_factory=list)
     is_record: bool = False
+    #: in words for the page: what happened, to what (a position by frame, epoch and source)
+    what: str = ""
+    subject: str = ""
 
 
 @dataclass
@@ -221,15 +235,53 @@ def mark_history(*, mark: Mark, limit: int = HISTORY_LIMIT) -> tuple[list[Histor
     """The mark's audit events, newest first, at most ``limit``; and whether more exist."""
     events = list(AuditEvent.objects.filter(mark=mark).select_related("actor").order_by("-at", "-pk")[: limit + 1])
     truncated = len(events) > limit
+    from registry.web.wording import action_words, describe_position, field_words, value_words
+
+    events = events[:limit]
+    # what the events point at, read once: positions (by frame, epoch, source) and people (by name)
+    position_ids: set[int] = set()
+    user_ids: set[int] = set()
+    for e in events:
+        if e.object_type == "position" and str(e.object_id).isdigit():
+            position_ids.add(int(e.object_id))
+        for snap in (e.before, e.after):
+            if isinstance(snap, dict):
+                for key in ("superseded_by_id", "superseded_by", "result_position_id", "position_id"):
+                    if isinstance(snap.get(key), int):
+                        position_ids.add(snap[key])
+                for key in ("created_by_id", "decided_by_id", "decided_by", "uploaded_by_id"):
+                    if isinstance(snap.get(key), int):
+                        user_ids.add(snap[key])
+    positions = {p.pk: p for p in Position.objects.filter(pk__in=position_ids)} if position_ids else {}
+    users = {}
+    if user_ids:
+        from django.contrib.auth import get_user_model
+
+        for u in get_user_model().objects.filter(pk__in=user_ids):
+            users[u.pk] = u.get_full_name() or u.username
+
     entries = []
-    for e in events[:limit]:
+    for e in events:
         is_record = e.before is None and isinstance(e.after, dict)
         changes = [
-            c
-            for c in audit_changes(e.before, e.after)
-            if c[0] not in _BOOKKEEPING_KEYS and not (is_record and c[2] in (None, ""))
+            (
+                field_words(name, e.object_type or "mark"),
+                value_words(name, before, positions=positions, users=users),
+                value_words(name, after, positions=positions, users=users),
+            )
+            for name, before, after in audit_changes(e.before, e.after)
+            if name not in _BOOKKEEPING_KEYS and not (is_record and after in (None, ""))
         ]
-        entries.append(HistoryEntry(event=e, changes=changes, is_record=is_record))
+        if e.object_type == "position":
+            p = positions.get(int(e.object_id)) if str(e.object_id).isdigit() else None
+            subject = f"Position in {describe_position(p)}" if p is not None else "A position no longer on record"
+        elif e.object_type == "mark":
+            subject = ""
+        else:
+            subject = _OBJECT_WORDS.get(e.object_type, (e.object_type or "").replace("_", " ")).capitalize()
+        entries.append(
+            HistoryEntry(event=e, changes=changes, is_record=is_record, what=action_words(e.action), subject=subject)
+        )
     return entries, truncated
 
 
@@ -243,7 +295,7 @@ def mark_detail(*, code: str) -> MarkDetail:
     )
     positions = list(
         Position.objects.filter(mark=mark)
-        .select_related("created_by", "decided_by")
+        .select_related("created_by", "decided_by", "superseded_by")
         .annotate(state_rank=rank)
         .order_by("state_rank", "-epoch_yr", "-created_at", "-pk")
     )

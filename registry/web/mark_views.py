@@ -170,7 +170,9 @@ def mark_text(request: HttpRequest, code: str, what: str, pk: int | None = None)
         position = Position.objects.filter(mark=mark, pk=pk).first()
         if position is None:
             raise Http404("No such position.")
-        text, title = position.note, f"Note of position {position.pk}"
+        from registry.web.wording import describe_position
+
+        text, title = position.note, f"Note of the position in {describe_position(position)}"
     else:
         raise Http404("No such text.")
     back = redirect("web:mark-detail", code=mark.code).url

@@ -109,3 +109,22 @@ def test_the_free_text_covers_the_monument(kestrel, signed_in, viewer):
     assert 'href="/marks/KV-001/"' in page and 'href="/marks/KV-002/"' not in page  # disk set in rock outcrop
     page = client.get(reverse("web:mark-list"), {"text": "granite"}).content.decode()  # how it is set
     assert 'href="/marks/KV-001/"' in page
+
+
+def test_history_speaks_in_words(kestrel, signed_in, viewer):
+    """Issue 10, item 9: no event codes, field names, database ids or seconds in front of a user."""
+    import re
+
+    response = signed_in(viewer).get(reverse("web:mark-detail", kwargs={"code": "KV-001"}))
+    html = response.content.decode()
+    history = html.split('id="h-history"')[1]
+    for code in ("position_publish", "position_propose", "mark_update", "visit_record", "occupation_record"):
+        assert code not in history
+    for name in ("search_lat_deg", "frame_epsg", "cov_ee_m2", "superseded_by_id", "decided_by_id"):
+        assert name not in history
+    assert not re.search(r"\bposition \d+\b", html)  # no "position 7"
+    assert not re.search(r"\d\d:\d\d:\d\d", html)  # times to the minute
+    assert not re.search(r"\.\d{6}\+00:00", html)  # no microsecond ISO stamps
+    assert "Position published" in history and "Position in ITRF2014 (EPSG:7912), epoch 2020.500" in history
+    assert re.search(r"\d{4}-\d\d-\d\d \d\d:\d\d UTC", history)
+    # the API keeps the codes (documented)
