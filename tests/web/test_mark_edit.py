@@ -7,6 +7,7 @@ import re
 import pytest
 from django.urls import reverse
 
+from registry.errors import Conflict
 from registry.models import AuditEvent, Mark
 from registry.services.marks import mark_update
 
@@ -178,7 +179,7 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
     colleague = make_user("marta", "manager")
     mark_update(actor=colleague, code="KV-002", expected_version=1, changes={"keeper": "Alder County Bridges Unit"})
     # a third manager's refused attempt must not be named as the one who changed it
-    with pytest.raises(Exception):
+    with pytest.raises(Conflict):
         mark_update(actor=make_user("otto", "manager"), code="KV-002", expected_version=1, changes={"keeper": "X"})
     stored = Mark.objects.filter(code="KV-002").values().get()
     audit_before = AuditEvent.objects.filter(action="mark_update").count()
