@@ -92,18 +92,60 @@ class AngleField(forms.CharField):
 # ----------------------------------------------------------------------------- visit
 
 
+PHOTO_SLOTS = 4
+
+
 class VisitForm(ServiceErrorsMixin, forms.Form):
+    """A visit. The date defaults to today and the visitor to the signed-in user; what was found has no
+    default (a false "intact" is worse than a missing answer). Each photo has its own caption."""
+
     visited_on = forms.DateField(
         label="Date of the visit", widget=forms.DateInput(attrs={"type": "date"}), help_text="YYYY-MM-DD."
     )
-    finding = forms.ChoiceField(label="What was found", choices=Finding.choices)
+    finding = forms.ChoiceField(
+        label="What was found",
+        choices=[("", "— choose what the crew found —"), *Finding.choices],
+        error_messages={"required": "Say what the crew found at the mark."},
+    )
     visitor = forms.CharField(max_length=120, required=False, help_text="Who visited (name or crew).")
     notes = forms.CharField(widget=forms.Textarea(attrs={"rows": 4}), required=False)
     photos = MultipleFileField(
-        label="Photos", help_text="Optional; several files allowed. Each is stored with its SHA-256 checksum."
+        label="More photos (without captions)",
+        help_text="Optional; several files allowed. Each is stored with its SHA-256 checksum.",
     )
-    caption = forms.CharField(max_length=200, required=False, help_text="Optional caption for the photos.")
     service_field_map = {"file": "photos", "kind": "photos"}
+
+    def __init__(self, *args, user=None, **kwargs):
+        super().__init__(*args, **kwargs)
+        import datetime as _dt
+
+        from django.utils import timezone
+
+        if not self.is_bound:
+            self.initial.setdefault("visited_on", timezone.now().astimezone(_dt.UTC).date())
+            if user is not None and getattr(user, "is_authenticated", False):
+                self.initial.setdefault("visitor", user.get_full_name() or user.get_username())
+        photos = self.fields.pop("photos")
+        for i in range(1, PHOTO_SLOTS + 1):
+            self.fields[f"photo_{i}"] = forms.FileField(label=f"Photo {i}", required=False)
+            self.fields[f"caption_{i}"] = forms.CharField(
+                label=f"Caption of photo {i}", max_length=200, required=False, help_text="What the photo shows."
+            )
+        self.fields["photos"] = photos
+
+    def clean(self):
+        data = super().clean()
+        for i in range(1, PHOTO_SLOTS + 1):
+            if data.get(f"caption_{i}") and not data.get(f"photo_{i}"):
+                self.add_error(f"photo_{i}", ValidationError("A caption was given without its photo.", code="no_photo"))
+        return data
+
+    def photo_pairs(self) -> list[tuple[Any, str]]:
+        """(file, caption) for every photo sent: the captioned slots first, then the extra ones."""
+        d = self.cleaned_data
+        pairs = [(d[f"photo_{i}"], d.get(f"caption_{i}", "")) for i in range(1, PHOTO_SLOTS + 1) if d.get(f"photo_{i}")]
+        pairs += [(f, "") for f in d.get("photos") or []]
+        return pairs
 
     def visit_data(self) -> dict[str, Any]:
         d = self.cleaned_data

@@ -27,12 +27,16 @@ from registry.web.views import ability_required
 
 
 def _record_with_files(record, files, *, kind: str, link: str, caption: str = ""):
-    """Run ``record()`` and attach ``files`` to its result in one transaction; clean stored files on failure."""
+    """Run ``record()`` and attach ``files`` to its result in one transaction; clean stored files on failure.
+
+    ``files`` holds files, or (file, caption) pairs (a visit's photos, each with its own caption).
+    """
     stored = []
     try:
         with transaction.atomic():
             obj = record()
             for f in files:
+                f, caption = f if isinstance(f, tuple) else (f, caption)
                 attachment = attachment_add(
                     actor=record.actor, mark_code=record.mark_code, file=f, kind=kind, caption=caption, **{link: obj.pk}
                 )
@@ -63,13 +67,7 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
         if form.is_valid():
             call = _Call(visit_record, actor=request.user, mark_code=mark.code, data=form.visit_data())
             try:
-                visit, n = _record_with_files(
-                    call,
-                    form.cleaned_data["photos"],
-                    kind="photo",
-                    link="visit_id",
-                    caption=form.cleaned_data["caption"],
-                )
+                visit, n = _record_with_files(call, form.photo_pairs(), kind="photo", link="visit_id")
             except ValidationError as exc:
                 form.add_service_error(exc)
             else:
@@ -79,7 +77,7 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
                 return redirect("web:mark-detail", code=mark.code)
         status = 400
     else:
-        form = VisitForm()
+        form = VisitForm(user=request.user)
     return render(request, "registry/visit_form.html", {"form": form, "mark": mark}, status=status)
 
 
