@@ -274,7 +274,7 @@ def test_page_overwrite_needs_update(client, manager, seeded):
     assert response.status_code == 400 and "tick the option above too" in response.content.decode()
     upload = SimpleUploadedFile("hand.csv", text_of(TWO_FRAMES[2]).encode(), content_type="text/csv")
     response = client.post("/marks/import/", {"file": upload, "update": "on"})
-    assert response.status_code == 400 and "version_required" in response.content.decode()
+    assert response.status_code == 400 and "this row has no version" in response.content.decode()
 
 
 def test_a_file_ahead_of_the_registry_is_refused_with_its_own_words(seeded, manager):
