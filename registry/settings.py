@@ -137,6 +137,8 @@ STORAGES = {
 # Development and tests: WhiteNoise looks static files up per request (no collectstatic, no
 # "No directory at var/static" warning). Production serves the collected, hashed files.
 WHITENOISE_AUTOREFRESH = not PRODUCTION
+# ... and also with REGISTRY_DEBUG=0 (the demo runs without the debug page, as production does).
+WHITENOISE_USE_FINDERS = not PRODUCTION
 FILE_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
 DATA_UPLOAD_MAX_MEMORY_SIZE = 20 * 1024 * 1024
 
