@@ -243,6 +243,9 @@ REGISTRY = {
     "SHEET_FRAMES": os.environ.get("REGISTRY_SHEET_FRAMES", "").strip(),
     # The office's grid (EPSG code of a projected CRS); empty: the UTM zone of each mark.
     "GRID_EPSG": os.environ.get("REGISTRY_GRID_EPSG", "").strip(),
+    # The frame of a GeoJSON export when none is asked for (one frame per GeoJSON file; EPSG code of the
+    # office's ITRF-aligned geographic 3D frame). The GeoPackage export holds every frame, a layer each.
+    "EXPORT_FRAME": int(os.environ.get("REGISTRY_EXPORT_FRAME", "7912") or "7912"),
     # The office geoid model's name as documents and pages print it (default: its file name).
     "GEOID_NAME": os.environ.get("REGISTRY_GEOID_NAME", "").strip(),
     # Statement style for check-point residuals uploaded with a control report: nssda or asprs2023.

@@ -87,13 +87,18 @@ def test_export_writes_every_published_frame_with_version_and_revision(seeded, m
         ("6319", "1503.1022", "1"),
         ("7912", "1502.3611", "2"),
     ]
-    features = json.loads(export_marks_text(fmt="geojson"))["features"]
+    # GeoJSON: one frame per file (issue 10, item 18)
+    features = json.loads(export_marks_text(fmt="geojson", frame_epsg=6319))["features"]
     assert [(f["properties"]["code"], f["properties"]["frame_epsg"]) for f in features] == [
         ("VF-001", 6319),
+        ("VF-002", None),
+    ]
+    features = json.loads(export_marks_text(fmt="geojson"))["features"]  # the office's export frame, 7912
+    assert [(f["properties"]["code"], f["properties"]["frame_epsg"]) for f in features] == [
         ("VF-001", 7912),
         ("VF-002", None),
     ]
-    assert [f["properties"]["position_revision"] for f in features] == [1, 2, None]
+    assert [f["properties"]["position_revision"] for f in features] == [2, None]
     # --frame keeps one frame; the mark without a position there still has its row.
     only = rows_of(export_marks_text(fmt="csv", frame_epsg=6319))
     assert [(r["code"], r["frame_epsg"]) for r in only] == [("VF-001", "6319"), ("VF-002", "")]
