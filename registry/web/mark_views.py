@@ -11,6 +11,7 @@ from django.core.exceptions import ValidationError
 from django.core.paginator import Paginator
 from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
+from django.urls import reverse
 
 from registry.errors import Conflict
 from registry.models import Document, Mark
@@ -19,6 +20,7 @@ from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm, pack_loaded
+from registry.web.mark_map import build_map, points_from_marks
 from registry.web.views import ability_required
 
 PAGE_SIZE = 50
@@ -34,6 +36,7 @@ def mark_list(request: HttpRequest) -> HttpResponse:
     paginator = Paginator(mark_search(**filters), PAGE_SIZE)
     page = paginator.get_page(request.GET.get("page"))
     page.object_list = attach_usability(page.object_list)
+    markmap = build_map(points_from_marks(page.object_list, lambda code: reverse("web:mark-detail", args=[code])))
     status_counts = mark_status_counts(q=filters["q"], match=filters["match"], text=filters["text"])
     context = {
         "form": form,
@@ -45,6 +48,7 @@ def mark_list(request: HttpRequest) -> HttpResponse:
         "registry_total": Mark.objects.count(),
         "filtered": any(filters[k] for k in ("q", "text", "status")),
         "can_manage": has_ability(request.user, Ability.MANAGE),
+        "markmap": markmap,
     }
     return render(request, "registry/mark_list.html", context)
 

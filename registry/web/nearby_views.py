@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import render
+from django.urls import reverse
 
 from registry.errors import InvalidInput
 from registry.roles import Ability
@@ -16,6 +17,7 @@ from registry.selectors.fieldwork import latest_visits
 from registry.selectors.nearby import CAUTIONS, SEARCH_LOCATION_NOTE, marks_near
 from registry.services.usability import assess
 from registry.web.fieldwork_forms import NearbyForm
+from registry.web.mark_map import MapPoint, build_map
 from registry.web.views import ability_required
 
 
@@ -42,6 +44,7 @@ def marks_near_page(request: HttpRequest) -> HttpResponse:
                 data[key] = value
     form = NearbyForm(data, initial=defaults)
     rows = None
+    markmap = None
     hidden = 0
     status = 200
     search = None
@@ -76,6 +79,20 @@ def marks_near_page(request: HttpRequest) -> HttpResponse:
                         }
                     )
                 search = args
+                points = [
+                    MapPoint(
+                        code=r["mark"].code,
+                        lat_deg=r["mark"].search_lat_deg,
+                        lon_deg=r["mark"].search_lon_deg,
+                        usable=r["usability"].usable,
+                        label=r["usability"].label,
+                        reason=r["usability"].reason,
+                        url=reverse("web:mark-detail", args=[r["mark"].code]),
+                    )
+                    for r in rows
+                    if r["mark"].search_lat_deg is not None
+                ]
+                markmap = build_map(points, centre=(args["lat_deg"], args["lon_deg"]), radius_m=args["radius_m"])
         else:
             status = 400
     context = {
@@ -83,6 +100,7 @@ def marks_near_page(request: HttpRequest) -> HttpResponse:
         "rows": rows,
         "search": search,
         "hidden": hidden,
+        "markmap": markmap,
         "usable_only": form.is_bound and not form.errors and form.usable_only(),
         "location_note": SEARCH_LOCATION_NOTE,
         "cautions": CAUTIONS,

@@ -115,9 +115,11 @@ def test_usable_marks_by_default_with_the_rest_one_click_away(kestrel, signed_in
     base = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10"}
     page = client.get(URL, base).content.decode()
     assert "1 mark within" in page and "KV-002" not in page.split("<tbody>")[1]
+    assert "KV-002" not in page.split('id="markmap-data"')[1]  # nor on the map
     assert "1</span> mark not for use is left out" in page
     page = client.get(URL, {**base, "usable": "all"}).content.decode()
     assert "2 marks within" in page
+    page = page.split('<table class="marks">')[1]  # the rows (the map above links the marks too)
     row = page.split('href="/marks/KV-002/"')[1].split("</tr>")[0]
     assert "not for use" in row and "did not find it" in row
     row = page.split('href="/marks/KV-001/"')[1].split("</tr>")[0]
