@@ -37,8 +37,8 @@
     var style = { color: "#8f897c", weight: 0.8, interactive: false };
     for (var lat = Math.floor(s / step) * step; lat <= n; lat += step) {
       grat.addLayer(L.polyline([[lat, w], [lat, e]], style));
-      grat.addLayer(L.marker([lat, w], { interactive: false, keyboard: false,
-        icon: L.divIcon({ className: "grat-label", html: dm(lat, "NS"), iconSize: null, iconAnchor: [-4, 14] }) }));
+      grat.addLayer(L.marker([lat, e], { interactive: false, keyboard: false,
+        icon: L.divIcon({ className: "grat-label grat-lat", html: dm(lat, "NS"), iconSize: [72, 14], iconAnchor: [76, 15] }) }));
     }
     for (var lon = Math.floor(w / step) * step; lon <= e; lon += step) {
       grat.addLayer(L.polyline([[s, lon], [n, lon]], style));
@@ -51,9 +51,9 @@
   if (data.centre) {
     bounds.push(data.centre);
     if (data.radius_m) {
-      var ring = L.circle(data.centre, { radius: data.radius_m, color: "#24527a", weight: 1.2, dashArray: "5 4",
-        fill: false, interactive: false }).addTo(map);
-      bounds.push(ring.getBounds().getNorthEast(), ring.getBounds().getSouthWest());
+      // the ring's box from the point itself (a circle's own bounds need a map view first)
+      var box = L.latLng(data.centre[0], data.centre[1]).toBounds(2 * data.radius_m);
+      bounds.push(box.getNorthEast(), box.getSouthWest());
     }
     L.marker(data.centre, { keyboard: false, title: "search point",
       icon: L.divIcon({ className: "mm-centre", html: "+", iconSize: [18, 18], iconAnchor: [9, 9] }) }).addTo(map);
@@ -81,6 +81,10 @@
   if (bounds.length === 1) { map.setView(bounds[0], 15); }
   else if (bounds.length) { map.fitBounds(bounds, { padding: [24, 24], maxZoom: 16 }); }
   else { map.setView([0, 0], 2); }
+  if (data.centre && data.radius_m) {
+    L.circle(data.centre, { radius: data.radius_m, color: "#24527a", weight: 1.2, dashArray: "5 4",
+      fill: false, interactive: false }).addTo(map);
+  }
   map.on("moveend", drawGraticule);
   drawGraticule();
 })();
