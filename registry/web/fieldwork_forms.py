@@ -129,7 +129,10 @@ class VisitForm(ServiceErrorsMixin, forms.Form):
         for i in range(1, PHOTO_SLOTS + 1):
             self.fields[f"photo_{i}"] = forms.FileField(label=f"Photo {i}", required=False)
             self.fields[f"caption_{i}"] = forms.CharField(
-                label=f"Caption of photo {i}", max_length=200, required=False, help_text="What the photo shows."
+                label=f"Caption of photo {i}",
+                max_length=200,
+                required=False,
+                widget=forms.TextInput(attrs={"placeholder": "what the photo shows, e.g. looking north at the disk"}),
             )
         self.fields["photos"] = photos
 
@@ -139,6 +142,16 @@ class VisitForm(ServiceErrorsMixin, forms.Form):
             if data.get(f"caption_{i}") and not data.get(f"photo_{i}"):
                 self.add_error(f"photo_{i}", ValidationError("A caption was given without its photo.", code="no_photo"))
         return data
+
+    def main_fields(self) -> list:
+        return [self[n] for n in ("visited_on", "finding", "visitor", "notes")]
+
+    def extra_photo_fields(self) -> list:
+        return [self["photos"]]
+
+    def photo_slots(self) -> list[tuple[Any, Any]]:
+        """(photo, caption) bound fields, for the page's photo rows."""
+        return [(self[f"photo_{i}"], self[f"caption_{i}"]) for i in range(1, PHOTO_SLOTS + 1)]
 
     def photo_pairs(self) -> list[tuple[Any, str]]:
         """(file, caption) for every photo sent: the captioned slots first, then the extra ones."""
