@@ -39,7 +39,7 @@ fi
 if [ -n "${REGISTRY_PRODUCTION:-}" ] && [ "${REGISTRY_PRODUCTION}" != 0 ]; then
   warn "REGISTRY_PRODUCTION is set; the demo runs in development mode regardless"
 fi
-export REGISTRY_PRODUCTION=0 REGISTRY_DEBUG="${REGISTRY_DEBUG:-0}"
+export REGISTRY_PRODUCTION=0 REGISTRY_DEBUG="${REGISTRY_DEBUG:-0}" REGISTRY_MEDIA_BY_DJANGO=1
 
 DATA_DIR="${REGISTRY_DATA_DIR:-$REPO_DIR/var}"
 DB="$DATA_DIR/registry.sqlite3"

@@ -245,6 +245,9 @@ REGISTRY = {
     "GRID_EPSG": os.environ.get("REGISTRY_GRID_EPSG", "").strip(),
     # The frame of a GeoJSON export when none is asked for (one frame per GeoJSON file; EPSG code of the
     # office's ITRF-aligned geographic 3D frame). The GeoPackage export holds every frame, a layer each.
+    # Stream uploaded files through Django even without DEBUG (deploy/demo.sh: no nginx in front);
+    # production leaves it off and lets nginx send them (X-Accel-Redirect).
+    "MEDIA_BY_DJANGO": env_bool("REGISTRY_MEDIA_BY_DJANGO", False),
     "EXPORT_FRAME": int(os.environ.get("REGISTRY_EXPORT_FRAME", "7912") or "7912"),
     # The office geoid model's name as documents and pages print it (default: its file name).
     "GEOID_NAME": os.environ.get("REGISTRY_GEOID_NAME", "").strip(),

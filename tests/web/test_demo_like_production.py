@@ -67,3 +67,14 @@ def test_demo_script_runs_without_debug_installs_proj_data_and_replays_no_old_wa
     assert "apt_install proj-data" in text
     # only the user list is kept for later starts
     assert "sed -n '/^Demo users/,$p'" in text
+
+
+@pytest.mark.django_db
+def test_the_demo_serves_photos_without_debug(kestrel, client, viewer, settings):
+    settings.DEBUG = False
+    settings.REGISTRY = {**settings.REGISTRY, "MEDIA_BY_DJANGO": True}
+    client.force_login(viewer)
+    response = client.get(kestrel["photo"].file.url)
+    assert response.status_code == 200 and "X-Accel-Redirect" not in response
+    assert b"".join(response.streaming_content)[:8] == b"\x89PNG\r\n\x1a\n"
+    assert "REGISTRY_MEDIA_BY_DJANGO=1" in DEMO_SH.read_text()
