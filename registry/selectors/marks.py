@@ -166,6 +166,7 @@ _BOOKKEEPING_KEYS = frozenset(
         "uploaded_at",
         "uploaded_by",
         "uploaded_by_id",
+        "file",  # the stored file's internal name; the original name is shown
     }
 )
 
@@ -235,23 +236,29 @@ def mark_history(*, mark: Mark, limit: int = HISTORY_LIMIT) -> tuple[list[Histor
     """The mark's audit events, newest first, at most ``limit``; and whether more exist."""
     events = list(AuditEvent.objects.filter(mark=mark).select_related("actor").order_by("-at", "-pk")[: limit + 1])
     truncated = len(events) > limit
-    from registry.web.wording import action_words, describe_position, field_words, value_words
+    from registry.web.wording import POSITION_KEYS, USER_KEYS, action_words, describe_position, field_words, value_words
 
     events = events[:limit]
     # what the events point at, read once: positions (by frame, epoch, source) and people (by name)
     position_ids: set[int] = set()
     user_ids: set[int] = set()
+    visit_ids: set[int] = set()
+    occupation_ids: set[int] = set()
     for e in events:
         if e.object_type == "position" and str(e.object_id).isdigit():
             position_ids.add(int(e.object_id))
         for snap in (e.before, e.after):
             if isinstance(snap, dict):
-                for key in ("superseded_by_id", "superseded_by", "result_position_id", "position_id"):
+                for key in POSITION_KEYS:
                     if isinstance(snap.get(key), int):
                         position_ids.add(snap[key])
-                for key in ("created_by_id", "decided_by_id", "decided_by", "uploaded_by_id"):
+                for key in USER_KEYS:
                     if isinstance(snap.get(key), int):
                         user_ids.add(snap[key])
+                if isinstance(snap.get("visit_id"), int):
+                    visit_ids.add(snap["visit_id"])
+                if isinstance(snap.get("occupation_id"), int):
+                    occupation_ids.add(snap["occupation_id"])
     positions = {p.pk: p for p in Position.objects.filter(pk__in=position_ids)} if position_ids else {}
     users = {}
     if user_ids:
@@ -260,14 +267,22 @@ def mark_history(*, mark: Mark, limit: int = HISTORY_LIMIT) -> tuple[list[Histor
         for u in get_user_model().objects.filter(pk__in=user_ids):
             users[u.pk] = u.get_full_name() or u.username
 
+    others: dict[tuple[str, int], str] = {}
+    if visit_ids:
+        for v in Visit.objects.filter(pk__in=visit_ids):
+            others[("visit_id", v.pk)] = f"the visit of {v.visited_on:%Y-%m-%d} ({v.get_finding_display()})"
+    if occupation_ids:
+        for o in Occupation.objects.filter(pk__in=occupation_ids):
+            others[("occupation_id", o.pk)] = f"the {o.get_method_display()} session of {o.start_utc:%Y-%m-%d}"
+
     entries = []
     for e in events:
         is_record = e.before is None and isinstance(e.after, dict)
         changes = [
             (
                 field_words(name, e.object_type or "mark"),
-                value_words(name, before, positions=positions, users=users),
-                value_words(name, after, positions=positions, users=users),
+                value_words(name, before, positions=positions, users=users, others=others),
+                value_words(name, after, positions=positions, users=users, others=others),
             )
             for name, before, after in audit_changes(e.before, e.after)
             if name not in _BOOKKEEPING_KEYS and not (is_record and after in (None, ""))

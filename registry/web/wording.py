@@ -94,6 +94,10 @@ FIELD_WORDS: dict[str, str] = {
     "decided_at": "decided",
     "superseded_at": "superseded",
     "superseded_by_id": "superseded by",
+    "supersedes_id": "supersedes",
+    "mark_suspect_since": "mark suspect since",
+    "mark_suspect_reason": "why the mark was suspect",
+    "mark_version": "mark edit version",
     "superseded_by": "superseded by",
     "result_position_id": "result position",
     "position_id": "position",
@@ -177,7 +181,14 @@ def describe_position(position) -> str:
     return position_words(position.frame_epsg, position.epoch_yr, position.source)
 
 
-def value_words(key: str, value: Any, *, positions: dict | None = None, users: dict | None = None) -> Any:
+#: Snapshot keys that hold a position's id, and those that hold a user's id.
+POSITION_KEYS = ("superseded_by_id", "superseded_by", "supersedes_id", "result_position_id", "position_id")
+USER_KEYS = ("created_by_id", "decided_by_id", "decided_by", "uploaded_by_id")
+
+
+def value_words(
+    key: str, value: Any, *, positions: dict | None = None, users: dict | None = None, others: dict | None = None
+) -> Any:
     """A snapshot value in words: states and choices by their labels, frames by name, times to the
     minute, linked positions and people by what they are. Returns the value itself when it is plain."""
     if value is None or value == "":
@@ -194,11 +205,13 @@ def value_words(key: str, value: Any, *, positions: dict | None = None, users: d
             return format_frame(int(value))
         except (TypeError, ValueError):
             return value
-    if key in ("superseded_by_id", "superseded_by", "result_position_id", "position_id") and positions is not None:
+    if key in POSITION_KEYS and positions is not None:
         p = positions.get(_as_int(value))
         return describe_position(p) if p is not None else "a position no longer on record"
-    if key in ("created_by_id", "decided_by_id", "decided_by", "uploaded_by_id") and users is not None:
+    if key in USER_KEYS and users is not None:
         return users.get(_as_int(value), "a former user")
+    if key in ("visit_id", "occupation_id") and others is not None:
+        return others.get((key, _as_int(value)), "a record no longer on file")
     if key.endswith("_at") or key.endswith("_utc") or key in ("suspect_since", "visited_on"):
         return time_words(value)
     if isinstance(value, bool):

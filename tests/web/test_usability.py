@@ -121,8 +121,10 @@ def test_history_speaks_in_words(kestrel, signed_in, viewer):
     history = html.split('id="h-history"')[1]
     for code in ("position_publish", "position_propose", "mark_update", "visit_record", "occupation_record"):
         assert code not in history
-    for name in ("search_lat_deg", "frame_epsg", "cov_ee_m2", "superseded_by_id", "decided_by_id"):
+    for name in ("search_lat_deg", "frame_epsg", "cov_ee_m2", "superseded_by_id", "decided_by_id", "supersedes_id"):
         assert name not in history
+    assert "supersedes: (empty) → ITRF2014 (EPSG:7912), epoch 2010.000" in re.sub(r"<[^>]+>", "", history)
+    assert "the visit of 2024-04-18 (intact)" in history  # the photo's visit, not its id
     assert not re.search(r"\bposition \d+\b", html)  # no "position 7"
     assert not re.search(r"\d\d:\d\d:\d\d", html)  # times to the minute
     assert not re.search(r"\.\d{6}\+00:00", html)  # no microsecond ISO stamps
