@@ -284,6 +284,14 @@ def state(value):
 
 
 @register.filter
+def person(user, missing=DASH):
+    """A user by full name, else user name; ``missing`` (an em dash) for none."""
+    if user is None:
+        return missing
+    return user.get_full_name() or user.get_username() or missing
+
+
+@register.filter
 def action_words(value):
     """An audit event code in words (registry.web.wording)."""
     from registry.web.wording import action_words as words
