@@ -32,8 +32,12 @@
   }
   function drawGraticule() {
     grat.clearLayers();
-    var b = map.getBounds(), span = Math.max(b.getNorth() - b.getSouth(), b.getEast() - b.getWest());
-    var step = niceMinutes(span * 60 / 4) / 60, s = b.getSouth(), n = b.getNorth(), w = b.getWest(), e = b.getEast();
+    // as many lines as the labels leave room for: one per ~120 px across, ~70 px down (phones get fewer)
+    var b = map.getBounds(), size = map.getSize();
+    var nLon = Math.max(2, Math.floor(size.x / 120)), nLat = Math.max(2, Math.floor(size.y / 70));
+    var step = Math.max(niceMinutes((b.getEast() - b.getWest()) * 60 / nLon),
+      niceMinutes((b.getNorth() - b.getSouth()) * 60 / nLat)) / 60;
+    var s = b.getSouth(), n = b.getNorth(), w = b.getWest(), e = b.getEast();
     var style = { color: "#8f897c", weight: 0.8, interactive: false };
     for (var lat = Math.floor(s / step) * step; lat <= n; lat += step) {
       grat.addLayer(L.polyline([[lat, w], [lat, e]], style));
