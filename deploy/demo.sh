@@ -7,15 +7,17 @@
 #   bash deploy/demo.sh --reset     throw the demo database away and load the district again
 #
 # Idempotent: a second run reuses .venv and the database and only starts the server. The demo
-# always runs in development mode on SQLite (REGISTRY_DATA_DIR, default var/); DATABASE_URL and
-# REGISTRY_PRODUCTION are ignored here. It is not a production setup: see deploy/README.md.
+# runs on SQLite (REGISTRY_DATA_DIR, default var/); DATABASE_URL and REGISTRY_PRODUCTION are
+# ignored here. Like production where it matters: no debug pages (friendly 404/403/500), static
+# files served by WhiteNoise, the API docs from local files, EGM96 from Debian's proj-data.
+# It is not a production setup: see deploy/README.md.
 set -Eeuo pipefail
 
 # shellcheck source=deploy/common.sh
 source "$(dirname "${BASH_SOURCE[0]}")/common.sh"
 cd "$REPO_DIR"
 
-usage() { sed -n '2,12p' "${BASH_SOURCE[0]}" | sed 's/^# \{0,1\}//'; }
+usage() { sed -n '2,13p' "${BASH_SOURCE[0]}" | sed 's/^# \{0,1\}//'; }
 
 RESET=0
 for arg in "$@"; do
@@ -37,7 +39,7 @@ fi
 if [ -n "${REGISTRY_PRODUCTION:-}" ] && [ "${REGISTRY_PRODUCTION}" != 0 ]; then
   warn "REGISTRY_PRODUCTION is set; the demo runs in development mode regardless"
 fi
-export REGISTRY_PRODUCTION=0 REGISTRY_DEBUG=1
+export REGISTRY_PRODUCTION=0 REGISTRY_DEBUG="${REGISTRY_DEBUG:-0}" REGISTRY_MEDIA_BY_DJANGO=1
 
 DATA_DIR="${REGISTRY_DATA_DIR:-$REPO_DIR/var}"
 DB="$DATA_DIR/registry.sqlite3"
@@ -46,8 +48,18 @@ T_START=$SECONDS
 
 printf '%sControl-mark registry: demo%s\n' "$_B" "$_N"
 
-step "[1/4] Python environment (.venv, requirements.txt)"
+step "[1/4] Python environment (.venv, requirements.txt) and PROJ data"
 ensure_venv requirements.txt
+# EGM96 (the labelled approximate geoid fallback) comes with Debian's proj-data, as in deploy/test.sh.
+if ! command -v dpkg-query >/dev/null 2>&1; then
+  warn "not a Debian/Ubuntu system: install PROJ's data files yourself for geoid heights"
+elif pkg_installed proj-data; then
+  ok "proj-data installed"
+elif can_apt; then
+  apt_install proj-data && ok "proj-data installed" || warn "proj-data could not be installed: no geoid heights"
+else
+  warn "proj-data is missing (run as root to install it): the demo has no geoid heights"
+fi
 
 step "[2/4] SQLite database ($DB)"
 mkdir -p "$DATA_DIR"
@@ -66,11 +78,15 @@ if ! "$VPY" manage.py help load_demo >/dev/null 2>&1; then
 elif [ -s "$USERS_FILE" ]; then
   ok "already loaded (to start over: bash deploy/demo.sh --reset)"
 else
-  info "python manage.py load_demo (output shown below when the server starts)"
+  info "python manage.py load_demo"
   rc=0
   "$VPY" manage.py load_demo >"$USERS_FILE.part" 2>&1 || rc=$?
   if [ "$rc" = 0 ]; then
-    mv -f -- "$USERS_FILE.part" "$USERS_FILE"
+    # Show this run's whole output once (its warnings are current); keep only the user list to show
+    # on later starts, so that a warning of an earlier run is never replayed as if it were current.
+    sed 's/^/    /' "$USERS_FILE.part"
+    sed -n '/^Demo users/,$p' "$USERS_FILE.part" >"$USERS_FILE"
+    rm -f -- "$USERS_FILE.part"
     ok "demo district loaded"
   else
     sed 's/^/    /' "$USERS_FILE.part" >&2
@@ -88,7 +104,7 @@ PY
 ADDRESS="http://127.0.0.1:$PORT/"
 printf '\n%sThe registry is starting at %s%s   (took %s to prepare)\n' "$_B" "$ADDRESS" "$_N" "$(fmt_duration $((SECONDS - T_START)))"
 if [ -s "$USERS_FILE" ]; then
-  printf '\nFrom load_demo:\n'
+  printf '\nDemo sign-in (from load_demo):\n'
   sed 's/^/    /' "$USERS_FILE"
 fi
 cat <<EOF

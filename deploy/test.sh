@@ -7,7 +7,8 @@
 #   1. .venv with requirements-dev.txt (creates it with Python 3.11 if missing).
 #   2. System packages when root (or with password-less sudo): PostgreSQL and the PostGIS
 #      package matching the server's major version, proj-data (EGM96 grid), chromium (browser
-#      tests), fonts-dejavu-core (PDF fonts), poppler-utils (PDF checks), nginx (the site
+#      tests), fonts-dejavu-core (PDF fonts), poppler-utils (PDF checks), gdal-bin (ogrinfo reads
+#      the GeoPackage and GeoJSON exports back), nginx (the site
 #      configuration is checked with nginx -t and served in a test). One apt-get update,
 #      and only when something is missing.
 #   3. PostgreSQL: uses $DATABASE_URL if set, else postgres://registry@127.0.0.1:5432/registry.
@@ -102,7 +103,7 @@ postgis_package_for() {
 
 # ---------------------------------------------------------------------------------------------
 step "[2/6] System packages"
-WANTED=(proj-data chromium fonts-dejavu-core poppler-utils nginx)
+WANTED=(proj-data chromium fonts-dejavu-core poppler-utils nginx gdal-bin)
 if [ "$PG_LOCAL" = 1 ]; then
   PG_VERSION="$(local_pg_version)"
   if [ -z "$PG_VERSION" ]; then

@@ -180,6 +180,8 @@ STORAGES = {
 # Development and tests: WhiteNoise looks static files up per request (no collectstatic, no
 # "No directory at var/static" warning). Production serves the collected, hashed files.
 WHITENOISE_AUTOREFRESH = not PRODUCTION
+# ... and also with REGISTRY_DEBUG=0 (the demo runs without the debug page, as production does).
+WHITENOISE_USE_FINDERS = not PRODUCTION
 FILE_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
 DATA_UPLOAD_MAX_MEMORY_SIZE = 20 * 1024 * 1024
 
@@ -307,6 +309,12 @@ REGISTRY = {
     "SHEET_FRAMES": os.environ.get("REGISTRY_SHEET_FRAMES", "").strip(),
     # The office's grid (EPSG code of a projected CRS); empty: the UTM zone of each mark.
     "GRID_EPSG": os.environ.get("REGISTRY_GRID_EPSG", "").strip(),
+    # The frame of a GeoJSON export when none is asked for (one frame per GeoJSON file; EPSG code of the
+    # office's ITRF-aligned geographic 3D frame). The GeoPackage export holds every frame, a layer each.
+    # Stream uploaded files through Django even without DEBUG (deploy/demo.sh: no nginx in front);
+    # production leaves it off and lets nginx send them (X-Accel-Redirect).
+    "MEDIA_BY_DJANGO": env_bool("REGISTRY_MEDIA_BY_DJANGO", False),
+    "EXPORT_FRAME": int(os.environ.get("REGISTRY_EXPORT_FRAME", "7912") or "7912"),
     # The office geoid model's name as documents and pages print it (default: its file name).
     "GEOID_NAME": os.environ.get("REGISTRY_GEOID_NAME", "").strip(),
     # Statement style for check-point residuals uploaded with a control report: nssda or asprs2023.

@@ -26,6 +26,7 @@ urlpatterns = [
     # exports (import-export area); before marks/<code>/ so that the names never read as a code
     path("marks/export.csv", exports_api.MarksExportCsvView.as_view(), name="marks-export-csv"),
     path("marks/export.geojson", exports_api.MarksExportGeoJSONView.as_view(), name="marks-export-geojson"),
+    path("marks/export.gpkg", exports_api.MarksExportGeoPackageView.as_view(), name="marks-export-gpkg"),
     path("marks/export", exports_api.MarksExportView.as_view(), name="marks-export"),
     # nearby marks (search area); before marks/<code>/ so that "near" never reads as a code
     path("marks/near/", nearby_api.MarksNearView.as_view(), name="marks-near"),

@@ -49,6 +49,7 @@ __all__ = [
     "ACCURACY_CLASSES",
     "ASPRS2023_BIAS_FRACTION",
     "ASPRS2023_BLUNDER_FACTOR",
+    "covariance_from_sigmas_m2",
     "ASPRS2023_MIN_CHECKPOINTS",
     "BEYOND_TABLE_CLASS",
     "ComputationInputError",
@@ -605,12 +606,54 @@ class NssdaResult:
     horizontal_method: str | None
     vertical_95_m: float | None
     findings: tuple[Finding, ...]
+    blunders: tuple[tuple[int, str], ...] = ()  # (index of check point, axis), as for ASPRS
+
+
+def covariance_from_sigmas_m2(sigma_e_m: Any, sigma_n_m: Any, correlation_en: Any = 0.0):
+    """East/north variances and covariance (m²) from standard deviations (m) and their correlation.
+
+    var_e = σe², cov_en = ρ·σe·σn, var_n = σn² (the definition of the correlation coefficient).
+    Vectorised; ``ComputationInputError`` for a negative σ or |ρ| > 1.
+
+    >>> [round(v, 12) for v in covariance_from_sigmas_m2(0.004, 0.003, 0.5)]
+    [1.6e-05, 6e-06, 9e-06]
+    """
+    se = np.asarray(sigma_e_m, dtype=float)
+    sn = np.asarray(sigma_n_m, dtype=float)
+    rho = np.asarray(correlation_en, dtype=float)
+    if not (np.all(np.isfinite(se)) and np.all(np.isfinite(sn)) and np.all(np.isfinite(rho))):
+        raise ComputationInputError("Sigmas and the correlation must be finite numbers.", code="not_finite")
+    if np.any(se < 0.0) or np.any(sn < 0.0):
+        raise ComputationInputError("A standard deviation cannot be negative.", code="negative_sigma")
+    if np.any(np.abs(rho) > 1.0):
+        raise ComputationInputError("A correlation lies between −1 and 1.", code="bad_correlation")
+    var_e, cov_en, var_n = se * se, rho * se * sn, sn * sn
+    if var_e.ndim == 0:
+        return float(var_e), float(cov_en), float(var_n)
+    return var_e, cov_en, var_n
+
+
+def _blunders(axes: tuple[tuple[str, Any], ...], summaries: dict) -> list[tuple[int, str]]:
+    """Residuals beyond ``ASPRS2023_BLUNDER_FACTOR`` × the measured RMSE of their axis, vectorised per axis.
+
+    The same rule for the NSSDA and ASPRS styles: a blunder is investigated, never silently removed
+    (ASPRS Positional Accuracy Standards, Edition 2 (2023); the NSSDA, FGDC-STD-007.3-1998, assumes
+    blunders were removed before testing, so flagging them is the conservative reading).
+    """
+    found: list[tuple[int, str]] = []
+    for axis, arr in axes:
+        if arr is None:
+            continue
+        rms = summaries[axis].rmse_m
+        found.extend((int(i), axis) for i in np.flatnonzero(np.abs(arr) > ASPRS2023_BLUNDER_FACTOR * rms))
+    return found
 
 
 def nssda_evaluate(de_m: Any = None, dn_m: Any = None, du_m: Any = None) -> NssdaResult:
     """Evaluate check-point residuals (dataset − check, m) by the NSSDA.
 
-    Flags fewer than 20 check points, a ratio RMSE_min/RMSE_max below 0.6, and a mean error above
+    Flags fewer than 20 check points, a ratio RMSE_min/RMSE_max below 0.6, residuals beyond 3 × the
+    measured axis RMSE (blunders, as the ASPRS style does; listed, never removed), and a mean error above
     25 % of an axis' measured RMSE (NSSDA assumes systematic errors have been removed; the 25 %
     guideline is borrowed from ASPRS Edition 2, which compares with the target RMSE (from memory,
     unconfirmed); the NSSDA has no target, so the finding is worded against the measured RMSE).
@@ -644,7 +687,10 @@ def nssda_evaluate(de_m: Any = None, dn_m: Any = None, du_m: Any = None) -> Nssd
             0, Finding("too_few_checkpoints", {"n": n, "minimum": NSSDA_MIN_CHECKPOINTS, "standard": "nssda"})
         )
     findings.extend(_bias_findings(summaries, ASPRS2023_BIAS_FRACTION))
-    return NssdaResult(n, x, y, z, rmse_r, horizontal, method, vertical, tuple(findings))
+    blunders = _blunders((("x", de), ("y", dn), ("z", du)), summaries)
+    if blunders:
+        findings.append(Finding("blunders", {"count": len(blunders), "factor": ASPRS2023_BLUNDER_FACTOR}))
+    return NssdaResult(n, x, y, z, rmse_r, horizontal, method, vertical, tuple(findings), tuple(blunders))
 
 
 @dataclass(frozen=True)
@@ -753,12 +799,7 @@ def asprs2023_evaluate(
     if h is not None and v is not None:
         d3 = float(quadrature_sum_m(h, v))
     findings.extend(_bias_findings(summaries, ASPRS2023_BIAS_FRACTION, target_xy, target_z))
-    for axis, arr in (("x", de), ("y", dn), ("z", du)):
-        if arr is None:
-            continue
-        rms = summaries[axis].rmse_m
-        for i in np.flatnonzero(np.abs(arr) > ASPRS2023_BLUNDER_FACTOR * rms):
-            blunders.append((int(i), axis))
+    blunders.extend(_blunders((("x", de), ("y", dn), ("z", du)), summaries))
     if blunders:
         findings.append(Finding("blunders", {"count": len(blunders), "factor": ASPRS2023_BLUNDER_FACTOR}))
     for component, product, survey in (("horizontal", h1, h2), ("vertical", v1, v2)):

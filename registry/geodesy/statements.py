@@ -214,15 +214,17 @@ def finding_text(finding: Finding, *, style: str | None = None) -> str:
         return (
             f"RMSE_min/RMSE_max = {p['ratio']:.3f} is below {p['limit']:g}, where the NSSDA approximation "
             "2.4477 × 0.5 × (RMSE_x + RMSE_y) no longer holds; the circular-error method of Greenwalt & Shultz "
-            "(1968), the same K polynomial FGDC-STD-007.2-1998 uses (K × RMSE_max), is used instead. That this is "
-            "the method the NSSDA refers to here is from memory, unconfirmed."
+            "(1968), the same K polynomial FGDC-STD-007.2-1998 uses (K × RMSE_max), is used instead "
+            "(FGDC-STD-007.3-1998, Appendix 3-A)."
         )
+        # Provenance (kept out of the sentence users read): that App. 3-A points to this method is from
+        # memory, unconfirmed; see registry.geodesy.accuracy and tests/geodesy/test_accuracy.py.
     if code == "bias":
         axis = _AXIS_NAMES.get(p["axis"], p["axis"])
         if p.get("reference") == "target":
             compared = (
                 f"{p['ratio'] * 100:.0f} % of the target RMSE ({p['target_rmse_m']:.4f} m), above the "
-                f"{p['limit'] * 100:.0f} % limit (the ASPRS Edition 2 rule as we recall it, unconfirmed)."
+                f"{p['limit'] * 100:.0f} % limit of the ASPRS Positional Accuracy Standards, Edition 2 (2023)."
             )
         else:
             compared = (
@@ -563,6 +565,11 @@ def accuracy_report(
             horizontal_method=r.horizontal_method,
             horizontal_formula=NSSDA_FORMULAS.get(r.horizontal_method) if r.horizontal_method else None,
             axes=_axes(r),
+            blunders=[
+                {"point_id": residuals.point_ids[i], "axis": axis, "residual_m": float(arr[i])}
+                for i, axis in r.blunders
+                for arr in ({"x": residuals.de_m, "y": residuals.dn_m, "z": residuals.du_m}[axis],)
+            ],
         )
         findings.extend(r.findings)
         lines = nssda_statement_lines(r.horizontal_95_m, r.vertical_95_m)

@@ -253,6 +253,33 @@ class _RowChecker:
     def add(self, code: str, message: str, field_name: str = "") -> None:
         self.errors.append(RowError(self.where, self.index, code, message, field_name, self.mark_code))
 
+    def angle(self, raw: dict[str, Any], name: str, kind: str) -> float | None:
+        """A latitude or longitude: a decimal number, or D M S text with the hemisphere as on the forms
+        ("45 12 03.5 N", "110°36′W"), through :func:`registry.geodesy.dms.parse_angle`."""
+        value = raw.get(name)
+        if isinstance(value, str) and not _is_blank(value) and any(ch.isdigit() for ch in value):
+            text = value.strip()
+            try:
+                return float(text)
+            except ValueError:
+                from registry.geodesy.dms import AngleParseError, parse_angle
+
+                letters = "NS" if kind == "lat" else "EW"
+                if not any(ch in "NSEW" for ch in text.upper()):
+                    word = "latitude" if kind == "lat" else "longitude"
+                    self.add(
+                        "dms_without_hemisphere",
+                        f"{word} {value!r}: D M S needs its hemisphere letter ({letters[0]} or {letters[1]})",
+                        name,
+                    )
+                    return None
+                try:
+                    return parse_angle(text, kind=kind)
+                except AngleParseError as exc:
+                    self.add("not_an_angle", f"{exc} Use decimal degrees or D M S with the hemisphere.", name)
+                    return None
+        return self.number(raw, name)
+
     def number(self, raw: dict[str, Any], name: str, *, integer: bool = False) -> float | int | None:
         value = raw.get(name)
         if _is_blank(value):
@@ -418,7 +445,7 @@ def _validate_position(raw: dict[str, Any], chk: _RowChecker) -> dict[str, Any] 
     limits = {"lat_deg": (-90.0, 90.0), "lon_deg": (-180.0, 180.0), "h_m": (H_MIN_M, H_MAX_M)}
     words = {"lat_deg": "latitude", "lon_deg": "longitude", "h_m": "ellipsoidal height"}
     for name, (low, high) in limits.items():
-        value = chk.number(raw, name)
+        value = chk.angle(raw, name, name[:3]) if name in ("lat_deg", "lon_deg") else chk.number(raw, name)
         if value is None:
             if _is_blank(raw.get(name)):
                 chk.add("coordinate_required", f"a position needs its {words[name]}", name)

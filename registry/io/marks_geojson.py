@@ -140,8 +140,11 @@ def _json_value(value: Any) -> Any:
     return value.isoformat() if isinstance(value, dt.date) else value
 
 
-def write_marks_geojson(rows: list[dict]) -> str:
+def write_marks_geojson(rows: list[dict], *, frame_epsg: int | None = None, frame_name: str = "") -> str:
     """GeoJSON text of export rows (``registry.io.common.export_values``).
+
+    With ``frame_epsg`` (the export: one frame per file) the collection names its frame in a ``frame``
+    member (RFC 7946 §6.1 foreign member): ``{"epsg", "name", "note"}``.
 
     Numbers are JSON numbers written with Python's shortest exact representation, so they read back
     to the same floats. Mark fields always appear; position properties are null without a position.
@@ -160,4 +163,15 @@ def write_marks_geojson(rows: list[dict]) -> str:
     # One feature per line: readable, and a change to one mark is a one-line difference.
     lines = [json.dumps(f, ensure_ascii=False, allow_nan=False) for f in features]
     body = ",\n".join(lines)
-    return '{"type": "FeatureCollection", "features": [\n' + body + ("\n" if lines else "") + "]}\n"
+    head = '{"type": "FeatureCollection", '
+    if frame_epsg is not None:
+        frame = {
+            "epsg": int(frame_epsg),
+            "name": frame_name or f"EPSG:{frame_epsg}",
+            "note": (
+                f"Coordinates are in {frame_name or 'this frame'} (EPSG:{frame_epsg}) at each feature's epoch_yr, "
+                "not WGS 84; one frame per file."
+            ),
+        }
+        head += '"frame": ' + json.dumps(frame, ensure_ascii=False) + ", "
+    return head + '"features": [\n' + body + ("\n" if lines else "") + "]}\n"

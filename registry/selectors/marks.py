@@ -30,12 +30,14 @@ from registry.models import (
     HeightRecord,
     Mark,
     MarkStatus,
+    MonumentKind,
     MovementCheck,
     Occupation,
     Position,
     PositionState,
     Visit,
 )
+from registry.services.usability import Usability, assess
 
 MATCH_PREFIX = "prefix"
 MATCH_CONTAINS = "contains"
@@ -86,7 +88,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
         ``"prefix"`` (default) or ``"contains"``.
     text
         Free text: every word must occur (anywhere, case-insensitive) in the code, name,
-        marking or keeper.
+        marking, keeper, how the monument is set, or the words of its monument kind.
     status
         A :class:`~registry.models.MarkStatus` value, or empty for all.
 
@@ -94,7 +96,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
     -------
     QuerySet[Mark]
         Annotated with ``src_frame_epsg``/``src_epoch_yr`` (the published position the
-        search location comes from), ``n_positions``, ``n_published``, ``last_visit_on`` and
+        search location comes from), ``n_positions``, ``n_published``, ``n_proposed``, ``last_visit_on`` and
         ``last_visit_finding``.
     """
     qs = mark_filter(q=q, match=match, text=text)
@@ -106,6 +108,7 @@ def mark_search(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", statu
         src_epoch_yr=_search_position("epoch_yr"),
         n_positions=_count_subquery(Position.objects.filter(mark=OuterRef("pk"))),
         n_published=_count_subquery(Position.objects.filter(mark=OuterRef("pk"), state=PositionState.PUBLISHED)),
+        n_proposed=_count_subquery(Position.objects.filter(mark=OuterRef("pk"), state=PositionState.PROPOSED)),
         last_visit_on=Subquery(last_visit.values("visited_on")[:1]),
         last_visit_finding=Subquery(last_visit.values("finding")[:1]),
     ).order_by("code")
@@ -121,10 +124,25 @@ def mark_filter(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> Qu
         else:
             qs = qs.filter(Q(code__istartswith=q) | Q(name__istartswith=q))
     for word in (text or "").split():
+        # the monument's kind is matched by its words ("disk" finds "disk set in rock outcrop")
+        kinds = [value for value, label in MonumentKind.choices if word.lower() in str(label).lower()]
         qs = qs.filter(
-            Q(code__icontains=word) | Q(name__icontains=word) | Q(marking__icontains=word) | Q(keeper__icontains=word)
+            Q(code__icontains=word)
+            | Q(name__icontains=word)
+            | Q(marking__icontains=word)
+            | Q(keeper__icontains=word)
+            | Q(monument_detail__icontains=word)
+            | Q(monument__in=kinds)
         )
     return qs
+
+
+def attach_usability(rows) -> list:
+    """The rows of :func:`mark_search` as a list, each with ``usability`` (status and latest visit)."""
+    rows = list(rows)
+    for m in rows:
+        m.usability = assess(m.status, getattr(m, "last_visit_finding", None), suspect_reason=m.suspect_reason)
+    return rows
 
 
 def mark_status_counts(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> dict[str, int]:
@@ -149,8 +167,20 @@ _BOOKKEEPING_KEYS = frozenset(
         "uploaded_at",
         "uploaded_by",
         "uploaded_by_id",
+        "file",  # the stored file's internal name; the original name is shown
     }
 )
+
+
+#: Kinds of audited things, in words (the history names a position by frame, epoch and source instead).
+_OBJECT_WORDS = {
+    "visit": "a visit",
+    "occupation": "an occupation",
+    "attachment": "a file",
+    "heightrecord": "a height record",
+    "document": "a document",
+    "job": "a job",
+}
 
 
 @dataclass
@@ -164,6 +194,9 @@ class HistoryEntry:
     event: AuditEvent
     changes: list[tuple[str, Any, Any]] = field(default_factory=list)
     is_record: bool = False
+    #: in words for the page: what happened, to what (a position by frame, epoch and source)
+    what: str = ""
+    subject: str = ""
 
 
 @dataclass
@@ -179,6 +212,7 @@ class MarkDetail:
     files: list[Attachment]
     history: list[HistoryEntry]
     history_truncated: bool
+    usability: Usability | None = None
 
     @property
     def current_positions(self) -> list[Position]:
@@ -203,15 +237,67 @@ def mark_history(*, mark: Mark, limit: int = HISTORY_LIMIT) -> tuple[list[Histor
     """The mark's audit events, newest first, at most ``limit``; and whether more exist."""
     events = list(AuditEvent.objects.filter(mark=mark).select_related("actor").order_by("-at", "-pk")[: limit + 1])
     truncated = len(events) > limit
+    from registry.web.wording import POSITION_KEYS, USER_KEYS, action_words, describe_position, field_words, value_words
+
+    events = events[:limit]
+    # what the events point at, read once: positions (by frame, epoch, source) and people (by name)
+    position_ids: set[int] = set()
+    user_ids: set[int] = set()
+    visit_ids: set[int] = set()
+    occupation_ids: set[int] = set()
+    for e in events:
+        if e.object_type == "position" and str(e.object_id).isdigit():
+            position_ids.add(int(e.object_id))
+        for snap in (e.before, e.after):
+            if isinstance(snap, dict):
+                for key in POSITION_KEYS:
+                    if isinstance(snap.get(key), int):
+                        position_ids.add(snap[key])
+                for key in USER_KEYS:
+                    if isinstance(snap.get(key), int):
+                        user_ids.add(snap[key])
+                if isinstance(snap.get("visit_id"), int):
+                    visit_ids.add(snap["visit_id"])
+                if isinstance(snap.get("occupation_id"), int):
+                    occupation_ids.add(snap["occupation_id"])
+    positions = {p.pk: p for p in Position.objects.filter(pk__in=position_ids)} if position_ids else {}
+    users = {}
+    if user_ids:
+        from django.contrib.auth import get_user_model
+
+        for u in get_user_model().objects.filter(pk__in=user_ids):
+            users[u.pk] = u.get_full_name() or u.username
+
+    others: dict[tuple[str, int], str] = {}
+    if visit_ids:
+        for v in Visit.objects.filter(pk__in=visit_ids):
+            others[("visit_id", v.pk)] = f"the visit of {v.visited_on:%Y-%m-%d} ({v.get_finding_display()})"
+    if occupation_ids:
+        for o in Occupation.objects.filter(pk__in=occupation_ids):
+            others[("occupation_id", o.pk)] = f"the {o.get_method_display()} session of {o.start_utc:%Y-%m-%d}"
+
     entries = []
-    for e in events[:limit]:
+    for e in events:
         is_record = e.before is None and isinstance(e.after, dict)
         changes = [
-            c
-            for c in audit_changes(e.before, e.after)
-            if c[0] not in _BOOKKEEPING_KEYS and not (is_record and c[2] in (None, ""))
+            (
+                field_words(name, e.object_type or "mark"),
+                value_words(name, before, positions=positions, users=users, others=others),
+                value_words(name, after, positions=positions, users=users, others=others),
+            )
+            for name, before, after in audit_changes(e.before, e.after)
+            if name not in _BOOKKEEPING_KEYS and not (is_record and after in (None, ""))
         ]
-        entries.append(HistoryEntry(event=e, changes=changes, is_record=is_record))
+        if e.object_type == "position":
+            p = positions.get(int(e.object_id)) if str(e.object_id).isdigit() else None
+            subject = f"Position in {describe_position(p)}" if p is not None else "A position no longer on record"
+        elif e.object_type == "mark":
+            subject = ""
+        else:
+            subject = _OBJECT_WORDS.get(e.object_type, (e.object_type or "").replace("_", " ")).capitalize()
+        entries.append(
+            HistoryEntry(event=e, changes=changes, is_record=is_record, what=action_words(e.action), subject=subject)
+        )
     return entries, truncated
 
 
@@ -225,7 +311,7 @@ def mark_detail(*, code: str) -> MarkDetail:
     )
     positions = list(
         Position.objects.filter(mark=mark)
-        .select_related("created_by", "decided_by")
+        .select_related("created_by", "decided_by", "superseded_by")
         .annotate(state_rank=rank)
         .order_by("state_rank", "-epoch_yr", "-created_at", "-pk")
     )
@@ -273,4 +359,5 @@ def mark_detail(*, code: str) -> MarkDetail:
         files=[a for a in attachments if a.kind != AttachmentKind.PHOTO],
         history=history,
         history_truncated=truncated,
+        usability=assess(mark.status, visits[0].finding if visits else None, suspect_reason=mark.suspect_reason),
     )

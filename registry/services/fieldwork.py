@@ -32,6 +32,7 @@ from django.db import transaction
 from django.utils import timezone
 from django.utils.text import get_valid_filename
 
+from registry.errors import Conflict
 from registry.geodesy.accuracy import ComputationInputError
 from registry.geodesy.antenna import slant_to_vertical_arp_m
 from registry.models import (
@@ -60,6 +61,7 @@ from registry.services.access import access_mark_by_code
 from registry.services.audit import audit_record, snapshot
 from registry.services.limits import check_text_limits
 from registry.services.suspect import visit_suspicion
+from registry.services.usability import assess
 from registry.vocabulary import OLD_VISIT_FIELDS, new_finding, rename_old_keys
 
 VISIT_FIELDS = ("visited_on", "finding", "visitor", "notes")
@@ -219,6 +221,11 @@ def occupation_record(*, actor, mark_code: str, data: dict) -> Occupation:
 
     with transaction.atomic():
         mark = access_mark_by_code(actor, mark_code, ability=Ability.RECORD)
+        if not assess(mark.status).occupation_allowed:
+            raise Conflict(
+                f"Mark {mark.code} is recorded as destroyed; a destroyed mark takes no occupations.",
+                code="mark_destroyed",
+            )
         result_position = None
         if result_id is not None:
             result_position = Position.objects.filter(pk=result_id, mark=mark).first()

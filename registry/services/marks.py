@@ -134,7 +134,9 @@ def _who_changed(mark: Mark, field: str, since_version: int) -> tuple[str | None
     for event in events:
         after = event.after or {}
         if field in after and int(after.get("version", 0) or 0) > since_version:
-            return (event.actor.get_username() if event.actor else None, event.at.isoformat())
+            if event.actor is None:
+                return None, event.at.isoformat()
+            return (event.actor.get_full_name() or event.actor.get_username(), event.at.isoformat())
     return None, None
 
 
@@ -193,11 +195,17 @@ def mark_create(*, actor, data: dict) -> Mark:
     return mark
 
 
-def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Mark:
+def mark_update(*, actor, code: str, expected_version: int, changes: dict, base: dict | None = None) -> Mark:
     """Edit descriptive fields of a mark, starting from ``expected_version``.
 
     Submitted values equal to the stored ones change nothing (no version bump, no
     audit row) as long as the version is current.
+
+    Three-way merge: with ``base`` (the values of the changed fields as the user loaded them at
+    ``expected_version``), a stale edit is not refused outright. Only the fields in ``changes`` are
+    compared: a field someone else changed meanwhile conflicts only if they changed it too and to
+    a different value; if no field conflicts, the changes are applied on top of the stored version
+    (the audit row's note says so). Without ``base`` (API, imports) any stale version is refused.
 
     Raises
     ------
@@ -216,9 +224,19 @@ def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Ma
     if not cleaned:
         raise ValidationError("Nothing to change.", code="no_changes")
     conflict: Conflict | None = None
+    merged_over: int | None = None
     with transaction.atomic():
         mark = access_mark_by_code(actor, code, ability=Ability.MANAGE)
         _validate_on(mark, cleaned)
+        if base is not None and mark.version > version:
+            loaded = _clean_input({k: base[k] for k in cleaned if k in base}, EDITABLE_FIELDS)
+            clashes = [
+                k
+                for k, mine in cleaned.items()
+                if k not in loaded or (getattr(mark, k) != loaded[k] and getattr(mark, k) != mine)
+            ]
+            if not clashes:
+                merged_over, version = version, mark.version
         diff = {k: v for k, v in cleaned.items() if getattr(mark, k) != v}
         if not diff and mark.version == version:
             return mark
@@ -228,7 +246,17 @@ def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Ma
             **diff, version=F("version") + 1, updated_at=now
         )
         if updated == 0:
-            current, conflict = _conflict(mark.pk, cleaned, version)
+            if base is not None:
+                loaded = _clean_input({k: base[k] for k in cleaned if k in base}, EDITABLE_FIELDS)
+                current = Mark.objects.get(pk=mark.pk)
+                clashes = {
+                    k: v
+                    for k, v in cleaned.items()
+                    if k not in loaded or (getattr(current, k) != loaded[k] and getattr(current, k) != v)
+                }
+                current, conflict = _conflict(mark.pk, clashes or cleaned, version)
+            else:
+                current, conflict = _conflict(mark.pk, cleaned, version)
             audit_record(
                 actor=actor,
                 action="mark_update_refused",
@@ -245,6 +273,12 @@ def mark_update(*, actor, code: str, expected_version: int, changes: dict) -> Ma
                 obj=mark,
                 before={**before, "version": version},
                 after={**diff, "version": mark.version},
+                note=(
+                    f"Started from version {merged_over}; merged over version {version}: the fields changed "
+                    "meanwhile by others were not touched."
+                    if merged_over is not None
+                    else ""
+                ),
             )
             printed = sorted(set(diff) & SHEET_FIELDS)
             if printed:

@@ -47,6 +47,7 @@ from registry.services.movement import (
     movement_compare,
 )
 from registry.services.suspect import lift_suspicion, mark_make_suspect
+from registry.services.usability import assess
 
 COV_FIELDS = rules.COV_FIELDS
 VEL_FIELDS = rules.VEL_FIELDS
@@ -159,7 +160,7 @@ def position_propose(*, actor, mark_code: str, data: dict, suspect_on_movement: 
     cleaned = _parse_position(data)
     with transaction.atomic():
         mark = access_mark_by_code(actor, mark_code, ability=Ability.RECORD, for_update=True)
-        if mark.status == MarkStatus.DESTROYED:
+        if not assess(mark.status).new_position_allowed:
             raise Conflict(
                 f"Mark {mark.code} is recorded as destroyed; a destroyed mark gets no new positions.",
                 code="mark_destroyed",

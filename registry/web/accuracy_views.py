@@ -1,6 +1,7 @@
 """The accuracy statement page (``/tools/accuracy/``, every role from viewer up).
 
-A form takes either a point's east/north covariance (m², optional up variance) or a CSV of check-point
+A form takes a point's east/north standard deviations (mm) and correlation, or its covariance (m²,
+optional up variance), or a CSV of check-point
 residuals (upload or paste), and a style. The page shows exactly what
 :func:`registry.geodesy.statements.accuracy_report` returns: the same function serves
 ``manage.py accuracy_statement`` and ``POST /api/accuracy/``. Nothing is stored.
@@ -13,7 +14,7 @@ from django.core.exceptions import ValidationError
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import render
 
-from registry.geodesy.accuracy import ComputationInputError
+from registry.geodesy.accuracy import ComputationInputError, covariance_from_sigmas_m2
 from registry.geodesy.statements import RESIDUAL_COLUMNS, STANDARD_NAMES, accuracy_report, parse_residuals_csv
 from registry.roles import Ability
 from registry.web.views import ability_required
@@ -28,10 +29,20 @@ STYLE_CHOICES = [("", "default for the input (FGDC for a covariance, NSSDA for r
 class AccuracyForm(forms.Form):
     source = forms.ChoiceField(
         label="Input",
-        choices=[("covariance", "a point's covariance"), ("residuals", "check-point residuals")],
+        choices=[
+            ("sigmas", "a point's standard deviations (mm) and correlation"),
+            ("covariance", "a point's covariance (m²)"),
+            ("residuals", "check-point residuals"),
+        ],
         widget=forms.RadioSelect,
-        initial="covariance",
+        initial="sigmas",
     )
+    sigma_e_mm = forms.FloatField(label="σ east (mm)", required=False, min_value=0.0)
+    sigma_n_mm = forms.FloatField(label="σ north (mm)", required=False, min_value=0.0)
+    corr_en = forms.FloatField(
+        label="Correlation east–north (−1 to 1)", required=False, min_value=-1.0, max_value=1.0, initial=0.0
+    )
+    sigma_u_mm = forms.FloatField(label="σ up, ellipsoid height (mm, optional)", required=False, min_value=0.0)
     var_e_m2 = forms.FloatField(label="Variance east (m²)", required=False)
     cov_en_m2 = forms.FloatField(label="Covariance east–north (m²)", required=False)
     var_n_m2 = forms.FloatField(label="Variance north (m²)", required=False)
@@ -46,7 +57,11 @@ class AccuracyForm(forms.Form):
         data = super().clean()
         if self.errors:
             return data
-        if data.get("source") == "covariance":
+        if data.get("source") == "sigmas":
+            missing = [f for f in ("sigma_e_mm", "sigma_n_mm") if data.get(f) is None]
+            for name in missing:
+                self.add_error(name, ValidationError("Needed for standard deviations.", code="required"))
+        elif data.get("source") == "covariance":
             missing = [f for f in ("var_e_m2", "cov_en_m2", "var_n_m2") if data.get(f) is None]
             for name in missing:
                 self.add_error(name, ValidationError("Needed for a covariance.", code="required"))
@@ -75,6 +90,16 @@ class AccuracyForm(forms.Form):
         """Run the shared report; its input errors become form errors (with their codes)."""
         data = self.cleaned_data
         try:
+            if data["source"] == "sigmas":
+                cov = covariance_from_sigmas_m2(
+                    data["sigma_e_mm"] / 1000.0, data["sigma_n_mm"] / 1000.0, data.get("corr_en") or 0.0
+                )
+                sigma_u = data.get("sigma_u_mm")
+                return accuracy_report(
+                    style=data.get("style") or None,
+                    cov_en_m2=cov,
+                    var_u_m2=None if sigma_u is None else (sigma_u / 1000.0) ** 2,
+                )
             if data["source"] == "covariance":
                 return accuracy_report(
                     style=data.get("style") or None,

@@ -93,18 +93,73 @@ class AngleField(forms.CharField):
 # ----------------------------------------------------------------------------- visit
 
 
+PHOTO_SLOTS = 4
+
+
 class VisitForm(ServiceErrorsMixin, forms.Form):
+    """A visit. The date defaults to today and the visitor to the signed-in user; what was found has no
+    default (a false "intact" is worse than a missing answer). Each photo has its own caption."""
+
     visited_on = forms.DateField(
         label="Date of the visit", widget=forms.DateInput(attrs={"type": "date"}), help_text="YYYY-MM-DD."
     )
-    finding = forms.ChoiceField(label="What was found", choices=Finding.choices)
+    finding = forms.ChoiceField(
+        label="What was found",
+        choices=[("", "— choose what the crew found —"), *Finding.choices],
+        error_messages={"required": "Say what the crew found at the mark."},
+    )
     visitor = forms.CharField(max_length=120, required=False, help_text="Who visited (name or crew).")
     notes = forms.CharField(widget=forms.Textarea(attrs={"rows": 4}), required=False)
     photos = MultipleFileField(
-        label="Photos", help_text="Optional; several files allowed. Each is stored with its SHA-256 checksum."
+        label="More photos (without captions)",
+        help_text="Optional; several files allowed. Each is stored with its SHA-256 checksum.",
     )
-    caption = forms.CharField(max_length=200, required=False, help_text="Optional caption for the photos.")
     service_field_map = {"file": "photos", "kind": "photos"}
+
+    def __init__(self, *args, user=None, **kwargs):
+        super().__init__(*args, **kwargs)
+        import datetime as _dt
+
+        from django.utils import timezone
+
+        if not self.is_bound:
+            self.initial.setdefault("visited_on", timezone.now().astimezone(_dt.UTC).date())
+            if user is not None and getattr(user, "is_authenticated", False):
+                self.initial.setdefault("visitor", user.get_full_name() or user.get_username())
+        photos = self.fields.pop("photos")
+        for i in range(1, PHOTO_SLOTS + 1):
+            self.fields[f"photo_{i}"] = forms.FileField(label=f"Photo {i}", required=False)
+            self.fields[f"caption_{i}"] = forms.CharField(
+                label=f"Caption of photo {i}",
+                max_length=200,
+                required=False,
+                widget=forms.TextInput(attrs={"placeholder": "what the photo shows, e.g. looking north at the disk"}),
+            )
+        self.fields["photos"] = photos
+
+    def clean(self):
+        data = super().clean()
+        for i in range(1, PHOTO_SLOTS + 1):
+            if data.get(f"caption_{i}") and not data.get(f"photo_{i}"):
+                self.add_error(f"photo_{i}", ValidationError("A caption was given without its photo.", code="no_photo"))
+        return data
+
+    def main_fields(self) -> list:
+        return [self[n] for n in ("visited_on", "finding", "visitor", "notes")]
+
+    def extra_photo_fields(self) -> list:
+        return [self["photos"]]
+
+    def photo_slots(self) -> list[tuple[Any, Any]]:
+        """(photo, caption) bound fields, for the page's photo rows."""
+        return [(self[f"photo_{i}"], self[f"caption_{i}"]) for i in range(1, PHOTO_SLOTS + 1)]
+
+    def photo_pairs(self) -> list[tuple[Any, str]]:
+        """(file, caption) for every photo sent: the captioned slots first, then the extra ones."""
+        d = self.cleaned_data
+        pairs = [(d[f"photo_{i}"], d.get(f"caption_{i}", "")) for i in range(1, PHOTO_SLOTS + 1) if d.get(f"photo_{i}")]
+        pairs += [(f, "") for f in d.get("photos") or []]
+        return pairs
 
     def visit_data(self) -> dict[str, Any]:
         d = self.cleaned_data
@@ -362,6 +417,12 @@ class NearbyForm(forms.Form):
     lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees or D M S with E/W.")
     radius_km = forms.FloatField(label="Radius (km)", min_value=0.001, max_value=1000.0, initial=5.0)
     limit = forms.IntegerField(label="At most", min_value=1, max_value=500, initial=50)
+    usable = forms.ChoiceField(
+        label="Show",
+        required=False,
+        choices=[("usable", "usable marks only"), ("all", "all marks, including those not for use")],
+        initial="usable",
+    )
     status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
     stability = forms.ChoiceField(
         label="Stability", required=False, choices=[("", "any stability"), *Stability.choices]
@@ -379,4 +440,9 @@ class NearbyForm(forms.Form):
         for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg"):
             if d.get(key) not in (None, ""):
                 args[key] = d[key]
+        if self.usable_only() and "status" not in args:
+            args["status"] = MarkStatus.ACTIVE  # the rest of the rule (latest visit) is applied to the rows
         return args
+
+    def usable_only(self) -> bool:
+        return (self.cleaned_data.get("usable") or "usable") == "usable"

@@ -23,17 +23,22 @@ from registry.services.held_uploads import hold_upload, release_held_upload, tak
 from registry.services.marks import mark_set_status
 from registry.services.rinex import occupation_from_rinex, rinex_prefill
 from registry.services.suspect import mark_clear_suspect
+from registry.services.usability import mark_usability
 from registry.web.fieldwork_forms import ClearSuspectForm, MarkStatusForm, OccupationForm, VisitForm
 from registry.web.views import ability_required
 
 
 def _record_with_files(record, files, *, kind: str, link: str, caption: str = ""):
-    """Run ``record()`` and attach ``files`` to its result in one transaction; clean stored files on failure."""
+    """Run ``record()`` and attach ``files`` to its result in one transaction; clean stored files on failure.
+
+    ``files`` holds files, or (file, caption) pairs (a visit's photos, each with its own caption).
+    """
     stored = []
     try:
         with transaction.atomic():
             obj = record()
             for f in files:
+                f, caption = f if isinstance(f, tuple) else (f, caption)
                 attachment = attachment_add(
                     actor=record.actor, mark_code=record.mark_code, file=f, kind=kind, caption=caption, **{link: obj.pk}
                 )
@@ -64,13 +69,7 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
         if form.is_valid():
             call = _Call(visit_record, actor=request.user, mark_code=mark.code, data=form.visit_data())
             try:
-                visit, n = _record_with_files(
-                    call,
-                    form.cleaned_data["photos"],
-                    kind="photo",
-                    link="visit_id",
-                    caption=form.cleaned_data["caption"],
-                )
+                visit, n = _record_with_files(call, form.photo_pairs(), kind="photo", link="visit_id")
             except ValidationError as exc:
                 form.add_service_error(exc)
             else:
@@ -80,7 +79,7 @@ def visit_new(request: HttpRequest, code: str) -> HttpResponse:
                 return redirect("web:mark-detail", code=mark.code)
         status = 400
     else:
-        form = VisitForm()
+        form = VisitForm(user=request.user)
     return render(request, "registry/visit_form.html", {"form": form, "mark": mark}, status=status)
 
 
@@ -132,6 +131,9 @@ def _read_rinex(request: HttpRequest, mark) -> tuple[OccupationForm, dict, int]:
 @ability_required(Ability.RECORD)
 def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
     mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
+    if not mark_usability(mark, None).occupation_allowed:
+        messages.error(request, f"Mark {mark.code} is recorded as destroyed; a destroyed mark takes no occupations.")
+        return redirect("web:mark-detail", code=mark.code)
     status = 200
     extra: dict = {}
     if request.method == "POST" and "read_rinex" in request.POST:
@@ -164,6 +166,8 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
                 )
             except ValidationError as exc:
                 form.add_service_error(exc)
+            except Conflict as exc:
+                form.add_error(None, ValidationError(exc.message, code=exc.code))
             else:
                 if token:
                     release_held_upload(token)

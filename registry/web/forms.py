@@ -18,6 +18,30 @@ from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 MARK_FORM_FIELDS = ("code", *MARK_EDITABLE_FIELDS)
 
 
+_LOADED_SALT = "registry.mark-form.loaded"
+
+
+def pack_loaded(mark: Mark) -> str:
+    """The mark's editable values, signed, for the form's hidden ``loaded`` field."""
+    from django.core import signing
+
+    values = {name: getattr(mark, name) for name in MARK_EDITABLE_FIELDS}
+    return signing.dumps({"pk": mark.pk, "version": mark.version, "values": values}, salt=_LOADED_SALT, compress=True)
+
+
+def unpack_loaded(text: str) -> dict[str, Any] | None:
+    from django.core import signing
+
+    if not text:
+        return None
+    try:
+        data = signing.loads(text, salt=_LOADED_SALT)
+    except signing.BadSignature:
+        return None
+    values = data.get("values") if isinstance(data, dict) else None
+    return values if isinstance(values, dict) else None
+
+
 class MarkSearchForm(forms.Form):
     q = forms.CharField(label="Code or name", required=False, max_length=120)
     match = forms.ChoiceField(
@@ -25,7 +49,7 @@ class MarkSearchForm(forms.Form):
         required=False,
         choices=[(MATCH_PREFIX, "starts with"), (MATCH_CONTAINS, "contains")],
     )
-    text = forms.CharField(label="Free text (code, name, marking, keeper)", required=False, max_length=200)
+    text = forms.CharField(label="Free text (code, name, marking, keeper, monument)", required=False, max_length=200)
     status = forms.ChoiceField(label="Status", required=False, choices=[("", "any status"), *MarkStatus.choices])
 
     def filters(self) -> dict[str, str]:
@@ -43,13 +67,17 @@ class MarkForm(forms.Form):
     """Create or edit a mark. ``version`` is the mark's version when the form was loaded."""
 
     version = forms.IntegerField(widget=forms.HiddenInput, required=False, min_value=1)
+    #: the editable values as the form was loaded (signed), for the three-way merge of a stale save
+    loaded = forms.CharField(widget=forms.HiddenInput, required=False)
 
     def __init__(self, *args, editing: bool = False, **kwargs):
         super().__init__(*args, **kwargs)
         model_fields = fields_for_model(Mark, fields=MARK_FORM_FIELDS)
         version = self.fields.pop("version")
+        loaded = self.fields.pop("loaded")
         self.fields.update(model_fields)
         self.fields["version"] = version
+        self.fields["loaded"] = loaded
         self.editing = editing
         self.fields["access_directions"].widget.attrs.update(rows=4)
         self.fields["notes"].widget.attrs.update(rows=3)
@@ -67,6 +95,22 @@ class MarkForm(forms.Form):
     def mark_data(self) -> dict[str, Any]:
         """The cleaned values of the mark's fields (not the version)."""
         return {name: self.cleaned_data[name] for name in MARK_FORM_FIELDS if name in self.cleaned_data}
+
+    def loaded_values(self) -> dict[str, Any] | None:
+        """The values the user started from (``None`` if absent or tampered with)."""
+        return unpack_loaded(self.cleaned_data.get("loaded") or "")
+
+    def my_changes(self, mark: Mark) -> tuple[dict[str, Any], dict[str, Any] | None]:
+        """The fields the user changed from what they loaded, and those loaded values (the merge base).
+
+        Without a usable base, the fields that differ from the stored mark (and no base).
+        """
+        base = self.loaded_values()
+        data = {k: v for k, v in self.mark_data().items() if k != "code"}
+        if base is None or not all(k in base for k in data):
+            return self.changes_against(mark), None
+        mine = {k: v for k, v in data.items() if v != base[k]}
+        return mine, {k: base[k] for k in mine}
 
     def changes_against(self, mark: Mark) -> dict[str, Any]:
         """Fields whose submitted value differs from what ``mark`` holds now (code excluded)."""

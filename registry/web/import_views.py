@@ -7,7 +7,15 @@ changed; on success it shows what was created, updated and left unchanged.
 
 from __future__ import annotations
 
+import contextlib
+import hashlib
+import secrets
+import time
+from pathlib import Path
+
 from django import forms
+from django.conf import settings
+from django.core import signing
 from django.core.exceptions import ValidationError
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import render
@@ -59,22 +67,107 @@ class ImportForm(forms.Form):
         return data
 
 
+#: How long a checked file is kept for its import (seconds).
+CHECKED_MAX_AGE_S = 6 * 3600
+_CHECKED_SALT = "registry.import.checked"
+
+
+def _checked_dir() -> Path:
+    return Path(settings.DATA_DIR) / "import-checks"
+
+
+def _keep_checked(*, user, content: bytes, filename: str, fmt: str, update: bool, overwrite: bool) -> str:
+    """Store a file that passed the check; return the signed reference the page carries to import it."""
+    folder = _checked_dir()
+    folder.mkdir(parents=True, exist_ok=True)
+    now = time.time()
+    for old in folder.glob("*.upload"):  # forget files checked long ago
+        with contextlib.suppress(OSError):
+            if now - old.stat().st_mtime > CHECKED_MAX_AGE_S:
+                old.unlink()
+    token = secrets.token_urlsafe(18)
+    (folder / f"{token}.upload").write_bytes(content)
+    return signing.dumps(
+        {
+            "t": token,
+            "u": user.pk,
+            "sha": hashlib.sha256(content).hexdigest(),
+            "name": filename,
+            "fmt": fmt,
+            "update": update,
+            "overwrite": overwrite,
+        },
+        salt=_CHECKED_SALT,
+    )
+
+
+def _read_checked(user, reference: str) -> tuple[dict, bytes]:
+    """The stored file of a reference made by :func:`_keep_checked` for this user; ``ValidationError`` else."""
+    try:
+        ref = signing.loads(reference, salt=_CHECKED_SALT, max_age=CHECKED_MAX_AGE_S)
+    except signing.SignatureExpired:
+        raise ValidationError("The check is too old; choose the file again.", code="check_expired") from None
+    except signing.BadSignature:
+        raise ValidationError("This checked file is not known; choose the file again.", code="check_unknown") from None
+    path = _checked_dir() / f"{ref.get('t', '')}.upload"
+    if ref.get("u") != user.pk or not path.is_file():
+        raise ValidationError("This checked file is not known; choose the file again.", code="check_unknown")
+    content = path.read_bytes()
+    if hashlib.sha256(content).hexdigest() != ref.get("sha"):
+        raise ValidationError("The checked file changed on the server; choose it again.", code="check_changed")
+    return ref, content
+
+
 @ability_required(Ability.MANAGE)
 def import_page(request: HttpRequest) -> HttpResponse:
-    context = {"columns": CSV_COLUMNS, "summary": None, "rejected": None}
+    context = {"columns": CSV_COLUMNS, "summary": None, "rejected": None, "checked": None, "check_error": None}
     status = 200
-    if request.method == "POST":
-        form = ImportForm(request.POST, request.FILES)
-        if form.is_valid():
-            upload = form.cleaned_data["file"]
+    form = ImportForm()
+    if request.method == "POST" and request.POST.get("checked"):
+        # The second step: import the file that passed the check, without choosing it again.
+        reference = request.POST["checked"]
+        try:
+            ref, content = _read_checked(request.user, reference)
+        except ValidationError as exc:
+            context["check_error"] = exc.messages[0]
+            status = 400
+        else:
             try:
                 context["summary"] = mark_import(
                     actor=request.user,
-                    content=upload.read(),
+                    content=content,
+                    filename=ref["name"],
+                    fmt=ref["fmt"] or None,
+                    update=ref["update"],
+                    overwrite=ref["overwrite"],
+                    dry_run=False,
+                )
+            except ImportRejected as exc:
+                context["rejected"] = exc
+                context["filename"] = ref["name"]
+                status = 400
+            except ValidationError as exc:
+                context["check_error"] = exc.messages[0]
+                status = 400
+            (_checked_dir() / f"{ref['t']}.upload").unlink(missing_ok=True)
+    elif request.method == "POST":
+        form = ImportForm(request.POST, request.FILES)
+        if form.is_valid():
+            upload = form.cleaned_data["file"]
+            content = upload.read()
+            options = {
+                "fmt": form.cleaned_data["format"] or "",
+                "update": form.cleaned_data["update"],
+                "overwrite": form.cleaned_data["overwrite"],
+            }
+            try:
+                summary = mark_import(
+                    actor=request.user,
+                    content=content,
                     filename=upload.name,
-                    fmt=form.cleaned_data["format"] or None,
-                    update=form.cleaned_data["update"],
-                    overwrite=form.cleaned_data["overwrite"],
+                    fmt=options["fmt"] or None,
+                    update=options["update"],
+                    overwrite=options["overwrite"],
                     dry_run=form.cleaned_data["dry_run"],
                 )
             except ImportRejected as exc:
@@ -84,9 +177,15 @@ def import_page(request: HttpRequest) -> HttpResponse:
             except ValidationError as exc:
                 form.add_error("format", exc)
                 status = 400
+            else:
+                context["summary"] = summary
+                if summary.dry_run:
+                    context["checked"] = {
+                        "reference": _keep_checked(user=request.user, content=content, filename=upload.name, **options),
+                        "update": options["update"],
+                        "overwrite": options["overwrite"],
+                    }
         else:
             status = 400
-    else:
-        form = ImportForm()
     context["form"] = form
     return render(request, "registry/import.html", context, status=status)

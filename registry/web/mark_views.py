@@ -11,15 +11,17 @@ from django.core.exceptions import ValidationError
 from django.core.paginator import Paginator
 from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
+from django.urls import reverse
 
 from registry.errors import Conflict
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
-from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_search, mark_status_counts
+from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_search, mark_status_counts
 from registry.selectors.timeseries import mark_timeseries
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
-from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
+from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm, pack_loaded
+from registry.web.mark_map import build_map, points_from_marks
 from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
@@ -35,6 +37,8 @@ def mark_list(request: HttpRequest) -> HttpResponse:
         filters = {"q": "", "match": MATCH_PREFIX, "text": "", "status": ""}
     paginator = Paginator(mark_search(**filters), PAGE_SIZE)
     page = paginator.get_page(request.GET.get("page"))
+    page.object_list = attach_usability(page.object_list)
+    markmap = build_map(points_from_marks(page.object_list, lambda code: reverse("web:mark-detail", args=[code])))
     status_counts = mark_status_counts(q=filters["q"], match=filters["match"], text=filters["text"])
     context = {
         "form": form,
@@ -46,6 +50,7 @@ def mark_list(request: HttpRequest) -> HttpResponse:
         "registry_total": Mark.objects.count(),
         "filtered": any(filters[k] for k in ("q", "text", "status")),
         "can_manage": has_ability(request.user, Ability.MANAGE),
+        "markmap": markmap,
     }
     return render(request, "registry/mark_list.html", context)
 
@@ -108,37 +113,48 @@ def mark_edit(request: HttpRequest, code: str) -> HttpResponse:
         raise Http404(f"No mark with code {code!r}.") from None
     initial = {name: getattr(mark, name) for name in MARK_FORM_FIELDS}
     initial["version"] = mark.version
+    initial["loaded"] = pack_loaded(mark)
     conflict = None
     status = 200
     if request.method == "POST":
         form = MarkForm(request.POST, editing=True, initial=initial)
         if form.is_valid():
             loaded_version = form.cleaned_data["version"]
-            changes = form.changes_against(mark)
+            changes, base = form.my_changes(mark)
             if not changes:
-                messages.info(request, f"Nothing to save: mark {mark.code} already holds these values.")
+                messages.info(request, f"Nothing to save: you changed no field of mark {mark.code}.")
                 return redirect("web:mark-detail", code=mark.code)
             try:
-                mark = mark_update(actor=request.user, code=mark.code, expected_version=loaded_version, changes=changes)
+                mark = mark_update(
+                    actor=request.user, code=mark.code, expected_version=loaded_version, changes=changes, base=base
+                )
             except ValidationError as exc:
                 form.add_service_error(exc)
             except Conflict as exc:
+                current = Mark.objects.get(pk=mark.pk)
                 conflict = {
                     "message": exc.message,
                     "rows": _conflict_rows(exc),
                     "loaded_version": loaded_version,
-                    "stored_version": (exc.details or {}).get("version", {}).get("theirs"),
+                    "stored_version": current.version,
                 }
                 status = 409
-                # Keep what the user entered; carry the stored version so that a deliberate
-                # second save (after reading the comparison) is checked against it.
+                # Keep what the user changed; show the stored value of every field they did not touch
+                # (so that a second save cannot undo a colleague's change), and start again from the
+                # stored version: a deliberate second save is checked against it.
                 data = request.POST.copy()
-                if conflict["stored_version"] is not None:
-                    data["version"] = str(conflict["stored_version"])
+                for name in MARK_FORM_FIELDS:
+                    if name != "code" and name not in changes:
+                        data[name] = getattr(current, name)
+                data["version"] = str(current.version)
+                data["loaded"] = pack_loaded(current)
                 form = MarkForm(data, editing=True, initial=initial)
                 form.is_valid()
+                mark = current
             else:
-                messages.success(request, f"Mark {mark.code} saved (version {mark.version}).")
+                merged = mark.version > loaded_version + 1
+                note = " Others had changed other fields meanwhile; their changes are kept." if merged else ""
+                messages.success(request, f"Mark {mark.code} saved (version {mark.version}).{note}")
                 return redirect("web:mark-detail", code=mark.code)
     else:
         form = MarkForm(initial=initial, editing=True)
@@ -173,7 +189,9 @@ def mark_text(request: HttpRequest, code: str, what: str, pk: int | None = None)
         position = Position.objects.filter(mark=mark, pk=pk).first()
         if position is None:
             raise Http404("No such position.")
-        text, title = position.note, f"Note of position {position.pk}"
+        from registry.web.wording import describe_position
+
+        text, title = position.note, f"Note of the position in {describe_position(position)}"
     else:
         raise Http404("No such text.")
     back = redirect("web:mark-detail", code=mark.code).url

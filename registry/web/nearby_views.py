@@ -9,22 +9,27 @@ from __future__ import annotations
 
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import render
+from django.urls import reverse
 
 from registry.errors import InvalidInput
-from registry.geodesy import dms
 from registry.roles import Ability
 from registry.selectors.fieldwork import latest_visits
 from registry.selectors.nearby import CAUTIONS, SEARCH_LOCATION_NOTE, marks_near
+from registry.services.usability import assess
 from registry.web.fieldwork_forms import NearbyForm
+from registry.web.mark_map import MapPoint, build_map
 from registry.web.views import ability_required
 
 
-def _azimuth_dms(azimuth_deg: float | None) -> str | None:
-    """Azimuth in DMS to 0.1″ in [0°, 360°) (a value that rounds up to 360° prints as 0°)."""
+def _azimuth_finding(azimuth_deg: float | None) -> str | None:
+    """Azimuth for finding a mark: degrees to 0.1° in [0°, 360°) (a value that rounds to 360° prints as 0.0°).
+
+    Finding figures are given at finding precision (0.1 m, 0.1°); coordinates for work come from the mark page.
+    """
     if azimuth_deg is None:
         return None
-    text = dms.format_dms(azimuth_deg, decimals=1)
-    return "0°00′00.0″" if text.startswith("360°") else text
+    value = round(float(azimuth_deg) % 360.0, 1)
+    return f"{0.0 if value >= 360.0 else value:.1f}°"
 
 
 @ability_required(Ability.VIEW)
@@ -39,6 +44,8 @@ def marks_near_page(request: HttpRequest) -> HttpResponse:
                 data[key] = value
     form = NearbyForm(data, initial=defaults)
     rows = None
+    markmap = None
+    hidden = 0
     status = 200
     search = None
     if request.GET:
@@ -52,22 +59,49 @@ def marks_near_page(request: HttpRequest) -> HttpResponse:
                 status = 400
             else:
                 visits = latest_visits(mark_ids=[n.mark.pk for n in found])
-                rows = [
-                    {
-                        "mark": n.mark,
-                        "distance_m": n.distance_m,
-                        "azimuth": _azimuth_dms(n.azimuth_deg),
-                        "visit": visits.get(n.mark.pk),
-                    }
-                    for n in found
-                ]
+                rows = []
+                hidden = 0
+                for n in found:
+                    visit = visits.get(n.mark.pk)
+                    usability = assess(
+                        n.mark.status, visit.finding if visit else None, suspect_reason=n.mark.suspect_reason
+                    )
+                    if form.usable_only() and not usability.usable:
+                        hidden += 1
+                        continue
+                    rows.append(
+                        {
+                            "mark": n.mark,
+                            "distance_m": n.distance_m,
+                            "azimuth": _azimuth_finding(n.azimuth_deg),
+                            "visit": visit,
+                            "usability": usability,
+                        }
+                    )
                 search = args
+                points = [
+                    MapPoint(
+                        code=r["mark"].code,
+                        lat_deg=r["mark"].search_lat_deg,
+                        lon_deg=r["mark"].search_lon_deg,
+                        usable=r["usability"].usable,
+                        label=r["usability"].label,
+                        reason=r["usability"].reason,
+                        url=reverse("web:mark-detail", args=[r["mark"].code]),
+                    )
+                    for r in rows
+                    if r["mark"].search_lat_deg is not None
+                ]
+                markmap = build_map(points, centre=(args["lat_deg"], args["lon_deg"]), radius_m=args["radius_m"])
         else:
             status = 400
     context = {
         "form": form,
         "rows": rows,
         "search": search,
+        "hidden": hidden,
+        "markmap": markmap,
+        "usable_only": form.is_bound and not form.errors and form.usable_only(),
         "location_note": SEARCH_LOCATION_NOTE,
         "cautions": CAUTIONS,
     }

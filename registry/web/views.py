@@ -142,7 +142,8 @@ def safe_media_path(path: str) -> str:
 def media_file(request: HttpRequest, path: str) -> HttpResponse:
     """Uploaded files (photos, attachments), for signed-in users with the VIEW ability only.
 
-    With ``DEBUG`` the file is streamed by Django. In production the answer is an empty response
+    With ``DEBUG`` (or ``REGISTRY_MEDIA_BY_DJANGO=1``, which the demo sets: it runs without the debug
+    page and without nginx) the file is streamed by Django. In production the answer is an empty response
     with ``X-Accel-Redirect: <REGISTRY["MEDIA_ACCEL_PREFIX"]><path>``: nginx then sends the file
     from its ``internal`` location (``deploy/nginx/registry.conf``), which no browser can reach
     directly, so every download passes this sign-in and role check first.
@@ -150,7 +151,7 @@ def media_file(request: HttpRequest, path: str) -> HttpResponse:
     if not _local_media():
         return _stored_media_file(path)
     rel = safe_media_path(path)
-    if settings.DEBUG:
+    if settings.DEBUG or settings.REGISTRY.get("MEDIA_BY_DJANGO"):  # development, and the demo (no nginx)
         return serve(request, rel, document_root=settings.MEDIA_ROOT)
     prefix = settings.REGISTRY.get("MEDIA_ACCEL_PREFIX") or DEFAULT_MEDIA_ACCEL_PREFIX
     response = HttpResponse()

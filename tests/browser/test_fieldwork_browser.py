@@ -35,7 +35,8 @@ def test_visit_propose_check_publish(page, district, screenshot, tmp_path, chrom
     page.get_by_label("Notes").fill("Bolt clean; deck joint repaired since last visit.")
     photo = tmp_path / "kv002-east.png"
     photo.write_bytes(illustration_png("KV-002"))
-    page.get_by_label("Photos").set_input_files([str(photo)])
+    page.get_by_label("Photo 1", exact=True).set_input_files([str(photo)])
+    page.get_by_label("Caption of photo 1").fill("Looking east along the deck to the bolt")
     screenshot(page, "visit-form")
     page.get_by_role("button", name="Record visit").click()
     expect(page.locator(".messages")).to_contain_text("with 1 photo(s)")
@@ -66,7 +67,7 @@ def test_visit_propose_check_publish(page, district, screenshot, tmp_path, chrom
     expect(mpage.locator("table.compat")).to_contain_text("Horizontal (E, N)")
     screenshot(mpage, "position-check")
     mpage.get_by_label("Note").fill("Re-observation agrees; published.")
-    mpage.get_by_role("button", name=f"Publish position {proposed.pk}").click()
+    mpage.get_by_role("button", name="Publish this position").click()  # named by words, not its id
     expect(mpage.locator(".messages")).to_contain_text("published")
     proposed.refresh_from_db()
     assert proposed.state == "published"

@@ -46,11 +46,11 @@ def test_sign_in_search_open_edit(page, district, screenshot, make_user):
     expect(page.locator("#counts")).to_contain_text("11 in the registry")
 
     # Search: free text on the keeper, then narrow by code prefix.
-    page.get_by_label("Free text (code, name, marking, keeper)").fill("kestrel valley")
+    page.get_by_label("Free text (code, name, marking, keeper, monument)").fill("kestrel valley")
     page.get_by_role("button", name="Search").click()
     expect(page.locator("#counts")).to_contain_text("of 5 matching marks")
     page.get_by_label("Code or name").fill("kv-00")
-    page.get_by_label("Free text (code, name, marking, keeper)").fill("")
+    page.get_by_label("Free text (code, name, marking, keeper, monument)").fill("")
     page.get_by_role("button", name="Search").click()
     expect(page.locator("#counts")).to_contain_text("of 8 matching marks")
     assert "q=kv-00" in page.url

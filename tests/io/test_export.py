@@ -55,7 +55,7 @@ def test_csv_export_by_api(three_marks, viewer, api_client_for):
 
 def test_geojson_export_by_api_and_query_format(three_marks, viewer, api_client_for):
     client = api_client_for(viewer)
-    for url in ("/api/marks/export.geojson", "/api/marks/export?format=geojson"):
+    for url in ("/api/marks/export.geojson?frame=6319", "/api/marks/export?format=geojson&frame=6319"):
         response = client.get(url)
         assert response.status_code == 200
         assert response["Content-Type"] == "application/geo+json; charset=utf-8"
@@ -67,7 +67,9 @@ def test_geojson_export_by_api_and_query_format(three_marks, viewer, api_client_
             "coordinates": [-110.59998285610777, 45.19999522590536, 1500.6182599775493],
         }
         assert f1["properties"]["frame_epsg"] == 6319 and f1["properties"]["cov_uu_m2"] == 4e-05
+        assert f2["geometry"] is None  # EXP-002 is published in ITRF2014 only: not in this file's frame
         assert f3["geometry"] is None and f3["properties"]["frame_epsg"] is None
+        assert doc["frame"]["epsg"] == 6319 and doc["frame"]["name"] == "NAD83(2011)"
     assert client.get("/api/marks/export?format=csv").content == client.get("/api/marks/export.csv").content
 
 
@@ -116,7 +118,15 @@ def test_export_of_empty_registry(db):
     from registry.io.export import export_marks_text
 
     assert export_marks_text(fmt="csv") == ",".join(CSV_COLUMNS) + "\r\n"
-    assert json.loads(export_marks_text(fmt="geojson")) == {"type": "FeatureCollection", "features": []}
+    assert json.loads(export_marks_text(fmt="geojson")) == {
+        "type": "FeatureCollection",
+        "frame": {
+            "epsg": 7912,
+            "name": "ITRF2014",
+            "note": "Coordinates are in ITRF2014 (EPSG:7912) at each feature's epoch_yr, not WGS 84; one frame per file.",
+        },
+        "features": [],
+    }
 
 
 @pytest.mark.parametrize("value", [45.2, -110.6, 45.123456789012345, 1e-3, 1500.61825997755, 0.1 + 0.2, -0.0])

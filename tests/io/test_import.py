@@ -334,7 +334,8 @@ def test_page_lists_every_bad_row_and_changes_nothing(client, manager):
     body = response.content.decode()
     assert "Refused — nothing was changed" in body
     assert "line 3" in body and "latitude 95.0 is outside" in body
-    assert "line 5" in body and "duplicate_frame" in body
+    assert "line 5" in body and "a mark takes at most one position per frame in a file" in body
+    assert "duplicate_frame" not in body  # codes stay in the API and the command output (issue 10, item 9)
     assert nothing_written()
 
 
@@ -369,7 +370,7 @@ def test_sample_files_behave_as_documented(manager):
             filename="sample_marks_with_errors.csv",
         )
     assert [(e.where, e.field, e.code) for e in info.value.errors] == [
-        ("line 3", "lat_deg", "not_a_number"),
+        ("line 3", "lat_deg", "dms_without_hemisphere"),
         ("line 4", "frame_epsg", "frame_required"),
         ("line 5", "frame_epsg", "invalid_frame"),
         ("line 6", "frame_epsg", "duplicate_frame"),
@@ -378,3 +379,58 @@ def test_sample_files_behave_as_documented(manager):
         ("line 7", "sigma_e_mm", "sigmas_incomplete"),
     ]
     assert not Mark.objects.filter(code="SMP-101").exists()
+
+
+def test_dms_with_the_hemisphere_is_accepted(manager):
+    """Issue 10, item 15: D M S as on the forms; the value is that of registry.geodesy.dms.parse_angle,
+    checked here against the arithmetic d + m/60 + s/3600 (the definition of sexagesimal degrees)."""
+    text = csv_text("TST-010,DMS row,disk_rock,7912,2021.5,45 12 03.25 N,110°36′12.5″W,1502.3456,4,5,9,demo (invented)")
+    mark_import(actor=manager, content=text, filename="marks.csv")
+    p = Position.objects.get(mark__code="TST-010")
+    assert p.lat_deg == pytest.approx(45 + 12 / 60 + 3.25 / 3600, abs=1e-12)
+    assert p.lon_deg == pytest.approx(-(110 + 36 / 60 + 12.5 / 3600), abs=1e-12)
+
+
+def test_dms_errors_are_row_errors(manager):
+    text = csv_text(
+        "TST-011,No letter,disk_rock,7912,2021.5,45 12 03.25,-110.6,1500,4,5,9,x",
+        "TST-012,Wrong letter,disk_rock,7912,2021.5,45 12 03.25 E,-110.6,1500,4,5,9,x",
+        "TST-013,Seconds,disk_rock,7912,2021.5,45 12 61 N,-110.6,1500,4,5,9,x",
+    )
+    with pytest.raises(ImportRejected) as info:
+        mark_import(actor=manager, content=text, filename="marks.csv")
+    assert [(e.where, e.field, e.code) for e in info.value.errors] == [
+        ("line 2", "lat_deg", "dms_without_hemisphere"),
+        ("line 3", "lat_deg", "not_an_angle"),
+        ("line 4", "lat_deg", "not_an_angle"),
+    ]
+    assert nothing_written()
+
+
+def test_page_keeps_the_checked_file_for_the_import(client, manager, make_user, settings, tmp_path):
+    """Issue 10, item 15: after a dry run the page imports the checked file without choosing it again."""
+    import re
+
+    settings.DATA_DIR = tmp_path
+    client.force_login(manager)
+    response = upload(client, csv_text(*GOOD), dry_run="on", update="on")
+    body = response.content.decode()
+    assert "Check passed — nothing was changed" in body and "Import this checked file" in body
+    reference = re.search(r'name="checked" value="([^"]+)"', body).group(1)
+    assert nothing_written() and len(list((tmp_path / "import-checks").iterdir())) == 1
+    # another manager cannot use my reference
+    other = make_user("olga", "manager")
+    client.force_login(other)
+    response = client.post("/marks/import/", {"checked": reference})
+    assert response.status_code == 400 and "not known" in response.content.decode() and nothing_written()
+    # a tampered reference is refused
+    client.force_login(manager)
+    response = client.post("/marks/import/", {"checked": reference[:-2] + "xx"})
+    assert response.status_code == 400 and nothing_written()
+    # the import itself
+    response = client.post("/marks/import/", {"checked": reference})
+    assert response.status_code == 200 and "Imported" in response.content.decode()
+    assert Mark.objects.count() == 3
+    assert list((tmp_path / "import-checks").iterdir()) == []  # used once
+    response = client.post("/marks/import/", {"checked": reference})
+    assert response.status_code == 400 and Mark.objects.count() == 3

@@ -87,13 +87,18 @@ def test_export_writes_every_published_frame_with_version_and_revision(seeded, m
         ("6319", "1503.1022", "1"),
         ("7912", "1502.3611", "2"),
     ]
-    features = json.loads(export_marks_text(fmt="geojson"))["features"]
+    # GeoJSON: one frame per file (issue 10, item 18)
+    features = json.loads(export_marks_text(fmt="geojson", frame_epsg=6319))["features"]
     assert [(f["properties"]["code"], f["properties"]["frame_epsg"]) for f in features] == [
         ("VF-001", 6319),
+        ("VF-002", None),
+    ]
+    features = json.loads(export_marks_text(fmt="geojson"))["features"]  # the office's export frame, 7912
+    assert [(f["properties"]["code"], f["properties"]["frame_epsg"]) for f in features] == [
         ("VF-001", 7912),
         ("VF-002", None),
     ]
-    assert [f["properties"]["position_revision"] for f in features] == [1, 2, None]
+    assert [f["properties"]["position_revision"] for f in features] == [2, None]
     # --frame keeps one frame; the mark without a position there still has its row.
     only = rows_of(export_marks_text(fmt="csv", frame_epsg=6319))
     assert [(r["code"], r["frame_epsg"]) for r in only] == [("VF-001", "6319"), ("VF-002", "")]
@@ -274,7 +279,7 @@ def test_page_overwrite_needs_update(client, manager, seeded):
     assert response.status_code == 400 and "tick the option above too" in response.content.decode()
     upload = SimpleUploadedFile("hand.csv", text_of(TWO_FRAMES[2]).encode(), content_type="text/csv")
     response = client.post("/marks/import/", {"file": upload, "update": "on"})
-    assert response.status_code == 400 and "version_required" in response.content.decode()
+    assert response.status_code == 400 and "this row has no version" in response.content.decode()
 
 
 def test_a_file_ahead_of_the_registry_is_refused_with_its_own_words(seeded, manager):

@@ -271,3 +271,21 @@ def test_truly_concurrent_edits_one_wins_one_conflicts(manager, make_user):
     assert (stored.name, stored.version) == (winner, 2)
     assert AuditEvent.objects.get(action="mark_update").after["name"] == winner
     assert AuditEvent.objects.get(action="mark_update_refused").after["name"] == loser
+
+
+def test_three_way_merge_with_a_base(manager, make_user):
+    """Issue 10, item 13: with the loaded values as base, only the fields the user changed are compared."""
+    other = make_user("omar", "manager")
+    make_mark(manager)
+    mark_update(actor=other, code="QR-101", expected_version=1, changes={"keeper": "Theirs"})
+    # a different field: merged over version 2
+    mark = mark_update(
+        actor=manager, code="QR-101", expected_version=1, changes={"name": "Mine"}, base={"name": "Quarry Ridge"}
+    )
+    assert (mark.name, mark.keeper, mark.version) == ("Mine", "Theirs", 3)
+    # the same field to a different value: refused, only that field in the details, named after its author
+    with pytest.raises(Conflict) as info:
+        mark_update(actor=manager, code="QR-101", expected_version=1, changes={"keeper": "Mine"}, base={"keeper": ""})
+    assert set(info.value.details) == {"keeper", "version"}
+    assert info.value.details["keeper"]["changed_by"] == "omar"
+    assert Mark.objects.get(code="QR-101").keeper == "Theirs"

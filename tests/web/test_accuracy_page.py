@@ -57,7 +57,7 @@ def test_uploaded_residuals_nssda(viewer, signed_in):
     # PERS May 2014 p. 397 Table 3, recomputed
     assert "Tested 0.210 meters horizontal accuracy at 95% confidence level" in html
     assert "Tested 0.065 meters vertical accuracy at 95% confidence level" in html
-    assert "too_few_checkpoints" in html and "warning" in html
+    assert "too_few_checkpoints" not in html and "asks for at least 20" in html and "warning" in html
     assert '<td class="num">210.1</td>' in html  # mm, right-aligned cell
 
 

@@ -267,3 +267,40 @@ def test_mark_page_shows_actions_by_role(kestrel, signed_in, viewer, technician,
     assert b"Record visit" in page and b"Propose position" in page and b"Check and publish" not in page
     page = signed_in(manager).get(url).content
     assert b"Check and publish" in page and b"Withdraw" in page and b"Change status" in page
+
+
+@pytest.mark.django_db
+def test_visit_form_defaults_and_one_caption_per_photo(kestrel, signed_in, technician, media_root):
+    """Issue 10, item 14: date today, visitor the signed-in user, no default finding, a caption per photo."""
+    import datetime as dt
+
+    technician.first_name, technician.last_name = "Theo", "Fieldman"
+    technician.save()
+    client = signed_in(technician)
+    url = reverse("web:visit-create", kwargs={"code": "KV-001"})
+    page = client.get(url).content.decode()
+    assert f'value="{dt.datetime.now(dt.UTC).date().isoformat()}"' in page
+    assert 'value="Theo Fieldman"' in page
+    finding = page.split('name="finding"')[1].split("</select>")[0]
+    assert "selected" not in finding.replace('value="" selected', "")  # no finding is pre-chosen
+    # a visit without a finding is refused with words
+    response = client.post(url, {"visited_on": "2024-06-02"})
+    assert response.status_code == 400 and b"Say what the crew found at the mark." in response.content
+    response = client.post(
+        url,
+        {
+            "visited_on": "2024-06-03",
+            "finding": "intact",
+            "photo_1": SimpleUploadedFile("n.png", tiny_png(), content_type="image/png"),
+            "caption_1": "Looking north at the disk",
+            "photo_2": SimpleUploadedFile("s.png", tiny_png() + b"\x01", content_type="image/png"),
+            "caption_2": "Witness post from the south",
+        },
+    )
+    assert response.status_code == 302
+    visit = Visit.objects.get(mark__code="KV-001", visited_on="2024-06-03")
+    captions = dict(visit.attachments.values_list("original_name", "caption"))
+    assert captions == {"n.png": "Looking north at the disk", "s.png": "Witness post from the south"}
+    # a caption without its photo is refused
+    response = client.post(url, {"visited_on": "2024-06-04", "finding": "intact", "caption_3": "Lost picture"})
+    assert response.status_code == 400 and b"A caption was given without its photo." in response.content

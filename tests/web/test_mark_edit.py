@@ -7,6 +7,7 @@ import re
 import pytest
 from django.urls import reverse
 
+from registry.errors import Conflict
 from registry.models import AuditEvent, Mark
 from registry.services.marks import mark_update
 
@@ -171,15 +172,20 @@ def test_missing_version_is_refused(kestrel, signed_in, manager):
 
 @pytest.mark.django_db
 def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager, make_user):
-    """Two managers open the same form; the second save must not silently overwrite the first."""
+    """Two managers change the same field from the same version: the second save must not silently
+    overwrite the first; only that field is compared, and "changed by" names the colleague."""
     client = signed_in(manager)
     values = form_values(client.get(edit_url("KV-002")))  # loaded at version 1
     colleague = make_user("marta", "manager")
     mark_update(actor=colleague, code="KV-002", expected_version=1, changes={"keeper": "Alder County Bridges Unit"})
+    # a third manager's refused attempt must not be named as the one who changed it
+    with pytest.raises(Conflict):
+        mark_update(actor=make_user("otto", "manager"), code="KV-002", expected_version=1, changes={"keeper": "X"})
     stored = Mark.objects.filter(code="KV-002").values().get()
     audit_before = AuditEvent.objects.filter(action="mark_update").count()
 
-    values["name"] = "Mill Creek Bridge (north rail)"  # my own change; keeper still holds the old value
+    values["name"] = "Mill Creek Bridge (north rail)"  # my own change, untouched by others
+    values["keeper"] = "Alder County Roads, bridge crew"  # the field the colleague changed too
     response = client.post(edit_url("KV-002"), values)
 
     assert response.status_code == 409
@@ -199,12 +205,13 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
             flags=re.S,
         )
     }
-    assert rows["Keeper"][:2] == ("Alder County Roads", "Alder County Bridges Unit")
-    assert "marta" in rows["Keeper"][2] and "UTC" in rows["Keeper"][2]
-    assert rows["Name"][:2] == ("Mill Creek Bridge (north rail)", "Mill Creek Bridge")
+    assert list(rows) == ["Keeper"]  # only the field both changed; my name change is not a conflict
+    assert rows["Keeper"][:2] == ("Alder County Roads, bridge crew", "Alder County Bridges Unit")
+    assert "marta" in rows["Keeper"][2] and "otto" not in rows["Keeper"][2] and "UTC" in rows["Keeper"][2]
     # the form keeps what I entered and now carries the stored version
     again = form_values(response)
     assert again["name"] == "Mill Creek Bridge (north rail)"
+    assert again["keeper"] == "Alder County Roads, bridge crew"
     assert again["version"] == "2"
 
     # A deliberate second save, after reading the comparison, is checked against version 2.
@@ -220,14 +227,40 @@ def test_stale_save_is_refused_and_shows_both_values(kestrel, signed_in, manager
 
 
 @pytest.mark.django_db
-def test_stale_save_of_an_untouched_form_is_still_refused(kestrel, signed_in, manager, make_user):
-    """Re-submitting an old form must not undo a colleague's change to a field."""
+def test_a_stale_save_merges_fields_nobody_else_changed(kestrel, signed_in, manager, make_user):
+    """Issue 10, item 13: an untouched field must not revert a colleague's change; my change is kept."""
+    client = signed_in(manager)
+    values = form_values(client.get(edit_url("KV-002")))  # version 1, sky view "partly obstructed"
+    mark_update(actor=make_user("marta", "manager"), code="KV-002", expected_version=1, changes={"sky_view": "clear"})
+    values["marking"] = "MC BR 1998 (worn)"  # sky view left as loaded
+    response = client.post(edit_url("KV-002"), values, follow=True)
+    assert response.status_code == 200
+    mark = Mark.objects.get(code="KV-002")
+    assert (mark.sky_view, mark.marking, mark.version) == ("clear", "MC BR 1998 (worn)", 3)
+    assert "their changes are kept" in text_of(response)
+    event = AuditEvent.objects.filter(action="mark_update").latest("id")
+    assert event.after == {"marking": "MC BR 1998 (worn)", "version": 3} and "merged" in event.note
+
+
+@pytest.mark.django_db
+def test_the_same_change_by_both_is_no_conflict(kestrel, signed_in, manager, make_user):
     client = signed_in(manager)
     values = form_values(client.get(edit_url("KV-002")))
     mark_update(actor=make_user("marta", "manager"), code="KV-002", expected_version=1, changes={"sky_view": "clear"})
+    values["sky_view"] = "clear"
+    response = client.post(edit_url("KV-002"), values)
+    assert response.status_code == 302
+    assert Mark.objects.get(code="KV-002").version == 2  # nothing left to change
+
+
+@pytest.mark.django_db
+def test_a_tampered_base_falls_back_to_the_strict_check(kestrel, signed_in, manager, make_user):
+    client = signed_in(manager)
+    values = form_values(client.get(edit_url("KV-002")))
+    mark_update(actor=make_user("marta", "manager"), code="KV-002", expected_version=1, changes={"sky_view": "clear"})
+    values["loaded"] = values["loaded"][:-3] + "xyz"
     values["marking"] = "MC BR 1998 (worn)"
     response = client.post(edit_url("KV-002"), values)
     assert response.status_code == 409
     mark = Mark.objects.get(code="KV-002")
     assert (mark.sky_view, mark.marking, mark.version) == ("clear", "MC BR 1998", 2)
-    assert "clear" in text_of(response) and "partly obstructed" in text_of(response)  # choice labels, not codes

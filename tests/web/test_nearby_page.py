@@ -1,8 +1,8 @@
 """The "Marks near a point" page: roles, DMS input, table (distance, azimuth, status, latest visit), filters, errors.
 
 Check values: distances and azimuths are recomputed here with pyproj's Geod on GRS80 (Karney's
-geodesic algorithms, an independent reference library), and printed to 3 decimals of a metre;
-azimuths in DMS to 0.1″.
+geodesic algorithms, an independent reference library). They are finding figures, printed at
+finding precision: distance to 0.1 m, azimuth to 0.1° (issue 10, item 2).
 """
 
 from __future__ import annotations
@@ -50,8 +50,9 @@ def test_results_with_dms_point(kestrel, signed_in, viewer):
     assert page.index("KV-001") < page.index("KV-002")  # nearest first
     bridge = Mark.objects.get(code="KV-002")
     az, _, dist = GEOD.inv(-110.6, 45.2, bridge.search_lon_deg, bridge.search_lat_deg)
-    assert f"{dist:.3f}" in page
-    assert format_dms(az % 360.0, decimals=1) in page
+    assert f">{dist:.1f}<" in page and f"{dist:.3f}" not in page
+    assert f">{az % 360.0:.1f}°<" in page
+    assert format_dms(az % 360.0, decimals=1) not in page
     assert "2024-04-18" in page  # KV-001's latest visit (scenario)
     assert "never visited" in page  # KV-002 has none
     assert 'href="/marks/KV-001/"' in page
@@ -100,3 +101,26 @@ def test_bad_input(kestrel, signed_in, viewer, params, field, text):
     assert response.status_code == 400
     assert b"marks within" not in response.content
     assert text in response.content
+
+
+@pytest.mark.django_db
+def test_usable_marks_by_default_with_the_rest_one_click_away(kestrel, signed_in, viewer, technician):
+    """A mark whose latest visit did not find it is left out by default; 'all' shows it, labelled."""
+    from registry.services.fieldwork import visit_record
+
+    visit_record(
+        actor=technician, mark_code="KV-002", data={"visited_on": "2024-05-01", "finding": "searched_not_found"}
+    )
+    client = signed_in(viewer)
+    base = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10"}
+    page = client.get(URL, base).content.decode()
+    assert "1 mark within" in page and "KV-002" not in page.split("<tbody>")[1]
+    assert "KV-002" not in page.split('id="markmap-data"')[1]  # nor on the map
+    assert "1</span> mark not for use is left out" in page
+    page = client.get(URL, {**base, "usable": "all"}).content.decode()
+    assert "2 marks within" in page
+    page = page.split('<table class="marks">')[1]  # the rows (the map above links the marks too)
+    row = page.split('href="/marks/KV-002/"')[1].split("</tr>")[0]
+    assert "not for use" in row and "did not find it" in row
+    row = page.split('href="/marks/KV-001/"')[1].split("</tr>")[0]
+    assert "usable" in row and "not for use" not in row

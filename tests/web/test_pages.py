@@ -171,7 +171,11 @@ def test_mark_page_positions_in_state_order_with_full_display(kestrel, signed_in
     assert "ITRF2014 (EPSG:7912) epoch 2010.000 (2010-01-01)" in text
     assert "2020 re-observation, 3 × 6 h static" in text
     assert "Proposed by theo" in text and "published by mona" in text and "rejected by mona" in text
-    assert f'by <a href="#position-{kestrel["second"].pk}">position {kestrel["second"].pk}</a>' in html
+    # a position is named by its frame, epoch and source, never by its database id (issue 10, item 9)
+    assert (
+        f'by <a href="#position-{kestrel["second"].pk}">ITRF2014 (EPSG:7912), epoch 2020.500, '
+        "from “2020 re-observation, 3 × 6 h static”</a>" in html
+    )
 
 
 @pytest.mark.django_db
@@ -181,18 +185,18 @@ def test_mark_page_heights_fieldwork_files_history(kestrel, signed_in, viewer):
     text = text_of(response)
     assert "NAVD88 height (EPSG:5703)" in text and "1538.912" in text and "levelled" in text
     assert "12.0" in text  # σ 0.012 m in mm
-    assert "static GNSS" in text and "2020-07-01 15:00:00 UTC" in text and "1.500" in text
+    assert "static GNSS" in text and "2020-07-01 15:00 UTC" in text and "1.500" in text
     assert f'href="#position-{kestrel["second"].pk}"' in html  # occupation result → its position
     assert "T. Field (invented)" in text and "Disk clean, marking legible." in text
     photo = kestrel["photo"]
     assert f'<img src="{photo.file.url}"' in html
     assert photo.sha256 in html and kestrel["rinex"].sha256 in html
     assert "kv0011830.24o" in text and "RINEX observation file" in text
-    # history: newest first, with before → after
-    assert "mark_update" in text
+    # history: newest first, with before → after, in words (issue 10, item 9)
+    assert "Description edited" in text
     assert "Kestrel Valley Survey Office → Kestrel Valley Survey Office, Room 4" in text
-    assert "position_reject" in text and "Antenna height recorded to the wrong point." in text
-    assert text.index("mark_update") < text.index("position_reject") < text.index("mark_create")
+    assert "Position rejected" in text and "Antenna height recorded to the wrong point." in text
+    assert text.index("Description edited") < text.index("Position rejected") < text.index("Mark created")
 
 
 @pytest.mark.django_db

@@ -91,7 +91,7 @@ def test_the_visit_api_still_takes_the_earlier_names(suspect_mark, technician, a
 def test_the_mark_page_says_it_and_offers_the_clearance_to_managers_only(suspect_mark, signed_in, manager, viewer):
     url = reverse("web:mark-detail", kwargs={"code": "QR-101"})
     page = signed_in(viewer).get(url).content.decode()
-    assert "Suspect — awaiting re-observation" in page and f"the visit of {TODAY} found it disturbed" in page
+    assert "Suspect — not for use until re-observed" in page and f"the visit of {TODAY} found it disturbed" in page
     assert "Clear suspicion" not in page
     page = signed_in(manager).get(url).content.decode()
     assert "Clear suspicion" in page and reverse("web:mark-clear-suspect", kwargs={"code": "QR-101"}) in page

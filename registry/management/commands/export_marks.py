@@ -1,4 +1,4 @@
-"""``python manage.py export_marks [--format csv|geojson] [--frame EPSG] [--output FILE]``."""
+"""``python manage.py export_marks [--format csv|geojson|gpkg] [--frame EPSG] [--output FILE]``."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ from pathlib import Path
 from django.core.management.base import BaseCommand, CommandError
 
 from registry.io.common import frame_problem
-from registry.io.export import EXPORT_FORMATS, export_marks_text
+from registry.io.export import EXPORT_FORMATS, export_marks_bytes
 
 
 class Command(BaseCommand):
@@ -17,7 +17,9 @@ class Command(BaseCommand):
         "a mark without a published position takes one row without a position. Each row carries the mark's "
         "version and the position's position_revision, which import_marks --update checks. --frame keeps "
         "only positions in that frame. Not carried: history (superseded positions, occupations, visits, "
-        "attachments, the audit trail); that is in the database backup (deploy/README.md)."
+        "attachments, the audit trail); that is in the database backup (deploy/README.md). GeoJSON holds one "
+        "frame per file (--frame, default the office's export frame REGISTRY_EXPORT_FRAME); gpkg writes a "
+        "GeoPackage with one layer per frame, each with its EPSG CRS (needs --output)."
     )
 
     def add_arguments(self, parser):
@@ -31,18 +33,21 @@ class Command(BaseCommand):
         fmt = opts["format"]
         output = opts["output"]
         if fmt is None:
-            fmt = "geojson" if output and Path(output).suffix.lower() in (".geojson", ".json") else "csv"
+            suffix = Path(output).suffix.lower() if output else ""
+            fmt = {".geojson": "geojson", ".json": "geojson", ".gpkg": "gpkg"}.get(suffix, "csv")
+        if fmt == "gpkg" and not output:
+            raise CommandError("a GeoPackage is a binary file: give --output FILE.gpkg")
         frame = opts["frame"]
         if frame is not None:
             problem = frame_problem(frame) if frame > 0 else f"EPSG:{frame} is not a valid code"
             if problem:
                 raise CommandError(problem)
-        text = export_marks_text(fmt=fmt, frame_epsg=frame)
+        body = export_marks_bytes(fmt=fmt, frame_epsg=frame)
         if output:
             try:
-                Path(output).write_bytes(text.encode("utf-8"))
+                Path(output).write_bytes(body)
             except OSError as exc:
                 raise CommandError(f"cannot write {output}: {exc.strerror}") from None
             self.stderr.write(f"wrote {output} ({fmt})")
         else:
-            self.stdout.write(text, ending="")
+            self.stdout.write(body.decode("utf-8"), ending="")

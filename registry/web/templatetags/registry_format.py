@@ -159,14 +159,15 @@ def format_frame(epsg: int) -> str:
 
 
 def format_utc(value: dt.datetime) -> str:
-    """A time in UTC with the zone shown, to the second.
+    """A time in UTC with the zone shown, to the minute (pages speak to people; the API keeps
+    the full ISO 8601 time).
 
     >>> format_utc(dt.datetime(2024, 5, 3, 14, 22, 5, tzinfo=dt.UTC))
-    '2024-05-03 14:22:05 UTC'
+    '2024-05-03 14:22 UTC'
     """
     if value.tzinfo is not None:
         value = value.astimezone(dt.UTC)
-    return f"{value:%Y-%m-%d %H:%M:%S} UTC"
+    return f"{value:%Y-%m-%d %H:%M} UTC"
 
 
 # --------------------------------------------------------------------------- state words
@@ -292,6 +293,30 @@ def state(value):
     if short:  # a compact word in tables; the whole label as its title (and on the mark page itself)
         return format_html('<span class="state state-{}" title="{}">{}</span>', str(value), label, short)
     return format_html('<span class="state state-{}">{}</span>', str(value), label)
+
+
+@register.filter
+def person(user, missing=DASH):
+    """A user by full name, else user name; ``missing`` (an em dash) for none."""
+    if user is None:
+        return missing
+    return user.get_full_name() or user.get_username() or missing
+
+
+@register.filter
+def action_words(value):
+    """An audit event code in words (registry.web.wording)."""
+    from registry.web.wording import action_words as words
+
+    return words(str(value or ""))
+
+
+@register.filter
+def position_name(p):
+    """A position named by its frame, epoch and source."""
+    from registry.web.wording import describe_position
+
+    return describe_position(p) if p is not None else DASH
 
 
 @register.filter

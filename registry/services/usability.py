@@ -1,0 +1,170 @@
+"""Whether a mark's coordinates may be used, in words, and which field actions it still takes.
+
+One rule for every place that shows a mark (the mark page, the list, marks near a point, the API)
+and for the services that record work on it: a **destroyed** mark takes no occupation and no new
+position (``services.fieldwork.occupation_record`` and ``services.positions.position_propose`` ask
+:func:`allows_occupation` / :func:`allows_new_position`); a **suspect** mark, a mark whose latest visit
+found it disturbed or did not find it, a retired or a destroyed mark are **not for use**: pages grey
+its coordinates and say why, with a caution that fits its state.
+
+:func:`assess` is pure (status and latest finding in, words out) so that pages, API and imports
+agree; the words are for people, the ``state`` codes for the API.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from registry.models import Finding, MarkStatus
+
+#: General caution for a usable mark (common practice: check the mark, tie to a second mark).
+USABLE_CAUTION = (
+    "Check that the mark is undisturbed and occupy a second trusted mark before relying on these "
+    "coordinates; use them only in the frame and at the epoch stated. Local codes, the office's "
+    "procedures and licensed professional practice govern their use."
+)
+
+_CLOSING = " Local codes, the office's procedures and licensed professional practice govern any use of this mark."
+
+
+@dataclass(frozen=True)
+class Usability:
+    """A mark's usability: ``state`` (code for the API), ``usable``, and words for pages.
+
+    ``label`` is the short word for rows ("usable", "not for use"); ``headline`` and ``caution``
+    are the banner's title and text (the caution is shown for usable marks too).
+    """
+
+    state: str
+    usable: bool
+    label: str
+    headline: str
+    reason: str
+    caution: str
+    occupation_allowed: bool
+    new_position_allowed: bool
+
+    def as_dict(self) -> dict:
+        return {"state": self.state, "usable": self.usable, "reason": self.reason}
+
+
+def assess(status: str, last_finding: str | None = None, *, suspect_reason: str = "") -> Usability:
+    """The usability of a mark with ``status`` whose latest visit found ``last_finding`` (or none).
+
+    >>> assess("active", "intact").usable
+    True
+    >>> assess("destroyed").label
+    'not for use'
+    >>> assess("active", "disturbed").state
+    'last_visit_disturbed'
+    """
+    if status == MarkStatus.DESTROYED:
+        return Usability(
+            state="destroyed",
+            usable=False,
+            label="not for use",
+            headline="Destroyed — not for use",
+            reason="the mark is recorded as destroyed",
+            caution=(
+                "The mark is recorded as destroyed. Its coordinates describe a point that no longer exists "
+                "on the ground: do not stake, set up on or check to anything at this place. If a monument "
+                "is found here, treat it as unknown until it is identified and re-observed as a new mark." + _CLOSING
+            ),
+            occupation_allowed=False,
+            new_position_allowed=False,
+        )
+    if status == MarkStatus.RETIRED:
+        return Usability(
+            state="retired",
+            usable=False,
+            label="not for use",
+            headline="Retired — not for use",
+            reason="the mark is retired from the registry's active network",
+            caution=(
+                "The office no longer maintains this mark. Its coordinates are kept as history; they may "
+                "be out of date. Use an active mark, or re-observe this one and have it made active again." + _CLOSING
+            ),
+            occupation_allowed=True,
+            new_position_allowed=True,
+        )
+    if status == MarkStatus.SUSPECT:
+        why = suspect_reason or "awaiting re-observation"
+        return Usability(
+            state="suspect",
+            usable=False,
+            label="not for use",
+            headline="Suspect — not for use until re-observed",
+            reason=f"suspect: {why}",
+            caution=(
+                "The mark may have moved. Do not use its coordinates until it is re-observed and a new "
+                "position is published, or a control manager clears it." + _CLOSING
+            ),
+            occupation_allowed=True,
+            new_position_allowed=True,
+        )
+    if last_finding == Finding.DISTURBED:
+        return Usability(
+            state="last_visit_disturbed",
+            usable=False,
+            label="not for use",
+            headline="Last visit found it disturbed — not for use",
+            reason="the latest visit found the mark disturbed",
+            caution=(
+                "The latest visit found the monument disturbed: it may no longer be where its coordinates "
+                "put it. Re-observe it before any use." + _CLOSING
+            ),
+            occupation_allowed=True,
+            new_position_allowed=True,
+        )
+    if last_finding == Finding.SEARCHED_NOT_FOUND:
+        return Usability(
+            state="last_visit_not_found",
+            usable=False,
+            label="not for use",
+            headline="Not found at the last visit — not for use",
+            reason="the latest visit searched for the mark and did not find it",
+            caution=(
+                "The latest visit searched for the mark and did not find it. Until it is found and checked, "
+                "use another mark." + _CLOSING
+            ),
+            occupation_allowed=True,
+            new_position_allowed=True,
+        )
+    if last_finding == Finding.DESTROYED:
+        return Usability(
+            state="last_visit_destroyed",
+            usable=False,
+            label="not for use",
+            headline="Last visit found it destroyed — not for use",
+            reason="the latest visit found the mark destroyed",
+            caution=(
+                "The latest visit found the mark destroyed; a control manager has not yet recorded it so. "
+                "Do not use its coordinates." + _CLOSING
+            ),
+            occupation_allowed=True,
+            new_position_allowed=True,
+        )
+    return Usability(
+        state="usable",
+        usable=True,
+        label="usable",
+        headline="",
+        reason="",
+        caution=USABLE_CAUTION,
+        occupation_allowed=True,
+        new_position_allowed=True,
+    )
+
+
+def mark_usability(mark, last_finding: str | None = ...) -> Usability:
+    """:func:`assess` for a mark instance; reads its latest visit when ``last_finding`` is not given."""
+    if last_finding is ...:
+        from registry.models import Visit
+
+        last_finding = (
+            Visit.objects.filter(mark=mark)
+            .order_by("-visited_on", "-created_at", "-pk")
+            .values_list("finding", flat=True)
+            .first()
+        )
+    return assess(mark.status, last_finding, suspect_reason=mark.suspect_reason)
