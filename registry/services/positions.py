@@ -79,6 +79,7 @@ _PSD_RELATIVE_TOLERANCE = 1e-9
 
 
 @lru_cache(maxsize=256)
+@lru_cache(maxsize=256)
 def _frame_problem(frame_epsg: int) -> str | None:
     """Why ``frame_epsg`` cannot carry a position, or ``None`` when it is a geographic 3D CRS."""
     from pyproj import CRS
