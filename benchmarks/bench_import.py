@@ -30,9 +30,7 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
-HEADER = (
-    "code,name,monument,status,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,sigma_e_mm,sigma_n_mm,sigma_u_mm,source"
-)
+HEADER = "code,name,monument,status,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,sigma_e_mm,sigma_n_mm,sigma_u_mm,source"
 
 
 def good_csv(n: int, prefix: str = "IMP") -> str:
@@ -94,8 +92,12 @@ def main() -> None:
     print()
     for backend, r in results.items():
         print(f"{backend}: a valid file of {r['rows']:,} rows ({r['marks']:,} new marks)")
-        print(f"  import (create)          {r['create_s']:8.2f} s  {r['create_rows_s']:8.0f} rows/s  {r['create_queries']:>7} queries")
-        print(f"  same file with update    {r['update_s']:8.2f} s  {r['update_rows_s']:8.0f} rows/s  {r['update_queries']:>7} queries")
+        print(
+            f"  import (create)          {r['create_s']:8.2f} s  {r['create_rows_s']:8.0f} rows/s  {r['create_queries']:>7} queries"
+        )
+        print(
+            f"  same file with update    {r['update_s']:8.2f} s  {r['update_rows_s']:8.0f} rows/s  {r['update_queries']:>7} queries"
+        )
         print(f"  audit chain verifies     {r['audit_ok']}  ({r['audit_rows']:,} audit rows)")
         print(f"  100,000-column header    {r['wide_header_s']:8.3f} s  refused: {r['wide_header_codes']}")
         print(

@@ -39,14 +39,47 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 SEED = 20261204
 PLACES = [
-    "Alder", "Basin", "Cedar", "Dunmore", "Eastfork", "Fallow", "Granite", "Harrow", "Ironwood", "Juniper",
-    "Kestrel", "Larch", "Millbrook", "Northgate", "Oxbow", "Pinecrest", "Quarry", "Ridgeway", "Stonebridge",
-    "Tamarack", "Upland", "Valleyview", "Westcott", "Yarrow", "Zephyr", "Bluff", "Canyon", "Mesa", "Butte", "Creek",
+    "Alder",
+    "Basin",
+    "Cedar",
+    "Dunmore",
+    "Eastfork",
+    "Fallow",
+    "Granite",
+    "Harrow",
+    "Ironwood",
+    "Juniper",
+    "Kestrel",
+    "Larch",
+    "Millbrook",
+    "Northgate",
+    "Oxbow",
+    "Pinecrest",
+    "Quarry",
+    "Ridgeway",
+    "Stonebridge",
+    "Tamarack",
+    "Upland",
+    "Valleyview",
+    "Westcott",
+    "Yarrow",
+    "Zephyr",
+    "Bluff",
+    "Canyon",
+    "Mesa",
+    "Butte",
+    "Creek",
 ]
 KINDS = ["Hill", "Tank", "Bridge", "Road", "Church", "School", "Water Tower", "Summit", "Junction", "Dam"]
 KEEPERS = [
-    "County roads office", "Valley irrigation district", "Town public works", "State parks unit",
-    "Private landowner", "Rail corridor trust", "Water board", "University field station",
+    "County roads office",
+    "Valley irrigation district",
+    "Town public works",
+    "State parks unit",
+    "Private landowner",
+    "Rail corridor trust",
+    "Water board",
+    "University field station",
 ]
 
 

@@ -88,11 +88,16 @@ def _new_position(record: MarkRecord, actor) -> Position:
     cleaned = _parse_position(dict(record.position))
     position = Position(created_by=actor, state=PositionState.PROPOSED, **cleaned)
     check_text_limits(position)
-    position.full_clean(exclude=["mark"], validate_unique=False, validate_constraints=False)
+    # The actor was checked by require_ability; foreign keys are not looked up once per row.
+    position.full_clean(
+        exclude=["mark", "created_by", "decided_by", "superseded_by"], validate_unique=False, validate_constraints=False
+    )
     return position
 
 
-def _event(actor, action: str, obj, mark: Mark, *, before=None, after=None, note: str = "", repr_: str = "") -> AuditEvent:
+def _event(
+    actor, action: str, obj, mark: Mark, *, before=None, after=None, note: str = "", repr_: str = ""
+) -> AuditEvent:
     return AuditEvent(
         actor=actor,
         action=action,
@@ -181,7 +186,12 @@ def create_marks_in_batches(
             )
             before: dict[str, Any] = {"state": PositionState.PROPOSED, "search_lat_deg": lat, "search_lon_deg": lon}
             lat, lon = position.lat_deg, position.lon_deg
-            after = {"state": PositionState.PUBLISHED, "supersedes_id": None, "search_lat_deg": lat, "search_lon_deg": lon}
+            after = {
+                "state": PositionState.PUBLISHED,
+                "supersedes_id": None,
+                "search_lat_deg": lat,
+                "search_lon_deg": lon,
+            }
             events.append(
                 _event(audit_actor, "position_publish", position, mark, before=before, after=after, note=PUBLISH_NOTE)
             )
