@@ -217,7 +217,6 @@ def _count() -> int:
 
 def _cases(client, n: int) -> list[tuple[str, str]]:
     """(label, URL); the cursor URLs are taken from the links the pages themselves give."""
-    import re
 
     deep_page = max(1, (n * 95 // 100) // 50)
     deep_code = f"BM{n * 95 // 100:07d}"
@@ -227,14 +226,11 @@ def _cases(client, n: int) -> list[tuple[str, str]]:
         (f"mark list, page {deep_page:,} (?page=)", f"/marks/?page={deep_page}"),
     ]
     body = client.get("/marks/").content.decode()
-    found = re.search(r'href="([^"]*)"[^>]*rel="next"', body) or re.search(r'rel="next"[^>]*href="([^"]*)"', body)
-    if found and ("after=" in found.group(1) or "cursor=" in found.group(1)):
-        link = found.group(1).replace("&amp;", "&")
-        key = "after" if "after=" in link else "cursor"
-        cases.append((f"mark list, the page after {deep_code} (next link)", f"/marks/?{key}={deep_code}"))
-        last = re.search(r'href="([^"]*)"[^>]*>Last', body)
-        if last:
-            cases.append(("mark list, last page (last link)", "/marks/" + last.group(1).replace("&amp;", "&")))
+    if "last=1" in body:  # the list offers keyset links (after/before a code, the last page)
+        cases.append((f"mark list, the page after {deep_code} (?after=)", f"/marks/?after={deep_code}"))
+        cases.append((f"mark list, the page before {deep_code} (?before=)", f"/marks/?before={deep_code}"))
+        cases.append(("mark list, last page (?last=1)", "/marks/?last=1"))
+        cases.append(("mark list, ?q=BM0 page after BM0950000", "/marks/?q=BM0&after=BM0950000"))
     cases += [
         ("code search ?q=BM0500 (starts with)", "/marks/?q=BM0500"),
         ("code search ?q=bm0500 (starts with, lower case)", "/marks/?q=bm0500"),
@@ -248,18 +244,19 @@ def _cases(client, n: int) -> list[tuple[str, str]]:
         ("API /api/marks/?q=BM0500&limit=50", "/api/marks/?q=BM0500&limit=50"),
     ]
     api = client.get("/api/marks/?limit=50").json()
-    nxt = api.get("next") or ""
-    if "cursor=" in nxt:
-        from urllib.parse import parse_qs, urlsplit
-
-        cursor = parse_qs(urlsplit(nxt).query)["cursor"][0]
-        # The cursor of a deep page: the same encoding, made for the deep code.
-        from registry.api.pagination import encode_cursor
+    if "cursor=" in (api.get("next") or ""):
+        # The cursor of a deep page: the same encoding as the next links, made for the deep code.
+        from registry.selectors.paging import encode_cursor
 
         cases.append(
             (f"API by cursor after {deep_code} (next link)", f"/api/marks/?limit=50&cursor={encode_cursor(deep_code)}")
         )
-        del cursor
+        cases.append(
+            (
+                "API ?q=BM05 by cursor after BM0550000",
+                f"/api/marks/?q=BM05&limit=50&cursor={encode_cursor('BM0550000')}",
+            )
+        )
     cases.append(("mark page /marks/BM0500000/", f"/marks/BM{n // 2:07d}/"))
     return cases
 

@@ -8,14 +8,14 @@ from __future__ import annotations
 
 from django.contrib import messages
 from django.core.exceptions import ValidationError
-from django.core.paginator import Paginator
 from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 
 from registry.errors import Conflict
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
-from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_search, mark_status_counts
+from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_list_counts, mark_search
+from registry.selectors.paging import MAX_NUMBERED_PAGE, KeysetPage, keyset_page
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
@@ -24,24 +24,48 @@ from registry.web.views import ability_required
 PAGE_SIZE = 50
 
 
+def _page_number(raw: str | None) -> int:
+    try:
+        return max(1, int(raw or 1))
+    except (TypeError, ValueError):
+        return 1
+
+
 @ability_required(Ability.VIEW)
 def mark_list(request: HttpRequest) -> HttpResponse:
+    """The mark list: numbered pages up to MAX_NUMBERED_PAGE, then keyset links (after/before a code)."""
     form = MarkSearchForm(request.GET or None)
     if request.GET:
         filters = form.filters()
     else:
         filters = {"q": "", "match": MATCH_PREFIX, "text": "", "status": ""}
-    paginator = Paginator(mark_search(**filters), PAGE_SIZE)
-    page = paginator.get_page(request.GET.get("page"))
-    status_counts = mark_status_counts(q=filters["q"], match=filters["match"], text=filters["text"])
+    after = (request.GET.get("after") or "").strip()[:64] or None
+    before = (request.GET.get("before") or "").strip()[:64] or None
+    last = request.GET.get("last") == "1"
+    number = _page_number(request.GET.get("page"))
+    counts = mark_list_counts(**filters)
+    num_pages = max(1, -(-counts.matching.n // PAGE_SIZE)) if counts.matching.exact else None
+    if num_pages is not None and number > num_pages:
+        number = num_pages  # a page past the end shows the last page
+    too_deep = after is None and before is None and not last and number > MAX_NUMBERED_PAGE
+    qs = mark_search(**filters)
+    if too_deep:
+        page = KeysetPage([], PAGE_SIZE, has_next=False, has_previous=True, number=number)
+    else:
+        page = keyset_page(
+            qs, key="code", size=PAGE_SIZE, after=after, before=before, last=last, number=None if after else number
+        )
     context = {
         "form": form,
         "filters": filters,
         "page": page,
-        "paginator": paginator,
-        "status_counts": status_counts,
-        "matching_any_status": sum(status_counts.values()),
-        "registry_total": Mark.objects.count(),
+        "counts": counts,
+        "too_deep": too_deep,
+        "max_numbered_page": MAX_NUMBERED_PAGE,
+        "num_pages": num_pages,
+        "status_counts": counts.status_counts,
+        "matching_any_status": counts.matching_any_status.n,
+        "registry_total": counts.registry_total.n,
         "filtered": any(filters[k] for k in ("q", "text", "status")),
         "can_manage": has_ability(request.user, Ability.MANAGE),
     }
