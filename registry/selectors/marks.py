@@ -120,7 +120,9 @@ def mark_filter(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> Qu
         if match == MATCH_CONTAINS:
             qs = qs.filter(Q(code__icontains=q) | Q(name__icontains=q))
         else:
-            qs = qs.filter(Q(code__istartswith=q) | Q(name__istartswith=q))
+            # Codes are capital letters, digits and _.- (CODE_VALIDATOR): "starts with, any case" is a
+            # case-sensitive prefix of the upper-cased query, which an index serves as a range.
+            qs = qs.filter(Q(code__startswith=q.upper()) | Q(name__istartswith=q))
     for word in (text or "").split():
         qs = qs.filter(
             Q(code__icontains=word) | Q(name__icontains=word) | Q(marking__icontains=word) | Q(keeper__icontains=word)
