@@ -15,7 +15,9 @@ What it does, in one run (each backend in its own process, Django settings being
    (and migrated, so new indexes are built on it).
 2. Signs in as a viewer with Django's test client and times each request (server time as seen
    by the test client: URL resolution, middleware, queries, template): the median and the
-   slowest of ``--repeat`` runs after one warm-up, with the number of SQL queries.
+   slowest of ``--repeat`` runs after one warm-up, with the number of SQL queries. The cache is
+   emptied before each timed request, so the figures are those of the reads themselves, not of
+   the registry's read cache (``registry.selectors.read_cache``).
 
 The figures the issue asks for: the mark list's first page, a deep page (by page number and by
 the cursor link the page offers), the last page, a code search that starts with / contains a
@@ -294,11 +296,14 @@ def worker(args) -> dict:
     client = Client(HTTP_HOST="localhost")
     client.force_login(user)
 
+    from django.core.cache import cache
+
     timings = {}
     for label, url in _cases(client, args.marks):
         client.get(url)  # warm-up
         ms = []
         for _ in range(args.repeat):
+            cache.clear()  # the registry's read cache would answer a repeated request: time the real reads
             reset_queries()
             with CaptureQueriesContext(connection) as ctx:
                 t0 = time.perf_counter()

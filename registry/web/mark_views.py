@@ -16,6 +16,7 @@ from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
 from registry.selectors.marks import MATCH_PREFIX, mark_detail, mark_list_counts, mark_search
 from registry.selectors.paging import MAX_NUMBERED_PAGE, KeysetPage, keyset_page
+from registry.selectors.read_cache import audit_token, cached_read
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
@@ -43,17 +44,30 @@ def mark_list(request: HttpRequest) -> HttpResponse:
     before = (request.GET.get("before") or "").strip()[:64] or None
     last = request.GET.get("last") == "1"
     number = _page_number(request.GET.get("page"))
-    counts = mark_list_counts(**filters)
+    token = audit_token()
+    counts = cached_read(
+        "mark-list-counts", tuple(sorted(filters.items())), lambda: mark_list_counts(**filters), token=token
+    )
     num_pages = max(1, -(-counts.matching.n // PAGE_SIZE)) if counts.matching.exact else None
     if num_pages is not None and number > num_pages:
         number = num_pages  # a page past the end shows the last page
     too_deep = after is None and before is None and not last and number > MAX_NUMBERED_PAGE
-    qs = mark_search(**filters)
     if too_deep:
         page = KeysetPage([], PAGE_SIZE, has_next=False, has_previous=True, number=number)
     else:
-        page = keyset_page(
-            qs, key="code", size=PAGE_SIZE, after=after, before=before, last=last, number=None if after else number
+        page = cached_read(
+            "mark-list-page",
+            (tuple(sorted(filters.items())), after, before, last, number),
+            lambda: keyset_page(
+                mark_search(**filters),
+                key="code",
+                size=PAGE_SIZE,
+                after=after,
+                before=before,
+                last=last,
+                number=None if after else number,
+            ),
+            token=token,
         )
     context = {
         "form": form,
@@ -75,7 +89,7 @@ def mark_list(request: HttpRequest) -> HttpResponse:
 @ability_required(Ability.VIEW)
 def mark_page(request: HttpRequest, code: str) -> HttpResponse:
     try:
-        detail = mark_detail(code=code)
+        detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code))
     except Mark.DoesNotExist:
         raise Http404(f"No mark with code {code!r}.") from None
     context = {

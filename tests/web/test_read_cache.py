@@ -1,0 +1,31 @@
+"""The read cache of the mark page and the mark list: current after every audited write."""
+
+from __future__ import annotations
+
+import pytest
+from django.db import connection
+from django.test.utils import CaptureQueriesContext
+
+from registry.services.marks import mark_create, mark_update
+
+
+@pytest.mark.django_db
+def test_mark_page_and_list_show_an_edit_at_once_and_read_less_when_nothing_changed(client, manager, viewer):
+    mark_create(actor=manager, data={"code": "RC-1", "name": "Before the edit"})
+    client.force_login(viewer)
+    first = client.get("/marks/RC-1/")
+    assert "Before the edit" in first.content.decode()
+    with CaptureQueriesContext(connection) as again:
+        assert "Before the edit" in client.get("/marks/RC-1/").content.decode()
+    with CaptureQueriesContext(connection) as uncached:
+        from django.core.cache import cache
+
+        cache.clear()
+        client.get("/marks/RC-1/")
+    assert len(again) < len(uncached)  # the mark's rows come from the cache
+    mark_update(actor=manager, code="RC-1", expected_version=1, changes={"name": "After the edit"})
+    assert "After the edit" in client.get("/marks/RC-1/").content.decode()
+    assert "After the edit" in client.get("/marks/").content.decode()
+    mark_create(actor=manager, data={"code": "RC-2", "name": "A second mark"})
+    listed = client.get("/marks/").content.decode()
+    assert "RC-2" in listed and "A second mark" in listed
