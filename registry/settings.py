@@ -264,6 +264,8 @@ _TASK_BACKENDS = {
     "immediate": "django_tasks.backends.immediate.ImmediateBackend",
 }
 _task_backend = os.environ.get("REGISTRY_TASK_BACKEND", "database").strip() or "database"
+#: Marks files up to this size are imported in the request; larger ones by the task worker.
+REGISTRY_IMPORT_INLINE_BYTES = int(os.environ.get("REGISTRY_IMPORT_INLINE_BYTES", str(256 * 1024)))
 TASKS = {"default": {"BACKEND": _TASK_BACKENDS.get(_task_backend, _task_backend)}}
 
 LOGGING = {
