@@ -107,6 +107,8 @@ if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
     DATABASES["default"]["OPTIONS"].update({"timeout": 20, "transaction_mode": "IMMEDIATE"})
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
+#: Django's model backend, reading a user's permissions in one query (registry/auth_backend.py).
+AUTHENTICATION_BACKENDS = ["registry.auth_backend.RegistryModelBackend"]
 AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
     {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},

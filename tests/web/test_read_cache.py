@@ -29,3 +29,22 @@ def test_mark_page_and_list_show_an_edit_at_once_and_read_less_when_nothing_chan
     mark_create(actor=manager, data={"code": "RC-2", "name": "A second mark"})
     listed = client.get("/marks/").content.decode()
     assert "RC-2" in listed and "A second mark" in listed
+
+
+@pytest.mark.django_db
+def test_permissions_are_read_in_one_query_with_the_same_answers(manager, viewer, django_user_model):
+    from django.contrib.auth.models import Permission
+
+    from registry.roles import Ability, has_ability
+
+    with CaptureQueriesContext(connection) as reads:
+        assert has_ability(viewer, Ability.VIEW) and not has_ability(viewer, Ability.MANAGE)
+    assert len(reads) == 1
+    assert has_ability(manager, Ability.MANAGE)
+    # a permission given to the user directly, not through a group, still counts
+    loner = django_user_model.objects.create_user(username="loner", password="pw-loner-123!")
+    loner.user_permissions.add(Permission.objects.get(codename=Ability.VIEW.value))
+    assert has_ability(loner, Ability.VIEW) and not has_ability(loner, Ability.MANAGE)
+    loner.is_active = False
+    del loner._perm_cache
+    assert not has_ability(loner, Ability.VIEW)
