@@ -6,8 +6,10 @@ cached under that token is current until the next audited write, whichever mark 
 idea keys the cached job screening (``registry.services.screening_cache``).
 
 - One query per request finds the token (the newest audit row, by primary key).
-- What is cached is data (model instances, counts), never HTML: the page is rendered for each request,
-  with its own user, role and CSRF token. Access checks run before the cache is read.
+- What is cached is data (model instances, counts). The one exception is the mark list's table and
+  pager (a ``{% cache %}`` fragment keyed on the address and this token), which holds nothing of the
+  user: no name, no role-dependent link, no form token. The rest of every page is rendered for each
+  request, with its own user, role and CSRF token. Access checks run before the cache is read.
 - Django's default cache is per process (``LocMemCache``): each gunicorn worker keeps its own copy, and a
   deployment may set ``CACHES["default"]`` to a shared backend. Entries also expire after
   :data:`READ_CACHE_SECONDS`, which bounds how long a change made outside the services (the admin site,

@@ -6,10 +6,13 @@ go through :mod:`registry.services.marks` (role check, validation, transaction, 
 
 from __future__ import annotations
 
+import functools
+
 from django.contrib import messages
 from django.core.exceptions import ValidationError
 from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
+from django.utils.functional import SimpleLazyObject
 
 from registry.errors import Conflict
 from registry.models import Document, Mark
@@ -23,6 +26,17 @@ from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm
 from registry.web.views import ability_required
 
 PAGE_SIZE = 50
+
+
+_LISTING_NAMES = (
+    "page",
+    "counts",
+    "too_deep",
+    "num_pages",
+    "status_counts",
+    "matching_any_status",
+    "registry_total",
+)
 
 
 def _page_number(raw: str | None) -> int:
@@ -45,41 +59,51 @@ def mark_list(request: HttpRequest) -> HttpResponse:
     last = request.GET.get("last") == "1"
     number = _page_number(request.GET.get("page"))
     token = audit_token()
-    counts = cached_read(
-        "mark-list-counts", tuple(sorted(filters.items())), lambda: mark_list_counts(**filters), token=token
-    )
-    num_pages = max(1, -(-counts.matching.n // PAGE_SIZE)) if counts.matching.exact else None
-    if num_pages is not None and number > num_pages:
-        number = num_pages  # a page past the end shows the last page
-    too_deep = after is None and before is None and not last and number > MAX_NUMBERED_PAGE
-    if too_deep:
-        page = KeysetPage([], PAGE_SIZE, has_next=False, has_previous=True, number=number)
-    else:
-        page = cached_read(
-            "mark-list-page",
-            (tuple(sorted(filters.items())), after, before, last, number),
-            lambda: keyset_page(
-                mark_search(**filters),
-                key="code",
-                size=PAGE_SIZE,
-                after=after,
-                before=before,
-                last=last,
-                number=None if after else number,
-            ),
-            token=token,
+
+    @functools.cache
+    def listing() -> dict:
+        """The rows and counts; read only if the template's cached fragment is missing."""
+        counts = cached_read(
+            "mark-list-counts", tuple(sorted(filters.items())), lambda: mark_list_counts(**filters), token=token
         )
+        num_pages = max(1, -(-counts.matching.n // PAGE_SIZE)) if counts.matching.exact else None
+        page_number = min(number, num_pages) if num_pages is not None else number  # past the end: the last page
+        too_deep = after is None and before is None and not last and page_number > MAX_NUMBERED_PAGE
+        if too_deep:
+            page = KeysetPage([], PAGE_SIZE, has_next=False, has_previous=True, number=page_number)
+        else:
+            page = cached_read(
+                "mark-list-page",
+                (tuple(sorted(filters.items())), after, before, last, page_number),
+                lambda: keyset_page(
+                    mark_search(**filters),
+                    key="code",
+                    size=PAGE_SIZE,
+                    after=after,
+                    before=before,
+                    last=last,
+                    number=None if after else page_number,
+                ),
+                token=token,
+            )
+        return {
+            "page": page,
+            "counts": counts,
+            "too_deep": too_deep,
+            "num_pages": num_pages,
+            "status_counts": counts.status_counts,
+            "matching_any_status": counts.matching_any_status.n,
+            "registry_total": counts.registry_total.n,
+        }
+
     context = {
         "form": form,
         "filters": filters,
-        "page": page,
-        "counts": counts,
-        "too_deep": too_deep,
+        # The list's fragment is cached under the audit token and the full address (the template's
+        # {% cache %}); these are computed only when it is rendered.
+        **{name: SimpleLazyObject(lambda name=name: listing()[name]) for name in _LISTING_NAMES},
+        "read_token": token,
         "max_numbered_page": MAX_NUMBERED_PAGE,
-        "num_pages": num_pages,
-        "status_counts": counts.status_counts,
-        "matching_any_status": counts.matching_any_status.n,
-        "registry_total": counts.registry_total.n,
         "filtered": any(filters[k] for k in ("q", "text", "status")),
         "can_manage": has_ability(request.user, Ability.MANAGE),
     }
