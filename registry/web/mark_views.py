@@ -113,12 +113,14 @@ def mark_list(request: HttpRequest) -> HttpResponse:
 @ability_required(Ability.VIEW)
 def mark_page(request: HttpRequest, code: str) -> HttpResponse:
     try:
-        detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code))
+        token = audit_token()
+        detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code), token=token)
     except Mark.DoesNotExist:
         raise Http404(f"No mark with code {code!r}.") from None
     context = {
         "detail": detail,
         "mark": detail.mark,
+        "read_token": token,
         "can_manage": has_ability(request.user, Ability.MANAGE),
         "can_record": has_ability(request.user, Ability.RECORD),
         # documents area: the mark's current and open sheets, and whether the user may prepare one
