@@ -108,7 +108,10 @@ if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
 #: Django's model backend, reading a user's permissions in one query (registry/auth_backend.py).
-AUTHENTICATION_BACKENDS = ["registry.auth_backend.RegistryModelBackend"]
+AUTHENTICATION_BACKENDS = [
+    "registry.auth_backend.RegistryModelBackend",
+    "django.contrib.auth.backends.ModelBackend",  # keeps sessions signed in through it valid; never asked for perms
+]
 AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
     {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},

@@ -48,3 +48,9 @@ def test_permissions_are_read_in_one_query_with_the_same_answers(manager, viewer
     loner.is_active = False
     del loner._perm_cache
     assert not has_ability(loner, Ability.VIEW)
+
+
+@pytest.mark.django_db
+def test_a_session_signed_in_through_djangos_model_backend_stays_valid(client, viewer):
+    client.force_login(viewer, backend="django.contrib.auth.backends.ModelBackend")
+    assert client.get("/marks/").status_code == 200
