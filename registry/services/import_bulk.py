@@ -146,14 +146,16 @@ def create_marks_in_batches(
     if errors:
         return [], 0, errors
 
+    for mark, positions in planned:
+        if positions:  # the latest publication gives the search location (written with the mark)
+            last = positions[-1][1]
+            mark.search_lat_deg, mark.search_lon_deg = last.lat_deg, last.lon_deg
     Mark.objects.bulk_create([mark for mark, _ in planned], batch_size=BATCH)
     now = timezone.now()
     mark_snapshots = {}
     for mark, positions in planned:
-        mark_snapshots[mark.pk] = snapshot(mark)
-        if positions:
-            last = positions[-1][1]  # the latest publication gives the search location
-            mark.search_lat_deg, mark.search_lon_deg = last.lat_deg, last.lon_deg
+        # mark_create's snapshot is taken before any position is published: no search location yet
+        mark_snapshots[mark.pk] = snapshot(mark) | {"search_lat_deg": None, "search_lon_deg": None}
         for _record, position in positions:
             position.mark = mark
     # Positions are inserted proposed-then-published in one step: same row as propose + publish.
@@ -165,8 +167,6 @@ def create_marks_in_batches(
             position.decided_at = now
             all_positions.append(position)
     Position.objects.bulk_create(all_positions, batch_size=BATCH)
-    located = [mark for mark, positions in planned if positions]
-    Mark.objects.bulk_update(located, ["search_lat_deg", "search_lon_deg"], batch_size=BATCH)
 
     events: list[AuditEvent] = []
     for mark, positions in planned:
