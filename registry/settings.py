@@ -121,6 +121,11 @@ if _replica_url:
 DATABASE_ROUTERS = ["registry.dbrouter.ReplicaRouter"]
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
+#: Django's model backend, reading a user's permissions in one query (registry/auth_backend.py).
+AUTHENTICATION_BACKENDS = [
+    "registry.auth_backend.RegistryModelBackend",
+    "django.contrib.auth.backends.ModelBackend",  # keeps sessions signed in through it valid; never asked for perms
+]
 AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
     {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
@@ -347,6 +352,8 @@ _TASK_BACKENDS = {
     "immediate": "django_tasks.backends.immediate.ImmediateBackend",
 }
 _task_backend = os.environ.get("REGISTRY_TASK_BACKEND", "database").strip() or "database"
+#: Marks files up to this size are imported in the request; larger ones by the task worker.
+REGISTRY_IMPORT_INLINE_BYTES = int(os.environ.get("REGISTRY_IMPORT_INLINE_BYTES", str(256 * 1024)))
 TASKS = {"default": {"BACKEND": _TASK_BACKENDS.get(_task_backend, _task_backend)}}
 
 LOGGING = {

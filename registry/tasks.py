@@ -17,3 +17,11 @@ def build_document(build_id: int) -> int | None:
     from registry.services.documents import run_build
 
     return run_build(build_id)
+
+
+@task()
+def run_mark_import(run_id: int) -> str:
+    """Run a queued marks import (``MarkImportRun``); returns its final state."""
+    from registry.services.import_runs import import_run_execute
+
+    return import_run_execute(run_id)

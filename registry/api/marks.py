@@ -18,7 +18,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.api.geojson import GEOJSON_MEDIA_TYPE, GeoJSONRenderer, feature_collection
-from registry.api.pagination import RegistryPagination
+from registry.api.pagination import MarkKeysetPagination
 from registry.api.permissions import ReadViewerWriteManager
 from registry.api.serializers import (
     ErrorSerializer,
@@ -78,7 +78,7 @@ class MarkListView(APIView):
 
     permission_classes = [ReadViewerWriteManager]
     renderer_classes = [JSONRenderer, GeoJSONRenderer]
-    pagination_class = RegistryPagination
+    pagination_class = MarkKeysetPagination
 
     def get_renderers(self):
         if getattr(self, "request", None) is not None and self.request.method not in ("GET", "HEAD"):
@@ -98,8 +98,13 @@ class MarkListView(APIView):
                 enum=["json", "geojson"],
                 description="geojson: an RFC 7946 FeatureCollection (also with Accept: application/geo+json).",
             ),
-            OpenApiParameter("limit", OpenApiTypes.INT),
-            OpenApiParameter("offset", OpenApiTypes.INT),
+            OpenApiParameter("limit", OpenApiTypes.INT, description="Rows per page, 1 to 500 (default 100)."),
+            OpenApiParameter(
+                "offset",
+                OpenApiTypes.INT,
+                description="Rows to skip, 0 to 10,000; deeper pages: follow next (a cursor).",
+            ),
+            OpenApiParameter("cursor", OpenApiTypes.STR, description="Opaque position from a next or previous link."),
         ],
         responses={
             (200, "application/json"): MarkSerializer(many=True),
@@ -131,6 +136,7 @@ class MarkListView(APIView):
         name = params.get("name", "").strip()
         if name:
             qs = qs.filter(name__icontains=name)
+        self.unfiltered = not (params.get("q", "").strip() or status or code or name)
         paginator = self.pagination_class()
         page = paginator.paginate_queryset(qs, request, view=self)
         if getattr(request.accepted_renderer, "format", "") == GeoJSONRenderer.format:
@@ -139,6 +145,7 @@ class MarkListView(APIView):
                     page,
                     paging={
                         "count": paginator.count,
+                        "count_is_estimate": not paginator.count_exact,
                         "next": paginator.get_next_link(),
                         "previous": paginator.get_previous_link(),
                     },

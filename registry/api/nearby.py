@@ -9,6 +9,8 @@ distances to 3 decimals of a metre (mm), azimuths to 6 decimal places of a degre
 
 from __future__ import annotations
 
+import datetime as dt
+
 from drf_spectacular.utils import OpenApiResponse, extend_schema
 from rest_framework import serializers
 from rest_framework.response import Response
@@ -16,6 +18,7 @@ from rest_framework.views import APIView
 
 from registry.models import MarkStatus, Stability
 from registry.selectors.nearby import CAUTIONS, SEARCH_LOCATION_NOTE, marks_near
+from registry.selectors.read_cache import cached_read
 
 #: Largest radius and limit the API accepts (the selector allows more for the command line).
 API_MAX_RADIUS_KM = 1000.0
@@ -122,8 +125,17 @@ class MarksNearView(APIView):
         query.is_valid(raise_exception=True)
         q = query.validated_data
         filters = {k: q[k] for k in _FILTERS if k in q}
-        found = marks_near(
-            lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
+        # The answer changes only with an audit row (a published position moves a search location), or
+        # with the date for the visit filter: cached under both (registry.selectors.read_cache).
+        found = cached_read(
+            "marks-near",
+            (q["lat"], q["lon"], q["radius_km"], q["limit"], sorted(filters.items()), dt.date.today()),
+            lambda: [
+                m.as_dict()
+                for m in marks_near(
+                    lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
+                )
+            ],
         )
         return Response(
             {
@@ -137,7 +149,7 @@ class MarksNearView(APIView):
                     "location_note": SEARCH_LOCATION_NOTE,
                 },
                 "count": len(found),
-                "marks": [m.as_dict() for m in found],
+                "marks": found,
                 "cautions": list(CAUTIONS),
             }
         )

@@ -15,10 +15,29 @@ from __future__ import annotations
 
 import csv
 import io
+from collections import Counter
 
-from registry.io.common import CSV_COLUMNS, ParseResult, RowError, format_cell, new_column_names, validate_row
+from registry.io.common import (
+    CSV_COLUMNS,
+    OLD_COLUMNS,
+    ParseResult,
+    RowError,
+    format_cell,
+    new_column_names,
+    validate_row,
+)
 
 MEDIA_TYPE = "text/csv"
+#: Most columns a header may have: every column and every earlier name once, with room for a few
+#: mistakes to be listed by name. A longer header is refused at once, before any name is compared.
+MAX_COLUMNS = len(CSV_COLUMNS) + len(OLD_COLUMNS) + 20
+#: Most column names quoted in one message.
+NAMES_SHOWN = 20
+
+
+def _names(names: list[str]) -> str:
+    shown = ", ".join(repr(n[:60]) for n in names[:NAMES_SHOWN])
+    return shown + (f" and {len(names) - NAMES_SHOWN} more" if len(names) > NAMES_SHOWN else "")
 
 
 def parse_marks_csv(text: str) -> ParseResult:
@@ -35,18 +54,28 @@ def parse_marks_csv(text: str) -> ParseResult:
     except csv.Error as exc:
         result.errors.append(RowError("line 1", 1, "malformed_csv", f"cannot read the header: {exc}"))
         return result
+    if len(header) > MAX_COLUMNS:
+        result.errors.append(
+            RowError(
+                "line 1",
+                1,
+                "too_many_columns",
+                f"the header has {len(header):,} columns; a marks file has at most {len(CSV_COLUMNS)} "
+                "(is this the right file, or a different separator?)",
+            )
+        )
+        return result
     header, renamed = new_column_names([h.strip() for h in header])
     if renamed:
         result.errors.extend(renamed)
         return result
-    unknown = [h for h in header if h not in CSV_COLUMNS]
-    repeated = sorted({h for h in header if header.count(h) > 1})
+    known = set(CSV_COLUMNS)
+    unknown = [h for h in header if h not in known]
+    repeated = sorted(name for name, n in Counter(header).items() if n > 1)
     if unknown:
-        result.errors.append(
-            RowError("line 1", 1, "unknown_column", f"unknown column(s): {', '.join(map(repr, unknown))}")
-        )
+        result.errors.append(RowError("line 1", 1, "unknown_column", f"unknown column(s): {_names(unknown)}"))
     if repeated:
-        result.errors.append(RowError("line 1", 1, "repeated_column", f"repeated column(s): {', '.join(repeated)}"))
+        result.errors.append(RowError("line 1", 1, "repeated_column", f"repeated column(s): {_names(repeated)}"))
     if "code" not in header:
         result.errors.append(RowError("line 1", 1, "code_required", "the header has no 'code' column"))
     if result.errors:

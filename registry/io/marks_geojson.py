@@ -103,7 +103,10 @@ def _feature_to_row(feature: Any, where: str, index: int) -> tuple[dict[str, Any
     unknown = [k for k in props if k not in ACCEPTED_PROPERTIES]
     if unknown:
         err(
-            "unknown_property", f"unknown propert{'y' if len(unknown) == 1 else 'ies'}: {', '.join(map(repr, unknown))}"
+            "unknown_property",
+            f"unknown propert{'y' if len(unknown) == 1 else 'ies'}: "
+            + ", ".join(repr(k[:60]) for k in unknown[:20])
+            + (f" and {len(unknown) - 20} more" if len(unknown) > 20 else ""),
         )
     raw: dict[str, Any] = {k: v for k, v in props.items() if k in PROPERTY_NAMES and k != "h_m"}
 

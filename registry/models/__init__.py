@@ -25,6 +25,7 @@ from registry.models.fieldwork import (
     Visit,
 )
 from registry.models.grids import GRID_CODE_VALIDATOR, CustomGrid, GridMethod, GridUnit
+from registry.models.imports import IMPORT_FINISHED_STATES, ImportState, MarkImportRun
 from registry.models.jobs import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.models.marks import (
     CODE_VALIDATOR,
@@ -54,6 +55,9 @@ __all__ = [
     "CheckStage",
     "MovementCheck",
     "MovementVerdict",
+    "IMPORT_FINISHED_STATES",
+    "ImportState",
+    "MarkImportRun",
     "DOCUMENT_FROZEN_FIELDS",
     "DOCUMENT_ISSUED_STATES",
     "DOCUMENT_STANDING_FIELDS",

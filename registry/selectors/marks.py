@@ -37,6 +37,8 @@ from registry.models import (
     PositionState,
     Visit,
 )
+from registry.selectors.paging import Count as RowCount
+from registry.selectors.paging import _planner_estimate, count_rows
 from registry.services.usability import Usability, assess
 
 MATCH_PREFIX = "prefix"
@@ -122,7 +124,9 @@ def mark_filter(*, q: str = "", match: str = MATCH_PREFIX, text: str = "") -> Qu
         if match == MATCH_CONTAINS:
             qs = qs.filter(Q(code__icontains=q) | Q(name__icontains=q))
         else:
-            qs = qs.filter(Q(code__istartswith=q) | Q(name__istartswith=q))
+            # Codes are capital letters, digits and _.- (CODE_VALIDATOR): "starts with, any case" is a
+            # case-sensitive prefix of the upper-cased query, which an index serves as a range.
+            qs = qs.filter(Q(code__startswith=q.upper()) | Q(name__istartswith=q))
     for word in (text or "").split():
         # the monument's kind is matched by its words ("disk" finds "disk set in rock outcrop")
         kinds = [value for value, label in MonumentKind.choices if word.lower() in str(label).lower()]
@@ -152,6 +156,42 @@ def mark_status_counts(*, q: str = "", match: str = MATCH_PREFIX, text: str = ""
     for row in rows:
         counts[row["status"]] = row["n"]
     return counts
+
+
+@dataclass
+class MarkListCounts:
+    """The mark list's counts: exact up to ``registry.selectors.paging.COUNT_CAP``, estimated above it."""
+
+    matching: RowCount  # matching the search and the status filter
+    matching_any_status: RowCount  # matching the search, any status
+    by_status: dict[str, RowCount]
+    registry_total: RowCount
+
+    @property
+    def status_counts(self) -> dict[str, int]:
+        return {status: c.n for status, c in self.by_status.items()}
+
+
+def mark_list_counts(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", status: str = "") -> MarkListCounts:
+    """Counts for the mark list in a few cheap queries, whatever the registry's size.
+
+    Up to 10,000 matching marks every count is exact; above that (PostgreSQL) the counts are the
+    planner's estimates and say so (``exact=False``); SQLite counts exactly.
+    """
+    searched = bool((q or "").strip() or (text or "").strip())
+    base = mark_filter(q=q, match=match, text=text)
+    registry_total = count_rows(Mark.objects.all(), unfiltered_model=Mark)
+    any_status = registry_total if not searched else count_rows(base)
+    if any_status.exact:
+        by_status = {value: RowCount(n) for value, n in mark_status_counts(q=q, match=match, text=text).items()}
+    else:  # PostgreSQL, more than COUNT_CAP matches: the planner's estimate per status
+        by_status = {
+            value: RowCount(_planner_estimate(base.filter(status=value)), exact=False) for value in MarkStatus.values
+        }
+    matching = by_status.get(status, any_status) if status else any_status
+    return MarkListCounts(
+        matching=matching, matching_any_status=any_status, by_status=by_status, registry_total=registry_total
+    )
 
 
 # Snapshot keys that say nothing a reader of the history needs (the row's own bookkeeping).

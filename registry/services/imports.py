@@ -38,6 +38,7 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import asdict, dataclass, field
 from pathlib import PurePath
 from typing import Any
@@ -62,11 +63,17 @@ from registry.io.marks_geojson import parse_marks_geojson
 from registry.models import AuditEvent, Mark, MarkStatus, Position, PositionState
 from registry.roles import Ability
 from registry.services.access import require_ability
+from registry.services.import_bulk import batch_eligible, create_marks_in_batches
 from registry.services.marks import VERSIONED_ACTIONS, mark_create, mark_set_status, mark_update
 from registry.services.positions import position_propose_and_publish
 from registry.services.suspect import mark_make_suspect
 
 FORMATS = ("csv", "geojson")
+#: Most row errors a refusal carries in its message details and shows on a page; the full list is
+#: kept for download (``registry.services.import_runs``).
+ERRORS_SHOWN = 200
+#: Codes per ``IN (...)`` list (SQLite allows a limited number of parameters per statement).
+IN_CHUNK = 900
 _EXTENSIONS = {".csv": "csv", ".geojson": "geojson", ".json": "geojson"}
 
 
@@ -80,10 +87,20 @@ class ImportRejected(InvalidInput):
         rows = len({e.where for e in errors})
         name = f" {filename}" if filename else ""
         super().__init__(
-            f"The import of{name} was refused: {len(errors)} problem(s) in {rows} row(s). Nothing was changed.",
-            details={"errors": [e.as_dict() for e in errors]},
+            f"The import of{name} was refused: {len(errors):,} problem(s) in {rows:,} row(s). Nothing was changed.",
+            details={
+                "errors": [e.as_dict() for e in errors[:ERRORS_SHOWN]],
+                "error_count": len(errors),
+                "errors_shown": min(len(errors), ERRORS_SHOWN),
+            },
         )
+        #: Every problem, in file order (``details`` carries the first :data:`ERRORS_SHOWN`).
         self.errors = errors
+        self.rows = rows
+
+    @property
+    def shown(self) -> list[RowError]:
+        return self.errors[:ERRORS_SHOWN]
 
 
 @dataclass
@@ -163,6 +180,40 @@ def _same_position(stored: Position | None, wanted: dict[str, Any]) -> bool:
     return all(getattr(stored, name) == wanted.get(name) for name in POSITION_MODEL_FIELDS)
 
 
+def _chunks(items: Iterable, size: int = IN_CHUNK) -> Iterator[list]:
+    chunk = []
+    for item in items:
+        chunk.append(item)
+        if len(chunk) == size:
+            yield chunk
+            chunk = []
+    if chunk:
+        yield chunk
+
+
+def _existing_marks(codes: Iterable[str]) -> dict[str, Mark]:
+    """Marks of these codes that are in the registry (one query per :data:`IN_CHUNK` codes)."""
+    return {m.code: m for chunk in _chunks(sorted(set(codes))) for m in Mark.objects.filter(code__in=chunk)}
+
+
+def _published_positions(mark_ids: list[int]) -> dict[tuple[int, int], Position]:
+    """The published position of each (mark, frame) of these marks."""
+    out = {}
+    for chunk in _chunks(mark_ids):
+        for p in Position.objects.filter(mark_id__in=chunk, state=PositionState.PUBLISHED):
+            out[(p.mark_id, p.frame_epsg)] = p
+    return out
+
+
+def _lock_marks(mark_ids: list[int]) -> dict[int, Mark]:
+    """Lock the rows of these marks for the import's transaction (in id order), and read them again."""
+    out = {}
+    for chunk in _chunks(sorted(mark_ids)):
+        for m in Mark.objects.select_for_update().filter(pk__in=chunk).order_by("pk"):
+            out[m.pk] = m
+    return out
+
+
 def _when(moment) -> str:
     return timezone.localtime(moment, dt.UTC).strftime("%Y-%m-%d %H:%M UTC") if moment else "an unknown time"
 
@@ -203,17 +254,24 @@ def _moved(in_file: int, in_registry: int) -> str:
 
 def _concurrency_errors(records: list[MarkRecord], existing: dict[str, Mark], overwrite: bool) -> list[RowError]:
     """Stale or unversioned rows of existing marks (the ``--update`` check, before anything is written)."""
-    marks = [existing[r.code] for r in records if r.code in existing]
-    revisions = {
-        (row["mark_id"], row["frame_epsg"]): row["n"]
-        for row in Position.objects.filter(mark__in=marks, state__in=EVER_PUBLISHED_STATES)
-        .values("mark_id", "frame_epsg")
-        .annotate(n=Count("id"))
-        .order_by()
-    }
-    published = set(
-        Position.objects.filter(mark__in=marks, state=PositionState.PUBLISHED).values_list("mark_id", "frame_epsg")
-    )
+    mark_ids = sorted({existing[r.code].pk for r in records if r.code in existing})
+    revisions = {}
+    published = set()
+    for chunk in _chunks(mark_ids):
+        revisions.update(
+            {
+                (row["mark_id"], row["frame_epsg"]): row["n"]
+                for row in Position.objects.filter(mark_id__in=chunk, state__in=EVER_PUBLISHED_STATES)
+                .values("mark_id", "frame_epsg")
+                .annotate(n=Count("id"))
+                .order_by()
+            }
+        )
+        published.update(
+            Position.objects.filter(mark_id__in=chunk, state=PositionState.PUBLISHED).values_list(
+                "mark_id", "frame_epsg"
+            )
+        )
     errors: list[RowError] = []
 
     def err(record, code, message, field_name):
@@ -259,9 +317,21 @@ def _concurrency_errors(records: list[MarkRecord], existing: dict[str, Mark], ov
     return errors
 
 
-def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, summary: ImportSummary, at: list):
+def _apply_mark(
+    actor,
+    group: list[MarkRecord],
+    mark: Mark | None,
+    note: str,
+    summary: ImportSummary,
+    at: list,
+    *,
+    locked: Mark | None = None,
+    published: dict[tuple[int, int], Position] | None = None,
+):
     """Apply the rows of one mark code; ``at[0]`` is the row being applied (for error reports).
 
+    ``locked``: the mark's row, already locked and read in this transaction; ``published``: the
+    published positions of the existing marks by (mark id, frame), read after the lock.
     Returns True when anything changed.
     """
     first = at[0] = group[0]
@@ -275,6 +345,7 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
     # A suspect mark becomes suspect through its own service, after the positions (publishing clears it).
     late_suspect = status == MarkStatus.SUSPECT
     changed = False
+    was_suspect = False
     if mark is None:
         if late_destroyed and any_position:
             data["status"] = MarkStatus.ACTIVE
@@ -286,7 +357,7 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
         changed = True
     else:
         # The check before the transaction read the versions; lock the mark and read them again.
-        mark = Mark.objects.select_for_update().get(pk=mark.pk)
+        mark = locked if locked is not None else Mark.objects.select_for_update().get(pk=mark.pk)
         if first.version is not None and first.version != mark.version:
             raise Conflict(
                 f"mark {mark.code} was changed while the file was being imported: file version {first.version}, "
@@ -300,6 +371,7 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
             expected, changed = mark.version, True
         # A suspect mark made active by the file: after its positions (a new one ends the suspicion).
         late_active = mark.status == MarkStatus.SUSPECT and status == MarkStatus.ACTIVE
+        was_suspect = mark.status == MarkStatus.SUSPECT
         if status is not None and status != mark.status and not (late_destroyed or late_suspect or late_active):
             mark = mark_set_status(actor=actor, code=mark.code, status=status, expected_version=expected, note=note)
             changed = True
@@ -307,9 +379,12 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
         at[0] = record
         if record.position is None:
             continue
-        stored = Position.objects.filter(
-            mark=mark, frame_epsg=record.position["frame_epsg"], state=PositionState.PUBLISHED
-        ).first()
+        if published is not None:  # read once for the file (each frame appears once per mark)
+            stored = published.get((mark.pk, record.position["frame_epsg"]))
+        else:
+            stored = Position.objects.filter(
+                mark=mark, frame_epsg=record.position["frame_epsg"], state=PositionState.PUBLISHED
+            ).first()
         if not _same_position(stored, record.position):
             _publish(actor, mark.code, record.position, summary)
             changed = True
@@ -321,6 +396,8 @@ def _apply_mark(actor, group: list[MarkRecord], mark: Mark | None, note: str, su
                 actor=actor, code=mark.code, status=MarkStatus.DESTROYED, expected_version=mark.version, note=note
             )
             changed = True
+    if not (late_suspect or (status == MarkStatus.ACTIVE and was_suspect)):
+        return changed
     mark = Mark.objects.select_for_update().get(pk=mark.pk)
     if late_suspect:
         changed = _apply_suspect(actor, mark, suspect_since, suspect_reason, note) or changed
@@ -370,6 +447,7 @@ def mark_import(
     update: bool = False,
     overwrite: bool = False,
     dry_run: bool = False,
+    progress: Callable[[str, float], None] | None = None,
 ) -> ImportSummary:
     """Import marks and their published positions from CSV or GeoJSON content.
 
@@ -392,6 +470,9 @@ def mark_import(
         stored now (recorded in the import's audit event).
     dry_run
         Validate and apply inside a transaction, then roll it back: the summary says what would happen.
+    progress
+        Called with (what is being done, in words; fraction done 0..1) at each step and every few
+        hundred rows before the writing starts (the writing itself is one transaction).
 
     Returns
     -------
@@ -422,10 +503,16 @@ def mark_import(
             [RowError("file", 0, "not_utf8", f"the file is not UTF-8 text (byte {exc.start})")], filename=filename
         ) from None
 
+    def step(words: str, fraction: float) -> None:
+        if progress is not None:
+            progress(words, fraction)
+
+    step("reading the file", 0.0)
     parsed = parse_marks_csv(text) if fmt == "csv" else parse_marks_geojson(text)
     errors = parsed.errors + check_rows_per_mark(parsed.records)
     records = parsed.records
-    existing = {m.code: m for m in Mark.objects.filter(code__in={r.code for r in records})}
+    step(f"checking {len(records):,} rows against the registry", 0.2)
+    existing = _existing_marks(r.code for r in records)
     if not update:
         errors += [
             RowError(
@@ -458,13 +545,46 @@ def mark_import(
     note = f"import of {filename or 'a file'} (sha256 {sha256[:12]})"
     if summary.unversioned:
         note += f"; {len(summary.unversioned)} mark(s) applied without a version check (overwrite)"
+    batched = [(code, group) for code, group in groups.items() if code not in existing and batch_eligible(group)]
+    one_by_one = [(code, group) for code, group in groups.items() if code in existing or not batch_eligible(group)]
+    total_rows = max(1, len(records))
+    step(f"writing {len(groups):,} marks (all or nothing)", 0.3)
     try:
         with transaction.atomic():
-            for code, group in groups.items():
+            if batched:
+                try:
+                    with transaction.atomic():
+                        created, published_n, batch_errors = create_marks_in_batches(
+                            actor=actor,
+                            groups=batched,
+                            progress=lambda rows: step(
+                                f"writing {len(groups):,} marks (all or nothing)", 0.3 + 0.6 * rows / total_rows
+                            ),
+                        )
+                    errors.extend(batch_errors)
+                    summary.created.extend(created)
+                    summary.positions_published += published_n
+                except DatabaseError:
+                    # The database refused a batch: the services, one mark at a time, name the row.
+                    one_by_one = batched + one_by_one
+            ids = [existing[code].pk for code, _ in one_by_one if code in existing]
+            locked = _lock_marks(ids)
+            published = _published_positions(ids)
+            for code, group in one_by_one:
                 at = [group[0]]
                 try:
                     with transaction.atomic():
-                        changed = _apply_mark(actor, group, existing.get(code), note, summary, at)
+                        mark = existing.get(code)
+                        changed = _apply_mark(
+                            actor,
+                            group,
+                            mark,
+                            note,
+                            summary,
+                            at,
+                            locked=locked.get(mark.pk) if mark else None,
+                            published=published,
+                        )
                     if code not in existing:
                         summary.created.append(code)
                     else:
@@ -473,6 +593,8 @@ def mark_import(
                     errors.extend(_service_errors(exc, at[0]))
             if errors:
                 raise ImportRejected(errors, filename=filename)
+            order = {code: i for i, code in enumerate(groups)}
+            summary.created.sort(key=order.__getitem__)
             counts = ("created", "updated", "unchanged")
             AuditEvent.objects.create(
                 actor=actor if getattr(actor, "is_authenticated", False) else None,

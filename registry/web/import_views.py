@@ -1,8 +1,10 @@
 """The import page (managers: an import publishes positions): upload a CSV or GeoJSON file; all or nothing.
 
-The page calls the same service as ``manage.py import_marks`` (:func:`registry.services.imports.mark_import`):
-on any bad row it lists every one (CSV line or GeoJSON feature index, column, reason) and nothing is
-changed; on success it shows what was created, updated and left unchanged.
+The page calls the same service as ``manage.py import_marks`` (:func:`registry.services.imports.mark_import`),
+through :mod:`registry.services.import_runs`: a small file is imported in the request, a large one by
+the task worker while the run's page follows it. On any bad row nothing is changed and the page shows
+the first 200 problems (CSV line or GeoJSON feature index, column, reason) with their count; the full
+list downloads as CSV. On success it shows what was created, updated and left unchanged.
 """
 
 from __future__ import annotations
@@ -17,12 +19,14 @@ from django import forms
 from django.conf import settings
 from django.core import signing
 from django.core.exceptions import ValidationError
-from django.http import HttpRequest, HttpResponse
-from django.shortcuts import render
+from django.http import Http404, HttpRequest, HttpResponse
+from django.shortcuts import redirect, render
 
+from registry.errors import NotFound
 from registry.io.common import CSV_COLUMNS
+from registry.models import ImportState
 from registry.roles import Ability
-from registry.services.imports import ImportRejected, mark_import
+from registry.services.import_runs import access_import_run, import_run_errors_csv, import_run_start
 from registry.web.views import ability_required
 
 MAX_UPLOAD_BYTES = 20 * 1024 * 1024
@@ -120,20 +124,20 @@ def _read_checked(user, reference: str) -> tuple[dict, bytes]:
 
 @ability_required(Ability.MANAGE)
 def import_page(request: HttpRequest) -> HttpResponse:
-    context = {"columns": CSV_COLUMNS, "summary": None, "rejected": None, "checked": None, "check_error": None}
+    context = {"columns": CSV_COLUMNS, "run": None, "checked": None, "check_error": None}
     status = 200
     form = ImportForm()
+    run = None
     if request.method == "POST" and request.POST.get("checked"):
         # The second step: import the file that passed the check, without choosing it again.
-        reference = request.POST["checked"]
         try:
-            ref, content = _read_checked(request.user, reference)
+            ref, content = _read_checked(request.user, request.POST["checked"])
         except ValidationError as exc:
             context["check_error"] = exc.messages[0]
             status = 400
         else:
             try:
-                context["summary"] = mark_import(
+                run = import_run_start(
                     actor=request.user,
                     content=content,
                     filename=ref["name"],
@@ -142,10 +146,6 @@ def import_page(request: HttpRequest) -> HttpResponse:
                     overwrite=ref["overwrite"],
                     dry_run=False,
                 )
-            except ImportRejected as exc:
-                context["rejected"] = exc
-                context["filename"] = ref["name"]
-                status = 400
             except ValidationError as exc:
                 context["check_error"] = exc.messages[0]
                 status = 400
@@ -161,7 +161,7 @@ def import_page(request: HttpRequest) -> HttpResponse:
                 "overwrite": form.cleaned_data["overwrite"],
             }
             try:
-                summary = mark_import(
+                run = import_run_start(
                     actor=request.user,
                     content=content,
                     filename=upload.name,
@@ -170,16 +170,11 @@ def import_page(request: HttpRequest) -> HttpResponse:
                     overwrite=options["overwrite"],
                     dry_run=form.cleaned_data["dry_run"],
                 )
-            except ImportRejected as exc:
-                context["rejected"] = exc
-                context["filename"] = upload.name
-                status = 400
             except ValidationError as exc:
                 form.add_error("format", exc)
                 status = 400
             else:
-                context["summary"] = summary
-                if summary.dry_run:
+                if run.finished and run.state == ImportState.DONE and form.cleaned_data["dry_run"]:
                     context["checked"] = {
                         "reference": _keep_checked(user=request.user, content=content, filename=upload.name, **options),
                         "update": options["update"],
@@ -187,5 +182,37 @@ def import_page(request: HttpRequest) -> HttpResponse:
                     }
         else:
             status = 400
+    if run is not None:
+        if not run.finished:  # queued for the worker: follow it on its own page
+            return redirect("web:import-run", run_id=run.pk)
+        context["run"] = run
+        status = 400 if run.state != ImportState.DONE else 200
     context["form"] = form
     return render(request, "registry/import.html", context, status=status)
+
+
+@ability_required(Ability.MANAGE)
+def import_run_page(request: HttpRequest, run_id: int) -> HttpResponse:
+    """One import: its progress while it runs (the page reloads itself), then its outcome."""
+    try:
+        run = access_import_run(request.user, run_id)
+    except NotFound:
+        raise Http404("No such import.") from None
+    context = {"columns": CSV_COLUMNS, "run": run, "form": ImportForm(), "follow": not run.finished}
+    return render(request, "registry/import.html", context)
+
+
+@ability_required(Ability.MANAGE)
+def import_run_errors(request: HttpRequest, run_id: int) -> HttpResponse:
+    """Every problem of a refused import, as CSV."""
+    try:
+        run = access_import_run(request.user, run_id)
+    except NotFound:
+        raise Http404("No such import.") from None
+    if run.state != ImportState.REFUSED:
+        raise Http404("This import has no list of problems.")
+    response = HttpResponse(import_run_errors_csv(run), content_type="text/csv; charset=utf-8")
+    stem = (run.filename.rsplit(".", 1)[0] or "import")[:80]
+    safe = "".join(c if c.isalnum() or c in "-_." else "_" for c in stem)
+    response["Content-Disposition"] = f'attachment; filename="{safe}-problems.csv"'
+    return response

@@ -6,17 +6,21 @@ go through :mod:`registry.services.marks` (role check, validation, transaction, 
 
 from __future__ import annotations
 
+import functools
+
 from django.contrib import messages
 from django.core.exceptions import ValidationError
-from django.core.paginator import Paginator
 from django.http import Http404, HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
+from django.utils.functional import SimpleLazyObject
 
 from registry.errors import Conflict
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
-from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_search, mark_status_counts
+from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_list_counts, mark_search
+from registry.selectors.paging import MAX_NUMBERED_PAGE, KeysetPage, keyset_page
+from registry.selectors.read_cache import audit_token, cached_read
 from registry.selectors.timeseries import mark_timeseries
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
@@ -28,29 +32,88 @@ from registry.web.views import ability_required
 PAGE_SIZE = 50
 
 
+_LISTING_NAMES = (
+    "page",
+    "markmap",
+    "counts",
+    "too_deep",
+    "num_pages",
+    "status_counts",
+    "matching_any_status",
+    "registry_total",
+)
+
+
+def _page_number(raw: str | None) -> int:
+    try:
+        return max(1, int(raw or 1))
+    except (TypeError, ValueError):
+        return 1
+
+
 @ability_required(Ability.VIEW)
 def mark_list(request: HttpRequest) -> HttpResponse:
+    """The mark list: numbered pages up to MAX_NUMBERED_PAGE, then keyset links (after/before a code)."""
     form = MarkSearchForm(request.GET or None)
     if request.GET:
         filters = form.filters()
     else:
         filters = {"q": "", "match": MATCH_PREFIX, "text": "", "status": ""}
-    paginator = Paginator(mark_search(**filters), PAGE_SIZE)
-    page = paginator.get_page(request.GET.get("page"))
-    page.object_list = attach_usability(page.object_list)
-    markmap = build_map(points_from_marks(page.object_list, lambda code: reverse("web:mark-detail", args=[code])))
-    status_counts = mark_status_counts(q=filters["q"], match=filters["match"], text=filters["text"])
+    after = (request.GET.get("after") or "").strip()[:64] or None
+    before = (request.GET.get("before") or "").strip()[:64] or None
+    last = request.GET.get("last") == "1"
+    number = _page_number(request.GET.get("page"))
+    token = audit_token()
+
+    @functools.cache
+    def listing() -> dict:
+        """The rows and counts; read only if the template's cached fragment is missing."""
+        counts = cached_read(
+            "mark-list-counts", tuple(sorted(filters.items())), lambda: mark_list_counts(**filters), token=token
+        )
+        num_pages = max(1, -(-counts.matching.n // PAGE_SIZE)) if counts.matching.exact else None
+        page_number = min(number, num_pages) if num_pages is not None else number  # past the end: the last page
+        too_deep = after is None and before is None and not last and page_number > MAX_NUMBERED_PAGE
+        if too_deep:
+            page = KeysetPage([], PAGE_SIZE, has_next=False, has_previous=True, number=page_number)
+        else:
+            page = cached_read(
+                "mark-list-page",
+                (tuple(sorted(filters.items())), after, before, last, page_number),
+                lambda: keyset_page(
+                    mark_search(**filters),
+                    key="code",
+                    size=PAGE_SIZE,
+                    after=after,
+                    before=before,
+                    last=last,
+                    number=None if after else page_number,
+                ),
+                token=token,
+            )
+        page.object_list = attach_usability(page.object_list)
+        markmap = build_map(points_from_marks(page.object_list, lambda code: reverse("web:mark-detail", args=[code])))
+        return {
+            "page": page,
+            "markmap": markmap,
+            "counts": counts,
+            "too_deep": too_deep,
+            "num_pages": num_pages,
+            "status_counts": counts.status_counts,
+            "matching_any_status": counts.matching_any_status.n,
+            "registry_total": counts.registry_total.n,
+        }
+
     context = {
         "form": form,
         "filters": filters,
-        "page": page,
-        "paginator": paginator,
-        "status_counts": status_counts,
-        "matching_any_status": sum(status_counts.values()),
-        "registry_total": Mark.objects.count(),
+        # The list's fragment is cached under the audit token and the full address (the template's
+        # {% cache %}); these are computed only when it is rendered.
+        **{name: SimpleLazyObject(lambda name=name: listing()[name]) for name in _LISTING_NAMES},
+        "read_token": token,
+        "max_numbered_page": MAX_NUMBERED_PAGE,
         "filtered": any(filters[k] for k in ("q", "text", "status")),
         "can_manage": has_ability(request.user, Ability.MANAGE),
-        "markmap": markmap,
     }
     return render(request, "registry/mark_list.html", context)
 
@@ -58,12 +121,14 @@ def mark_list(request: HttpRequest) -> HttpResponse:
 @ability_required(Ability.VIEW)
 def mark_page(request: HttpRequest, code: str) -> HttpResponse:
     try:
-        detail = mark_detail(code=code)
+        token = audit_token()
+        detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code), token=token)
     except Mark.DoesNotExist:
         raise Http404(f"No mark with code {code!r}.") from None
     context = {
         "detail": detail,
         "mark": detail.mark,
+        "read_token": token,
         "can_manage": has_ability(request.user, Ability.MANAGE),
         "can_record": has_ability(request.user, Ability.RECORD),
         # documents area: the mark's current and open sheets, and whether the user may prepare one

@@ -31,6 +31,8 @@ urlpatterns: list = [
     path("marks/new/", mark_views.mark_new, name="mark-create"),
     # import (import-export area); before marks/<code>/ so that "import" never reads as a code
     path("marks/import/", import_views.import_page, name="import"),
+    path("marks/import/runs/<int:run_id>/", import_views.import_run_page, name="import-run"),
+    path("marks/import/runs/<int:run_id>/problems.csv", import_views.import_run_errors, name="import-run-errors"),
     # marks near a point (fieldwork pages area); before marks/<code>/ so that "near" never reads as a code
     path("marks/near/", nearby_views.marks_near_page, name="marks-near"),
     # batch occupation results from a CSV file (preview, then record)

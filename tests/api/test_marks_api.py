@@ -60,8 +60,26 @@ def test_list_rejects_an_unknown_status(district, viewer, api_client_for):
 
 
 def test_list_is_paginated(district, viewer, api_client_for):
-    body = api_client_for(viewer).get("/api/marks/?limit=2").json()
-    assert body["count"] == 3 and len(body["results"]) == 2 and "offset=2" in body["next"]
+    client = api_client_for(viewer)
+    body = client.get("/api/marks/?limit=2").json()
+    assert body["count"] == 3 and body["count_is_estimate"] is False and len(body["results"]) == 2
+    assert "cursor=" in body["next"] and body["previous"] is None
+    second = client.get(body["next"]).json()
+    assert [m["code"] for m in second["results"]] == ["QR-102"] and second["next"] is None
+    back = client.get(second["previous"]).json()
+    assert [m["code"] for m in back["results"]] == [m["code"] for m in body["results"]]
+    # offset still pages (up to 10,000 rows deep), with offset links
+    by_offset = client.get("/api/marks/?limit=2&offset=0").json()
+    assert by_offset["results"] == body["results"] and "offset=2" in by_offset["next"]
+    assert [m["code"] for m in client.get(by_offset["next"]).json()["results"]] == ["QR-102"]
+
+
+def test_list_refuses_a_deep_offset_and_a_foreign_cursor(district, viewer, api_client_for):
+    client = api_client_for(viewer)
+    error = assert_error_shape(client.get("/api/marks/?offset=10001"), 400, "invalid")
+    assert error["details"]["offset"][0]["code"] == "max_value"
+    error = assert_error_shape(client.get("/api/marks/?cursor=not-ours"), 400, "invalid")
+    assert error["details"]["cursor"][0]["code"] == "invalid_cursor"
 
 
 def test_search_location_carries_frame_and_epoch_and_rounding(district, viewer, api_client_for):

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import calendar
 import datetime as dt
+import functools
 import math
 from functools import lru_cache
 
@@ -177,7 +178,9 @@ def format_utc(value: dt.datetime) -> str:
 _SHORT_STATE_WORDS = {"suspect": "suspect"}
 
 
+@functools.cache
 def _state_labels() -> dict[str, str]:
+    """Every state's label by value (built once: it was rebuilt for every badge, a tenth of a list page)."""
     from registry.models import DocumentState, Finding, MarkStatus, PositionState
 
     labels: dict[str, str] = {}
