@@ -8,7 +8,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('registry', '0016_mark_text_search_indexes'),
+        ('registry', '0014_mark_text_search_indexes'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 

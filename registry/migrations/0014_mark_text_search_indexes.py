@@ -43,6 +43,6 @@ def _backward(apps, schema_editor):
 class Migration(migrations.Migration):
     atomic = False
 
-    dependencies = [("registry", "0011_signed_document_triggers")]
+    dependencies = [("registry", "0013_movement_checks")]
 
     operations = [migrations.RunPython(_forward, _backward, elidable=False)]
