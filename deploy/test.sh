@@ -16,7 +16,8 @@
 #      runtime role to check its rights on the audit trail), its owner role, the database
 #      `registry` and PostGIS in template1 (so that test databases get it). It never drops a
 #      database; pytest-django creates and drops test_<name> itself.
-#   4. pytest without DATABASE_URL (SQLite), then with it (PostgreSQL + PostGIS).
+#   4. The type check (mypy, configured in pyproject.toml: registry/geodesy); a failure stops the run.
+#      Then pytest without DATABASE_URL (SQLite), then with it (PostgreSQL + PostGIS).
 #   5. A summary with both counts and the elapsed time. Exit status 0 only if both halves
 #      passed; "no tests collected" (pytest exit 5) and a PostgreSQL half that could not run
 #      are failures.
@@ -309,7 +310,15 @@ meaning_of() {
 
 PYTEST_ARGS=("$@")
 
-step "[4/5] Tests on SQLite"
+step "[4/5] Type check (mypy), then tests on SQLite"
+T0=$SECONDS
+if "$VENV_DIR/bin/mypy" 2>&1 | tee "$LOG_DIR/mypy.log"; then
+  ok "mypy: no issues ($(fmt_duration $((SECONDS - T0))))"
+else
+  printf '\n%sThe type check failed (mypy, log in var/test-logs/mypy.log): the tests were not run.%s\n' "$_R" "$_N"
+  exit 1
+fi
+
 T0=$SECONDS
 RC_SQLITE=0
 run_half sqlite "$LOG_DIR/sqlite.log" -u DATABASE_URL || RC_SQLITE=$?
