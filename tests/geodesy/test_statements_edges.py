@@ -1,0 +1,225 @@
+"""Residual tables and finding sentences, pinned where a mutation run found them loose.
+
+Every refusal is checked by its stable code, its parameters and the sentence a person reads; every
+finding code by its sentence. The sentences are the project's own wording (typed here again on
+purpose, so that a change of wording is a deliberate change of this file). The numbers inside them
+come from the accuracy rules: ASPRS Edition 2 (2023) 30 check points and 3 × RMSE (secondary
+transcription), NSSDA 20 check points and the 0.6 ratio bound (FGDC-STD-007.3-1998; the bound from
+memory, unconfirmed).
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from registry.geodesy import statements as st
+from registry.geodesy.accuracy import ComputationInputError, Finding
+
+
+def _refusal(func, *args) -> ComputationInputError:
+    with pytest.raises(ComputationInputError) as info:
+        func(*args)
+    return info.value
+
+
+CSV_REFUSALS = [
+    # (CSV text, code, params, sentence)
+    ("", "residuals_empty", {}, "The residual file is empty."),
+    ("# only a comment\n\n", "residuals_empty", {}, "The residual file is empty."),
+    ("point_id,du_m,du_m\nA,1,2\n", "residuals_duplicate_column", {}, "A column name appears twice in the header."),
+    ("point_id,du_m\nA,0.01,0.02\n", "residuals_bad_row", {"line": 2}, "Line 2: 3 values for 2 columns."),
+    (
+        "point_id,du_m,height\nA,0.01,3\n",
+        "residuals_unknown_column",
+        {"columns": ["height"]},
+        "Unknown column(s) height; allowed: point_id, de_m, dn_m, du_m, sigma_e_m, sigma_n_m, sigma_u_m.",
+    ),
+    ("id,du_m\nA,0.01\n", "residuals_unknown_column", {"columns": ["id"]}, None),
+    ("du_m\n0.01\n", "residuals_missing_column", {"column": "point_id"}, "The residuals need a point_id column."),
+    (
+        "point_id,de_m\nA,0.01\n",
+        "residuals_missing_column",
+        {"column": "de_m/dn_m"},
+        "Give de_m and dn_m together (horizontal), or neither.",
+    ),
+    (
+        "point_id,sigma_u_m\nA,0.01\n",
+        "residuals_missing_column",
+        {"column": "de_m/dn_m/du_m"},
+        "The residuals need de_m and dn_m, or du_m, or all three.",
+    ),
+    ("point_id,du_m\n", "residuals_empty", {}, "No check points given."),
+    (
+        "point_id,du_m\n ,0.01\n",
+        "residuals_missing_value",
+        {"line": 2, "column": "point_id"},
+        "Line 2: point_id is empty.",
+    ),
+    (
+        "point_id,du_m\nA,0.01\n# a comment line keeps its number\nA,0.02\n",
+        "residuals_duplicate_point",
+        {"line": 4, "point_id": "A"},
+        "Line 4: point_id A appears twice.",
+    ),
+    ("point_id,du_m\nA, \n", "residuals_missing_value", {"line": 2, "column": "du_m"}, "Line 2: du_m is empty."),
+    ("point_id,du_m\nA,nan\n", "residuals_bad_number", {"line": 2, "column": "du_m"}, "Line 2: du_m must be finite."),
+    (
+        "point_id,du_m\nA,abc\n",
+        "residuals_bad_number",
+        {"line": 2, "column": "du_m"},
+        "Line 2: du_m = 'abc' is not a number.",
+    ),
+    (
+        "point_id,du_m,sigma_u_m\nA,0.01,-0.001\n",
+        "residuals_bad_number",
+        {"line": 2, "column": "sigma_u_m"},
+        "Line 2: sigma_u_m cannot be negative.",
+    ),
+]
+
+
+@pytest.mark.parametrize(("text", "code", "params", "sentence"), CSV_REFUSALS)
+def test_csv_refusals(text, code, params, sentence):
+    err = _refusal(st.parse_residuals_csv, text)
+    assert (err.code, err.params) == (code, params)
+    if sentence is not None:
+        assert err.message == sentence
+
+
+def test_csv_numbers_with_spaces_zero_sigma_and_a_bom():
+    t = st.parse_residuals_csv("\ufeffpoint_id, du_m ,sigma_u_m\n A , 0.25 ,0\n")
+    assert t.point_ids == ("A",) and t.du_m.tolist() == [0.25] and t.sigma_u_m.tolist() == [0.0]
+
+
+ROW_REFUSALS = [
+    ({"point_id": "A", "du_m": 0.01}, "residuals_bad_row", {}, "residuals must be a list of objects."),
+    ([{"point_id": "A", "du_m": 0.01}, "B"], "residuals_bad_row", {}, "residuals must be a list of objects."),
+    (
+        [{"point_id": "A", "du_m": 0.01}, {"point_id": "", "du_m": 0.02}],
+        "residuals_missing_value",
+        {"line": 2, "column": "point_id"},
+        "Row 2: point_id is empty.",
+    ),
+    (
+        [{"point_id": "A", "du_m": 0.01}, {"point_id": "B"}],
+        "residuals_missing_value",
+        {"line": 2, "column": "du_m"},
+        "Row 2: du_m is empty.",
+    ),
+]
+
+
+@pytest.mark.parametrize(("rows", "code", "params", "sentence"), ROW_REFUSALS)
+def test_row_refusals(rows, code, params, sentence):
+    err = _refusal(st.residual_table_from_rows, rows)
+    assert (err.code, err.params, err.message) == (code, params, sentence)
+
+
+def test_rows_skip_columns_that_are_null_everywhere():
+    t = st.residual_table_from_rows([{"point_id": "A", "du_m": 0.5, "de_m": None}, {"point_id": "B", "du_m": "-0.25"}])
+    assert t.point_ids == ("A", "B") and t.du_m.tolist() == [0.5, -0.25] and t.de_m is None
+
+
+def test_too_many_check_points_is_refused_at_one_more_than_the_limit():
+    limit = st.MAX_CHECKPOINTS
+    rows = [{"point_id": str(i), "du_m": 0.0} for i in range(limit)]
+    assert st.residual_table_from_rows(rows).n == limit  # exactly the limit is accepted
+    err = _refusal(st.residual_table_from_rows, rows + [{"point_id": "one more", "du_m": 0.0}])
+    assert (err.code, err.params, err.message) == (
+        "residuals_too_many",
+        {"maximum": limit},
+        f"At most {limit} check points at a time.",
+    )
+
+
+FINDING_SENTENCES = [
+    (
+        Finding("too_few_checkpoints", {"n": 12, "minimum": 20, "standard": "nssda"}),
+        "Only 12 check points: NSSDA asks for at least 20. Treat the figures as indicative.",
+    ),
+    (
+        Finding("too_few_checkpoints", {"n": 29, "minimum": 30, "standard": "asprs2023"}),
+        "Only 29 check points: ASPRS Edition 2 (2023) asks for at least 30. Treat the figures as indicative.",
+    ),
+    (
+        Finding("nssda_ratio_outside", {"ratio": 0.2, "limit": 0.6}),
+        "RMSE_min/RMSE_max = 0.200 is below 0.6, where the NSSDA approximation 2.4477 × 0.5 × (RMSE_x + RMSE_y) "
+        "no longer holds; the circular-error method of Greenwalt & Shultz (1968), the same K polynomial "
+        "FGDC-STD-007.2-1998 uses (K × RMSE_max), is used instead. That this is the method the NSSDA refers to "
+        "here is from memory, unconfirmed.",
+    ),
+    (
+        Finding(
+            "bias",
+            {
+                "axis": "z",
+                "mean_m": 0.03,
+                "rmse_m": 0.05,
+                "ratio": 0.6,
+                "limit": 0.25,
+                "reference": "measured",
+                "target_rmse_m": None,
+            },
+        ),
+        "Possible bias in up (z): the mean error +0.0300 m is 60 % of the measured RMSE (0.0500 m), above 25 %. "
+        "The standard compares the mean error with the target RMSE of the accuracy class; none was given, so the "
+        "measured RMSE stands in. Look for a systematic cause (frame, epoch, geoid model, antenna height) before "
+        "relying on the figures.",
+    ),
+    (
+        Finding(
+            "bias",
+            {
+                "axis": "x",
+                "mean_m": -0.02,
+                "rmse_m": 0.05,
+                "ratio": 0.5,
+                "limit": 0.25,
+                "reference": "target",
+                "target_rmse_m": 0.04,
+            },
+        ),
+        "Possible bias in east (x): the mean error -0.0200 m is 50 % of the target RMSE (0.0400 m), above the "
+        "25 % limit (the ASPRS Edition 2 rule as we recall it, unconfirmed). Look for a systematic cause (frame, "
+        "epoch, geoid model, antenna height) before relying on the figures.",
+    ),
+    (
+        Finding("blunders", {"count": 2, "factor": 3.0}),
+        "2 residual(s) exceed 3 × the RMSE of their axis. Investigate them; they were not removed.",
+    ),
+    (
+        Finding("survey_accuracy_not_given", {"component": "vertical"}),
+        "The check points' own survey accuracy (vertical) was not given and counts as zero, which understates "
+        "the product's error.",
+    ),
+    (
+        Finding(
+            "checkpoints_not_twice_as_accurate",
+            {"component": "horizontal", "survey_rmse_m": 0.03, "product_rmse_m": 0.05},
+        ),
+        "The check points' survey accuracy (horizontal, 0.0300 m) is not at least twice as good as the product's "
+        "RMSE (0.0500 m).",
+    ),
+    (
+        Finding("beyond_table", {"component": "horizontal", "value_m": 12.3456}),
+        "The horizontal 95% value 12.346 m is larger than the standard's last class (10 m); no class is assigned.",
+    ),
+    (Finding("some_new_code", {}), "some new code"),
+]
+
+
+@pytest.mark.parametrize(("finding", "sentence"), FINDING_SENTENCES)
+def test_every_finding_code_has_its_sentence(finding, sentence):
+    assert st.finding_text(finding) == sentence
+
+
+def test_too_few_checkpoints_takes_the_standard_from_the_style_when_unsaid():
+    f = Finding("too_few_checkpoints", {"n": 5, "minimum": 20})
+    assert st.finding_text(f, style="nssda").startswith("Only 5 check points: NSSDA asks")
+    assert st.finding_text(f).startswith("Only 5 check points: the standard asks")
+
+
+def test_asprs_lines_say_whether_the_survey_accuracy_is_included():
+    lines = st.asprs2023_statement_lines(n=30, rmse_h_m=None, rmse_v_m=0.05, rmse_3d_m=None, survey_included=False)
+    assert lines[0].endswith("root-mean-square errors without the check points' own survey accuracy:")
+    assert lines[1:] == ["Vertical: RMSE_V = 0.050 m (5.0 cm)."]
