@@ -28,7 +28,10 @@ def test_url_name():
 def test_every_role_may_compute(request, api_client_for, role):
     response = api_client_for(request.getfixturevalue(role)).post(URL, {"cov_en_m2": [1e-4, 0.0, 1e-4]}, format="json")
     assert response.status_code == 200
-    assert response.json()["horizontal_95_m"] == pytest.approx(0.0245, abs=1e-4)  # 2.450762 × 10 mm (§4.2)
+    # K(1) = 1.960790 + 0.004071 + 0.114276 + 0.371625 = 2.450762 (FGDC-STD-007.2-1998 K polynomial, secondary
+    # transcription) × σ = 10 mm. Unrounded JSON: 2.4477 × 10 mm (the NSSDA circle factor) would be 0.024477.
+    k1 = 1.960790 + 0.004071 + 0.114276 + 0.371625
+    assert response.json()["horizontal_95_m"] == pytest.approx(k1 * 0.01, rel=1e-9)
 
 
 @pytest.mark.django_db
