@@ -147,3 +147,59 @@ def test_farthest_point_selection_away_from_the_origin_and_the_bases():
     assert got == [0, 2]
     with pytest.raises(ValueError):
         rtk.farthest_point_selection(e, n, first=0, count=2, avoid_e_m=[1010.0], avoid_n_m=[])
+
+
+def test_farthest_point_selection_updates_from_each_pick():
+    fps = rtk.farthest_point_selection
+    # A(1000, 2000), B(1010, 2000), C(1000, 2010), D(1012, 2002): from A the farthest is D (12.17 m); then
+    # B is 2.83 m from D and C 14.4 m, so C (10 m from A) beats B (10 m from A).
+    e = [1000.0, 1010.0, 1000.0, 1012.0]
+    n = [2000.0, 2000.0, 2010.0, 2002.0]
+    assert fps(e, n, first=0, count=3) == [0, 3, 2]
+    # From B: A 10 m, C √200 = 14.14 m, D √8 = 2.83 m.
+    assert fps(e, n, first=1, count=2) == [1, 2]
+
+
+def test_coverage_obeys_the_vertical_tolerance():
+    # One cell 5000 m from the base: H95 = 2.4477·√(13² + 2²) = 32.2 mm, V95 = 1.96·√(20² + 3²) = 39.64 mm.
+    model = rtk.RtkErrorModel()
+    v95 = K_V * math.sqrt(20.0**2 + 3.0**2)
+    assert 39.6 < v95 < 39.7
+    inside = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, tol_h=50.0, tol_v=40.0)
+    outside = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, tol_h=50.0, tol_v=39.6)
+    assert inside.coverage[0] == 1.0 and inside.any_coverage == 1.0 and inside.margin_mm[0] > 0
+    assert outside.coverage[0] == 0.0 and outside.any_coverage == 0.0
+    assert outside.margin_mm[0] == pytest.approx(39.6 - v95, rel=1e-12)
+
+
+def test_screening_in_small_blocks_gives_the_same_answer():
+    # Blocks are a speed device: one candidate per block must change nothing.
+    rng = np.random.default_rng(7)
+    site_e, site_n = rng.uniform(0, 3000, 40), rng.uniform(0, 3000, 40)
+    cand_e, cand_n = rng.uniform(-2000, 5000, 9), rng.uniform(-2000, 5000, 9)
+    model = rtk.RtkErrorModel()
+    args = (site_e, site_n, np.ones(40, bool), cand_e, cand_n)
+    kw = dict(
+        base_h_mm=np.full(9, 3.0),
+        base_v_mm=np.full(9, 5.0),
+        drift_h_mm=np.zeros(9),
+        drift_v_mm=np.zeros(9),
+        usable=np.ones(9, bool),
+        model=model,
+        tol_h_mm=40.0,
+        tol_v_mm=60.0,
+        max_baseline_m=6000.0,
+    )
+    whole = rtk.screen_candidates(*args, **kw)
+    small = rtk.screen_candidates(*args, **kw, block_elements=1)
+    for name in ("min_distance_m", "max_distance_m", "coverage", "eligible", "order", "best_h95_mm", "best_v95_mm"):
+        assert np.array_equal(getattr(whole, name), getattr(small, name)), name
+    # Distances by hand (Pythagoras on the plane) for every candidate.
+    d = np.hypot(cand_e[:, None] - site_e[None, :], cand_n[:, None] - site_n[None, :])
+    assert np.allclose(small.min_distance_m, d.min(axis=1), rtol=1e-12)
+    assert np.allclose(small.max_distance_m, d.max(axis=1), rtol=1e-12)
+
+
+def test_a_site_of_one_cell():
+    core = _screen([300.0], [400.0], [0.0], [0.0], model=rtk.RtkErrorModel())
+    assert core.coverage[0] == 1.0 and core.any_coverage == 1.0  # 1 of 1 cell, not 1 of 2
