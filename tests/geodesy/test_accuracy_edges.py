@@ -390,3 +390,14 @@ def test_asprs_result_fields_horizontal_and_vertical():
     few = acc.asprs2023_evaluate(du_m=[0.01] * 29, survey_sigma_u_m=0.0)
     assert few.findings[0].params == {"n": 29, "minimum": 30, "standard": "asprs2023"}
     assert (few.x, few.y, few.rmse_h_m, few.rmse_3d_m) == (None, None, None, None)
+
+
+def test_difference_and_local_accuracy_of_a_two_level_stack():
+    # A (1, 2, 3, 3) stack (e.g. two neighbours of one mark): Σ_Δ = Σ1 + Σ2 element by element (FGDC Part 2,
+    # no cross-covariance), and the local accuracy per pair: K(1)·σ with σ = √(1e-4 + 1e-4) (hand formula).
+    s = np.broadcast_to(np.diag([1e-4, 1e-4, 4e-4]), (1, 2, 3, 3))
+    assert np.allclose(acc.difference_covariance_m2(s, s), 2 * s, rtol=0, atol=1e-18)
+    h, v = acc.local_accuracy_95_m(s, s)
+    k1 = 1.960790 + 0.004071 + 0.114276 + 0.371625
+    assert np.shape(h) == (1, 2) and np.allclose(h, k1 * math.sqrt(2e-4), rtol=1e-12)
+    assert np.allclose(v, 1.96 * math.sqrt(8e-4), rtol=1e-12)
