@@ -223,3 +223,45 @@ def test_asprs_lines_say_whether_the_survey_accuracy_is_included():
     lines = st.asprs2023_statement_lines(n=30, rmse_h_m=None, rmse_v_m=0.05, rmse_3d_m=None, survey_included=False)
     assert lines[0].endswith("root-mean-square errors without the check points' own survey accuracy:")
     assert lines[1:] == ["Vertical: RMSE_V = 0.050 m (5.0 cm)."]
+
+
+def test_combination_line_for_each_verdict():
+    import dataclasses
+
+    import numpy as np
+
+    from registry.geodesy import stats
+
+    # Two height solutions 0.010 m apart with σ = 0.005 m each: vᵀWv = 2·(0.005/0.005)² = 2 with 1 degree of
+    # freedom (hand formula), s0 = √2; χ² bounds from SciPy inside the module.
+    r = stats.weighted_combination(np.array([[0.0], [0.010]]), np.array([[[25e-6]], [[25e-6]]]))
+    assert r.omega == pytest.approx(2.0) and r.dof == 1
+    head = (
+        f"Weighted combination of 2 solutions (full covariance): s0 = 1.414, vᵀWv = 2.0000 with 1 degrees of "
+        f"freedom, two-sided 95% bounds {r.chi2_lower:.4f} … {r.chi2_upper:.4f}: "
+    )
+    words = {
+        "consistent": "the spread agrees with the stated sigmas.",
+        "too_large": "the spread is larger than the stated sigmas allow, so the sigmas are scaled by s0.",
+        "too_small": "the spread is smaller than the stated sigmas suggest (sigmas may be pessimistic).",
+    }
+    for spread, tail in words.items():
+        assert st.combination_text(dataclasses.replace(r, spread=spread)) == head + tail
+
+
+def test_report_axes_carry_every_statistic_of_each_axis():
+    t = st.parse_residuals_csv("point_id,de_m,dn_m,du_m\nA,0.03,0.04,0.01\nB,-0.03,0.04,0.03\n")
+    report = st.accuracy_report(style="nssda", residuals=t)
+    axes = report["axes"]
+    assert set(axes) == {"x", "y", "z"}
+    assert axes["x"] == {
+        "n": 2,
+        "mean_m": 0.0,
+        "std_m": pytest.approx(0.06 / 2**0.5),
+        "rmse_m": pytest.approx(0.03),
+        "max_abs_m": 0.03,
+    }
+    assert axes["z"]["mean_m"] == pytest.approx(0.02) and axes["z"]["rmse_m"] == pytest.approx(0.0005**0.5)
+    vertical_only = st.accuracy_report(residuals=st.parse_residuals_csv("point_id,du_m\nA,0.01\n"))
+    assert set(vertical_only["axes"]) <= {"x", "y", "z"}
+    assert vertical_only["axes"].get("x") is None and vertical_only["axes"]["z"]["n"] == 1
