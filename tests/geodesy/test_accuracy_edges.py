@@ -143,6 +143,19 @@ REFUSALS = [
     ),
     (lambda: acc.nssda_evaluate(), "no_residuals", {}, "No residuals given."),
     (
+        lambda: acc.nssda_evaluate(de_m=[NAN], dn_m=[0.01]),
+        "not_finite",
+        {"name": "east residuals"},
+        "east residuals must be finite.",
+    ),
+    (
+        lambda: acc.nssda_evaluate(de_m=[0.01], dn_m=[NAN]),
+        "not_finite",
+        {"name": "north residuals"},
+        "north residuals must be finite.",
+    ),
+    (lambda: acc.accuracy_class(NAN), "not_finite", {"name": "accuracy value"}, "accuracy value must be finite."),
+    (
         lambda: acc.nssda_evaluate(du_m=[]),
         "no_residuals",
         {"name": "up residuals"},
@@ -401,3 +414,24 @@ def test_difference_and_local_accuracy_of_a_two_level_stack():
     k1 = 1.960790 + 0.004071 + 0.114276 + 0.371625
     assert np.shape(h) == (1, 2) and np.allclose(h, k1 * math.sqrt(2e-4), rtol=1e-12)
     assert np.allclose(v, 1.96 * math.sqrt(8e-4), rtol=1e-12)
+
+
+def test_a_stack_of_four_covariances_per_mark_is_accepted():
+    s = np.broadcast_to(np.diag([1e-4, 1e-4, 1e-4]), (1, 4, 3, 3))
+    h, _v = acc.network_accuracy_95_m(s)
+    assert np.shape(h) == (1, 4) and np.allclose(h, 0.02450762, rtol=1e-12)  # K(1) × 10 mm (FGDC Part 2)
+
+
+def test_asprs_horizontal_blunder_and_weak_horizontal_check_points():
+    # East: one residual 9b among nine of b (9b = 3 × RMSE exactly, not a blunder) and one of 10b among ten
+    # (beyond 3 × RMSE); the survey σ 0.75 × the product RMSE is not "at least twice as accurate" (ASPRS Ed. 2).
+    b = 2.0**-7
+    de = [b] * 5 + [10 * b] + [b] * 5
+    dn = [b] * 11
+    rmse_h1 = math.hypot(math.sqrt(10) * b, b)
+    r = acc.asprs2023_evaluate(de, dn, survey_sigma_e_m=0.75 * rmse_h1, survey_sigma_n_m=0.0)
+    assert r.blunders == ((5, "x"),)
+    assert r.x.n == 11 and r.y.n == 11
+    weak = [f for f in r.findings if f.code == "checkpoints_not_twice_as_accurate"]
+    assert [f.params["component"] for f in weak] == ["horizontal"]
+    assert weak[0].params["product_rmse_m"] == pytest.approx(rmse_h1, rel=1e-12)
