@@ -191,9 +191,10 @@ def test_screening_in_small_blocks_gives_the_same_answer():
         max_baseline_m=6000.0,
     )
     whole = rtk.screen_candidates(*args, **kw)
-    small = rtk.screen_candidates(*args, **kw, block_elements=1)
-    for name in ("min_distance_m", "max_distance_m", "coverage", "eligible", "order", "best_h95_mm", "best_v95_mm"):
-        assert np.array_equal(getattr(whole, name), getattr(small, name)), name
+    for block_elements in (1, 80):  # one candidate per block; two per block with a last block of one
+        small = rtk.screen_candidates(*args, **kw, block_elements=block_elements)
+        for name in ("min_distance_m", "max_distance_m", "coverage", "eligible", "order", "best_h95_mm", "best_v95_mm"):
+            assert np.array_equal(getattr(whole, name), getattr(small, name)), name
     # Distances by hand (Pythagoras on the plane) for every candidate.
     d = np.hypot(cand_e[:, None] - site_e[None, :], cand_n[:, None] - site_n[None, :])
     assert np.allclose(small.min_distance_m, d.min(axis=1), rtol=1e-12)

@@ -265,3 +265,53 @@ def test_report_axes_carry_every_statistic_of_each_axis():
     vertical_only = st.accuracy_report(residuals=st.parse_residuals_csv("point_id,du_m\nA,0.01\n"))
     assert set(vertical_only["axes"]) <= {"x", "y", "z"}
     assert vertical_only["axes"].get("x") is None and vertical_only["axes"]["z"]["n"] == 1
+
+
+def test_nssda_lines_with_other_decimals_and_compiled_form():
+    # FGDC-STD-007.3-1998 §3.2.3 wording: "Tested ___ (meters, feet) horizontal accuracy at 95% confidence level";
+    # "Compiled to meet ___" when the accuracy was not tested against an independent source.
+    assert st.nssda_statement_lines(0.2101, None, decimals=2, tested=False) == [
+        "Compiled to meet 0.21 meters horizontal accuracy at 95% confidence level"
+    ]
+
+
+def test_finding_words_for_an_unnamed_axis_and_other_limits():
+    f = Finding(
+        "bias",
+        {
+            "axis": "h",
+            "mean_m": 0.05,
+            "rmse_m": 0.05,
+            "ratio": 1.0,
+            "limit": 0.9,
+            "reference": "target",
+            "target_rmse_m": 0.05,
+        },
+    )
+    assert st.finding_text(f).startswith(
+        "Possible bias in h: the mean error +0.0500 m is 100 % of the target RMSE (0.0500 m), above the 90 % limit"
+    )
+    g = Finding(
+        "bias",
+        {
+            "axis": "z",
+            "mean_m": 0.05,
+            "rmse_m": 0.05,
+            "ratio": 1.0,
+            "limit": 0.9,
+            "reference": "measured",
+            "target_rmse_m": None,
+        },
+    )
+    assert "is 100 % of the measured RMSE (0.0500 m), above 90 %. " in st.finding_text(g)
+
+
+def test_two_unknown_columns_are_both_named():
+    err = _refusal(st.parse_residuals_csv, "point_id,du_m,a,b\nP,0.1,1,2\n")
+    assert err.message.startswith("Unknown column(s) a, b; allowed: point_id, ")
+    assert err.params == {"columns": ["a", "b"]}
+
+
+def test_an_indented_comment_line_is_skipped():
+    t = st.parse_residuals_csv("point_id,du_m\n   # indented comment\nA,0.5\n")
+    assert t.point_ids == ("A",) and t.du_m.tolist() == [0.5]
