@@ -204,3 +204,21 @@ def test_screening_in_small_blocks_gives_the_same_answer():
 def test_a_site_of_one_cell():
     core = _screen([300.0], [400.0], [0.0], [0.0], model=rtk.RtkErrorModel())
     assert core.coverage[0] == 1.0 and core.any_coverage == 1.0  # 1 of 1 cell, not 1 of 2
+
+
+def test_model_refusals_say_what_was_wrong():
+    with pytest.raises(ValueError, match=r"^combination must be 'additive' or 'rss', not 'sum'$"):
+        rtk.RtkErrorModel(combination="sum")
+    with pytest.raises(ValueError, match=r"^h_meaning must be 'per_axis' or 'drms', not 'cep'$"):
+        rtk.RtkErrorModel(h_meaning="cep")
+    with pytest.raises(ValueError, match=r"^v_ppm must be a non-negative number, not -1.0$"):
+        rtk.RtkErrorModel(v_ppm=-1.0)
+    with pytest.raises(ValueError, match=r"^combination must be 'additive' or 'rss', not 'sum'$"):
+        rtk.rtk_sigma_mm(1000.0, 8.0, 1.0, "sum")
+
+
+def test_rss_model_vertical_and_decimal_distance():
+    # RSS: √(a² + (b·d)²) = √(15² + 5²) mm at 5 km for 15 mm + 1 ppm (common practice figures).
+    model = rtk.RtkErrorModel(combination=rtk.RSS)
+    assert float(model.rtk_v_mm(5000.0)) == pytest.approx(math.sqrt(250.0), rel=1e-12)
+    assert float(rtk.rtk_sigma_mm(Decimal("5000"), 8.0, 1.0)) == 13.0  # 8 mm + 1 ppm × 5 km
