@@ -315,3 +315,23 @@ def test_two_unknown_columns_are_both_named():
 def test_an_indented_comment_line_is_skipped():
     t = st.parse_residuals_csv("point_id,du_m\n   # indented comment\nA,0.5\n")
     assert t.point_ids == ("A",) and t.du_m.tolist() == [0.5]
+
+
+def test_fgdc_lines_name_the_height_and_a_value_beyond_the_table():
+    # FGDC-STD-007.2-1998: horizontal and ellipsoid-height accuracies are stated and classed separately;
+    # 12 m is beyond its last class (10-Meter). 1.9600 × 20 mm = 39.2 mm.
+    lines = st.fgdc_statement_lines(12.0, "beyond 10-Meter", 0.0392, "5-Centimeter")
+    assert lines == [
+        "Horizontal network accuracy 12.000 m (12000.0 mm) at the 95% confidence level: FGDC-STD-007.2-1998 class "
+        "none, beyond the 10-Meter class at the end of the standard's table.",
+        "Ellipsoid height network accuracy 0.039 m (39.2 mm) at the 95% confidence level: FGDC-STD-007.2-1998 "
+        "class 5-Centimeter.",
+    ]
+
+
+def test_json_report_has_plain_numbers():
+    import numpy as np
+
+    out = st.report_as_json({"a": np.float64(0.5), "b": [np.int64(3), {"c": np.float32(0.25)}], "d": "text"})
+    assert out == {"a": 0.5, "b": [3, {"c": 0.25}], "d": "text"}
+    assert type(out["a"]) is float and type(out["b"][0]) is int and type(out["b"][1]["c"]) is float
