@@ -17,7 +17,8 @@
 #      runtime role to check its rights on the audit trail), its owner role, the database
 #      `registry` and PostGIS in template1 (so that test databases get it). It never drops a
 #      database; pytest-django creates and drops test_<name> itself.
-#   4. pytest without DATABASE_URL (SQLite), then with it (PostgreSQL + PostGIS).
+#   4. The type check (mypy, configured in pyproject.toml: registry/geodesy); a failure stops the run.
+#      Then pytest without DATABASE_URL (SQLite), then with it (PostgreSQL + PostGIS).
 #   5. The point-in-time recovery drill (deploy/restore_drill.sh --self-test: a throwaway source
 #      cluster with WAL archiving, a base backup, a restore to a chosen time into a fresh cluster,
 #      counts, audit chain and signed documents checked). Only on a full run (no pytest arguments)
@@ -315,7 +316,15 @@ meaning_of() {
 
 PYTEST_ARGS=("$@")
 
-step "[4/6] Tests on SQLite"
+step "[4/6] Type check (mypy), then tests on SQLite"
+T0=$SECONDS
+if "$VENV_DIR/bin/mypy" 2>&1 | tee "$LOG_DIR/mypy.log"; then
+  ok "mypy: no issues ($(fmt_duration $((SECONDS - T0))))"
+else
+  printf '\n%sThe type check failed (mypy, log in var/test-logs/mypy.log): the tests were not run.%s\n' "$_R" "$_N"
+  exit 1
+fi
+
 T0=$SECONDS
 RC_SQLITE=0
 run_half sqlite "$LOG_DIR/sqlite.log" -u DATABASE_URL || RC_SQLITE=$?

@@ -44,6 +44,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from numpy.typing import NDArray
+
+from registry.geodesy.arraytypes import ArrayLike, FloatArray, FloatOrArray
 
 __all__ = [
     "ACCURACY_CLASSES",
@@ -124,7 +127,7 @@ NSSDA_FACTOR_1D = 1.9600
 _PSD_RTOL = 1e-9
 
 
-def _as_float_array(value: Any, name: str) -> np.ndarray:
+def _as_float_array(value: ArrayLike, name: str) -> FloatArray:
     try:
         arr = np.asarray(value, dtype=float)
     except (TypeError, ValueError) as exc:
@@ -134,11 +137,12 @@ def _as_float_array(value: Any, name: str) -> np.ndarray:
     return arr
 
 
-def _scalar_or_array(arr: np.ndarray) -> Any:
-    return arr.item() if arr.ndim == 0 else arr
+def _scalar_or_array(arr: ArrayLike) -> FloatOrArray:
+    a = np.asarray(arr, dtype=float)
+    return float(a) if a.ndim == 0 else a
 
 
-def circular_k(c: Any) -> Any:
+def circular_k(c: ArrayLike) -> FloatOrArray:
     """FGDC Part 2 factor K(C) that turns σmax into the radius of the 95 % circle.
 
     Parameters
@@ -165,7 +169,9 @@ def circular_k(c: Any) -> Any:
     return _scalar_or_array(c0 + c_arr * (c1 + c_arr * (c2 + c_arr * c3)))
 
 
-def error_ellipse_sigmas_m(cov_ee_m2: Any, cov_en_m2: Any, cov_nn_m2: Any) -> tuple[Any, Any]:
+def error_ellipse_sigmas_m(
+    cov_ee_m2: ArrayLike, cov_en_m2: ArrayLike, cov_nn_m2: ArrayLike
+) -> tuple[FloatOrArray, FloatOrArray]:
     """Semi-axes (σmax, σmin) of the 1σ standard error ellipse from a 2×2 east/north covariance.
 
     Closed-form eigenvalues of the symmetric 2×2 matrix [[ee, en], [en, nn]].
@@ -209,7 +215,7 @@ def error_ellipse_sigmas_m(cov_ee_m2: Any, cov_en_m2: Any, cov_nn_m2: Any) -> tu
     return _scalar_or_array(np.sqrt(lam_max)), _scalar_or_array(np.sqrt(lam_min))
 
 
-def fgdc_horizontal_95_m(cov_ee_m2: Any, cov_en_m2: Any, cov_nn_m2: Any) -> Any:
+def fgdc_horizontal_95_m(cov_ee_m2: ArrayLike, cov_en_m2: ArrayLike, cov_nn_m2: ArrayLike) -> FloatOrArray:
     """Horizontal accuracy at 95 %: radius of the 95 % circle, r95 = K(C)·σmax (FGDC-STD-007.2-1998).
 
     Parameters
@@ -235,7 +241,7 @@ def fgdc_horizontal_95_m(cov_ee_m2: Any, cov_en_m2: Any, cov_nn_m2: Any) -> Any:
     return _scalar_or_array(np.asarray(circular_k(c)) * sigma_max)
 
 
-def vertical_95_m(sigma_m: Any) -> Any:
+def vertical_95_m(sigma_m: ArrayLike) -> FloatOrArray:
     """Vertical accuracy at 95 %: 1.9600·σ (FGDC Part 2 for ellipsoid and orthometric heights; NSSDA).
 
     Use it once for the ellipsoid height and once for the orthometric height; they are classified
@@ -282,7 +288,7 @@ _CLASS_BOUNDS_M = np.array([b for _, b in ACCURACY_CLASSES])
 _CLASS_LABELS = np.array([label for label, _ in ACCURACY_CLASSES] + [BEYOND_TABLE_CLASS], dtype=object)
 
 
-def accuracy_class(value_m: Any) -> Any:
+def accuracy_class(value_m: ArrayLike) -> str | NDArray[np.object_]:
     """Smallest FGDC Part 2 class whose bound is ≥ the 95 % value (bounds inclusive).
 
     Parameters
@@ -308,7 +314,7 @@ def accuracy_class(value_m: Any) -> Any:
     return str(labels) if value.ndim == 0 else labels
 
 
-def _as_cov_stack(cov: Any, name: str) -> np.ndarray:
+def _as_cov_stack(cov: ArrayLike, name: str) -> np.ndarray:
     arr = _as_float_array(cov, name)
     if arr.ndim < 2 or arr.shape[-1] != arr.shape[-2] or arr.shape[-1] not in (2, 3):
         raise ComputationInputError(
@@ -319,7 +325,7 @@ def _as_cov_stack(cov: Any, name: str) -> np.ndarray:
     return arr
 
 
-def network_accuracy_95_m(cov_enu_m2: Any) -> tuple[Any, Any]:
+def network_accuracy_95_m(cov_enu_m2: ArrayLike) -> tuple[FloatOrArray, FloatOrArray]:
     """Horizontal (K·σmax) and vertical (1.9600·σu) 95 % network accuracy from a 3×3 ENU covariance.
 
     Parameters
@@ -344,7 +350,7 @@ def network_accuracy_95_m(cov_enu_m2: Any) -> tuple[Any, Any]:
     return horizontal, vertical
 
 
-def difference_covariance_m2(cov1_m2: Any, cov2_m2: Any, cov12_m2: Any = None) -> np.ndarray:
+def difference_covariance_m2(cov1_m2: ArrayLike, cov2_m2: ArrayLike, cov12_m2: ArrayLike | None = None) -> np.ndarray:
     """Covariance of the coordinate difference of two points: Σ_Δ = Σ1 + Σ2 − Σ12 − Σ21 (Σ21 = Σ12ᵀ).
 
     All matrices must be expressed in one common local frame (e.g. ENU at one of the two points); for
@@ -373,7 +379,9 @@ def difference_covariance_m2(cov1_m2: Any, cov2_m2: Any, cov12_m2: Any = None) -
     return out
 
 
-def local_accuracy_95_m(cov1_enu_m2: Any, cov2_enu_m2: Any, cov12_enu_m2: Any = None) -> tuple[Any, Any]:
+def local_accuracy_95_m(
+    cov1_enu_m2: ArrayLike, cov2_enu_m2: ArrayLike, cov12_enu_m2: ArrayLike | None = None
+) -> tuple[FloatOrArray, FloatOrArray]:
     """Local accuracy between two connected marks: the 95 % figures of the difference covariance.
 
     Returns
@@ -387,7 +395,7 @@ def local_accuracy_95_m(cov1_enu_m2: Any, cov2_enu_m2: Any, cov12_enu_m2: Any = 
     return network_accuracy_95_m(cov_d)
 
 
-def reported_local_accuracy_m(pair_values_m: Any) -> Any:
+def reported_local_accuracy_m(pair_values_m: ArrayLike) -> FloatOrArray:
     """The local accuracy reported for a mark: the average of its local accuracies to connected neighbours.
 
     FGDC Part 2 calls it "an approximate average"; we take the arithmetic mean over the last axis.
@@ -426,7 +434,7 @@ ASPRS2023_BLUNDER_FACTOR = 3.0
 _EQUAL_RMSE_TOL_M = 1e-9
 
 
-def rmse_m(residuals_m: Any, axis: int = -1) -> Any:
+def rmse_m(residuals_m: ArrayLike, axis: int = -1) -> FloatOrArray:
     """Root-mean-square of residuals, √(Σd²/n) with n (not n−1): RMSE includes any bias.
 
     RMSE² = mean² + s²·(n−1)/n with s the sample standard deviation (n−1).
@@ -442,7 +450,7 @@ def rmse_m(residuals_m: Any, axis: int = -1) -> Any:
     return _scalar_or_array(np.sqrt(np.mean(d * d, axis=axis)))
 
 
-def quadrature_sum_m(*values_m: Any) -> Any:
+def quadrature_sum_m(*values_m: ArrayLike) -> FloatOrArray:
     """√(a² + b² + …): ASPRS Edition 2 combination of product and check-point survey RMSE, and RMSE_3D.
 
     Examples
@@ -454,7 +462,7 @@ def quadrature_sum_m(*values_m: Any) -> Any:
     return _scalar_or_array(np.sqrt(sum(a * a for a in arrays)))
 
 
-def nssda_horizontal_95_m(rmse_x_m: Any, rmse_y_m: Any) -> tuple[Any, Any]:
+def nssda_horizontal_95_m(rmse_x_m: ArrayLike, rmse_y_m: ArrayLike) -> tuple[FloatOrArray, str | NDArray[np.object_]]:
     """NSSDA horizontal accuracy at 95 % from RMSE_x (east) and RMSE_y (north).
 
     * RMSE_x = RMSE_y: Accuracy_r = 1.7308·RMSE_r (method ``"equal"``).
@@ -495,7 +503,7 @@ def nssda_horizontal_95_m(rmse_x_m: Any, rmse_y_m: Any) -> tuple[Any, Any]:
     return accuracy, method
 
 
-def nssda_vertical_95_m(rmse_z_m: Any) -> Any:
+def nssda_vertical_95_m(rmse_z_m: ArrayLike) -> FloatOrArray:
     """NSSDA vertical accuracy at 95 %: Accuracy_z = 1.9600·RMSE_z.
 
     Examples
@@ -517,7 +525,7 @@ class AxisSummary:
     max_abs_m: float
 
 
-def _axis_summary(d: np.ndarray) -> AxisSummary:
+def _axis_summary(d: FloatArray) -> AxisSummary:
     n = int(d.size)
     return AxisSummary(
         n=n,
@@ -528,14 +536,17 @@ def _axis_summary(d: np.ndarray) -> AxisSummary:
     )
 
 
-def _check_residuals(de_m: Any, dn_m: Any, du_m: Any) -> tuple[np.ndarray | None, np.ndarray | None, np.ndarray | None]:
+def _check_residuals(
+    de_m: ArrayLike | None, dn_m: ArrayLike | None, du_m: ArrayLike | None
+) -> tuple[tuple[FloatArray, FloatArray] | None, FloatArray | None, int]:
+    """Checked residual arrays: ((east, north) or None, up or None, number of check points)."""
     if (de_m is None) != (dn_m is None):
         raise ComputationInputError(
             "East and north residuals go together: give both or neither.", code="horizontal_axis_missing"
         )
     if de_m is None and du_m is None:
         raise ComputationInputError("No residuals given.", code="no_residuals")
-    arrays = []
+    arrays: list[FloatArray | None] = []
     for value, name in ((de_m, "east residuals"), (dn_m, "north residuals"), (du_m, "up residuals")):
         if value is None:
             arrays.append(None)
@@ -547,10 +558,11 @@ def _check_residuals(de_m: Any, dn_m: Any, du_m: Any) -> tuple[np.ndarray | None
     sizes = {a.size for a in arrays if a is not None}
     if len(sizes) != 1:
         raise ComputationInputError("Every axis needs one residual per check point.", code="ragged_residuals")
-    return arrays[0], arrays[1], arrays[2]
+    de, dn, du = arrays
+    return (None if de is None or dn is None else (de, dn)), du, sizes.pop()
 
 
-def _target_rmse(value: Any, name: str) -> float | None:
+def _target_rmse(value: ArrayLike | None, name: str) -> float | None:
     if value is None:
         return None
     t = _as_float_array(value, name)
@@ -649,7 +661,9 @@ def _blunders(axes: tuple[tuple[str, Any], ...], summaries: dict) -> list[tuple[
     return found
 
 
-def nssda_evaluate(de_m: Any = None, dn_m: Any = None, du_m: Any = None) -> NssdaResult:
+def nssda_evaluate(
+    de_m: ArrayLike | None = None, dn_m: ArrayLike | None = None, du_m: ArrayLike | None = None
+) -> NssdaResult:
     """Evaluate check-point residuals (dataset − check, m) by the NSSDA.
 
     Flags fewer than 20 check points, a ratio RMSE_min/RMSE_max below 0.6, residuals beyond 3 × the
@@ -664,16 +678,18 @@ def nssda_evaluate(de_m: Any = None, dn_m: Any = None, du_m: Any = None) -> Nssd
     >>> round(r.vertical_95_m, 3), [f.code for f in r.findings]
     (0.098, ['too_few_checkpoints'])
     """
-    de, dn, du = _check_residuals(de_m, dn_m, du_m)
+    en, du, n = _check_residuals(de_m, dn_m, du_m)
     summaries: dict[str, AxisSummary] = {}
     x = y = z = None
-    rmse_r = horizontal = method = vertical = None
+    rmse_r = horizontal = vertical = None
+    method: str | None = None
     findings: list[Finding] = []
-    if de is not None:
-        x, y = _axis_summary(de), _axis_summary(dn)
+    if en is not None:
+        x, y = _axis_summary(en[0]), _axis_summary(en[1])
         summaries.update({"x": x, "y": y})
         rmse_r = float(np.hypot(x.rmse_m, y.rmse_m))
-        horizontal, method = nssda_horizontal_95_m(x.rmse_m, y.rmse_m)
+        h95, h_method = nssda_horizontal_95_m(x.rmse_m, y.rmse_m)
+        horizontal, method = float(h95), str(h_method)
         hi, lo = max(x.rmse_m, y.rmse_m), min(x.rmse_m, y.rmse_m)
         if method == "circular_error":
             findings.append(Finding("nssda_ratio_outside", {"ratio": lo / hi, "limit": NSSDA_RATIO_MIN}))
@@ -681,12 +697,12 @@ def nssda_evaluate(de_m: Any = None, dn_m: Any = None, du_m: Any = None) -> Nssd
         z = _axis_summary(du)
         summaries["z"] = z
         vertical = float(nssda_vertical_95_m(z.rmse_m))
-    n = (de if de is not None else du).size
     if n < NSSDA_MIN_CHECKPOINTS:
         findings.insert(
             0, Finding("too_few_checkpoints", {"n": n, "minimum": NSSDA_MIN_CHECKPOINTS, "standard": "nssda"})
         )
     findings.extend(_bias_findings(summaries, ASPRS2023_BIAS_FRACTION))
+    de, dn = en if en is not None else (None, None)
     blunders = _blunders((("x", de), ("y", dn), ("z", du)), summaries)
     if blunders:
         findings.append(Finding("blunders", {"count": len(blunders), "factor": ASPRS2023_BLUNDER_FACTOR}))
@@ -712,7 +728,7 @@ class AsprsResult:
     findings: tuple[Finding, ...]
 
 
-def _survey_rmse(sigmas: Any, name: str, n: int) -> float:
+def _survey_rmse(sigmas: ArrayLike, name: str, n: int) -> float:
     s = _as_float_array(sigmas, name)
     if s.ndim == 0:
         s = np.full(n, float(s))
@@ -724,15 +740,15 @@ def _survey_rmse(sigmas: Any, name: str, n: int) -> float:
 
 
 def asprs2023_evaluate(
-    de_m: Any = None,
-    dn_m: Any = None,
-    du_m: Any = None,
+    de_m: ArrayLike | None = None,
+    dn_m: ArrayLike | None = None,
+    du_m: ArrayLike | None = None,
     *,
-    survey_sigma_e_m: Any = None,
-    survey_sigma_n_m: Any = None,
-    survey_sigma_u_m: Any = None,
-    target_rmse_xy_m: Any = None,
-    target_rmse_z_m: Any = None,
+    survey_sigma_e_m: ArrayLike | None = None,
+    survey_sigma_n_m: ArrayLike | None = None,
+    survey_sigma_u_m: ArrayLike | None = None,
+    target_rmse_xy_m: ArrayLike | None = None,
+    target_rmse_z_m: ArrayLike | None = None,
 ) -> AsprsResult:
     """Evaluate check-point residuals by ASPRS Positional Accuracy Standards, Edition 2 (2023).
 
@@ -754,10 +770,9 @@ def asprs2023_evaluate(
     >>> round(r.rmse_v_m * 100, 2)
     2.24
     """
-    de, dn, du = _check_residuals(de_m, dn_m, du_m)
+    en, du, n = _check_residuals(de_m, dn_m, du_m)
     target_xy = _target_rmse(target_rmse_xy_m, "target RMSE (east/north)")
     target_z = _target_rmse(target_rmse_z_m, "target RMSE (up)")
-    n = (de if de is not None else du).size
     findings: list[Finding] = []
     if n < ASPRS2023_MIN_CHECKPOINTS:
         findings.append(
@@ -767,8 +782,8 @@ def asprs2023_evaluate(
     x = y = z = None
     h1 = h2 = h = v1 = v2 = v = d3 = None
     blunders: list[tuple[int, str]] = []
-    if de is not None:
-        x, y = _axis_summary(de), _axis_summary(dn)
+    if en is not None:
+        x, y = _axis_summary(en[0]), _axis_summary(en[1])
         summaries.update({"x": x, "y": y})
         h1 = float(np.hypot(x.rmse_m, y.rmse_m))
         if survey_sigma_e_m is None and survey_sigma_n_m is None:
@@ -799,6 +814,7 @@ def asprs2023_evaluate(
     if h is not None and v is not None:
         d3 = float(quadrature_sum_m(h, v))
     findings.extend(_bias_findings(summaries, ASPRS2023_BIAS_FRACTION, target_xy, target_z))
+    de, dn = en if en is not None else (None, None)
     blunders.extend(_blunders((("x", de), ("y", dn), ("z", du)), summaries))
     if blunders:
         findings.append(Finding("blunders", {"count": len(blunders), "factor": ASPRS2023_BLUNDER_FACTOR}))

@@ -23,11 +23,10 @@ No Django import. Functions take scalars or numpy arrays and return the same sha
 
 from __future__ import annotations
 
-from typing import Any
-
 import numpy as np
 
 from registry.geodesy.accuracy import ComputationInputError
+from registry.geodesy.arraytypes import ArrayLike, FloatArray, FloatOrArray
 
 __all__ = ["HEIGHT_KINDS", "antenna_height_arp_m", "slant_to_vertical_arp_m"]
 
@@ -35,7 +34,7 @@ __all__ = ["HEIGHT_KINDS", "antenna_height_arp_m", "slant_to_vertical_arp_m"]
 HEIGHT_KINDS = ("vertical", "slant")
 
 
-def _arr(value: Any, name: str) -> np.ndarray:
+def _arr(value: ArrayLike, name: str) -> FloatArray:
     try:
         arr = np.asarray(value, dtype=float)
     except (TypeError, ValueError) as exc:
@@ -45,7 +44,7 @@ def _arr(value: Any, name: str) -> np.ndarray:
     return arr
 
 
-def slant_to_vertical_arp_m(slant_m: Any, radius_m: Any, arp_offset_m: Any = 0.0) -> Any:
+def slant_to_vertical_arp_m(slant_m: ArrayLike, radius_m: ArrayLike, arp_offset_m: ArrayLike = 0.0) -> FloatOrArray:
     """Vertical height of the ARP above the mark from a slant measurement: √(s² − r²) + Δh.
 
     Parameters
@@ -90,7 +89,9 @@ def slant_to_vertical_arp_m(slant_m: Any, radius_m: Any, arp_offset_m: Any = 0.0
     return out.item() if out.ndim == 0 else out
 
 
-def antenna_height_arp_m(height_m: Any, *, kind: str, radius_m: Any = None, arp_offset_m: Any = 0.0) -> Any:
+def antenna_height_arp_m(
+    height_m: ArrayLike, *, kind: str, radius_m: ArrayLike | None = None, arp_offset_m: ArrayLike = 0.0
+) -> FloatOrArray:
     """Height mark → ARP from a measured height of either kind.
 
     ``kind="vertical"``: the measurement is already mark → ARP and is returned unchanged.

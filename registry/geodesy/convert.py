@@ -429,10 +429,10 @@ def convert_point(
 
 
 def _accuracy_text(step: _frames.Step) -> str:
-    if step.kind == "hold":
-        return f"σ added {step.accuracy_m * 1000:.1f} mm per axis"
-    if step.kind == "plate_motion":
-        return f"σ added {step.accuracy_m * 1000:.1f} mm per axis for residual motion"
+    if step.kind in ("hold", "plate_motion"):
+        assert step.accuracy_m is not None  # these steps always state the σ they add
+        added = f"σ added {step.accuracy_m * 1000:.1f} mm per axis"
+        return added if step.kind == "hold" else f"{added} for residual motion"
     if step.accuracy_m is None:
         return "accuracy not stated"
     if step.accuracy_m == 0.0:
@@ -469,6 +469,7 @@ def display_rows(c: PointConversion) -> dict:
             feet_n = (
                 f"{native['northing_ft']:.3f} ft{mark_ft}; {native['northing_us_ft']:.3f} US survey ft{legacy}{mark_us}"
             )
+        assert c.convergence_deg is not None  # set whenever a grid is
         rows += [
             ("Grid", c.grid.label, ""),
             ("Easting", f"{c.easting_m:.3f} m", feet_e),
@@ -490,6 +491,7 @@ def display_rows(c: PointConversion) -> dict:
     if c.combined_factor is not None:
         rows.append(("Combined factor", f"{c.combined_factor:.8f}", "k × elevation factor; grid = ground × factor"))
     if c.orthometric_height_m is not None:
+        assert c.geoid is not None  # an orthometric height comes from a geoid model
         if c.geoid_steps:
             model_frame = c.geoid_steps[-1].to_label
             rows.append(

@@ -242,6 +242,7 @@ def build_custom_grid(defn: CustomGridDefinition) -> GridCRS:
     area = _check_area(defn)
     lat0, lon0, k0, fe, fn = projection_parameters(defn)
     base = pyproj.CRS.from_epsg(frame.epsg).to_2d()
+    conv: pyproj.crs.CoordinateOperation | None
     try:
         if defn.method in ("tm", "utm_scaled"):
             conv = TransverseMercatorConversion(

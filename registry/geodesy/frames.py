@@ -230,7 +230,7 @@ def operation_for(from_crs: str, to_crs: str, aoi: tuple[float, float, float, fl
     Network off, no ballpark, only the best operation (a missing grid is an error, not a fallback).
     """
     import pyproj
-    from pyproj.aoi import AreaOfInterest
+    from pyproj.transformer import AreaOfInterest
 
     _network_off()
     area = AreaOfInterest(*aoi) if aoi else None
@@ -425,7 +425,7 @@ def transform_position(
     def _hold(frame: FrameInfo, la, lo, hh):
         nonlocal sig, unmodelled_hold_yr
         added = rate_m_yr * abs(dt)
-        sig = tuple(np.sqrt(s**2 + added**2) for s in sig)
+        sig = (np.sqrt(sig[0] ** 2 + added**2), np.sqrt(sig[1] ** 2 + added**2), np.sqrt(sig[2] ** 2 + added**2))
         if plate_code is not None and (frame.dynamic or frame.ensemble):
             return _plate_motion(frame, la, lo, hh, added)
         steps.append(
@@ -454,6 +454,7 @@ def transform_position(
 
     def _plate_motion(frame: FrameInfo, la, lo, hh, added):
         nonlocal applied_plates
+        assert plate_code is not None  # called only when a plate is to be applied
         try:
             choice = _plates.choose_plates(la, lo, plate=plate_code, explicit=plate_explicit)
         except _plates.PlateChoiceError as exc:
@@ -473,7 +474,7 @@ def transform_position(
             )
             ve[mask], vn[mask], vu[mask] = e_, n_, u_
         if np.ndim(la) == 0:
-            ve, vn, vu = (float(v) for v in (ve, vn, vu))
+            ve, vn, vu = (float(v) for v in (ve, vn, vu))  # type: ignore[assignment]  # scalar in, scalar out
         la, lo, hh = propagate_velocity(la, lo, hh, velocity_enu_m_yr=(ve, vn, vu), dt_yr=dt, ellipsoid=frame.ellipsoid)
         if np.size(ve) == 1:
             vtext = (

@@ -34,10 +34,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from registry.geodesy.conversions import GRS80, Ellipsoid, ellipsoid_of_epsg, radii_of_curvature_m
+
+if TYPE_CHECKING:
+    import pyproj
 
 __all__ = [
     "FOOT_M",
@@ -99,7 +103,7 @@ class GridCRS:
     the axis unit (``unit_to_m`` metres per unit).
     """
 
-    crs: object
+    crs: pyproj.CRS
     epsg: int | None
     name: str
     unit_to_m: float
@@ -202,7 +206,7 @@ def utm_grid(zone: int, north: bool, *, frame_epsg: int) -> GridCRS:
     base = pyproj.CRS.from_epsg(int(frame_epsg))
     base2d = base.to_2d() if len(base.axis_info) == 3 else base
     name = f"{base.name} / UTM zone {int(zone)}{'N' if north else 'S'}"
-    crs = ProjectedCRS(conversion=UTMConversion(int(zone), "N" if north else "S"), geodetic_crs=base2d, name=name)
+    crs = ProjectedCRS(conversion=UTMConversion(str(int(zone)), "N" if north else "S"), geodetic_crs=base2d, name=name)
     epsg = crs.to_epsg(min_confidence=90)
     # Area of use: the zone itself (6° wide, its hemisphere up to UTM's latitude limits 80°S / 84°N);
     # a zone chosen for the points is used as a zone, wherever the datum's EPSG entry is registered.
@@ -248,7 +252,7 @@ def _same_datum(grid: GridCRS, frame_epsg: int) -> bool:
 
     frame = pyproj.CRS.from_epsg(int(frame_epsg))
     g = grid.crs.geodetic_crs
-    if frame.datum is not None and g.datum is not None:
+    if frame.datum is not None and g is not None and g.datum is not None:
         return frame.datum == g.datum or frame.datum.name == g.datum.name
     return False
 
@@ -296,7 +300,7 @@ def resolve_grid(grid, *, frame_epsg: int, lat_deg=None, lon_deg=None) -> GridCR
         frame = pyproj.CRS.from_epsg(int(frame_epsg))
         raise GridError(
             f"Grid {resolved.name}{f' (EPSG:{resolved.epsg})' if resolved.epsg else ''} is defined on "
-            f"{resolved.crs.geodetic_crs.name}, but the coordinates are in {frame.name} (EPSG:{frame_epsg}). "
+            f"{getattr(resolved.crs.geodetic_crs, 'name', resolved.name)}, but the coordinates are in {frame.name} (EPSG:{frame_epsg}). "
             "Transform them to the grid's datum first, or use 'utm' on the frame's own datum.",
             code="datum_mismatch",
         )
@@ -335,8 +339,8 @@ def point_factors(lat_deg, lon_deg, *, grid: GridCRS):
         if np.all(np.abs(dlon) < 60.0):  # well inside the series' domain (Karney 2011, §3)
             # In blocks, so that the temporaries stay in the CPU cache (about 2× faster on 1e6 points).
             flat_lat, flat_lon = lat.ravel(), lon.ravel()
-            k = np.empty(flat_lat.shape)
-            gamma = np.empty(flat_lat.shape)
+            k: np.ndarray = np.empty(flat_lat.shape)
+            gamma: np.ndarray = np.empty(flat_lat.shape)
             for start in range(0, flat_lat.size, _BLOCK):
                 sl = slice(start, start + _BLOCK)
                 k[sl], gamma[sl] = tm_factors_kruger(flat_lat[sl], flat_lon[sl], lon0_deg=lon0, k0=k0, ellipsoid=ell)
@@ -431,6 +435,7 @@ def area_of_use_warnings(lat_deg, lon_deg, *, grid: GridCRS, scale_factor=None) 
     out = outside_area(lat_deg, lon_deg, grid=grid)
     if not np.any(out):
         return []
+    assert grid.area is not None  # outside_area finds nothing outside a grid without an area
     west, south, east, north = grid.area
     n_out, n_all = int(np.count_nonzero(out)), int(out.size)
     who = "The point is" if n_all == 1 else f"{n_out} of {n_all} points are"
@@ -616,6 +621,8 @@ def _tm_parameters(grid: GridCRS):
     if lon0 is None or k0 is None or lon0.unit_name != "degree":
         return None
     ell = crs.ellipsoid
+    if ell is None:
+        return None
     inv_f = ell.inverse_flattening
     return (
         float(lon0.value),

@@ -165,7 +165,7 @@ def movement_test(d_enu_m: ArrayLike, cov_m2: ArrayLike, *, level: float = 0.05,
     moved_v = rejected & (tv > _sst.chi2.ppf(1.0 - level, 1))
     lam = noncentrality_for_power(level, power, 3)
     mdb = np.sqrt(lam / np.diagonal(w, axis1=-2, axis2=-1))
-    verdict = np.where(rejected, POSSIBLE_MOVEMENT, NO_MOVEMENT)
+    verdict: Any = np.where(rejected, POSSIBLE_MOVEMENT, NO_MOVEMENT)
     p3, ph, pv = _sst.chi2.sf(t3, 3), _sst.chi2.sf(th, 2), _sst.chi2.sf(tv, 1)
     if np.ndim(t3) == 0:
         t3, th, tv, p3, ph, pv = (float(x) for x in (t3, th, tv, p3, ph, pv))

@@ -206,7 +206,7 @@ def plates_at(lat_deg, lon_deg) -> list[PlateAtPoint]:
             pool = hits if hits.size > 1 else range(len(outlines))
             dists = {int(j): float(_edge_distance_km(outlines[int(j)], pt_lat, pt_lon)[0]) for j in pool}
             # In two outlines: the one it is deepest inside; in none: the nearest one.
-            j = max(dists, key=dists.get) if hits.size > 1 else min(dists, key=dists.get)
+            j = max(dists, key=dists.__getitem__) if hits.size > 1 else min(dists, key=dists.__getitem__)
             o, dist = outlines[j], (0.0 if hits.size == 0 else min(dists.values()))
         out.append(PlateAtPoint(outline_code=o.code, name=o.name, pmm_code=o.pmm, boundary_km=dist))
     return out

@@ -143,6 +143,7 @@ def search_box(
         return SearchBox(lat_lo, lat_hi, ((-180.0, 180.0),))
     lon_lo = lon_deg - dlon_deg
     lon_hi = lon_deg + dlon_deg
+    ranges: tuple[tuple[float, float], ...]
     if lon_lo < -180.0:
         ranges = ((lon_lo + 360.0, 180.0), (-180.0, lon_hi))
     elif lon_hi > 180.0:

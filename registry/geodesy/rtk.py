@@ -626,6 +626,7 @@ def _best_pair(
             key = (int(c), float(w))
             if best is None or key > best[0]:
                 best = (key, int(s))
+    assert best is not None  # the pool holds two or more candidates, so at least one pair was evaluated
     (cov_count, worst_margin), s = best
     # A pair is only worth proposing when it covers more of the site than the best single base
     # does on its own; otherwise the second base adds nothing in the field.

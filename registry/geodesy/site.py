@@ -379,7 +379,7 @@ def build_site_grid(site: Site, plane: LocalPlane, spacing_m: float | None = Non
     ext = rings[0]
     lo, hi = ext[:-1].min(axis=0), ext[:-1].max(axis=0)
     fixed = spacing_m is not None
-    spacing = float(spacing_m) if fixed else auto_spacing_m(area)
+    spacing = float(spacing_m) if spacing_m is not None else auto_spacing_m(area)
     for _attempt in range(6):
         nx = int(math.ceil((hi[0] - lo[0]) / spacing))
         ny = int(math.ceil((hi[1] - lo[1]) / spacing))

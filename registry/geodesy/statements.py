@@ -36,12 +36,15 @@ import csv
 import io
 import math
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from registry.geodesy import accuracy as acc
 from registry.geodesy.accuracy import ComputationInputError, Finding
+
+if TYPE_CHECKING:
+    from registry.geodesy.stats import CombinationResult, CompatibilityResult
 
 __all__ = [
     "CAUTIONS",
@@ -259,7 +262,7 @@ def finding_text(finding: Finding, *, style: str | None = None) -> str:
     return code.replace("_", " ")
 
 
-def compatibility_text(result: Any) -> str:
+def compatibility_text(result: CompatibilityResult) -> str:
     """One line for a scalar ``stats.CompatibilityResult``, with the numbers behind the verdict.
 
     Examples
@@ -276,7 +279,7 @@ def compatibility_text(result: Any) -> str:
     return f"Not compatible {head} > {crit}. The mark may have moved or one solution is wrong; investigate before use."
 
 
-def combination_text(result: Any) -> str:
+def combination_text(result: CombinationResult) -> str:
     """One line for a ``stats.CombinationResult``: which method and the spread test."""
     verdict = {
         "consistent": "the spread agrees with the stated sigmas",
@@ -425,7 +428,7 @@ def _finding_dicts(findings: list[Finding], style: str) -> list[dict[str, Any]]:
     return [{"code": f.code, "message": finding_text(f, style=style), "params": dict(f.params)} for f in findings]
 
 
-def _axes(result: Any) -> dict[str, Any]:
+def _axes(result: acc.NssdaResult | acc.AsprsResult) -> dict[str, Any]:
     out = {}
     for name in ("x", "y", "z"):
         s = getattr(result, name)
@@ -513,6 +516,7 @@ def accuracy_report(
     cautions = list(CAUTIONS)
 
     if style == "fgdc":
+        assert cov_en_m2 is not None  # checked above: this style needs a covariance
         try:
             var_e, cov_en, var_n = (float(v) for v in cov_en_m2)
         except (TypeError, ValueError):
@@ -553,6 +557,7 @@ def accuracy_report(
         cautions.append(_FGDC_CAUTION)
 
     elif style == "nssda":
+        assert residuals is not None  # checked above: this style needs residuals
         r = acc.nssda_evaluate(residuals.de_m, residuals.dn_m, residuals.du_m)
         report.update(
             horizontal_95_m=r.horizontal_95_m,
@@ -566,16 +571,23 @@ def accuracy_report(
             horizontal_formula=NSSDA_FORMULAS.get(r.horizontal_method) if r.horizontal_method else None,
             axes=_axes(r),
             blunders=[
-                {"point_id": residuals.point_ids[i], "axis": axis, "residual_m": float(arr[i])}
+                {"point_id": residuals.point_ids[i], "axis": axis, "residual_m": float(by_axis[axis][i])}
+                for by_axis in (
+                    {
+                        k: v
+                        for k, v in (("x", residuals.de_m), ("y", residuals.dn_m), ("z", residuals.du_m))
+                        if v is not None
+                    },
+                )
                 for i, axis in r.blunders
-                for arr in ({"x": residuals.de_m, "y": residuals.dn_m, "z": residuals.du_m}[axis],)
             ],
         )
         findings.extend(r.findings)
         lines = nssda_statement_lines(r.horizontal_95_m, r.vertical_95_m)
 
     else:  # asprs2023
-        r = acc.asprs2023_evaluate(
+        assert residuals is not None  # checked above: this style needs residuals
+        ra = acc.asprs2023_evaluate(
             residuals.de_m,
             residuals.dn_m,
             residuals.du_m,
@@ -587,26 +599,26 @@ def accuracy_report(
         )
         arrays = {"x": residuals.de_m, "y": residuals.dn_m, "z": residuals.du_m}
         report.update(
-            n_checkpoints=r.n,
-            rmse_x_m=r.x.rmse_m if r.x else None,
-            rmse_y_m=r.y.rmse_m if r.y else None,
-            rmse_h1_m=r.rmse_h1_m,
-            rmse_h2_m=r.rmse_h2_m,
-            rmse_h_m=r.rmse_h_m,
-            rmse_v1_m=r.rmse_v1_m,
-            rmse_v2_m=r.rmse_v2_m,
-            rmse_v_m=r.rmse_v_m,
-            rmse_3d_m=r.rmse_3d_m,
-            axes=_axes(r),
+            n_checkpoints=ra.n,
+            rmse_x_m=ra.x.rmse_m if ra.x else None,
+            rmse_y_m=ra.y.rmse_m if ra.y else None,
+            rmse_h1_m=ra.rmse_h1_m,
+            rmse_h2_m=ra.rmse_h2_m,
+            rmse_h_m=ra.rmse_h_m,
+            rmse_v1_m=ra.rmse_v1_m,
+            rmse_v2_m=ra.rmse_v2_m,
+            rmse_v_m=ra.rmse_v_m,
+            rmse_3d_m=ra.rmse_3d_m,
+            axes=_axes(ra),
             blunders=[
-                {"point_id": residuals.point_ids[i], "axis": axis, "residual_m": float(arrays[axis][i])}
-                for i, axis in r.blunders
+                {"point_id": residuals.point_ids[i], "axis": axis, "residual_m": float(arrays[axis][i])}  # type: ignore[index]  # an axis with a blunder has residuals
+                for i, axis in ra.blunders
             ],
         )
-        findings.extend(r.findings)
-        survey_included = not any(f.code == "survey_accuracy_not_given" for f in r.findings)
+        findings.extend(ra.findings)
+        survey_included = not any(f.code == "survey_accuracy_not_given" for f in ra.findings)
         lines = asprs2023_statement_lines(
-            n=r.n, rmse_h_m=r.rmse_h_m, rmse_v_m=r.rmse_v_m, rmse_3d_m=r.rmse_3d_m, survey_included=survey_included
+            n=ra.n, rmse_h_m=ra.rmse_h_m, rmse_v_m=ra.rmse_v_m, rmse_3d_m=ra.rmse_3d_m, survey_included=survey_included
         )
 
     report["statement_lines"] = lines

@@ -32,12 +32,13 @@ and must be the same for every solution that is compared or combined (``enu_diff
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
+from numpy.typing import NDArray
 from scipy import stats as _sst
 
 from registry.geodesy.accuracy import ComputationInputError
+from registry.geodesy.arraytypes import ArrayLike, FloatArray, FloatOrArray
 
 __all__ = [
     "CombinationResult",
@@ -61,7 +62,7 @@ VELOCITY_MIN_SOLUTIONS = 3
 VELOCITY_MIN_SPAN_YR = 2.5
 
 
-def chi2_critical(dof: Any, confidence: float = 0.95) -> Any:
+def chi2_critical(dof: ArrayLike, confidence: float = 0.95) -> FloatOrArray:
     """Upper χ² quantile χ²(confidence, dof).
 
     Examples
@@ -70,8 +71,8 @@ def chi2_critical(dof: Any, confidence: float = 0.95) -> Any:
     [3.841459, 5.991465, 7.814728]
     """
     _check_confidence(confidence)
-    value = _sst.chi2.ppf(confidence, np.asarray(dof, dtype=float))
-    return value.item() if np.ndim(value) == 0 else value
+    value = np.asarray(_sst.chi2.ppf(confidence, np.asarray(dof, dtype=float)), dtype=float)
+    return value.item() if value.ndim == 0 else value
 
 
 def chi2_two_sided_bounds(dof: int, confidence: float = 0.95) -> tuple[float, float]:
@@ -92,7 +93,7 @@ def _check_confidence(confidence: float) -> None:
         raise ComputationInputError("The confidence level must lie strictly between 0 and 1.", code="bad_confidence")
 
 
-def _finite(value: Any, name: str) -> np.ndarray:
+def _finite(value: ArrayLike, name: str) -> FloatArray:
     try:
         arr = np.asarray(value, dtype=float)
     except (TypeError, ValueError) as exc:
@@ -120,12 +121,12 @@ def _spd_inverse(cov: np.ndarray, name: str) -> np.ndarray:
 
 def enu_difference_m(
     *,
-    published_lat_deg: Any,
-    published_lon_deg: Any,
-    published_h_m: Any,
-    observed_lat_deg: Any,
-    observed_lon_deg: Any,
-    observed_h_m: Any,
+    published_lat_deg: ArrayLike,
+    published_lon_deg: ArrayLike,
+    published_h_m: ArrayLike,
+    observed_lat_deg: ArrayLike,
+    observed_lon_deg: ArrayLike,
+    observed_h_m: ArrayLike,
     published_frame_epsg: int,
     published_epoch_yr: float,
     observed_frame_epsg: int,
@@ -168,23 +169,23 @@ class CompatibilityResult:
     """Outcome of T = dᵀΣ⁻¹d against χ²(confidence, k). Arrays for batched input, floats otherwise."""
 
     components: str
-    statistic: Any  # T
+    statistic: FloatOrArray  # T
     dof: int  # k
     critical: float  # χ²(confidence, k)
-    p_value: Any  # P(χ²(k) ≥ T)
-    compatible: Any  # T ≤ critical
+    p_value: FloatOrArray  # P(χ²(k) ≥ T)
+    compatible: bool | NDArray[np.bool_]  # T ≤ critical
     confidence: float
-    d_m: Any  # the difference vector used, shape (..., k)
-    cov_m2: Any  # Σ used, shape (..., k, k)
+    d_m: FloatArray  # the difference vector used, shape (..., k)
+    cov_m2: FloatArray  # Σ used, shape (..., k, k)
 
 
 def compatibility_test(
-    d_enu_m: Any,
-    cov_published_m2: Any,
-    cov_observed_m2: Any,
+    d_enu_m: ArrayLike,
+    cov_published_m2: ArrayLike,
+    cov_observed_m2: ArrayLike,
     *,
     components: str | None = None,
-    cov_cross_m2: Any = None,
+    cov_cross_m2: ArrayLike | None = None,
     confidence: float = 0.95,
 ) -> CompatibilityResult:
     """Test whether an observed and a published solution of a mark agree: T = dᵀ(Σpub + Σobs)⁻¹d.
@@ -263,7 +264,7 @@ def compatibility_test(
     return CompatibilityResult(components, t, k, critical, p, ok, float(confidence), d, cov)
 
 
-def _stack_solutions(x_m: Any, cov_m2: Any) -> tuple[np.ndarray, np.ndarray]:
+def _stack_solutions(x_m: ArrayLike, cov_m2: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
     x = _finite(x_m, "solutions")
     cov = _finite(cov_m2, "covariances")
     if x.ndim == 1:  # n scalar solutions
@@ -311,7 +312,7 @@ class CombinationResult:
     scaled: bool  # True when cov_statement = s0²·cov_mean
 
 
-def weighted_combination(x_m: Any, cov_m2: Any, *, confidence: float = 0.95) -> CombinationResult:
+def weighted_combination(x_m: ArrayLike, cov_m2: ArrayLike, *, confidence: float = 0.95) -> CombinationResult:
     """Generalised weighted mean of repeat solutions with full covariance, and its spread test.
 
     Parameters
@@ -366,7 +367,7 @@ def weighted_combination(x_m: Any, cov_m2: Any, *, confidence: float = 0.95) -> 
 
 
 def velocity_rule(
-    t_yr: Any, *, min_solutions: int = VELOCITY_MIN_SOLUTIONS, min_span_yr: float = VELOCITY_MIN_SPAN_YR
+    t_yr: ArrayLike, *, min_solutions: int = VELOCITY_MIN_SOLUTIONS, min_span_yr: float = VELOCITY_MIN_SPAN_YR
 ) -> tuple[bool, str | None]:
     """Whether a history of epochs supports a velocity: (ok, reason code or None).
 
@@ -405,9 +406,9 @@ class VelocityResult:
 
 
 def velocity_fit(
-    t_yr: Any,
-    x_m: Any,
-    cov_m2: Any,
+    t_yr: ArrayLike,
+    x_m: ArrayLike,
+    cov_m2: ArrayLike,
     *,
     ref_epoch_yr: float | None = None,
     min_solutions: int = VELOCITY_MIN_SOLUTIONS,
@@ -443,6 +444,7 @@ def velocity_fit(
     t = _finite(t_yr, "epochs")
     ok, reason = velocity_rule(t, min_solutions=min_solutions, min_span_yr=min_span_yr)
     if not ok:
+        assert reason is not None  # velocity_rule gives a reason whenever it refuses
         raise ComputationInputError(
             f"A velocity needs at least {min_solutions} solutions spanning at least {min_span_yr:g} years "
             f"(have {t.size} spanning {float(np.ptp(t)) if t.size else 0.0:.2f} years).",

@@ -28,7 +28,10 @@ def test_url_name():
 def test_every_role_may_compute(request, api_client_for, role):
     response = api_client_for(request.getfixturevalue(role)).post(URL, {"cov_en_m2": [1e-4, 0.0, 1e-4]}, format="json")
     assert response.status_code == 200
-    assert response.json()["horizontal_95_m"] == pytest.approx(0.0245, abs=1e-4)  # 2.450762 × 10 mm (§4.2)
+    # K(1) = 1.960790 + 0.004071 + 0.114276 + 0.371625 = 2.450762 (FGDC-STD-007.2-1998 K polynomial, secondary
+    # transcription) × σ = 10 mm. Unrounded JSON: 2.4477 × 10 mm (the NSSDA circle factor) would be 0.024477.
+    k1 = 1.960790 + 0.004071 + 0.114276 + 0.371625
+    assert response.json()["horizontal_95_m"] == pytest.approx(k1 * 0.01, rel=1e-9)
 
 
 @pytest.mark.django_db
@@ -73,21 +76,27 @@ def test_residual_rows_nssda(viewer, api_client_for):
 
 @pytest.mark.django_db
 @pytest.mark.parametrize(
-    "body,code",
+    "body,code,detail",
     [
-        ({}, None),
-        ({"cov_en_m2": [1e-4, 0.0, 1e-4], "residuals_csv": "x"}, None),
-        ({"cov_en_m2": [1e-4, 5e-4, 1e-4]}, "not_positive_semidefinite"),
-        ({"cov_en_m2": [1e-4, 0.0, 1e-4], "style": "nssda"}, "style_needs_residuals"),
-        ({"residuals_csv": "point_id,du_m\nA,x\n"}, "residuals_bad_number"),
-        ({"residuals": [{"point_id": "A", "du_m": 0.1}, {"point_id": "A", "du_m": 0.2}]}, "residuals_duplicate_point"),
-        ({"residuals_csv": EX_A_CSV, "var_u_m2": 1e-4}, "input_choice"),
+        ({}, "invalid", ("non_field_errors", "input_choice")),
+        ({"cov_en_m2": [1e-4, 0.0, 1e-4], "residuals_csv": "x"}, "invalid", ("non_field_errors", "input_choice")),
+        ({"cov_en_m2": [1e-4, 5e-4, 1e-4]}, "not_positive_semidefinite", None),
+        ({"cov_en_m2": [1e-4, 0.0, 1e-4], "style": "nssda"}, "style_needs_residuals", None),
+        ({"residuals_csv": "point_id,du_m\nA,x\n"}, "residuals_bad_number", None),
+        (
+            {"residuals": [{"point_id": "A", "du_m": 0.1}, {"point_id": "A", "du_m": 0.2}]},
+            "residuals_duplicate_point",
+            None,
+        ),
+        ({"residuals_csv": EX_A_CSV, "var_u_m2": 1e-4}, "input_choice", None),
     ],
 )
-def test_bad_input_is_a_400_in_the_one_error_shape(viewer, api_client_for, body, code):
+def test_bad_input_is_a_400_in_the_one_error_shape(viewer, api_client_for, body, code, detail):
     response = api_client_for(viewer).post(URL, body, format="json")
     assert response.status_code == 400
     error = response.json()["error"]
     assert set(error) == {"code", "message", "details"}
-    if code is not None:
-        assert error["code"] == code
+    assert error["code"] == code
+    if detail is not None:
+        field, detail_code = detail
+        assert [d["code"] for d in error["details"][field]] == [detail_code]

@@ -28,10 +28,11 @@ def test_url_name():
 def test_every_role_opens_and_computes(request, signed_in, role):
     client = signed_in(request.getfixturevalue(role))
     assert client.get(URL).status_code == 200
-    response = client.post(URL, {"source": "covariance", "var_e_m2": "1e-4", "cov_en_m2": "0", "var_n_m2": "1e-4"})
+    response = client.post(URL, {"source": "covariance", "var_e_m2": "1e-2", "cov_en_m2": "0", "var_n_m2": "1e-2"})
     assert response.status_code == 200
-    # 2.450762 × 10 mm = 24.5 mm (FGDC-STD-007.2-1998 K polynomial at C = 1, secondary transcription)
-    assert "Horizontal network accuracy 0.025 m (24.5 mm)" in response.content.decode()
+    # K(1) = 2.450762 (FGDC-STD-007.2-1998 K polynomial at C = 1, secondary transcription) × σ = 100 mm = 245.08 mm;
+    # σ is large enough that 2.4477 (the NSSDA circle factor, 244.77 mm) would show differently.
+    assert "Horizontal network accuracy 0.245 m (245.1 mm)" in response.content.decode()
 
 
 @pytest.mark.django_db

@@ -7,6 +7,8 @@ finding precision: distance to 0.1 m, azimuth to 0.1° (issue 10, item 2).
 
 from __future__ import annotations
 
+import re
+
 import pytest
 from django.urls import reverse
 from pyproj import Geod
@@ -88,19 +90,25 @@ def test_filters(kestrel, signed_in, viewer):
 @pytest.mark.parametrize(
     "params,field,text",
     [
-        ({"lat": "45 12 61 N"}, "lat", b"seconds must be below 60"),
-        ({"lat": "95"}, "lat", b"within"),
-        ({"lon": "110 36 W E"}, "lon", b""),
-        ({"radius_km": "0"}, "radius_km", b"greater than or equal"),
-        ({"limit": "100000"}, "limit", b"less than or equal"),
+        ({"lat": "45 12 61 N"}, "lat", "seconds must be below 60"),
+        ({"lat": "95"}, "lat", "within"),
+        ({"lon": "110 36 W E"}, "lon", "&#x27;W&#x27; is not a number here."),
+        ({"radius_km": "0"}, "radius_km", "greater than or equal"),
+        ({"limit": "100000"}, "limit", "less than or equal"),
     ],
 )
 def test_bad_input(kestrel, signed_in, viewer, params, field, text):
+    """The message stands under the field that was wrong, and only that field is marked."""
     query = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10", **params}
     response = signed_in(viewer).get(URL, query)
     assert response.status_code == 400
-    assert b"marks within" not in response.content
-    assert text in response.content
+    html = response.content.decode()
+    assert "marks within" not in html
+    marked = re.findall(
+        r'<div class="field has-error">\s*<label for="id_(\w+)">.*?<ul class="errorlist">(.*?)</ul>', html, re.S
+    )
+    assert [name for name, _ in marked] == [field]
+    assert text in marked[0][1]
 
 
 @pytest.mark.django_db
