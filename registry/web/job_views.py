@@ -22,15 +22,15 @@ from django.utils.safestring import mark_safe
 from registry.errors import Conflict
 from registry.geodesy import rtk
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
-from registry.roles import Ability, has_ability
+from registry.roles import Ability
 from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
 from registry.services.job_fields import new_job_defaults
-from registry.services.jobs import CREATE_FIELDS, job_create, job_update
+from registry.services.jobs import CREATE_FIELDS, JOB_PLANNING, job_create, job_update, may_plan_jobs
 from registry.services.screening import ScreeningResult
 from registry.services.screening.cache import job_screen_cached
 from registry.services.screening.export import EXPORT_COLUMNS, export_geojson, export_rows
-from registry.services.screening.present import page_figures
+from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.job_map import build_job_map, legend_rows
 from registry.web.templatetags.registry_format import format_frame
@@ -222,12 +222,15 @@ def _initial(job: Job) -> dict:
 @ability_required(Ability.VIEW)
 def job_list(request: HttpRequest) -> HttpResponse:
     rows = [
-        {"job": job, "frame": format_frame(job.frame_epsg), "site_kind": (job.site_geojson or {}).get("type", "?")}
+        {
+            "job": job,
+            "frame": format_frame(job.frame_epsg),
+            "site_kind": (job.site_geojson or {}).get("type", "?"),
+            "answer": job_answer(job_screen_cached(actor=request.user, code=job.code)),
+        }
         for job in jobs_in_order()
     ]
-    return render(
-        request, "registry/job_list.html", {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)}
-    )
+    return render(request, "registry/job_list.html", {"rows": rows, "can_plan": may_plan_jobs(request.user)})
 
 
 #: Usable candidates shown before the "show all" disclosure.
@@ -273,11 +276,16 @@ def _screening_context(result: ScreeningResult) -> dict:
 def job_page(request: HttpRequest, code: str) -> HttpResponse:
     job = access_job_by_code(request.user, code)
     result = job_screen_cached(actor=request.user, code=code)
-    context = {"job": job, "can_manage": has_ability(request.user, Ability.MANAGE), **_screening_context(result)}
+    context = {
+        "job": job,
+        "can_plan": may_plan_jobs(request.user),
+        "answer": job_answer(result),
+        **_screening_context(result),
+    }
     return render(request, "registry/job_detail.html", context)
 
 
-@ability_required(Ability.MANAGE)
+@ability_required(JOB_PLANNING)
 def job_new(request: HttpRequest) -> HttpResponse:
     if request.method == "POST":
         form = JobForm(request.POST)
@@ -296,9 +304,9 @@ def job_new(request: HttpRequest) -> HttpResponse:
     return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
 
 
-@ability_required(Ability.MANAGE)
+@ability_required(JOB_PLANNING)
 def job_edit(request: HttpRequest, code: str) -> HttpResponse:
-    job = access_job_by_code(request.user, code, ability=Ability.MANAGE)
+    job = access_job_by_code(request.user, code, ability=JOB_PLANNING)
     initial = _initial(job)
     conflict = None
     status = 200

@@ -322,3 +322,52 @@ def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, e
         assert f'title="{escape(words)}"' in ranked  # tooltip on the budget column headers
     # The per-mark base tooltip names the covariance origin of that mark's base term.
     assert "published position&#x27;s σ from its covariance (horizontal √λmax" in ranked
+
+
+# ----------------------------------------------------------------------------- issue 10, items 4–7
+
+
+def test_job_list_shows_each_jobs_answer_from_the_screening(client, viewer, scenario, empty_cache):
+    from registry.services.screening.cache import job_screen_cached
+    from registry.services.screening.present import job_answer
+
+    client.force_login(viewer)
+    body = client.get("/jobs/").content.decode()
+    answer = job_answer(job_screen_cached(actor=viewer, code="J-WEB"))
+    # The list repeats the screening's own answer and worst figures (no rule of its own).
+    assert answer["words"] in body
+    assert answer["kind"] in ("one", "several", "none")
+    if answer["worst_h95_mm"] is not None:
+        assert f'{answer["worst_h95_mm"]:.1f} / {answer["worst_v95_mm"]:.1f}' in body
+    # Tight tolerances: nothing covers; loose ones: one base does.
+    Job.objects.filter(code="J-WEB").update(tol_h_mm=1.0, tol_v_mm=1.0, version=9)
+    body = client.get("/jobs/").content.decode()
+    assert "cannot be covered" in body and "state-answer-none" in body
+    Job.objects.filter(code="J-WEB").update(tol_h_mm=500.0, tol_v_mm=500.0, version=10)
+    body = client.get("/jobs/").content.decode()
+    assert "covered by one base (BASE-N)" in body and "state-answer-one" in body
+
+
+def test_technician_creates_and_edits_jobs_on_page_and_api(client, technician, scenario):
+    client.force_login(technician)
+    assert "New job" in client.get("/jobs/").content.decode()
+    assert "Edit job" in client.get("/jobs/J-WEB/").content.decode()
+    r = client.get("/jobs/J-WEB/edit/")
+    assert r.status_code == 200
+    r = client.patch(
+        "/api/jobs/J-WEB/", data=json.dumps({"name": "Renamed by the party chief", "version": 1}),
+        content_type="application/json",
+    )
+    assert r.status_code == 200, r.content
+    assert Job.objects.get(code="J-WEB").name == "Renamed by the party chief"
+
+
+def test_job_planning_rule_lives_in_the_service(viewer, technician, manager, scenario):
+    from registry.errors import PermissionDeniedError
+    from registry.services.jobs import job_update, may_plan_jobs
+
+    assert not may_plan_jobs(viewer) and may_plan_jobs(technician) and may_plan_jobs(manager)
+    with pytest.raises(PermissionDeniedError):
+        job_update(actor=viewer, code="J-WEB", expected_version=1, changes={"name": "x"})
+    job = job_update(actor=technician, code="J-WEB", expected_version=1, changes={"name": "Tech edit"})
+    assert job.version == 2
