@@ -52,7 +52,10 @@ def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
     assert 'data-code="BASE-N"' in ranked and 'data-code="OLD-1"' not in ranked
     excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
     assert 'Excluded marks: <span class="num">2</span>' in excluded
-    assert 'not_active <span class="num">1</span>' in excluded and "sky_obstructed" in excluded
+    # In words, each mark counted once (the counts add up to the number excluded); no rule codes shown.
+    assert '<li><span class="num">1</span>: the mark is retired or recorded destroyed' in excluded
+    assert '<li><span class="num">1</span>: its sky view is recorded as obstructed' in excluded
+    assert "not_active" not in body and "sky_obstructed" not in body and "<code>" not in excluded
     assert 'data-code="OLD-1"' in excluded and 'data-code="SKY-1"' in excluded
     assert "the mark is retired or recorded destroyed" in excluded
     assert "<details open" not in body  # collapsed: readable without JavaScript, one click to open
@@ -72,13 +75,14 @@ def test_long_candidate_lists_fold_into_details(client, viewer, db):
     body = client.get("/jobs/J-MANY/").content.decode()
     top, rest = body.split('<details class="more more-usable">')
     top_table = top.split('<table class="ranked">')[1].split("</table>")[0]
-    rest_table = rest.split("</details>")[0]
+    rest_table = rest.split('<table class="ranked">')[1].split("</table>")[0]
     assert top_table.count("<tr data-code=") == 25 and rest_table.count("<tr data-code=") == 5
     assert 'Show all <span class="num">30</span> usable candidates' in rest
     ranks = [int(r) for r in re.findall(r'<tr data-code="[^"]+">\s*<td class="num">(\d+)</td>', top_table + rest_table)]
     assert ranks == list(range(1, 31))
     excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
-    assert 'last_visit_destroyed <span class="num">1</span>' in excluded and 'data-code="GONE-1"' in excluded
+    assert '<span class="num">1</span>: the last visit found the mark destroyed' in excluded
+    assert 'data-code="GONE-1"' in excluded and "last_visit_destroyed" not in body
     # The map frames the point and its nearest marks: the farther ones are counted in the caption.
     outside = re.search(r'<span class="num">(\d+)</span> other marks within the search radius lie outside', body)
     assert outside is not None and int(outside.group(1)) >= 10
@@ -258,7 +262,7 @@ def test_any_audited_write_invalidates_the_cached_screening(client, viewer, tech
         after = client.get("/jobs/J-WEB/").content.decode()
         assert spy.call_count == 2
         excluded = after.split('<details class="more more-excluded">')[1].split("</details>")[0]
-        assert 'data-code="BASE-N"' in excluded and "last_visit_destroyed" in excluded
+        assert 'data-code="BASE-N"' in excluded and "the last visit found the mark destroyed" in excluded
         client.get("/jobs/J-WEB/")
         assert spy.call_count == 2
         # A job change (new version) invalidates too, and the page shows the new tolerance.
@@ -314,7 +318,7 @@ def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, e
     assert 'class="dh-note no-site-heights"' in body and "the site has no heights" in body
     assert "|Δh| (m)" not in body and 'class="num dh"' not in body  # no column of dashes
     legend = body.split('<span class="budget-terms">')[1].split("</span>")[0]
-    ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
+    ranked = body.split('<details class="budget-columns">')[1].split('<table class="budget">')[1].split("</table>")[0]
     from django.utils.html import escape
 
     for _term, words in BUDGET_TERM_DESCRIPTIONS:
@@ -371,3 +375,24 @@ def test_job_planning_rule_lives_in_the_service(viewer, technician, manager, sce
         job_update(actor=viewer, code="J-WEB", expected_version=1, changes={"name": "x"})
     job = job_update(actor=technician, code="J-WEB", expected_version=1, changes={"name": "Tech edit"})
     assert job.version == 2
+
+
+def test_job_page_leads_with_the_answer_and_map_budget_behind_a_toggle(client, viewer, scenario, empty_cache):
+    client.force_login(viewer)
+    body = client.get("/jobs/J-WEB/").content.decode()
+    main = body.split("<h1")[1]
+    # Order: the answer, then the map, then the chosen bases, then the job's settings, then the ranked list.
+    positions = [main.index(h) for h in ('id="h-result"', 'id="h-map"', 'id="h-chosen"', 'id="h-job"', 'id="h-ranked"')]
+    assert positions == sorted(positions)
+    assert 'class="state state-answer-' in main.split('id="h-map"')[0]
+    # The ranked table has no per-term columns; they sit in a closed <details> (works without JavaScript).
+    ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
+    assert "Horizontal σ per axis" not in ranked and ">drift<" not in ranked
+    budget = body.split('<details class="budget-columns">')[1].split("</details>")[0]
+    assert "<summary>Error budget per term" in budget and "Horizontal σ per axis" in budget
+    assert budget.count("<tr data-code=") == ranked.count("<tr data-code=")
+    # Exclusion counts add up to the number excluded.
+    excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
+    counts = [int(n) for n in re.findall(r'<li><span class="num">(\d+)</span>:', excluded)]
+    total = int(re.search(r'Excluded marks: <span class="num">(\d+)</span>', excluded).group(1))
+    assert sum(counts) == total == 2

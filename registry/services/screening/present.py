@@ -179,12 +179,19 @@ def page_figures(result: ScreeningResult) -> dict[str, Any]:
     for c in result.candidates:
         role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
         (excluded_rows if c.excluded else usable_rows).append(candidate_row(c, role))
+    # Each excluded mark is counted once, under the first reason the rules give it, so the counts add up to
+    # the number excluded; how many of them have further reasons is said beside it.
     reason_counts: dict[str, int] = {}
+    further: dict[str, int] = {}
     for row in excluded_rows:
-        for code, _ in row["reasons"]:
-            reason_counts[code] = reason_counts.get(code, 0) + 1
+        if not row["reasons"]:
+            continue
+        first = row["reasons"][0][0]
+        reason_counts[first] = reason_counts.get(first, 0) + 1
+        if len(row["reasons"]) > 1:
+            further[first] = further.get(first, 0) + 1
     by_reason = [
-        {"code": code, "words": rules.REASON_WORDS[code], "count": n}
+        {"code": code, "words": rules.REASON_WORDS[code], "count": n, "with_further": further.get(code, 0)}
         for code, n in sorted(reason_counts.items(), key=lambda kv: (-kv[1], kv[0]))
     ]
     return {
