@@ -39,8 +39,8 @@ from registry.geodesy.dms import format_signed_dms
 from registry.geodesy.site import display_utm_zone
 from registry.geodesy.webmercator import tile_width_m
 from registry.services.screening import Candidate, ScreeningResult
-from registry.services.screening.rules import REASON_WORDS
 from registry.services.screening.export import service_area_polygons
+from registry.services.screening.rules import REASON_WORDS
 from registry.web.basemap import basemap_layer
 
 WIDTH_PX = 760

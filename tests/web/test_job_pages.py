@@ -342,7 +342,7 @@ def test_job_list_shows_each_jobs_answer_from_the_screening(client, viewer, scen
     assert answer["words"] in body
     assert answer["kind"] in ("one", "several", "none")
     if answer["worst_h95_mm"] is not None:
-        assert f'{answer["worst_h95_mm"]:.1f} / {answer["worst_v95_mm"]:.1f}' in body
+        assert f"{answer['worst_h95_mm']:.1f} / {answer['worst_v95_mm']:.1f}" in body
     # Tight tolerances: nothing covers; loose ones: one base does.
     Job.objects.filter(code="J-WEB").update(tol_h_mm=1.0, tol_v_mm=1.0, version=9)
     body = client.get("/jobs/").content.decode()
@@ -359,7 +359,8 @@ def test_technician_creates_and_edits_jobs_on_page_and_api(client, technician, s
     r = client.get("/jobs/J-WEB/edit/")
     assert r.status_code == 200
     r = client.patch(
-        "/api/jobs/J-WEB/", data=json.dumps({"name": "Renamed by the party chief", "version": 1}),
+        "/api/jobs/J-WEB/",
+        data=json.dumps({"name": "Renamed by the party chief", "version": 1}),
         content_type="application/json",
     )
     assert r.status_code == 200, r.content
@@ -396,3 +397,95 @@ def test_job_page_leads_with_the_answer_and_map_budget_behind_a_toggle(client, v
     counts = [int(n) for n in re.findall(r'<li><span class="num">(\d+)</span>:', excluded)]
     total = int(re.search(r'Excluded marks: <span class="num">(\d+)</span>', excluded).group(1))
     assert sum(counts) == total == 2
+
+
+def _new_job_post(**site):
+    base = {
+        "code": "J-SITE",
+        "name": "Site by other means",
+        "status": "planning",
+        "frame_epsg": "6319",
+        "epoch_yr": "2010.0",
+        "tol_h_mm": "30",
+        "tol_v_mm": "50",
+        "rtk_combination": "additive",
+        "rtk_h_meaning": "per_axis",
+        "site_geojson": "",
+    }
+    return {**base, **site}
+
+
+def test_site_typed_as_dms_point(client, technician, db):
+    client.force_login(technician)
+    r = client.post("/jobs/new/", _new_job_post(site_lat_deg="45 12 00.0 N", site_lon_deg="110 36 00.0 W"))
+    assert r.status_code == 302, r.content.decode()[:3000]
+    job = Job.objects.get(code="J-SITE")
+    assert job.site_geojson["type"] == "Point"
+    lon, lat = job.site_geojson["coordinates"][:2]
+    assert lat == pytest.approx(45.2, abs=1e-12) and lon == pytest.approx(-110.6, abs=1e-12)
+
+
+def test_site_uploaded_as_kml_and_gpx(client, technician, db):
+    from django.core.files.uploadedfile import SimpleUploadedFile
+
+    client.force_login(technician)
+    kml = (
+        b'<?xml version="1.0"?><kml xmlns="http://www.opengis.net/kml/2.2"><Placemark><Polygon><outerBoundaryIs>'
+        b"<LinearRing><coordinates>-110.60,45.20,1500 -110.59,45.20,1500 -110.59,45.21,1500 -110.60,45.21,1500 "
+        b"-110.60,45.20,1500</coordinates></LinearRing></outerBoundaryIs></Polygon></Placemark></kml>"
+    )
+    r = client.post("/jobs/new/", {**_new_job_post(), "site_file": SimpleUploadedFile("site.kml", kml)})
+    assert r.status_code == 302, r.content.decode()[:3000]
+    ring = Job.objects.get(code="J-SITE").site_geojson["coordinates"][0]
+    assert ring[0] == [-110.60, 45.20] and len(ring) == 5  # heights from the KML are not read
+    gpx = (
+        b'<gpx version="1.1" xmlns="http://www.topografix.com/GPX/1/1"><trk><trkseg>'
+        b'<trkpt lat="45.20" lon="-110.60"/><trkpt lat="45.20" lon="-110.59"/><trkpt lat="45.21" lon="-110.59"/>'
+        b"</trkseg></trk></gpx>"
+    )
+    r = client.post("/jobs/new/", {**_new_job_post(code="J-GPX"), "site_file": SimpleUploadedFile("walk.gpx", gpx)})
+    assert r.status_code == 302
+    ring = Job.objects.get(code="J-GPX").site_geojson["coordinates"][0]
+    assert len(ring) == 4 and ring[0] == ring[-1]  # closed for the polygon
+
+
+@pytest.mark.parametrize(
+    "name, content, words",
+    [
+        ("site.kml", b"<kml><Placemark><Polygon>", "not well-formed XML"),
+        ("site.gpx", b'<!DOCTYPE gpx [<!ENTITY a "aaaa">]><gpx>&a;</gpx>', "document type or entities"),
+        ("site.gpx", b"<gpx><wpt lat='1' lon='2'/><wpt lat='1' lon='3'/></gpx>", "2 waypoints and no track"),
+        ("site.txt", b"hello", "GeoJSON (.geojson), KML (.kml) or GPX (.gpx)"),
+        ("site.geojson", b'{"type": "LineString", "coordinates": [[0, 0], [1, 1]]}', "no Point or Polygon"),
+    ],
+)
+def test_bad_site_files_give_a_message_and_change_nothing(client, technician, db, name, content, words):
+    from django.core.files.uploadedfile import SimpleUploadedFile
+
+    client.force_login(technician)
+    r = client.post("/jobs/new/", {**_new_job_post(), "site_file": SimpleUploadedFile(name, content)})
+    assert r.status_code == 400
+    assert words in r.content.decode()
+    assert not Job.objects.exists()
+
+
+def test_site_given_two_ways_is_refused(client, technician, db):
+    client.force_login(technician)
+    r = client.post(
+        "/jobs/new/",
+        _new_job_post(
+            site_geojson='{"type": "Point", "coordinates": [-110.6, 45.2]}', site_lat_deg="45.2", site_lon_deg="-110.6"
+        ),
+    )
+    assert r.status_code == 400 and "one way only" in r.content.decode() and not Job.objects.exists()
+
+
+def test_job_form_groups_fields_and_marks_required_ones(client, technician, db):
+    client.force_login(technician)
+    body = client.get("/jobs/new/").content.decode()
+    assert 'enctype="multipart/form-data"' in body
+    legends = re.findall(r"<legend>([^<]+)</legend>", body)
+    assert legends == ["The job", "The site", "Deliverable", "RTK error model and setup", "Screening limits"]
+    for label in ("Job code", "Name", "Deliverable epoch (decimal year)"):
+        assert re.search(re.escape(label) + r'[^<]*<span class="req">required</span>', body), label
+    assert not re.search(r'Client <span class="req">', body)

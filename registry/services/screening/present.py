@@ -240,20 +240,45 @@ def job_answer(result: ScreeningResult) -> dict[str, Any]:
     core = result.core
     usable = result.usable_candidates
     if core is None or not usable:
-        return {"kind": "none", "bases": 0, "words": "cannot be covered: no usable base near the site",
-                "worst_h95_mm": None, "worst_v95_mm": None}
+        return {
+            "kind": "none",
+            "bases": 0,
+            "words": "cannot be covered: no usable base near the site",
+            "worst_h95_mm": None,
+            "worst_v95_mm": None,
+        }
     best = usable[0]
     if best.covers_site:
-        return {"kind": "one", "bases": 1, "words": f"covered by one base ({best.mark.code})",
-                "worst_h95_mm": _mm(best.h95_mm), "worst_v95_mm": _mm(best.v95_mm)}
+        return {
+            "kind": "one",
+            "bases": 1,
+            "words": f"covered by one base ({best.mark.code})",
+            "worst_h95_mm": _mm(best.h95_mm),
+            "worst_v95_mm": _mm(best.v95_mm),
+        }
     n = len(result.chosen)
     if n == 2 and result.pair is not None and core.pair_worst_margin_mm >= 0:
-        return {"kind": "several", "bases": 2, "words": "needs 2 bases",
-                "worst_h95_mm": _mm(core.pair_worst_h95_mm), "worst_v95_mm": _mm(core.pair_worst_v95_mm)}
+        return {
+            "kind": "several",
+            "bases": 2,
+            "words": "needs 2 bases",
+            "worst_h95_mm": _mm(core.pair_worst_h95_mm),
+            "worst_v95_mm": _mm(core.pair_worst_v95_mm),
+        }
     worst_h, worst_v = _mm(core.achievable_h95_mm), _mm(core.achievable_v95_mm)
     if n > 2 and core.cover_coverage >= 1.0:
-        return {"kind": "several", "bases": n, "words": f"needs {n} bases",
-                "worst_h95_mm": worst_h, "worst_v95_mm": worst_v}
+        return {
+            "kind": "several",
+            "bases": n,
+            "words": f"needs {n} bases",
+            "worst_h95_mm": worst_h,
+            "worst_v95_mm": worst_v,
+        }
     reach = f"{core.any_coverage * 100:.0f} % of the site within tolerance"
-    return {"kind": "none", "bases": 0, "words": f"cannot be covered ({reach})",
-            "worst_h95_mm": worst_h, "worst_v95_mm": worst_v}
+    return {
+        "kind": "none",
+        "bases": 0,
+        "words": f"cannot be covered ({reach})",
+        "worst_h95_mm": worst_h,
+        "worst_v95_mm": worst_v,
+    }
