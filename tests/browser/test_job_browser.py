@@ -52,7 +52,8 @@ def test_job_page_map_and_edit(page, job):
     page.get_by_role("button", name="Sign in").click()
     expect(page.get_by_role("heading", name="Jobs")).to_be_visible()
     page.get_by_role("link", name="J-2025-014").click()
-    expect(page.get_by_role("heading", name="Result")).to_be_visible()
+    expect(page.get_by_role("heading", name="Answer")).to_be_visible()
+    expect(page.locator("p.answer")).to_contain_text("worst")
     svg = page.locator("svg.jobmap")
     expect(svg).to_be_visible()
     box = svg.bounding_box()
@@ -65,8 +66,13 @@ def test_job_page_map_and_edit(page, job):
     assert first_num.evaluate("el => getComputedStyle(el).fontVariantNumeric") == "tabular-nums"
     # Excluded marks are folded away with their reasons; one click opens them.
     excluded = page.locator("details.more-excluded")
-    expect(excluded.locator("summary")).to_contain_text("last_visit_not_found")
-    expect(excluded.locator("summary")).to_contain_text("beyond_max_baseline")
+    expect(excluded.locator("summary")).to_contain_text("the last visit did not find the mark")
+    expect(excluded.locator("summary")).not_to_contain_text("last_visit_not_found")
+    # The per-term budget is folded too.
+    budget = page.locator("details.budget-columns").first
+    expect(budget.locator("table.budget")).to_be_hidden()
+    budget.locator("summary").click()
+    expect(budget.locator("table.budget")).to_be_visible()
     expect(excluded.locator("table.excluded-marks")).to_be_hidden()
     excluded.locator("summary").click()
     expect(excluded.locator("table.excluded-marks")).to_be_visible()
@@ -119,6 +125,7 @@ def test_demo_polygon_job_reads_without_javascript(chromium, live_server, screen
         expect(page.locator("table.ranked").first.locator("tbody tr")).to_have_count(25)
         more = page.locator("details.more-usable")
         expect(more.locator("table.ranked")).to_be_hidden()
+        expect(page.locator("details.budget-columns").first.locator("table.budget")).to_be_hidden()
         more.locator("summary").click()
         expect(more.locator("table.ranked")).to_be_visible()
         expect(more.locator("tbody tr").first.locator("td.num").first).to_have_text("26")
