@@ -1,7 +1,7 @@
 """API for jobs and their base screening.
 
-- ``GET /api/jobs/`` list; ``POST /api/jobs/`` create (manager).
-- ``GET /api/jobs/<code>/`` read; ``PATCH /api/jobs/<code>/`` edit with ``version`` (manager;
+- ``GET /api/jobs/`` list; ``POST /api/jobs/`` create (technician or manager).
+- ``GET /api/jobs/<code>/`` read; ``PATCH /api/jobs/<code>/`` edit with ``version`` (technician or manager;
   409 ``stale_version`` with ``{field: {"yours", "theirs"}}`` when someone saved first).
 - ``GET /api/jobs/<code>/screening/`` the screening of a stored job (``?as_of=YYYY-MM-DD``).
 - ``POST /api/screening/`` screening of an ad-hoc site (nothing stored).
