@@ -72,7 +72,7 @@ FIELD_GROUPS = (
     ("The job", "", ["code", "name", "client", "status", "notes"]),
     (
         "The site",
-        "Give it one way: paste GeoJSON, type a point, or upload a file. On the job page the map shows it.",
+        "Required, given one way: paste GeoJSON, type a point, or upload a file. The job page's map shows it.",
         ["site_geojson", "site_lat_deg", "site_lon_deg", "site_file"],
     ),
     (
@@ -209,7 +209,7 @@ class JobForm(forms.Form):
         if editing:
             del self.fields["code"]
         for name in REQUIRED_ON_CREATE:
-            if name in self.fields:
+            if name in self.fields and name != "site_geojson":  # the site group says it is required, one way
                 self.fields[name].marked_required = True  # shown as "required" (the service enforces it)
 
     def groups(self) -> list[tuple[str, str, list]]:

@@ -484,8 +484,9 @@ def test_job_form_groups_fields_and_marks_required_ones(client, technician, db):
     client.force_login(technician)
     body = client.get("/jobs/new/").content.decode()
     assert 'enctype="multipart/form-data"' in body
-    legends = re.findall(r"<legend>([^<]+)</legend>", body)
+    legends = [t.strip() for t in re.findall(r"<legend>([^<]+)", body)]
     assert legends == ["The job", "The site", "Deliverable", "RTK error model and setup", "Screening limits"]
+    assert '<legend>The site <span class="req">required</span></legend>' in body
     for label in ("Job code", "Name", "Deliverable epoch (decimal year)"):
         assert re.search(re.escape(label) + r'[^<]*<span class="req">required</span>', body), label
     assert not re.search(r'Client <span class="req">', body)
