@@ -1,7 +1,7 @@
 """API for jobs and their base screening.
 
-- ``GET /api/jobs/`` list; ``POST /api/jobs/`` create (manager).
-- ``GET /api/jobs/<code>/`` read; ``PATCH /api/jobs/<code>/`` edit with ``version`` (manager;
+- ``GET /api/jobs/`` list; ``POST /api/jobs/`` create (technician or manager).
+- ``GET /api/jobs/<code>/`` read; ``PATCH /api/jobs/<code>/`` edit with ``version`` (technician or manager;
   409 ``stale_version`` with ``{field: {"yours", "theirs"}}`` when someone saved first).
 - ``GET /api/jobs/<code>/screening/`` the screening of a stored job (``?as_of=YYYY-MM-DD``).
 - ``POST /api/screening/`` screening of an ad-hoc site (nothing stored).
@@ -24,7 +24,7 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.api.marks import request_body
-from registry.api.permissions import IsViewer, ReadViewerWriteManager
+from registry.api.permissions import IsViewer, ReadViewerWriteJobPlanner
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
@@ -172,7 +172,7 @@ def _as_of(value) -> dt.date | None:
 
 
 class JobListView(APIView):
-    permission_classes = [ReadViewerWriteManager]
+    permission_classes = [ReadViewerWriteJobPlanner]
 
     @extend_schema(operation_id="jobs_list", responses={200: JobSerializer(many=True)})
     def get(self, request):
@@ -185,7 +185,7 @@ class JobListView(APIView):
 
 
 class JobDetailView(APIView):
-    permission_classes = [ReadViewerWriteManager]
+    permission_classes = [ReadViewerWriteJobPlanner]
 
     @extend_schema(operation_id="jobs_read", responses={200: JobSerializer, 404: ERRORS[404]})
     def get(self, request, code: str):

@@ -43,3 +43,17 @@ class ReadViewerWriteManager(BasePermission):
 
     def has_object_permission(self, request, view, obj) -> bool:
         return self.has_permission(request, view)
+
+
+class ReadViewerWriteJobPlanner(BasePermission):
+    """Reads need the viewer ability, writes the job-planning ability of :mod:`registry.services.jobs`."""
+
+    def has_permission(self, request, view) -> bool:
+        from registry.services.jobs import may_plan_jobs
+
+        if request.method in SAFE_METHODS:
+            return has_ability(request.user, Ability.VIEW)
+        return may_plan_jobs(request.user)
+
+    def has_object_permission(self, request, view, obj) -> bool:
+        return self.has_permission(request, view)

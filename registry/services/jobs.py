@@ -2,8 +2,8 @@
 
 A job carries everything its base screening needs (brief §4): the site (GeoJSON Point or
 Polygon), the deliverable frame and epoch, tolerances (95 %), the RTK error model and the
-screening limits. Each function checks the actor's role (planning jobs is a manager's
-ability), validates every field with a coded ``ValidationError``, runs in one transaction
+screening limits. Each function checks the actor's role (planning jobs is the
+:data:`JOB_PLANNING` ability: technicians and managers), validates every field with a coded ``ValidationError``, runs in one transaction
 and appends an audit event. Bad input changes nothing.
 
 The fields, their checks and their defaults live in :mod:`registry.services.job_fields`.
@@ -20,7 +20,7 @@ from django.utils import timezone
 
 from registry.errors import Conflict
 from registry.models import Job
-from registry.roles import Ability
+from registry.roles import Ability, has_ability
 from registry.services._input import field_error
 from registry.services.access import access_job_by_code, require_ability
 from registry.services.audit import audit_record, json_safe, snapshot
@@ -33,7 +33,17 @@ from registry.services.job_fields import (
     validate_job,
 )
 
-__all__ = ["CREATE_FIELDS", "EDITABLE_FIELDS", "job_create", "job_update"]
+__all__ = ["CREATE_FIELDS", "EDITABLE_FIELDS", "JOB_PLANNING", "job_create", "job_update", "may_plan_jobs"]
+
+#: The ability that plans jobs (create and edit them): technicians (party chiefs) plan their own fieldwork,
+#: managers hold it too (every manager records). Everything else managers keep (marks, positions, publishing).
+#: Pages, the API and commands all ask this module, so one rule governs every door.
+JOB_PLANNING = Ability.RECORD
+
+
+def may_plan_jobs(user) -> bool:
+    """Whether ``user`` may create and edit jobs (for showing or hiding the links; the writes check again)."""
+    return has_ability(user, JOB_PLANNING)
 
 
 def job_create(*, actor, data: dict) -> Job:
@@ -45,13 +55,13 @@ def job_create(*, actor, data: dict) -> Job:
     Raises
     ------
     registry.errors.PermissionDeniedError
-        Unless the actor may manage (plan jobs).
+        Unless the actor may plan jobs (:data:`JOB_PLANNING`: technicians and managers).
     django.core.exceptions.ValidationError
         Codes: ``required``, ``unknown_field``, ``invalid_code``, ``unique``, ``invalid_number``,
         ``out_of_range``, ``invalid_frame``, ``invalid_grid``, ``invalid_choice``, and the site codes of
         :func:`registry.geodesy.site.parse_site_geojson`.
     """
-    require_ability(actor, Ability.MANAGE)
+    require_ability(actor, JOB_PLANNING)
     cleaned = clean_job_fields(data, CREATE_FIELDS)
     missing = [f for f in REQUIRED_ON_CREATE if f not in cleaned or cleaned[f] in (None, "")]
     if missing:
@@ -102,7 +112,7 @@ def job_update(*, actor, code: str, expected_version: Any, changes: dict) -> Job
         raise ValidationError("Nothing to change.", code="no_changes")
     conflict: Conflict | None = None
     with transaction.atomic():
-        job = access_job_by_code(actor, code, ability=Ability.MANAGE)
+        job = access_job_by_code(actor, code, ability=JOB_PLANNING)
         candidate = Job.objects.get(pk=job.pk)
         for key, value in cleaned.items():
             setattr(candidate, key, value)

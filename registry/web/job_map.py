@@ -40,6 +40,7 @@ from registry.geodesy.site import display_utm_zone
 from registry.geodesy.webmercator import tile_width_m
 from registry.services.screening import Candidate, ScreeningResult
 from registry.services.screening.export import service_area_polygons
+from registry.services.screening.rules import REASON_WORDS
 from registry.web.basemap import basemap_layer
 
 WIDTH_PX = 760
@@ -447,7 +448,8 @@ def build_job_map(result: ScreeningResult) -> JobMap:
                 f'<path d="M{x - 3.5:.1f},{y - 3.5:.1f}l7,7M{x - 3.5:.1f},{y + 3.5:.1f}l7,-7" stroke="#9a968f" '
                 'stroke-width="1.3" opacity="0.75"/>'
             )
-        tip = f"{code}: {role}" if role != "excluded" else f"{code}: excluded ({escape(', '.join(c.reasons))})"
+        reasons_words = "; ".join(REASON_WORDS[r] for r in c.reasons)
+        tip = f"{code}: {role}" if role != "excluded" else f"{code}: excluded ({escape(reasons_words)})"
         marks_svg.append(f'<g class="mark {role}" data-code="{code}"><title>{tip}</title>{shape}</g>')
         obstacles.append(_symbol_box(x, y, 9.0 if role in ("base", "check") else 5.5))
     for c in drawn:

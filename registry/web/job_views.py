@@ -20,18 +20,19 @@ from django.shortcuts import redirect, render
 from django.utils.safestring import mark_safe
 
 from registry.errors import Conflict
-from registry.geodesy import rtk
+from registry.geodesy import rtk, site_files
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
-from registry.roles import Ability, has_ability
+from registry.roles import Ability
 from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
-from registry.services.job_fields import new_job_defaults
-from registry.services.jobs import CREATE_FIELDS, job_create, job_update
+from registry.services.job_fields import REQUIRED_ON_CREATE, new_job_defaults
+from registry.services.jobs import CREATE_FIELDS, JOB_PLANNING, job_create, job_update, may_plan_jobs
 from registry.services.screening import ScreeningResult
 from registry.services.screening.cache import job_screen_cached
 from registry.services.screening.export import EXPORT_COLUMNS, export_geojson, export_rows
-from registry.services.screening.present import page_figures
+from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
+from registry.web.fieldwork_forms import AngleField
 from registry.web.job_map import build_job_map, legend_rows
 from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
@@ -66,6 +67,52 @@ HELP = {
 }
 
 
+#: The form's groups: legend, a note under it, and the fields in order.
+FIELD_GROUPS = (
+    ("The job", "", ["code", "name", "client", "status", "notes"]),
+    (
+        "The site",
+        "Required, given one way: paste GeoJSON, type a point, or upload a file. The job page's map shows it.",
+        ["site_geojson", "site_lat_deg", "site_lon_deg", "site_file"],
+    ),
+    (
+        "Deliverable",
+        "",
+        [
+            "frame_epsg",
+            "epoch_yr",
+            "tol_h_mm",
+            "tol_v_mm",
+            "grid_epsg",
+            "custom_grid",
+            "vertical_deliverable",
+            "field_date",
+        ],
+    ),
+    (
+        "RTK error model and setup",
+        "Start at the documented defaults (common practice); match them to your equipment.",
+        [
+            "rtk_combination",
+            "rtk_h_meaning",
+            "rtk_h_fixed_mm",
+            "rtk_h_ppm",
+            "rtk_v_fixed_mm",
+            "rtk_v_ppm",
+            "setup_h_mm",
+            "setup_v_mm",
+            "rover_h_mm",
+            "rover_v_mm",
+        ],
+    ),
+    (
+        "Screening limits",
+        "",
+        ["assumed_rate_mm_yr", "assumed_rate_plate_fixed_mm_yr", "max_baseline_m", "recovery_years", "grid_spacing_m"],
+    ),
+)
+
+
 def _text(label, required=False, help_text=""):
     return forms.CharField(
         label=label,
@@ -88,7 +135,7 @@ class JobForm(forms.Form):
     client = forms.CharField(label="Client", required=False, max_length=200)
     status = forms.ChoiceField(label="Status", choices=JobStatus.choices, initial=JobStatus.PLANNING)
     site_geojson = forms.CharField(
-        label="Site as GeoJSON (Point or Polygon, longitude/latitude in degrees)",
+        label="The site as GeoJSON (Point or Polygon, longitude/latitude in degrees)",
         required=False,
         widget=forms.Textarea(attrs={"rows": 5, "cols": 70, "class": "mono", "spellcheck": "false"}),
         help_text=(
@@ -96,8 +143,27 @@ class JobForm(forms.Form):
             "height from a plan); it only feeds the base-to-site height difference."
         ),
     )
-    site_lat_deg = _text("…or a site point: latitude (decimal degrees)")
-    site_lon_deg = _text("…and longitude (decimal degrees, west negative)")
+    site_lat_deg = AngleField(
+        kind="lat",
+        label="…or a site point: latitude",
+        required=False,
+        help_text="Decimal degrees or degrees minutes seconds, e.g. 45.2 or 45 12 00.0 N.",
+    )
+    site_lon_deg = AngleField(
+        kind="lon",
+        label="…and longitude",
+        required=False,
+        help_text="West negative, or with W: -110.6 or 110 36 00.0 W.",
+    )
+    site_file = forms.FileField(
+        label="…or a file with the site: GeoJSON, KML or GPX",
+        required=False,
+        help_text=(
+            "One point or one polygon (KML), one waypoint or one track or route around the site (GPX), one Point "
+            "or Polygon (GeoJSON). Heights in KML and GPX files are not read (they are seldom ellipsoidal)."
+        ),
+        widget=forms.ClearableFileInput(attrs={"accept": ".geojson,.json,.kml,.gpx"}),
+    )
     frame_epsg = _text(
         "Deliverable frame (EPSG code of a geographic 3D CRS)",
         help_text="e.g. 6319 NAD83(2011), 7912 ITRF2014, 9989 ITRF2020",
@@ -137,36 +203,62 @@ class JobForm(forms.Form):
         for name in CREATE_FIELDS:
             order.append(name)
             if name == "site_geojson":
-                order += ["site_lat_deg", "site_lon_deg"]
+                order += ["site_lat_deg", "site_lon_deg", "site_file"]
         order.append("version")
         self.order_fields(order)
         if editing:
             del self.fields["code"]
+        for name in REQUIRED_ON_CREATE:
+            if name in self.fields and name != "site_geojson":  # the site group says it is required, one way
+                self.fields[name].marked_required = True  # shown as "required" (the service enforces it)
+
+    def groups(self) -> list[tuple[str, str, list]]:
+        """The visible fields in groups: (legend, note, bound fields); anything unlisted joins the last group."""
+        placed = {n for _, _, names in FIELD_GROUPS for n in names}
+        out = []
+        for legend, note, names in FIELD_GROUPS:
+            out.append((legend, note, [self[n] for n in names if n in self.fields]))
+        rest = [self[n] for n in self.fields if n not in placed and n != "version"]
+        out[-1][2].extend(rest)
+        return [g for g in out if g[2]]
 
     def clean(self):
         data = super().clean()
-        lat, lon = data.get("site_lat_deg", "").strip(), data.get("site_lon_deg", "").strip()
-        if lat or lon:
-            if not (lat and lon):
+        lat, lon = data.get("site_lat_deg"), data.get("site_lon_deg")
+        upload = data.get("site_file")
+        pasted = bool((data.get("site_geojson") or "").strip()) and "site_geojson" in self.changed_data
+        point = lat is not None or lon is not None
+        if "site_lat_deg" in self.errors or "site_lon_deg" in self.errors:
+            return data
+        if sum([pasted, point, bool(upload)]) > 1:
+            raise ValidationError(
+                "Give the site one way only: pasted GeoJSON, a typed point, or a file.", code="site_twice"
+            )
+        if point:
+            if lat is None or lon is None:
                 raise ValidationError(
                     "Give both latitude and longitude of the site point.", code="site_point_incomplete"
                 )
-            if self.has_changed() and "site_geojson" in self.changed_data and data.get("site_geojson", "").strip():
-                raise ValidationError("Give the site either as GeoJSON or as a point, not both.", code="site_twice")
+            data["site_geojson"] = json.dumps({"type": "Point", "coordinates": [lon, lat]})
+            self._site_given = True
+        elif upload:
+            if upload.size > site_files.MAX_SITE_FILE_BYTES:
+                self.add_error("site_file", "The file is larger than 2 MB; a site outline needs far less.")
+                return data
             try:
-                data["site_geojson"] = json.dumps({"type": "Point", "coordinates": [float(lon), float(lat)]})
-            except ValueError:
-                raise ValidationError(
-                    "The site point's latitude and longitude must be numbers.", code="invalid_number"
-                ) from None
-            self._site_from_point = True
+                geometry = site_files.site_from_file(upload.name, upload.read())
+            except site_files.SiteFileError as exc:
+                self.add_error("site_file", ValidationError(f"{upload.name}: {exc}", code=exc.code))
+                return data
+            data["site_geojson"] = json.dumps(geometry)
+            self._site_given = True
         return data
 
     def service_data(self, *, only_changed: bool) -> dict:
-        names = [n for n in self.fields if n not in ("version", "site_lat_deg", "site_lon_deg")]
+        names = [n for n in self.fields if n not in ("version", "site_lat_deg", "site_lon_deg", "site_file")]
         if only_changed:
             names = [n for n in names if n in self.changed_data]
-            if getattr(self, "_site_from_point", False) and "site_geojson" not in names:
+            if getattr(self, "_site_given", False) and "site_geojson" not in names:
                 names.append("site_geojson")
         data = {}
         for n in names:
@@ -222,12 +314,15 @@ def _initial(job: Job) -> dict:
 @ability_required(Ability.VIEW)
 def job_list(request: HttpRequest) -> HttpResponse:
     rows = [
-        {"job": job, "frame": format_frame(job.frame_epsg), "site_kind": (job.site_geojson or {}).get("type", "?")}
+        {
+            "job": job,
+            "frame": format_frame(job.frame_epsg),
+            "site_kind": (job.site_geojson or {}).get("type", "?"),
+            "answer": job_answer(job_screen_cached(actor=request.user, code=job.code)),
+        }
         for job in jobs_in_order()
     ]
-    return render(
-        request, "registry/job_list.html", {"rows": rows, "can_manage": has_ability(request.user, Ability.MANAGE)}
-    )
+    return render(request, "registry/job_list.html", {"rows": rows, "can_plan": may_plan_jobs(request.user)})
 
 
 #: Usable candidates shown before the "show all" disclosure.
@@ -273,14 +368,19 @@ def _screening_context(result: ScreeningResult) -> dict:
 def job_page(request: HttpRequest, code: str) -> HttpResponse:
     job = access_job_by_code(request.user, code)
     result = job_screen_cached(actor=request.user, code=code)
-    context = {"job": job, "can_manage": has_ability(request.user, Ability.MANAGE), **_screening_context(result)}
+    context = {
+        "job": job,
+        "can_plan": may_plan_jobs(request.user),
+        "answer": job_answer(result),
+        **_screening_context(result),
+    }
     return render(request, "registry/job_detail.html", context)
 
 
-@ability_required(Ability.MANAGE)
+@ability_required(JOB_PLANNING)
 def job_new(request: HttpRequest) -> HttpResponse:
     if request.method == "POST":
-        form = JobForm(request.POST)
+        form = JobForm(request.POST, request.FILES)
         if form.is_valid():
             try:
                 job = job_create(actor=request.user, data=form.service_data(only_changed=False))
@@ -296,14 +396,14 @@ def job_new(request: HttpRequest) -> HttpResponse:
     return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
 
 
-@ability_required(Ability.MANAGE)
+@ability_required(JOB_PLANNING)
 def job_edit(request: HttpRequest, code: str) -> HttpResponse:
-    job = access_job_by_code(request.user, code, ability=Ability.MANAGE)
+    job = access_job_by_code(request.user, code, ability=JOB_PLANNING)
     initial = _initial(job)
     conflict = None
     status = 200
     if request.method == "POST":
-        form = JobForm(request.POST, editing=True, initial=initial)
+        form = JobForm(request.POST, request.FILES, editing=True, initial=initial)
         if form.is_valid():
             changes = form.service_data(only_changed=True)
             if not changes:

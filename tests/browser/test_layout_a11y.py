@@ -54,12 +54,16 @@ PAGES = [
     ("/marks/KV-001/status/", MANAGERS),
     ("/marks/new/", MANAGERS),
     ("/marks/import/", MANAGERS),
-    ("/jobs/new/", MANAGERS),
+    ("/jobs/new/", RECORDERS),  # party chiefs plan jobs too
+    ("/jobs/J-LAYOUT/edit/", RECORDERS),
 ]
 SHOTS = {
     "/marks/": "mark-list",
     "/marks/KV-002/": "mark-destroyed",
     "/marks/near/?lat=45+12+00+N&lon=110+36+00+W&radius_km=10&usable=all": "marks-near",
+    "/jobs/": "job-list",
+    "/jobs/J-LAYOUT/": "job-page",
+    "/jobs/new/": "job-form",
 }
 
 
@@ -126,6 +130,16 @@ def test_every_page_fits_and_passes_axe(chromium, live_server, district, role, w
                       + ' ' + Math.round(e.getBoundingClientRect().right)); }"""
                 )
                 problems.append(f"{url}: {sizes[0]} px wide in a {sizes[1]} px window ({', '.join(wide)})")
+            if url.startswith("/jobs/") and sizes[0] > WIDTHS[width]:  # a phone's viewport widens to fit
+                problems.append(f"{url}: {sizes[0]} px wide on a {WIDTHS[width]} px screen")
+            if url == "/jobs/J-LAYOUT/":  # the map leads and spans the phone's width, readable
+                box = page.locator("svg.jobmap").bounding_box()
+                if (
+                    box is None
+                    or box["width"] < min(WIDTHS[width] - 60, 500)
+                    or box["x"] + box["width"] > WIDTHS[width]
+                ):
+                    problems.append(f"{url}: the job map is {box} in a {WIDTHS[width]} px window")
             page.evaluate(axe_source)
             result = page.evaluate(
                 "async () => (await axe.run(document, {resultTypes: ['violations']})).violations"

@@ -114,12 +114,20 @@ def test_duplicate_code(manager):
 
 
 @pytest.mark.django_db
-@pytest.mark.parametrize("who", ["viewer", "technician", "signatory"])
-def test_only_managers_plan_jobs(request, who):
+@pytest.mark.parametrize("who", ["viewer", "signatory"])
+def test_only_technicians_and_managers_plan_jobs(request, who):
     user = request.getfixturevalue(who)
     with pytest.raises(PermissionDeniedError):
         job_create(actor=user, data=job_data())
     assert Job.objects.count() == 0
+
+
+@pytest.mark.django_db
+@pytest.mark.parametrize("who", ["technician", "manager"])
+def test_party_chiefs_and_managers_create_and_edit_jobs(request, who):
+    user = request.getfixturevalue(who)
+    job = job_create(actor=user, data=job_data())
+    assert job_update(actor=user, code=job.code, expected_version=1, changes={"notes": "by " + who}).version == 2
 
 
 @pytest.mark.django_db

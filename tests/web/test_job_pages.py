@@ -52,7 +52,10 @@ def test_job_list_and_page_for_a_viewer(client, viewer, scenario):
     assert 'data-code="BASE-N"' in ranked and 'data-code="OLD-1"' not in ranked
     excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
     assert 'Excluded marks: <span class="num">2</span>' in excluded
-    assert 'not_active <span class="num">1</span>' in excluded and "sky_obstructed" in excluded
+    # In words, each mark counted once (the counts add up to the number excluded); no rule codes shown.
+    assert '<li><span class="num">1</span>: the mark is retired or recorded destroyed' in excluded
+    assert '<li><span class="num">1</span>: its sky view is recorded as obstructed' in excluded
+    assert "not_active" not in body and "sky_obstructed" not in body and "<code>" not in excluded
     assert 'data-code="OLD-1"' in excluded and 'data-code="SKY-1"' in excluded
     assert "the mark is retired or recorded destroyed" in excluded
     assert "<details open" not in body  # collapsed: readable without JavaScript, one click to open
@@ -72,13 +75,14 @@ def test_long_candidate_lists_fold_into_details(client, viewer, db):
     body = client.get("/jobs/J-MANY/").content.decode()
     top, rest = body.split('<details class="more more-usable">')
     top_table = top.split('<table class="ranked">')[1].split("</table>")[0]
-    rest_table = rest.split("</details>")[0]
+    rest_table = rest.split('<table class="ranked">')[1].split("</table>")[0]
     assert top_table.count("<tr data-code=") == 25 and rest_table.count("<tr data-code=") == 5
     assert 'Show all <span class="num">30</span> usable candidates' in rest
     ranks = [int(r) for r in re.findall(r'<tr data-code="[^"]+">\s*<td class="num">(\d+)</td>', top_table + rest_table)]
     assert ranks == list(range(1, 31))
     excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
-    assert 'last_visit_destroyed <span class="num">1</span>' in excluded and 'data-code="GONE-1"' in excluded
+    assert '<span class="num">1</span>: the last visit found the mark destroyed' in excluded
+    assert 'data-code="GONE-1"' in excluded and "last_visit_destroyed" not in body
     # The map frames the point and its nearest marks: the farther ones are counted in the caption.
     outside = re.search(r'<span class="num">(\d+)</span> other marks within the search radius lie outside', body)
     assert outside is not None and int(outside.group(1)) >= 10
@@ -258,7 +262,7 @@ def test_any_audited_write_invalidates_the_cached_screening(client, viewer, tech
         after = client.get("/jobs/J-WEB/").content.decode()
         assert spy.call_count == 2
         excluded = after.split('<details class="more more-excluded">')[1].split("</details>")[0]
-        assert 'data-code="BASE-N"' in excluded and "last_visit_destroyed" in excluded
+        assert 'data-code="BASE-N"' in excluded and "the last visit found the mark destroyed" in excluded
         client.get("/jobs/J-WEB/")
         assert spy.call_count == 2
         # A job change (new version) invalidates too, and the page shows the new tolerance.
@@ -314,7 +318,7 @@ def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, e
     assert 'class="dh-note no-site-heights"' in body and "the site has no heights" in body
     assert "|Δh| (m)" not in body and 'class="num dh"' not in body  # no column of dashes
     legend = body.split('<span class="budget-terms">')[1].split("</span>")[0]
-    ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
+    ranked = body.split('<details class="budget-columns">')[1].split('<table class="budget">')[1].split("</table>")[0]
     from django.utils.html import escape
 
     for _term, words in BUDGET_TERM_DESCRIPTIONS:
@@ -322,3 +326,167 @@ def test_no_site_heights_note_and_budget_term_legend(client, viewer, scenario, e
         assert f'title="{escape(words)}"' in ranked  # tooltip on the budget column headers
     # The per-mark base tooltip names the covariance origin of that mark's base term.
     assert "published position&#x27;s σ from its covariance (horizontal √λmax" in ranked
+
+
+# ----------------------------------------------------------------------------- issue 10, items 4–7
+
+
+def test_job_list_shows_each_jobs_answer_from_the_screening(client, viewer, scenario, empty_cache):
+    from registry.services.screening.cache import job_screen_cached
+    from registry.services.screening.present import job_answer
+
+    client.force_login(viewer)
+    body = client.get("/jobs/").content.decode()
+    answer = job_answer(job_screen_cached(actor=viewer, code="J-WEB"))
+    # The list repeats the screening's own answer and worst figures (no rule of its own).
+    assert answer["words"] in body
+    assert answer["kind"] in ("one", "several", "none")
+    if answer["worst_h95_mm"] is not None:
+        assert f"{answer['worst_h95_mm']:.1f} / {answer['worst_v95_mm']:.1f}" in body
+    # Tight tolerances: nothing covers; loose ones: one base does.
+    Job.objects.filter(code="J-WEB").update(tol_h_mm=1.0, tol_v_mm=1.0, version=9)
+    body = client.get("/jobs/").content.decode()
+    assert "cannot be covered" in body and "state-answer-none" in body
+    Job.objects.filter(code="J-WEB").update(tol_h_mm=500.0, tol_v_mm=500.0, version=10)
+    body = client.get("/jobs/").content.decode()
+    assert "covered by one base (BASE-N)" in body and "state-answer-one" in body
+
+
+def test_technician_creates_and_edits_jobs_on_page_and_api(client, technician, scenario):
+    client.force_login(technician)
+    assert "New job" in client.get("/jobs/").content.decode()
+    assert "Edit job" in client.get("/jobs/J-WEB/").content.decode()
+    r = client.get("/jobs/J-WEB/edit/")
+    assert r.status_code == 200
+    r = client.patch(
+        "/api/jobs/J-WEB/",
+        data=json.dumps({"name": "Renamed by the party chief", "version": 1}),
+        content_type="application/json",
+    )
+    assert r.status_code == 200, r.content
+    assert Job.objects.get(code="J-WEB").name == "Renamed by the party chief"
+
+
+def test_job_planning_rule_lives_in_the_service(viewer, technician, manager, scenario):
+    from registry.errors import PermissionDeniedError
+    from registry.services.jobs import job_update, may_plan_jobs
+
+    assert not may_plan_jobs(viewer) and may_plan_jobs(technician) and may_plan_jobs(manager)
+    with pytest.raises(PermissionDeniedError):
+        job_update(actor=viewer, code="J-WEB", expected_version=1, changes={"name": "x"})
+    job = job_update(actor=technician, code="J-WEB", expected_version=1, changes={"name": "Tech edit"})
+    assert job.version == 2
+
+
+def test_job_page_leads_with_the_answer_and_map_budget_behind_a_toggle(client, viewer, scenario, empty_cache):
+    client.force_login(viewer)
+    body = client.get("/jobs/J-WEB/").content.decode()
+    main = body.split("<h1")[1]
+    # Order: the answer, then the map, then the chosen bases, then the job's settings, then the ranked list.
+    positions = [main.index(h) for h in ('id="h-result"', 'id="h-map"', 'id="h-chosen"', 'id="h-job"', 'id="h-ranked"')]
+    assert positions == sorted(positions)
+    assert 'class="state state-answer-' in main.split('id="h-map"')[0]
+    # The ranked table has no per-term columns; they sit in a closed <details> (works without JavaScript).
+    ranked = body.split('<table class="ranked">')[1].split("</table>")[0]
+    assert "Horizontal σ per axis" not in ranked and ">drift<" not in ranked
+    budget = body.split('<details class="budget-columns">')[1].split("</details>")[0]
+    assert "<summary>Error budget per term" in budget and "Horizontal σ per axis" in budget
+    assert budget.count("<tr data-code=") == ranked.count("<tr data-code=")
+    # Exclusion counts add up to the number excluded.
+    excluded = body.split('<details class="more more-excluded">')[1].split("</details>")[0]
+    counts = [int(n) for n in re.findall(r'<li><span class="num">(\d+)</span>:', excluded)]
+    total = int(re.search(r'Excluded marks: <span class="num">(\d+)</span>', excluded).group(1))
+    assert sum(counts) == total == 2
+
+
+def _new_job_post(**site):
+    base = {
+        "code": "J-SITE",
+        "name": "Site by other means",
+        "status": "planning",
+        "frame_epsg": "6319",
+        "epoch_yr": "2010.0",
+        "tol_h_mm": "30",
+        "tol_v_mm": "50",
+        "rtk_combination": "additive",
+        "rtk_h_meaning": "per_axis",
+        "site_geojson": "",
+    }
+    return {**base, **site}
+
+
+def test_site_typed_as_dms_point(client, technician, db):
+    client.force_login(technician)
+    r = client.post("/jobs/new/", _new_job_post(site_lat_deg="45 12 00.0 N", site_lon_deg="110 36 00.0 W"))
+    assert r.status_code == 302, r.content.decode()[:3000]
+    job = Job.objects.get(code="J-SITE")
+    assert job.site_geojson["type"] == "Point"
+    lon, lat = job.site_geojson["coordinates"][:2]
+    assert lat == pytest.approx(45.2, abs=1e-12) and lon == pytest.approx(-110.6, abs=1e-12)
+
+
+def test_site_uploaded_as_kml_and_gpx(client, technician, db):
+    from django.core.files.uploadedfile import SimpleUploadedFile
+
+    client.force_login(technician)
+    kml = (
+        b'<?xml version="1.0"?><kml xmlns="http://www.opengis.net/kml/2.2"><Placemark><Polygon><outerBoundaryIs>'
+        b"<LinearRing><coordinates>-110.60,45.20,1500 -110.59,45.20,1500 -110.59,45.21,1500 -110.60,45.21,1500 "
+        b"-110.60,45.20,1500</coordinates></LinearRing></outerBoundaryIs></Polygon></Placemark></kml>"
+    )
+    r = client.post("/jobs/new/", {**_new_job_post(), "site_file": SimpleUploadedFile("site.kml", kml)})
+    assert r.status_code == 302, r.content.decode()[:3000]
+    ring = Job.objects.get(code="J-SITE").site_geojson["coordinates"][0]
+    assert ring[0] == [-110.60, 45.20] and len(ring) == 5  # heights from the KML are not read
+    gpx = (
+        b'<gpx version="1.1" xmlns="http://www.topografix.com/GPX/1/1"><trk><trkseg>'
+        b'<trkpt lat="45.20" lon="-110.60"/><trkpt lat="45.20" lon="-110.59"/><trkpt lat="45.21" lon="-110.59"/>'
+        b"</trkseg></trk></gpx>"
+    )
+    r = client.post("/jobs/new/", {**_new_job_post(code="J-GPX"), "site_file": SimpleUploadedFile("walk.gpx", gpx)})
+    assert r.status_code == 302
+    ring = Job.objects.get(code="J-GPX").site_geojson["coordinates"][0]
+    assert len(ring) == 4 and ring[0] == ring[-1]  # closed for the polygon
+
+
+@pytest.mark.parametrize(
+    "name, content, words",
+    [
+        ("site.kml", b"<kml><Placemark><Polygon>", "not well-formed XML"),
+        ("site.gpx", b'<!DOCTYPE gpx [<!ENTITY a "aaaa">]><gpx>&a;</gpx>', "document type or entities"),
+        ("site.gpx", b"<gpx><wpt lat='1' lon='2'/><wpt lat='1' lon='3'/></gpx>", "2 waypoints and no track"),
+        ("site.txt", b"hello", "GeoJSON (.geojson), KML (.kml) or GPX (.gpx)"),
+        ("site.geojson", b'{"type": "LineString", "coordinates": [[0, 0], [1, 1]]}', "no Point or Polygon"),
+    ],
+)
+def test_bad_site_files_give_a_message_and_change_nothing(client, technician, db, name, content, words):
+    from django.core.files.uploadedfile import SimpleUploadedFile
+
+    client.force_login(technician)
+    r = client.post("/jobs/new/", {**_new_job_post(), "site_file": SimpleUploadedFile(name, content)})
+    assert r.status_code == 400
+    assert words in r.content.decode()
+    assert not Job.objects.exists()
+
+
+def test_site_given_two_ways_is_refused(client, technician, db):
+    client.force_login(technician)
+    r = client.post(
+        "/jobs/new/",
+        _new_job_post(
+            site_geojson='{"type": "Point", "coordinates": [-110.6, 45.2]}', site_lat_deg="45.2", site_lon_deg="-110.6"
+        ),
+    )
+    assert r.status_code == 400 and "one way only" in r.content.decode() and not Job.objects.exists()
+
+
+def test_job_form_groups_fields_and_marks_required_ones(client, technician, db):
+    client.force_login(technician)
+    body = client.get("/jobs/new/").content.decode()
+    assert 'enctype="multipart/form-data"' in body
+    legends = [t.strip() for t in re.findall(r"<legend>([^<]+)", body)]
+    assert legends == ["The job", "The site", "Deliverable", "RTK error model and setup", "Screening limits"]
+    assert '<legend>The site <span class="req">required</span></legend>' in body
+    for label in ("Job code", "Name", "Deliverable epoch (decimal year)"):
+        assert re.search(re.escape(label) + r'[^<]*<span class="req">required</span>', body), label
+    assert not re.search(r'Client <span class="req">', body)

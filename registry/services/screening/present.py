@@ -179,12 +179,19 @@ def page_figures(result: ScreeningResult) -> dict[str, Any]:
     for c in result.candidates:
         role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
         (excluded_rows if c.excluded else usable_rows).append(candidate_row(c, role))
+    # Each excluded mark is counted once, under the first reason the rules give it, so the counts add up to
+    # the number excluded; how many of them have further reasons is said beside it.
     reason_counts: dict[str, int] = {}
+    further: dict[str, int] = {}
     for row in excluded_rows:
-        for code, _ in row["reasons"]:
-            reason_counts[code] = reason_counts.get(code, 0) + 1
+        if not row["reasons"]:
+            continue
+        first = row["reasons"][0][0]
+        reason_counts[first] = reason_counts.get(first, 0) + 1
+        if len(row["reasons"]) > 1:
+            further[first] = further.get(first, 0) + 1
     by_reason = [
-        {"code": code, "words": rules.REASON_WORDS[code], "count": n}
+        {"code": code, "words": rules.REASON_WORDS[code], "count": n, "with_further": further.get(code, 0)}
         for code, n in sorted(reason_counts.items(), key=lambda kv: (-kv[1], kv[0]))
     ]
     return {
@@ -218,3 +225,60 @@ def service_shares(result: ScreeningResult) -> list[dict[str, Any]]:
         {"base": c.mark.code, "share": round(float(((result.assignment == i) & cells).sum()) / n, 4)}
         for i, c in enumerate(result.chosen)
     ]
+
+
+def job_answer(result: ScreeningResult) -> dict[str, Any]:
+    """The screening's answer in one line for the jobs list and the head of the job page.
+
+    ``kind``: ``"one"`` (one base covers the whole site), ``"several"`` (the chosen bases together cover it,
+    each part from the base that serves it), ``"none"`` (the site cannot be covered from the marks available).
+    ``worst_h95_mm`` / ``worst_v95_mm``: the worst rover figure over the site — from the one base, from the
+    covering pair (each point from the better base), or, for a wider cover or no cover, the worst over the
+    site of the best base at each point (what switching bases could reach). The figures are the screening's
+    own; nothing is decided here that the screening has not decided.
+    """
+    core = result.core
+    usable = result.usable_candidates
+    if core is None or not usable:
+        return {
+            "kind": "none",
+            "bases": 0,
+            "words": "cannot be covered: no usable base near the site",
+            "worst_h95_mm": None,
+            "worst_v95_mm": None,
+        }
+    best = usable[0]
+    if best.covers_site:
+        return {
+            "kind": "one",
+            "bases": 1,
+            "words": f"covered by one base ({best.mark.code})",
+            "worst_h95_mm": _mm(best.h95_mm),
+            "worst_v95_mm": _mm(best.v95_mm),
+        }
+    n = len(result.chosen)
+    if n == 2 and result.pair is not None and core.pair_worst_margin_mm >= 0:
+        return {
+            "kind": "several",
+            "bases": 2,
+            "words": "needs 2 bases",
+            "worst_h95_mm": _mm(core.pair_worst_h95_mm),
+            "worst_v95_mm": _mm(core.pair_worst_v95_mm),
+        }
+    worst_h, worst_v = _mm(core.achievable_h95_mm), _mm(core.achievable_v95_mm)
+    if n > 2 and core.cover_coverage >= 1.0:
+        return {
+            "kind": "several",
+            "bases": n,
+            "words": f"needs {n} bases",
+            "worst_h95_mm": worst_h,
+            "worst_v95_mm": worst_v,
+        }
+    reach = f"{core.any_coverage * 100:.0f} % of the site within tolerance"
+    return {
+        "kind": "none",
+        "bases": 0,
+        "words": f"cannot be covered ({reach})",
+        "worst_h95_mm": worst_h,
+        "worst_v95_mm": worst_v,
+    }
