@@ -13,10 +13,12 @@ from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
 
-from registry.models import Position
+from registry.models import CheckStage, Position
 from registry.roles import Ability
 from registry.services.access import access_mark_by_code
 from registry.services.combination import USABLE_STATES, positions_combine, positions_velocity
+from registry.services.movement import latest_check
+from registry.services.occupation_batch import movement_words
 from registry.web.views import ability_required
 
 ACTIONS = {"combine": positions_combine, "velocity": positions_velocity}
@@ -51,12 +53,29 @@ def combine_page(request: HttpRequest, code: str) -> HttpResponse:
     made_id = request.GET.get("made", "")
     if made_id.isdigit():
         made = Position.objects.filter(mark=mark, pk=int(made_id)).first()
+    made_check = ""
+    if made is not None:
+        check = latest_check(made.pk, CheckStage.PROPOSED)
+        if check is not None:
+            d = (
+                None
+                if check.statistic is None
+                else tuple(v * 1000.0 for v in (check.d_east_m, check.d_north_m, check.d_up_m))
+            )
+            made_check = movement_words(check.verdict, d)
     solutions = list(
         Position.objects.filter(mark=mark, state__in=USABLE_STATES).order_by("frame_epsg", "epoch_yr", "pk")
     )
     return render(
         request,
         "registry/combine.html",
-        {"mark": mark, "solutions": solutions, "errors": errors, "chosen": chosen, "made": made},
+        {
+            "mark": mark,
+            "solutions": solutions,
+            "errors": errors,
+            "chosen": chosen,
+            "made": made,
+            "made_check": made_check,
+        },
         status=status,
     )

@@ -58,6 +58,7 @@ def test_manager_combines_and_sees_the_unit_weight_test(sessions, signed_in, man
     assert f"Proposed: position {proposal.pk}" in page
     assert f"s0 = {s0:.3f}" in page and "with 6 degrees of freedom" in page
     assert "the spread agrees with the stated sigmas" in page
+    assert "Movement check against the published position: nothing to compare with." in page  # none published
     assert AuditEvent.objects.filter(action="positions_combine", object_id=str(proposal.pk)).exists()
 
 
