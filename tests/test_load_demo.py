@@ -407,3 +407,37 @@ def test_demo_geoid_heights_are_egm96_heights_of_itrf2014_ellipsoidal_heights():
         # The fit's residual (≤ 0.051 m) and the 1 mm rounding of the stored height.
         assert rec.height_m == pytest.approx(h_itrf - n, abs=0.053)
         assert abs(rec.height_m - (m.h_m - n)) > 0.5  # what the old rule (NAD83 height − N) gave
+
+
+def test_demo_proposals_have_their_movement_check(db, fast_hashing):
+    """Every demo proposal carries the check stored when it was proposed (movement service), dated with it.
+
+    Where the proposal and the published position are in the same frame at the same epoch, the stored
+    differences equal pyproj.Geod's (GRS80, a reference library) to 0.1 mm.
+    """
+    from registry.models import MovementCheck
+
+    load()
+    proposals = list(Position.objects.filter(state="proposed"))
+    assert proposals
+    direct = 0
+    for p in proposals:
+        checks = list(MovementCheck.objects.filter(position=p))
+        assert [c.stage for c in checks] == ["proposed"], p.pk
+        check = checks[0]
+        assert check.created_at == p.created_at
+        published = p.mark.positions.filter(state="published")
+        if not published.exists():
+            assert check.verdict == "not_compared" and check.compared_with_id is None
+            continue
+        assert check.compared_with.state == "published" and check.compared_with.mark_id == p.mark_id
+        q = check.compared_with
+        if q.frame_epsg == p.frame_epsg and abs(q.epoch_yr - p.epoch_yr) < 1e-3:
+            e, n, u = enu_m(q.lat_deg, q.lon_deg, q.h_m, p.lat_deg, p.lon_deg, p.h_m)
+            assert (check.d_east_m, check.d_north_m, check.d_up_m) == pytest.approx((e, n, u), abs=1e-4)
+            direct += 1
+        else:
+            assert check.verdict in ("no_movement", "possible_movement", "not_compared")
+    # the reset path deletes them with the proposals
+    load("--reset")
+    assert MovementCheck.objects.filter(position__state="proposed").count() == len(proposals)

@@ -380,7 +380,11 @@ def mark_detail(*, code: str) -> MarkDetail:
     # Each occupation's result compared with the published position: the newest stored movement check.
     checks: dict[int, MovementCheck] = {}
     result_ids = [o.result_position_id for o in occupations if o.result_position_id]
-    for c in MovementCheck.objects.filter(position_id__in=result_ids).order_by("position_id", "-created_at", "-id"):
+    for c in (
+        MovementCheck.objects.filter(position_id__in=result_ids)
+        .select_related("compared_with")
+        .order_by("position_id", "-created_at", "-id")
+    ):
         checks.setdefault(c.position_id, c)
     for o in occupations:
         o.attachment_list = by_occupation.get(o.pk, [])

@@ -19,8 +19,8 @@ same file twice does not double the occupations.
 Movement check hook: every result is a proposed position made by ``position_propose``; the check of
 a proposal against the mark's published position (frame and epoch, χ² test) belongs to the position
 services and runs wherever they run it, for a batch as for one page. This module does not compare
-positions itself; :func:`row_check` is where a row's check verdict is picked up for the preview
-(nothing until the position services store one).
+positions itself beyond :func:`row_check`, which asks the movement service for each row's verdict
+against the published position (computed for the preview and the command's output, not stored).
 """
 
 from __future__ import annotations
@@ -36,11 +36,12 @@ from django.db import DatabaseError, transaction
 from registry.errors import RegistryError
 from registry.io.common import RowError
 from registry.io.occupations_csv import DEFAULT_MAX_ROWS, OccupationRow, parse_occupations_csv
-from registry.models import Occupation, OccupationMethod, Position
+from registry.models import MovementVerdict, Occupation, OccupationMethod, Position
 from registry.roles import Ability
 from registry.services.access import require_ability
 from registry.services.fieldwork import occupation_record
 from registry.services.imports import ImportRejected
+from registry.services.movement import comparison_target, movement_compare
 from registry.services.positions import position_propose
 
 
@@ -83,14 +84,35 @@ def _max_rows() -> int:
     return int(getattr(settings, "REGISTRY", {}).get("BATCH_MAX_ROWS", DEFAULT_MAX_ROWS))
 
 
+def movement_words(verdict: str, d_mm: tuple[float, float, float] | None) -> str:
+    """A movement verdict in words, with the differences (E/N/U, mm) when there was something to compare."""
+    label = str(MovementVerdict(verdict).label)
+    if d_mm is None:
+        return label
+    e, n, u = (round(v, 1) + 0.0 for v in d_mm)  # + 0.0: no "-0.0"
+    return f"{label}: d E {e:+.1f} mm, N {n:+.1f} mm, U {u:+.1f} mm"
+
+
 def row_check(position: Position | None) -> dict[str, Any] | None:
-    """The movement check's verdict on a row's result, once the position services record one (hook)."""
+    """A row's result compared with the mark's published position (movement service; computed, not stored).
+
+    ``position_propose`` stores its own check with the proposal; the preview shows this comparison, run
+    again by ``registry.services.movement`` so that it reads the same whether or not the rows are kept.
+    """
     if position is None:
         return None
-    check = getattr(position, "movement_check", None)
-    if check is None:
-        return None
-    return {"verdict": getattr(check, "verdict", ""), "summary": str(check)}
+    outcome = movement_compare(position=position, published=comparison_target(position))
+    d_mm = None
+    if outcome.result is not None:
+        d_mm = tuple(round(float(v) * 1000.0, 1) for v in outcome.result.d_enu_m)
+    return {
+        "verdict": outcome.verdict,
+        "words": movement_words(outcome.verdict, d_mm),
+        "d_enu_mm": d_mm,
+        "p_value": None if outcome.result is None else float(outcome.result.p_value),
+        "reason": outcome.reason,
+        "warnings": list(outcome.warnings),
+    }
 
 
 def _errors(exc: Exception, row: OccupationRow, *, prefix: str = "") -> list[RowError]:

@@ -23,6 +23,7 @@ from django.db import IntegrityError, transaction
 from django.utils import timezone
 
 from registry.errors import Conflict
+from registry.geodesy.frames import format_epoch
 from registry.models import CheckStage, Mark, MarkStatus, MovementVerdict, Position, PositionState
 from registry.roles import Ability
 from registry.services import position_rules as rules
@@ -189,9 +190,10 @@ def position_propose(*, actor, mark_code: str, data: dict, suspect_on_movement: 
             mark_make_suspect(
                 mark=mark,
                 reason=(
-                    f"position {position.pk}, proposed on {timezone.now().date().isoformat()}, differs from the "
-                    f"published position {check.compared_with_id} more than their uncertainties allow "
-                    "(possible movement)"
+                    f"a position proposed on {timezone.now().date().isoformat()} (EPSG:{position.frame_epsg}, epoch "
+                    f"{format_epoch(position.epoch_yr)}) differs from the published position (EPSG:"
+                    f"{check.compared_with.frame_epsg}, epoch {format_epoch(check.compared_with.epoch_yr)}) more "
+                    "than their uncertainties allow (possible movement)"
                 ),
                 since=timezone.now().date(),
                 actor=actor,

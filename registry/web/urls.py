@@ -5,6 +5,7 @@ from django.urls import path
 
 from registry.web import (
     auth_views,
+    combine_views,
     convert_views,
     document_views,
     fieldwork_views,
@@ -49,6 +50,7 @@ urlpatterns: list = [
     path("marks/<str:code>/clear-suspect/", fieldwork_views.mark_clear_suspect_page, name="mark-clear-suspect"),
     path("marks/<str:code>/positions/new/", position_views.position_new, name="position-create"),
     path("proposals/", proposal_views.proposals_page, name="proposals"),
+    path("marks/<str:code>/combine/", combine_views.combine_page, name="mark-combine"),
     path(
         "marks/<str:code>/positions/<int:position_id>/<str:action>/",
         position_views.position_decide,

@@ -140,3 +140,66 @@ def test_command(technician, marks, tmp_path):
     assert "line 2 [NOPE-1]" in err.getvalue()
     call_command("import_occupations", str(SAMPLE), "--as", technician.username, stdout=out)
     assert Occupation.objects.count() == 3
+
+
+def test_preview_compares_each_result_with_the_published_position(manager, technician, marks, tmp_path):
+    """Each row's result against the published position, in words (movement service, computed in the preview).
+
+    Check value: ASH-012 is published 0.9 µdeg of latitude south of the file's result; the north difference
+    is the geodesic distance between the two points on GRS80 (pyproj.Geod, a reference library), about 100 mm,
+    far outside σ 8 mm + 5 mm → possible movement. CRV-031 is published 4 mm higher than its result (σU 6.3 and
+    10 mm) → no movement shown. CRV-104's row has no result (nothing to compare); a mark without a published
+    position gives "nothing to compare with".
+    """
+    from pyproj import Geod
+
+    from tests.services._data import make_published
+
+    make_published(
+        manager,
+        technician,
+        "CRV-031",
+        frame_epsg=6319,
+        epoch_yr=2025.437,
+        lat_deg=45.144193920,
+        lon_deg=-110.654531070,
+        h_m=1419.9611,
+    )
+    make_published(
+        manager,
+        technician,
+        "ASH-012",
+        frame_epsg=6319,
+        epoch_yr=2025.439,
+        lat_deg=45.193411030 - 9e-7,
+        lon_deg=-110.612248290,
+        h_m=1388.1556,
+    )
+    before = counts()
+    summary = occupation_batch_import(actor=technician, content=SAMPLE.read_bytes(), filename="s.csv", dry_run=True)
+    assert counts() == before
+    checks = {r.mark: r.check for r in summary.rows}
+    assert checks["CRV-104"] is None
+    assert checks["CRV-031"]["verdict"] == "no_movement"
+    assert checks["CRV-031"]["words"].startswith("no movement shown: d E +0.0 mm, N +0.0 mm, U -4.0 mm")
+    _, _, north_m = Geod(ellps="GRS80").inv(-110.612248290, 45.193411030 - 9e-7, -110.612248290, 45.193411030)
+    ash = checks["ASH-012"]
+    assert ash["verdict"] == "possible_movement"
+    assert ash["d_enu_mm"][1] == pytest.approx(north_m * 1000.0, abs=0.1)
+    assert ash["words"].startswith("possible movement: d E +0.0 mm, N +100.0 mm")
+    out = io.StringIO()
+    call_command("import_occupations", str(SAMPLE), "--as", technician.username, "--dry-run", stdout=out)
+    text = out.getvalue()
+    assert "line 3, ASH-012: against the published position, possible movement: d E +0.0 mm, N +100.0 mm" in text
+    assert "line 2, CRV-031: against the published position, no movement shown" in text
+    assert counts() == before
+
+
+def test_preview_says_nothing_to_compare_with(technician, marks):
+    summary = occupation_batch_import(actor=technician, content=SAMPLE.read_bytes(), filename="s.csv", dry_run=True)
+    checks = {r.mark: r.check for r in summary.rows}
+    assert checks["CRV-031"]["words"] == "nothing to compare with" == checks["ASH-012"]["words"]
+    assert (
+        "nothing is published" in checks["CRV-031"]["reason"].lower()
+        or "no position" in checks["CRV-031"]["reason"].lower()
+    )

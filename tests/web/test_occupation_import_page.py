@@ -62,3 +62,26 @@ def test_forged_token_is_refused(technician, marks, signed_in):
     response = signed_in(technician).post(reverse("web:occupation-import"), {"token": "abc:def"})
     assert response.status_code == 400 and "upload it again" in response.content.decode()
     assert Occupation.objects.count() == 0
+
+
+def test_preview_shows_each_result_against_the_published_position(manager, technician, marks, signed_in):
+    from tests.services._data import make_published
+
+    make_published(
+        manager,
+        technician,
+        "ASH-012",
+        frame_epsg=6319,
+        epoch_yr=2025.439,
+        lat_deg=45.193411030 - 9e-7,
+        lon_deg=-110.612248290,
+        h_m=1388.1556,
+    )
+    client = signed_in(technician)
+    before = counts()
+    response = client.post(reverse("web:occupation-import"), {"file": SimpleUploadedFile("s.csv", SAMPLE.read_bytes())})
+    page = response.content.decode()
+    assert "against the published position" in page
+    assert "<strong>possible movement: d E +0.0 mm, N +100.0 mm, U +0.0 mm</strong>" in page
+    assert "nothing to compare with" in page  # CRV-031 has no published position
+    assert counts() == before

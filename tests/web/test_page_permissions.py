@@ -11,7 +11,11 @@ from registry.models import AuditEvent, Mark
 
 ROLES = ["viewer", "technician", "manager", "signatory", "admin_user_role"]
 READ_PAGES = [("web:mark-list", {}), ("web:mark-detail", {"code": "KV-002"})]
-MANAGE_PAGES = [("web:mark-create", {}), ("web:mark-edit", {"code": "KV-002"})]
+MANAGE_PAGES = [
+    ("web:mark-create", {}),
+    ("web:mark-edit", {"code": "KV-002"}),
+    ("web:mark-combine", {"code": "KV-001"}),
+]
 
 
 def _user(request, role):

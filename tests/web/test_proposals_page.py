@@ -66,4 +66,11 @@ def test_occupation_row_shows_its_result_compared_with_the_published_position(ke
     # the scenario's occupation produced the 2020 position, which was proposed against the 2009 one
     page = signed_in(viewer).get(reverse("web:mark-detail", kwargs={"code": "KV-001"})).content.decode()
     section = page[page.index('id="h-occupations"') :]
-    assert "possible movement</strong> against the published position" in section and "T = " in section
+    assert "possible movement</strong> against the published position (" in section and "T = " in section
+    # the compared position is named in words and linked to its row (superseded since: said so)
+    check = kestrel["occupation"].result_position.movement_checks.get(stage="proposed")
+    assert check.compared_with_id == kestrel["first"].pk
+    assert (
+        f'href="#position-{check.compared_with_id}"' in section
+        and 'since <span class="state state-superseded">superseded</span>)' in section
+    )

@@ -65,6 +65,9 @@ class Command(BaseCommand):
             raise CommandError(f"{path.name}: " + " ".join(exc.messages)) from None
         except RegistryError as exc:
             raise CommandError(f"{path.name}: {exc.message}") from None
+        for row in summary.rows:
+            if row.check is not None:
+                self.stdout.write(f"line {row.line}, {row.mark}: against the published position, {row.check['words']}")
         verb = "would record" if summary.dry_run else "recorded"
         marks = len({r.mark for r in summary.rows})
         self.stdout.write(

@@ -38,8 +38,10 @@ from registry.models import (
     HeightRecord,
     Job,
     Mark,
+    MovementCheck,
     Occupation,
     Position,
+    PositionState,
     SignatoryProfile,
     SigningCertificate,
     Visit,
@@ -48,6 +50,7 @@ from registry.models.audit import GENESIS_HASH, row_hash_of
 from registry.models.marks import position_history_delete_allowed
 from registry.roles import ensure_roles
 from registry.services.audit import snapshot
+from registry.services.movement import CheckStage, comparison_target, movement_check_store, movement_compare
 from registry.services.suspect import suspects_from_history
 
 REGISTRY_START = dt.datetime(2011, 6, 1, tzinfo=dt.UTC)
@@ -209,6 +212,16 @@ class Command(BaseCommand):
             row.created_at = p.created_at
             row.superseded_by = by_key[p.superseded_by_key] if p.superseded_by_key else None
         Position.objects.bulk_update(rows, ["created_at", "superseded_by"], batch_size=500)
+        # Proposals get the movement check the position services store when a position is proposed
+        # (services.movement), against the published position as the demo leaves it, dated with the proposal.
+        for row in rows:
+            if row.state == PositionState.PROPOSED:
+                check = movement_check_store(
+                    outcome=movement_compare(position=row, published=comparison_target(row)),
+                    stage=CheckStage.PROPOSED,
+                    actor=technician,
+                )
+                MovementCheck.objects.filter(pk=check.pk).update(created_at=row.created_at)
 
         occupations = [
             Occupation(
@@ -412,6 +425,7 @@ class Command(BaseCommand):
                 counts["visits"] = Visit.objects.filter(mark__in=marks).delete()[0]
                 counts["height records"] = HeightRecord.objects.filter(mark__in=marks).delete()[0]
                 Position.objects.filter(mark__in=marks).update(superseded_by=None)
+                MovementCheck.objects.filter(Q(position__mark__in=marks) | Q(compared_with__mark__in=marks)).delete()
                 with _position_guard_lifted(), position_history_delete_allowed():
                     counts["positions"] = Position.objects.filter(mark__in=marks).delete()[0]
                 counts["marks"] = marks.delete()[1].get("registry.Mark", 0)
