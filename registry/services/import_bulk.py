@@ -32,10 +32,11 @@ from django.core.exceptions import ValidationError
 from django.utils import timezone
 
 from registry.io.common import MarkRecord, RowError
-from registry.models import AuditEvent, Mark, MarkStatus, Position, PositionState
+from registry.models import AuditEvent, CheckStage, Mark, MarkStatus, MovementCheck, Position, PositionState
 from registry.services.audit import json_safe, snapshot
 from registry.services.limits import check_text_limits
 from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
+from registry.services.movement import check_summary, movement_check_build, movement_compare
 from registry.services.positions import _parse_position
 
 #: Rows per INSERT.
@@ -44,8 +45,16 @@ PUBLISH_NOTE = "published by import"
 
 
 def batch_eligible(group: list[MarkRecord]) -> bool:
-    """Whether a new mark's rows can take the batch path (no status step after its positions)."""
-    return group[0].mark.get("status") in (None, "", MarkStatus.ACTIVE, MarkStatus.RETIRED)
+    """Whether a new mark's rows can take the batch path.
+
+    No status step after its positions, and at most one position: a second position of the same mark is
+    compared with the first by the movement check (registry.services.movement), which the position
+    services run one by one; a first position has nothing to compare with, and its checks are stored here.
+    """
+    return (
+        group[0].mark.get("status") in (None, "", MarkStatus.ACTIVE, MarkStatus.RETIRED)
+        and sum(1 for record in group if record.position is not None) <= 1
+    )
 
 
 def _errors_of(exc: ValidationError, record: MarkRecord) -> list[RowError]:
@@ -167,6 +176,19 @@ def create_marks_in_batches(
             position.decided_at = now
             all_positions.append(position)
     Position.objects.bulk_create(all_positions, batch_size=BATCH)
+    # The movement checks the position services store on proposing and on publishing: a new mark's only
+    # position has nothing to compare with (batch_eligible), so both say so.
+    checks: dict[int, dict[str, MovementCheck]] = {}
+    rows_to_insert = []
+    for position in all_positions:
+        outcome = movement_compare(position=position, published=None)
+        by_stage = {
+            stage: movement_check_build(outcome=outcome, stage=stage, actor=actor)
+            for stage in (CheckStage.PROPOSED, CheckStage.PUBLISHED)
+        }
+        checks[position.pk] = by_stage
+        rows_to_insert.extend(by_stage.values())
+    MovementCheck.objects.bulk_create(rows_to_insert, batch_size=BATCH)
 
     events: list[AuditEvent] = []
     for mark, positions in planned:
@@ -174,6 +196,7 @@ def create_marks_in_batches(
         lat = lon = None
         for _record, position in positions:
             proposed = snapshot(position) | {"state": PositionState.PROPOSED, "decided_by_id": None, "decided_at": None}
+            proposed |= check_summary(checks[position.pk][CheckStage.PROPOSED])
             events.append(
                 _event(
                     audit_actor,
@@ -191,6 +214,7 @@ def create_marks_in_batches(
                 "supersedes_id": None,
                 "search_lat_deg": lat,
                 "search_lon_deg": lon,
+                **check_summary(checks[position.pk][CheckStage.PUBLISHED]),
             }
             events.append(
                 _event(audit_actor, "position_publish", position, mark, before=before, after=after, note=PUBLISH_NOTE)

@@ -255,6 +255,13 @@ def movement_compare(*, position: Position, published: Position | None) -> Movem
 
 def movement_check_store(*, outcome: MovementOutcome, stage: str, actor) -> MovementCheck:
     """Keep ``outcome`` for its (saved) position; call inside the caller's transaction."""
+    check = movement_check_build(outcome=outcome, stage=stage, actor=actor)
+    check.save(force_insert=True)
+    return check
+
+
+def movement_check_build(*, outcome: MovementOutcome, stage: str, actor) -> MovementCheck:
+    """The unsaved check row of ``outcome`` (the batch import saves many at once)."""
     r = outcome.result
     values: dict[str, Any] = {}
     if r is not None:
@@ -277,7 +284,7 @@ def movement_check_store(*, outcome: MovementOutcome, stage: str, actor) -> Move
             "added_sigma_north_m": outcome.added_sigma_enu_m[1],
             "added_sigma_up_m": outcome.added_sigma_enu_m[2],
         }
-    return MovementCheck.objects.create(
+    return MovementCheck(
         position=outcome.position,
         compared_with=outcome.compared_with,
         stage=stage,

@@ -15,7 +15,7 @@ from django.core.files.uploadedfile import SimpleUploadedFile
 from django.core.management import call_command
 from django.db import IntegrityError
 
-from registry.models import AuditEvent, ImportState, Mark, MarkImportRun, Position, PositionState
+from registry.models import AuditEvent, ImportState, Mark, MarkImportRun, MovementCheck, Position, PositionState
 from registry.services.imports import ERRORS_SHOWN, ImportRejected, mark_import
 from registry.services.marks import mark_create
 from registry.services.positions import position_propose, position_publish
@@ -79,7 +79,17 @@ def test_new_marks_are_written_in_batches_not_a_query_per_row(manager, django_as
 
 
 def _comparable(event: AuditEvent) -> tuple:
-    volatile = {"id", "mark", "mark_id", "created_at", "updated_at", "decided_at", "superseded_at", "supersedes_id"}
+    volatile = {
+        "id",
+        "mark",
+        "mark_id",
+        "created_at",
+        "updated_at",
+        "decided_at",
+        "superseded_at",
+        "supersedes_id",
+        "movement_check_id",
+    }
 
     def clean(d):
         return None if d is None else {k: v for k, v in d.items() if k not in volatile}
@@ -88,33 +98,27 @@ def _comparable(event: AuditEvent) -> tuple:
 
 
 def test_the_batch_path_writes_the_audit_rows_the_services_write(manager):
-    # Through the services, by hand: a mark with positions in two frames.
+    # Through the services, by hand: a new mark and its first position, proposed then published.
     a = mark_create(actor=manager, data={"code": "SVC-1", "name": "Invented", "monument": "disk_concrete"})
-    for frame, lat in ((7912, 45.2), (6319, 45.2000001)):
-        p = position_propose(
-            actor=manager,
-            mark_code=a.code,
-            data={
-                "frame_epsg": frame,
-                "epoch_yr": 2021.5,
-                "lat_deg": lat,
-                "lon_deg": -110.6,
-                "h_m": 1500.5,
-                "cov_ee_m2": (4 / 1000) ** 2,
-                "cov_nn_m2": (5 / 1000) ** 2,
-                "cov_uu_m2": (9 / 1000) ** 2,
-                "source": "demo",
-            },
-        )
-        position_publish(actor=manager, position_id=p.pk, note="published by import")
-    by_hand = [_comparable(e) for e in AuditEvent.objects.filter(mark=a).order_by("seq")]
-    # The same through the import's batch path.
-    text = csv_text(
-        [
-            "BAT-1,Invented,disk_concrete,7912,2021.5,45.2,-110.6,1500.5,4,5,9,demo",
-            "BAT-1,Invented,disk_concrete,6319,2021.5,45.2000001,-110.6,1500.5,4,5,9,demo",
-        ]
+    p = position_propose(
+        actor=manager,
+        mark_code=a.code,
+        data={
+            "frame_epsg": 7912,
+            "epoch_yr": 2021.5,
+            "lat_deg": 45.2,
+            "lon_deg": -110.6,
+            "h_m": 1500.5,
+            "cov_ee_m2": (4 / 1000) ** 2,
+            "cov_nn_m2": (5 / 1000) ** 2,
+            "cov_uu_m2": (9 / 1000) ** 2,
+            "source": "demo",
+        },
     )
+    position_publish(actor=manager, position_id=p.pk, note="published by import")
+    by_hand = [_comparable(e) for e in AuditEvent.objects.filter(mark=a).order_by("seq")]
+    # The same through the import's batch path (a new mark with one position takes it).
+    text = csv_text(["BAT-1,Invented,disk_concrete,7912,2021.5,45.2,-110.6,1500.5,4,5,9,demo"])
     mark_import(actor=manager, content=text.encode(), filename="one.csv")
     b = Mark.objects.get(code="BAT-1")
     batched = [_comparable(e) for e in AuditEvent.objects.filter(mark=b).order_by("seq")]
@@ -122,8 +126,12 @@ def test_the_batch_path_writes_the_audit_rows_the_services_write(manager):
     def rename(rows, code):
         return [tuple(str(x).replace(code, "CODE") for x in row) for row in rows]
 
+    assert [row[0] for row in batched] == ["mark_create", "position_propose", "position_publish"]
     assert rename(batched, "BAT-1") == rename(by_hand, "SVC-1")
-    assert (b.search_lat_deg, b.search_lon_deg) == (a.__class__.objects.get(pk=a.pk).search_lat_deg, -110.6)
+    # the movement checks the services store, one per stage, nothing to compare with
+    checks = MovementCheck.objects.filter(position__mark=b).order_by("stage")
+    assert [(c.stage, c.verdict) for c in checks] == [("proposed", "not_compared"), ("published", "not_compared")]
+    assert (b.search_lat_deg, b.search_lon_deg) == (45.2, -110.6)
     out = io.StringIO()
     call_command("verify_audit", stdout=out)
     assert "broken" not in out.getvalue().lower()
@@ -237,3 +245,20 @@ def test_progress_is_reported_in_words_before_the_writing(manager):
     assert any(w.startswith("checking 3 rows") for w, _ in seen)
     assert any(w.startswith("writing 3 marks") for w, _ in seen)
     assert all(0.0 <= f <= 1.0 for _, f in seen)
+
+
+def test_a_new_mark_with_two_positions_is_compared_by_the_services(manager):
+    """The second position of a new mark is checked against the first (services one by one, not the batch)."""
+    text = csv_text(
+        [
+            "TWO-1,Invented,disk_concrete,7912,2021.5,45.2,-110.6,1500.5,4,5,9,demo",
+            "TWO-1,Invented,disk_concrete,9989,2021.5,45.2,-110.6,1500.5,4,5,9,demo",
+        ]
+    )
+    mark_import(actor=manager, content=text.encode(), filename="two.csv")
+    mark = Mark.objects.get(code="TWO-1")
+    first = Position.objects.get(mark=mark, frame_epsg=7912)
+    second = Position.objects.get(mark=mark, frame_epsg=9989)
+    check = MovementCheck.objects.get(position=second, stage="published")
+    # ITRF2014 and ITRF2020 agree to a few mm at 2021.5 (EPSG/PROJ transformation): no movement shown
+    assert check.compared_with_id == first.pk and check.verdict == "no_movement"
