@@ -61,10 +61,8 @@ def test_visit_propose_check_publish(page, district, screenshot, tmp_path, chrom
     mpage = manager_context.new_page()
     sign_in(mpage, "mona", "pw-mona-123!", start="/marks/KV-002/")
     mpage.get_by_role("link", name="Check and publish").click()
-    expect(
-        mpage.get_by_role("heading", name="Compatibility with the published position (movement check)")
-    ).to_be_visible()
-    expect(mpage.locator("table.compat")).to_contain_text("Horizontal (E, N)")
+    expect(mpage.get_by_role("heading", name="Movement check against the published position")).to_be_visible()
+    expect(mpage.locator("table.compat")).to_contain_text("Smallest movement this check could detect")
     screenshot(mpage, "position-check")
     mpage.get_by_label("Note").fill("Re-observation agrees; published.")
     mpage.get_by_role("button", name="Publish this position").click()  # named by words, not its id
