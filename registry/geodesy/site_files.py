@@ -145,10 +145,11 @@ def _number(text, what: str) -> float:
 
 def _kml_coordinates(element: ET.Element) -> list[list[float]]:
     coords = _find_all(element, "coordinates")
-    if not coords or not (coords[0].text or "").strip():
+    text = (coords[0].text or "") if coords else ""
+    if not text.strip():
         raise SiteFileError("A KML geometry in the file has no coordinates.", "bad_coordinates")
     out = []
-    for token in coords[0].text.split():
+    for token in text.split():
         parts = token.split(",")
         if len(parts) not in (2, 3):
             raise SiteFileError(

@@ -47,32 +47,51 @@ def test_the_constants_are_the_published_factors():
 
 
 def test_drms_scales_the_fixed_term_too():
-    # 8 mm + 1 ppm as drms at 5 km: per axis (8 + 5)/√2 = 9.1924 mm; setup 2 mm per axis (common practice).
+    # 8 mm + 1 ppm as drms at 5 km: per axis (8 + 5)/√2 = 9.1924 mm; base setup and rover pole 2 mm per axis
+    # each (common practice defaults), added in quadrature.
     model = rtk.RtkErrorModel(h_meaning=rtk.DRMS)
     assert model.rtk_h_axis_mm(5000.0) == pytest.approx(13.0 / math.sqrt(2.0), rel=1e-12)
     core = _screen([3000.0], [4000.0], [0.0], [0.0], model=model)
-    want_h = K_H * math.sqrt((13.0 / math.sqrt(2.0)) ** 2 + 2.0**2)
-    want_v = K_V * math.sqrt(20.0**2 + 3.0**2)  # 15 mm + 1 ppm at 5 km, setup 3 mm; drms applies to H only
+    want_h = K_H * math.sqrt((13.0 / math.sqrt(2.0)) ** 2 + 2.0**2 + 2.0**2)
+    # 15 mm + 1 ppm at 5 km, base setup 3 mm and rover pole 3 mm; drms applies to H only.
+    want_v = K_V * math.sqrt(20.0**2 + 3.0**2 + 3.0**2)
     assert core.best_h95_mm[0] == pytest.approx(want_h, rel=1e-12)
     assert core.worst_h95_mm[0] == pytest.approx(want_h, rel=1e-12)
     assert core.best_v95_mm[0] == pytest.approx(want_v, rel=1e-12)
-    # RSS as drms: √(8² + 5²)/√2 per axis.
-    rss = rtk.RtkErrorModel(h_meaning=rtk.DRMS, combination=rtk.RSS, setup_h_mm=0.0, setup_v_mm=0.0)
+    # RSS as drms: √(8² + 5²)/√2 per axis (setup and rover pole set to zero to isolate the RTK term).
+    rss = rtk.RtkErrorModel(
+        h_meaning=rtk.DRMS, combination=rtk.RSS, setup_h_mm=0.0, setup_v_mm=0.0, rover_h_mm=0.0, rover_v_mm=0.0
+    )
     core = _screen([3000.0], [4000.0], [0.0], [0.0], model=rss)
     assert core.best_h95_mm[0] == pytest.approx(K_H * math.sqrt(89.0 / 2.0), rel=1e-12)
     assert core.best_v95_mm[0] == pytest.approx(K_V * math.sqrt(15.0**2 + 5.0**2), rel=1e-12)
 
 
 def test_a_site_point_exactly_at_the_maximum_baseline_is_within_it():
-    # 3-4-5 triangle: the point is 5000 m from the base, exactly the limit → eligible, achievable set.
+    # The maximum baseline holds per site point, equality included. 3-4-5 triangle: point 0 is 5000 m from
+    # the base (Pythagoras), point 1 stands on it. Both are inside the default tolerances used here
+    # (H95 = 2.4477·√(13² + 2² + 2²) = 32.6 mm < 50, V95 = 1.96·√(20² + 3² + 3²) = 40.1 mm < 80).
     model = rtk.RtkErrorModel()
     at = _screen([3000.0, 0.0], [4000.0, 0.0], [0.0], [0.0], model=model, max_baseline=5000.0)
     assert at.max_distance_m[0] == 5000.0
-    assert bool(at.eligible[0]) and not bool(at.beyond_baseline[0])
-    assert math.isfinite(at.achievable_h95_mm)
+    assert bool(at.eligible[0]) and not bool(at.beyond_baseline[0]) and bool(at.reaches_site[0])
+    assert at.best_h_index[0] == 0 and math.isfinite(at.best_h95_mm[0]) and math.isfinite(at.achievable_h95_mm)
+    assert at.coverage[0] == 1.0
+    # A millimetre short: point 0 is beyond this base, point 1 is still served, so the base stays eligible.
     over = _screen([3000.0, 0.0], [4000.0, 0.0], [0.0], [0.0], model=model, max_baseline=4999.999)
-    assert bool(over.beyond_baseline[0]) and not bool(over.eligible[0])
-    assert over.achievable_h95_mm == math.inf and over.any_coverage == 0.0
+    assert bool(over.eligible[0]) and not bool(over.beyond_baseline[0]) and not bool(over.reaches_site[0])
+    assert over.best_h_index[0] == -1 and over.best_h95_mm[0] == math.inf and over.achievable_h95_mm == math.inf
+    assert over.best_h_index[1] == 0 and over.coverage[0] == 0.5
+    # Equality holds too when another site point lies beyond the baseline (6000 m away, the per-point mask path).
+    mixed = _screen([3000.0, 0.0, 0.0], [4000.0, 0.0, 6000.0], [0.0], [0.0], model=model, max_baseline=5000.0)
+    assert mixed.best_h_index.tolist() == [0, 0, -1] and mixed.best_v_index.tolist() == [0, 0, -1]
+    assert mixed.coverage[0] == pytest.approx(2.0 / 3.0) and not bool(mixed.reaches_site[0])
+    # A site of that one point only: no site point within the baseline, the base is out.
+    alone = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, max_baseline=5000.0)
+    assert bool(alone.eligible[0]) and alone.any_coverage == 1.0
+    alone = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, max_baseline=4999.999)
+    assert bool(alone.beyond_baseline[0]) and not bool(alone.eligible[0])
+    assert alone.achievable_h95_mm == math.inf and alone.any_coverage == 0.0
 
 
 def test_margins_per_point_by_hand():
@@ -82,21 +101,30 @@ def test_margins_per_point_by_hand():
     args = (np.array([0]), np.array([3000.0]), np.array([4000.0]), np.array([0.0]), np.array([0.0]))
     h95 = K_H * math.sqrt(13.0**2 + 9.0)
     v95 = K_V * math.sqrt(20.0**2 + 16.0)
-    m = rtk._margins(*args, np.array([9.0]), np.array([16.0]), model, 50.0, 80.0)
+    const = (np.array([9.0]), np.array([16.0]))
+    m = rtk.point_margins_mm(*args, *const, model=model, tol_h_mm=50.0, tol_v_mm=80.0, max_baseline_m=10_000.0)
     assert m.shape == (1, 1) and m[0, 0] == pytest.approx(50.0 - h95, rel=1e-12)  # H decides
-    m = rtk._margins(*args, np.array([9.0]), np.array([16.0]), model, 50.0, 45.0)
+    m = rtk.point_margins_mm(*args, *const, model=model, tol_h_mm=50.0, tol_v_mm=45.0, max_baseline_m=10_000.0)
     assert m[0, 0] == pytest.approx(45.0 - v95, rel=1e-12)  # V decides
+    # The maximum baseline per point, equality included; beyond it the point has no margin at all.
+    m = rtk.point_margins_mm(*args, *const, model=model, tol_h_mm=50.0, tol_v_mm=80.0, max_baseline_m=5000.0)
+    assert m[0, 0] == pytest.approx(50.0 - h95, rel=1e-12)
+    m = rtk.point_margins_mm(*args, *const, model=model, tol_h_mm=50.0, tol_v_mm=80.0, max_baseline_m=4999.999)
+    assert m[0, 0] == -math.inf
 
 
 def test_check_shot_counts_both_setups_in_quadrature():
-    # Setup only (3 mm per axis, 5 mm vertical) at zero baseline with a zero a + b·d: base setup and
-    # rover pole each once: H = 2.4477·√(2·3²), V = 1.96·√(2·5²).
-    model = rtk.RtkErrorModel(h_fixed_mm=0, h_ppm=0, v_fixed_mm=0, v_ppm=0, setup_h_mm=3.0, setup_v_mm=5.0)
+    # Setups only at zero baseline with a zero a + b·d: base setup 3 mm per axis / 5 mm vertical and rover
+    # pole 4 mm / 12 mm, each once and in quadrature: H = 2.4477·√(3² + 4²) = 2.4477·5,
+    # V = 1.96·√(5² + 12²) = 1.96·13 (Pythagorean triples; distinct values so neither term can stand in).
+    model = rtk.RtkErrorModel(
+        h_fixed_mm=0, h_ppm=0, v_fixed_mm=0, v_ppm=0, setup_h_mm=3.0, setup_v_mm=5.0, rover_h_mm=4.0, rover_v_mm=12.0
+    )
     zero = dict(base_h_mm=0, base_v_mm=0, base_drift_h_mm=0, base_drift_v_mm=0)
     zero.update(check_h_mm=0, check_v_mm=0, check_drift_h_mm=0, check_drift_v_mm=0)
     h, v = rtk.check_shot_allowance_mm(0.0, model=model, **zero)
-    assert float(h) == pytest.approx(K_H * math.sqrt(18.0), rel=1e-12)
-    assert float(v) == pytest.approx(K_V * math.sqrt(50.0), rel=1e-12)
+    assert float(h) == pytest.approx(K_H * 5.0, rel=1e-12)
+    assert float(v) == pytest.approx(K_V * 13.0, rel=1e-12)
 
 
 def test_frame_change_that_is_not_a_finite_positive_number_adds_nothing():
@@ -111,8 +139,23 @@ def test_decimal_inputs_give_float_results():
     d = Decimal
     h, v = rtk.base_sigma_from_covariance_mm(d("9e-6"), d("0"), d("4e-6"), d("2.5e-5"))
     assert (float(h), float(v)) == pytest.approx((3.0, 5.0))  # √9e-6 m, √2.5e-5 m (λmax of a diagonal)
-    h, v = rtk.base_sigma_from_network_accuracy_mm(d("24.50762"), d("19.6"))  # K(1), 1.9600 (FGDC Part 2)
-    assert (float(h), float(v)) == pytest.approx((10.0, 10.0))
+    # Budget at 5 km, 8 mm + 1 ppm / 15 mm + 1 ppm (common practice): σ_h² = 13² + base 3² + setup 2² + rover 2²,
+    # σ_v² = 20² + base 4² + setup 3² + rover 3² + geoid 6² (hand formula, terms in quadrature).
+    b = rtk.error_budget_mm(
+        d("5000"),
+        model=rtk.RtkErrorModel(),
+        base_h_mm=d("3"),
+        base_v_mm=d("4"),
+        drift_h_mm=d("0"),
+        drift_v_mm=d("0"),
+        motion_h_mm=d("0"),
+        motion_v_mm=d("0"),
+        geoid_v_mm=d("6"),
+    )
+    assert all(type(b[k]) is float for k in ("sigma_h", "sigma_v", "h95", "v95"))
+    assert b["base"] == {"h": 3.0, "v": 4.0} and b["geoid"] == {"h": 0.0, "v": 6.0}
+    assert b["h95"] == pytest.approx(K_H * math.sqrt(13.0**2 + 3.0**2 + 2.0**2 + 2.0**2), rel=1e-12)
+    assert b["v95"] == pytest.approx(K_V * math.sqrt(20.0**2 + 4.0**2 + 3.0**2 + 3.0**2 + 6.0**2), rel=1e-12)
     got = rtk.max_abs_height_difference_m([d("100"), d("450")], [d("120"), d("90")])
     assert got.dtype == np.float64 and got.tolist() == [20.0, 360.0]
     assert rtk.drift_sigma_mm(d("-7.5")).item() == 15.0  # 2 mm/yr assumed (common practice) × 7.5 yr
@@ -161,15 +204,16 @@ def test_farthest_point_selection_updates_from_each_pick():
 
 
 def test_coverage_obeys_the_vertical_tolerance():
-    # One cell 5000 m from the base: H95 = 2.4477·√(13² + 2²) = 32.2 mm, V95 = 1.96·√(20² + 3²) = 39.64 mm.
+    # One cell 5000 m from the base, base setup and rover pole at the common-practice defaults:
+    # H95 = 2.4477·√(13² + 2² + 2²) = 32.57 mm, V95 = 1.96·√(20² + 3² + 3²) = 40.07 mm.
     model = rtk.RtkErrorModel()
-    v95 = K_V * math.sqrt(20.0**2 + 3.0**2)
-    assert 39.6 < v95 < 39.7
-    inside = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, tol_h=50.0, tol_v=40.0)
-    outside = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, tol_h=50.0, tol_v=39.6)
+    v95 = K_V * math.sqrt(20.0**2 + 3.0**2 + 3.0**2)
+    assert 40.0 < v95 < 40.1
+    inside = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, tol_h=50.0, tol_v=40.1)
+    outside = _screen([3000.0], [4000.0], [0.0], [0.0], model=model, tol_h=50.0, tol_v=40.0)
     assert inside.coverage[0] == 1.0 and inside.any_coverage == 1.0 and inside.margin_mm[0] > 0
     assert outside.coverage[0] == 0.0 and outside.any_coverage == 0.0
-    assert outside.margin_mm[0] == pytest.approx(39.6 - v95, rel=1e-12)
+    assert outside.margin_mm[0] == pytest.approx(40.0 - v95, rel=1e-12)
 
 
 def test_screening_in_small_blocks_gives_the_same_answer():

@@ -145,8 +145,9 @@ FINDING_SENTENCES = [
         Finding("nssda_ratio_outside", {"ratio": 0.2, "limit": 0.6}),
         "RMSE_min/RMSE_max = 0.200 is below 0.6, where the NSSDA approximation 2.4477 × 0.5 × (RMSE_x + RMSE_y) "
         "no longer holds; the circular-error method of Greenwalt & Shultz (1968), the same K polynomial "
-        "FGDC-STD-007.2-1998 uses (K × RMSE_max), is used instead. That this is the method the NSSDA refers to "
-        "here is from memory, unconfirmed.",
+        # That App. 3-A points to this method is from memory, unconfirmed (said here and in the module's
+        # comment, never in the sentence a person reads).
+        "FGDC-STD-007.2-1998 uses (K × RMSE_max), is used instead (FGDC-STD-007.3-1998, Appendix 3-A).",
     ),
     (
         Finding(
@@ -179,9 +180,11 @@ FINDING_SENTENCES = [
                 "target_rmse_m": 0.04,
             },
         ),
+        # 25 % of the target RMSE: ASPRS Edition 2 (2023), secondary transcription; the target as denominator is
+        # from memory, unconfirmed (as in tests/geodesy/test_accuracy.py). The sentence names the standard only.
         "Possible bias in east (x): the mean error -0.0200 m is 50 % of the target RMSE (0.0400 m), above the "
-        "25 % limit (the ASPRS Edition 2 rule as we recall it, unconfirmed). Look for a systematic cause (frame, "
-        "epoch, geoid model, antenna height) before relying on the figures.",
+        "25 % limit of the ASPRS Positional Accuracy Standards, Edition 2 (2023). Look for a systematic cause "
+        "(frame, epoch, geoid model, antenna height) before relying on the figures.",
     ),
     (
         Finding("blunders", {"count": 2, "factor": 3.0}),
@@ -210,7 +213,11 @@ FINDING_SENTENCES = [
 
 @pytest.mark.parametrize(("finding", "sentence"), FINDING_SENTENCES)
 def test_every_finding_code_has_its_sentence(finding, sentence):
-    assert st.finding_text(finding) == sentence
+    text = st.finding_text(finding)
+    assert text == sentence
+    # Provenance remarks belong in code comments and tests, never in what a surveyor reads (company rules).
+    for word in ("memory", "unconfirmed", "recall"):
+        assert word not in text.lower()
 
 
 def test_too_few_checkpoints_takes_the_standard_from_the_style_when_unsaid():

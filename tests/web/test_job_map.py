@@ -107,7 +107,9 @@ def test_frame_holds_the_site_bases_and_checks_not_the_far_marks(crowded, viewer
     assert float(cell.get("width")) >= 5.0
     # Excluded marks inside the frame are drawn faint, with their reasons in the tooltip.
     old = marks["OLD-1"]
-    assert "excluded" in old.get("class") and "the mark is retired or recorded destroyed" in old.find(f"{SVG}title").text
+    assert (
+        "excluded" in old.get("class") and "the mark is retired or recorded destroyed" in old.find(f"{SVG}title").text
+    )
 
 
 def test_labels_do_not_overlap_and_bases_and_checks_are_always_labelled(crowded, viewer):
