@@ -66,17 +66,19 @@ def test_sign_in_search_open_edit(page, district, screenshot, make_user):
     thumb = page.locator("ul.photos img").first
     thumb.scroll_into_view_if_needed()
     expect(thumb).to_be_visible()
-    assert thumb.evaluate("img => img.complete && img.naturalWidth") == 400  # the photo really loaded
+    # the photo really loaded (decode() waits for a lazy image and fails if it cannot load)
+    assert thumb.evaluate("img => img.decode().then(() => img.naturalWidth)") == 400
     screenshot(page, "mark-page")
 
-    # Edit as a manager.
+    # Edit as a manager (the scenario's publications and suspect clearance have bumped the version).
+    before = Mark.objects.get(code="KV-001").version
     page.get_by_role("link", name="Edit description").click()
     expect(page.get_by_role("heading", level=1)).to_contain_text("Edit mark KV-001")
     page.get_by_label("Name").fill("Kestrel Ridge (summit outcrop)")
     page.get_by_label("Sky view").select_option(label="partly obstructed")
     screenshot(page, "mark-edit")
     page.get_by_role("button", name="Save changes").click()
-    expect(page.locator(".messages")).to_contain_text("Mark KV-001 saved (version 3).")
+    expect(page.locator(".messages")).to_contain_text(f"Mark KV-001 saved (version {before + 1}).")
     expect(page.get_by_role("heading", level=1)).to_contain_text("Kestrel Ridge (summit outcrop)")
     expect(page.locator("dl.facts")).to_contain_text("partly obstructed")
     expect(page.locator("table.history")).to_contain_text("Kestrel Ridge → Kestrel Ridge (summit outcrop)")
@@ -88,7 +90,7 @@ def test_sign_in_search_open_edit(page, district, screenshot, make_user):
     mark_update(
         actor=make_user("marta", "manager"),
         code="KV-001",
-        expected_version=3,
+        expected_version=before + 1,
         changes={"marking": "KESTREL RIDGE 2009 RESET 2024"},
     )
     page.get_by_label("Marking as inscribed").fill("KESTREL RIDGE 2009 (worn)")
@@ -104,7 +106,6 @@ def test_viewer_sees_no_edit_and_is_refused(page, district):
     from playwright.sync_api import expect
 
     make = Mark.objects.get(code="KV-001")
-    assert make.version == 2
     from django.contrib.auth import get_user_model
 
     viewer = get_user_model().objects.create_user(username="vic", password="pw-vic-123!")
@@ -117,6 +118,7 @@ def test_viewer_sees_no_edit_and_is_refused(page, district):
     response = page.goto("/marks/KV-001/edit/")
     assert response.status == 403
     expect(page.get_by_role("heading", name="Not allowed")).to_be_visible()
+    assert Mark.objects.get(code="KV-001").version == make.version  # the refusal changed nothing
     page.get_by_role("button", name="Sign out").click()
     expect(page.get_by_role("heading", name="Sign in")).to_be_visible()
 
