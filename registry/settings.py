@@ -306,7 +306,7 @@ REGISTRY = {
     # gets rows only, and INSERT/SELECT on the audit trail (registry/dbroles.py). Empty: no grants.
     "DB_RUNTIME_ROLE": os.environ.get("REGISTRY_DB_RUNTIME_ROLE", "").strip(),
     # Documents (station description sheets, control reports; registry/reports/).
-    "OFFICE_NAME": os.environ.get("REGISTRY_OFFICE_NAME", "Survey office (set REGISTRY_OFFICE_NAME)").strip(),
+    "OFFICE_NAME": os.environ.get("REGISTRY_OFFICE_NAME", "Survey office").strip(),
     # PNG or JPEG drawn in the documents' heading; empty: none.
     "OFFICE_LOGO": os.environ.get("REGISTRY_OFFICE_LOGO", "").strip(),
     "PAGE_SIZE": os.environ.get("REGISTRY_PAGE_SIZE", "A4").strip(),
