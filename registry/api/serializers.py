@@ -34,11 +34,12 @@ from registry.models import (
 from registry.services import position_rules
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
+# Machine output keeps its precision: 1e-9° (about 0.1 mm), 0.01 mm, 0.001 mm/yr; pages round for reading.
 LATLON_DECIMALS = 9
-METRE_DECIMALS = 3
-SIGMA_MM_DECIMALS = 1
-EPOCH_DECIMALS = 3
-VELOCITY_M_YR_DECIMALS = 5
+METRE_DECIMALS = 5
+SIGMA_MM_DECIMALS = 2
+EPOCH_DECIMALS = 6
+VELOCITY_M_YR_DECIMALS = 6
 
 
 class RoundedFloatField(serializers.FloatField):

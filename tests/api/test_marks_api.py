@@ -142,13 +142,14 @@ def test_detail_lists_published_positions_with_accuracy(district, viewer, api_cl
     assert body["version"] == 1
     (position,) = body["published_positions"]
     assert position["frame_epsg"] == 7912 and position["frame_name"] == "ITRF2014"
-    assert position["h_m"] == 1523.457  # metres to 3 decimals (1523.4567 stored)
+    assert position["h_m"] == 1523.4567  # metres to 5 decimals, 0.01 mm (1523.4567 stored)
     assert position["sigma_e_mm"] == 5.0 and position["sigma_u_mm"] == 10.0
     # FGDC-STD-007.2-1998 circle for σE = σN = 5 mm, no correlation: K(1) = 1.960790 + 0.004071 +
-    # 0.114276 + 0.371625 = 2.450762 (secondary transcription of the polynomial) → r95 = 12.25381 mm → 12.3.
-    assert position["network_accuracy_h95_mm"] == 12.3
+    # 0.114276 + 0.371625 = 2.450762 (secondary transcription of the polynomial) → r95 = 12.25381 mm → 12.25
+    # (JSON keeps 0.01 mm; K(1) = 2.4477 would give 12.24, so this tells the two apart).
+    assert position["network_accuracy_h95_mm"] == 12.25
     # Vertical: 1.9600 × 10 mm = 19.6 mm (FGDC-STD-007.3-1998 §3.2.1 factor; z(0.975) recomputed with SciPy).
-    assert position["network_accuracy_u95_mm"] == 19.6
+    assert position["network_accuracy_u95_mm"] == 19.6  # 19.59964 → 19.60
 
 
 def test_missing_mark_is_a_404_in_the_error_shape(district, viewer, api_client_for):

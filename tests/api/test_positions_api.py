@@ -28,9 +28,9 @@ def test_propose_returns_the_position_with_frame_epoch_and_rounding(mark, techni
     body = propose(api_client_for(technician), vel_e_m_yr=-0.0123456, vel_n_m_yr=0.004, vel_u_m_yr=0.0)
     assert body["state"] == "proposed" and body["mark"] == "QR-101" and body["created_by"] == "theo"
     assert (body["frame_epsg"], body["frame_name"], body["epoch_yr"]) == (7912, "ITRF2014", 2020.0)
-    assert (body["lat_deg"], body["lon_deg"], body["h_m"]) == (45.201234568, -110.602345679, 1523.457)
+    assert (body["lat_deg"], body["lon_deg"], body["h_m"]) == (45.201234568, -110.602345679, 1523.4567)  # 0.01 mm
     assert body["cov_ee_m2"] == 0.005**2  # covariance unrounded
-    assert body["vel_e_m_yr"] == -0.01235  # 5 decimals of m/yr = 0.01 mm/yr
+    assert body["vel_e_m_yr"] == -0.012346  # 6 decimals of m/yr = 0.001 mm/yr
 
 
 def test_propose_invalid_input_is_a_400_with_field_codes(mark, technician, api_client_for):

@@ -105,13 +105,13 @@ def choose_check_marks(s: ScreeningSettings, ordered: list[Candidate], chosen: l
             allowances.append(
                 {
                     "base": b.mark.code,
-                    "baseline_m": round(d, 3),
-                    "horizontal_95_mm": round(float(h), 1),
-                    "vertical_95_mm": round(float(v), 1),
+                    "baseline_m": round(d, 6),
+                    "horizontal_95_mm": round(float(h), 3),
+                    "vertical_95_mm": round(float(v), 3),
                     "tolerance_horizontal_95_mm": s.tol_h_mm,
                     "tolerance_vertical_95_mm": s.tol_v_mm,
                     "terms": [
-                        {"term": name, "h_mm": round(th, 1), "v_mm": round(tv, 1)} for name, (th, tv) in terms.items()
+                        {"term": name, "h_mm": round(th, 3), "v_mm": round(tv, 3)} for name, (th, tv) in terms.items()
                     ],
                 }
             )

@@ -102,12 +102,14 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
     }
 
 
+# Machine output keeps its precision: JSON carries millimetres to 0.001 mm and metres to 1 µm (rounding
+# for reading belongs to the page, the text report and the PDFs).
 def _mm(x) -> float | None:
-    return None if x is None or not math.isfinite(x) else round(float(x), 1)
+    return None if x is None or not math.isfinite(x) else round(float(x), 3)
 
 
 def _m(x) -> float | None:
-    return None if x is None or not math.isfinite(x) else round(float(x), 3)
+    return None if x is None or not math.isfinite(x) else round(float(x), 6)
 
 
 def _deg(x) -> float | None:
@@ -145,8 +147,8 @@ def _candidate_dict(c: Candidate) -> dict[str, Any]:
             {"term": t, "h_mm": _mm(c.budget[t]["h"]), "v_mm": _mm(c.budget[t]["v"]), "description": d}
             for t, d in ((t, term_description(c, t, d)) for t, d in BUDGET_TERM_DESCRIPTIONS)
         ],
-        "velocity_mm_yr": None if c.velocity_mm_yr is None else [round(x, 2) for x in c.velocity_mm_yr],
-        "motion_offset_mm": None if c.motion_offset_mm is None else [round(x, 1) for x in c.motion_offset_mm],
+        "velocity_mm_yr": None if c.velocity_mm_yr is None else [round(x, 3) for x in c.velocity_mm_yr],
+        "motion_offset_mm": None if c.motion_offset_mm is None else [round(x, 3) for x in c.motion_offset_mm],
         "sigma_h_mm": None if c.budget is None else _mm(c.budget["sigma_h"]),
         "sigma_v_mm": None if c.budget is None else _mm(c.budget["sigma_v"]),
         "steps": c.steps,
