@@ -279,6 +279,8 @@ def _float(line: str, start: int, width: int, what: str, number: int) -> float |
     if not raw:
         return None
     try:
+        if not raw.isascii():  # RINEX is ASCII; float() would also read other scripts' digits
+            raise ValueError(raw)
         value = float(raw.replace("D", "E").replace("d", "e"))
     except ValueError:
         raise RinexError("bad_number", f"{what}: {raw!r} is not a number.", line=number) from None
@@ -291,7 +293,9 @@ def _int(line: str, start: int, width: int, what: str, number: int) -> int | Non
     raw = line[start : start + width].strip()
     if not raw:
         return None
-    if not raw.lstrip("-").isdigit():
+    # ASCII digits only: str.isdigit() also accepts '²' and other Unicode digits that int() refuses
+    digits = raw[1:] if raw.startswith("-") else raw
+    if not (digits.isascii() and digits.isdigit()):
         raise RinexError("bad_number", f"{what}: {raw!r} is not a whole number.", line=number)
     return int(raw)
 

@@ -160,6 +160,16 @@ def test_position_off_the_earth_is_refused_and_zero_means_unknown():
     assert parse_rinex_header(text(zero)).approx_xyz_m is None
 
 
+@pytest.mark.parametrize("digit", ["\u00b2", "\u00b9"])  # superscript two and one (Latin-1, as files are read)
+def test_non_ascii_digits_are_a_clear_error(digit):
+    """Found by the fuzz test: '²2025' passed str.isdigit() and then broke int(). RINEX is ASCII."""
+    lines = v2_header()
+    i = next(k for k, line in enumerate(lines) if line[60:].strip() == "TIME OF FIRST OBS")
+    lines[i] = lines[i][:1] + digit + lines[i][2:]
+    data = ("\n".join(lines) + "\n").encode("latin-1")
+    assert code_of(data) == "bad_number"
+
+
 def test_obs_type_count_must_match():
     lines = replace_record(
         v2_header(), "# / TYPES OF OBSERV", rec("     7    L1    L2    C1    P2    S1    S2", "# / TYPES OF OBSERV")
