@@ -5,7 +5,17 @@ Run on SQLite (default) or PostgreSQL + PostGIS (``DATABASE_URL=postgres://...``
 
 from __future__ import annotations
 
+import os
+
 import pytest
+from hypothesis import settings as hypothesis_settings
+
+# Property and fuzz tests (hypothesis): the suite and CI run a fixed seed ("deterministic"), so a
+# run's result does not depend on luck; HYPOTHESIS_PROFILE=explore draws fresh random examples, as a
+# by-hand search for new failures does (failures found that way become @example regression cases).
+hypothesis_settings.register_profile("deterministic", derandomize=True, print_blob=True)
+hypothesis_settings.register_profile("explore", derandomize=False, print_blob=True)
+hypothesis_settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "deterministic"))
 
 
 def _allow_audit_truncate(sender, connection, **kwargs):
