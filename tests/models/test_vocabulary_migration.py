@@ -14,7 +14,6 @@ import json
 import os
 import subprocess
 import sys
-import uuid
 from pathlib import Path
 
 import pytest
@@ -31,33 +30,6 @@ EXPECTED_SUSPECTS = {
     "MG-SAMEDAY": ["2020-06-01", "the visit of 2020-06-01 found it disturbed"],
     "MG-NOPOS": ["2018-01-01", "the visit of 2018-01-01 found it disturbed"],
 }
-
-
-@pytest.fixture
-def fresh_database_url(tmp_path):
-    """A URL of an empty database of the suite's own kind (dropped afterwards on PostgreSQL)."""
-    if connection.vendor == "sqlite":
-        yield f"sqlite:///{tmp_path / 'migration.sqlite3'}"
-        return
-    import psycopg
-
-    params = settings.DATABASES["default"]
-    name = f"{params['NAME']}_m{uuid.uuid4().hex[:8]}"
-    dsn = {
-        "host": params.get("HOST") or "127.0.0.1",
-        "port": params.get("PORT") or 5432,
-        "user": params.get("USER") or "postgres",
-        "password": params.get("PASSWORD") or None,
-        "dbname": "postgres",
-    }
-    with psycopg.connect(**dsn, autocommit=True) as admin:
-        admin.execute(f'CREATE DATABASE "{name}"')
-    user = dsn["user"] + (f":{dsn['password']}" if dsn["password"] else "")
-    try:
-        yield f"postgres://{user}@{dsn['host']}:{dsn['port']}/{name}"
-    finally:
-        with psycopg.connect(**dsn, autocommit=True) as admin:
-            admin.execute(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)')
 
 
 def test_migration_0006_forward_backward_forward(fresh_database_url):
