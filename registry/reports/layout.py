@@ -138,6 +138,31 @@ class TextLine(Flowable):
             x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
 
 
+#: Line breaks of fixed texts, by (text, style, bullet, widths): the same cautions and explanations are
+#: broken into the same lines on every document, so they are measured once per process.
+_BREAKS: dict[tuple, object] = {}
+
+
+class StaticParagraph(Paragraph):
+    """A Paragraph of fixed wording (cautions, explanations printed on every document) whose line
+    breaking is computed once per width and reused; drawn exactly as a Paragraph."""
+
+    def breakLines(self, width):
+        key = (self.text, self.style.name, self.bulletText, tuple(width) if isinstance(width, list) else width)
+        found = _BREAKS.get(key)
+        if found is None:
+            found = super().breakLines(width)
+            if found.kind != 0 or len(_BREAKS) >= 256:  # only simple, one-style paragraphs; bounded
+                return found
+            _BREAKS[key] = found
+        return found.clone(lines=[(extra, list(words)) for extra, words in found.lines])
+
+
+def static_para(text: str, style: str = "body", **kwargs) -> StaticParagraph:
+    """A :class:`StaticParagraph` of fixed ``text`` (not user data) in ``style``."""
+    return StaticParagraph(esc(text), styles()[style], **kwargs)
+
+
 def _fits(text: str, st: ParagraphStyle, width: float) -> bool:
     return "\n" not in text and pdfmetrics.stringWidth(text, st.fontName, st.fontSize) <= width
 
@@ -193,9 +218,89 @@ PLAIN = [
 ]
 
 
+class PlainRows(Flowable):
+    """Rows of plain strings in fixed columns, laid out and drawn exactly as a reportlab ``Table`` of
+    string cells with ``VALIGN TOP`` and constant padding draws them (row height: the cell's lines ×
+    leading + padding; baseline: the row's top − top padding − font size), without the Table's
+    per-cell style machinery, which costs more than the text itself on a sheet (about 20 of these per
+    sheet; see benchmarks/bench_documents.py). It does not split across pages: used for short blocks.
+
+    ``col_styles``: one ParagraphStyle per column (font, size, leading, colour); ``pad``: left, right,
+    top, bottom padding; ``first_top``/``last_bottom``: the first row's top and the last row's bottom
+    padding when different; ``background``: a fill behind the whole block.
+    """
+
+    def __init__(
+        self,
+        rows: list[list[str]],
+        widths: list[float],
+        col_styles: list[ParagraphStyle],
+        *,
+        pad: tuple[float, float, float, float] = (0.0, 4.0, 1.2, 1.2),
+        first_top: float | None = None,
+        last_bottom: float | None = None,
+        background=None,
+    ):
+        super().__init__()
+        self.hAlign = "CENTER"  # as a Table
+        self.rows = rows
+        self.widths = list(widths)
+        self.col_styles = col_styles
+        self.pad = pad
+        self.background = background
+        left, _right, top, bottom = pad
+        n = len(rows)
+        self.tops = [top] * n
+        if n and first_top is not None:
+            self.tops[0] = first_top
+        bottoms = [bottom] * n
+        if n and last_bottom is not None:
+            bottoms[-1] = last_bottom
+        self.row_heights = [
+            max(st.leading * (v.count("\n") + 1) for v, st in zip(row, col_styles, strict=True)) + self.tops[i] + bottoms[i]
+            for i, row in enumerate(rows)
+        ]
+        xs, x = [], left
+        for w in self.widths:
+            xs.append(x)
+            x += w
+        self.xs = xs
+        self.width = sum(self.widths)
+        self.height = sum(self.row_heights)
+
+    def wrap(self, avail_width, avail_height):
+        return self.width, self.height
+
+    def draw(self):
+        c = self.canv
+        if self.background is not None:
+            c.setFillColor(self.background)
+            c.rect(0, 0, self.width, self.height, stroke=0, fill=1)
+        font = color = None
+        y_top = self.height
+        for row, rh, top in zip(self.rows, self.row_heights, self.tops, strict=True):
+            for v, st, x in zip(row, self.col_styles, self.xs, strict=True):
+                if not v:
+                    continue
+                if (st.fontName, st.fontSize, st.leading) != font:
+                    font = (st.fontName, st.fontSize, st.leading)
+                    c.setFont(*font)
+                if st.textColor is not color:
+                    color = st.textColor
+                    c.setFillColor(color)
+                y = y_top - top - st.fontSize
+                for line in v.split("\n"):
+                    c.drawString(x, y, line)
+                    y -= st.leading
+            y_top -= rh
+
+
 def facts_table(rows: list[tuple[str, ...]], widths: tuple[float, ...], *, styles_by_col=("label", "cell", "grey")):
     """Rows of label / value [/ note]: labels grey, values wrapped only when they must."""
     data = [[fit(v, styles_by_col[i], widths[i] - 4) for i, v in enumerate(row)] for row in rows]
+    if all(isinstance(v, str) for row in data for v in row):
+        st = styles()
+        return PlainRows(data, list(widths), [st[styles_by_col[i]] for i in range(len(widths))])
     t = Table(data, colWidths=list(widths))
     cmds = list(PLAIN)
     for i in range(len(widths)):
@@ -256,6 +361,8 @@ class QrCode(Flowable):
         c = self.canv
         c.setFillColor(INK)
         c.setStrokeColor(INK)
+        # One path of rectangles (each run of dark modules in a row), filled once.
+        path = c.beginPath()
         for i, row in enumerate(rows):
             j = 0
             while j < n:
@@ -263,10 +370,11 @@ class QrCode(Flowable):
                     k = j
                     while k < n and row[k]:
                         k += 1
-                    c.rect(j * cell, self.size - (i + 1) * cell, (k - j) * cell, cell, stroke=0, fill=1)
+                    path.rect(j * cell, self.size - (i + 1) * cell, (k - j) * cell, cell)
                     j = k
                 else:
                     j += 1
+        c.drawPath(path, stroke=0, fill=1)
 
 
 # --------------------------------------------------------------------------------------------------

@@ -37,11 +37,22 @@ def _position_flowables(block: PositionBlock, width: float) -> list:
     head = L.segments([(block.title + " ", "h3"), ("· coordinate epoch ", "h3grey"), (block.epoch, "h3")], "h3")
     lines = list(block.accuracy_lines)
     lines += [r.label + ": " + r.value + (f" ({r.note})" if r.note else "") for r in block.height_rows]
-    box = Table(
-        [[L.fit(line, "cell", width - 10)] for line in lines]
-        + [[L.fit(w, "grey", width - 10)] for w in block.warnings],
-        colWidths=[width],
-    )
+    cells = [[L.fit(line, "cell", width - 10)] for line in lines] + [
+        [L.fit(w, "grey", width - 10)] for w in block.warnings
+    ]
+    if all(isinstance(c, str) for (c,) in cells):
+        # the same drawing as the Table below (string cells take the "cell" style there too), without its machinery
+        box = L.PlainRows(
+            cells,
+            [width],
+            [L.styles()["cell"]],
+            pad=(5, 6, 1.2, 1.2),
+            first_top=3.5,
+            last_bottom=3.5,
+            background=L.SHADE,
+        )
+        return [KeepTogether([head, Spacer(1, 2), pair, Spacer(1, 3), box]), Spacer(1, 6)]
+    box = Table(cells, colWidths=[width])
     box.setStyle(
         TableStyle(
             [
@@ -110,7 +121,7 @@ def sheet_story(
         L.facts_table([(r.label, r.value) for r in content.description[1:]], (30 * mm, width - qr_size - 36 * mm)),
     ]
     if verify_url:
-        qr_cell = [L.QrCode(verify_url, qr_size), L.para("Scan to verify this document", "grey", width=qr_size)]
+        qr_cell = [L.QrCode(verify_url, qr_size), L.static_para("Scan to verify this document", "grey")]
         top = Table([[title_cell, qr_cell]], colWidths=[width - qr_size - 4, qr_size + 4])
     else:
         top = Table([[title_cell]], colWidths=[width])
@@ -121,7 +132,7 @@ def sheet_story(
         story.append(L.para("Published positions", "h2"))
         if content.positions:
             story.append(
-                L.para(
+                L.static_para(
                     "Each position is given in its own frame at its own coordinate epoch, as published; "
                     "nothing on this sheet has been transformed. Latitude and longitude are on the frame's "
                     "ellipsoid; accuracies are network accuracies at 95 % confidence from the published covariance. "
@@ -261,13 +272,12 @@ def render_sheet(
 
 def closing(width: float, record: dict, *, extra: list | None = None) -> list:
     """Cautions and the signature block, kept together."""
-    st = L.styles()
     cautions = [L.para("Cautions", "h2")]
-    cautions += [L.Paragraph(L.esc(text), st["caution"], bulletText="•") for text in L.CAUTIONS]
+    cautions += [L.static_para(text, "caution", bulletText="•") for text in L.CAUTIONS]
     sig = L.SignatureBox(width * 0.55, 24 * mm, record)
     left = [
         L.para("Signature", "h3"),
-        L.para(
+        L.static_para(
             "This document is valid only with the electronic signature of a licensed surveyor in the box beside: "
             "their name, licence number and jurisdiction, and the date of signing. Check it with the QR code or "
             "the verification page.",
