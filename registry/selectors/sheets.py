@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from django.conf import settings
+from django.db.models import Count, Window
 
 from registry.geodesy import accuracy as acc
 from registry.geodesy import statements
@@ -304,12 +305,20 @@ def sheet_content(mark: Mark, *, with_nearby: bool = True) -> SheetContent:
         Position.objects.filter(mark=mark, state=PositionState.PUBLISHED).order_by("frame_epsg", "-decided_at", "-pk")
     )
     last_published_at = max((p.decided_at for p in published if p.decided_at), default=None)
-    visits_qs = Visit.objects.filter(mark=mark).order_by("-visited_on", "-created_at", "-pk")
-    visits = list(visits_qs[:HISTORY_ROWS])
-    visit_count = visits_qs.count() if len(visits) == HISTORY_ROWS else len(visits)
-    occ_qs = Occupation.objects.filter(mark=mark).order_by("-start_utc", "-pk")
-    occupations = list(occ_qs[:HISTORY_ROWS])
-    occupation_count = occ_qs.count() if len(occupations) == HISTORY_ROWS else len(occupations)
+    # The most recent rows with the total beside them in one query each (a window count is taken over
+    # every row of the mark, before the limit).
+    visits = list(
+        Visit.objects.filter(mark=mark)
+        .annotate(total_rows=Window(Count("pk")))
+        .order_by("-visited_on", "-created_at", "-pk")[:HISTORY_ROWS]
+    )
+    visit_count = visits[0].total_rows if visits else 0
+    occupations = list(
+        Occupation.objects.filter(mark=mark)
+        .annotate(total_rows=Window(Count("pk")))
+        .order_by("-start_utc", "-pk")[:HISTORY_ROWS]
+    )
+    occupation_count = occupations[0].total_rows if occupations else 0
     withheld = withheld_reason(mark, visits[0] if visits else None, last_published_at)
 
     description = [
