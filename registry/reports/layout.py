@@ -257,7 +257,9 @@ class PlainRows(Flowable):
         if n and last_bottom is not None:
             bottoms[-1] = last_bottom
         self.row_heights = [
-            max(st.leading * (v.count("\n") + 1) for v, st in zip(row, col_styles, strict=True)) + self.tops[i] + bottoms[i]
+            max(st.leading * (v.count("\n") + 1) for v, st in zip(row, col_styles, strict=True))
+            + self.tops[i]
+            + bottoms[i]
             for i, row in enumerate(rows)
         ]
         xs, x = [], left

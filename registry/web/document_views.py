@@ -336,7 +336,8 @@ def ca_certificate(request: HttpRequest) -> HttpResponse:
 
 @require_GET
 def ca_crl(request: HttpRequest) -> HttpResponse:
-    limited = None if ratelimit.allow(request, "crl", 120) else HttpResponse("Too many requests.", status=429)
+    per_min = int(settings.REGISTRY.get("CRL_RATE_PER_MIN", 120))
+    limited = None if ratelimit.allow(request, "crl", per_min) else HttpResponse("Too many requests.", status=429)
     if limited is not None:
         return limited
     try:
