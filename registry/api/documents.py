@@ -29,6 +29,7 @@ from registry.api.marks import ERROR_RESPONSES, request_body
 from registry.api.permissions import IsSignatory, IsViewer
 from registry.errors import NotFound
 from registry.models import Document, DocumentBuild, DocumentState
+from registry.selectors import documents as doc_reads
 from registry.services import documents as svc
 from registry.services.verification import verify_pdf
 from registry.web.document_views import build_status, document_pdf_bytes
@@ -133,7 +134,7 @@ class BuildDetailView(APIView):
 
     @extend_schema(operation_id="documents_build_status", responses={200: BuildOut, **ERROR_RESPONSES})
     def get(self, request, build_id: int):
-        build = DocumentBuild.objects.select_related("document").filter(pk=build_id).first()
+        build = doc_reads.build_by_id(build_id)
         if build is None:
             raise NotFound(f"No build {build_id}.")
         return Response(_build_json(build))
@@ -145,7 +146,6 @@ class DocumentListView(APIView):
 
     @extend_schema(operation_id="documents_list", responses={200: DocumentOut(many=True), **ERROR_RESPONSES})
     def get(self, request):
-        qs = Document.objects.select_related("mark", "job", "created_by", "checked_by", "signed_by")
         state = request.query_params.get("state", "").strip()
         if state:
             if state not in DocumentState.values:
@@ -156,14 +156,11 @@ class DocumentListView(APIView):
                         )
                     }
                 )
-            qs = qs.filter(state=state)
         ood = request.query_params.get("out_of_date", "").strip().lower()
-        if ood in ("1", "true", "yes"):
-            qs = qs.filter(out_of_date=True)
-        elif ood in ("0", "false", "no"):
-            qs = qs.filter(out_of_date=False)
+        out_of_date = True if ood in ("1", "true", "yes") else False if ood in ("0", "false", "no") else None
+        qs = doc_reads.documents_filtered(state=state or None, out_of_date=out_of_date)
         paginator = self.pagination_class()
-        page = paginator.paginate_queryset(qs.order_by("-created_at", "-pk"), request, view=self)
+        page = paginator.paginate_queryset(qs, request, view=self)
         return paginator.get_paginated_response([document_json(d) for d in page])
 
 

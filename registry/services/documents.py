@@ -48,6 +48,7 @@ from registry.models import (
     SignatoryProfile,
 )
 from registry.roles import Ability, has_ability
+from registry.selectors.documents import OPEN_STATES
 from registry.services._input import parse_note
 from registry.services.access import access_job_by_code, access_mark_by_code, require_ability
 from registry.services.audit import audit_record
@@ -57,7 +58,6 @@ logger = logging.getLogger(__name__)
 #: Crockford's base-32 alphabet (no I, L, O, U): codes read aloud and typed without confusion.
 _CODE_ALPHABET = "0123456789ABCDEFGHJKMNPQRSTVWXYZ"
 _KIND_LETTER = {DocumentKind.SHEET: "S", DocumentKind.REPORT: "R"}
-OPEN_STATES = (DocumentState.DRAFT, DocumentState.CHECKED)
 
 
 # ---------------------------------------------------------------------------------------------------
