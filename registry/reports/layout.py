@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import io
 import os
+import zlib
 from dataclasses import dataclass, field
 from functools import lru_cache
 
@@ -20,12 +21,29 @@ from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4, LETTER
 from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
-from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase import pdfdoc, pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
 from reportlab.pdfgen import canvas as rl_canvas
 from reportlab.platypus import Flowable, Paragraph, Table, TableStyle
 from reportlab.platypus.doctemplate import BaseDocTemplate, PageTemplate
 from reportlab.platypus.frames import Frame
+
+#: zlib level of the PDFs' page and font streams. reportlab uses zlib's default (6); level 1 takes about
+#: half the time on a sheet (its two embedded font subsets and pages: ~1 ms less per sheet) for files
+#: about 6 % larger. Any level decodes the same (FlateDecode).
+PDF_STREAM_ZLIB_LEVEL = 1
+
+
+class _FlateStreams(pdfdoc.PDFStreamFilterZCompress):
+    """reportlab's Flate filter at :data:`PDF_STREAM_ZLIB_LEVEL` (installed below for this process's PDFs)."""
+
+    def encode(self, text):
+        if isinstance(text, str):
+            text = text.encode("utf8")
+        return zlib.compress(text, PDF_STREAM_ZLIB_LEVEL)
+
+
+pdfdoc.PDFZCompress = _FlateStreams()
 
 FONT_DIRS = ("/usr/share/fonts/truetype/dejavu", "/usr/share/fonts/dejavu")
 FONT_FILES = {
@@ -219,20 +237,23 @@ PLAIN = [
 
 
 class PlainRows(Flowable):
-    """Rows of plain strings in fixed columns, laid out and drawn exactly as a reportlab ``Table`` of
-    string cells with ``VALIGN TOP`` and constant padding draws them (row height: the cell's lines ×
-    leading + padding; baseline: the row's top − top padding − font size), without the Table's
-    per-cell style machinery, which costs more than the text itself on a sheet (about 20 of these per
-    sheet; see benchmarks/bench_documents.py). It does not split across pages: used for short blocks.
+    """Rows in fixed columns, laid out and drawn exactly as a reportlab ``Table`` with ``VALIGN TOP``,
+    left-aligned cells and constant padding lays them out and draws them, without the Table's per-cell
+    style machinery (which cost more than the text itself on a sheet; see benchmarks/bench_documents.py).
+    It does not split across pages: used for short blocks and side-by-side columns.
 
-    ``col_styles``: one ParagraphStyle per column (font, size, leading, colour); ``pad``: left, right,
-    top, bottom padding; ``first_top``/``last_bottom``: the first row's top and the last row's bottom
-    padding when different; ``background``: a fill behind the whole block.
+    A cell is a string (drawn in its column's style: row height = lines × leading + padding, baseline =
+    row top − top padding − font size), a flowable, or a list of flowables (stacked with their space
+    before and after, as a Table stacks a cell's flowables).
+
+    ``col_styles``: one ParagraphStyle per column (font, size, leading, colour of string cells); ``pad``:
+    left, right, top, bottom padding; ``first_top``/``last_bottom``: the first row's top and the last
+    row's bottom padding when different; ``background``: a fill behind the whole block.
     """
 
     def __init__(
         self,
-        rows: list[list[str]],
+        rows: list[list],
         widths: list[float],
         col_styles: list[ParagraphStyle],
         *,
@@ -243,12 +264,11 @@ class PlainRows(Flowable):
     ):
         super().__init__()
         self.hAlign = "CENTER"  # as a Table
-        self.rows = rows
+        self.rows = [[v if isinstance(v, str | list | tuple) else [v] for v in row] for row in rows]
         self.widths = list(widths)
         self.col_styles = col_styles
-        self.pad = pad
         self.background = background
-        left, _right, top, bottom = pad
+        left, right, top, bottom = pad
         n = len(rows)
         self.tops = [top] * n
         if n and first_top is not None:
@@ -256,12 +276,17 @@ class PlainRows(Flowable):
         bottoms = [bottom] * n
         if n and last_bottom is not None:
             bottoms[-1] = last_bottom
-        self.row_heights = [
-            max(st.leading * (v.count("\n") + 1) for v, st in zip(row, col_styles, strict=True))
-            + self.tops[i]
-            + bottoms[i]
-            for i, row in enumerate(rows)
-        ]
+        self.heights: dict[int, list[float]] = {}  # id of a flowable cell -> its flowables' heights
+        self.row_heights = []
+        for i, row in enumerate(self.rows):
+            h = 0.0
+            for v, st, w in zip(row, col_styles, self.widths, strict=True):
+                if isinstance(v, str):
+                    t = st.leading * (v.count("\n") + 1)
+                else:
+                    t = self._stack(v, w - left - right)
+                h = max(h, t + self.tops[i] + bottoms[i])
+            self.row_heights.append(h)
         xs, x = [], left
         for w in self.widths:
             xs.append(x)
@@ -269,6 +294,19 @@ class PlainRows(Flowable):
         self.xs = xs
         self.width = sum(self.widths)
         self.height = sum(self.row_heights)
+
+    def _stack(self, items, avail_width: float) -> float:
+        """Wrap a cell's flowables; their total height as reportlab's Table counts it."""
+        if not items:
+            return 0.0
+        hs, total, sa = [], 0.0, 0.0
+        for f in items:
+            _w, h = f.wrapOn(None, avail_width, 72000)
+            sb, sa = f.getSpaceBefore(), f.getSpaceAfter()
+            hs.append(h)
+            total += h + sb + sa
+        self.heights[id(items)] = hs
+        return total - items[0].getSpaceBefore() - sa
 
     def wrap(self, avail_width, avail_height):
         return self.width, self.height
@@ -284,6 +322,14 @@ class PlainRows(Flowable):
             for v, st, x in zip(row, self.col_styles, self.xs, strict=True):
                 if not v:
                     continue
+                if not isinstance(v, str):
+                    y = y_top - top + v[0].getSpaceBefore()
+                    for f, h in zip(v, self.heights[id(v)], strict=True):
+                        y -= f.getSpaceBefore() + h
+                        f.drawOn(c, x, y)
+                        y -= f.getSpaceAfter()
+                    font = color = None  # a flowable may have changed them
+                    continue
                 if (st.fontName, st.fontSize, st.leading) != font:
                     font = (st.fontName, st.fontSize, st.leading)
                     c.setFont(*font)
@@ -297,18 +343,18 @@ class PlainRows(Flowable):
             y_top -= rh
 
 
+def columns(cells: list, widths: list[float]) -> PlainRows:
+    """Flowables side by side (one row of cells, each a flowable or a list of them), tops aligned, with
+    the plain padding (:data:`PLAIN`)."""
+    st = styles()["body"]
+    return PlainRows([cells], widths, [st] * len(widths))
+
+
 def facts_table(rows: list[tuple[str, ...]], widths: tuple[float, ...], *, styles_by_col=("label", "cell", "grey")):
     """Rows of label / value [/ note]: labels grey, values wrapped only when they must."""
     data = [[fit(v, styles_by_col[i], widths[i] - 4) for i, v in enumerate(row)] for row in rows]
-    if all(isinstance(v, str) for row in data for v in row):
-        st = styles()
-        return PlainRows(data, list(widths), [st[styles_by_col[i]] for i in range(len(widths))])
-    t = Table(data, colWidths=list(widths))
-    cmds = list(PLAIN)
-    for i in range(len(widths)):
-        cmds += _font_cmds(styles_by_col[i], (i, i))
-    t.setStyle(TableStyle(cmds))
-    return t
+    st = styles()
+    return PlainRows(data, list(widths), [st[styles_by_col[i]] for i in range(len(widths))])
 
 
 def grid_table(header: list[str], rows: list[list[str]], widths: list[float], *, numeric: set[int] = frozenset()):

@@ -32,39 +32,16 @@ def _position_flowables(block: PositionBlock, width: float) -> list:
         )
     else:
         right = L.para("No grid coordinates for this position.", "grey")
-    pair = Table([[left, right]], colWidths=[half + 8, half])
-    pair.setStyle(TableStyle(L.PLAIN))
+    pair = L.columns([left, right], [half + 8, half])
     head = L.segments([(block.title + " ", "h3"), ("· coordinate epoch ", "h3grey"), (block.epoch, "h3")], "h3")
     lines = list(block.accuracy_lines)
     lines += [r.label + ": " + r.value + (f" ({r.note})" if r.note else "") for r in block.height_rows]
     cells = [[L.fit(line, "cell", width - 10)] for line in lines] + [
         [L.fit(w, "grey", width - 10)] for w in block.warnings
     ]
-    if all(isinstance(c, str) for (c,) in cells):
-        # the same drawing as the Table below (string cells take the "cell" style there too), without its machinery
-        box = L.PlainRows(
-            cells,
-            [width],
-            [L.styles()["cell"]],
-            pad=(5, 6, 1.2, 1.2),
-            first_top=3.5,
-            last_bottom=3.5,
-            background=L.SHADE,
-        )
-        return [KeepTogether([head, Spacer(1, 2), pair, Spacer(1, 3), box]), Spacer(1, 6)]
-    box = Table(cells, colWidths=[width])
-    box.setStyle(
-        TableStyle(
-            [
-                ("BACKGROUND", (0, 0), (-1, -1), L.SHADE),
-                ("LEFTPADDING", (0, 0), (-1, -1), 5),
-                ("TOPPADDING", (0, 0), (-1, -1), 1.2),
-                ("BOTTOMPADDING", (0, 0), (-1, -1), 1.2),
-                ("TOPPADDING", (0, 0), (-1, 0), 3.5),
-                ("BOTTOMPADDING", (0, -1), (-1, -1), 3.5),
-                *L._font_cmds("cell", (0, 0)),
-            ]
-        )
+    # string cells take the "cell" style (a wrapped warning keeps its own grey)
+    box = L.PlainRows(
+        cells, [width], [L.styles()["cell"]], pad=(5, 6, 1.2, 1.2), first_top=3.5, last_bottom=3.5, background=L.SHADE
     )
     return [KeepTogether([head, Spacer(1, 2), pair, Spacer(1, 3), box]), Spacer(1, 6)]
 
@@ -122,10 +99,9 @@ def sheet_story(
     ]
     if verify_url:
         qr_cell = [L.QrCode(verify_url, qr_size), L.static_para("Scan to verify this document", "grey")]
-        top = Table([[title_cell, qr_cell]], colWidths=[width - qr_size - 4, qr_size + 4])
+        top = L.columns([title_cell, qr_cell], [width - qr_size - 4, qr_size + 4])
     else:
-        top = Table([[title_cell]], colWidths=[width])
-    top.setStyle(TableStyle(L.PLAIN))
+        top = L.columns([title_cell], [width])
     story += [top, Spacer(1, 4)]
 
     if not content.withheld:
@@ -174,8 +150,7 @@ def sheet_story(
             if img is not None:
                 photos += [img, L.para(att.caption or att.original_name, "grey", width=0.48 * width), Spacer(1, 2)]
     side = photos or [L.para("No photo on record.", "grey")]
-    vic = Table([[diagram, side]], colWidths=[diag_w + 6, width - diag_w - 6])
-    vic.setStyle(TableStyle(L.PLAIN))
+    vic = L.columns([diagram, side], [diag_w + 6, width - diag_w - 6])
     story.append(
         KeepTogether(
             [
@@ -284,6 +259,5 @@ def closing(width: float, record: dict, *, extra: list | None = None) -> list:
             "grey",
         ),
     ]
-    block = Table([[left, sig]], colWidths=[width * 0.45 - 6, width * 0.55 + 6])
-    block.setStyle(TableStyle(L.PLAIN))
+    block = L.columns([left, sig], [width * 0.45 - 6, width * 0.55 + 6])
     return [Spacer(1, 6), KeepTogether([*cautions, *(extra or []), Spacer(1, 6), block])]
