@@ -19,6 +19,7 @@ from functools import lru_cache
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.rl_accel import escapePDF, fp_str
 from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
 from reportlab.pdfbase import pdfdoc, pdfmetrics
@@ -124,6 +125,35 @@ def styles() -> dict[str, ParagraphStyle]:
     }
 
 
+def draw_text(c, x: float, y: float, text: str, font_name: str, size: float, leading: float | None = None) -> None:
+    """Draw one line of ``text`` with its baseline at (x, y) in a TrueType font (the report fonts).
+
+    The same PDF text operators ``canvas.drawString`` writes for a TrueType font (text matrix, the
+    font subset, ``Tj``), written directly: drawString also builds a text object and measures the
+    string, which on a sheet's few hundred strings cost more than the text itself. The fill colour is
+    the canvas's (``setFillColor`` before).
+    """
+    if not text:
+        return
+    font = pdfmetrics.getFont(font_name)
+    doc = c._doc
+    size_lead = f"{fp_str(size)} Tf {fp_str(size * 1.2 if leading is None else leading)} TL"
+    parts = [f"BT 1 0 0 1 {fp_str(x, y)} Tm"]
+    current = -1
+    for subset, chunk in font.splitString(text, doc):
+        if subset != current:
+            parts.append(f"{font.getSubsetInternalName(subset, doc)} {size_lead}")
+            current = subset
+        parts.append(f"({escapePDF(chunk)}) Tj")
+    parts.append("T* ET")  # as drawString ends its line (text extraction reads it as a line break)
+    c._code.append(" ".join(parts))
+
+
+def draw_right(c, x: float, y: float, text: str, font_name: str, size: float) -> None:
+    """:func:`draw_text` ending at ``x`` (as ``canvas.drawRightString``)."""
+    draw_text(c, x - pdfmetrics.stringWidth(text, font_name, size), y, text, font_name, size)
+
+
 def esc(text: str) -> str:
     """Escape text for a reportlab Paragraph."""
     return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
@@ -149,11 +179,12 @@ class TextLine(Flowable):
         c = self.canv
         x = 0.0
         baseline = self.style.leading - self.style.fontSize
-        for text, st in self.segments:
-            c.setFont(st.fontName, st.fontSize)
+        last = len(self.segments) - 1
+        for i, (text, st) in enumerate(self.segments):
             c.setFillColor(st.textColor)
-            c.drawString(x, baseline, text)
-            x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
+            draw_text(c, x, baseline, text, st.fontName, st.fontSize)
+            if i < last:
+                x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
 
 
 #: Line breaks of fixed texts, by (text, style, bullet, widths): the same cautions and explanations are
@@ -316,7 +347,7 @@ class PlainRows(Flowable):
         if self.background is not None:
             c.setFillColor(self.background)
             c.rect(0, 0, self.width, self.height, stroke=0, fill=1)
-        font = color = None
+        color = None
         y_top = self.height
         for row, rh, top in zip(self.rows, self.row_heights, self.tops, strict=True):
             for v, st, x in zip(row, self.col_styles, self.xs, strict=True):
@@ -328,17 +359,14 @@ class PlainRows(Flowable):
                         y -= f.getSpaceBefore() + h
                         f.drawOn(c, x, y)
                         y -= f.getSpaceAfter()
-                    font = color = None  # a flowable may have changed them
+                    color = None  # a flowable may have changed it
                     continue
-                if (st.fontName, st.fontSize, st.leading) != font:
-                    font = (st.fontName, st.fontSize, st.leading)
-                    c.setFont(*font)
                 if st.textColor is not color:
                     color = st.textColor
                     c.setFillColor(color)
                 y = y_top - top - st.fontSize
                 for line in v.split("\n"):
-                    c.drawString(x, y, line)
+                    draw_text(c, x, y, line, st.fontName, st.fontSize, st.leading)
                     y -= st.leading
             y_top -= rh
 
@@ -512,16 +540,13 @@ def _draw_frame(c, h: DocumentHeading, page: int, total: int) -> None:
         except OSError:
             logo_w = 0.0
     c.setFillColor(INK)
-    c.setFont("Doc-Bold", 9.5)
-    c.drawString(x0 + logo_w, top - 3.5 * mm, h.office[:90])
-    c.setFont("Doc", 8)
+    draw_text(c, x0 + logo_w, top - 3.5 * mm, h.office[:90], "Doc-Bold", 9.5)
     c.setFillColor(GREY)
-    c.drawString(x0 + logo_w, top - 7.5 * mm, f"{h.kind_title} · {h.subject}")
+    draw_text(c, x0 + logo_w, top - 7.5 * mm, f"{h.kind_title} · {h.subject}", "Doc", 8)
     c.setFillColor(INK)
-    c.setFont("Doc", 8)
-    c.drawRightString(x1, top - 3.5 * mm, f"Document {h.code} · revision {h.revision}")
+    draw_right(c, x1, top - 3.5 * mm, f"Document {h.code} · revision {h.revision}", "Doc", 8)
     c.setFillColor(GREY)
-    c.drawRightString(x1, top - 7.5 * mm, f"Issued {h.issued} · page {page} of {total}")
+    draw_right(c, x1, top - 7.5 * mm, f"Issued {h.issued} · page {page} of {total}", "Doc", 8)
     c.setStrokeColor(INK)
     c.setLineWidth(0.6)
     c.line(x0, top - 10 * mm, x1, top - 10 * mm)
@@ -529,10 +554,9 @@ def _draw_frame(c, h: DocumentHeading, page: int, total: int) -> None:
     c.setStrokeColor(RULE)
     c.setLineWidth(0.4)
     c.line(x0, 12 * mm, x1, 12 * mm)
-    c.setFont("Doc", 7)
     c.setFillColor(GREY)
-    c.drawString(x0, 8.5 * mm, h.footer_note)
-    c.drawRightString(x1, 8.5 * mm, f"{h.code} rev. {h.revision} · page {page} of {total}")
+    draw_text(c, x0, 8.5 * mm, h.footer_note, "Doc", 7)
+    draw_right(c, x1, 8.5 * mm, f"{h.code} rev. {h.revision} · page {page} of {total}", "Doc", 7)
     c.restoreState()
 
 

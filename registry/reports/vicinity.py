@@ -13,7 +13,7 @@ import math
 from reportlab.pdfbase.pdfmetrics import stringWidth
 from reportlab.platypus import Flowable
 
-from registry.reports.layout import GREY, INK, RULE, register_fonts
+from registry.reports.layout import GREY, INK, RULE, draw_text, register_fonts
 
 __all__ = ["VicinityDiagram", "nice_length_m", "vicinity_drawing"]
 
@@ -62,9 +62,8 @@ class VicinityDiagram(Flowable):
             kind = op[0]
             if kind == "text":
                 _, x, y, text, font, size, color = op
-                c.setFont(font, size)
                 c.setFillColor(color)
-                c.drawString(x, y, text)
+                draw_text(c, x, y, text, font, size)
             elif kind == "line":
                 _, x1, y1, x2, y2, stroke, width = op
                 c.setStrokeColor(stroke)
