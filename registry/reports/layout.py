@@ -192,9 +192,25 @@ class TextLine(Flowable):
 _BREAKS: dict[tuple, object] = {}
 
 
+#: Parsed fragments of fixed texts, by (text, style, bullet).
+_PARSED: dict[tuple, tuple] = {}
+
+
 class StaticParagraph(Paragraph):
-    """A Paragraph of fixed wording (cautions, explanations printed on every document) whose line
-    breaking is computed once per width and reused; drawn exactly as a Paragraph."""
+    """A Paragraph of fixed wording (cautions, explanations printed on every document) whose markup is
+    parsed and whose lines are broken once per process (per width) and reused; drawn exactly as a
+    Paragraph."""
+
+    def __init__(self, text: str, style: ParagraphStyle, bulletText: str | None = None):
+        key = (text, style.name, bulletText)
+        parsed = _PARSED.get(key)
+        if parsed is None:
+            super().__init__(text, style, bulletText=bulletText)
+            if len(_PARSED) < 256 and self.style is style:
+                _PARSED[key] = (self.text, self.frags)
+            return
+        super().__init__(None, style, bulletText=bulletText, frags=[f.clone() for f in parsed[1]])
+        self.text = parsed[0]
 
     def breakLines(self, width):
         key = (self.text, self.style.name, self.bulletText, tuple(width) if isinstance(width, list) else width)
