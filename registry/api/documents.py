@@ -12,6 +12,8 @@
 
 from __future__ import annotations
 
+import time
+
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.http import HttpResponse
@@ -22,7 +24,7 @@ from rest_framework.pagination import LimitOffsetPagination
 from rest_framework.parsers import FormParser, JSONParser, MultiPartParser
 from rest_framework.permissions import AllowAny
 from rest_framework.response import Response
-from rest_framework.throttling import AnonRateThrottle
+from rest_framework.throttling import BaseThrottle
 from rest_framework.views import APIView
 
 from registry.api.marks import ERROR_RESPONSES, request_body
@@ -32,6 +34,7 @@ from registry.models import Document, DocumentBuild, DocumentState
 from registry.selectors import documents as doc_reads
 from registry.services import documents as svc
 from registry.services.verification import verify_pdf
+from registry.web import ratelimit
 from registry.web.document_views import build_status, document_pdf_bytes
 
 
@@ -205,19 +208,16 @@ class DocumentSignView(APIView):
         return Response(document_json(doc))
 
 
-class VerifyThrottle(AnonRateThrottle):
-    scope = "verify"
-
-    def get_rate(self):
-        return f"{int(settings.REGISTRY.get('VERIFY_RATE_PER_MIN', 30)) or 100000}/min"
+class VerifyThrottle(BaseThrottle):
+    """The public verification limit (``REGISTRY_VERIFY_RATE_PER_MIN`` per client address and minute),
+    counted in the database together with the verification page's requests, so that it holds across
+    every worker and application server (``registry.web.ratelimit``)."""
 
     def allow_request(self, request, view):
-        return (
-            True if not int(settings.REGISTRY.get("VERIFY_RATE_PER_MIN", 30)) else super().allow_request(request, view)
-        )
+        return ratelimit.allow(request, "verify", int(settings.REGISTRY.get("VERIFY_RATE_PER_MIN", 30)))
 
-    def get_cache_key(self, request, view):
-        return self.cache_format % {"scope": self.scope, "ident": self.get_ident(request)}
+    def wait(self):
+        return 60 - time.time() % 60  # the count starts again with the next clock minute
 
 
 class VerifyView(APIView):
