@@ -339,8 +339,10 @@ REGISTRY = {
     # killed runs again, up to MAX_ATTEMPTS runs in all, then fails; workers look every RECOVER seconds.
     "TASK_MAX_ATTEMPTS": int(os.environ.get("REGISTRY_TASK_MAX_ATTEMPTS", "3")),
     "TASK_RECOVER_SECONDS": float(os.environ.get("REGISTRY_TASK_RECOVER_SECONDS", "30")),
-    # Public verification page: at most this many requests per client address per minute.
+    # Public verification page and revocation list: at most this many requests per client address per
+    # minute (0: no limit), counted in the database so that every application server shares the count.
     "VERIFY_RATE_PER_MIN": int(os.environ.get("REGISTRY_VERIFY_RATE_PER_MIN", "30")),
+    "CRL_RATE_PER_MIN": int(os.environ.get("REGISTRY_CRL_RATE_PER_MIN", "120")),
 }
 
 # Background work (document builds) through Django's tasks interface (the django-tasks backport on

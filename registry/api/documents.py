@@ -12,6 +12,8 @@
 
 from __future__ import annotations
 
+import time
+
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.http import HttpResponse
@@ -22,15 +24,17 @@ from rest_framework.pagination import LimitOffsetPagination
 from rest_framework.parsers import FormParser, JSONParser, MultiPartParser
 from rest_framework.permissions import AllowAny
 from rest_framework.response import Response
-from rest_framework.throttling import AnonRateThrottle
+from rest_framework.throttling import BaseThrottle
 from rest_framework.views import APIView
 
 from registry.api.marks import ERROR_RESPONSES, request_body
 from registry.api.permissions import IsSignatory, IsViewer
 from registry.errors import NotFound
 from registry.models import Document, DocumentBuild, DocumentState
+from registry.selectors import documents as doc_reads
 from registry.services import documents as svc
 from registry.services.verification import verify_pdf
+from registry.web import ratelimit
 from registry.web.document_views import build_status, document_pdf_bytes
 
 
@@ -133,7 +137,7 @@ class BuildDetailView(APIView):
 
     @extend_schema(operation_id="documents_build_status", responses={200: BuildOut, **ERROR_RESPONSES})
     def get(self, request, build_id: int):
-        build = DocumentBuild.objects.select_related("document").filter(pk=build_id).first()
+        build = doc_reads.build_by_id(build_id)
         if build is None:
             raise NotFound(f"No build {build_id}.")
         return Response(_build_json(build))
@@ -145,7 +149,6 @@ class DocumentListView(APIView):
 
     @extend_schema(operation_id="documents_list", responses={200: DocumentOut(many=True), **ERROR_RESPONSES})
     def get(self, request):
-        qs = Document.objects.select_related("mark", "job", "created_by", "checked_by", "signed_by")
         state = request.query_params.get("state", "").strip()
         if state:
             if state not in DocumentState.values:
@@ -156,14 +159,11 @@ class DocumentListView(APIView):
                         )
                     }
                 )
-            qs = qs.filter(state=state)
         ood = request.query_params.get("out_of_date", "").strip().lower()
-        if ood in ("1", "true", "yes"):
-            qs = qs.filter(out_of_date=True)
-        elif ood in ("0", "false", "no"):
-            qs = qs.filter(out_of_date=False)
+        out_of_date = True if ood in ("1", "true", "yes") else False if ood in ("0", "false", "no") else None
+        qs = doc_reads.documents_filtered(state=state or None, out_of_date=out_of_date)
         paginator = self.pagination_class()
-        page = paginator.paginate_queryset(qs.order_by("-created_at", "-pk"), request, view=self)
+        page = paginator.paginate_queryset(qs, request, view=self)
         return paginator.get_paginated_response([document_json(d) for d in page])
 
 
@@ -208,19 +208,16 @@ class DocumentSignView(APIView):
         return Response(document_json(doc))
 
 
-class VerifyThrottle(AnonRateThrottle):
-    scope = "verify"
-
-    def get_rate(self):
-        return f"{int(settings.REGISTRY.get('VERIFY_RATE_PER_MIN', 30)) or 100000}/min"
+class VerifyThrottle(BaseThrottle):
+    """The public verification limit (``REGISTRY_VERIFY_RATE_PER_MIN`` per client address and minute),
+    counted in the database together with the verification page's requests, so that it holds across
+    every worker and application server (``registry.web.ratelimit``)."""
 
     def allow_request(self, request, view):
-        return (
-            True if not int(settings.REGISTRY.get("VERIFY_RATE_PER_MIN", 30)) else super().allow_request(request, view)
-        )
+        return ratelimit.allow(request, "verify", int(settings.REGISTRY.get("VERIFY_RATE_PER_MIN", 30)))
 
-    def get_cache_key(self, request, view):
-        return self.cache_format % {"scope": self.scope, "ident": self.get_ident(request)}
+    def wait(self):
+        return 60 - time.time() % 60  # the count starts again with the next clock minute
 
 
 class VerifyView(APIView):

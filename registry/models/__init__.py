@@ -48,7 +48,7 @@ from registry.models.marks import (
     Stability,
 )
 from registry.models.movement import CheckStage, MovementCheck, MovementVerdict
-from registry.models.security import IdempotencyRecord, SigninThrottle
+from registry.models.security import IdempotencyRecord, RequestCount, SigninThrottle
 from registry.models.signing import CertificateAuthority, SignatoryProfile, SigningCertificate
 
 __all__ = [
@@ -107,6 +107,7 @@ __all__ = [
     "RtkHorizontalMeaning",
     "VerticalDeliverable",
     "SUSPECT_FINDINGS",
+    "RequestCount",
     "SigninThrottle",
     "SkyView",
     "Stability",

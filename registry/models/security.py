@@ -4,6 +4,8 @@
   (``registry/services/signin.py``).
 - :class:`IdempotencyRecord`: the first answer to an API write sent with an ``Idempotency-Key``
   header, kept for a day (``registry/api/idempotency.py``).
+- :class:`RequestCount`: requests of one client address to one public page in one minute, the rate
+  limit every application server shares (``registry/services/ratelimit.py``).
 """
 
 from __future__ import annotations
@@ -44,3 +46,26 @@ class IdempotencyRecord(models.Model):
 
     def __str__(self) -> str:
         return f"{self.method} {self.path} ({self.key})"
+
+
+class RequestCount(models.Model):
+    """Requests from one client address to one rate-limited public page in one clock minute.
+
+    Kept in the database so that every gunicorn worker on every application server counts against the
+    same limit; counted with one atomic upsert per request; rows older than the previous minute are
+    removed as new minutes begin.
+    """
+
+    scope = models.CharField(max_length=40)
+    client = models.CharField(max_length=64)
+    minute = models.BigIntegerField(help_text="Whole minutes since 1970-01-01 UTC.")
+    hits = models.PositiveIntegerField(default=0)
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["scope", "client", "minute"], name="requestcount_one_per_minute")
+        ]
+        indexes = [models.Index(fields=["minute"], name="requestcount_minute")]
+
+    def __str__(self) -> str:
+        return f"{self.scope} {self.client} minute {self.minute}: {self.hits}"

@@ -12,20 +12,39 @@ from __future__ import annotations
 
 import io
 import os
+import zlib
 from dataclasses import dataclass, field
 from functools import lru_cache
 
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4, LETTER
+from reportlab.lib.rl_accel import escapePDF, fp_str
 from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
-from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase import pdfdoc, pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
 from reportlab.pdfgen import canvas as rl_canvas
 from reportlab.platypus import Flowable, Paragraph, Table, TableStyle
 from reportlab.platypus.doctemplate import BaseDocTemplate, PageTemplate
 from reportlab.platypus.frames import Frame
+
+#: zlib level of the PDFs' page and font streams. reportlab uses zlib's default (6); level 1 takes about
+#: half the time on a sheet (its two embedded font subsets and pages: ~1 ms less per sheet) for files
+#: about 6 % larger. Any level decodes the same (FlateDecode).
+PDF_STREAM_ZLIB_LEVEL = 1
+
+
+class _FlateStreams(pdfdoc.PDFStreamFilterZCompress):
+    """reportlab's Flate filter at :data:`PDF_STREAM_ZLIB_LEVEL` (installed below for this process's PDFs)."""
+
+    def encode(self, text):
+        if isinstance(text, str):
+            text = text.encode("utf8")
+        return zlib.compress(text, PDF_STREAM_ZLIB_LEVEL)
+
+
+pdfdoc.PDFZCompress = _FlateStreams()
 
 FONT_DIRS = ("/usr/share/fonts/truetype/dejavu", "/usr/share/fonts/dejavu")
 FONT_FILES = {
@@ -106,6 +125,35 @@ def styles() -> dict[str, ParagraphStyle]:
     }
 
 
+def draw_text(c, x: float, y: float, text: str, font_name: str, size: float, leading: float | None = None) -> None:
+    """Draw one line of ``text`` with its baseline at (x, y) in a TrueType font (the report fonts).
+
+    The same PDF text operators ``canvas.drawString`` writes for a TrueType font (text matrix, the
+    font subset, ``Tj``), written directly: drawString also builds a text object and measures the
+    string, which on a sheet's few hundred strings cost more than the text itself. The fill colour is
+    the canvas's (``setFillColor`` before).
+    """
+    if not text:
+        return
+    font = pdfmetrics.getFont(font_name)
+    doc = c._doc
+    size_lead = f"{fp_str(size)} Tf {fp_str(size * 1.2 if leading is None else leading)} TL"
+    parts = [f"BT 1 0 0 1 {fp_str(x, y)} Tm"]
+    current = -1
+    for subset, chunk in font.splitString(text, doc):
+        if subset != current:
+            parts.append(f"{font.getSubsetInternalName(subset, doc)} {size_lead}")
+            current = subset
+        parts.append(f"({escapePDF(chunk)}) Tj")
+    parts.append("T* ET")  # as drawString ends its line (text extraction reads it as a line break)
+    c._code.append(" ".join(parts))
+
+
+def draw_right(c, x: float, y: float, text: str, font_name: str, size: float) -> None:
+    """:func:`draw_text` ending at ``x`` (as ``canvas.drawRightString``)."""
+    draw_text(c, x - pdfmetrics.stringWidth(text, font_name, size), y, text, font_name, size)
+
+
 def esc(text: str) -> str:
     """Escape text for a reportlab Paragraph."""
     return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
@@ -131,11 +179,53 @@ class TextLine(Flowable):
         c = self.canv
         x = 0.0
         baseline = self.style.leading - self.style.fontSize
-        for text, st in self.segments:
-            c.setFont(st.fontName, st.fontSize)
+        last = len(self.segments) - 1
+        for i, (text, st) in enumerate(self.segments):
             c.setFillColor(st.textColor)
-            c.drawString(x, baseline, text)
-            x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
+            draw_text(c, x, baseline, text, st.fontName, st.fontSize)
+            if i < last:
+                x += pdfmetrics.stringWidth(text, st.fontName, st.fontSize)
+
+
+#: Line breaks of fixed texts, by (text, style, bullet, widths): the same cautions and explanations are
+#: broken into the same lines on every document, so they are measured once per process.
+_BREAKS: dict[tuple, object] = {}
+
+
+#: Parsed fragments of fixed texts, by (text, style, bullet).
+_PARSED: dict[tuple, tuple] = {}
+
+
+class StaticParagraph(Paragraph):
+    """A Paragraph of fixed wording (cautions, explanations printed on every document) whose markup is
+    parsed and whose lines are broken once per process (per width) and reused; drawn exactly as a
+    Paragraph."""
+
+    def __init__(self, text: str, style: ParagraphStyle, bulletText: str | None = None):
+        key = (text, style.name, bulletText)
+        parsed = _PARSED.get(key)
+        if parsed is None:
+            super().__init__(text, style, bulletText=bulletText)
+            if len(_PARSED) < 256 and self.style is style:
+                _PARSED[key] = (self.text, self.frags)
+            return
+        super().__init__(None, style, bulletText=bulletText, frags=[f.clone() for f in parsed[1]])
+        self.text = parsed[0]
+
+    def breakLines(self, width):
+        key = (self.text, self.style.name, self.bulletText, tuple(width) if isinstance(width, list) else width)
+        found = _BREAKS.get(key)
+        if found is None:
+            found = super().breakLines(width)
+            if found.kind != 0 or len(_BREAKS) >= 256:  # only simple, one-style paragraphs; bounded
+                return found
+            _BREAKS[key] = found
+        return found.clone(lines=[(extra, list(words)) for extra, words in found.lines])
+
+
+def static_para(text: str, style: str = "body", **kwargs) -> StaticParagraph:
+    """A :class:`StaticParagraph` of fixed ``text`` (not user data) in ``style``."""
+    return StaticParagraph(esc(text), styles()[style], **kwargs)
 
 
 def _fits(text: str, st: ParagraphStyle, width: float) -> bool:
@@ -193,15 +283,122 @@ PLAIN = [
 ]
 
 
+class PlainRows(Flowable):
+    """Rows in fixed columns, laid out and drawn exactly as a reportlab ``Table`` with ``VALIGN TOP``,
+    left-aligned cells and constant padding lays them out and draws them, without the Table's per-cell
+    style machinery (which cost more than the text itself on a sheet; see benchmarks/bench_documents.py).
+    It does not split across pages: used for short blocks and side-by-side columns.
+
+    A cell is a string (drawn in its column's style: row height = lines × leading + padding, baseline =
+    row top − top padding − font size), a flowable, or a list of flowables (stacked with their space
+    before and after, as a Table stacks a cell's flowables).
+
+    ``col_styles``: one ParagraphStyle per column (font, size, leading, colour of string cells); ``pad``:
+    left, right, top, bottom padding; ``first_top``/``last_bottom``: the first row's top and the last
+    row's bottom padding when different; ``background``: a fill behind the whole block.
+    """
+
+    def __init__(
+        self,
+        rows: list[list],
+        widths: list[float],
+        col_styles: list[ParagraphStyle],
+        *,
+        pad: tuple[float, float, float, float] = (0.0, 4.0, 1.2, 1.2),
+        first_top: float | None = None,
+        last_bottom: float | None = None,
+        background=None,
+    ):
+        super().__init__()
+        self.hAlign = "CENTER"  # as a Table
+        self.rows = [[v if isinstance(v, str | list | tuple) else [v] for v in row] for row in rows]
+        self.widths = list(widths)
+        self.col_styles = col_styles
+        self.background = background
+        left, right, top, bottom = pad
+        n = len(rows)
+        self.tops = [top] * n
+        if n and first_top is not None:
+            self.tops[0] = first_top
+        bottoms = [bottom] * n
+        if n and last_bottom is not None:
+            bottoms[-1] = last_bottom
+        self.heights: dict[int, list[float]] = {}  # id of a flowable cell -> its flowables' heights
+        self.row_heights = []
+        for i, row in enumerate(self.rows):
+            h = 0.0
+            for v, st, w in zip(row, col_styles, self.widths, strict=True):
+                if isinstance(v, str):
+                    t = st.leading * (v.count("\n") + 1)
+                else:
+                    t = self._stack(v, w - left - right)
+                h = max(h, t + self.tops[i] + bottoms[i])
+            self.row_heights.append(h)
+        xs, x = [], left
+        for w in self.widths:
+            xs.append(x)
+            x += w
+        self.xs = xs
+        self.width = sum(self.widths)
+        self.height = sum(self.row_heights)
+
+    def _stack(self, items, avail_width: float) -> float:
+        """Wrap a cell's flowables; their total height as reportlab's Table counts it."""
+        if not items:
+            return 0.0
+        hs, total, sa = [], 0.0, 0.0
+        for f in items:
+            _w, h = f.wrapOn(None, avail_width, 72000)
+            sb, sa = f.getSpaceBefore(), f.getSpaceAfter()
+            hs.append(h)
+            total += h + sb + sa
+        self.heights[id(items)] = hs
+        return total - items[0].getSpaceBefore() - sa
+
+    def wrap(self, avail_width, avail_height):
+        return self.width, self.height
+
+    def draw(self):
+        c = self.canv
+        if self.background is not None:
+            c.setFillColor(self.background)
+            c.rect(0, 0, self.width, self.height, stroke=0, fill=1)
+        color = None
+        y_top = self.height
+        for row, rh, top in zip(self.rows, self.row_heights, self.tops, strict=True):
+            for v, st, x in zip(row, self.col_styles, self.xs, strict=True):
+                if not v:
+                    continue
+                if not isinstance(v, str):
+                    y = y_top - top + v[0].getSpaceBefore()
+                    for f, h in zip(v, self.heights[id(v)], strict=True):
+                        y -= f.getSpaceBefore() + h
+                        f.drawOn(c, x, y)
+                        y -= f.getSpaceAfter()
+                    color = None  # a flowable may have changed it
+                    continue
+                if st.textColor is not color:
+                    color = st.textColor
+                    c.setFillColor(color)
+                y = y_top - top - st.fontSize
+                for line in v.split("\n"):
+                    draw_text(c, x, y, line, st.fontName, st.fontSize, st.leading)
+                    y -= st.leading
+            y_top -= rh
+
+
+def columns(cells: list, widths: list[float]) -> PlainRows:
+    """Flowables side by side (one row of cells, each a flowable or a list of them), tops aligned, with
+    the plain padding (:data:`PLAIN`)."""
+    st = styles()["body"]
+    return PlainRows([cells], widths, [st] * len(widths))
+
+
 def facts_table(rows: list[tuple[str, ...]], widths: tuple[float, ...], *, styles_by_col=("label", "cell", "grey")):
     """Rows of label / value [/ note]: labels grey, values wrapped only when they must."""
     data = [[fit(v, styles_by_col[i], widths[i] - 4) for i, v in enumerate(row)] for row in rows]
-    t = Table(data, colWidths=list(widths))
-    cmds = list(PLAIN)
-    for i in range(len(widths)):
-        cmds += _font_cmds(styles_by_col[i], (i, i))
-    t.setStyle(TableStyle(cmds))
-    return t
+    st = styles()
+    return PlainRows(data, list(widths), [st[styles_by_col[i]] for i in range(len(widths))])
 
 
 def grid_table(header: list[str], rows: list[list[str]], widths: list[float], *, numeric: set[int] = frozenset()):
@@ -256,6 +453,8 @@ class QrCode(Flowable):
         c = self.canv
         c.setFillColor(INK)
         c.setStrokeColor(INK)
+        # One path of rectangles (each run of dark modules in a row), filled once.
+        path = c.beginPath()
         for i, row in enumerate(rows):
             j = 0
             while j < n:
@@ -263,10 +462,11 @@ class QrCode(Flowable):
                     k = j
                     while k < n and row[k]:
                         k += 1
-                    c.rect(j * cell, self.size - (i + 1) * cell, (k - j) * cell, cell, stroke=0, fill=1)
+                    path.rect(j * cell, self.size - (i + 1) * cell, (k - j) * cell, cell)
                     j = k
                 else:
                     j += 1
+        c.drawPath(path, stroke=0, fill=1)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -356,16 +556,13 @@ def _draw_frame(c, h: DocumentHeading, page: int, total: int) -> None:
         except OSError:
             logo_w = 0.0
     c.setFillColor(INK)
-    c.setFont("Doc-Bold", 9.5)
-    c.drawString(x0 + logo_w, top - 3.5 * mm, h.office[:90])
-    c.setFont("Doc", 8)
+    draw_text(c, x0 + logo_w, top - 3.5 * mm, h.office[:90], "Doc-Bold", 9.5)
     c.setFillColor(GREY)
-    c.drawString(x0 + logo_w, top - 7.5 * mm, f"{h.kind_title} · {h.subject}")
+    draw_text(c, x0 + logo_w, top - 7.5 * mm, f"{h.kind_title} · {h.subject}", "Doc", 8)
     c.setFillColor(INK)
-    c.setFont("Doc", 8)
-    c.drawRightString(x1, top - 3.5 * mm, f"Document {h.code} · revision {h.revision}")
+    draw_right(c, x1, top - 3.5 * mm, f"Document {h.code} · revision {h.revision}", "Doc", 8)
     c.setFillColor(GREY)
-    c.drawRightString(x1, top - 7.5 * mm, f"Issued {h.issued} · page {page} of {total}")
+    draw_right(c, x1, top - 7.5 * mm, f"Issued {h.issued} · page {page} of {total}", "Doc", 8)
     c.setStrokeColor(INK)
     c.setLineWidth(0.6)
     c.line(x0, top - 10 * mm, x1, top - 10 * mm)
@@ -373,10 +570,9 @@ def _draw_frame(c, h: DocumentHeading, page: int, total: int) -> None:
     c.setStrokeColor(RULE)
     c.setLineWidth(0.4)
     c.line(x0, 12 * mm, x1, 12 * mm)
-    c.setFont("Doc", 7)
     c.setFillColor(GREY)
-    c.drawString(x0, 8.5 * mm, h.footer_note)
-    c.drawRightString(x1, 8.5 * mm, f"{h.code} rev. {h.revision} · page {page} of {total}")
+    draw_text(c, x0, 8.5 * mm, h.footer_note, "Doc", 7)
+    draw_right(c, x1, 8.5 * mm, f"{h.code} rev. {h.revision} · page {page} of {total}", "Doc", 7)
     c.restoreState()
 
 

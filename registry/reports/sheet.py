@@ -32,28 +32,16 @@ def _position_flowables(block: PositionBlock, width: float) -> list:
         )
     else:
         right = L.para("No grid coordinates for this position.", "grey")
-    pair = Table([[left, right]], colWidths=[half + 8, half])
-    pair.setStyle(TableStyle(L.PLAIN))
+    pair = L.columns([left, right], [half + 8, half])
     head = L.segments([(block.title + " ", "h3"), ("· coordinate epoch ", "h3grey"), (block.epoch, "h3")], "h3")
     lines = list(block.accuracy_lines)
     lines += [r.label + ": " + r.value + (f" ({r.note})" if r.note else "") for r in block.height_rows]
-    box = Table(
-        [[L.fit(line, "cell", width - 10)] for line in lines]
-        + [[L.fit(w, "grey", width - 10)] for w in block.warnings],
-        colWidths=[width],
-    )
-    box.setStyle(
-        TableStyle(
-            [
-                ("BACKGROUND", (0, 0), (-1, -1), L.SHADE),
-                ("LEFTPADDING", (0, 0), (-1, -1), 5),
-                ("TOPPADDING", (0, 0), (-1, -1), 1.2),
-                ("BOTTOMPADDING", (0, 0), (-1, -1), 1.2),
-                ("TOPPADDING", (0, 0), (-1, 0), 3.5),
-                ("BOTTOMPADDING", (0, -1), (-1, -1), 3.5),
-                *L._font_cmds("cell", (0, 0)),
-            ]
-        )
+    cells = [[L.fit(line, "cell", width - 10)] for line in lines] + [
+        [L.fit(w, "grey", width - 10)] for w in block.warnings
+    ]
+    # string cells take the "cell" style (a wrapped warning keeps its own grey)
+    box = L.PlainRows(
+        cells, [width], [L.styles()["cell"]], pad=(5, 6, 1.2, 1.2), first_top=3.5, last_bottom=3.5, background=L.SHADE
     )
     return [KeepTogether([head, Spacer(1, 2), pair, Spacer(1, 3), box]), Spacer(1, 6)]
 
@@ -110,18 +98,17 @@ def sheet_story(
         L.facts_table([(r.label, r.value) for r in content.description[1:]], (30 * mm, width - qr_size - 36 * mm)),
     ]
     if verify_url:
-        qr_cell = [L.QrCode(verify_url, qr_size), L.para("Scan to verify this document", "grey", width=qr_size)]
-        top = Table([[title_cell, qr_cell]], colWidths=[width - qr_size - 4, qr_size + 4])
+        qr_cell = [L.QrCode(verify_url, qr_size), L.static_para("Scan to verify this document", "grey")]
+        top = L.columns([title_cell, qr_cell], [width - qr_size - 4, qr_size + 4])
     else:
-        top = Table([[title_cell]], colWidths=[width])
-    top.setStyle(TableStyle(L.PLAIN))
+        top = L.columns([title_cell], [width])
     story += [top, Spacer(1, 4)]
 
     if not content.withheld:
         story.append(L.para("Published positions", "h2"))
         if content.positions:
             story.append(
-                L.para(
+                L.static_para(
                     "Each position is given in its own frame at its own coordinate epoch, as published; "
                     "nothing on this sheet has been transformed. Latitude and longitude are on the frame's "
                     "ellipsoid; accuracies are network accuracies at 95 % confidence from the published covariance. "
@@ -163,8 +150,7 @@ def sheet_story(
             if img is not None:
                 photos += [img, L.para(att.caption or att.original_name, "grey", width=0.48 * width), Spacer(1, 2)]
     side = photos or [L.para("No photo on record.", "grey")]
-    vic = Table([[diagram, side]], colWidths=[diag_w + 6, width - diag_w - 6])
-    vic.setStyle(TableStyle(L.PLAIN))
+    vic = L.columns([diagram, side], [diag_w + 6, width - diag_w - 6])
     story.append(
         KeepTogether(
             [
@@ -261,19 +247,17 @@ def render_sheet(
 
 def closing(width: float, record: dict, *, extra: list | None = None) -> list:
     """Cautions and the signature block, kept together."""
-    st = L.styles()
     cautions = [L.para("Cautions", "h2")]
-    cautions += [L.Paragraph(L.esc(text), st["caution"], bulletText="•") for text in L.CAUTIONS]
+    cautions += [L.static_para(text, "caution", bulletText="•") for text in L.CAUTIONS]
     sig = L.SignatureBox(width * 0.55, 24 * mm, record)
     left = [
         L.para("Signature", "h3"),
-        L.para(
+        L.static_para(
             "This document is valid only with the electronic signature of a licensed surveyor in the box beside: "
             "their name, licence number and jurisdiction, and the date of signing. Check it with the QR code or "
             "the verification page.",
             "grey",
         ),
     ]
-    block = Table([[left, sig]], colWidths=[width * 0.45 - 6, width * 0.55 + 6])
-    block.setStyle(TableStyle(L.PLAIN))
+    block = L.columns([left, sig], [width * 0.45 - 6, width * 0.55 + 6])
     return [Spacer(1, 6), KeepTogether([*cautions, *(extra or []), Spacer(1, 6), block])]

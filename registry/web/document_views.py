@@ -12,15 +12,15 @@ import io
 from django.conf import settings
 from django.contrib import messages
 from django.core.exceptions import ValidationError
-from django.db.models import Q
 from django.http import Http404, HttpRequest, HttpResponse, JsonResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
 from django.views.decorators.http import require_GET, require_http_methods, require_POST
 
 from registry.errors import Conflict, NotFound, PermissionDeniedError, RegistryError
-from registry.models import BuildState, Document, DocumentBuild, DocumentState, SignatoryProfile
+from registry.models import BuildState, Document, DocumentBuild, DocumentState
 from registry.roles import Ability, has_ability
+from registry.selectors import documents as doc_reads
 from registry.services import documents as svc
 from registry.services.certificates import office_ca_pem, office_crl_der, usable_certificate
 from registry.services.verification import public_summary, verify_pdf
@@ -28,7 +28,6 @@ from registry.web import ratelimit
 from registry.web.views import ability_required
 
 MAX_UPLOAD_BYTES = 50 * 1024 * 1024
-LIST_LIMIT = 200
 
 
 def _error_text(exc: Exception) -> str:
@@ -46,20 +45,12 @@ def _error_text(exc: Exception) -> str:
 
 @ability_required(Ability.VIEW)
 def document_list(request: HttpRequest) -> HttpResponse:
-    base = Document.objects.select_related("mark", "job", "created_by", "checked_by", "signed_by")
-    to_reissue = list(base.filter(state=DocumentState.SIGNED, out_of_date=True).order_by("out_of_date_at")[:LIST_LIMIT])
-    open_docs = list(base.filter(state__in=svc.OPEN_STATES).order_by("-created_at")[:LIST_LIMIT])
-    recent = list(base.filter(state__in=("signed", "superseded")).order_by("-signed_at")[:50])
-    builds = list(
-        DocumentBuild.objects.select_related("job", "requested_by", "document")
-        .filter(Q(state__in=(BuildState.QUEUED, BuildState.RUNNING, BuildState.FAILED)))
-        .order_by("-requested_at")[:20]
-    )
+    lists = doc_reads.document_lists()
     context = {
-        "to_reissue": to_reissue,
-        "open_docs": open_docs,
-        "recent": recent,
-        "builds": builds,
+        "to_reissue": lists.to_reissue,
+        "open_docs": lists.open_docs,
+        "recent": lists.recent,
+        "builds": lists.builds,
         "can_prepare": svc.can_prepare(request.user),
         "is_signatory": has_ability(request.user, Ability.SIGN),
     }
@@ -70,15 +61,14 @@ def document_list(request: HttpRequest) -> HttpResponse:
 def document_page(request: HttpRequest, code: str) -> HttpResponse:
     doc = svc.access_document_by_code(request.user, code)
     user = request.user
-    revisions = Document.objects.filter(**({"mark_id": doc.mark_id} if doc.mark_id else {"job_id": doc.job_id}))
     context = {
         "doc": doc,
-        "revisions": revisions.select_related("signed_by").order_by("-revision", "-created_at"),
+        "revisions": doc_reads.document_revisions(doc),
         "verify_url": svc.verify_url(doc.code),
         "can_check": doc.state == DocumentState.DRAFT and svc.can_check(user) and doc.created_by_id != user.pk,
         "is_preparer": doc.created_by_id == user.pk,
         "can_sign": doc.state == DocumentState.CHECKED and has_ability(user, Ability.SIGN),
-        "has_licence": SignatoryProfile.objects.filter(user=user).exists(),
+        "has_licence": doc_reads.has_licence(user),
         "certificate": usable_certificate(user) if has_ability(user, Ability.SIGN) else None,
         "can_prepare": svc.can_prepare(user),
     }
@@ -212,7 +202,7 @@ def report_build_view(request: HttpRequest, code: str) -> HttpResponse:
 
 
 def _build_or_404(user, build_id: int) -> DocumentBuild:
-    build = DocumentBuild.objects.select_related("job", "document", "requested_by").filter(pk=build_id).first()
+    build = doc_reads.build_by_id(build_id)
     if build is None or not has_ability(user, Ability.VIEW):
         raise Http404("No such build.")
     return build
@@ -336,7 +326,8 @@ def ca_certificate(request: HttpRequest) -> HttpResponse:
 
 @require_GET
 def ca_crl(request: HttpRequest) -> HttpResponse:
-    limited = None if ratelimit.allow(request, "crl", 120) else HttpResponse("Too many requests.", status=429)
+    per_min = int(settings.REGISTRY.get("CRL_RATE_PER_MIN", 120))
+    limited = None if ratelimit.allow(request, "crl", per_min) else HttpResponse("Too many requests.", status=429)
     if limited is not None:
         return limited
     try:

@@ -16,8 +16,9 @@ from django.urls import reverse
 from django.utils.functional import SimpleLazyObject
 
 from registry.errors import Conflict
-from registry.models import Document, Mark
+from registry.models import Mark
 from registry.roles import Ability, has_ability
+from registry.selectors.documents import mark_sheets
 from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_list_counts, mark_search
 from registry.selectors.paging import MAX_NUMBERED_PAGE, KeysetPage, keyset_page
 from registry.selectors.read_cache import audit_token, cached_read
@@ -132,9 +133,7 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
         "can_manage": has_ability(request.user, Ability.MANAGE),
         "can_record": has_ability(request.user, Ability.RECORD),
         # documents area: the mark's current and open sheets, and whether the user may prepare one
-        "sheets": Document.objects.filter(mark=detail.mark, state__in=("signed", "draft", "checked")).order_by(
-            "-revision"
-        )[:3],
+        "sheets": mark_sheets(detail.mark),
         "can_prepare": can_prepare(request.user),
         # position history plot (registry/selectors/timeseries.py)
         "timeseries": mark_timeseries(mark=detail.mark, frame_label=format_frame),

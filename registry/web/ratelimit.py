@@ -1,30 +1,19 @@
-"""A small per-client rate limit for public pages (fixed one-minute windows in Django's cache).
+"""A per-client rate limit for public pages (the verification page, the revocation list).
 
-The client is the request's ``REMOTE_ADDR`` (behind ``deploy/nginx/registry.conf`` nginx passes the
-real address; the application does not trust ``X-Forwarded-For``). With several application processes,
-configure a shared cache (database or Redis) so that the limit holds across them; with the default
-local-memory cache each process counts on its own.
+Fixed one-minute windows counted in the database (``registry.services.ratelimit``), so that the limit
+holds across every gunicorn worker and every application server. The client is its address as the
+sign-in throttle takes it (``registry.services.signin.client_address``: ``REGISTRY_CLIENT_IP_HEADER``
+when the proxy sets it, else ``REMOTE_ADDR``).
 """
 
 from __future__ import annotations
 
-import time
-
-from django.core.cache import cache
+from registry.services.ratelimit import count_request
+from registry.services.signin import client_address
 
 
 def allow(request, scope: str, per_minute: int) -> bool:
     """Count this request against ``scope``; False when the client is over ``per_minute`` this minute."""
     if per_minute <= 0:
         return True
-    client = request.META.get("REMOTE_ADDR", "") or "unknown"
-    window = int(time.time() // 60)
-    key = f"ratelimit:{scope}:{client}:{window}"
-    if cache.add(key, 1, timeout=90):
-        return True
-    try:
-        count = cache.incr(key)
-    except ValueError:  # expired between add and incr
-        cache.add(key, 1, timeout=90)
-        return True
-    return count <= per_minute
+    return count_request(scope, client_address(request)) <= per_minute

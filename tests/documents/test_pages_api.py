@@ -112,6 +112,24 @@ def test_verification_is_rate_limited(client, signed_sheet, settings):
     assert codes == [200, 200, 200, 429, 429]
 
 
+def test_verification_page_and_api_share_one_limit(client, api_client_for, signed_sheet, settings):
+    settings.REGISTRY = {**settings.REGISTRY, "VERIFY_RATE_PER_MIN": 3}
+    pdf = bytes(signed_sheet.content)
+    assert client.get(reverse("web:verify", args=[signed_sheet.code])).status_code == 200
+    api = api_client_for(None)
+    codes = [api.post("/api/verify/", {"file": io.BytesIO(pdf)}, format="multipart").status_code for _ in range(3)]
+    assert codes == [200, 200, 429]  # the page's request counted too
+    assert client.get(reverse("web:verify", args=[signed_sheet.code])).status_code == 429
+
+
+def test_revocation_list_is_rate_limited_by_its_own_setting(client, office, settings):
+    settings.REGISTRY = {**settings.REGISTRY, "CRL_RATE_PER_MIN": 2, "VERIFY_RATE_PER_MIN": 5}
+    codes = [client.get(reverse("web:ca-crl")).status_code for _ in range(3)]
+    assert codes == [200, 200, 429]
+    # the verification page counts apart from the revocation list
+    assert client.get(reverse("web:verify-upload")).status_code == 200
+
+
 def test_authority_certificate_and_revocation_list_are_public(client, office):
     from cryptography import x509
 

@@ -2,7 +2,7 @@
 
 Signs checked document DOC as USER (a signatory), whose account password is read from standard input
 (one line; for scripts: ``printf '%s\\n' "$PW" | manage.py sign_document ...``). ``-o`` writes the
-signed PDF. The signature is PAdES with USER's certificate; see ``registry/services/documents.py``.
+signed PDF. The signature is PAdES with USER's certificate; see ``registry/services/documents/signoff.py``.
 """
 
 from __future__ import annotations
