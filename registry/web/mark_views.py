@@ -125,19 +125,27 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
         detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code), token=token)
     except Mark.DoesNotExist:
         raise Http404(f"No mark with code {code!r}.") from None
+    mark = detail.mark
     context = {
         "detail": detail,
-        "mark": detail.mark,
+        "mark": mark,
         "read_token": token,
         "can_manage": has_ability(request.user, Ability.MANAGE),
         "can_record": has_ability(request.user, Ability.RECORD),
-        # documents area: the mark's current and open sheets, and whether the user may prepare one
-        "sheets": Document.objects.filter(mark=detail.mark, state__in=("signed", "draft", "checked")).order_by(
-            "-revision"
-        )[:3],
+        # documents area: the mark's current and open sheets (audited, like every document change), and
+        # whether the user may prepare one
+        "sheets": cached_read(
+            "mark-sheets",
+            (code,),
+            lambda: list(
+                Document.objects.filter(mark=mark, state__in=("signed", "draft", "checked")).order_by("-revision")[:3]
+            ),
+            token=token,
+        ),
         "can_prepare": can_prepare(request.user),
-        # position history plot (registry/selectors/timeseries.py)
-        "timeseries": mark_timeseries(mark=detail.mark, frame_label=format_frame),
+        # position history plot (registry/selectors/timeseries.py): drawn only when the page's cached
+        # body (the template's {% cache %}, under the same token) is missing
+        "timeseries": SimpleLazyObject(lambda: mark_timeseries(mark=mark, frame_label=format_frame)),
     }
     return render(request, "registry/mark_detail.html", context)
 
