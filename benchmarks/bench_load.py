@@ -269,6 +269,7 @@ def _session_and_targets(tree: Path, env: dict) -> dict:
     code = r"""
 import json, django
 django.setup()
+from django.conf import settings
 from django.contrib.auth import get_user_model, SESSION_KEY, BACKEND_SESSION_KEY, HASH_SESSION_KEY
 from django.contrib.auth.models import Group
 from django.contrib.sessions.backends.db import SessionStore
@@ -278,7 +279,7 @@ u, _ = User.objects.get_or_create(username="bench-load-viewer")
 u.groups.set([Group.objects.get(name="viewer")])
 s = SessionStore()
 s[SESSION_KEY] = str(u.pk)
-s[BACKEND_SESSION_KEY] = "django.contrib.auth.backends.ModelBackend"
+s[BACKEND_SESSION_KEY] = settings.AUTHENTICATION_BACKENDS[0]  # as a sign-in through the form
 s[HASH_SESSION_KEY] = u.get_session_auth_hash()
 s.create()
 marks = list(Mark.objects.exclude(search_lat_deg=None).order_by("code").values_list("code", "search_lat_deg", "search_lon_deg")[:100])

@@ -133,3 +133,22 @@ def test_pages_of_more_marks_than_django_s_default_cache_holds_are_still_read_fr
     with CaptureQueriesContext(connection) as ctx:
         assert client.get("/marks/MM-0001/").status_code == 200
     assert len(ctx.captured_queries) == 3
+
+
+@pytest.mark.django_db
+def test_the_nearby_answer_follows_a_published_position_and_refuses_as_before(client, viewer, manager, technician):
+    """The API's answer is kept under the query as sent: a write still shows at once, a bad query is
+    still a 400 each time, and a user without the role is refused before anything is read."""
+    mark_create(actor=manager, data={"code": "NB-1", "name": "Nearby One"})
+    client.force_login(viewer)
+    assert client.get(NEAR).json()["count"] == 0
+    p = position_propose(actor=technician, mark_code="NB-1", data=position_data(lat_deg=45.2, lon_deg=-110.6))
+    assert client.get(NEAR).json()["count"] == 0  # proposed only: no search location yet
+    position_publish(actor=manager, position_id=p.pk)
+    found = client.get(NEAR).json()
+    assert found["count"] == 1 and found["marks"][0]["code"] == "NB-1" and found["marks"][0]["distance_m"] == 0.0
+    for _ in range(2):
+        bad = client.get(NEAR.replace("radius_km=5", "radius_km=5000"))
+        assert bad.status_code == 400 and bad.json()["error"]["details"]
+    client.logout()
+    assert client.get(NEAR).status_code in (401, 403)
