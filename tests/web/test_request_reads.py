@@ -152,3 +152,21 @@ def test_the_nearby_answer_follows_a_published_position_and_refuses_as_before(cl
         assert bad.status_code == 400 and bad.json()["error"]["details"]
     client.logout()
     assert client.get(NEAR).status_code in (401, 403)
+
+
+@pytest.mark.django_db
+def test_the_list_links_each_mark_to_its_page_as_django_names_it(client, viewer):
+    """The list builds its addresses from one reversed address; a code from before the code rule (here with a
+    space and a small letter) is still quoted as Django quotes it."""
+    from django.core.cache import cache
+    from django.urls import reverse
+
+    from registry.models import Mark
+
+    Mark.objects.bulk_create([Mark(code="LK-1.A_2", name="Link one"), Mark(code="Old mark 7", name="Link two")])
+    cache.clear()  # written without the services
+    client.force_login(viewer)
+    page = client.get("/marks/").content.decode()
+    for code in ("LK-1.A_2", "Old mark 7"):
+        assert f'<a href="{reverse("web:mark-detail", args=[code])}" class="code">' in page
+    assert "/marks/Old%20mark%207/" in page
