@@ -158,7 +158,9 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
             "mark-sheets",
             (code,),
             lambda: list(
-                Document.objects.filter(mark=mark, state__in=("signed", "draft", "checked")).order_by("-revision")[:3]
+                Document.objects.filter(mark=mark, state__in=("signed", "draft", "checked"))
+                .only("code", "revision", "state", "out_of_date", "mark_id")  # not the PDF itself
+                .order_by("-revision")[:3]
             ),
             token=token,
         ),
