@@ -113,17 +113,24 @@ class Conn:
         self.reader = self.writer = None
 
 
-async def closed_loop(paths: list[str], cookie: str, clients: int, seconds: float) -> dict:
+async def closed_loop(paths: list[str], cookie: str, clients: int, seconds: float, min_requests: int = 0) -> dict:
+    """``seconds`` of requests (and at least ``min_requests``, within the phase's hard bounds)."""
     latencies: list[float] = []
     statuses: dict[int, int] = {}
     errors = 0
     counter = 0
-    deadline = time.perf_counter() + min(seconds, MAX_SECONDS_PER_PHASE)
+    start = time.perf_counter()
+    deadline = start + min(seconds, MAX_SECONDS_PER_PHASE)
+    hard_deadline = start + MAX_SECONDS_PER_PHASE
+
+    def go_on() -> bool:
+        now = time.perf_counter()
+        return counter < MAX_REQUESTS_PER_PHASE and (now < deadline or (counter < min_requests and now < hard_deadline))
 
     async def client():
         nonlocal counter, errors
         conn = Conn(cookie)
-        while time.perf_counter() < deadline and counter < MAX_REQUESTS_PER_PHASE:
+        while go_on():
             path = paths[counter % len(paths)]
             counter += 1
             t0 = time.perf_counter()
@@ -269,6 +276,7 @@ def _session_and_targets(tree: Path, env: dict) -> dict:
     code = r"""
 import json, django
 django.setup()
+from django.conf import settings
 from django.contrib.auth import get_user_model, SESSION_KEY, BACKEND_SESSION_KEY, HASH_SESSION_KEY
 from django.contrib.auth.models import Group
 from django.contrib.sessions.backends.db import SessionStore
@@ -278,7 +286,7 @@ u, _ = User.objects.get_or_create(username="bench-load-viewer")
 u.groups.set([Group.objects.get(name="viewer")])
 s = SessionStore()
 s[SESSION_KEY] = str(u.pk)
-s[BACKEND_SESSION_KEY] = "django.contrib.auth.backends.ModelBackend"
+s[BACKEND_SESSION_KEY] = settings.AUTHENTICATION_BACKENDS[0]  # as a sign-in through the form
 s[HASH_SESSION_KEY] = u.get_session_auth_hash()
 s.create()
 marks = list(Mark.objects.exclude(search_lat_deg=None).order_by("code").values_list("code", "search_lat_deg", "search_lon_deg")[:100])
@@ -327,7 +335,9 @@ def run_tree(label: str, tree: Path, args) -> dict:
         _wait_port(NGINX_PORT)
         result = {"tree": str(tree), "endpoints": {}}
         for name, paths in endpoints.items():
-            asyncio.run(closed_loop(paths, cookie, args.clients, 3))  # warm-up
+            # warm-up: every address served a few times, so that each worker has read it once (a read
+            # cache being filled is not the steady state; bench_pages.py times the uncached reads)
+            asyncio.run(closed_loop(paths, cookie, args.clients, 3, min_requests=4 * len(paths)))
             r = asyncio.run(closed_loop(paths, cookie, args.clients, args.seconds))
             result["endpoints"][name] = r
             sys.stderr.write(f"[{label}] {name}: {r['rps']:.0f} req/s p95 {r['p95_ms']:.0f} ms {r['statuses']}\n")

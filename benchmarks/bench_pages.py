@@ -15,7 +15,9 @@ What it does, in one run (each backend in its own process, Django settings being
    (and migrated, so new indexes are built on it).
 2. Signs in as a viewer with Django's test client and times each request (server time as seen
    by the test client: URL resolution, middleware, queries, template): the median and the
-   slowest of ``--repeat`` runs after one warm-up, with the number of SQL queries. The cache is
+   slowest of ``--repeat`` runs after one warm-up, the median CPU time of this process (the
+   server's Python work, which moves less with the machine's load than the wall clock), and the
+   number of SQL queries. The cache is
    emptied before each timed request, so the figures are those of the reads themselves, not of
    the registry's read cache (``registry.selectors.read_cache``).
 
@@ -103,6 +105,7 @@ def main() -> None:
     ap.add_argument("--reload", action="store_true")
     ap.add_argument("--load-only", action="store_true")
     ap.add_argument("--repeat", type=int, default=15)
+    ap.add_argument("--only", default="", help="run only the requests whose label contains this text")
     ap.add_argument("--pg-url", default="postgres://postgres@127.0.0.1:5432/reg_infra_bench")
     ap.add_argument("--sqlite-path", default=str(ROOT / "var" / "bench" / "pages.sqlite3"))
     ap.add_argument("--worker", action="store_true", help=argparse.SUPPRESS)
@@ -125,7 +128,7 @@ def main() -> None:
             env["DATABASE_URL"] = f"sqlite:///{Path(args.sqlite_path).resolve()}"
         env.pop("REGISTRY_PRODUCTION", None)
         cmd = [sys.executable, __file__, "--worker", "--backend", backend, "--marks", str(n)]
-        cmd += ["--repeat", str(args.repeat)] + (["--reload"] if args.reload else [])
+        cmd += ["--repeat", str(args.repeat), "--only", args.only] + (["--reload"] if args.reload else [])
         cmd += ["--load-only"] if args.load_only else []
         out = subprocess.run(cmd, env=env, cwd=ROOT, check=True, capture_output=True, text=True)
         sys.stderr.write(out.stderr)
@@ -137,9 +140,12 @@ def main() -> None:
     print()
     for backend, r in results.items():
         print(f"{backend}: {r['marks']:,} marks, viewer, Django test client; {args.repeat} runs each")
-        print(f"  {'request':<58}{'median ms':>10}{'max ms':>9}{'queries':>9}{'rows':>6}")
+        print(f"  {'request':<58}{'median ms':>10}{'max ms':>9}{'CPU ms':>8}{'queries':>9}{'rows':>6}{'load':>6}")
         for label, t in r["timings"].items():
-            print(f"  {label:<58}{t['median_ms']:>10.1f}{t['max_ms']:>9.1f}{t['queries']:>9}{t['rows']:>6}")
+            print(
+                f"  {label:<58}{t['median_ms']:>10.1f}{t['max_ms']:>9.1f}{t['cpu_ms']:>8.1f}{t['queries']:>9}{t['rows']:>6}"
+                f"{t['load_1min']:>6.1f}"
+            )
         print(f"  1-minute load average at the end ({os.cpu_count()} CPUs): {r['load_average_1min']:.1f}")
         print()
     print(json.dumps(results, indent=2))
@@ -300,15 +306,19 @@ def worker(args) -> dict:
 
     timings = {}
     for label, url in _cases(client, args.marks):
+        if args.only and args.only not in label:
+            continue
         client.get(url)  # warm-up
         ms = []
+        cpu = []
         for _ in range(args.repeat):
             cache.clear()  # the registry's read cache would answer a repeated request: time the real reads
             reset_queries()
             with CaptureQueriesContext(connection) as ctx:
-                t0 = time.perf_counter()
+                t0, c0 = time.perf_counter(), time.process_time()
                 resp = client.get(url)
                 ms.append((time.perf_counter() - t0) * 1000.0)
+                cpu.append((time.process_time() - c0) * 1000.0)
         if resp.status_code != 200:
             sys.stderr.write(f"[{args.backend}] {url}: HTTP {resp.status_code}\n")
         body = resp.content.decode()
@@ -318,6 +328,8 @@ def worker(args) -> dict:
             "status": resp.status_code,
             "median_ms": statistics.median(ms),
             "max_ms": max(ms),
+            "cpu_ms": statistics.median(cpu),
+            "load_1min": os.getloadavg()[0],
             "queries": len(ctx.captured_queries),
             "rows": rows,
         }

@@ -43,10 +43,17 @@ def has_ability(user, ability: Ability) -> bool:
     return user.has_perm(f"registry.{ability.value}")
 
 
-def role_names(user) -> list[str]:
+def role_names(user, *, as_signed_in: bool = False) -> list[str]:
+    """The user's roles, in the order of :class:`Role`.
+
+    ``as_signed_in``: the group names read with the request's user when it was signed in
+    (``registry.auth_backend``), if there are any, instead of a query; for showing, never for deciding.
+    """
     if user is None or not user.is_authenticated:
         return []
-    names = set(user.groups.values_list("name", flat=True))
+    names = getattr(user, "_registry_group_names", None) if as_signed_in else None
+    if names is None:
+        names = set(user.groups.values_list("name", flat=True))
     return [r.value for r in Role if r.value in names]
 
 

@@ -11,6 +11,7 @@ from the environment (see ``deploy/README.md`` for the full list):
 ``REGISTRY_GEOID_DIR``   folder holding the office's geoid grids (added to PROJ's search path)
 ``REGISTRY_BASEMAP_URL`` optional XYZ tile URL for map panels; empty: no basemap
 ``REGISTRY_BASEMAP_ATTRIBUTION`` the tile provider's attribution text, shown under the map
+``REGISTRY_CACHE_MAX_ENTRIES`` entries of each process's read cache (default 3000, about 50 MB at most)
 """
 
 from __future__ import annotations
@@ -126,6 +127,19 @@ AUTHENTICATION_BACKENDS = [
     "registry.auth_backend.RegistryModelBackend",
     "django.contrib.auth.backends.ModelBackend",  # keeps sessions signed in through it valid; never asked for perms
 ]
+#: Each process's own memory (registry/selectors/read_cache.py: entries are keyed on the newest audit row,
+#: so a cache shared between processes is not needed for correctness). Django's default of 300 entries is
+#: smaller than the working set of a busy office (a mark page keeps three: its rows, its sheets and its
+#: rendered body, about 45 kB together), and a least-recently-used cache cycled over more entries than it
+#: holds answers nothing from memory; 3,000 entries are some 50 MB per process at most.
+CACHES = {
+    "default": {
+        "BACKEND": "django.core.cache.backends.locmem.LocMemCache",
+        "OPTIONS": {"MAX_ENTRIES": int(os.environ.get("REGISTRY_CACHE_MAX_ENTRIES", "3000"))},
+    }
+}
+#: Django's database sessions, read with plain SQL (registry/sessions.py).
+SESSION_ENGINE = "registry.sessions"
 AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
     {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},

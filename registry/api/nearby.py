@@ -118,6 +118,15 @@ class MarksNearView(APIView):
         },
     )
     def get(self, request):
+        # The answer depends on the query, the registry's state (a published position moves a search
+        # location: the newest audit row) and the date (the visit filter counts years to today): cached
+        # under all three (registry.selectors.read_cache), and under the query as sent, so that a query
+        # answered before is neither validated nor searched again. One that is not valid raises before
+        # anything is cached.
+        raw = tuple(sorted((k, tuple(v)) for k, v in request.query_params.lists()))
+        return Response(cached_read("marks-near-answer", (raw, dt.date.today()), lambda: self._answer(request)))
+
+    def _answer(self, request) -> dict:
         params = request.query_params.dict()
         if "good_visit_within_yr" in params and "intact_visit_within_yr" not in params:
             params["intact_visit_within_yr"] = params.pop("good_visit_within_yr")  # the earlier name (deprecated)
@@ -125,34 +134,26 @@ class MarksNearView(APIView):
         query.is_valid(raise_exception=True)
         q = query.validated_data
         filters = {k: q[k] for k in _FILTERS if k in q}
-        # The answer changes only with an audit row (a published position moves a search location), or
-        # with the date for the visit filter: cached under both (registry.selectors.read_cache).
-        found = cached_read(
-            "marks-near",
-            (q["lat"], q["lon"], q["radius_km"], q["limit"], sorted(filters.items()), dt.date.today()),
-            lambda: [
-                m.as_dict()
-                for m in marks_near(
-                    lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
-                )
-            ],
-        )
-        return Response(
-            {
-                "search": {
-                    "lat_deg": round(q["lat"], 9),
-                    "lon_deg": round(q["lon"], 9),
-                    "radius_m": round(q["radius_km"] * 1000.0, 3),
-                    "limit": q["limit"],
-                    "filters": filters,
-                    "ellipsoid": "GRS80",
-                    "location_note": SEARCH_LOCATION_NOTE,
-                },
-                "count": len(found),
-                "marks": found,
-                "cautions": list(CAUTIONS),
-            }
-        )
+        found = [
+            m.as_dict()
+            for m in marks_near(
+                lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
+            )
+        ]
+        return {
+            "search": {
+                "lat_deg": round(q["lat"], 9),
+                "lon_deg": round(q["lon"], 9),
+                "radius_m": round(q["radius_km"] * 1000.0, 3),
+                "limit": q["limit"],
+                "filters": filters,
+                "ellipsoid": "GRS80",
+                "location_note": SEARCH_LOCATION_NOTE,
+            },
+            "count": len(found),
+            "marks": found,
+            "cautions": list(CAUTIONS),
+        }
 
     @staticmethod
     def _lists(request) -> dict:

@@ -27,7 +27,11 @@ _RELATED = ("mark", "job", "created_by", "checked_by", "signed_by")
 def mark_sheets(mark: Mark, *, limit: int = MARK_PAGE_SHEETS) -> list[Document]:
     """The mark's signed and open sheets, newest revision first (the mark page's documents area)."""
     states = (DocumentState.SIGNED, DocumentState.DRAFT, DocumentState.CHECKED)
-    return list(Document.objects.filter(mark=mark, state__in=states).order_by("-revision")[:limit])
+    return list(
+        Document.objects.filter(mark=mark, state__in=states)
+        .only("code", "revision", "state", "out_of_date", "mark_id")  # not the PDF itself
+        .order_by("-revision")[:limit]
+    )
 
 
 @dataclass

@@ -23,6 +23,7 @@ from collections.abc import Callable
 from typing import Any, TypeVar
 
 from django.core.cache import cache
+from django.db import connections, router
 
 from registry.models import AuditEvent
 
@@ -32,9 +33,17 @@ T = TypeVar("T")
 
 
 def audit_token() -> str:
-    """``id@time`` of the newest audit row ('0' for an empty trail)."""
-    last = AuditEvent.objects.order_by("-id").values_list("id", "at").first()
-    return "0" if last is None else f"{last[0]}@{last[1].isoformat()}"
+    """``id@time`` of the newest audit row ('0' for an empty trail).
+
+    Read with plain SQL (it runs on every cached page) from the database the router reads audit rows
+    from, which is the one the cached reads come from (the replica on lag-tolerant pages).
+    """
+    conn = connections[router.db_for_read(AuditEvent)]
+    table = conn.ops.quote_name(AuditEvent._meta.db_table)
+    with conn.cursor() as cur:
+        cur.execute(f"SELECT id, {conn.ops.quote_name('at')} FROM {table} ORDER BY id DESC LIMIT 1")
+        last = cur.fetchone()
+    return "0" if last is None else f"{last[0]}@{last[1]}"
 
 
 def cached_read(name: str, parts: tuple[Any, ...], compute: Callable[[], T], *, token: str | None = None) -> T:

@@ -11,5 +11,5 @@ def registry_context(request):
     user = getattr(request, "user", None)
     return {
         "basemap_url": settings.REGISTRY.get("BASEMAP_URL", ""),
-        "user_roles": role_names(user) if user is not None and user.is_authenticated else [],
+        "user_roles": role_names(user, as_signed_in=True) if user is not None and user.is_authenticated else [],
     }

@@ -7,6 +7,7 @@ go through :mod:`registry.services.marks` (role check, validation, transaction, 
 from __future__ import annotations
 
 import functools
+import re
 
 from django.contrib import messages
 from django.core.exceptions import ValidationError
@@ -43,6 +44,22 @@ _LISTING_NAMES = (
     "matching_any_status",
     "registry_total",
 )
+
+
+_URL_SAFE_CODE = re.compile(r"[A-Z0-9][A-Z0-9_.-]*")  # CODE_VALIDATOR's characters: none is quoted in a URL
+_CODE_SLOT = "CODE-SLOT"
+
+
+def _mark_url_maker():
+    """``code → the mark page's address``, reversed once for a whole list instead of once per row."""
+    head, tail = reverse("web:mark-detail", args=[_CODE_SLOT]).split(_CODE_SLOT)
+
+    def url_of(code: str) -> str:
+        if _URL_SAFE_CODE.fullmatch(code):
+            return f"{head}{code}{tail}"
+        return reverse("web:mark-detail", args=[code])  # a code from before the rule: quoted as Django does
+
+    return url_of
 
 
 def _page_number(raw: str | None) -> int:
@@ -93,7 +110,10 @@ def mark_list(request: HttpRequest) -> HttpResponse:
                 token=token,
             )
         page.object_list = attach_usability(page.object_list)
-        markmap = build_map(points_from_marks(page.object_list, lambda code: reverse("web:mark-detail", args=[code])))
+        url_of = _mark_url_maker()
+        for m in page.object_list:
+            m.page_url = url_of(m.code)
+        markmap = build_map(points_from_marks(page.object_list, url_of))
         return {
             "page": page,
             "markmap": markmap,
@@ -126,17 +146,20 @@ def mark_page(request: HttpRequest, code: str) -> HttpResponse:
         detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code), token=token)
     except Mark.DoesNotExist:
         raise Http404(f"No mark with code {code!r}.") from None
+    mark = detail.mark
     context = {
         "detail": detail,
-        "mark": detail.mark,
+        "mark": mark,
         "read_token": token,
         "can_manage": has_ability(request.user, Ability.MANAGE),
         "can_record": has_ability(request.user, Ability.RECORD),
-        # documents area: the mark's current and open sheets, and whether the user may prepare one
-        "sheets": mark_sheets(detail.mark),
+        # documents area: the mark's current and open sheets (cached on the newest audit row, like the page),
+        # and whether the user may prepare one
+        "sheets": cached_read("mark-sheets", (code,), lambda: mark_sheets(mark), token=token),
         "can_prepare": can_prepare(request.user),
-        # position history plot (registry/selectors/timeseries.py)
-        "timeseries": mark_timeseries(mark=detail.mark, frame_label=format_frame),
+        # position history plot (registry/selectors/timeseries.py): drawn only when the page's cached
+        # body (the template's {% cache %}, under the same token) is missing
+        "timeseries": SimpleLazyObject(lambda: mark_timeseries(mark=mark, frame_label=format_frame)),
     }
     return render(request, "registry/mark_detail.html", context)
 

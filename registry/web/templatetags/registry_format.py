@@ -291,11 +291,17 @@ def state(value):
     """A state or a visit's finding as a word in a bordered badge; the colour class is secondary."""
     if not value:
         return DASH
-    label = _state_labels().get(str(value), str(value).replace("_", " "))
-    short = _SHORT_STATE_WORDS.get(str(value))
+    return _state_badge(str(value))
+
+
+@lru_cache(maxsize=256)
+def _state_badge(value: str):
+    """The badge of one state (a few dozen states: made once each, not for every row of every list)."""
+    label = _state_labels().get(value, value.replace("_", " "))
+    short = _SHORT_STATE_WORDS.get(value)
     if short:  # a compact word in tables; the whole label as its title (and on the mark page itself)
-        return format_html('<span class="state state-{}" title="{}">{}</span>', str(value), label, short)
-    return format_html('<span class="state state-{}">{}</span>', str(value), label)
+        return format_html('<span class="state state-{}" title="{}">{}</span>', value, label, short)
+    return format_html('<span class="state state-{}">{}</span>', value, label)
 
 
 @register.filter
