@@ -1,4 +1,4 @@
-"""Nearby marks: which marks lie within a radius of a point, or within a distance of a site polygon.
+"""Nearby marks: which marks lie within a radius of a point.
 
 Two ways to find candidates, one way to decide:
 
@@ -55,8 +55,6 @@ from registry.selectors import spatial_sql
 
 #: Largest search radius accepted (m). A registry search wider than this is a listing.
 MAX_RADIUS_M = 1_000_000.0
-#: Largest distance from a site polygon accepted (m).
-MAX_POLYGON_DISTANCE_M = 100_000.0
 #: Largest ``limit`` accepted.
 MAX_LIMIT = 10_000
 #: First box radius of the portable path when a limit is given (m); it grows as needed.
@@ -97,12 +95,10 @@ class NearbyMark:
     ----------
     mark : Mark
     distance_m : float
-        Geodesic distance on GRS80 from the search point (or from the site polygon; 0
-        inside it) to the mark's search location.
+        Geodesic distance on GRS80 from the search point to the mark's search location.
     azimuth_deg : float or None
         Geodetic azimuth (clockwise from north, [0, 360)) at the search point toward the
-        mark (for a polygon: from the nearest boundary point). None when the distance is
-        under 1 mm or the mark lies inside the polygon.
+        mark. None when the distance is under 1 mm.
     """
 
     mark: Mark
@@ -272,10 +268,6 @@ def _decide(
     rows: spatial_sql.CandidateRows, lat_deg: float, lon_deg: float, radius_m: float, filters: _Filters
 ) -> _Decided:
     dist_m, az_deg = proximity.geodesic_inverse(lat_deg, lon_deg, rows.lat_deg, rows.lon_deg)
-    return _decide_with(rows, dist_m, az_deg, radius_m, filters)
-
-
-def _decide_with(rows, dist_m, az_deg, radius_m, filters) -> _Decided:
     keep = np.nonzero(dist_m <= radius_m)[0]
     ids = rows.ids[keep]
     ok = _accuracy_ok(ids, filters)
@@ -481,67 +473,3 @@ def marks_near(
     chosen = _resolve_path(path)
     finder = _postgis_decided if chosen == PATH_POSTGIS else _portable_decided
     return _materialise(finder(lat, lon, radius, n, filters), n)
-
-
-def marks_near_polygon(
-    *,
-    polygon_geojson: dict | str,
-    distance_m: float,
-    limit: int | None = None,
-    status: str | Sequence[str] | None = None,
-    intact_visit_within_yr: float | None = None,
-    frame_epsg: int | None = None,
-    accuracy_class_max_m: float | None = None,
-    stability: str | Sequence[str] | None = None,
-    as_of: dt.date | None = None,
-    path: str = PATH_AUTO,
-) -> list[NearbyMark]:
-    """Marks within ``distance_m`` of a site polygon (inside counts as 0), nearest first.
-
-    Parameters
-    ----------
-    polygon_geojson : dict or str
-        A GeoJSON Polygon (or a Feature holding one), longitude first (RFC 7946); holes
-        allowed; at most 200 km across.
-    distance_m : float
-        Geodesic distance from the polygon (m), 0 ≤ distance ≤ 100 km.
-
-    Other parameters as for ``marks_near``. Edges are treated as geodesics
-    (``registry.geodesy.proximity``).
-    """
-    from registry.jsonlimits import JSONLimitError, loads_checked
-
-    if isinstance(polygon_geojson, str):
-        try:
-            polygon_geojson = loads_checked(polygon_geojson)
-        except JSONLimitError as exc:
-            raise InvalidInput(f"The site is not usable: {exc.message}", code=exc.code) from None
-        except ValueError:
-            raise InvalidInput("The site is not valid JSON.", code="polygon_json") from None
-    try:
-        polygon = proximity.parse_site_polygon(polygon_geojson)
-    except proximity.PolygonError as exc:
-        raise InvalidInput(exc.message, code=exc.code) from None
-    dist_limit = _number("distance_m", distance_m, lo=0.0, hi=MAX_POLYGON_DISTANCE_M)
-    n = None if limit is None else int(_number("limit", limit, lo=1, hi=MAX_LIMIT))
-    filters = _filters(
-        status=status,
-        stability=stability,
-        intact_visit_within_yr=intact_visit_within_yr,
-        frame_epsg=frame_epsg,
-        accuracy_class_max_m=accuracy_class_max_m,
-        as_of=as_of,
-    )
-    chosen = _resolve_path(path)
-    # Everything within dist_limit of the polygon is within (enclosing radius + dist_limit)
-    # of its centre; 0.1 % + 1 m more covers the geodesic edges' bulge beyond the vertices.
-    reach_m = (polygon.enclosing_radius_m + dist_limit) * 1.001 + 1.0
-    no_accuracy = _Filters(filters.shape, filters.frame_epsg, filters.visit_cutoff, None)
-    finder = _postgis_decided if chosen == PATH_POSTGIS else _portable_decided
-    around = finder(polygon.centre_lat_deg, polygon.centre_lon_deg, reach_m, None, no_accuracy)
-    if not len(around):
-        return []
-    dist_poly_m, az_deg = proximity.distance_to_polygon_m(polygon, around.lat_deg, around.lon_deg)
-    rows = spatial_sql.CandidateRows(around.ids, around.codes, around.lat_deg, around.lon_deg, extra=around.mark_rows)
-    decided = _decide_with(rows, dist_poly_m, az_deg, dist_limit, filters)
-    return _materialise(decided, n)

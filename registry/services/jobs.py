@@ -1,6 +1,6 @@
 """Writes on jobs: create, and edit with optimistic concurrency on ``Job.version``.
 
-A job carries everything its base screening needs (brief §4): the site (GeoJSON Point or
+A job carries everything its base screening needs: the site (GeoJSON Point or
 Polygon), the deliverable frame and epoch, tolerances (95 %), the RTK error model and the
 screening limits. Each function checks the actor's role (planning jobs is the
 :data:`JOB_PLANNING` ability: technicians and managers), validates every field with a coded ``ValidationError``, runs in one transaction

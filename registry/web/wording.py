@@ -1,6 +1,6 @@
 """Words for people in place of codes: audit events, field names, positions, values in the history.
 
-Pages speak to surveyors in words (brief; issue 10 item 9): no event codes (``position_publish``), field
+Pages speak to surveyors in words: no event codes (``position_publish``), field
 names (``search_lat_deg``), database ids ("position 497") or microsecond timestamps. The codes stay in
 the API and the JSON output (documented in README "API: codes"); this module only turns them into
 words for the pages.

@@ -1,4 +1,4 @@
-"""Display formatting for pages: one way to print each kind of number (brief §7).
+"""Display formatting for pages: one way to print each kind of number (DEVELOPERS.md "Display").
 
 - latitude/longitude in DMS to 0.00001″ with the hemisphere letter (through
   :mod:`registry.geodesy.dms`, so pages, API and PDFs round alike), and in decimal
