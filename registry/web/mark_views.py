@@ -18,7 +18,8 @@ from django.utils.functional import SimpleLazyObject
 from registry.errors import Conflict
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
-from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_list_counts, mark_search
+from registry.selectors.mark_page import mark_detail
+from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_list_counts, mark_search
 from registry.selectors.paging import MAX_NUMBERED_PAGE, KeysetPage, keyset_page
 from registry.selectors.read_cache import audit_token, cached_read
 from registry.selectors.timeseries import mark_timeseries
