@@ -12,13 +12,11 @@ do the validation (one set of rules for the pages, the API and the importers).
 
 from __future__ import annotations
 
-import math
-from functools import lru_cache
-
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
-from registry.geodesy.accuracy import fgdc_horizontal_95_m, vertical_95_m
+from registry.formatting import frame_name
+from registry.geodesy.accuracy import fgdc_horizontal_95_m, sigma_from_variance_m, vertical_95_m
 from registry.models import (
     POSITION_FROZEN_FIELDS,
     CheckStage,
@@ -56,24 +54,10 @@ class RoundedFloatField(serializers.FloatField):
         return round(float(value), self.decimals)
 
 
-@lru_cache(maxsize=256)
-def frame_name(frame_epsg: int | None) -> str | None:
-    """The CRS name PROJ gives an EPSG code (``None`` when unknown)."""
-    if frame_epsg is None:
-        return None
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
-
-    try:
-        return CRS.from_epsg(int(frame_epsg)).name
-    except CRSError:
-        return None
-
-
 def _sigma_mm(variance_m2: float | None) -> float | None:
-    if variance_m2 is None or variance_m2 < 0:
+    if variance_m2 is None:
         return None
-    return round(math.sqrt(variance_m2) * 1000.0, SIGMA_MM_DECIMALS)
+    return round(float(sigma_from_variance_m(variance_m2)) * 1000.0, SIGMA_MM_DECIMALS)
 
 
 class PositionSerializer(serializers.ModelSerializer):
@@ -152,7 +136,7 @@ class PositionSerializer(serializers.ModelSerializer):
         )
 
     def get_network_accuracy_u95_mm(self, obj: Position) -> float:
-        return round(float(vertical_95_m(math.sqrt(max(obj.cov_uu_m2, 0.0)))) * 1000.0, SIGMA_MM_DECIMALS)
+        return round(float(vertical_95_m(sigma_from_variance_m(obj.cov_uu_m2))) * 1000.0, SIGMA_MM_DECIMALS)
 
 
 class SearchLocationSerializer(serializers.Serializer):

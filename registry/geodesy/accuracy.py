@@ -77,6 +77,7 @@ __all__ = [
     "nssda_vertical_95_m",
     "quadrature_sum_m",
     "rmse_m",
+    "sigma_from_variance_m",
     "vertical_95_m",
 ]
 
@@ -237,6 +238,22 @@ def fgdc_horizontal_95_m(cov_ee_m2: ArrayLike, cov_en_m2: ArrayLike, cov_nn_m2: 
     safe = np.where(sigma_max > 0.0, sigma_max, 1.0)
     c = np.where(sigma_max > 0.0, np.clip(sigma_min / safe, 0.0, 1.0), 1.0)
     return _scalar_or_array(np.asarray(circular_k(c)) * sigma_max)
+
+
+def sigma_from_variance_m(variance_m2: ArrayLike) -> FloatOrArray:
+    """The standard deviation (m) from a variance (m²): σ = √variance, the one place it is taken.
+
+    Examples
+    --------
+    >>> sigma_from_variance_m(2.5e-05)
+    0.005
+    >>> sigma_from_variance_m([1e-4, 0.0]).tolist()
+    [0.01, 0.0]
+    """
+    variance = _as_float_array(variance_m2, "variance")
+    if np.any(variance < 0.0):
+        raise ComputationInputError("A variance cannot be negative.", code="negative_variance")
+    return _scalar_or_array(np.sqrt(variance))
 
 
 def vertical_95_m(sigma_m: ArrayLike) -> FloatOrArray:

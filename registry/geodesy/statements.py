@@ -40,6 +40,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from registry.formatting import format_cm, format_m, format_mm
 from registry.geodesy import accuracy as acc
 from registry.geodesy.accuracy import ComputationInputError, Finding
 
@@ -98,26 +99,6 @@ NSSDA_FORMULAS = {
         "FGDC-STD-007.2-1998 (RMSE_min/RMSE_max below 0.6)"
     ),
 }
-
-
-# --------------------------------------------------------------------------------------------------
-# Number formatting (one way everywhere)
-# --------------------------------------------------------------------------------------------------
-
-
-def format_m(value_m: float, decimals: int = 3) -> str:
-    """Metres with a fixed number of decimals, e.g. ``0.210``."""
-    return f"{value_m:.{decimals}f}"
-
-
-def format_mm(value_m: float) -> str:
-    """Millimetres to 0.1 mm from metres, e.g. ``13.7``."""
-    return f"{value_m * 1000.0:.1f}"
-
-
-def format_cm(value_m: float) -> str:
-    """Centimetres to 0.1 cm from metres, e.g. ``4.5`` (ASPRS tables use centimetres)."""
-    return f"{value_m * 100.0:.1f}"
 
 
 # --------------------------------------------------------------------------------------------------

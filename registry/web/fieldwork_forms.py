@@ -315,7 +315,7 @@ class PositionForm(ServiceErrorsMixin, forms.Form):
 
     def __init__(self, *args, frames_in_use: list[int] | tuple[int, ...] = (), **kwargs):
         super().__init__(*args, **kwargs)
-        from registry.web.templatetags.registry_format import format_frame
+        from registry.formatting import format_frame
 
         codes = list(dict.fromkeys([*frames_in_use, *DEFAULT_FRAMES]))
         self.fields["frame_choice"].choices = [(str(c), format_frame(c)) for c in codes] + [

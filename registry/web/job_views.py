@@ -20,6 +20,7 @@ from django.shortcuts import redirect, render
 from django.utils.safestring import mark_safe
 
 from registry.errors import Conflict
+from registry.formatting import format_frame
 from registry.geodesy import rtk, site_files
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.roles import Ability
@@ -34,7 +35,6 @@ from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.fieldwork_forms import AngleField
 from registry.web.job_map import build_job_map, legend_rows
-from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (

@@ -16,6 +16,7 @@ from django.urls import reverse
 from django.utils.functional import SimpleLazyObject
 
 from registry.errors import Conflict
+from registry.formatting import format_frame
 from registry.models import Document, Mark
 from registry.roles import Ability, has_ability
 from registry.selectors.mark_page import mark_detail
@@ -27,7 +28,6 @@ from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm, pack_loaded
 from registry.web.mark_map import build_map, points_from_marks
-from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
 PAGE_SIZE = 50

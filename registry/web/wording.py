@@ -161,7 +161,7 @@ def time_words(value: Any) -> str:
 
 def position_words(frame_epsg: Any, epoch_yr: Any, source: str = "") -> str:
     """A position named by its frame, epoch and source (never by its database id)."""
-    from registry.web.templatetags.registry_format import format_frame
+    from registry.formatting import format_frame
 
     try:
         frame = format_frame(int(frame_epsg))
@@ -199,7 +199,7 @@ def value_words(
         labels = _state_labels()
         return labels.get(str(value), _choice_label(key, value))
     if key in ("frame_epsg", "datum_epsg"):
-        from registry.web.templatetags.registry_format import format_frame
+        from registry.formatting import format_frame
 
         try:
             return format_frame(int(value))
