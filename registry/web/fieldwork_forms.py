@@ -11,33 +11,16 @@ import datetime as dt
 from typing import Any
 
 from django import forms
-from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
+from django.core.exceptions import ValidationError
 
 from registry.geodesy import dms
 from registry.models import AntennaHeightKind, Finding, MarkStatus, OccupationMethod, Stability
 from registry.services import position_rules
+from registry.web.service_errors import ServiceErrorsMixin
 
 #: Frames offered on the propose form even before any position uses them (shared contracts).
 DEFAULT_FRAMES = (7912, 9989, 6319)
 OTHER_FRAME = "other"
-
-
-class ServiceErrorsMixin:
-    """Put a service's ``ValidationError`` on the form's fields, renaming service keys to field names."""
-
-    #: service key → form field
-    service_field_map: dict[str, str] = {}
-
-    def add_service_error(self, error: ValidationError) -> None:
-        if not hasattr(error, "error_dict"):
-            self.add_error(None, error)
-            return
-        for key, errors in error.error_dict.items():
-            target = self.service_field_map.get(key, key)
-            if target == NON_FIELD_ERRORS or target not in self.fields:
-                target = None
-            for e in errors:
-                self.add_error(target, e)
 
 
 class MultipleFileInput(forms.ClearableFileInput):

@@ -35,6 +35,7 @@ from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.fieldwork_forms import AngleField
 from registry.web.job_map import build_job_map, legend_rows
+from registry.web.service_errors import ServiceErrorsMixin
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (
@@ -122,7 +123,7 @@ def _text(label, required=False, help_text=""):
     )
 
 
-class JobForm(forms.Form):
+class JobForm(ServiceErrorsMixin, forms.Form):
     """All fields are passed as text to the service, which converts and validates them (coded errors)."""
 
     code = forms.CharField(
@@ -270,15 +271,6 @@ class JobForm(forms.Form):
         if not only_changed:
             data = {k: v for k, v in data.items() if v not in ("", None) or k in ("client", "notes")}
         return data
-
-    def add_service_error(self, error: ValidationError) -> None:
-        if hasattr(error, "error_dict"):
-            for name, errors in error.error_dict.items():
-                target = name if name in self.fields and name != "version" else None
-                for e in errors:
-                    self.add_error(target, e)
-        else:
-            self.add_error(None, error)
 
 
 def _initial(job: Job) -> dict:

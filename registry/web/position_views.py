@@ -21,6 +21,7 @@ from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.movement import comparison_target, movement_compare
 from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
 from registry.web.fieldwork_forms import DecisionForm, PositionForm
+from registry.web.service_errors import add_service_error
 from registry.web.views import ability_required
 
 #: action → (service, state it needs, title, note required)
@@ -49,7 +50,7 @@ def position_new(request: HttpRequest, code: str) -> HttpResponse:
             except ValidationError as exc:
                 form.add_service_error(exc)
             except Conflict as exc:
-                form.add_error(None, ValidationError(exc.message, code=exc.code))
+                form.add_service_error(exc)
             else:
                 messages.success(request, f"Position {position.pk} proposed for {mark.code}; a manager decides on it.")
                 return redirect(reverse("web:mark-detail", kwargs={"code": mark.code}) + f"#position-{position.pk}")
@@ -77,10 +78,7 @@ def position_decide(request: HttpRequest, code: str, position_id: int, action: s
             try:
                 service(actor=request.user, position_id=position.pk, note=form.cleaned_data["note"], **extra)
             except ValidationError as exc:
-                errors = exc.error_dict if hasattr(exc, "error_dict") else {"note": exc.error_list}
-                for key, items in errors.items():
-                    for e in items:
-                        form.add_error("note" if key == "note" else None, e)
+                add_service_error(form, exc, plain_to="note")
                 status = 400
             except Conflict as exc:
                 refusal = exc.message
