@@ -21,8 +21,19 @@ from registry.selectors import spatial_sql
 
 #: Largest search radius accepted (m). A registry search wider than this is a listing.
 MAX_RADIUS_M = 1_000_000.0
-#: Largest ``limit`` accepted.
+#: Largest ``limit`` accepted (the command line may ask this many).
 MAX_LIMIT = 10_000
+#: What the page and the API let a person ask: the radius in km (at most MAX_RADIUS_M), at most this
+#: many marks (default DEFAULT_LIMIT), and the filters' bounds, which the selector checks again.
+RADIUS_MIN_KM = 0.001
+RADIUS_MAX_KM = MAX_RADIUS_M / 1000.0
+ASKED_LIMIT_MAX = 500
+DEFAULT_LIMIT = 50
+INTACT_VISIT_MIN_YR = 0.001
+INTACT_VISIT_MAX_YR = 200.0
+ACCURACY_MIN_M = 0.0001
+ACCURACY_MAX_M = 100.0
+FRAME_EPSG_MIN = 1024
 PATH_AUTO = "auto"
 PATH_POSTGIS = "postgis"
 PATH_PORTABLE = "portable"
@@ -80,7 +91,9 @@ def parse_filters(
     stabilities = _choices("stability", stability, Stability)
     cutoff = None
     if intact_visit_within_yr is not None:
-        years = number_in_range("intact_visit_within_yr", intact_visit_within_yr, lo=0.0, hi=200.0, lo_open=True)
+        years = number_in_range(
+            "intact_visit_within_yr", intact_visit_within_yr, lo=0.0, hi=INTACT_VISIT_MAX_YR, lo_open=True
+        )
         today = as_of or dt.datetime.now(dt.UTC).date()
         cutoff = today - dt.timedelta(days=math.floor(years * 365.25))
     if frame_epsg is not None:
@@ -90,13 +103,15 @@ def parse_filters(
             raise InvalidInput(
                 "frame_epsg must be an EPSG code (integer).", code="invalid_number", details={"field": "frame_epsg"}
             ) from None
-        if not 1024 <= frame_epsg <= 32767 and not 100000 <= frame_epsg <= 999999:
+        if not FRAME_EPSG_MIN <= frame_epsg <= 32767 and not 100000 <= frame_epsg <= 999999:
             raise InvalidInput(
                 "frame_epsg is not a plausible EPSG code.", code="out_of_range", details={"field": "frame_epsg"}
             )
     accuracy = None
     if accuracy_class_max_m is not None:
-        accuracy = number_in_range("accuracy_class_max_m", accuracy_class_max_m, lo=0.0, hi=100.0, lo_open=True)
+        accuracy = number_in_range(
+            "accuracy_class_max_m", accuracy_class_max_m, lo=0.0, hi=ACCURACY_MAX_M, lo_open=True
+        )
     shape = spatial_sql.FilterShape(
         statuses=statuses,
         stabilities=stabilities,

@@ -15,6 +15,7 @@ from django.core.exceptions import ValidationError
 
 from registry.geodesy import dms
 from registry.models import AntennaHeightKind, Finding, MarkStatus, OccupationMethod, Stability
+from registry.selectors import nearby_filters as lim
 from registry.services import position_rules
 from registry.web.service_errors import ServiceErrorsMixin
 
@@ -398,8 +399,10 @@ class ClearSuspectForm(ServiceErrorsMixin, forms.Form):
 class NearbyForm(forms.Form):
     lat = AngleField(kind="lat", label="Latitude", help_text="Decimal degrees or D M S with N/S.")
     lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees or D M S with E/W.")
-    radius_km = forms.FloatField(label="Radius (km)", min_value=0.001, max_value=1000.0, initial=5.0)
-    limit = forms.IntegerField(label="At most", min_value=1, max_value=500, initial=50)
+    radius_km = forms.FloatField(
+        label="Radius (km)", min_value=lim.RADIUS_MIN_KM, max_value=lim.RADIUS_MAX_KM, initial=5.0
+    )
+    limit = forms.IntegerField(label="At most", min_value=1, max_value=lim.ASKED_LIMIT_MAX, initial=lim.DEFAULT_LIMIT)
     usable = forms.ChoiceField(
         label="Show",
         required=False,
@@ -411,16 +414,29 @@ class NearbyForm(forms.Form):
         label="Stability", required=False, choices=[("", "any stability"), *Stability.choices]
     )
     intact_visit_within_yr = forms.FloatField(
-        label="Found intact within (years)", required=False, min_value=0.001, max_value=200.0
+        label="Found intact within (years)",
+        required=False,
+        min_value=lim.INTACT_VISIT_MIN_YR,
+        max_value=lim.INTACT_VISIT_MAX_YR,
     )
     frame_epsg = forms.IntegerField(
-        label="Published in frame (EPSG)", required=False, min_value=1024, help_text="e.g. 7912, 9989, 6319."
+        label="Published in frame (EPSG)",
+        required=False,
+        min_value=lim.FRAME_EPSG_MIN,
+        help_text="e.g. 7912, 9989, 6319.",
+    )
+    accuracy_class_max_m = forms.FloatField(
+        label="Horizontal accuracy at most (m)",
+        required=False,
+        min_value=lim.ACCURACY_MIN_M,
+        max_value=lim.ACCURACY_MAX_M,
+        help_text="FGDC network accuracy (95 %) of a published position, in the frame above if given; e.g. 0.02.",
     )
 
     def search_args(self) -> dict[str, Any]:
         d = self.cleaned_data
         args = {"lat_deg": d["lat"], "lon_deg": d["lon"], "radius_m": d["radius_km"] * 1000.0, "limit": d["limit"]}
-        for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg"):
+        for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg", "accuracy_class_max_m"):
             if d.get(key) not in (None, ""):
                 args[key] = d[key]
         if self.usable_only() and "status" not in args:
