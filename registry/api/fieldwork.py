@@ -19,7 +19,8 @@ from rest_framework.parsers import FormParser, MultiPartParser
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
-from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.body import request_body, request_fields
+from registry.api.marks import ERROR_RESPONSES
 from registry.api.pagination import RegistryPagination
 from registry.api.parsers import SafeJSONParser
 from registry.api.positions import ReadViewerWriteRecorder
@@ -268,14 +269,14 @@ class MarkAttachmentsView(_MarkChildren):
         },
     )
     def post(self, request, code: str):
-        data = request.data
+        data = request_fields(request)
         attachment = attachment_add(
             actor=request.user,
             mark_code=code,
-            file=data.get("file") if hasattr(data, "get") else None,
-            kind=str(data.get("kind", "")) if hasattr(data, "get") else "",
-            caption=str(data.get("caption", "")) if hasattr(data, "get") else "",
-            occupation_id=data.get("occupation_id") or None if hasattr(data, "get") else None,
-            visit_id=data.get("visit_id") or None if hasattr(data, "get") else None,
+            file=data.get("file"),
+            kind=str(data.get("kind", "")),
+            caption=str(data.get("caption", "")),
+            occupation_id=data.get("occupation_id") or None,
+            visit_id=data.get("visit_id") or None,
         )
         return self.created(request, attachment)

@@ -7,8 +7,6 @@ status need the manager ability (checked here and again in the services).
 
 from __future__ import annotations
 
-from typing import Any
-
 from django.core.exceptions import ValidationError
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
@@ -17,6 +15,7 @@ from rest_framework.renderers import JSONRenderer
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from registry.api.body import request_body
 from registry.api.geojson import GEOJSON_MEDIA_TYPE, GeoJSONRenderer, feature_collection
 from registry.api.pagination import MarkKeysetPagination
 from registry.api.permissions import ReadViewerWriteManager
@@ -46,16 +45,6 @@ CONFLICT_RESPONSE = OpenApiResponse(
     ErrorSerializer,
     description="Stale version (code stale_version): details give, per field, yours / theirs / changed_by / changed_at.",
 )
-
-
-def request_body(request) -> dict[str, Any]:
-    """The request body as a plain dict (JSON object or form fields)."""
-    data = request.data
-    if hasattr(data, "dict"):  # QueryDict from a form post
-        return data.dict()
-    if not isinstance(data, dict):
-        raise ValidationError("Send a JSON object.", code="invalid_payload")
-    return dict(data)
 
 
 def mark_with_published(user, code: str):

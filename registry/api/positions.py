@@ -15,7 +15,8 @@ from rest_framework.permissions import SAFE_METHODS, BasePermission
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
-from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.body import request_body
+from registry.api.marks import ERROR_RESPONSES
 from registry.api.pagination import RegistryPagination
 from registry.api.permissions import IsManager
 from registry.api.serializers import (

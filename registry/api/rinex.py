@@ -16,6 +16,7 @@ from rest_framework.parsers import FormParser, MultiPartParser
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from registry.api.body import request_fields
 from registry.api.fieldwork import OccupationSerializer
 from registry.api.marks import ERROR_RESPONSES
 from registry.api.positions import ReadViewerWriteRecorder
@@ -63,8 +64,8 @@ class MarkOccupationFromRinexView(APIView):
         },
     )
     def post(self, request, code: str):
-        data = request.data
-        upload = data.get("file") if hasattr(data, "get") else None
+        data = request_fields(request)
+        upload = data.get("file")
         if upload is None or not hasattr(upload, "read"):
             raise field_error("file", "Attach the RINEX observation file.", "required")
         dry_run = str(data.get("dry_run", "")).strip().lower() in ("1", "true", "yes", "on")
