@@ -34,6 +34,7 @@ from registry.models import (
     OccupationMethod,
     Visit,
 )
+from registry.selectors.fieldwork import fieldwork_row, mark_fieldwork
 from registry.services.access import access_mark_by_code
 from registry.services.fieldwork import attachment_add, occupation_record, visit_record
 
@@ -175,23 +176,17 @@ class _MarkChildren(APIView):
     pagination_class = RegistryPagination
     model = None
     serializer_class = None
-    order: tuple[str, ...] = ()
 
     def list_rows(self, request, code: str):
         mark = access_mark_by_code(request.user, code)
-        qs = (
-            self.model.objects.filter(mark=mark)
-            .select_related("mark", *self.related)
-            .prefetch_related(*self.prefetch)
-            .order_by(*self.order)
-        )
+        qs = mark_fieldwork(self.model, mark=mark)
         paginator = self.pagination_class()
         page = paginator.paginate_queryset(qs, request, view=self)
         data = self.serializer_class(page, many=True, context={"request": request}).data
         return paginator.get_paginated_response(data)
 
     def created(self, request, obj):
-        fresh = self.model.objects.select_related("mark", *self.related).prefetch_related(*self.prefetch).get(pk=obj.pk)
+        fresh = fieldwork_row(self.model, pk=obj.pk)
         return Response(
             self.serializer_class(fresh, context={"request": request}).data, status=http_status.HTTP_201_CREATED
         )
@@ -202,9 +197,6 @@ class MarkVisitsView(_MarkChildren):
 
     model = Visit
     serializer_class = VisitSerializer
-    order = ("-visited_on", "-created_at", "-pk")
-    related = ("created_by",)
-    prefetch = ("attachments",)
 
     @extend_schema(operation_id="marks_visits_list", responses={200: VisitSerializer(many=True), **ERROR_RESPONSES})
     def get(self, request, code: str):
@@ -223,9 +215,6 @@ class MarkOccupationsView(_MarkChildren):
 
     model = Occupation
     serializer_class = OccupationSerializer
-    order = ("-start_utc", "-pk")
-    related = ("created_by",)
-    prefetch = ("attachments",)
 
     @extend_schema(
         operation_id="marks_occupations_list", responses={200: OccupationSerializer(many=True), **ERROR_RESPONSES}
@@ -248,9 +237,6 @@ class MarkAttachmentsView(_MarkChildren):
 
     model = Attachment
     serializer_class = AttachmentSerializer
-    order = ("-uploaded_at", "-pk")
-    related = ("uploaded_by",)
-    prefetch = ()
     parser_classes = [MultiPartParser, FormParser, SafeJSONParser]
 
     @extend_schema(

@@ -16,7 +16,7 @@ from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
 from registry.formatting import frame_name
-from registry.geodesy.accuracy import fgdc_horizontal_95_m, sigma_from_variance_m, vertical_95_m
+from registry.geodesy.accuracy import sigma_from_variance_m
 from registry.models import (
     POSITION_FROZEN_FIELDS,
     CheckStage,
@@ -29,6 +29,7 @@ from registry.models import (
     SkyView,
     Stability,
 )
+from registry.selectors.positions import network_accuracy
 from registry.services import position_rules
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
@@ -131,12 +132,10 @@ class PositionSerializer(serializers.ModelSerializer):
         return _sigma_mm(obj.cov_uu_m2)
 
     def get_network_accuracy_h95_mm(self, obj: Position) -> float:
-        return round(
-            float(fgdc_horizontal_95_m(obj.cov_ee_m2, obj.cov_en_m2, obj.cov_nn_m2)) * 1000.0, SIGMA_MM_DECIMALS
-        )
+        return round(network_accuracy(obj).horizontal_95_m * 1000.0, SIGMA_MM_DECIMALS)
 
     def get_network_accuracy_u95_mm(self, obj: Position) -> float:
-        return round(float(vertical_95_m(sigma_from_variance_m(obj.cov_uu_m2))) * 1000.0, SIGMA_MM_DECIMALS)
+        return round(network_accuracy(obj).ellipsoid_height_95_m * 1000.0, SIGMA_MM_DECIMALS)
 
 
 class SearchLocationSerializer(serializers.Serializer):

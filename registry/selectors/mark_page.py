@@ -22,6 +22,7 @@ from registry.models import (
     Visit,
 )
 from registry.selectors.mark_history import HistoryEntry, mark_history
+from registry.selectors.positions import network_accuracy
 from registry.services.usability import Usability, assess
 
 # Order of positions on the mark page: the current published one first.
@@ -54,9 +55,9 @@ class MarkDetail:
         return [p for p in self.positions if p.state == PositionState.PUBLISHED]
 
 
-def mark_detail(*, code: str) -> MarkDetail:
-    """The mark page's data for ``code`` (exact). Raises ``Mark.DoesNotExist``."""
-    mark = Mark.objects.get(code=code)
+def mark_detail(*, mark: Mark) -> MarkDetail:
+    """The mark page's data for ``mark``, reached through the gatekeeper
+    (:func:`registry.services.access.access_mark_by_code`)."""
     rank = Case(
         *[When(state=s, then=Value(i)) for i, s in enumerate(POSITION_STATE_ORDER)],
         default=Value(len(POSITION_STATE_ORDER)),
@@ -68,6 +69,8 @@ def mark_detail(*, code: str) -> MarkDetail:
         .annotate(state_rank=rank)
         .order_by("state_rank", "-epoch_yr", "-created_at", "-pk")
     )
+    for p in positions:  # the figure the API gives, computed in one place
+        p.network_accuracy = network_accuracy(p)
     heights = list(
         HeightRecord.objects.filter(mark=mark).select_related("created_by").order_by("-current", "-created_at", "-pk")
     )
@@ -118,3 +121,13 @@ def mark_detail(*, code: str) -> MarkDetail:
         history_truncated=truncated,
         usability=assess(mark.status, visits[0].finding if visits else None, suspect_reason=mark.suspect_reason),
     )
+
+
+def visit_of_mark(*, mark: Mark, pk: int) -> Visit | None:
+    """The visit ``pk`` of ``mark`` (None when it is not one of the mark's visits)."""
+    return Visit.objects.filter(mark=mark, pk=pk).first()
+
+
+def position_of_mark(*, mark: Mark, pk: int) -> Position | None:
+    """The position ``pk`` of ``mark`` (None when it is not one of the mark's positions)."""
+    return Position.objects.filter(mark=mark, pk=pk).first()

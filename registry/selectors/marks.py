@@ -174,3 +174,14 @@ def mark_list_counts(*, q: str = "", match: str = MATCH_PREFIX, text: str = "", 
     return MarkListCounts(
         matching=matching, matching_any_status=any_status, by_status=by_status, registry_total=registry_total
     )
+
+
+def mark_api_search(*, q: str = "", status: str = "", code: str = "", name: str = "") -> QuerySet[Mark]:
+    """The API's mark list: :func:`mark_search` (``q`` anywhere in the code or name), then an exact
+    ``code`` and a ``name`` fragment when given."""
+    qs = mark_search(q=q, match=MATCH_CONTAINS, status=status)
+    if code:
+        qs = qs.filter(code=code)
+    if name:
+        qs = qs.filter(name__icontains=name)
+    return qs

@@ -15,8 +15,9 @@ from django.shortcuts import redirect, render
 from django.urls import reverse
 
 from registry.errors import Conflict
-from registry.models import Position, PositionState
+from registry.models import PositionState
 from registry.roles import Ability
+from registry.selectors.positions import frames_in_use
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.movement import comparison_target, movement_compare
 from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
@@ -33,14 +34,10 @@ ACTIONS = {
 PAST = {"publish": "published", "reject": "rejected", "withdraw": "withdrawn"}
 
 
-def _frames_in_use() -> list[int]:
-    return list(Position.objects.order_by("frame_epsg").values_list("frame_epsg", flat=True).distinct())
-
-
 @ability_required(Ability.RECORD)
 def position_new(request: HttpRequest, code: str) -> HttpResponse:
     mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
-    frames = _frames_in_use()
+    frames = frames_in_use()
     status = 200
     if request.method == "POST":
         form = PositionForm(request.POST, frames_in_use=frames)
