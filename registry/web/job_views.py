@@ -26,7 +26,7 @@ from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning
 from registry.roles import Ability
 from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
-from registry.services.job_fields import REQUIRED_ON_CREATE, new_job_defaults
+from registry.services.job_fields import REQUIRED_ON_CREATE, field_help, new_job_defaults
 from registry.services.jobs import CREATE_FIELDS, JOB_PLANNING, job_create, job_update, may_plan_jobs
 from registry.services.screening import ScreeningResult
 from registry.services.screening.cache import job_screen_cached
@@ -59,15 +59,6 @@ NUMBER_FIELDS = (
     ("recovery_years", "A base needs a good visit within (years)"),
     ("grid_spacing_m", "Site grid spacing (m; empty: chosen from the site size)"),
 )
-HELP = {
-    "epoch_yr": "e.g. 2025.500",
-    "rtk_h_fixed_mm": "Common practice: 8 mm + 1 ppm horizontal, 15 mm + 1 ppm vertical (receiver specifications).",
-    "max_baseline_m": "Common practice for single-base RTK: 10 000 m.",
-    "rover_h_mm": "Common practice for a pole with a checked bubble: 2 mm centring, 3 mm rod height.",
-    "assumed_rate_plate_fixed_mm_yr": "A plate-fixed frame takes out the plate's motion; what remains is small.",
-}
-
-
 #: The form's groups: legend, a note under it, and the fields in order.
 FIELD_GROUPS = (
     ("The job", "", ["code", "name", "client", "status", "notes"]),
@@ -197,8 +188,9 @@ class JobForm(ServiceErrorsMixin, forms.Form):
 
     def __init__(self, *args, editing: bool = False, **kwargs):
         super().__init__(*args, **kwargs)
+        help_texts = field_help()
         for name, label in NUMBER_FIELDS:
-            self.fields[name] = _text(label, help_text=HELP.get(name, ""))
+            self.fields[name] = _text(label, help_text=help_texts.get(name, ""))
         # The service's field order, with the point entry beside the GeoJSON site.
         order = []
         for name in CREATE_FIELDS:
