@@ -261,49 +261,39 @@ class MarkFeatureCollectionSerializer(serializers.Serializer):
 # ---- request bodies (documentation for the schema; the services validate) ----
 
 
-class MarkCreateInput(serializers.Serializer):
+class _MarkDescriptionInput(serializers.Serializer):
+    """The fields that describe a mark, the same when it is created and when it is edited."""
+
+    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
+    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
+    monument_detail = serializers.CharField(
+        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
+    )
+    marking = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
+    )
+    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
+    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
+    keeper = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
+    )
+    notes = serializers.CharField(required=False, allow_blank=True)
+
+
+class MarkCreateInput(_MarkDescriptionInput):
     """The earlier names (to_reach, monument_type, setting, stamping, custodian) are still accepted (deprecated)."""
 
     code = serializers.CharField(max_length=32, help_text="1–32 characters: capital letters, digits, '_', '.', '-'.")
-    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
     status = serializers.ChoiceField(
         MarkStatus.choices, required=False, help_text="Not suspect: a mark is not created suspect (refused)."
     )
-    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
-    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
-    monument_detail = serializers.CharField(
-        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
-    )
-    marking = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
-    )
-    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
-    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
-    keeper = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
-    )
-    notes = serializers.CharField(required=False, allow_blank=True)
 
 
-class MarkPatchInput(serializers.Serializer):
+class MarkPatchInput(_MarkDescriptionInput):
     """The earlier names (to_reach, monument_type, setting, stamping, custodian) are still accepted (deprecated)."""
 
     version = serializers.IntegerField(min_value=1, help_text="The version you started from (optimistic concurrency).")
-    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
-    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
-    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
-    monument_detail = serializers.CharField(
-        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
-    )
-    marking = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
-    )
-    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
-    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
-    keeper = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
-    )
-    notes = serializers.CharField(required=False, allow_blank=True)
 
 
 class MarkStatusInput(serializers.Serializer):

@@ -17,6 +17,7 @@ from registry.geodesy import dms
 from registry.models import AntennaHeightKind, Finding, MarkStatus, OccupationMethod, Stability
 from registry.selectors import nearby_filters as lim
 from registry.services import position_rules
+from registry.services.fieldwork import OCCUPATION_FIELDS
 from registry.web.service_errors import ServiceErrorsMixin
 
 #: Frames offered on the propose form even before any position uses them (shared contracts).
@@ -214,20 +215,8 @@ class OccupationForm(ServiceErrorsMixin, forms.Form):
 
     def occupation_data(self) -> dict[str, Any]:
         d = self.cleaned_data
-        keys = (
-            "method",
-            "start_utc",
-            "end_utc",
-            "observer",
-            "receiver",
-            "antenna",
-            "antenna_height_measured_m",
-            "antenna_height_kind",
-            "antenna_radius_m",
-            "arp_offset_m",
-            "notes",
-        )
-        return {k: d.get(k) for k in keys}
+        # the service's fields; the result position is linked by the publish step, not typed here
+        return {k: d.get(k) for k in OCCUPATION_FIELDS if k != "result_position_id"}
 
 
 # ----------------------------------------------------------------------------- position
