@@ -45,7 +45,7 @@ from registry.geodesy import accuracy as acc
 from registry.geodesy.accuracy import ComputationInputError, Finding
 
 if TYPE_CHECKING:
-    from registry.geodesy.stats import CombinationResult, CompatibilityResult
+    from registry.geodesy.stats import CombinationResult
 
 __all__ = [
     "CAUTIONS",
@@ -56,7 +56,6 @@ __all__ = [
     "accuracy_report",
     "asprs2023_statement_lines",
     "combination_text",
-    "compatibility_text",
     "fgdc_statement_lines",
     "finding_text",
     "nssda_statement_lines",
@@ -241,23 +240,6 @@ def finding_text(finding: Finding, *, style: str | None = None) -> str:
             "no class is assigned."
         )
     return code.replace("_", " ")
-
-
-def compatibility_text(result: CompatibilityResult) -> str:
-    """One line for a scalar ``stats.CompatibilityResult``, with the numbers behind the verdict.
-
-    Examples
-    --------
-    >>> from registry.geodesy.stats import compatibility_test
-    >>> compatibility_text(compatibility_test(0.0628, 0.020**2, 0.025**2))
-    'Not compatible (vertical, 95%): T = 3.848 > χ²(0.95, 1) = 3.841, p = 0.050. The mark may have moved or one solution is wrong; investigate before use.'
-    """
-    c = result.confidence
-    head = f"({result.components}, {c * 100:g}%): T = {result.statistic:.3f}"
-    crit = f"χ²({c:g}, {result.dof}) = {result.critical:.3f}, p = {result.p_value:.3f}"
-    if result.compatible:
-        return f"Compatible {head} ≤ {crit}."
-    return f"Not compatible {head} > {crit}. The mark may have moved or one solution is wrong; investigate before use."
 
 
 def combination_text(result: CombinationResult) -> str:
