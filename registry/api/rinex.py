@@ -22,6 +22,7 @@ from registry.api.marks import ERROR_RESPONSES
 from registry.api.positions import ReadViewerWriteRecorder
 from registry.api.serializers import ErrorSerializer
 from registry.models import Occupation, OccupationMethod
+from registry.selectors.fieldwork import fieldwork_row
 from registry.services._input import field_error
 from registry.services.rinex import occupation_from_rinex
 
@@ -83,10 +84,6 @@ class MarkOccupationFromRinexView(APIView):
         body["dry_run"] = dry_run
         body["recorded"] = None
         if occupation is not None:
-            fresh = (
-                Occupation.objects.select_related("mark", "created_by")
-                .prefetch_related("attachments")
-                .get(pk=occupation.pk)
-            )
+            fresh = fieldwork_row(Occupation, pk=occupation.pk)
             body["recorded"] = OccupationSerializer(fresh, context={"request": request}).data
         return Response(body, status=http_status.HTTP_200_OK if dry_run else http_status.HTTP_201_CREATED)

@@ -63,6 +63,11 @@ def position_for_display(*, position_id: int) -> Position:
     return Position.objects.select_related(*_RELATED).get(pk=position_id)
 
 
+def positions_in_states(*, mark: Mark, states) -> list[Position]:
+    """The mark's positions in ``states``, by frame, then coordinate epoch (the combine page's solutions)."""
+    return list(Position.objects.filter(mark=mark, state__in=states).order_by("frame_epsg", "epoch_yr", "pk"))
+
+
 def frames_in_use() -> list[int]:
     """Every frame (EPSG code) a position of the registry is in, in code order."""
     return list(Position.objects.order_by("frame_epsg").values_list("frame_epsg", flat=True).distinct())
