@@ -36,6 +36,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from benchcommon import ensure_pg_database, load_mark_rows
 
 ROOT = Path(__file__).resolve().parent.parent
 REGION = {"lat_min": 41.0, "lat_max": 49.0, "lon_min": -117.0, "lon_max": -104.0}
@@ -45,17 +46,6 @@ SEED = 20260601
 
 
 # ----------------------------------------------------------------------------- orchestrator
-
-
-def _ensure_pg_database(url: str) -> None:
-    import psycopg
-
-    dbname = url.rsplit("/", 1)[1]
-    admin = url.rsplit("/", 1)[0] + "/postgres"
-    with psycopg.connect(admin, autocommit=True) as conn:
-        exists = conn.execute("SELECT 1 FROM pg_database WHERE datname = %s", [dbname]).fetchone()
-        if not exists:
-            conn.execute(f'CREATE DATABASE "{dbname}"')
 
 
 def main() -> None:
@@ -77,7 +67,7 @@ def main() -> None:
     for backend in backends:
         env = dict(os.environ)
         if backend == "postgis":
-            _ensure_pg_database(args.pg_url)
+            ensure_pg_database(args.pg_url)
             env["DATABASE_URL"] = args.pg_url
         else:
             Path(args.sqlite_path).parent.mkdir(parents=True, exist_ok=True)
@@ -153,32 +143,11 @@ def _rows(n: int):
 
 def _load(n: int, vendor: str) -> float:
     from django.core.management import call_command
-    from django.db import connection
 
     t0 = time.perf_counter()
     call_command("migrate", verbosity=0)
-    with connection.cursor() as cur:
-        cur.execute("DELETE FROM registry_mark")
     columns, rows = _rows(n)
-    if vendor == "postgresql":
-        raw = connection.connection  # psycopg 3 connection under Django
-        with raw.cursor() as cur:
-            with cur.copy(f"COPY registry_mark ({', '.join(columns)}) FROM STDIN") as copy:
-                for row in rows:
-                    copy.write_row(row)
-        raw.commit()
-        with connection.cursor() as cur:
-            cur.execute("ANALYZE registry_mark")
-    else:
-        raw = connection.connection  # sqlite3 connection
-        placeholders = ", ".join("?" for _ in columns)
-        raw.execute("BEGIN")
-        raw.executemany(
-            f"INSERT INTO registry_mark ({', '.join(columns)}) VALUES ({placeholders})",
-            ([v.isoformat(" ") if isinstance(v, dt.datetime) else v for v in row] for row in rows),
-        )
-        raw.execute("COMMIT")
-        raw.execute("ANALYZE")
+    load_mark_rows(columns, rows, vendor)
     return time.perf_counter() - t0
 
 

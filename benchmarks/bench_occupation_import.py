@@ -24,19 +24,11 @@ import sys
 import time
 from pathlib import Path
 
+from benchcommon import ensure_pg_database
+
 ROOT = Path(__file__).resolve().parent.parent
 MARKS = 200
 HEADER = "mark,method,start_utc,end_utc,antenna_height_m,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,sigma_e_mm,sigma_n_mm,sigma_u_mm,source\n"
-
-
-def _ensure_pg_database(url: str) -> None:
-    import psycopg
-
-    dbname = url.rsplit("/", 1)[1]
-    admin = url.rsplit("/", 1)[0] + "/postgres"
-    with psycopg.connect(admin, autocommit=True) as conn:
-        if not conn.execute("SELECT 1 FROM pg_database WHERE datname = %s", [dbname]).fetchone():
-            conn.execute(f'CREATE DATABASE "{dbname}"')
 
 
 def main() -> None:
@@ -65,7 +57,7 @@ def main() -> None:
     for backend in backends:
         env = dict(os.environ)
         if backend == "postgis":
-            _ensure_pg_database(args.pg_url)
+            ensure_pg_database(args.pg_url)
             env["DATABASE_URL"] = args.pg_url
         else:
             Path(args.sqlite_path).parent.mkdir(parents=True, exist_ok=True)

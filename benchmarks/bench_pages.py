@@ -39,6 +39,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from benchcommon import ensure_pg_database, load_mark_rows
 
 ROOT = Path(__file__).resolve().parent.parent
 SEED = 20261204
@@ -87,16 +88,6 @@ KEEPERS = [
 ]
 
 
-def _ensure_pg_database(url: str) -> None:
-    import psycopg
-
-    dbname = url.rsplit("/", 1)[1]
-    admin = url.rsplit("/", 1)[0] + "/postgres"
-    with psycopg.connect(admin, autocommit=True) as conn:
-        if not conn.execute("SELECT 1 FROM pg_database WHERE datname = %s", [dbname]).fetchone():
-            conn.execute(f'CREATE DATABASE "{dbname}"')
-
-
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--marks", type=int, default=1_000_000, help="marks in the PostgreSQL database")
@@ -120,7 +111,7 @@ def main() -> None:
         env = dict(os.environ)
         n = args.marks
         if backend == "postgis":
-            _ensure_pg_database(args.pg_url)
+            ensure_pg_database(args.pg_url)
             env["DATABASE_URL"] = args.pg_url
         else:
             n = args.sqlite_marks
@@ -187,31 +178,9 @@ def _rows(n: int):
 
 
 def _load(n: int, vendor: str) -> float:
-    from django.db import connection
-
     t0 = time.perf_counter()
-    with connection.cursor() as cur:
-        cur.execute("DELETE FROM registry_mark")
     columns, rows = _rows(n)
-    if vendor == "postgresql":
-        raw = connection.connection
-        with raw.cursor() as cur:
-            with cur.copy(f"COPY registry_mark ({', '.join(columns)}) FROM STDIN") as copy:
-                for row in rows:
-                    copy.write_row(row)
-        raw.commit()
-        with connection.cursor() as cur:
-            cur.execute("VACUUM ANALYZE registry_mark")
-    else:
-        raw = connection.connection
-        placeholders = ", ".join("?" for _ in columns)
-        raw.execute("BEGIN")
-        raw.executemany(
-            f"INSERT INTO registry_mark ({', '.join(columns)}) VALUES ({placeholders})",
-            ([v.isoformat(" ") if isinstance(v, dt.datetime) else v for v in row] for row in rows),
-        )
-        raw.execute("COMMIT")
-        raw.execute("ANALYZE")
+    load_mark_rows(columns, rows, vendor, pg_analyze="VACUUM ANALYZE registry_mark")
     return time.perf_counter() - t0
 
 

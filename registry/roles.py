@@ -1,4 +1,4 @@
-"""Roles (brief §1) as Django groups, and the permissions each one holds.
+"""Roles (viewer, technician, manager, signatory, admin) as Django groups, and the permissions each one holds.
 
 A user's abilities are the union over their groups. Superusers hold all.
 The groups and their permissions are created by migration 0004 and re-asserted

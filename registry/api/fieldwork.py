@@ -19,7 +19,8 @@ from rest_framework.parsers import FormParser, MultiPartParser
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
-from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.body import request_body, request_fields
+from registry.api.marks import ERROR_RESPONSES
 from registry.api.pagination import RegistryPagination
 from registry.api.parsers import SafeJSONParser
 from registry.api.positions import ReadViewerWriteRecorder
@@ -33,6 +34,7 @@ from registry.models import (
     OccupationMethod,
     Visit,
 )
+from registry.selectors.fieldwork import fieldwork_row, mark_fieldwork
 from registry.services.access import access_mark_by_code
 from registry.services.fieldwork import attachment_add, occupation_record, visit_record
 
@@ -174,23 +176,17 @@ class _MarkChildren(APIView):
     pagination_class = RegistryPagination
     model = None
     serializer_class = None
-    order: tuple[str, ...] = ()
 
     def list_rows(self, request, code: str):
         mark = access_mark_by_code(request.user, code)
-        qs = (
-            self.model.objects.filter(mark=mark)
-            .select_related("mark", *self.related)
-            .prefetch_related(*self.prefetch)
-            .order_by(*self.order)
-        )
+        qs = mark_fieldwork(self.model, mark=mark)
         paginator = self.pagination_class()
         page = paginator.paginate_queryset(qs, request, view=self)
         data = self.serializer_class(page, many=True, context={"request": request}).data
         return paginator.get_paginated_response(data)
 
     def created(self, request, obj):
-        fresh = self.model.objects.select_related("mark", *self.related).prefetch_related(*self.prefetch).get(pk=obj.pk)
+        fresh = fieldwork_row(self.model, pk=obj.pk)
         return Response(
             self.serializer_class(fresh, context={"request": request}).data, status=http_status.HTTP_201_CREATED
         )
@@ -201,9 +197,6 @@ class MarkVisitsView(_MarkChildren):
 
     model = Visit
     serializer_class = VisitSerializer
-    order = ("-visited_on", "-created_at", "-pk")
-    related = ("created_by",)
-    prefetch = ("attachments",)
 
     @extend_schema(operation_id="marks_visits_list", responses={200: VisitSerializer(many=True), **ERROR_RESPONSES})
     def get(self, request, code: str):
@@ -222,9 +215,6 @@ class MarkOccupationsView(_MarkChildren):
 
     model = Occupation
     serializer_class = OccupationSerializer
-    order = ("-start_utc", "-pk")
-    related = ("created_by",)
-    prefetch = ("attachments",)
 
     @extend_schema(
         operation_id="marks_occupations_list", responses={200: OccupationSerializer(many=True), **ERROR_RESPONSES}
@@ -247,9 +237,6 @@ class MarkAttachmentsView(_MarkChildren):
 
     model = Attachment
     serializer_class = AttachmentSerializer
-    order = ("-uploaded_at", "-pk")
-    related = ("uploaded_by",)
-    prefetch = ()
     parser_classes = [MultiPartParser, FormParser, SafeJSONParser]
 
     @extend_schema(
@@ -268,14 +255,14 @@ class MarkAttachmentsView(_MarkChildren):
         },
     )
     def post(self, request, code: str):
-        data = request.data
+        data = request_fields(request)
         attachment = attachment_add(
             actor=request.user,
             mark_code=code,
-            file=data.get("file") if hasattr(data, "get") else None,
-            kind=str(data.get("kind", "")) if hasattr(data, "get") else "",
-            caption=str(data.get("caption", "")) if hasattr(data, "get") else "",
-            occupation_id=data.get("occupation_id") or None if hasattr(data, "get") else None,
-            visit_id=data.get("visit_id") or None if hasattr(data, "get") else None,
+            file=data.get("file"),
+            kind=str(data.get("kind", "")),
+            caption=str(data.get("caption", "")),
+            occupation_id=data.get("occupation_id") or None,
+            visit_id=data.get("visit_id") or None,
         )
         return self.created(request, attachment)

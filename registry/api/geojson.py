@@ -19,7 +19,8 @@ from typing import Any
 
 from rest_framework.renderers import JSONRenderer
 
-from registry.api.serializers import EPOCH_DECIMALS, LATLON_DECIMALS, frame_name
+from registry.api.serializers import EPOCH_DECIMALS, LATLON_DECIMALS
+from registry.formatting import frame_name
 from registry.models import Mark
 
 GEOJSON_MEDIA_TYPE = "application/geo+json"

@@ -23,7 +23,7 @@ from rest_framework import status as http_status
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
-from registry.api.marks import request_body
+from registry.api.body import request_body
 from registry.api.permissions import IsViewer, ReadViewerWriteJobPlanner
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.selectors.jobs import jobs_in_order

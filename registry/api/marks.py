@@ -7,8 +7,6 @@ status need the manager ability (checked here and again in the services).
 
 from __future__ import annotations
 
-from typing import Any
-
 from django.core.exceptions import ValidationError
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
@@ -17,6 +15,7 @@ from rest_framework.renderers import JSONRenderer
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from registry.api.body import request_body
 from registry.api.geojson import GEOJSON_MEDIA_TYPE, GeoJSONRenderer, feature_collection
 from registry.api.pagination import MarkKeysetPagination
 from registry.api.permissions import ReadViewerWriteManager
@@ -30,8 +29,9 @@ from registry.api.serializers import (
     MarkSerializer,
     MarkStatusInput,
 )
-from registry.models import MarkStatus, Position, PositionState
-from registry.selectors.marks import MATCH_CONTAINS, mark_search
+from registry.models import MarkStatus
+from registry.selectors.marks import mark_api_search
+from registry.selectors.positions import published_positions
 from registry.services.access import access_mark_by_code
 from registry.services.marks import mark_create, mark_set_status, mark_update
 from registry.services.suspect import mark_clear_suspect
@@ -48,24 +48,10 @@ CONFLICT_RESPONSE = OpenApiResponse(
 )
 
 
-def request_body(request) -> dict[str, Any]:
-    """The request body as a plain dict (JSON object or form fields)."""
-    data = request.data
-    if hasattr(data, "dict"):  # QueryDict from a form post
-        return data.dict()
-    if not isinstance(data, dict):
-        raise ValidationError("Send a JSON object.", code="invalid_payload")
-    return dict(data)
-
-
 def mark_with_published(user, code: str):
     """The mark (through the gatekeeper) with its published positions and search-location source."""
     mark = access_mark_by_code(user, code)
-    published = list(
-        Position.objects.filter(mark=mark, state=PositionState.PUBLISHED)
-        .select_related("mark", "created_by", "decided_by")
-        .order_by("-decided_at", "-pk")
-    )
+    published = published_positions(mark=mark)
     mark.published_list = published
     source = published[0] if published else None
     mark.src_frame_epsg = source.frame_epsg if source else None
@@ -129,13 +115,9 @@ class MarkListView(APIView):
                     )
                 }
             )
-        qs = mark_search(q=params.get("q", ""), match=MATCH_CONTAINS, status=status)
         code = params.get("code", "").strip()
-        if code:
-            qs = qs.filter(code=code)
         name = params.get("name", "").strip()
-        if name:
-            qs = qs.filter(name__icontains=name)
+        qs = mark_api_search(q=params.get("q", ""), status=status, code=code, name=name)
         self.unfiltered = not (params.get("q", "").strip() or status or code or name)
         paginator = self.pagination_class()
         page = paginator.paginate_queryset(qs, request, view=self)

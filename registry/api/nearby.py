@@ -17,13 +17,9 @@ from rest_framework.response import Response
 from rest_framework.views import APIView
 
 from registry.models import MarkStatus, Stability
+from registry.selectors import nearby_filters as lim
 from registry.selectors.nearby import CAUTIONS, SEARCH_LOCATION_NOTE, marks_near
 from registry.selectors.read_cache import cached_read
-
-#: Largest radius and limit the API accepts (the selector allows more for the command line).
-API_MAX_RADIUS_KM = 1000.0
-API_MAX_LIMIT = 500
-API_DEFAULT_LIMIT = 50
 
 
 class _ChoiceList(serializers.CharField):
@@ -46,28 +42,30 @@ class NearbyQuery(serializers.Serializer):
     lat = serializers.FloatField(min_value=-90.0, max_value=90.0, help_text="Latitude of the search point, degrees.")
     lon = serializers.FloatField(min_value=-180.0, max_value=180.0, help_text="Longitude of the search point, degrees.")
     radius_km = serializers.FloatField(
-        min_value=0.001, max_value=API_MAX_RADIUS_KM, help_text="Search radius, km (geodesic, GRS80)."
+        min_value=lim.RADIUS_MIN_KM, max_value=lim.RADIUS_MAX_KM, help_text="Search radius, km (geodesic, GRS80)."
     )
     limit = serializers.IntegerField(
-        min_value=1, max_value=API_MAX_LIMIT, default=API_DEFAULT_LIMIT, help_text="At most this many marks."
+        min_value=1, max_value=lim.ASKED_LIMIT_MAX, default=lim.DEFAULT_LIMIT, help_text="At most this many marks."
     )
     status = _ChoiceList(choices=MarkStatus.values, required=False, help_text="Mark statuses, comma-separated.")
     stability = _ChoiceList(
         choices=Stability.values, required=False, help_text="Monument stabilities, comma-separated."
     )
     frame_epsg = serializers.IntegerField(
-        required=False, min_value=1024, help_text="Only marks with a published position in this frame (EPSG code)."
+        required=False,
+        min_value=lim.FRAME_EPSG_MIN,
+        help_text="Only marks with a published position in this frame (EPSG code).",
     )
     intact_visit_within_yr = serializers.FloatField(
         required=False,
-        min_value=0.001,
-        max_value=200.0,
+        min_value=lim.INTACT_VISIT_MIN_YR,
+        max_value=lim.INTACT_VISIT_MAX_YR,
         help_text="Only marks a visit found intact within N years. (The earlier name good_visit_within_yr is still accepted.)",
     )
     accuracy_class_max_m = serializers.FloatField(
         required=False,
-        min_value=0.0001,
-        max_value=100.0,
+        min_value=lim.ACCURACY_MIN_M,
+        max_value=lim.ACCURACY_MAX_M,
         help_text="Only marks with a published position (in frame_epsg, if given) whose FGDC horizontal 95 % "
         "accuracy is at most this value, m.",
     )

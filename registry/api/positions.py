@@ -15,7 +15,8 @@ from rest_framework.permissions import SAFE_METHODS, BasePermission
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
-from registry.api.marks import ERROR_RESPONSES, request_body
+from registry.api.body import request_body
+from registry.api.marks import ERROR_RESPONSES
 from registry.api.pagination import RegistryPagination
 from registry.api.permissions import IsManager
 from registry.api.serializers import (
@@ -28,8 +29,9 @@ from registry.api.serializers import (
     PublishedPositionSerializer,
     PublishInput,
 )
-from registry.models import Position, PositionState
+from registry.models import PositionState
 from registry.roles import Ability, has_ability
+from registry.selectors.positions import mark_positions, position_for_display
 from registry.selectors.proposals import proposals_queue
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.combination import positions_combine, positions_velocity
@@ -65,8 +67,7 @@ class ReadViewerWriteRecorder(BasePermission):
 
 
 def _position_out(position_id: int) -> dict:
-    position = Position.objects.select_related("mark", "created_by", "decided_by").get(pk=position_id)
-    return PositionSerializer(position).data
+    return PositionSerializer(position_for_display(position_id=position_id)).data
 
 
 class MarkPositionsView(APIView):
@@ -82,19 +83,12 @@ class MarkPositionsView(APIView):
     )
     def get(self, request, code: str):
         mark = access_mark_by_code(request.user, code)
-        qs = Position.objects.filter(mark=mark).select_related("mark", "created_by", "decided_by")
         state = request.query_params.get("state", "").strip()
-        if state:
-            if state not in PositionState.values:
-                raise ValidationError(
-                    {
-                        "state": ValidationError(
-                            "Unknown state %(value)r.", code="invalid_choice", params={"value": state}
-                        )
-                    }
-                )
-            qs = qs.filter(state=state)
-        qs = qs.order_by("-created_at", "-pk")
+        if state and state not in PositionState.values:
+            raise ValidationError(
+                {"state": ValidationError("Unknown state %(value)r.", code="invalid_choice", params={"value": state})}
+            )
+        qs = mark_positions(mark=mark, state=state)
         paginator = self.pagination_class()
         page = paginator.paginate_queryset(qs, request, view=self)
         return paginator.get_paginated_response(PositionSerializer(page, many=True).data)

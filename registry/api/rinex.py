@@ -16,11 +16,13 @@ from rest_framework.parsers import FormParser, MultiPartParser
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
+from registry.api.body import request_fields
 from registry.api.fieldwork import OccupationSerializer
 from registry.api.marks import ERROR_RESPONSES
 from registry.api.positions import ReadViewerWriteRecorder
 from registry.api.serializers import ErrorSerializer
 from registry.models import Occupation, OccupationMethod
+from registry.selectors.fieldwork import fieldwork_row
 from registry.services._input import field_error
 from registry.services.rinex import occupation_from_rinex
 
@@ -63,8 +65,8 @@ class MarkOccupationFromRinexView(APIView):
         },
     )
     def post(self, request, code: str):
-        data = request.data
-        upload = data.get("file") if hasattr(data, "get") else None
+        data = request_fields(request)
+        upload = data.get("file")
         if upload is None or not hasattr(upload, "read"):
             raise field_error("file", "Attach the RINEX observation file.", "required")
         dry_run = str(data.get("dry_run", "")).strip().lower() in ("1", "true", "yes", "on")
@@ -82,10 +84,6 @@ class MarkOccupationFromRinexView(APIView):
         body["dry_run"] = dry_run
         body["recorded"] = None
         if occupation is not None:
-            fresh = (
-                Occupation.objects.select_related("mark", "created_by")
-                .prefetch_related("attachments")
-                .get(pk=occupation.pk)
-            )
+            fresh = fieldwork_row(Occupation, pk=occupation.pk)
             body["recorded"] = OccupationSerializer(fresh, context={"request": request}).data
         return Response(body, status=http_status.HTTP_200_OK if dry_run else http_status.HTTP_201_CREATED)

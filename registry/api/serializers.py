@@ -12,13 +12,11 @@ do the validation (one set of rules for the pages, the API and the importers).
 
 from __future__ import annotations
 
-import math
-from functools import lru_cache
-
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
-from registry.geodesy.accuracy import fgdc_horizontal_95_m, vertical_95_m
+from registry.formatting import frame_name
+from registry.geodesy.accuracy import sigma_from_variance_m
 from registry.models import (
     POSITION_FROZEN_FIELDS,
     CheckStage,
@@ -31,6 +29,7 @@ from registry.models import (
     SkyView,
     Stability,
 )
+from registry.selectors.positions import network_accuracy
 from registry.services import position_rules
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
 
@@ -56,24 +55,10 @@ class RoundedFloatField(serializers.FloatField):
         return round(float(value), self.decimals)
 
 
-@lru_cache(maxsize=256)
-def frame_name(frame_epsg: int | None) -> str | None:
-    """The CRS name PROJ gives an EPSG code (``None`` when unknown)."""
-    if frame_epsg is None:
-        return None
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
-
-    try:
-        return CRS.from_epsg(int(frame_epsg)).name
-    except CRSError:
-        return None
-
-
 def _sigma_mm(variance_m2: float | None) -> float | None:
-    if variance_m2 is None or variance_m2 < 0:
+    if variance_m2 is None:
         return None
-    return round(math.sqrt(variance_m2) * 1000.0, SIGMA_MM_DECIMALS)
+    return round(float(sigma_from_variance_m(variance_m2)) * 1000.0, SIGMA_MM_DECIMALS)
 
 
 class PositionSerializer(serializers.ModelSerializer):
@@ -147,12 +132,10 @@ class PositionSerializer(serializers.ModelSerializer):
         return _sigma_mm(obj.cov_uu_m2)
 
     def get_network_accuracy_h95_mm(self, obj: Position) -> float:
-        return round(
-            float(fgdc_horizontal_95_m(obj.cov_ee_m2, obj.cov_en_m2, obj.cov_nn_m2)) * 1000.0, SIGMA_MM_DECIMALS
-        )
+        return round(network_accuracy(obj).horizontal_95_m * 1000.0, SIGMA_MM_DECIMALS)
 
     def get_network_accuracy_u95_mm(self, obj: Position) -> float:
-        return round(float(vertical_95_m(math.sqrt(max(obj.cov_uu_m2, 0.0)))) * 1000.0, SIGMA_MM_DECIMALS)
+        return round(network_accuracy(obj).ellipsoid_height_95_m * 1000.0, SIGMA_MM_DECIMALS)
 
 
 class SearchLocationSerializer(serializers.Serializer):
@@ -285,49 +268,39 @@ class MarkFeatureCollectionSerializer(serializers.Serializer):
 # ---- request bodies (documentation for the schema; the services validate) ----
 
 
-class MarkCreateInput(serializers.Serializer):
+class _MarkDescriptionInput(serializers.Serializer):
+    """The fields that describe a mark, the same when it is created and when it is edited."""
+
+    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
+    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
+    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
+    monument_detail = serializers.CharField(
+        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
+    )
+    marking = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
+    )
+    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
+    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
+    keeper = serializers.CharField(
+        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
+    )
+    notes = serializers.CharField(required=False, allow_blank=True)
+
+
+class MarkCreateInput(_MarkDescriptionInput):
     """The earlier names (to_reach, monument_type, setting, stamping, custodian) are still accepted (deprecated)."""
 
     code = serializers.CharField(max_length=32, help_text="1–32 characters: capital letters, digits, '_', '.', '-'.")
-    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
     status = serializers.ChoiceField(
         MarkStatus.choices, required=False, help_text="Not suspect: a mark is not created suspect (refused)."
     )
-    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
-    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
-    monument_detail = serializers.CharField(
-        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
-    )
-    marking = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
-    )
-    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
-    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
-    keeper = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
-    )
-    notes = serializers.CharField(required=False, allow_blank=True)
 
 
-class MarkPatchInput(serializers.Serializer):
+class MarkPatchInput(_MarkDescriptionInput):
     """The earlier names (to_reach, monument_type, setting, stamping, custodian) are still accepted (deprecated)."""
 
     version = serializers.IntegerField(min_value=1, help_text="The version you started from (optimistic concurrency).")
-    name = serializers.CharField(max_length=120, required=False, allow_blank=True)
-    access_directions = serializers.CharField(required=False, allow_blank=True, help_text="Access directions.")
-    monument = serializers.ChoiceField(MonumentKind.choices, required=False, help_text="Kind of monument.")
-    monument_detail = serializers.CharField(
-        max_length=200, required=False, allow_blank=True, help_text="How the monument is set."
-    )
-    marking = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="The marking as inscribed on the mark."
-    )
-    stability = serializers.ChoiceField(Stability.choices, required=False, help_text="Expected stability.")
-    sky_view = serializers.ChoiceField(SkyView.choices, required=False)
-    keeper = serializers.CharField(
-        max_length=120, required=False, allow_blank=True, help_text="Who looks after the mark or its land."
-    )
-    notes = serializers.CharField(required=False, allow_blank=True)
 
 
 class MarkStatusInput(serializers.Serializer):

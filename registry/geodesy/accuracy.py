@@ -1,9 +1,10 @@
-"""Positional accuracy standards: network and local accuracy, NSSDA and ASPRS Edition 2 check-point tests.
+"""Positional accuracy standards: network accuracy, NSSDA and ASPRS Edition 2 check-point tests.
 
 Sources
 -------
 * FGDC-STD-007.2-1998, *Geospatial Positioning Accuracy Standards, Part 2: Standards for Geodetic
-  Networks*, Federal Geographic Data Committee, 1998. Network and local accuracy at 95 % confidence;
+  Networks*, Federal Geographic Data Committee, 1998. Network accuracy at 95 % confidence (the
+  standard's local accuracy, between connected marks, needs cross-covariances the registry does not store);
   horizontal accuracy is the radius of the 95 % circle, r95 = K·σmax with the polynomial
   K = 1.960790 + 0.004071·C + 0.114276·C² + 0.371625·C³, C = σmin/σmax (coefficients: secondary
   transcription of FGDC-STD-007.2-1998, as coded in Geoscience Australia's open-source geodesy package,
@@ -68,17 +69,15 @@ __all__ = [
     "accuracy_class",
     "asprs2023_evaluate",
     "circular_k",
-    "difference_covariance_m2",
     "error_ellipse_sigmas_m",
     "fgdc_horizontal_95_m",
-    "local_accuracy_95_m",
     "network_accuracy_95_m",
     "nssda_evaluate",
     "nssda_horizontal_95_m",
     "nssda_vertical_95_m",
     "quadrature_sum_m",
-    "reported_local_accuracy_m",
     "rmse_m",
+    "sigma_from_variance_m",
     "vertical_95_m",
 ]
 
@@ -109,7 +108,7 @@ class Finding:
 
 
 # --------------------------------------------------------------------------------------------------
-# FGDC-STD-007.2-1998 (Part 2): network and local accuracy
+# FGDC-STD-007.2-1998 (Part 2): network accuracy
 # --------------------------------------------------------------------------------------------------
 
 #: Coefficients of K(C) = c0 + c1·C + c2·C² + c3·C³, FGDC-STD-007.2-1998 (secondary transcription:
@@ -241,6 +240,22 @@ def fgdc_horizontal_95_m(cov_ee_m2: ArrayLike, cov_en_m2: ArrayLike, cov_nn_m2: 
     return _scalar_or_array(np.asarray(circular_k(c)) * sigma_max)
 
 
+def sigma_from_variance_m(variance_m2: ArrayLike) -> FloatOrArray:
+    """The standard deviation (m) from a variance (m²): σ = √variance, the one place it is taken.
+
+    Examples
+    --------
+    >>> sigma_from_variance_m(2.5e-05)
+    0.005
+    >>> sigma_from_variance_m([1e-4, 0.0]).tolist()
+    [0.01, 0.0]
+    """
+    variance = _as_float_array(variance_m2, "variance")
+    if np.any(variance < 0.0):
+        raise ComputationInputError("A variance cannot be negative.", code="negative_variance")
+    return _scalar_or_array(np.sqrt(variance))
+
+
 def vertical_95_m(sigma_m: ArrayLike) -> FloatOrArray:
     """Vertical accuracy at 95 %: 1.9600·σ (FGDC Part 2 for ellipsoid and orthometric heights; NSSDA).
 
@@ -348,67 +363,6 @@ def network_accuracy_95_m(cov_enu_m2: ArrayLike) -> tuple[FloatOrArray, FloatOrA
         raise ComputationInputError("A variance cannot be negative.", code="negative_variance")
     vertical = vertical_95_m(np.sqrt(cov[..., 2, 2]))
     return horizontal, vertical
-
-
-def difference_covariance_m2(cov1_m2: ArrayLike, cov2_m2: ArrayLike, cov12_m2: ArrayLike | None = None) -> np.ndarray:
-    """Covariance of the coordinate difference of two points: Σ_Δ = Σ1 + Σ2 − Σ12 − Σ21 (Σ21 = Σ12ᵀ).
-
-    All matrices must be expressed in one common local frame (e.g. ENU at one of the two points); for
-    directly connected, adjacent marks a few kilometres apart the difference between their own ENU
-    frames is negligible at the millimetre level, for longer lines rotate first.
-
-    Parameters
-    ----------
-    cov1_m2, cov2_m2 : array_like, shape (..., d, d)
-        Covariances of the two points (d = 2 or 3), m².
-    cov12_m2 : array_like, shape (..., d, d), optional
-        Cross-covariance between them from the same adjustment; omitted means independent (zero).
-
-    Returns
-    -------
-    ndarray, shape (..., d, d)
-    """
-    c1 = _as_cov_stack(cov1_m2, "covariance of point 1")
-    c2 = _as_cov_stack(cov2_m2, "covariance of point 2")
-    if c1.shape[-1] != c2.shape[-1]:
-        raise ComputationInputError("Both covariances must have the same size.", code="bad_covariance_shape")
-    out = c1 + c2
-    if cov12_m2 is not None:
-        c12 = _as_cov_stack(cov12_m2, "cross-covariance")
-        out = out - c12 - np.swapaxes(c12, -1, -2)
-    return out
-
-
-def local_accuracy_95_m(
-    cov1_enu_m2: ArrayLike, cov2_enu_m2: ArrayLike, cov12_enu_m2: ArrayLike | None = None
-) -> tuple[FloatOrArray, FloatOrArray]:
-    """Local accuracy between two connected marks: the 95 % figures of the difference covariance.
-
-    Returns
-    -------
-    horizontal_95_m, vertical_95_m : float or ndarray
-        Horizontal: K·σmax of the east/north block of Σ_Δ; vertical: 1.9600·σ of its up element.
-    """
-    cov_d = difference_covariance_m2(cov1_enu_m2, cov2_enu_m2, cov12_enu_m2)
-    if cov_d.shape[-1] != 3:
-        raise ComputationInputError("Local accuracy needs 3×3 east/north/up covariances.", code="bad_covariance_shape")
-    return network_accuracy_95_m(cov_d)
-
-
-def reported_local_accuracy_m(pair_values_m: ArrayLike) -> FloatOrArray:
-    """The local accuracy reported for a mark: the average of its local accuracies to connected neighbours.
-
-    FGDC Part 2 calls it "an approximate average"; we take the arithmetic mean over the last axis.
-
-    Examples
-    --------
-    >>> reported_local_accuracy_m([0.010, 0.012, 0.014])
-    0.012
-    """
-    values = _as_float_array(pair_values_m, "local accuracy")
-    if values.ndim == 0 or values.shape[-1] == 0:
-        raise ComputationInputError("A local accuracy needs at least one connected neighbour.", code="no_neighbours")
-    return _scalar_or_array(np.round(np.mean(values, axis=-1), 15))
 
 
 # --------------------------------------------------------------------------------------------------

@@ -1,4 +1,4 @@
-"""Proximity on the ellipsoid: search boxes, exact geodesic distances, distance to a site polygon.
+"""Proximity on the ellipsoid: search boxes and exact geodesic distances.
 
 Used by the nearby-mark search (``registry.selectors.nearby``). Pure computation, no Django.
 
@@ -25,19 +25,12 @@ Sources
   max(M, N)/R = a/√(1−e²)/R, so every geodesic distance lies between those factors
   times the spherical distance. With PostGIS's R = (2a + b)/3 (IUGG mean radius R1)
   these are 0.99442 and 1.00449 (see ``sphere_distance_factors``).
-- Point-in-polygon: the even–odd (crossing number) rule, e.g. J. O'Rourke,
-  *Computational Geometry in C*, 2nd ed., Cambridge 1998, §7.4.
-
-Polygon edges are taken as geodesics. RFC 7946 draws them as straight lines in
-longitude/latitude; for site polygons of a few kilometres the two differ by
-millimetres at most, far below what a search for nearby marks needs.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 import pyproj
@@ -55,19 +48,7 @@ _REL_MARGIN = 1e-9
 #: Absolute safety added to box half-widths (degrees; 1e-9° ≈ 0.1 mm).
 _ABS_MARGIN_DEG = 1e-9
 
-#: Largest extent of a site polygon accepted by ``distance_to_polygon_m`` (m).
-MAX_POLYGON_EXTENT_M = 200_000.0
-
 _GEOD = pyproj.Geod(ellps="GRS80")
-
-
-class PolygonError(ValueError):
-    """A site polygon that cannot be used; ``code`` is machine readable."""
-
-    def __init__(self, message: str, *, code: str):
-        super().__init__(message)
-        self.code = code
-        self.message = message
 
 
 @dataclass(frozen=True)
@@ -196,239 +177,3 @@ def geodesic_inverse(lat1_deg, lon1_deg, lat2_deg, lon2_deg) -> tuple[np.ndarray
     dist_m = np.asarray(dist, dtype=float).reshape(lat1.shape)
     az_deg = np.mod(np.asarray(az12, dtype=float), 360.0).reshape(lat1.shape)
     return dist_m, az_deg
-
-
-def _geodesic_forward(lat_deg, lon_deg, az_deg, dist_m) -> tuple[np.ndarray, np.ndarray]:
-    lon2, lat2, _ = _GEOD.fwd(np.ravel(lon_deg), np.ravel(lat_deg), np.ravel(az_deg), np.ravel(dist_m))
-    return np.asarray(lat2, dtype=float), np.asarray(lon2, dtype=float)
-
-
-# --------------------------------------------------------------------------- polygons
-
-
-@dataclass(frozen=True)
-class SitePolygon:
-    """A parsed site polygon: exterior ring first, then holes; each (n, 2) [lat, lon] degrees, closed."""
-
-    rings_latlon_deg: tuple[np.ndarray, ...]
-    centre_lat_deg: float
-    centre_lon_deg: float
-    enclosing_radius_m: float
-
-
-def _ring(raw: Any, where: str) -> np.ndarray:
-    if not isinstance(raw, list) or len(raw) < 4:
-        raise PolygonError(f"{where}: a ring needs at least four positions (closed).", code="polygon_ring_short")
-    pts = []
-    for pos in raw:
-        if not (
-            isinstance(pos, list | tuple)
-            and len(pos) >= 2
-            and all(isinstance(v, int | float) and not isinstance(v, bool) for v in pos[:2])
-        ):
-            raise PolygonError(f"{where}: every position is [longitude, latitude] in degrees.", code="polygon_position")
-        lon, lat = float(pos[0]), float(pos[1])
-        if not (math.isfinite(lat) and math.isfinite(lon) and -90.0 <= lat <= 90.0 and -180.0 <= lon <= 180.0):
-            raise PolygonError(
-                f"{where}: latitude must be within ±90° and longitude within ±180°.", code="polygon_range"
-            )
-        pts.append((lat, lon))
-    ring = np.array(pts, dtype=float)
-    if not np.array_equal(ring[0], ring[-1]):
-        raise PolygonError(
-            f"{where}: the first and last positions must be equal (RFC 7946 §3.1.6).", code="polygon_not_closed"
-        )
-    return ring
-
-
-def parse_site_polygon(value: Any) -> SitePolygon:
-    """Parse a GeoJSON Polygon (or a Feature holding one; RFC 7946, longitude first).
-
-    Raises
-    ------
-    PolygonError
-        With a machine-readable ``code`` for anything not usable.
-
-    Examples
-    --------
-    >>> poly = parse_site_polygon({"type": "Polygon", "coordinates": [[[-110.61, 45.19], [-110.59, 45.19],
-    ...     [-110.59, 45.21], [-110.61, 45.21], [-110.61, 45.19]]]})
-    >>> round(poly.centre_lat_deg, 6), round(poly.centre_lon_deg, 6)
-    (45.2, -110.6)
-    """
-    if isinstance(value, dict) and value.get("type") == "Feature":
-        value = value.get("geometry")
-    if not isinstance(value, dict) or value.get("type") != "Polygon":
-        raise PolygonError("The site must be a GeoJSON Polygon.", code="polygon_type")
-    coords = value.get("coordinates")
-    if not isinstance(coords, list) or not coords:
-        raise PolygonError("A Polygon needs at least its exterior ring.", code="polygon_empty")
-    rings = [_ring(raw, "exterior ring" if i == 0 else f"hole {i}") for i, raw in enumerate(coords)]
-    outer = rings[0]
-    # Centre: vertex mean with longitudes unwrapped around the first vertex (antimeridian-safe).
-    lon_ref = outer[0, 1]
-    lon_unwrapped = lon_ref + (np.mod(outer[:-1, 1] - lon_ref + 180.0, 360.0) - 180.0)
-    centre_lat = float(np.mean(outer[:-1, 0]))
-    centre_lon = float(np.mod(np.mean(lon_unwrapped) + 180.0, 360.0) - 180.0)
-    all_pts = np.vstack(rings)
-    dist_m, _ = geodesic_inverse(centre_lat, centre_lon, all_pts[:, 0], all_pts[:, 1])
-    radius_m = float(dist_m.max())
-    if 2.0 * radius_m > MAX_POLYGON_EXTENT_M:
-        raise PolygonError(
-            f"The site polygon is larger than {MAX_POLYGON_EXTENT_M / 1000:.0f} km across.", code="polygon_too_large"
-        )
-    return SitePolygon(tuple(rings), centre_lat, centre_lon, radius_m)
-
-
-def _points_in_rings(x, y, rings_xy: list[np.ndarray]) -> np.ndarray:
-    """Even–odd rule over all rings (holes included) on a plane."""
-    inside = np.zeros(np.shape(x), dtype=bool)
-    for ring in rings_xy:
-        x1, y1 = ring[:-1, 0], ring[:-1, 1]
-        x2, y2 = ring[1:, 0], ring[1:, 1]
-        xi = x[:, None]
-        yi = y[:, None]
-        crosses = (y1 > yi) != (y2 > yi)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            x_at = x1 + (yi - y1) * (x2 - x1) / (y2 - y1)
-        inside ^= np.logical_xor.reduce(crosses & (xi < x_at), axis=1)
-    return inside
-
-
-def _segment_distance_plane(px, py, ax, ay, bx, by) -> np.ndarray:
-    """Planar distance of points (px, py)[:, None] to segments (a, b)[None, :]."""
-    dx, dy = bx - ax, by - ay
-    len2 = dx * dx + dy * dy
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t = ((px[:, None] - ax) * dx + (py[:, None] - ay) * dy) / len2
-    t = np.where(len2 > 0, np.clip(t, 0.0, 1.0), 0.0)
-    qx = ax + t * dx
-    qy = ay + t * dy
-    return np.hypot(px[:, None] - qx, py[:, None] - qy)
-
-
-_GOLDEN = (math.sqrt(5.0) - 1.0) / 2.0
-
-
-def _geodesic_segment_distance(lat_deg, lon_deg, a_lat, a_lon, b_lat, b_lon, iterations: int = 48):
-    """Exact geodesic distance from points to geodesic segments A→B (pairwise arrays).
-
-    Golden-section search over the fraction t ∈ [0, 1] along the segment, then the
-    better of that minimum and the two end points (so a segment whose interior holds
-    a distance *maximum* still yields its true minimum). 48 iterations shrink the
-    bracket to 0.618⁴⁸ ≈ 1e-10 of the segment length.
-
-    Returns distance (m) and the forward azimuth (degrees) from the nearest segment
-    point to the point.
-    """
-    seg_len_m, seg_az_deg = geodesic_inverse(a_lat, a_lon, b_lat, b_lon)
-
-    def dist_at(t):
-        q_lat, q_lon = _geodesic_forward(a_lat, a_lon, seg_az_deg, t * seg_len_m)
-        return geodesic_inverse(q_lat, q_lon, lat_deg, lon_deg)[0]
-
-    lo = np.zeros_like(seg_len_m)
-    hi = np.ones_like(seg_len_m)
-    c = hi - _GOLDEN * (hi - lo)
-    d = lo + _GOLDEN * (hi - lo)
-    fc, fd = dist_at(c), dist_at(d)
-    for _ in range(iterations):
-        left = fc < fd
-        hi = np.where(left, d, hi)
-        lo = np.where(left, lo, c)
-        c_new = hi - _GOLDEN * (hi - lo)
-        d_new = lo + _GOLDEN * (hi - lo)
-        # Reuse the surviving interior point; evaluate only the new one.
-        new_t = np.where(left, c_new, d_new)
-        f_new = dist_at(new_t)
-        fd, d, fc, c = (
-            np.where(left, fc, f_new),
-            np.where(left, c, d_new),
-            np.where(left, f_new, fd),
-            np.where(left, c_new, d),
-        )
-    t_best = (lo + hi) / 2.0
-    candidates_t = np.stack([t_best, np.zeros_like(t_best), np.ones_like(t_best)])
-    candidates_d = np.stack([dist_at(t_best), dist_at(candidates_t[1]), dist_at(candidates_t[2])])
-    pick = np.argmin(candidates_d, axis=0)
-    t_pick = np.take_along_axis(candidates_t, pick[None, :], axis=0)[0]
-    q_lat, q_lon = _geodesic_forward(a_lat, a_lon, seg_az_deg, t_pick * seg_len_m)
-    return geodesic_inverse(q_lat, q_lon, lat_deg, lon_deg)
-
-
-def distance_to_polygon_m(polygon: SitePolygon, lat_deg, lon_deg) -> tuple[np.ndarray, np.ndarray]:
-    """Geodesic distance (m) from points to a site polygon, 0 inside; GRS80.
-
-    Parameters
-    ----------
-    polygon : SitePolygon
-        From ``parse_site_polygon``; latitude/longitude in the same frame as the points.
-    lat_deg, lon_deg : array_like
-        Points (degrees).
-
-    Returns
-    -------
-    distance_m : ndarray
-        0 for points inside the polygon (even–odd rule; points in holes are outside).
-    azimuth_deg : ndarray
-        Forward azimuth from the nearest boundary point to the point, [0, 360);
-        NaN for points inside.
-
-    Notes
-    -----
-    Inside/outside is decided on a local azimuthal equidistant plane centred on the
-    polygon, where a geodesic edge of a site within 100 km departs from a straight
-    line by well under a millimetre; boundary distances are exact geodesic minima
-    (``_geodesic_segment_distance``) over the edges that the plane shows as nearest
-    (within 1 % + 1 m, far more than the plane's distortion).
-
-    Examples
-    --------
-    >>> poly = parse_site_polygon({"type": "Polygon", "coordinates": [[[0, 0], [0.01, 0], [0.01, 0.01],
-    ...     [0, 0.01], [0, 0]]]})
-    >>> d, az = distance_to_polygon_m(poly, [0.005, 0.005], [0.005, 0.02])
-    >>> float(d[0]), round(float(d[1]), 3)
-    (0.0, 1113.195)
-    """
-    lat = np.atleast_1d(np.asarray(lat_deg, dtype=float))
-    lon = np.atleast_1d(np.asarray(lon_deg, dtype=float))
-    n = lat.size
-    if n == 0:
-        return np.zeros(0), np.zeros(0)
-    plane = pyproj.Proj(proj="aeqd", lat_0=polygon.centre_lat_deg, lon_0=polygon.centre_lon_deg, ellps="GRS80")
-    px, py = plane(lon, lat)
-    px, py = np.asarray(px, dtype=float), np.asarray(py, dtype=float)
-    rings_xy = []
-    for ring in polygon.rings_latlon_deg:
-        rx, ry = plane(ring[:, 1], ring[:, 0])
-        rings_xy.append(np.column_stack([rx, ry]))
-    inside = _points_in_rings(px, py, rings_xy)
-
-    # Edges of all rings, in the plane and in latitude/longitude.
-    ax = np.concatenate([r[:-1, 0] for r in rings_xy])
-    ay = np.concatenate([r[:-1, 1] for r in rings_xy])
-    bx = np.concatenate([r[1:, 0] for r in rings_xy])
-    by = np.concatenate([r[1:, 1] for r in rings_xy])
-    a_ll = np.vstack([r[:-1] for r in polygon.rings_latlon_deg])
-    b_ll = np.vstack([r[1:] for r in polygon.rings_latlon_deg])
-    plane_d = _segment_distance_plane(px, py, ax, ay, bx, by)  # (n, edges)
-    near = plane_d <= plane_d.min(axis=1, keepdims=True) * 1.01 + 1.0
-    near &= ~inside[:, None]
-    pi, ei = np.nonzero(near)
-
-    distance_m = np.zeros(n)
-    azimuth_deg = np.full(n, np.nan)
-    if pi.size:
-        d, az = _geodesic_segment_distance(lat[pi], lon[pi], a_ll[ei, 0], a_ll[ei, 1], b_ll[ei, 0], b_ll[ei, 1])
-        best = np.full(n, np.inf)
-        best_az = np.full(n, np.nan)
-        order = np.lexsort((d, pi))  # by point, then distance: first of each point is its minimum
-        first = np.ones(order.size, dtype=bool)
-        first[1:] = pi[order][1:] != pi[order][:-1]
-        sel = order[first]
-        best[pi[sel]] = d[sel]
-        best_az[pi[sel]] = az[sel]
-        outside = ~inside
-        distance_m[outside] = best[outside]
-        azimuth_deg[outside] = best_az[outside]
-    return distance_m, azimuth_deg

@@ -728,8 +728,8 @@ def check_shot_allowance_mm(distance_m, *, model: RtkErrorModel, **terms):
     adjustment their errors are usually positively correlated, and the variance of their
     difference is σ_base² + σ_check² − 2·cov, smaller than what is used here. So this
     allowance errs on the large side: it is lenient, and a check shot is *less* likely to be
-    flagged than with the true difference covariance (local accuracy,
-    :func:`registry.geodesy.accuracy.difference_covariance_m2`), which would tighten it.
+    flagged than with the true difference covariance (FGDC Part 2's local accuracy,
+    Σ_Δ = Σ1 + Σ2 − Σ12 − Σ21), which would tighten it.
 
     >>> m = RtkErrorModel(h_fixed_mm=0, v_fixed_mm=0, setup_h_mm=0, setup_v_mm=0, rover_h_mm=0, rover_v_mm=0)
     >>> h, v = check_shot_allowance_mm(0.0, model=m, base_h_mm=0, base_v_mm=0, base_drift_h_mm=0,

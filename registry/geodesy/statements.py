@@ -40,11 +40,12 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from registry.formatting import format_cm, format_m, format_mm
 from registry.geodesy import accuracy as acc
 from registry.geodesy.accuracy import ComputationInputError, Finding
 
 if TYPE_CHECKING:
-    from registry.geodesy.stats import CombinationResult, CompatibilityResult
+    from registry.geodesy.stats import CombinationResult
 
 __all__ = [
     "CAUTIONS",
@@ -55,7 +56,6 @@ __all__ = [
     "accuracy_report",
     "asprs2023_statement_lines",
     "combination_text",
-    "compatibility_text",
     "fgdc_statement_lines",
     "finding_text",
     "nssda_statement_lines",
@@ -98,26 +98,6 @@ NSSDA_FORMULAS = {
         "FGDC-STD-007.2-1998 (RMSE_min/RMSE_max below 0.6)"
     ),
 }
-
-
-# --------------------------------------------------------------------------------------------------
-# Number formatting (one way everywhere)
-# --------------------------------------------------------------------------------------------------
-
-
-def format_m(value_m: float, decimals: int = 3) -> str:
-    """Metres with a fixed number of decimals, e.g. ``0.210``."""
-    return f"{value_m:.{decimals}f}"
-
-
-def format_mm(value_m: float) -> str:
-    """Millimetres to 0.1 mm from metres, e.g. ``13.7``."""
-    return f"{value_m * 1000.0:.1f}"
-
-
-def format_cm(value_m: float) -> str:
-    """Centimetres to 0.1 cm from metres, e.g. ``4.5`` (ASPRS tables use centimetres)."""
-    return f"{value_m * 100.0:.1f}"
 
 
 # --------------------------------------------------------------------------------------------------
@@ -260,23 +240,6 @@ def finding_text(finding: Finding, *, style: str | None = None) -> str:
             "no class is assigned."
         )
     return code.replace("_", " ")
-
-
-def compatibility_text(result: CompatibilityResult) -> str:
-    """One line for a scalar ``stats.CompatibilityResult``, with the numbers behind the verdict.
-
-    Examples
-    --------
-    >>> from registry.geodesy.stats import compatibility_test
-    >>> compatibility_text(compatibility_test(0.0628, 0.020**2, 0.025**2))
-    'Not compatible (vertical, 95%): T = 3.848 > χ²(0.95, 1) = 3.841, p = 0.050. The mark may have moved or one solution is wrong; investigate before use.'
-    """
-    c = result.confidence
-    head = f"({result.components}, {c * 100:g}%): T = {result.statistic:.3f}"
-    crit = f"χ²({c:g}, {result.dof}) = {result.critical:.3f}, p = {result.p_value:.3f}"
-    if result.compatible:
-        return f"Compatible {head} ≤ {crit}."
-    return f"Not compatible {head} > {crit}. The mark may have moved or one solution is wrong; investigate before use."
 
 
 def combination_text(result: CombinationResult) -> str:

@@ -30,6 +30,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
+from registry.geodesy.accuracy import sigma_from_variance_m
 from registry.models.marks import CODE_VALIDATOR, DESCRIPTION_FIELDS, MarkStatus, MonumentKind, SkyView, Stability
 from registry.services import position_rules as rules
 from registry.vocabulary import OLD_MARK_FIELDS, old_name_clashes
@@ -231,7 +232,7 @@ def sigma_mm_from_variance(variance_m2: float) -> float:
     >>> sigma_mm_from_variance(2.5e-05)
     5.0
     """
-    return round(math.sqrt(max(variance_m2, 0.0)) * 1000.0, 2)
+    return round(float(sigma_from_variance_m(variance_m2)) * 1000.0, 2)
 
 
 # --- Validation -------------------------------------------------------------------------------------

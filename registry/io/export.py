@@ -40,7 +40,7 @@ def default_export_frame() -> int:
 
 
 def _frame_name(epsg: int) -> str:
-    from registry.web.templatetags.registry_format import frame_name
+    from registry.formatting import frame_name
 
     return frame_name(epsg) or f"EPSG:{epsg}"
 

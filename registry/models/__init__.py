@@ -1,4 +1,4 @@
-"""The registry's data model (see the brief's vocabulary)."""
+"""The registry's data model: marks, positions, fieldwork, jobs, documents, the audit trail."""
 
 from registry.models.audit import AuditEvent, AuditTrailError
 from registry.models.documents import (

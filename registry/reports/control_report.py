@@ -37,12 +37,9 @@ MAX_RANKED_ROWS = 30
 
 def _grid_words(job: Job) -> str:
     if job.grid_epsg:
-        from pyproj import CRS
+        from registry.formatting import format_frame
 
-        try:
-            return f"{CRS.from_epsg(job.grid_epsg).name} (EPSG:{job.grid_epsg})"
-        except Exception:  # noqa: BLE001 - an unknown code is shown as it is
-            return f"EPSG:{job.grid_epsg}"
+        return format_frame(job.grid_epsg)
     return "the UTM zone of the site, chosen automatically"
 
 

@@ -1,4 +1,4 @@
-"""Reads for the fieldwork pages: latest visits.
+"""Reads of fieldwork (visits, occupations, attachments) for the pages and the API; latest visits.
 
 (The movement check shown before publishing lives in ``registry.services.movement``, so that the page,
 the API, commands and imports all run the same one.)
@@ -6,7 +6,31 @@ the API, commands and imports all run the same one.)
 
 from __future__ import annotations
 
-from registry.models import Visit
+from django.db.models import QuerySet
+
+from registry.models import Attachment, Mark, Occupation, Visit
+
+#: How each kind of fieldwork row is listed (newest first) and what its display reads with it.
+_ROWS: dict[type, tuple[tuple[str, ...], tuple[str, ...], tuple[str, ...]]] = {
+    Visit: (("-visited_on", "-created_at", "-pk"), ("mark", "created_by"), ("attachments",)),
+    Occupation: (("-start_utc", "-pk"), ("mark", "created_by"), ("attachments",)),
+    Attachment: (("-uploaded_at", "-pk"), ("mark", "uploaded_by"), ()),
+}
+
+
+def _rows(model: type) -> QuerySet:
+    _order, related, prefetch = _ROWS[model]
+    return model.objects.select_related(*related).prefetch_related(*prefetch)
+
+
+def mark_fieldwork(model: type, *, mark: Mark) -> QuerySet:
+    """The mark's visits, occupations or attachments (``model``), newest first, in a fixed number of queries."""
+    return _rows(model).filter(mark=mark).order_by(*_ROWS[model][0])
+
+
+def fieldwork_row(model: type, *, pk: int):
+    """One visit, occupation or attachment (just written or reached through its mark) with what its display reads."""
+    return _rows(model).get(pk=pk)
 
 
 def latest_visits(*, mark_ids: list[int]) -> dict[int, Visit]:

@@ -25,6 +25,13 @@ import numpy as np
 from django.conf import settings
 from django.db import connection
 
+from registry.formatting import (
+    format_deg9,
+    format_frame,
+    format_lat_dms,
+    format_lon_dms,
+    format_m3,
+)
 from registry.geodesy import accuracy as acc
 from registry.geodesy import statements
 from registry.geodesy.convert import ConversionError, convert_point
@@ -44,13 +51,6 @@ from registry.models import (
     Visit,
 )
 from registry.selectors.conversion import configured_geoid
-from registry.web.templatetags.registry_format import (
-    format_deg9,
-    format_frame,
-    format_lat_dms,
-    format_lon_dms,
-    format_m3,
-)
 
 #: Rows of the recovery (visit) and occupation tables; the total count is printed beside.
 HISTORY_ROWS = 6

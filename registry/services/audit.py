@@ -119,3 +119,32 @@ def audit_record(
         after=json_safe(dict(after)) if after is not None else None,
         note=note or "",
     )
+
+
+def create_audited(obj: models.Model, *, actor, action: str, what: str, check_code_first: bool = True):
+    """Insert ``obj``, a new row with a unique ``code``, and its audit row ``action``, in one transaction.
+
+    A code already taken is the field error ``unique`` ("A <what> with this code already exists."):
+    checked first (``check_code_first``; a model's ``full_clean`` may have checked it already), and again
+    when the database's unique index refuses the insert (two creations of the same code at once).
+    """
+    from django.db import IntegrityError, transaction
+
+    from registry.services._input import field_error
+
+    model = type(obj)
+
+    def taken():
+        return field_error("code", f"A {what} with this code already exists.", "unique")
+
+    if check_code_first and model.objects.filter(code=obj.code).exists():
+        raise taken()
+    try:
+        with transaction.atomic():
+            obj.save(force_insert=True)
+            audit_record(actor=actor, action=action, obj=obj, after=snapshot(obj))
+    except IntegrityError:
+        if model.objects.filter(code=obj.code).exists():
+            raise taken() from None
+        raise
+    return obj

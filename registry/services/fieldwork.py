@@ -6,7 +6,7 @@ input (coded ``ValidationError``), runs in one transaction and writes an audit r
 Antenna height of an occupation: when the height was measured vertically to the
 antenna reference point (ARP), that value is stored as the ARP height too. When it
 was measured as a slant to the antenna's slant-measure point, the vertical ARP height
-is h_ARP = √(s² − r²) + Δh (brief §3; formula as documented for a GNSS data-preparation tool's slant
+is h_ARP = √(s² − r²) + Δh (formula as documented for a GNSS data-preparation tool's slant
 option, secondary transcription), computed by
 ``registry.geodesy.antenna.slant_to_vertical_arp_m`` when the antenna radius
 ``antenna_radius_m`` (r) and offset ``arp_offset_m`` (Δh, negative when the ARP is below

@@ -14,7 +14,6 @@ import math
 from typing import Any
 
 from django.core.exceptions import ValidationError
-from django.db import IntegrityError, transaction
 
 from registry.geodesy.customgrid import CustomGridError, build_custom_grid, proj_definition
 from registry.models import GRID_CODE_VALIDATOR, CustomGrid, GridMethod, GridUnit
@@ -22,7 +21,7 @@ from registry.roles import Ability
 from registry.selectors.grids import definition_of
 from registry.services._input import field_error
 from registry.services.access import require_ability
-from registry.services.audit import audit_record, snapshot
+from registry.services.audit import create_audited
 from registry.services.limits import NOTES_MAX
 
 NUMBER_FIELDS = (
@@ -163,14 +162,4 @@ def custom_grid_create(*, actor, data: dict) -> CustomGrid:
         grid.proj_definition = proj_definition(defn)
     except CustomGridError as exc:
         raise field_error(exc.field or "method", str(exc), exc.code) from None
-    if CustomGrid.objects.filter(code=grid.code).exists():
-        raise field_error("code", "A grid with this code already exists.", "unique")
-    try:
-        with transaction.atomic():
-            grid.save(force_insert=True)
-            audit_record(actor=actor, action="custom_grid_create", obj=grid, after=snapshot(grid))
-    except IntegrityError:
-        if CustomGrid.objects.filter(code=grid.code).exists():
-            raise field_error("code", "A grid with this code already exists.", "unique") from None
-        raise
-    return grid
+    return create_audited(grid, actor=actor, action="custom_grid_create", what="grid")

@@ -298,3 +298,31 @@ def model_defaults() -> dict[str, Any]:
 def new_job_defaults() -> dict[str, Any]:
     """Every default a new job gets: the model's, then the registry settings' (which win)."""
     return {**model_defaults(), **settings_defaults()}
+
+
+def _g(value: float) -> str:
+    """A default as a person reads it.
+
+    >>> _g(8.0), _g(0.5), _g(10_000.0)
+    ('8', '0.5', '10 000')
+    """
+    return f"{value:g}" if value < 10_000 else f"{round(value):,d}".replace(",", " ")
+
+
+def field_help() -> dict[str, str]:
+    """The job form's help under a field: the documented defaults (common practice) from the model, so
+    the form never states a number of its own."""
+    d = model_defaults()
+    return {
+        "epoch_yr": "e.g. 2025.500",
+        "rtk_h_fixed_mm": (
+            f"Common practice: {_g(d['rtk_h_fixed_mm'])} mm + {_g(d['rtk_h_ppm'])} ppm horizontal, "
+            f"{_g(d['rtk_v_fixed_mm'])} mm + {_g(d['rtk_v_ppm'])} ppm vertical (receiver specifications)."
+        ),
+        "max_baseline_m": f"Common practice for single-base RTK: {_g(d['max_baseline_m'])} m.",
+        "rover_h_mm": (
+            f"Common practice for a pole with a checked bubble: {_g(d['rover_h_mm'])} mm centring, "
+            f"{_g(d['rover_v_mm'])} mm rod height."
+        ),
+        "assumed_rate_plate_fixed_mm_yr": "A plate-fixed frame takes out the plate's motion; what remains is small.",
+    }

@@ -1,6 +1,6 @@
 """Writes on jobs: create, and edit with optimistic concurrency on ``Job.version``.
 
-A job carries everything its base screening needs (brief §4): the site (GeoJSON Point or
+A job carries everything its base screening needs: the site (GeoJSON Point or
 Polygon), the deliverable frame and epoch, tolerances (95 %), the RTK error model and the
 screening limits. Each function checks the actor's role (planning jobs is the
 :data:`JOB_PLANNING` ability: technicians and managers), validates every field with a coded ``ValidationError``, runs in one transaction
@@ -14,7 +14,7 @@ from __future__ import annotations
 from typing import Any
 
 from django.core.exceptions import ValidationError
-from django.db import IntegrityError, transaction
+from django.db import transaction
 from django.db.models import F
 from django.utils import timezone
 
@@ -23,7 +23,7 @@ from registry.models import Job
 from registry.roles import Ability, has_ability
 from registry.services._input import field_error
 from registry.services.access import access_job_by_code, require_ability
-from registry.services.audit import audit_record, json_safe, snapshot
+from registry.services.audit import audit_record, create_audited, json_safe
 from registry.services.job_fields import (
     CREATE_FIELDS,
     EDITABLE_FIELDS,
@@ -69,17 +69,7 @@ def job_create(*, actor, data: dict) -> Job:
     values = {**settings_defaults(), **cleaned}
     job = Job(**values, created_by=actor if getattr(actor, "is_authenticated", False) else None)
     validate_job(job)
-    if Job.objects.filter(code=job.code).exists():
-        raise field_error("code", "A job with this code already exists.", "unique")
-    try:
-        with transaction.atomic():
-            job.save(force_insert=True)
-            audit_record(actor=actor, action="job_create", obj=job, after=snapshot(job))
-    except IntegrityError:
-        if Job.objects.filter(code=job.code).exists():
-            raise field_error("code", "A job with this code already exists.", "unique") from None
-        raise
-    return job
+    return create_audited(job, actor=actor, action="job_create", what="job")
 
 
 def _parse_version(expected_version: Any) -> int:

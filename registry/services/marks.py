@@ -24,7 +24,7 @@ import copy
 from typing import Any
 
 from django.core.exceptions import ValidationError
-from django.db import IntegrityError, transaction
+from django.db import transaction
 from django.db.models import F
 from django.utils import timezone
 
@@ -33,7 +33,7 @@ from registry.models import DESCRIPTION_FIELDS, AuditEvent, Mark, MarkStatus
 from registry.roles import Ability
 from registry.services._input import parse_note
 from registry.services.access import access_mark_by_code, require_ability
-from registry.services.audit import audit_record, json_safe, snapshot
+from registry.services.audit import audit_record, create_audited, json_safe
 from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
 from registry.vocabulary import OLD_MARK_FIELDS, rename_old_keys
@@ -181,18 +181,8 @@ def mark_create(*, actor, data: dict) -> Mark:
     mark = Mark(**cleaned)
     check_text_limits(mark)
     mark.full_clean()
-    try:
-        with transaction.atomic():
-            mark.save(force_insert=True)
-            audit_record(actor=actor, action="mark_create", obj=mark, after=snapshot(mark))
-    except IntegrityError:
-        # Two creations of the same code at once: the database's unique index decides.
-        if Mark.objects.filter(code=mark.code).exists():
-            raise ValidationError(
-                {"code": ValidationError("A mark with this code already exists.", code="unique")}
-            ) from None
-        raise
-    return mark
+    # full_clean checked the code; two creations of the same code at once: the unique index decides
+    return create_audited(mark, actor=actor, action="mark_create", what="mark", check_code_first=False)
 
 
 def mark_update(*, actor, code: str, expected_version: int, changes: dict, base: dict | None = None) -> Mark:

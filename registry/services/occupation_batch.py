@@ -34,6 +34,7 @@ from django.core.exceptions import ValidationError
 from django.db import DatabaseError, transaction
 
 from registry.errors import RegistryError
+from registry.geodesy.accuracy import sigma_from_variance_m
 from registry.io.common import RowError
 from registry.io.occupations_csv import DEFAULT_MAX_ROWS, OccupationRow, parse_occupations_csv
 from registry.models import MovementVerdict, Occupation, OccupationMethod, Position
@@ -229,9 +230,9 @@ def occupation_batch_import(*, actor, content: bytes, filename: str, dry_run: bo
                             "lat_deg": position.lat_deg,
                             "lon_deg": position.lon_deg,
                             "h_m": position.h_m,
-                            "sigma_e_mm": position.cov_ee_m2**0.5 * 1000.0,
-                            "sigma_n_mm": position.cov_nn_m2**0.5 * 1000.0,
-                            "sigma_u_mm": position.cov_uu_m2**0.5 * 1000.0,
+                            "sigma_e_mm": sigma_from_variance_m(position.cov_ee_m2) * 1000.0,
+                            "sigma_n_mm": sigma_from_variance_m(position.cov_nn_m2) * 1000.0,
+                            "sigma_u_mm": sigma_from_variance_m(position.cov_uu_m2) * 1000.0,
                         },
                         check=row_check(position),
                     )

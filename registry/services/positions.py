@@ -1,6 +1,6 @@
 """Writes on positions: propose, publish, reject, withdraw.
 
-States (brief §2): ``proposed`` → ``published`` → ``superseded``; ``proposed`` →
+States: ``proposed`` → ``published`` → ``superseded``; ``proposed`` →
 ``rejected``; a ``published`` position may be ``withdrawn``. A published or superseded
 position's coordinates never change (model ``save()`` guard and a database trigger).
 

@@ -138,7 +138,8 @@ def visit_suspicion(*, visit: Visit, mark: Mark, actor) -> bool:
 
 
 def lift_suspicion(mark: Mark) -> dict[str, Any] | None:
-    """Inside ``position_publish``: a newly published position makes a suspect mark active again.
+    """A suspect mark made active again: inside ``position_publish`` (a newly published position) and
+    by a manager's clearance (:func:`mark_clear_suspect`).
 
     Bumps the version. Returns the ``before``/``after`` values for the caller's audit row, or None when
     the mark was not suspect.
@@ -202,31 +203,13 @@ def mark_clear_suspect(*, actor, code: str, note: str, expected_version: Any) ->
                 details={"status": mark.status},
             )
         else:
-            before = {
-                "status": MarkStatus.SUSPECT,
-                "suspect_since": mark.suspect_since,
-                "suspect_reason": mark.suspect_reason,
-                "version": mark.version,
-            }
-            Mark.objects.filter(pk=mark.pk).update(
-                status=MarkStatus.ACTIVE,
-                suspect_since=None,
-                suspect_reason="",
-                version=F("version") + 1,
-                updated_at=timezone.now(),
-            )
-            mark.refresh_from_db()
+            change = lift_suspicion(mark)  # the same change a newly published position makes
             audit_record(
                 actor=actor,
                 action="mark_clear_suspect",
                 obj=mark,
-                before=before,
-                after={
-                    "status": MarkStatus.ACTIVE,
-                    "suspect_since": None,
-                    "suspect_reason": "",
-                    "version": mark.version,
-                },
+                before=change["before"],
+                after=change["after"],
                 note=note,
             )
             documents_mark_changed(mark, "status changed from suspect to active (cleared)", actor=actor)

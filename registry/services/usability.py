@@ -48,6 +48,45 @@ class Usability:
         return {"state": self.state, "usable": self.usable, "reason": self.reason}
 
 
+def _not_for_use(state: str, headline: str, reason: str, caution: str, *, records_allowed: bool = True) -> Usability:
+    """A mark that is not for use: its words, the closing caution, and whether field records are taken."""
+    return Usability(
+        state=state,
+        usable=False,
+        label="not for use",
+        headline=headline,
+        reason=reason,
+        caution=caution + _CLOSING,
+        occupation_allowed=records_allowed,
+        new_position_allowed=records_allowed,
+    )
+
+
+#: Latest-visit findings that make a mark not for use: state, headline, reason, caution.
+_FINDING_WORDS = {
+    Finding.DISTURBED: (
+        "last_visit_disturbed",
+        "Last visit found it disturbed — not for use",
+        "the latest visit found the mark disturbed",
+        "The latest visit found the monument disturbed: it may no longer be where its coordinates "
+        "put it. Re-observe it before any use.",
+    ),
+    Finding.SEARCHED_NOT_FOUND: (
+        "last_visit_not_found",
+        "Not found at the last visit — not for use",
+        "the latest visit searched for the mark and did not find it",
+        "The latest visit searched for the mark and did not find it. Until it is found and checked, use another mark.",
+    ),
+    Finding.DESTROYED: (
+        "last_visit_destroyed",
+        "Last visit found it destroyed — not for use",
+        "the latest visit found the mark destroyed",
+        "The latest visit found the mark destroyed; a control manager has not yet recorded it so. "
+        "Do not use its coordinates.",
+    ),
+}
+
+
 def assess(status: str, last_finding: str | None = None, *, suspect_reason: str = "") -> Usability:
     """The usability of a mark with ``status`` whose latest visit found ``last_finding`` (or none).
 
@@ -59,91 +98,34 @@ def assess(status: str, last_finding: str | None = None, *, suspect_reason: str 
     'last_visit_disturbed'
     """
     if status == MarkStatus.DESTROYED:
-        return Usability(
-            state="destroyed",
-            usable=False,
-            label="not for use",
-            headline="Destroyed — not for use",
-            reason="the mark is recorded as destroyed",
-            caution=(
-                "The mark is recorded as destroyed. Its coordinates describe a point that no longer exists "
-                "on the ground: do not stake, set up on or check to anything at this place. If a monument "
-                "is found here, treat it as unknown until it is identified and re-observed as a new mark." + _CLOSING
-            ),
-            occupation_allowed=False,
-            new_position_allowed=False,
+        return _not_for_use(
+            "destroyed",
+            "Destroyed — not for use",
+            "the mark is recorded as destroyed",
+            "The mark is recorded as destroyed. Its coordinates describe a point that no longer exists "
+            "on the ground: do not stake, set up on or check to anything at this place. If a monument "
+            "is found here, treat it as unknown until it is identified and re-observed as a new mark.",
+            records_allowed=False,
         )
     if status == MarkStatus.RETIRED:
-        return Usability(
-            state="retired",
-            usable=False,
-            label="not for use",
-            headline="Retired — not for use",
-            reason="the mark is retired from the registry's active network",
-            caution=(
-                "The office no longer maintains this mark. Its coordinates are kept as history; they may "
-                "be out of date. Use an active mark, or re-observe this one and have it made active again." + _CLOSING
-            ),
-            occupation_allowed=True,
-            new_position_allowed=True,
+        return _not_for_use(
+            "retired",
+            "Retired — not for use",
+            "the mark is retired from the registry's active network",
+            "The office no longer maintains this mark. Its coordinates are kept as history; they may "
+            "be out of date. Use an active mark, or re-observe this one and have it made active again.",
         )
     if status == MarkStatus.SUSPECT:
         why = suspect_reason or "awaiting re-observation"
-        return Usability(
-            state="suspect",
-            usable=False,
-            label="not for use",
-            headline="Suspect — not for use until re-observed",
-            reason=f"suspect: {why}",
-            caution=(
-                "The mark may have moved. Do not use its coordinates until it is re-observed and a new "
-                "position is published, or a control manager clears it." + _CLOSING
-            ),
-            occupation_allowed=True,
-            new_position_allowed=True,
+        return _not_for_use(
+            "suspect",
+            "Suspect — not for use until re-observed",
+            f"suspect: {why}",
+            "The mark may have moved. Do not use its coordinates until it is re-observed and a new "
+            "position is published, or a control manager clears it.",
         )
-    if last_finding == Finding.DISTURBED:
-        return Usability(
-            state="last_visit_disturbed",
-            usable=False,
-            label="not for use",
-            headline="Last visit found it disturbed — not for use",
-            reason="the latest visit found the mark disturbed",
-            caution=(
-                "The latest visit found the monument disturbed: it may no longer be where its coordinates "
-                "put it. Re-observe it before any use." + _CLOSING
-            ),
-            occupation_allowed=True,
-            new_position_allowed=True,
-        )
-    if last_finding == Finding.SEARCHED_NOT_FOUND:
-        return Usability(
-            state="last_visit_not_found",
-            usable=False,
-            label="not for use",
-            headline="Not found at the last visit — not for use",
-            reason="the latest visit searched for the mark and did not find it",
-            caution=(
-                "The latest visit searched for the mark and did not find it. Until it is found and checked, "
-                "use another mark." + _CLOSING
-            ),
-            occupation_allowed=True,
-            new_position_allowed=True,
-        )
-    if last_finding == Finding.DESTROYED:
-        return Usability(
-            state="last_visit_destroyed",
-            usable=False,
-            label="not for use",
-            headline="Last visit found it destroyed — not for use",
-            reason="the latest visit found the mark destroyed",
-            caution=(
-                "The latest visit found the mark destroyed; a control manager has not yet recorded it so. "
-                "Do not use its coordinates." + _CLOSING
-            ),
-            occupation_allowed=True,
-            new_position_allowed=True,
-        )
+    if last_finding in _FINDING_WORDS:
+        return _not_for_use(*_FINDING_WORDS[last_finding])
     return Usability(
         state="usable",
         usable=True,

@@ -17,6 +17,7 @@ from django.shortcuts import render
 from registry.geodesy.accuracy import ComputationInputError, covariance_from_sigmas_m2
 from registry.geodesy.statements import RESIDUAL_COLUMNS, STANDARD_NAMES, accuracy_report, parse_residuals_csv
 from registry.roles import Ability
+from registry.web.service_errors import add_service_error
 from registry.web.views import ability_required
 
 MAX_UPLOAD_BYTES = 5 * 1024 * 1024
@@ -110,7 +111,7 @@ class AccuracyForm(forms.Form):
                 style=data.get("style") or None, residuals=parse_residuals_csv(data["residuals_csv"])
             )
         except ComputationInputError as exc:
-            self.add_error(None, ValidationError(exc.message, code=exc.code))
+            add_service_error(self, exc)
             raise
 
 

@@ -13,8 +13,10 @@ from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
 
-from registry.models import CheckStage, Position
+from registry.models import CheckStage
 from registry.roles import Ability
+from registry.selectors.mark_page import position_of_mark
+from registry.selectors.positions import positions_in_states
 from registry.services.access import access_mark_by_code
 from registry.services.combination import USABLE_STATES, positions_combine, positions_velocity
 from registry.services.movement import latest_check
@@ -52,7 +54,7 @@ def combine_page(request: HttpRequest, code: str) -> HttpResponse:
     made = None
     made_id = request.GET.get("made", "")
     if made_id.isdigit():
-        made = Position.objects.filter(mark=mark, pk=int(made_id)).first()
+        made = position_of_mark(mark=mark, pk=int(made_id))
     made_check = ""
     if made is not None:
         check = latest_check(made.pk, CheckStage.PROPOSED)
@@ -63,9 +65,7 @@ def combine_page(request: HttpRequest, code: str) -> HttpResponse:
                 else tuple(v * 1000.0 for v in (check.d_east_m, check.d_north_m, check.d_up_m))
             )
             made_check = movement_words(check.verdict, d)
-    solutions = list(
-        Position.objects.filter(mark=mark, state__in=USABLE_STATES).order_by("frame_epsg", "epoch_yr", "pk")
-    )
+    solutions = positions_in_states(mark=mark, states=USABLE_STATES)
     return render(
         request,
         "registry/combine.html",

@@ -11,33 +11,18 @@ import datetime as dt
 from typing import Any
 
 from django import forms
-from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
+from django.core.exceptions import ValidationError
 
 from registry.geodesy import dms
 from registry.models import AntennaHeightKind, Finding, MarkStatus, OccupationMethod, Stability
+from registry.selectors import nearby_filters as lim
 from registry.services import position_rules
+from registry.services.fieldwork import OCCUPATION_FIELDS
+from registry.web.service_errors import ServiceErrorsMixin
 
 #: Frames offered on the propose form even before any position uses them (shared contracts).
 DEFAULT_FRAMES = (7912, 9989, 6319)
 OTHER_FRAME = "other"
-
-
-class ServiceErrorsMixin:
-    """Put a service's ``ValidationError`` on the form's fields, renaming service keys to field names."""
-
-    #: service key → form field
-    service_field_map: dict[str, str] = {}
-
-    def add_service_error(self, error: ValidationError) -> None:
-        if not hasattr(error, "error_dict"):
-            self.add_error(None, error)
-            return
-        for key, errors in error.error_dict.items():
-            target = self.service_field_map.get(key, key)
-            if target == NON_FIELD_ERRORS or target not in self.fields:
-                target = None
-            for e in errors:
-                self.add_error(target, e)
 
 
 class MultipleFileInput(forms.ClearableFileInput):
@@ -230,20 +215,8 @@ class OccupationForm(ServiceErrorsMixin, forms.Form):
 
     def occupation_data(self) -> dict[str, Any]:
         d = self.cleaned_data
-        keys = (
-            "method",
-            "start_utc",
-            "end_utc",
-            "observer",
-            "receiver",
-            "antenna",
-            "antenna_height_measured_m",
-            "antenna_height_kind",
-            "antenna_radius_m",
-            "arp_offset_m",
-            "notes",
-        )
-        return {k: d.get(k) for k in keys}
+        # the service's fields; the result position is linked by the publish step, not typed here
+        return {k: d.get(k) for k in OCCUPATION_FIELDS if k != "result_position_id"}
 
 
 # ----------------------------------------------------------------------------- position
@@ -315,7 +288,7 @@ class PositionForm(ServiceErrorsMixin, forms.Form):
 
     def __init__(self, *args, frames_in_use: list[int] | tuple[int, ...] = (), **kwargs):
         super().__init__(*args, **kwargs)
-        from registry.web.templatetags.registry_format import format_frame
+        from registry.formatting import format_frame
 
         codes = list(dict.fromkeys([*frames_in_use, *DEFAULT_FRAMES]))
         self.fields["frame_choice"].choices = [(str(c), format_frame(c)) for c in codes] + [
@@ -415,8 +388,10 @@ class ClearSuspectForm(ServiceErrorsMixin, forms.Form):
 class NearbyForm(forms.Form):
     lat = AngleField(kind="lat", label="Latitude", help_text="Decimal degrees or D M S with N/S.")
     lon = AngleField(kind="lon", label="Longitude", help_text="Decimal degrees or D M S with E/W.")
-    radius_km = forms.FloatField(label="Radius (km)", min_value=0.001, max_value=1000.0, initial=5.0)
-    limit = forms.IntegerField(label="At most", min_value=1, max_value=500, initial=50)
+    radius_km = forms.FloatField(
+        label="Radius (km)", min_value=lim.RADIUS_MIN_KM, max_value=lim.RADIUS_MAX_KM, initial=5.0
+    )
+    limit = forms.IntegerField(label="At most", min_value=1, max_value=lim.ASKED_LIMIT_MAX, initial=lim.DEFAULT_LIMIT)
     usable = forms.ChoiceField(
         label="Show",
         required=False,
@@ -428,16 +403,29 @@ class NearbyForm(forms.Form):
         label="Stability", required=False, choices=[("", "any stability"), *Stability.choices]
     )
     intact_visit_within_yr = forms.FloatField(
-        label="Found intact within (years)", required=False, min_value=0.001, max_value=200.0
+        label="Found intact within (years)",
+        required=False,
+        min_value=lim.INTACT_VISIT_MIN_YR,
+        max_value=lim.INTACT_VISIT_MAX_YR,
     )
     frame_epsg = forms.IntegerField(
-        label="Published in frame (EPSG)", required=False, min_value=1024, help_text="e.g. 7912, 9989, 6319."
+        label="Published in frame (EPSG)",
+        required=False,
+        min_value=lim.FRAME_EPSG_MIN,
+        help_text="e.g. 7912, 9989, 6319.",
+    )
+    accuracy_class_max_m = forms.FloatField(
+        label="Horizontal accuracy at most (m)",
+        required=False,
+        min_value=lim.ACCURACY_MIN_M,
+        max_value=lim.ACCURACY_MAX_M,
+        help_text="FGDC network accuracy (95 %) of a published position, in the frame above if given; e.g. 0.02.",
     )
 
     def search_args(self) -> dict[str, Any]:
         d = self.cleaned_data
         args = {"lat_deg": d["lat"], "lon_deg": d["lon"], "radius_m": d["radius_km"] * 1000.0, "limit": d["limit"]}
-        for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg"):
+        for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg", "accuracy_class_max_m"):
             if d.get(key) not in (None, ""):
                 args[key] = d[key]
         if self.usable_only() and "status" not in args:

@@ -167,7 +167,7 @@ def occupation_new(request: HttpRequest, code: str) -> HttpResponse:
             except ValidationError as exc:
                 form.add_service_error(exc)
             except Conflict as exc:
-                form.add_error(None, ValidationError(exc.message, code=exc.code))
+                form.add_service_error(exc)
             else:
                 if token:
                     release_held_upload(token)

@@ -5,12 +5,12 @@ from __future__ import annotations
 from typing import Any
 
 from django import forms
-from django.core.exceptions import NON_FIELD_ERRORS, ValidationError
 from django.forms.models import fields_for_model
 
 from registry.models import Mark, MarkStatus
 from registry.selectors.marks import MATCH_CONTAINS, MATCH_PREFIX
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
+from registry.web.service_errors import ServiceErrorsMixin
 
 # What a manager edits on the mark form: the code (on creation) and the service's editable fields.
 # The status has its own action (with a note); the search location follows the published position;
@@ -63,7 +63,7 @@ class MarkSearchForm(forms.Form):
         }
 
 
-class MarkForm(forms.Form):
+class MarkForm(ServiceErrorsMixin, forms.Form):
     """Create or edit a mark. ``version`` is the mark's version when the form was loaded."""
 
     version = forms.IntegerField(widget=forms.HiddenInput, required=False, min_value=1)
@@ -116,15 +116,3 @@ class MarkForm(forms.Form):
         """Fields whose submitted value differs from what ``mark`` holds now (code excluded)."""
         data = self.mark_data()
         return {k: v for k, v in data.items() if k != "code" and getattr(mark, k) != v}
-
-    def add_service_error(self, error: ValidationError) -> None:
-        """Attach a service's ``ValidationError`` to the matching fields (others to the form)."""
-        if hasattr(error, "error_dict"):
-            for name, errors in error.error_dict.items():
-                target = name if name in self.fields and name != "version" else None
-                if name == NON_FIELD_ERRORS:
-                    target = None
-                for e in errors:
-                    self.add_error(target, e)
-        else:
-            self.add_error(None, error)

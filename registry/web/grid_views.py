@@ -17,6 +17,7 @@ from registry.models import GridMethod, GridUnit
 from registry.roles import Ability, has_ability
 from registry.selectors.grids import custom_grids, definition_of
 from registry.services.grids import custom_grid_create
+from registry.web.service_errors import add_service_error
 from registry.web.views import ability_required
 
 
@@ -65,9 +66,7 @@ def grid_list(request: HttpRequest) -> HttpResponse:
             try:
                 grid = custom_grid_create(actor=request.user, data=data)
             except ValidationError as exc:
-                for name, errors in exc.error_dict.items():
-                    for e in errors:
-                        form.add_error(name if name in form.fields else None, e)
+                add_service_error(form, exc)
             else:
                 messages.success(request, f"Custom grid {grid.code} stored.")
                 return redirect("web:grid-list")

@@ -20,12 +20,13 @@ from django.shortcuts import redirect, render
 from django.utils.safestring import mark_safe
 
 from registry.errors import Conflict
+from registry.formatting import format_frame
 from registry.geodesy import rtk, site_files
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
 from registry.roles import Ability
 from registry.selectors.jobs import jobs_in_order
 from registry.services.access import access_job_by_code
-from registry.services.job_fields import REQUIRED_ON_CREATE, new_job_defaults
+from registry.services.job_fields import REQUIRED_ON_CREATE, field_help, new_job_defaults
 from registry.services.jobs import CREATE_FIELDS, JOB_PLANNING, job_create, job_update, may_plan_jobs
 from registry.services.screening import ScreeningResult
 from registry.services.screening.cache import job_screen_cached
@@ -34,7 +35,7 @@ from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.fieldwork_forms import AngleField
 from registry.web.job_map import build_job_map, legend_rows
-from registry.web.templatetags.registry_format import format_frame
+from registry.web.service_errors import ServiceErrorsMixin
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (
@@ -58,15 +59,6 @@ NUMBER_FIELDS = (
     ("recovery_years", "A base needs a good visit within (years)"),
     ("grid_spacing_m", "Site grid spacing (m; empty: chosen from the site size)"),
 )
-HELP = {
-    "epoch_yr": "e.g. 2025.500",
-    "rtk_h_fixed_mm": "Common practice: 8 mm + 1 ppm horizontal, 15 mm + 1 ppm vertical (receiver specifications).",
-    "max_baseline_m": "Common practice for single-base RTK: 10 000 m.",
-    "rover_h_mm": "Common practice for a pole with a checked bubble: 2 mm centring, 3 mm rod height.",
-    "assumed_rate_plate_fixed_mm_yr": "A plate-fixed frame takes out the plate's motion; what remains is small.",
-}
-
-
 #: The form's groups: legend, a note under it, and the fields in order.
 FIELD_GROUPS = (
     ("The job", "", ["code", "name", "client", "status", "notes"]),
@@ -122,7 +114,7 @@ def _text(label, required=False, help_text=""):
     )
 
 
-class JobForm(forms.Form):
+class JobForm(ServiceErrorsMixin, forms.Form):
     """All fields are passed as text to the service, which converts and validates them (coded errors)."""
 
     code = forms.CharField(
@@ -196,8 +188,9 @@ class JobForm(forms.Form):
 
     def __init__(self, *args, editing: bool = False, **kwargs):
         super().__init__(*args, **kwargs)
+        help_texts = field_help()
         for name, label in NUMBER_FIELDS:
-            self.fields[name] = _text(label, help_text=HELP.get(name, ""))
+            self.fields[name] = _text(label, help_text=help_texts.get(name, ""))
         # The service's field order, with the point entry beside the GeoJSON site.
         order = []
         for name in CREATE_FIELDS:
@@ -270,15 +263,6 @@ class JobForm(forms.Form):
         if not only_changed:
             data = {k: v for k, v in data.items() if v not in ("", None) or k in ("client", "notes")}
         return data
-
-    def add_service_error(self, error: ValidationError) -> None:
-        if hasattr(error, "error_dict"):
-            for name, errors in error.error_dict.items():
-                target = name if name in self.fields and name != "version" else None
-                for e in errors:
-                    self.add_error(target, e)
-        else:
-            self.add_error(None, error)
 
 
 def _initial(job: Job) -> dict:

@@ -17,18 +17,19 @@ from django.urls import reverse
 from django.utils.functional import SimpleLazyObject
 
 from registry.errors import Conflict
-from registry.models import Mark
+from registry.formatting import format_frame
 from registry.roles import Ability, has_ability
 from registry.selectors.documents import mark_sheets
-from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_detail, mark_list_counts, mark_search
+from registry.selectors.mark_page import mark_detail, position_of_mark, visit_of_mark
+from registry.selectors.marks import MATCH_PREFIX, attach_usability, mark_list_counts, mark_search
 from registry.selectors.paging import MAX_NUMBERED_PAGE, KeysetPage, keyset_page
 from registry.selectors.read_cache import audit_token, cached_read
 from registry.selectors.timeseries import mark_timeseries
+from registry.services.access import access_mark_by_code
 from registry.services.documents import can_prepare
 from registry.services.marks import mark_create, mark_update
 from registry.web.forms import MARK_FORM_FIELDS, MarkForm, MarkSearchForm, pack_loaded
 from registry.web.mark_map import build_map, points_from_marks
-from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
 PAGE_SIZE = 50
@@ -141,11 +142,12 @@ def mark_list(request: HttpRequest) -> HttpResponse:
 
 @ability_required(Ability.VIEW)
 def mark_page(request: HttpRequest, code: str) -> HttpResponse:
-    try:
-        token = audit_token()
-        detail = cached_read("mark-detail", (code,), lambda: mark_detail(code=code), token=token)
-    except Mark.DoesNotExist:
-        raise Http404(f"No mark with code {code!r}.") from None
+    # The mark through the gatekeeper (services.access), its page data cached on the newest audit row; the
+    # decorator above checks the ability on every request, cached or not.
+    token = audit_token()
+    detail = cached_read(
+        "mark-detail", (code,), lambda: mark_detail(mark=access_mark_by_code(request.user, code)), token=token
+    )
     mark = detail.mark
     context = {
         "detail": detail,
@@ -194,10 +196,7 @@ def _conflict_rows(conflict: Conflict) -> list[dict]:
 
 @ability_required(Ability.MANAGE)
 def mark_edit(request: HttpRequest, code: str) -> HttpResponse:
-    try:
-        mark = Mark.objects.get(code=code)
-    except Mark.DoesNotExist:
-        raise Http404(f"No mark with code {code!r}.") from None
+    mark = access_mark_by_code(request.user, code, ability=Ability.MANAGE)
     initial = {name: getattr(mark, name) for name in MARK_FORM_FIELDS}
     initial["version"] = mark.version
     initial["loaded"] = pack_loaded(mark)
@@ -218,7 +217,7 @@ def mark_edit(request: HttpRequest, code: str) -> HttpResponse:
             except ValidationError as exc:
                 form.add_service_error(exc)
             except Conflict as exc:
-                current = Mark.objects.get(pk=mark.pk)
+                current = access_mark_by_code(request.user, mark.code, ability=Ability.MANAGE)
                 conflict = {
                     "message": exc.message,
                     "rows": _conflict_rows(exc),
@@ -260,20 +259,17 @@ _MARK_TEXTS = {"access-directions": ("access_directions", "Access directions"), 
 @ability_required(Ability.VIEW)
 def mark_text(request: HttpRequest, code: str, what: str, pk: int | None = None) -> HttpResponse:
     """One free text of a mark in full: its description fields, a visit's notes, a position's note."""
-    from registry.models import Position, Visit
-    from registry.services.access import access_mark_by_code
-
     mark = access_mark_by_code(request.user, code)
     if what in _MARK_TEXTS and pk is None:
         field, title = _MARK_TEXTS[what]
         text = getattr(mark, field, "")
     elif what == "visit" and pk is not None:
-        visit = Visit.objects.filter(mark=mark, pk=pk).first()
+        visit = visit_of_mark(mark=mark, pk=pk)
         if visit is None:
             raise Http404("No such visit.")
         text, title = visit.notes, f"Notes of the visit on {visit.visited_on:%Y-%m-%d}"
     elif what == "position" and pk is not None:
-        position = Position.objects.filter(mark=mark, pk=pk).first()
+        position = position_of_mark(mark=mark, pk=pk)
         if position is None:
             raise Http404("No such position.")
         from registry.web.wording import describe_position

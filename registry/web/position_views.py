@@ -15,12 +15,14 @@ from django.shortcuts import redirect, render
 from django.urls import reverse
 
 from registry.errors import Conflict
-from registry.models import Position, PositionState
+from registry.models import PositionState
 from registry.roles import Ability
+from registry.selectors.positions import frames_in_use
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.movement import comparison_target, movement_compare
 from registry.services.positions import position_propose, position_publish, position_reject, position_withdraw
 from registry.web.fieldwork_forms import DecisionForm, PositionForm
+from registry.web.service_errors import add_service_error
 from registry.web.views import ability_required
 
 #: action → (service, state it needs, title, note required)
@@ -32,14 +34,10 @@ ACTIONS = {
 PAST = {"publish": "published", "reject": "rejected", "withdraw": "withdrawn"}
 
 
-def _frames_in_use() -> list[int]:
-    return list(Position.objects.order_by("frame_epsg").values_list("frame_epsg", flat=True).distinct())
-
-
 @ability_required(Ability.RECORD)
 def position_new(request: HttpRequest, code: str) -> HttpResponse:
     mark = access_mark_by_code(request.user, code, ability=Ability.RECORD)
-    frames = _frames_in_use()
+    frames = frames_in_use()
     status = 200
     if request.method == "POST":
         form = PositionForm(request.POST, frames_in_use=frames)
@@ -49,7 +47,7 @@ def position_new(request: HttpRequest, code: str) -> HttpResponse:
             except ValidationError as exc:
                 form.add_service_error(exc)
             except Conflict as exc:
-                form.add_error(None, ValidationError(exc.message, code=exc.code))
+                form.add_service_error(exc)
             else:
                 messages.success(request, f"Position {position.pk} proposed for {mark.code}; a manager decides on it.")
                 return redirect(reverse("web:mark-detail", kwargs={"code": mark.code}) + f"#position-{position.pk}")
@@ -77,10 +75,7 @@ def position_decide(request: HttpRequest, code: str, position_id: int, action: s
             try:
                 service(actor=request.user, position_id=position.pk, note=form.cleaned_data["note"], **extra)
             except ValidationError as exc:
-                errors = exc.error_dict if hasattr(exc, "error_dict") else {"note": exc.error_list}
-                for key, items in errors.items():
-                    for e in items:
-                        form.add_error("note" if key == "note" else None, e)
+                add_service_error(form, exc, plain_to="note")
                 status = 400
             except Conflict as exc:
                 refusal = exc.message

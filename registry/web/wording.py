@@ -1,6 +1,6 @@
 """Words for people in place of codes: audit events, field names, positions, values in the history.
 
-Pages speak to surveyors in words (brief; issue 10 item 9): no event codes (``position_publish``), field
+Pages speak to surveyors in words: no event codes (``position_publish``), field
 names (``search_lat_deg``), database ids ("position 497") or microsecond timestamps. The codes stay in
 the API and the JSON output (documented in README "API: codes"); this module only turns them into
 words for the pages.
@@ -161,7 +161,7 @@ def time_words(value: Any) -> str:
 
 def position_words(frame_epsg: Any, epoch_yr: Any, source: str = "") -> str:
     """A position named by its frame, epoch and source (never by its database id)."""
-    from registry.web.templatetags.registry_format import format_frame
+    from registry.formatting import format_frame
 
     try:
         frame = format_frame(int(frame_epsg))
@@ -199,7 +199,7 @@ def value_words(
         labels = _state_labels()
         return labels.get(str(value), _choice_label(key, value))
     if key in ("frame_epsg", "datum_epsg"):
-        from registry.web.templatetags.registry_format import format_frame
+        from registry.formatting import format_frame
 
         try:
             return format_frame(int(value))

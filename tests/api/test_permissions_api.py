@@ -15,7 +15,7 @@ from tests.services._data import make_mark, make_published, position_data
 pytestmark = pytest.mark.django_db
 
 ROLES = ["anonymous", "no_role", "viewer", "technician", "manager", "signatory", "admin"]
-# Which roles hold which ability (registry/roles.py; brief §1).
+# Which roles hold which ability (registry/roles.py).
 VIEW = {"viewer", "technician", "manager", "signatory", "admin"}
 RECORD = {"technician", "manager"}
 MANAGE = {"manager"}

@@ -3,7 +3,7 @@
 Check values are computed here, in the test, with libraries outside the project (pyproj for ECEF and UTM
 coordinates and the projection's scale factor and convergence; numpy for the covariance's eigenvalues)
 and the published formulas (FGDC-STD-007.2-1998 K polynomial, 1.9600·σ; the radius √(ρν) and
-R/(R+h) of NOAA Manual NOS NGS 5 (Stem 1989), as listed in the brief's references §11.1). The QR code
+R/(R+h) of NOAA Manual NOS NGS 5 (Stem 1989)). The QR code
 is decoded from a 150 dpi rendering (pdftoppm) with zxing-cpp, an independent decoder.
 """
 
@@ -43,7 +43,7 @@ def _dms(angle_deg: float, pos: str, neg: str) -> str:
 
 
 def _k_fgdc(c: float) -> float:
-    # FGDC-STD-007.2-1998, horizontal 95 % circle factor (brief references §4.2; secondary transcription)
+    # FGDC-STD-007.2-1998, horizontal 95 % circle factor (secondary transcription)
     return 1.960790 + 0.004071 * c + 0.114276 * c**2 + 0.371625 * c**3
 
 
@@ -57,7 +57,7 @@ def test_printed_coordinates_equal_independent_computation(sheet):
 
     text = _flat(" ".join(_pages_text(bytes(sheet.content))))
     lat, lon, h = POSITION["lat_deg"], POSITION["lon_deg"], POSITION["h_m"]
-    # latitude / longitude: DMS to 0.00001″ and degrees to 9 places (brief §7)
+    # latitude / longitude: DMS to 0.00001″ and degrees to 9 places (DEVELOPERS.md "Display")
     assert _dms(lat, "N", "S") in text
     assert _dms(lon, "E", "W") in text
     assert f"{lat:.9f}°" in text and f"{lon:.9f}°" in text
@@ -99,7 +99,7 @@ def test_network_accuracy_and_statement_wording(sheet):
     v95 = 1.96 * math.sqrt(POSITION["cov_uu_m2"])  # FGDC Part 2 vertical: 1.9600·σ
     assert f"Horizontal network accuracy {h95:.3f} m ({h95 * 1000:.1f} mm) at the 95% confidence level" in text
     assert f"Ellipsoid height network accuracy {v95:.3f} m ({v95 * 1000:.1f} mm) at the 95% confidence level" in text
-    # classes (FGDC-STD-007.2-1998 table, bounds inclusive; from memory per the brief): 21.7 mm → 5-Centimeter,
+    # classes (FGDC-STD-007.2-1998 table, bounds inclusive; from memory, unconfirmed): 21.7 mm → 5-Centimeter,
     # 24.3 mm → 5-Centimeter
     assert 0.02 < h95 <= 0.05 and 0.02 < v95 <= 0.05
     assert text.count("FGDC-STD-007.2-1998 class 5-Centimeter") == 2

@@ -1,4 +1,4 @@
-"""FGDC Part 2 network/local accuracy and classes; NSSDA and ASPRS Edition 2 check-point tests.
+"""FGDC Part 2 network accuracy and classes; NSSDA and ASPRS Edition 2 check-point tests.
 
 Every check value names its outside source and its status: "secondary transcription" (digits agree
 across transcriptions, primary PDF not read), "recomputed" (with SciPy 1.17.1 / NumPy), "from memory,
@@ -236,39 +236,6 @@ def test_accuracy_class_vectorised_equals_scalar():
 def test_accuracy_class_refuses_negative():
     with pytest.raises(ComputationInputError):
         acc.accuracy_class(-0.001)
-
-
-# --------------------------------------------------------------------------------------------------
-# Local accuracy (Σ_Δ = Σ1 + Σ2 − Σ12 − Σ21)
-# --------------------------------------------------------------------------------------------------
-
-
-def test_local_accuracy_uses_the_difference_covariance():
-    c1 = np.diag([0.004**2, 0.004**2, 0.008**2])
-    c2 = np.diag([0.003**2, 0.003**2, 0.006**2])
-    h, v = acc.local_accuracy_95_m(c1, c2)
-    # independent: σ = 5 mm per axis (3-4-5), circular → 2.450762 × 0.005 (FGDC K polynomial, C = 1)
-    assert h == pytest.approx(2.450762 * 0.005, rel=1e-9)
-    assert v == pytest.approx(1.96 * 0.010, rel=1e-12)
-
-
-def test_local_accuracy_with_correlation_from_one_adjustment():
-    c1 = np.diag([0.004**2, 0.004**2, 0.008**2])
-    c12 = 0.5 * c1  # strongly correlated neighbours: their difference is better known than either
-    h_corr, _ = acc.local_accuracy_95_m(c1, c1, c12)
-    h_ind, _ = acc.local_accuracy_95_m(c1, c1)
-    assert h_corr == pytest.approx(h_ind / math.sqrt(2), rel=1e-12)  # Σ_Δ = 2Σ − Σ = Σ vs 2Σ
-    # identical errors (fully correlated): the difference is exact
-    h0, v0 = acc.local_accuracy_95_m(c1, c1, c1)
-    assert h0 == 0.0 and v0 == 0.0
-
-
-def test_local_accuracy_stack_and_reported_average():
-    c1 = np.stack([np.diag([1e-5, 1e-5, 4e-5])] * 3)
-    c2 = np.stack([np.diag([s, s, 4 * s]) for s in (1e-5, 2e-5, 3e-5)])
-    h, v = acc.local_accuracy_95_m(c1, c2)
-    assert h.shape == (3,) and v.shape == (3,)
-    assert acc.reported_local_accuracy_m(h) == pytest.approx(float(np.mean(h)), rel=1e-12)
 
 
 def test_network_accuracy_needs_3x3():

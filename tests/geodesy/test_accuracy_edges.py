@@ -8,7 +8,7 @@ dyadic numbers (exact in binary) so that "at the bound" really is at the bound.
 Sources of the rules: NSSDA = FGDC-STD-007.3-1998 §3.2 and App. 3-A (the 0.6 bound is from memory,
 unconfirmed, as in the module); ASPRS = Positional Accuracy Standards, Edition 2 (2023) §7 (secondary
 transcription): blunder "beyond 3 × RMSE", bias "mean above 25 % of the RMSE", check points "at least
-twice as accurate"; FGDC = FGDC-STD-007.2-1998 Part 2 (Σ_Δ = Σ1 + Σ2 − Σ12 − Σ21 for local accuracy).
+twice as accurate"; FGDC = FGDC-STD-007.2-1998 Part 2 (network accuracy).
 Hand formulas are written out beside each value.
 """
 
@@ -78,54 +78,6 @@ REFUSALS = [
         "negative_variance",
         {},
         "A variance cannot be negative.",
-    ),
-    (
-        lambda: acc.difference_covariance_m2(np.eye(3), np.eye(2)),
-        "bad_covariance_shape",
-        {},
-        "Both covariances must have the same size.",
-    ),
-    (
-        lambda: acc.difference_covariance_m2(np.eye(3), np.eye(4)),
-        "bad_covariance_shape",
-        {"name": "covariance of point 2"},
-        "covariance of point 2 must be a 2×2 or 3×3 matrix (or a stack of them).",
-    ),
-    (
-        lambda: acc.difference_covariance_m2([1.0], np.eye(3)),
-        "bad_covariance_shape",
-        {"name": "covariance of point 1"},
-        "covariance of point 1 must be a 2×2 or 3×3 matrix (or a stack of them).",
-    ),
-    (
-        lambda: acc.difference_covariance_m2(np.eye(3), np.eye(3), np.eye(4)),
-        "bad_covariance_shape",
-        {"name": "cross-covariance"},
-        "cross-covariance must be a 2×2 or 3×3 matrix (or a stack of them).",
-    ),
-    (
-        lambda: acc.local_accuracy_95_m(np.eye(2), np.eye(2)),
-        "bad_covariance_shape",
-        {},
-        "Local accuracy needs 3×3 east/north/up covariances.",
-    ),
-    (
-        lambda: acc.reported_local_accuracy_m([]),
-        "no_neighbours",
-        {},
-        "A local accuracy needs at least one connected neighbour.",
-    ),
-    (
-        lambda: acc.reported_local_accuracy_m(0.01),
-        "no_neighbours",
-        {},
-        "A local accuracy needs at least one connected neighbour.",
-    ),
-    (
-        lambda: acc.reported_local_accuracy_m([0.01, NAN]),
-        "not_finite",
-        {"name": "local accuracy"},
-        "local accuracy must be finite.",
     ),
     (lambda: acc.rmse_m([]), "no_residuals", {}, "At least one residual is needed."),
     (lambda: acc.rmse_m(0.02), "no_residuals", {}, "At least one residual is needed."),
@@ -243,7 +195,7 @@ def test_bad_input_is_refused_with_its_code_params_and_sentence(call, code, para
 
 
 # --------------------------------------------------------------------------------------------------
-# FGDC Part 2: network and local accuracy
+# FGDC Part 2: network accuracy
 # --------------------------------------------------------------------------------------------------
 
 
@@ -263,25 +215,6 @@ def test_network_accuracy_of_a_stack_of_stacks_keeps_its_shape():
     # K(1) = 1.960790 + 0.004071 + 0.114276 + 0.371625 = 2.450762 (FGDC), σ = 0.01 m.
     assert np.shape(h) == (2, 2) and np.allclose(h, 0.02450762, rtol=1e-12)
     assert np.allclose(v, 0.0196, rtol=1e-12)
-
-
-def test_difference_covariance_transposes_an_unsymmetric_cross_covariance():
-    # FGDC Part 2: Σ_Δ = Σ1 + Σ2 − Σ12 − Σ12ᵀ, written out element by element for one stack of two.
-    s1 = np.diag([4e-6, 4e-6, 9e-6])
-    s2 = np.diag([1e-6, 1e-6, 4e-6])
-    c12 = np.array([[1e-6, 0.5e-6, 0.0], [0.0, 1e-6, 0.0], [0.0, 0.0, 2e-6]])
-    want = s1 + s2 - c12 - c12.T
-    assert want[0, 1] == pytest.approx(-0.5e-6) and want[1, 0] == pytest.approx(-0.5e-6)
-    got = acc.difference_covariance_m2(s1, s2, c12)
-    assert np.allclose(got, want, rtol=0, atol=1e-18)
-    stack = acc.difference_covariance_m2(np.stack([s1, s1]), np.stack([s2, s2]), np.stack([c12, c12]))
-    assert np.allclose(stack, np.stack([want, want]), rtol=0, atol=1e-18)
-
-
-def test_reported_local_accuracy_of_one_neighbour_and_per_mark_rows():
-    assert acc.reported_local_accuracy_m([0.0125]) == 0.0125  # the mean of one value is that value
-    rows = acc.reported_local_accuracy_m([[0.010, 0.014], [0.020, 0.030]])  # mean per row (last axis)
-    assert np.allclose(rows, [0.012, 0.025], rtol=0, atol=1e-15)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -403,17 +336,6 @@ def test_asprs_result_fields_horizontal_and_vertical():
     few = acc.asprs2023_evaluate(du_m=[0.01] * 29, survey_sigma_u_m=0.0)
     assert few.findings[0].params == {"n": 29, "minimum": 30, "standard": "asprs2023"}
     assert (few.x, few.y, few.rmse_h_m, few.rmse_3d_m) == (None, None, None, None)
-
-
-def test_difference_and_local_accuracy_of_a_two_level_stack():
-    # A (1, 2, 3, 3) stack (e.g. two neighbours of one mark): Σ_Δ = Σ1 + Σ2 element by element (FGDC Part 2,
-    # no cross-covariance), and the local accuracy per pair: K(1)·σ with σ = √(1e-4 + 1e-4) (hand formula).
-    s = np.broadcast_to(np.diag([1e-4, 1e-4, 4e-4]), (1, 2, 3, 3))
-    assert np.allclose(acc.difference_covariance_m2(s, s), 2 * s, rtol=0, atol=1e-18)
-    h, v = acc.local_accuracy_95_m(s, s)
-    k1 = 1.960790 + 0.004071 + 0.114276 + 0.371625
-    assert np.shape(h) == (1, 2) and np.allclose(h, k1 * math.sqrt(2e-4), rtol=1e-12)
-    assert np.allclose(v, 1.96 * math.sqrt(8e-4), rtol=1e-12)
 
 
 def test_a_stack_of_four_covariances_per_mark_is_accepted():

@@ -1,12 +1,10 @@
-"""registry.geodesy.proximity: search boxes, geodesic inverse, distance to a site polygon.
+"""registry.geodesy.proximity: search boxes, geodesic inverse.
 
 Independent reference: GeographicLib 2.1 (C. F. F. Karney, "Algorithms for geodesics",
 J. Geodesy 87 (2013) 43–55), on GRS80 (a = 6 378 137 m, 1/f = 298.257222101; Moritz 1980).
 """
 
 from __future__ import annotations
-
-import math
 
 import numpy as np
 import pytest
@@ -99,81 +97,3 @@ def test_sphere_factors_are_the_radii_of_curvature_over_r1():
     lo, hi = proximity.sphere_distance_factors()
     assert lo == pytest.approx(6_335_439.327 / 6_371_008.771, rel=3e-9)  # 1e-9 safety margin inside
     assert hi == pytest.approx(6_399_593.626 / 6_371_008.771, rel=3e-9)
-
-
-def _square(lat0, lon0, half_deg):
-    return {
-        "type": "Polygon",
-        "coordinates": [
-            [
-                [lon0 - half_deg, lat0 - half_deg],
-                [lon0 + half_deg, lat0 - half_deg],
-                [lon0 + half_deg, lat0 + half_deg],
-                [lon0 - half_deg, lat0 + half_deg],
-                [lon0 - half_deg, lat0 - half_deg],
-            ]
-        ],
-    }
-
-
-def test_distance_to_polygon_along_a_meridian_edge():
-    """A point due east of a meridian edge: the nearest edge point is on the same parallel
-    only approximately (geodesics are not parallels), so the reference is GeographicLib's
-    minimum over the edge sampled every 1 m, then every 1 mm around the best sample."""
-    poly = proximity.parse_site_polygon(_square(45.2, -110.6, 0.01))
-    d, az = proximity.distance_to_polygon_m(poly, [45.2], [-110.58])
-    line = GRS80.InverseLine(45.19, -110.59, 45.21, -110.59)
-
-    def dist(s_m):
-        p = line.Position(s_m)
-        return GRS80.Inverse(p["lat2"], p["lon2"], 45.2, -110.58)["s12"]
-
-    coarse = min(np.arange(0.0, line.s13, 1.0), key=dist)
-    ref = min(dist(s) for s in np.arange(coarse - 2.0, coarse + 2.0, 0.001))
-    assert float(d[0]) == pytest.approx(ref, abs=1e-5)
-    assert float(az[0]) == pytest.approx(90.0, abs=0.01)
-
-
-def test_distance_to_polygon_vertex_region_and_inside():
-    poly = proximity.parse_site_polygon(_square(0.0, 0.0, 0.01))
-    # Beyond the north-east corner the nearest boundary point is the corner itself.
-    d, az = proximity.distance_to_polygon_m(poly, [0.02, 0.0, 0.005], [0.02, 0.0, -0.005])
-    corner = GRS80.Inverse(0.01, 0.01, 0.02, 0.02)
-    assert float(d[0]) == pytest.approx(corner["s12"], abs=1e-6)
-    assert float(az[0]) == pytest.approx(corner["azi1"], abs=1e-6)
-    assert float(d[1]) == 0.0 and math.isnan(az[1])
-    assert float(d[2]) == 0.0
-
-
-def test_distance_to_polygon_across_the_antimeridian():
-    ring = np.array(_square(-17.6, 179.995, 0.01)["coordinates"][0])
-    ring[:, 0] = np.mod(ring[:, 0] + 180.0, 360.0) - 180.0  # the ring crosses 180°
-    poly = proximity.parse_site_polygon({"type": "Polygon", "coordinates": [ring.tolist()]})
-    assert poly.centre_lon_deg == pytest.approx(179.995, abs=1e-9)
-    d, _ = proximity.distance_to_polygon_m(poly, [-17.6, -17.6], [-179.999, -179.98])
-    assert float(d[0]) == 0.0
-    ref = GRS80.Inverse(-17.6, -179.995, -17.6, -179.98)["s12"]
-    assert float(d[1]) == pytest.approx(ref, rel=1e-4)  # nearest point is on the edge at lon −179.995
-
-
-@pytest.mark.parametrize(
-    "value, code",
-    [
-        ({"type": "LineString", "coordinates": []}, "polygon_type"),
-        ({"type": "Polygon", "coordinates": []}, "polygon_empty"),
-        ({"type": "Polygon", "coordinates": [[[0, 0], [1, 0], [0, 0]]]}, "polygon_ring_short"),
-        ({"type": "Polygon", "coordinates": [[[0, 0], [1, 0], [1, 1], [0, 1]]]}, "polygon_not_closed"),
-        ({"type": "Polygon", "coordinates": [[[0, 0], [0, 95], [1, 1], [0, 0]]]}, "polygon_range"),
-        ({"type": "Polygon", "coordinates": [[[0, 0], ["a", 0], [1, 1], [0, 0]]]}, "polygon_position"),
-    ],
-)
-def test_parse_site_polygon_refuses_bad_input(value, code):
-    with pytest.raises(proximity.PolygonError) as err:
-        proximity.parse_site_polygon(value)
-    assert err.value.code == code
-
-
-def test_parse_site_polygon_accepts_a_feature():
-    poly = proximity.parse_site_polygon({"type": "Feature", "properties": {}, "geometry": _square(45.2, -110.6, 0.01)})
-    assert poly.centre_lat_deg == pytest.approx(45.2)
-    assert poly.enclosing_radius_m == pytest.approx(GRS80.Inverse(45.2, -110.6, 45.21, -110.59)["s12"], rel=1e-3)

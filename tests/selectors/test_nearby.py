@@ -25,7 +25,7 @@ from geographiclib.geodesic import Geodesic
 
 from registry.errors import InvalidInput
 from registry.models import Finding, Mark, MarkStatus, Position, PositionState, Stability, Visit
-from registry.selectors.nearby import marks_near, marks_near_polygon
+from registry.selectors.nearby import marks_near
 
 pytestmark = pytest.mark.django_db
 
@@ -371,97 +371,6 @@ def test_each_filter_excludes_what_it_should(small_district, path):
         frame_epsg=7912,
         accuracy_class_max_m=0.05,
     ) == ["GOOD1", "EDGE1"]
-
-
-# ----------------------------------------------------------------------------- polygon
-
-
-SITE = {
-    "type": "Polygon",
-    "coordinates": [
-        [[-110.610, 45.195], [-110.590, 45.195], [-110.590, 45.205], [-110.610, 45.205], [-110.610, 45.195]],
-        [[-110.602, 45.199], [-110.598, 45.199], [-110.598, 45.201], [-110.602, 45.201], [-110.602, 45.199]],
-    ],
-}
-
-
-def _dense_boundary(rings_lonlat, step_m=0.5):
-    """Reference boundary samples: every ring edge sampled every 0.25 m along the geodesic
-    with GeographicLib (InverseLine/Position). The smallest geodesic distance to these
-    samples overestimates the true distance by at most step²/(8·d): under 2 mm beyond 16 m."""
-    pts_lat, pts_lon = [], []
-    for ring in rings_lonlat:
-        for (lon1, lat1), (lon2, lat2) in zip(ring[:-1], ring[1:], strict=True):
-            line = GRS80_GEODESIC.InverseLine(lat1, lon1, lat2, lon2)
-            n = max(2, int(math.ceil(line.s13 / step_m)) + 1)
-            for s in np.linspace(0.0, line.s13, n):
-                p = line.Position(s)
-                pts_lat.append(p["lat2"])
-                pts_lon.append(p["lon2"])
-    return np.array(pts_lat), np.array(pts_lon)
-
-
-def _dense_polygon_distance_m(lat, lon, boundary):
-    pts_lat, pts_lon = boundary
-    d = GEOD.inv(np.full(pts_lat.size, lon), np.full(pts_lat.size, lat), pts_lon, pts_lat)[2]
-    return float(np.min(d))
-
-
-@pytest.mark.parametrize("path", PATHS)
-def test_polygon_distance_inside_hole_and_outside(path):
-    rng = np.random.default_rng(5)
-    n = 120
-    lat = 45.2 + rng.uniform(-0.012, 0.012, n)
-    lon = -110.6 + rng.uniform(-0.016, 0.016, n)
-    Mark.objects.bulk_create(
-        [
-            Mark(code=f"P{i:03d}", search_lat_deg=float(a), search_lon_deg=float(b))
-            for i, (a, b) in enumerate(zip(lat, lon, strict=True))
-        ]
-    )
-    found = marks_near_polygon(polygon_geojson=SITE, distance_m=600.0, path=path)
-    by_code = {m.code: m for m in found}
-    outer_lat, hole_lat = (45.195, 45.205), (45.199, 45.201)
-    outer_lon, hole_lon = (-110.610, -110.590), (-110.602, -110.598)
-    boundary = _dense_boundary(SITE["coordinates"])
-    for i in range(n):
-        code = f"P{i:03d}"
-        in_outer = outer_lat[0] < lat[i] < outer_lat[1] and outer_lon[0] < lon[i] < outer_lon[1]
-        in_hole = hole_lat[0] < lat[i] < hole_lat[1] and hole_lon[0] < lon[i] < hole_lon[1]
-        if in_outer and not in_hole:
-            assert by_code[code].distance_m == 0.0 and by_code[code].azimuth_deg is None
-            continue
-        ref = _dense_polygon_distance_m(lat[i], lon[i], boundary)
-        if ref <= 600.0 - 0.01:
-            assert code in by_code
-            assert by_code[code].distance_m == pytest.approx(ref, abs=0.002 if ref > 16.0 else 0.04)
-            assert by_code[code].distance_m <= ref + 1e-9  # the exact minimum never exceeds a sample
-        elif ref > 600.0 + 0.01:
-            assert code not in by_code
-    dists = [m.distance_m for m in found]
-    assert dists == sorted(dists)
-
-
-def test_polygon_limit_and_bad_polygons():
-    Mark.objects.bulk_create(
-        [Mark(code=f"Q{i}", search_lat_deg=45.2 + 0.001 * i, search_lon_deg=-110.6) for i in range(10)]
-    )
-    found = marks_near_polygon(polygon_geojson=SITE, distance_m=100.0, limit=2)
-    assert len(found) == 2
-    with pytest.raises(InvalidInput) as err:
-        marks_near_polygon(polygon_geojson={"type": "Point", "coordinates": [0, 0]}, distance_m=10)
-    assert err.value.code == "polygon_type"
-    with pytest.raises(InvalidInput) as err:
-        open_ring = {"type": "Polygon", "coordinates": [[[0, 0], [1, 0], [1, 1], [0, 1]]]}
-        marks_near_polygon(polygon_geojson=open_ring, distance_m=10)
-    assert err.value.code == "polygon_not_closed"
-    with pytest.raises(InvalidInput) as err:
-        marks_near_polygon(polygon_geojson="{not json", distance_m=10)
-    assert err.value.code == "polygon_json"
-    with pytest.raises(InvalidInput) as err:
-        huge = {"type": "Polygon", "coordinates": [[[0, 0], [3, 0], [3, 3], [0, 3], [0, 0]]]}
-        marks_near_polygon(polygon_geojson=huge, distance_m=10)
-    assert err.value.code == "polygon_too_large"
 
 
 # ----------------------------------------------------------------------------- bad input

@@ -3,7 +3,7 @@ blunders as the ASPRS style does, and σ in millimetres with a correlation is ac
 
 Check values:
 - FGDC-STD-007.2-1998 Part 2: r95 = K·σmax, K = 1.960790 + 0.004071·C + 0.114276·C² + 0.371625·C³
-  (the polynomial as printed in the brief); for σe = σn (C = 1) K = 2.447762, so σ = 10 mm → 24.48 mm.
+  (secondary transcription, as in registry/geodesy/accuracy.py); for σe = σn (C = 1) K = 2.447762, so σ = 10 mm → 24.48 mm.
 - A correlated case is checked against numpy's eigenvalues of the 2×2 covariance (an independent
   computation of the error-ellipse axes), then the same K polynomial.
 - The blunder rule (3 × the measured axis RMSE) of ASPRS Positional Accuracy Standards, Edition 2 (2023);

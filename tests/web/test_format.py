@@ -1,4 +1,4 @@
-"""Display formatting used by the pages (registry.web.templatetags.registry_format).
+"""Display formatting (registry.formatting, which the template filters of registry_format wrap).
 
 Check values and their sources are beside each case.
 """
@@ -10,7 +10,7 @@ import datetime as dt
 import pytest
 from django.template import Context, Template
 
-from registry.web.templatetags import registry_format as rf
+from registry import formatting as fmt
 
 
 def dms_to_deg(d: int, m: int, s: float, sign: int = 1) -> float:
@@ -36,19 +36,19 @@ def dms_to_deg(d: int, m: int, s: float, sign: int = 1) -> float:
     ],
 )
 def test_dms_round_trips_published_angles(lat, lon, lat_text, lon_text):
-    assert rf.format_lat_dms(lat) == lat_text
-    assert rf.format_lon_dms(lon) == lon_text
+    assert fmt.format_lat_dms(lat) == lat_text
+    assert fmt.format_lon_dms(lon) == lon_text
 
 
 def test_dms_carries_instead_of_printing_sixty_seconds():
     # Definition (rounding the whole angle first): 45°00′59.999996″ to 0.00001″ is 45°01′00.00000″.
-    assert rf.format_lat_dms(dms_to_deg(45, 0, 59.999996)) == "45°01′00.00000″ N"
+    assert fmt.format_lat_dms(dms_to_deg(45, 0, 59.999996)) == "45°01′00.00000″ N"
     # and 44°59′59.999996″ carries into the degrees.
-    assert rf.format_lat_dms(dms_to_deg(44, 59, 59.999996)) == "45°00′00.00000″ N"
+    assert fmt.format_lat_dms(dms_to_deg(44, 59, 59.999996)) == "45°00′00.00000″ N"
 
 
 def test_dms_of_zero_has_no_southern_hemisphere():
-    assert rf.format_lat_dms(-1e-12) == "0°00′00.00000″ N"
+    assert fmt.format_lat_dms(-1e-12) == "0°00′00.00000″ N"
 
 
 @pytest.mark.parametrize(
@@ -61,16 +61,16 @@ def test_dms_of_zero_has_no_southern_hemisphere():
     ],
 )
 def test_decimal_degrees_to_nine_places(value, text):
-    assert rf.format_deg9(value) == text
+    assert fmt.format_deg9(value) == text
 
 
 def test_metres_and_millimetres():
-    assert rf.format_m3(1523.4567) == "1523.457"  # rounding to 3 decimals
-    assert rf.format_m3(-0.0004) == "0.000"
-    assert rf.format_mm(0.0121) == "12.1"
-    assert rf.format_sigma_mm(1.6e-5) == "4.0"  # √(1.6e-5 m²) = 0.004 m
+    assert fmt.format_m3(1523.4567) == "1523.457"  # rounding to 3 decimals
+    assert fmt.format_m3(-0.0004) == "0.000"
+    assert fmt.format_mm(0.0121) == "12.1"
+    assert fmt.format_sigma_mm(1.6e-5) == "4.0"  # √(1.6e-5 m²) = 0.004 m
     with pytest.raises(ValueError):
-        rf.format_sigma_mm(-1e-6)
+        fmt.format_sigma_mm(-1e-6)
 
 
 # ---------------------------------------------------------------- epochs
@@ -89,11 +89,11 @@ def test_metres_and_millimetres():
     ],
 )
 def test_epoch_as_decimal_year_with_date(epoch, text):
-    assert rf.format_epoch(epoch) == text
+    assert fmt.format_epoch(epoch) == text
 
 
 def test_decimal_year_instant_is_utc():
-    assert rf.decimal_year_to_datetime(2024.25) == dt.datetime(2024, 4, 1, 12, 0, tzinfo=dt.UTC)
+    assert fmt.decimal_year_to_datetime(2024.25) == dt.datetime(2024, 4, 1, 12, 0, tzinfo=dt.UTC)
 
 
 # ---------------------------------------------------------------- frames, times, states
@@ -111,13 +111,13 @@ def test_decimal_year_instant_is_utc():
     ],
 )
 def test_frame_names_come_from_the_epsg_database(epsg, text):
-    assert rf.format_frame(epsg) == text
+    assert fmt.format_frame(epsg) == text
 
 
 def test_utc_times_show_the_zone():
     eastern = dt.timezone(dt.timedelta(hours=-5))
     assert (
-        rf.format_utc(dt.datetime(2024, 5, 3, 9, 22, 5, tzinfo=eastern)) == "2024-05-03 14:22 UTC"
+        fmt.format_utc(dt.datetime(2024, 5, 3, 9, 22, 5, tzinfo=eastern)) == "2024-05-03 14:22 UTC"
     )  # to the minute on pages (issue 10, item 9)
 
 

@@ -86,7 +86,7 @@ def test_long_candidate_lists_fold_into_details(client, viewer, db):
     # The map frames the point and its nearest marks: the farther ones are counted in the caption.
     outside = re.search(r'<span class="num">(\d+)</span> other marks within the search radius lie outside', body)
     assert outside is not None and int(outside.group(1)) >= 10
-    # Distances print with one decimal, mm with one decimal (brief §7), right-aligned cells.
+    # Distances print with one decimal, mm with one decimal (DEVELOPERS.md "Display"), right-aligned cells.
     first = re.search(r'<tr data-code="M-00">(.*?)</tr>', top_table, re.S).group(1)
     cells = re.findall(r'<td class="num">([^<]*)</td>', first)
     assert re.fullmatch(r"\d+\.\d", cells[1]) and re.fullmatch(r"\d+\.\d", cells[3])

@@ -87,6 +87,25 @@ def test_filters(kestrel, signed_in, viewer):
 
 
 @pytest.mark.django_db
+def test_accuracy_filter_as_in_the_api(kestrel, signed_in, viewer):
+    # KV-001 and KV-002 are published with σe = 4 mm, σn = 3 mm, no correlation (scenario). FGDC-STD-007.2-1998
+    # horizontal 95 %: C = 3/4, K = 1.960790 + 0.004071·C + 0.114276·C² + 0.371625·C³ = 2.184903 (hand formula),
+    # r95 = K·σmax = 8.740 mm: kept at 8.8 mm, both left out at 8.7 mm.
+    client = signed_in(viewer)
+    base = {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "10"}
+    page = client.get(URL, {**base, "accuracy_class_max_m": "0.0088"}).content.decode()
+    assert "2 marks within" in page and "KV-001" in page and "KV-002" in page
+    page = client.get(URL, {**base, "accuracy_class_max_m": "0.0087"}).content.decode()
+    assert "0 marks within" in page
+    page = client.get(URL, {**base, "accuracy_class_max_m": "0.0088", "frame_epsg": "9989"}).content.decode()
+    assert "0 marks within" in page  # in the frame asked only: KV-001's ITRF2020 position is only proposed
+    api = client.get(
+        "/api/marks/near/", {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "accuracy_class_max_m": "0.0087"}
+    )
+    assert api.status_code == 200 and api.json()["count"] == 0  # the page and the API filter alike
+
+
+@pytest.mark.django_db
 @pytest.mark.parametrize(
     "params,field,text",
     [
@@ -95,6 +114,8 @@ def test_filters(kestrel, signed_in, viewer):
         ({"lon": "110 36 W E"}, "lon", "&#x27;W&#x27; is not a number here."),
         ({"radius_km": "0"}, "radius_km", "greater than or equal"),
         ({"limit": "100000"}, "limit", "less than or equal"),
+        ({"accuracy_class_max_m": "0"}, "accuracy_class_max_m", "greater than or equal"),
+        ({"accuracy_class_max_m": "101"}, "accuracy_class_max_m", "less than or equal"),
     ],
 )
 def test_bad_input(kestrel, signed_in, viewer, params, field, text):

@@ -98,7 +98,7 @@ class Command(BaseCommand):
 
     @staticmethod
     def _text(report: dict) -> str:
-        from registry.geodesy.statements import format_mm
+        from registry.formatting import format_mm
 
         out = [report["standard"], ""]
         out += report["statement_lines"]

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from django.contrib.auth import get_user_model
 from django.core.exceptions import ValidationError
-from django.core.management.base import BaseCommand, CommandError
+from django.core.management.base import CommandError
 
 from registry.errors import PermissionDeniedError
+from registry.management.common import HelpAsWrittenCommand, actor_by_username, read_input_file
 from registry.services.imports import FORMATS, ImportRejected, mark_import
 
 HELP = """\
@@ -39,15 +39,8 @@ An export carries marks and all their currently published positions; it does not
 """
 
 
-class Command(BaseCommand):
+class Command(HelpAsWrittenCommand):
     help = HELP
-
-    def create_parser(self, prog_name, subcommand, **kwargs):
-        from argparse import RawDescriptionHelpFormatter
-
-        parser = super().create_parser(prog_name, subcommand, **kwargs)
-        parser.formatter_class = RawDescriptionHelpFormatter
-        return parser
 
     def add_arguments(self, parser):
         parser.add_argument("file", help="path of a .csv or .geojson file")
@@ -71,15 +64,8 @@ class Command(BaseCommand):
         if opts["overwrite"] and not opts["update"]:
             raise CommandError("--overwrite needs --update (it concerns rows of marks that already exist).")
         path = Path(opts["file"])
-        try:
-            content = path.read_bytes()
-        except OSError as exc:
-            raise CommandError(f"cannot read {path}: {exc.strerror}") from None
-        User = get_user_model()
-        try:
-            actor = User.objects.get(username=opts["username"])
-        except User.DoesNotExist:
-            raise CommandError(f"no user named {opts['username']!r}") from None
+        content = read_input_file(path)
+        actor = actor_by_username(opts["username"])
         try:
             summary = mark_import(
                 actor=actor,

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from django.contrib.auth import get_user_model
 from django.core.exceptions import ValidationError
-from django.core.management.base import BaseCommand, CommandError
+from django.core.management.base import CommandError
 
 from registry.errors import PermissionDeniedError, RegistryError
+from registry.management.common import HelpAsWrittenCommand, actor_by_username, read_input_file
 from registry.services.imports import ImportRejected
 from registry.services.occupation_batch import occupation_batch_import
 
@@ -27,15 +27,8 @@ and the reason. --dry-run checks every row and changes nothing.
 """
 
 
-class Command(BaseCommand):
+class Command(HelpAsWrittenCommand):
     help = HELP
-
-    def create_parser(self, prog_name, subcommand, **kwargs):
-        from argparse import RawDescriptionHelpFormatter
-
-        parser = super().create_parser(prog_name, subcommand, **kwargs)
-        parser.formatter_class = RawDescriptionHelpFormatter
-        return parser
 
     def add_arguments(self, parser):
         parser.add_argument("file", help="path of the .csv file")
@@ -44,15 +37,8 @@ class Command(BaseCommand):
 
     def handle(self, *args, **opts):
         path = Path(opts["file"])
-        try:
-            content = path.read_bytes()
-        except OSError as exc:
-            raise CommandError(f"cannot read {path}: {exc.strerror}") from None
-        User = get_user_model()
-        try:
-            actor = User.objects.get(username=opts["username"])
-        except User.DoesNotExist:
-            raise CommandError(f"no user named {opts['username']!r}") from None
+        content = read_input_file(path)
+        actor = actor_by_username(opts["username"])
         try:
             summary = occupation_batch_import(actor=actor, content=content, filename=path.name, dry_run=opts["dry_run"])
         except PermissionDeniedError as exc:

@@ -5,11 +5,11 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from django.contrib.auth import get_user_model
 from django.core.exceptions import ValidationError
-from django.core.management.base import BaseCommand, CommandError
+from django.core.management.base import CommandError
 
 from registry.errors import RegistryError
+from registry.management.common import HelpAsWrittenCommand, actor_by_username, read_input_file
 from registry.models import OccupationMethod
 from registry.services.rinex import occupation_from_rinex
 
@@ -32,15 +32,8 @@ occupation as JSON.
 """
 
 
-class Command(BaseCommand):
+class Command(HelpAsWrittenCommand):
     help = HELP
-
-    def create_parser(self, prog_name, subcommand, **kwargs):
-        from argparse import RawDescriptionHelpFormatter
-
-        parser = super().create_parser(prog_name, subcommand, **kwargs)
-        parser.formatter_class = RawDescriptionHelpFormatter
-        return parser
 
     def add_arguments(self, parser):
         parser.add_argument("file", help="RINEX observation file (.rnx, .YYo, optionally .gz)")
@@ -57,15 +50,8 @@ class Command(BaseCommand):
 
     def handle(self, *args, **opts):
         path = Path(opts["file"])
-        try:
-            content = path.read_bytes()
-        except OSError as exc:
-            raise CommandError(f"cannot read {path}: {exc.strerror}") from None
-        User = get_user_model()
-        try:
-            actor = User.objects.get(username=opts["username"])
-        except User.DoesNotExist:
-            raise CommandError(f"no user named {opts['username']!r}") from None
+        content = read_input_file(path)
+        actor = actor_by_username(opts["username"])
         try:
             occupation, prefill = occupation_from_rinex(
                 actor=actor,

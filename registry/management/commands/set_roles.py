@@ -7,21 +7,13 @@ with the roles before and after. Roles: viewer, technician, manager, signatory, 
 
 from __future__ import annotations
 
-from django.contrib.auth import get_user_model
 from django.core.exceptions import ValidationError
 from django.core.management.base import BaseCommand, CommandError
 
 from registry.errors import RegistryError
+from registry.management.common import actor_by_username
 from registry.roles import Role
 from registry.services.users import user_set_roles
-
-
-def actor_by_username(username: str):
-    User = get_user_model()
-    try:
-        return User.objects.get(username=username)
-    except User.DoesNotExist:
-        raise CommandError(f"no user named {username!r} (--as)") from None
 
 
 class Command(BaseCommand):

@@ -1,4 +1,4 @@
-"""Base screening of a stored job or an ad-hoc site (brief §4; reads only, nothing is written).
+"""Base screening of a stored job or an ad-hoc site (reads only, nothing is written).
 
 Steps:
 

@@ -1,174 +1,32 @@
-"""Display formatting for pages: one way to print each kind of number (brief §7).
+"""Template filters for pages: the numbers printed as :mod:`registry.formatting` prints them, ``None`` as a dash.
 
-- latitude/longitude in DMS to 0.00001″ with the hemisphere letter (through
-  :mod:`registry.geodesy.dms`, so pages, API and PDFs round alike), and in decimal
-  degrees to 9 places;
-- metres to 3 decimals; sigmas and accuracies in millimetres (1 decimal);
-- coordinate epochs as decimal years to 3 places with the calendar date beside;
-- frames as "name (EPSG:code)", the name taken from PROJ's EPSG database;
-- states as a word first, with a colour class second.
-
-The pure formatting functions (``format_*``, ``decimal_year_to_date``, ``frame_name``)
-take plain numbers and return strings, so the PDF and command-line code can print
-the same value the same way. The template filters wrap them and turn ``None`` into
-an em dash.
-
-Decimal year convention: ``Y + f`` is the instant ``f × (days in year Y)`` after
-1 January of year Y, 00:00 UTC (365 or 366 days). This is the plain "fraction of the
-calendar year" convention; PROJ's time-dependent transformations take the epoch as
-a decimal year and do not depend on the calendar date shown here.
+One way to print each kind of number (DEVELOPERS.md "Display"); states as a word first, with a
+colour class second.
 """
 
 from __future__ import annotations
 
-import calendar
 import datetime as dt
 import functools
-import math
-from functools import lru_cache
 
 from django import template
 from django.utils.html import format_html
 
-from registry.geodesy import dms
+from registry.formatting import (
+    format_deg9,
+    format_epoch,
+    format_frame,
+    format_lat_dms,
+    format_lon_dms,
+    format_m3,
+    format_mm,
+    format_sigma_mm,
+    format_utc,
+)
 
 register = template.Library()
 
 DASH = "—"
-
-
-# --------------------------------------------------------------------------- pure functions
-
-
-def format_lat_dms(lat_deg: float) -> str:
-    """Latitude as DMS to 0.00001″ with N/S (one implementation: :mod:`registry.geodesy.dms`).
-
-    >>> format_lat_dms(45.2)
-    '45°12′00.00000″ N'
-    """
-    return dms.format_lat(lat_deg, decimals=5)
-
-
-def format_lon_dms(lon_deg: float) -> str:
-    """Longitude as DMS to 0.00001″ with E/W.
-
-    >>> format_lon_dms(-110.6)
-    '110°36′00.00000″ W'
-    """
-    return dms.format_lon(lon_deg, decimals=5)
-
-
-def _fixed(value: float, places: int) -> str:
-    text = f"{value:.{places}f}"
-    if text.startswith("-") and float(text) == 0.0:  # no "-0.000"
-        text = text[1:]
-    return text
-
-
-def format_deg9(value_deg: float) -> str:
-    """Decimal degrees to 9 places (about 0.1 mm on the ground); ASCII minus so that it copies.
-
-    >>> format_deg9(-110.6)
-    '-110.600000000'
-    """
-    return _fixed(value_deg, 9)
-
-
-def format_m3(value_m: float) -> str:
-    """Metres to 3 decimals.
-
-    >>> format_m3(1523.4567)
-    '1523.457'
-    """
-    return _fixed(value_m, 3)
-
-
-def format_mm(value_m: float, places: int = 1) -> str:
-    """A length given in metres, printed in millimetres.
-
-    >>> format_mm(0.0123)
-    '12.3'
-    """
-    return _fixed(value_m * 1000.0, places)
-
-
-def format_sigma_mm(variance_m2: float, places: int = 1) -> str:
-    """The standard deviation (mm) from a variance in m².
-
-    >>> format_sigma_mm(0.004**2)
-    '4.0'
-    """
-    if variance_m2 < 0:
-        raise ValueError("a variance cannot be negative")
-    return _fixed(math.sqrt(variance_m2) * 1000.0, places)
-
-
-def decimal_year_to_datetime(epoch_yr: float) -> dt.datetime:
-    """The UTC instant of a decimal year (fraction of the calendar year, see module docstring).
-
-    >>> decimal_year_to_datetime(2020.5).isoformat()
-    '2020-07-02T00:00:00+00:00'
-    """
-    if epoch_yr is None or not math.isfinite(epoch_yr):
-        raise ValueError(f"not a finite epoch: {epoch_yr!r}")
-    year = math.floor(epoch_yr)
-    days_in_year = 366 if calendar.isleap(year) else 365
-    start = dt.datetime(year, 1, 1, tzinfo=dt.UTC)
-    return start + dt.timedelta(days=(epoch_yr - year) * days_in_year)
-
-
-def decimal_year_to_date(epoch_yr: float) -> dt.date:
-    """The calendar date (UTC) of a decimal year.
-
-    >>> decimal_year_to_date(2010.0)
-    datetime.date(2010, 1, 1)
-    """
-    return decimal_year_to_datetime(epoch_yr).date()
-
-
-def format_epoch(epoch_yr: float) -> str:
-    """A coordinate epoch as decimal year to 3 places with the calendar date.
-
-    >>> format_epoch(2010.0)
-    '2010.000 (2010-01-01)'
-    """
-    return f"{epoch_yr:.3f} ({decimal_year_to_date(epoch_yr).isoformat()})"
-
-
-@lru_cache(maxsize=256)
-def frame_name(epsg: int) -> str | None:
-    """The CRS name from PROJ's EPSG database, or ``None`` if PROJ does not know the code."""
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
-
-    try:
-        return CRS.from_epsg(int(epsg)).name
-    except (CRSError, ValueError, TypeError):
-        return None
-
-
-def format_frame(epsg: int) -> str:
-    """A frame (or any CRS) as "name (EPSG:code)".
-
-    >>> format_frame(7912)
-    'ITRF2014 (EPSG:7912)'
-    """
-    name = frame_name(int(epsg))
-    if name is None:
-        return f"EPSG:{int(epsg)} (not in the EPSG database)"
-    return f"{name} (EPSG:{int(epsg)})"
-
-
-def format_utc(value: dt.datetime) -> str:
-    """A time in UTC with the zone shown, to the minute (pages speak to people; the API keeps
-    the full ISO 8601 time).
-
-    >>> format_utc(dt.datetime(2024, 5, 3, 14, 22, 5, tzinfo=dt.UTC))
-    '2024-05-03 14:22 UTC'
-    """
-    if value.tzinfo is not None:
-        value = value.astimezone(dt.UTC)
-    return f"{value:%Y-%m-%d %H:%M} UTC"
 
 
 # --------------------------------------------------------------------------- state words
