@@ -152,7 +152,7 @@ def state(value):
     return _state_badge(str(value))
 
 
-@lru_cache(maxsize=256)
+@functools.lru_cache(maxsize=256)
 def _state_badge(value: str):
     """The badge of one state (a few dozen states: made once each, not for every row of every list)."""
     label = _state_labels().get(value, value.replace("_", " "))
