@@ -34,6 +34,12 @@ Filters (all optional):
 - ``accuracy_class_max_m``: the mark has a published position (in ``frame_epsg`` when
   given) whose FGDC horizontal network accuracy, the radius of the 95 % circle from its
   east/north covariance (FGDC-STD-007.2-1998: r95 = K·σmax), is at most that value.
+- ``usable_only``: the mark is usable by the one rule of ``registry.services.usability``
+  (its status and its latest visit's finding). Applied like every other filter, *before* the
+  limit: ``limit=N`` gives the N nearest usable marks whenever that many lie within the radius.
+  The answer also counts the marks not for use that were passed over on the way
+  (``NearbyList.left_out_not_usable``: those nearer than the farthest mark returned, or all
+  within the radius when fewer than the limit were found).
 """
 
 from __future__ import annotations
@@ -52,6 +58,8 @@ from registry.geodesy import proximity
 from registry.geodesy.accuracy import fgdc_horizontal_95_m
 from registry.models import Mark, MarkStatus, Position, PositionState, Stability
 from registry.selectors import spatial_sql
+from registry.selectors.fieldwork import latest_findings
+from registry.services.usability import assess
 
 #: Largest search radius accepted (m). A registry search wider than this is a listing.
 MAX_RADIUS_M = 1_000_000.0
@@ -137,12 +145,19 @@ class NearbyMark:
         }
 
 
+class NearbyList(list):
+    """The marks found (a list of :class:`NearbyMark`), with how many marks not for use were passed over."""
+
+    left_out_not_usable: int = 0
+
+
 @dataclass(frozen=True)
 class _Filters:
     shape: spatial_sql.FilterShape
     frame_epsg: int | None
     visit_cutoff: dt.date | None
     accuracy_max_m: float | None
+    usable_only: bool = False
 
 
 # ----------------------------------------------------------------------------- validation
@@ -183,6 +198,7 @@ def _filters(
     frame_epsg,
     accuracy_class_max_m,
     as_of: dt.date | None,
+    usable_only: bool = False,
 ) -> _Filters:
     statuses = _choices("status", status, MarkStatus)
     stabilities = _choices("stability", stability, Stability)
@@ -212,7 +228,7 @@ def _filters(
         needs_published=accuracy is not None,
         intact_visit=cutoff is not None,
     )
-    return _Filters(shape, frame_epsg, cutoff, accuracy)
+    return _Filters(shape, frame_epsg, cutoff, accuracy, bool(usable_only))
 
 
 def _resolve_path(path: str) -> str:
@@ -248,6 +264,21 @@ def _accuracy_ok(mark_ids: np.ndarray, filters: _Filters) -> np.ndarray:
     return np.fromiter((int(i) in good for i in mark_ids), dtype=bool, count=mark_ids.size)
 
 
+# ----------------------------------------------------------------------------- usability
+
+
+def _usable_ok(mark_ids: np.ndarray, filters: _Filters) -> np.ndarray:
+    """Which marks are usable (``services.usability.assess`` of status and latest finding)."""
+    if not filters.usable_only or mark_ids.size == 0:
+        return np.ones(mark_ids.size, dtype=bool)
+    ids = [int(i) for i in mark_ids]
+    status: dict[int, str] = {}
+    for start in range(0, len(ids), 500):  # SQLite limits the number of parameters
+        status.update(Mark.objects.filter(pk__in=ids[start : start + 500]).values_list("pk", "status"))
+    findings = latest_findings(mark_ids=ids)
+    return np.fromiter((assess(status[i], findings.get(i)).usable for i in ids), dtype=bool, count=len(ids))
+
+
 # ----------------------------------------------------------------------------- deciding
 
 
@@ -263,6 +294,8 @@ class _Decided:
     azimuth_deg: np.ndarray
     #: The whole mark row of each, when the candidate query brought it (PostGIS path).
     mark_rows: list[tuple] | None = None
+    #: Distances (m) of the marks within the radius left out as not for use (``usable_only``).
+    not_usable_m: np.ndarray | None = None
 
     def __len__(self) -> int:
         return len(self.codes)
@@ -280,6 +313,9 @@ def _decide_with(rows, dist_m, az_deg, radius_m, filters) -> _Decided:
     ids = rows.ids[keep]
     ok = _accuracy_ok(ids, filters)
     keep = keep[ok]
+    usable = _usable_ok(rows.ids[keep], filters)
+    not_usable_m = dist_m[keep[~usable]]
+    keep = keep[usable]
     codes = [rows.codes[i] for i in keep]
     d = dist_m[keep]
     order = np.lexsort((np.asarray(codes, dtype=str), d)) if len(codes) else np.zeros(0, dtype=int)
@@ -291,6 +327,7 @@ def _decide_with(rows, dist_m, az_deg, radius_m, filters) -> _Decided:
         distance_m=d[order],
         azimuth_deg=az_deg[keep][order],
         mark_rows=None if rows.extra is None else [rows.extra[i] for i in keep[order]],
+        not_usable_m=not_usable_m,
     )
 
 
@@ -345,11 +382,16 @@ def _marks_from_rows(rows: list[tuple]) -> dict[int, Mark]:
     return out
 
 
-def _materialise(decided: _Decided, limit: int | None) -> list[NearbyMark]:
+def _materialise(decided: _Decided, limit: int | None) -> NearbyList:
     n = len(decided) if limit is None else min(limit, len(decided))
     ids = [int(i) for i in decided.ids[:n]]
     marks = _marks_by_id(ids) if decided.mark_rows is None else _marks_from_rows(decided.mark_rows[:n])
-    out = []
+    out = NearbyList()
+    if decided.not_usable_m is not None and decided.not_usable_m.size:
+        passed = decided.not_usable_m
+        if limit is not None and len(decided) >= limit:  # the limit was reached: those nearer than the last
+            passed = passed[passed <= decided.distance_m[n - 1]]
+        out.left_out_not_usable = int(passed.size)
     for i in range(n):
         d = float(decided.distance_m[i])
         az = float(decided.azimuth_deg[i])
@@ -437,7 +479,8 @@ def marks_near(
     stability: str | Sequence[str] | None = None,
     as_of: dt.date | None = None,
     path: str = PATH_AUTO,
-) -> list[NearbyMark]:
+    usable_only: bool = False,
+) -> NearbyList:
     """Marks within ``radius_m`` of a point, nearest first (ties by code).
 
     Parameters
@@ -449,8 +492,8 @@ def marks_near(
         Geodesic radius on GRS80 (m), 0 < radius ≤ 1 000 km.
     limit : int, optional
         At most this many marks (the nearest ones).
-    status, stability, intact_visit_within_yr, frame_epsg, accuracy_class_max_m
-        Filters (module docstring).
+    status, stability, intact_visit_within_yr, frame_epsg, accuracy_class_max_m, usable_only
+        Filters (module docstring), all applied before the limit.
     as_of : date, optional
         Reference date for ``intact_visit_within_yr`` (default: today, UTC).
     path : {"auto", "postgis", "portable"}
@@ -458,7 +501,7 @@ def marks_near(
 
     Returns
     -------
-    list of NearbyMark
+    NearbyList of NearbyMark
 
     Raises
     ------
@@ -477,6 +520,7 @@ def marks_near(
         frame_epsg=frame_epsg,
         accuracy_class_max_m=accuracy_class_max_m,
         as_of=as_of,
+        usable_only=usable_only,
     )
     chosen = _resolve_path(path)
     finder = _postgis_decided if chosen == PATH_POSTGIS else _portable_decided
@@ -495,7 +539,8 @@ def marks_near_polygon(
     stability: str | Sequence[str] | None = None,
     as_of: dt.date | None = None,
     path: str = PATH_AUTO,
-) -> list[NearbyMark]:
+    usable_only: bool = False,
+) -> NearbyList:
     """Marks within ``distance_m`` of a site polygon (inside counts as 0), nearest first.
 
     Parameters
@@ -531,12 +576,13 @@ def marks_near_polygon(
         frame_epsg=frame_epsg,
         accuracy_class_max_m=accuracy_class_max_m,
         as_of=as_of,
+        usable_only=usable_only,
     )
     chosen = _resolve_path(path)
     # Everything within dist_limit of the polygon is within (enclosing radius + dist_limit)
     # of its centre; 0.1 % + 1 m more covers the geodesic edges' bulge beyond the vertices.
     reach_m = (polygon.enclosing_radius_m + dist_limit) * 1.001 + 1.0
-    no_accuracy = _Filters(filters.shape, filters.frame_epsg, filters.visit_cutoff, None)
+    no_accuracy = _Filters(filters.shape, filters.frame_epsg, filters.visit_cutoff, None)  # nor usability
     finder = _postgis_decided if chosen == PATH_POSTGIS else _portable_decided
     around = finder(polygon.centre_lat_deg, polygon.centre_lon_deg, reach_m, None, no_accuracy)
     if not len(around):
