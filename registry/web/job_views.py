@@ -33,7 +33,7 @@ from registry.services.screening.export import EXPORT_COLUMNS, export_geojson, e
 from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.fieldwork_forms import AngleField
-from registry.web.job_map import build_job_map, legend_rows
+from registry.web.job_map import build_job_map, legend_rows, live_map_data
 from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
@@ -353,6 +353,7 @@ def _screening_context(result: ScreeningResult) -> dict:
         "excluded_count": len(figures["excluded_rows"]),
         "map_svg": mark_safe(job_map.svg),  # built from escaped values in job_map
         "job_map": job_map,
+        "map_data": live_map_data(result, job_map),  # the interactive panel (static/registry/jobmap.js)
         "map_span_km": job_map.span_m / 1000.0,
         "legend": legend_rows(result.settings.tol_h_mm),
         "frame_label": result.frame_label,
