@@ -373,11 +373,7 @@ def test_live_panel_data_is_the_svg_geometry_in_degrees(crowded, viewer):
     cls = classify(result.core.best_h95_mm, s.tol_h_mm)
     for layer in data["coverage"]:
         n_cells = int((grid.is_cell & (cls == layer["class"])).sum())
-        area = sum(
-            _shoelace_m2(r, result.plane) * (1 if i == 0 else 1)
-            for poly in layer["polygons"]
-            for i, r in enumerate(poly)
-        )
+        area = sum(_shoelace_m2(r, result.plane) for poly in layer["polygons"] for r in poly)
         # exteriors counter-clockwise (+), holes clockwise (−): the sum is the cells' area (to 8-decimal rounding)
         assert area == pytest.approx(n_cells * grid.spacing_m**2, rel=1e-4)
     assert sum(int((grid.is_cell & (cls == layer["class"])).sum()) for layer in data["coverage"]) == grid.n_cells
