@@ -309,7 +309,9 @@ def mark_words(result: ScreeningResult, c: Candidate, role: str, shares: dict[st
     if point:
         lines.append(f"{_fmt_m(c.distance_m)} m from the site point")
     else:
-        lines.append(f"{_fmt_m(c.distance_m)} m to the nearest site point, {_fmt_m(c.max_distance_m)} m to the farthest")
+        lines.append(
+            f"{_fmt_m(c.distance_m)} m to the nearest site point, {_fmt_m(c.max_distance_m)} m to the farthest"
+        )
     if role == "excluded":
         lines.append("Not used: " + "; ".join(REASON_WORDS[r] for r in c.reasons))
         return lines

@@ -34,6 +34,7 @@ from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.fieldwork_forms import AngleField
 from registry.web.job_map import build_job_map, legend_rows, live_map_data
+from registry.web.site_draw import site_draw_data
 from registry.web.templatetags.registry_format import format_frame
 from registry.web.views import ability_required
 
@@ -394,7 +395,8 @@ def job_new(request: HttpRequest) -> HttpResponse:
         defaults = new_job_defaults()
         form = JobForm(initial={k: (f"{v:g}" if isinstance(v, float) else v) for k, v in defaults.items()})
     status = 400 if request.method == "POST" else 200
-    return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
+    context = {"form": form, "job": None, "draw": site_draw_data()}
+    return render(request, "registry/job_form.html", context, status=status)
 
 
 @ability_required(JOB_PLANNING)
@@ -438,7 +440,8 @@ def job_edit(request: HttpRequest, code: str) -> HttpResponse:
             status = 400
     else:
         form = JobForm(initial=initial, editing=True)
-    return render(request, "registry/job_form.html", {"form": form, "job": job, "conflict": conflict}, status=status)
+    context = {"form": form, "job": job, "conflict": conflict, "draw": site_draw_data()}
+    return render(request, "registry/job_form.html", context, status=status)
 
 
 # ----------------------------------------------------------------------------- exports

@@ -156,3 +156,138 @@ def test_job_page_without_javascript_keeps_the_svg_with_words_and_links(chromium
         assert page.locator("svg.jobmap a[href='/marks/CRK-8/']").count() == 1  # a tap opens the mark
     finally:
         context.close()
+
+
+def _fill_required(page, code: str) -> None:
+    for name, value in (
+        ("code", code),
+        ("name", "Invented drawn site"),
+        ("frame_epsg", "6319"),
+        ("epoch_yr", "2025.5"),
+        ("tol_h_mm", "30"),
+        ("tol_v_mm", "50"),
+    ):
+        page.locator(f"#id_{name}").fill(value)
+
+
+def _map_point(page, fx: float, fy: float) -> tuple[float, float]:
+    page.locator("#sitedraw-map").scroll_into_view_if_needed()
+    box = page.locator("#sitedraw-map").bounding_box()  # in the viewport: where a click lands
+    return box["x"] + fx * box["width"], box["y"] + fy * box["height"]
+
+
+@pytest.mark.parametrize("width", list(WIDTHS))
+def test_drawing_the_site_fills_the_form_and_creates_the_job(chromium, live_server, job, technician, width, screenshot):
+    """Issue 10, item 6: the site drawn on the map (click or tap corners, undo, clear, point) goes into
+    the site field as GeoJSON and through the same checks as pasted GeoJSON; the job is created with it."""
+    from playwright.sync_api import expect
+
+    from registry.models import Job
+
+    context, page = _context(chromium, live_server, width)
+    phone = width == "phone"
+    try:
+        page.goto("/jobs/new/")
+        expect(page.locator("#sitedraw")).to_be_visible()
+        field = page.locator("#id_site_geojson")
+        status = page.locator("#sitedraw-status")
+        expect(status).to_contain_text("first corner")
+
+        def put(fx, fy):
+            x, y = _map_point(page, fx, fy)
+            if phone:
+                page.touchscreen.tap(x, y)
+            else:
+                page.mouse.click(x, y)
+
+        for fx, fy in ((0.3, 0.3), (0.7, 0.3), (0.7, 0.7), (0.3, 0.7)):
+            put(fx, fy)
+        expect(status).to_contain_text("Outline of 4 corners")
+        drawn = json.loads(field.input_value())
+        assert drawn["type"] == "Polygon" and len(drawn["coordinates"][0]) == 5
+        ring = drawn["coordinates"][0]
+        assert ring[0] == ring[-1]
+        # the map opened on the registry's marks (near 45.2° N, 110.6° W): the corners are there too
+        assert all(44.5 < lat < 46.0 and -111.5 < lon < -109.5 for lon, lat in ring)
+        # a square on screen: west/east and north/south corners share their longitudes and latitudes
+        assert ring[0][1] == pytest.approx(ring[1][1], abs=1e-4) and ring[1][0] == pytest.approx(ring[2][0], abs=1e-4)
+        assert ring[1][0] > ring[0][0] and ring[2][1] < ring[1][1]  # east of, then south of
+        page.get_by_role("button", name="Undo last corner").click()
+        assert len(json.loads(field.input_value())["coordinates"][0]) == 4
+        page.get_by_role("button", name="Clear").click()
+        assert field.input_value() == ""
+        expect(status).to_contain_text("first corner")
+        # a point, then back to the outline (empty, as it was left), drawn with three corners
+        page.get_by_role("button", name="Point").click()
+        expect(page.get_by_role("button", name="Point")).to_have_attribute("aria-pressed", "true")
+        put(0.5, 0.5)
+        assert json.loads(field.input_value())["type"] == "Point"
+        page.get_by_role("button", name="Outline").click()
+        put(0.2, 0.2)
+        put(0.8, 0.25)
+        put(0.5, 0.8)
+        drawn = json.loads(field.input_value())
+        assert drawn["type"] == "Polygon" and len(drawn["coordinates"][0]) == 4
+        problems = _fits_and_passes_axe(page, width)
+        screenshot(page, f"job-form-{width}")
+        _fill_required(page, f"J-DRAWN-{width.upper()}")
+        page.get_by_role("button", name="Create job").click()
+        expect(page.get_by_role("heading", name="Answer")).to_be_visible()
+        saved = Job.objects.get(code=f"J-DRAWN-{width.upper()}")
+        assert saved.site_geojson["type"] == "Polygon"
+        assert saved.site_geojson["coordinates"][0] == drawn["coordinates"][0]
+        # editing opens the drawing on the job's own outline, its corners ready to move
+        page.goto(f"/jobs/{saved.code}/edit/")
+        expect(page.locator(".sd-handle")).to_have_count(3)
+        expect(page.locator("#sitedraw-status")).to_contain_text("Outline of 3 corners")
+        assert not problems, "\n".join(problems)
+    finally:
+        context.close()
+
+
+def test_a_drawing_that_is_not_a_site_is_refused_by_the_form_with_nothing_saved(chromium, live_server, job, technician):
+    """A self-crossing outline (a bow tie) goes through the service's checks like pasted GeoJSON."""
+    from playwright.sync_api import expect
+
+    from registry.models import Job
+
+    context, page = _context(chromium, live_server, "desktop")
+    try:
+        page.goto("/jobs/new/")
+        for fx, fy in ((0.3, 0.3), (0.7, 0.7), (0.7, 0.3), (0.3, 0.7)):
+            page.mouse.click(*_map_point(page, fx, fy))
+        _fill_required(page, "J-BOWTIE")
+        before = Job.objects.count()
+        page.get_by_role("button", name="Create job").click()
+        expect(page.locator(".errorsummary")).to_contain_text("Not saved")
+        assert Job.objects.count() == before
+    finally:
+        context.close()
+
+
+def test_job_form_without_javascript_hides_the_drawing_and_takes_typed_coordinates(
+    chromium, live_server, job, technician
+):
+    from playwright.sync_api import expect
+
+    from registry.models import Job
+
+    context = chromium.new_context(
+        viewport={"width": 390, "height": 900}, base_url=live_server.url, java_script_enabled=False
+    )
+    try:
+        page = context.new_page()
+        page.goto("/signin/")
+        page.get_by_label("User name").fill("theo")
+        page.get_by_label("Password").fill("pw-theo-123!")
+        page.get_by_role("button", name="Sign in").click()
+        page.goto("/jobs/new/")
+        expect(page.locator("#sitedraw")).to_be_hidden()
+        _fill_required(page, "J-TYPED")
+        page.locator("#id_site_lat_deg").fill("45 12 00 N")
+        page.locator("#id_site_lon_deg").fill("110 36 00 W")
+        page.get_by_role("button", name="Create job").click()
+        expect(page.get_by_role("heading", name="Answer")).to_be_visible()
+        assert Job.objects.get(code="J-TYPED").site_geojson == {"type": "Point", "coordinates": [-110.6, 45.2]}
+    finally:
+        context.close()

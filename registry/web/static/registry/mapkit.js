@@ -18,7 +18,7 @@
 
   // Graticule: as many lines as the labels leave room for (one per ~120 px across, ~70 px down) at a
   // 1-2-5 step in minutes of arc.
-  function graticule(map) {
+  function graticule(map, scale) {
     var grat = L.layerGroup().addTo(map);
     function draw() {
       grat.clearLayers();
@@ -33,8 +33,11 @@
         grat.addLayer(L.marker([lat, e], { interactive: false, keyboard: false,
           icon: L.divIcon({ className: "grat-label grat-lat", html: dm(lat, "NS"), iconSize: [72, 14], iconAnchor: [76, 15] }) }));
       }
+      // no longitude label under the scale bar (bottom left)
+      var reserve = scale && scale.getContainer() ? scale.getContainer().offsetWidth + 14 : 0;
       for (var lon = Math.floor(w / step) * step; lon <= e; lon += step) {
         grat.addLayer(L.polyline([[s, lon], [n, lon]], style));
+        if (map.latLngToContainerPoint([s, lon]).x < reserve) { continue; }
         grat.addLayer(L.marker([s, lon], { interactive: false, keyboard: false,
           icon: L.divIcon({ className: "grat-label", html: dm(lon, "EW"), iconSize: null, iconAnchor: [-3, 16] }) }));
       }
@@ -52,8 +55,8 @@
     } else {
       live.classList.add("map-plain");
     }
-    L.control.scale({ metric: true, imperial: false, maxWidth: 160 }).addTo(map);
-    return { map: map, drawGraticule: graticule(map) };
+    var scale = L.control.scale({ metric: true, imperial: false, maxWidth: 160 }).addTo(map);
+    return { map: map, drawGraticule: graticule(map, scale) };
   }
 
   // A popup body: a link with the code, then one line per item of `lines` (text only, never HTML).
