@@ -12,11 +12,13 @@ Invented marks and site in the fictional district near 45.20° N, 110.60° W.
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 
 import pytest
 
 from registry.models import Finding, MarkStatus
+from tests.browser.conftest import DOCS_SCREENSHOTS
 from tests.services.test_screening import at, make_job, make_mark
 
 pytestmark = [pytest.mark.browser, pytest.mark.django_db(transaction=True)]
@@ -72,6 +74,16 @@ def _fits_and_passes_axe(page, width) -> list[str]:
     return problems
 
 
+def _section_shot(page, selector: str, name: str, tmp_path: Path) -> Path:
+    """A screenshot of one part of the page (the README shows the map, not the whole page): into
+    docs/screenshots/ with REGISTRY_UPDATE_SCREENSHOTS=1, else into the test's temporary folder."""
+    target = DOCS_SCREENSHOTS if os.environ.get("REGISTRY_UPDATE_SCREENSHOTS") == "1" else tmp_path
+    target.mkdir(parents=True, exist_ok=True)
+    path = target / f"{name}.png"
+    page.locator(selector).screenshot(path=str(path))
+    return path
+
+
 def _tap(page, locator, phone):
     if phone:
         locator.tap()
@@ -80,7 +92,7 @@ def _tap(page, locator, phone):
 
 
 @pytest.mark.parametrize("width", list(WIDTHS))
-def test_job_page_map_taps_tell_code_and_figures(chromium, live_server, job, technician, width, screenshot):
+def test_job_page_map_taps_tell_code_and_figures(chromium, live_server, job, technician, width, tmp_path):
     from playwright.sync_api import expect
 
     context, page = _context(chromium, live_server, width)
@@ -106,7 +118,8 @@ def test_job_page_map_taps_tell_code_and_figures(chromium, live_server, job, tec
         expect(page.locator("#jobmap-live .leaflet-control-scale")).to_be_visible()
         assert page.locator("#jobmap-live .grat-label").count() >= 2
         problems = _fits_and_passes_axe(page, width)
-        screenshot(page, f"job-page-{width}")
+        if not phone:
+            _section_shot(page, "section.mapsection", "job-map-desktop", tmp_path)
 
         # Tap a chosen base: its code, distances and 95 % figures in words.
         base = next(m for m in data["marks"] if m["role"] == "base")
@@ -124,7 +137,8 @@ def test_job_page_map_taps_tell_code_and_figures(chromium, live_server, job, tec
         expect(page.locator(".leaflet-popup")).to_have_count(1)  # one popup at a time
         expect(popup).to_contain_text("CRK-8")
         expect(popup).to_contain_text("Not used: the last visit did not find the mark")
-        screenshot(page, f"job-page-{width}-tap")
+        if phone:  # a mark tapped on a phone
+            _section_shot(page, "section.mapsection", "job-map-phone-tap", tmp_path)
         assert not problems, "\n".join(problems)
     finally:
         context.close()
@@ -177,7 +191,7 @@ def _map_point(page, fx: float, fy: float) -> tuple[float, float]:
 
 
 @pytest.mark.parametrize("width", list(WIDTHS))
-def test_drawing_the_site_fills_the_form_and_creates_the_job(chromium, live_server, job, technician, width, screenshot):
+def test_drawing_the_site_fills_the_form_and_creates_the_job(chromium, live_server, job, technician, width, tmp_path):
     """Issue 10, item 6: the site drawn on the map (click or tap corners, undo, clear, point) goes into
     the site field as GeoJSON and through the same checks as pasted GeoJSON; the job is created with it."""
     from playwright.sync_api import expect
@@ -229,7 +243,7 @@ def test_drawing_the_site_fills_the_form_and_creates_the_job(chromium, live_serv
         drawn = json.loads(field.input_value())
         assert drawn["type"] == "Polygon" and len(drawn["coordinates"][0]) == 4
         problems = _fits_and_passes_axe(page, width)
-        screenshot(page, f"job-form-{width}")
+        _section_shot(page, "fieldset.formgroup:has(#sitedraw)", f"job-form-draw-{width}", tmp_path)
         _fill_required(page, f"J-DRAWN-{width.upper()}")
         page.get_by_role("button", name="Create job").click()
         expect(page.get_by_role("heading", name="Answer")).to_be_visible()

@@ -413,3 +413,17 @@ def test_live_panel_data_of_a_point_site_and_several_bases(db, viewer):
     words = {m["code"]: m["words"] for m in data["marks"]}
     assert words["PT-A"][1].endswith("m from the site point")
     assert words["PT-B"][0] == "excluded"
+
+
+def test_live_panel_takes_the_basemap_setting(crowded, viewer, settings):
+    from registry.web.job_map import live_map_data
+
+    settings.REGISTRY = {
+        **settings.REGISTRY,
+        "BASEMAP_URL": "https://tiles.example.invalid/{z}/{x}/{y}.png",
+        "BASEMAP_ATTRIBUTION": "Invented tiles",
+    }
+    result = job_screen(actor=viewer, code="J-MAP")
+    data = live_map_data(result, build_job_map(result))
+    assert data["basemap"] == "https://tiles.example.invalid/{z}/{x}/{y}.png"
+    assert data["attribution"] == "Invented tiles"
