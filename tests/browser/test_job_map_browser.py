@@ -305,3 +305,30 @@ def test_job_form_without_javascript_hides_the_drawing_and_takes_typed_coordinat
         assert Job.objects.get(code="J-TYPED").site_geojson == {"type": "Point", "coordinates": [-110.6, 45.2]}
     finally:
         context.close()
+
+
+def test_drawing_keeps_the_sites_heights_until_a_corner_changes_and_says_so(chromium, live_server, job, technician):
+    """A site given with ellipsoidal heights (third coordinates) opens in the drawing with them; adding a
+    corner (whose height is unknown) writes the outline without heights and says so in words."""
+    from playwright.sync_api import expect
+
+    corners = [at(500.0, a) for a in (0.0, 120.0, 240.0)]
+    ring = [[lon, lat, 1500.0 + k] for k, (lat, lon) in enumerate(corners)]
+    make_job(
+        code="J-HEIGHTS", site={"type": "Polygon", "coordinates": [[*ring, ring[0]]]}, tol_h_mm=30.0, tol_v_mm=50.0
+    )
+    context, page = _context(chromium, live_server, "desktop")
+    try:
+        page.goto("/jobs/J-HEIGHTS/edit/")
+        expect(page.locator(".sd-handle")).to_have_count(3)
+        status = page.locator("#sitedraw-status")
+        expect(status).to_contain_text("Outline of 3 corners")
+        expect(status).not_to_contain_text("heights")
+        field = page.locator("#id_site_geojson")
+        assert json.loads(field.input_value())["coordinates"][0][0][2] == 1500.0  # untouched: as stored
+        page.mouse.click(*_map_point(page, 0.1, 0.9))
+        expect(status).to_contain_text("Outline of 4 corners")
+        expect(status).to_contain_text("heights are left out")
+        assert all(len(c) == 2 for c in json.loads(field.input_value())["coordinates"][0])
+    finally:
+        context.close()

@@ -24,14 +24,25 @@
   var shape = null;
 
   function round8(v) { return Math.round(v * 1e8) / 1e8; }
-  function lonLat(ll) { return [round8(L.Util.wrapNum(ll.lng, [-180, 180], true)), round8(ll.lat)]; }
+  function lonLat(ll, withHeight) {
+    var c = [round8(L.Util.wrapNum(ll.lng, [-180, 180], true)), round8(ll.lat)];
+    if (withHeight) { c.push(ll.alt); }
+    return c;
+  }
+  // A site read from the field may carry ellipsoidal heights (third coordinates): they are kept while
+  // every corner still has its own; a new or moved corner has none, and then none are written.
+  var hadHeights = false;
+  function allHeights() {
+    return corners.length > 0 && corners.every(function (ll) { return typeof ll.alt === "number"; });
+  }
 
   function geojson() {
+    var h = allHeights();
     if (kind === "point") {
-      return corners.length ? { type: "Point", coordinates: lonLat(corners[0]) } : null;
+      return corners.length ? { type: "Point", coordinates: lonLat(corners[0], h) } : null;
     }
     if (corners.length < 3) { return null; }
-    var ring = corners.map(lonLat);
+    var ring = corners.map(function (ll) { return lonLat(ll, h); });
     ring.push(ring[0].slice());
     return { type: "Polygon", coordinates: [ring] };
   }
@@ -47,6 +58,9 @@
       words = n + " corner" + (n === 1 ? "" : "s") + " placed: at least 3 make an outline.";
     } else {
       words = "Outline of " + n + " corners written into the GeoJSON box; add more, drag one, or undo.";
+    }
+    if (hadHeights && corners.length && !allHeights()) {
+      words += " The site's heights are left out (a new or moved corner has none): type them into the GeoJSON box if the job needs them.";
     }
     status.textContent = words;
   }
@@ -112,13 +126,14 @@
     if (g && g.type === "Feature") { g = g.geometry; }
     if (!g) { return false; }
     if (g.type === "Point" && g.coordinates && g.coordinates.length >= 2) {
-      kind = "point"; corners = [L.latLng(g.coordinates[1], g.coordinates[0])];
+      kind = "point"; corners = [L.latLng(g.coordinates[1], g.coordinates[0], g.coordinates[2])];
     } else if (g.type === "Polygon" && g.coordinates && g.coordinates.length === 1 && g.coordinates[0].length >= 4) {
       kind = "polygon";
-      corners = g.coordinates[0].slice(0, -1).map(function (c) { return L.latLng(c[1], c[0]); });
+      corners = g.coordinates[0].slice(0, -1).map(function (c) { return L.latLng(c[1], c[0], c[2]); });
     } else {
       return false;
     }
+    hadHeights = allHeights();
     Array.prototype.forEach.call(panel.querySelectorAll("button[data-kind]"), function (o) {
       o.setAttribute("aria-pressed", String(o.getAttribute("data-kind") === kind));
     });
