@@ -255,6 +255,7 @@ SPECTACULAR_SETTINGS = {
         "GridMethodEnum": "registry.models.GridMethod",
         "OccupationMethodEnum": "registry.models.OccupationMethod",
         "GridUnitEnum": "registry.models.GridUnit",
+        "UsabilityStateEnum": "registry.services.usability.STATE_CODES",
     },
 }
 

@@ -22,6 +22,7 @@ from rest_framework.renderers import JSONRenderer
 from registry.api.serializers import EPOCH_DECIMALS, LATLON_DECIMALS
 from registry.formatting import frame_name
 from registry.models import Mark
+from registry.services.usability import assess, mark_usability
 
 GEOJSON_MEDIA_TYPE = "application/geo+json"
 COORDINATE_NOTE = (
@@ -47,6 +48,11 @@ def mark_feature(mark: Mark) -> dict[str, Any]:
         }
     else:
         geometry = None
+    # the one rule of services.usability; the list's rows carry their latest finding (selectors.marks)
+    if hasattr(mark, "last_visit_finding"):
+        usability = assess(mark.status, mark.last_visit_finding, suspect_reason=mark.suspect_reason)
+    else:
+        usability = mark_usability(mark)
     frame_epsg = getattr(mark, "src_frame_epsg", None)
     epoch_yr = getattr(mark, "src_epoch_yr", None)
     return {
@@ -63,6 +69,9 @@ def mark_feature(mark: Mark) -> dict[str, Any]:
             "frame_epsg": frame_epsg if geometry else None,
             "frame_name": frame_name(frame_epsg) if geometry else None,
             "epoch_yr": round(epoch_yr, EPOCH_DECIMALS) if geometry and epoch_yr is not None else None,
+            "usable": usability.usable,
+            "usability_state": usability.state,
+            "usability_reason": usability.reason,
             "version": mark.version,
         },
     }

@@ -32,6 +32,8 @@ from registry.models import (
 from registry.selectors.positions import network_accuracy
 from registry.services import position_rules
 from registry.services.marks import EDITABLE_FIELDS as MARK_EDITABLE_FIELDS
+from registry.services.usability import STATES as USABILITY_STATES
+from registry.services.usability import assess, mark_usability
 
 # Machine output keeps its precision: 1e-9° (about 0.1 mm), 0.01 mm, 0.001 mm/yr; pages round for reading.
 LATLON_DECIMALS = 9
@@ -160,10 +162,23 @@ def search_location(mark: Mark, frame_epsg: int | None, epoch_yr: float | None) 
     }
 
 
+class UsabilitySerializer(serializers.Serializer):
+    """Whether the mark's coordinates may be used (``registry.services.usability``, the rule the pages show)."""
+
+    usable = serializers.BooleanField(help_text="True when nothing recorded stands against using the mark.")
+    state = serializers.ChoiceField(
+        choices=list(USABILITY_STATES),
+        help_text="Stable code: " + "; ".join(f"{code} = {words}" for code, words in USABILITY_STATES.items()) + ".",
+    )
+    reason = serializers.CharField(help_text="Why the mark is not for use, in words; empty when usable.")
+
+
 class MarkSerializer(serializers.ModelSerializer):
-    """A mark as listed. ``search_location`` is for finding marks, not for staking out."""
+    """A mark as listed. ``search_location`` is for finding marks, not for staking out; ``usability`` says
+    whether its coordinates may be used, and why not."""
 
     search_location = serializers.SerializerMethodField()
+    usability = serializers.SerializerMethodField()
 
     class Meta:
         model = Mark
@@ -175,12 +190,22 @@ class MarkSerializer(serializers.ModelSerializer):
             "suspect_reason",
             # the descriptive fields a manager edits (services.marks.EDITABLE_FIELDS), name already first
             *(f for f in MARK_EDITABLE_FIELDS if f != "name"),
+            "usability",
             "search_location",
             "version",
             "created_at",
             "updated_at",
         ]
         read_only_fields = fields
+
+    @extend_schema_field(UsabilitySerializer)
+    def get_usability(self, obj: Mark) -> dict:
+        # The list's rows carry their latest finding (selectors.marks.mark_search); a single mark reads it.
+        if hasattr(obj, "last_visit_finding"):
+            u = assess(obj.status, obj.last_visit_finding, suspect_reason=obj.suspect_reason)
+        else:
+            u = mark_usability(obj)
+        return UsabilitySerializer(u.as_dict() | {"usable": u.usable}).data
 
     @extend_schema_field(SearchLocationSerializer(allow_null=True))
     def get_search_location(self, obj: Mark) -> dict | None:
@@ -246,6 +271,11 @@ class MarkFeaturePropertiesSerializer(serializers.Serializer):
     frame_epsg = serializers.IntegerField(allow_null=True)
     frame_name = serializers.CharField(allow_null=True)
     epoch_yr = serializers.FloatField(allow_null=True)
+    usable = serializers.BooleanField(help_text="As usability.usable of the JSON list.")
+    usability_state = serializers.ChoiceField(
+        choices=list(USABILITY_STATES), help_text="As usability.state of the JSON list (stable code)."
+    )
+    usability_reason = serializers.CharField(help_text="Why not for use, in words; empty when usable.")
     version = serializers.IntegerField()
 
 

@@ -16,6 +16,8 @@ from django.db.models import (
     BooleanField,
     Count,
     IntegerField,
+    Max,
+    Min,
     OuterRef,
     Q,
     QuerySet,
@@ -221,3 +223,17 @@ def mark_api_search(*, q: str = "", status: str = "", code: str = "", name: str 
     if name:
         qs = qs.filter(name__icontains=name)
     return qs
+
+
+def marks_extent() -> tuple[float, float, float, float] | None:
+    """South, west, north, east (degrees) of the marks' search locations, or None without any (one query).
+
+    For a map's first view where nothing else places it (the job form's drawing map). Marks across the
+    antimeridian give a box around the globe's other side: the view is a starting point only.
+    """
+    box = Mark.objects.filter(search_lat_deg__isnull=False, search_lon_deg__isnull=False).aggregate(
+        s=Min("search_lat_deg"), w=Min("search_lon_deg"), n=Max("search_lat_deg"), e=Max("search_lon_deg")
+    )
+    if box["s"] is None:
+        return None
+    return box["s"], box["w"], box["n"], box["e"]

@@ -34,6 +34,12 @@ Filters (all optional):
 - ``accuracy_class_max_m``: the mark has a published position (in ``frame_epsg`` when
   given) whose FGDC horizontal network accuracy, the radius of the 95 % circle from its
   east/north covariance (FGDC-STD-007.2-1998: r95 = K·σmax), is at most that value.
+- ``usable_only``: the mark is usable by the one rule of ``registry.services.usability``
+  (its status and its latest visit's finding). Applied like every other filter, *before* the
+  limit: ``limit=N`` gives the N nearest usable marks whenever that many lie within the radius.
+  The answer also counts the marks not for use that were passed over on the way
+  (``NearbyList.left_out_not_usable``: those nearer than the farthest mark returned, or all
+  within the radius when fewer than the limit were found).
 
 The parts: the input's bounds and filters in :mod:`~registry.selectors.nearby_filters`, the two
 candidate paths in :mod:`~registry.selectors.nearby_candidates`, the decision and the found marks in
@@ -46,7 +52,7 @@ import datetime as dt
 from collections.abc import Sequence
 
 from registry.selectors.nearby_candidates import portable_decided, postgis_decided
-from registry.selectors.nearby_decide import NearbyMark, materialise
+from registry.selectors.nearby_decide import NearbyList, NearbyMark, materialise
 from registry.selectors.nearby_filters import (
     MAX_LIMIT,
     MAX_RADIUS_M,
@@ -68,6 +74,7 @@ __all__ = [
     "PATH_PORTABLE",
     "PATH_POSTGIS",
     "SEARCH_LOCATION_NOTE",
+    "NearbyList",
     "NearbyMark",
     "marks_near",
 ]
@@ -105,7 +112,8 @@ def marks_near(
     stability: str | Sequence[str] | None = None,
     as_of: dt.date | None = None,
     path: str = PATH_AUTO,
-) -> list[NearbyMark]:
+    usable_only: bool = False,
+) -> NearbyList:
     """Marks within ``radius_m`` of a point, nearest first (ties by code).
 
     Parameters
@@ -117,8 +125,8 @@ def marks_near(
         Geodesic radius on GRS80 (m), 0 < radius ≤ 1 000 km.
     limit : int, optional
         At most this many marks (the nearest ones).
-    status, stability, intact_visit_within_yr, frame_epsg, accuracy_class_max_m
-        Filters (module docstring).
+    status, stability, intact_visit_within_yr, frame_epsg, accuracy_class_max_m, usable_only
+        Filters (module docstring), all applied before the limit.
     as_of : date, optional
         Reference date for ``intact_visit_within_yr`` (default: today, UTC).
     path : {"auto", "postgis", "portable"}
@@ -126,7 +134,7 @@ def marks_near(
 
     Returns
     -------
-    list of NearbyMark
+    NearbyList of NearbyMark
 
     Raises
     ------
@@ -145,6 +153,7 @@ def marks_near(
         frame_epsg=frame_epsg,
         accuracy_class_max_m=accuracy_class_max_m,
         as_of=as_of,
+        usable_only=usable_only,
     )
     chosen = resolve_path(path)
     finder = postgis_decided if chosen == PATH_POSTGIS else portable_decided

@@ -18,7 +18,9 @@ from registry.geodesy import proximity
 from registry.geodesy.accuracy import fgdc_horizontal_95_m
 from registry.models import Mark, Position, PositionState
 from registry.selectors import spatial_sql
+from registry.selectors.fieldwork import latest_findings
 from registry.selectors.nearby_filters import Filters
+from registry.services.usability import assess
 
 #: Below this distance the azimuth is not meaningful and is reported as None (m).
 AZIMUTH_MIN_DISTANCE_M = 0.001
@@ -93,6 +95,27 @@ def _accuracy_ok(mark_ids: np.ndarray, filters: Filters) -> np.ndarray:
     return np.fromiter((int(i) in good for i in mark_ids), dtype=bool, count=mark_ids.size)
 
 
+class NearbyList(list):
+    """The marks found (a list of :class:`NearbyMark`), with how many marks not for use were passed over."""
+
+    left_out_not_usable: int = 0
+
+
+# ----------------------------------------------------------------------------- usability
+
+
+def _usable_ok(mark_ids: np.ndarray, filters: Filters) -> np.ndarray:
+    """Which marks are usable (``services.usability.assess`` of status and latest finding)."""
+    if not filters.usable_only or mark_ids.size == 0:
+        return np.ones(mark_ids.size, dtype=bool)
+    ids = [int(i) for i in mark_ids]
+    status: dict[int, str] = {}
+    for start in range(0, len(ids), 500):  # SQLite limits the number of parameters
+        status.update(Mark.objects.filter(pk__in=ids[start : start + 500]).values_list("pk", "status"))
+    findings = latest_findings(mark_ids=ids)
+    return np.fromiter((assess(status[i], findings.get(i)).usable for i in ids), dtype=bool, count=len(ids))
+
+
 # ----------------------------------------------------------------------------- deciding
 
 
@@ -108,6 +131,8 @@ class Decided:
     azimuth_deg: np.ndarray
     #: The whole mark row of each, when the candidate query brought it (PostGIS path).
     mark_rows: list[tuple] | None = None
+    #: Distances (m) of the marks within the radius left out as not for use (``usable_only``).
+    not_usable_m: np.ndarray | None = None
 
     def __len__(self) -> int:
         return len(self.codes)
@@ -121,6 +146,9 @@ def decide(
     ids = rows.ids[keep]
     ok = _accuracy_ok(ids, filters)
     keep = keep[ok]
+    usable = _usable_ok(rows.ids[keep], filters)
+    not_usable_m = dist_m[keep[~usable]]
+    keep = keep[usable]
     codes = [rows.codes[i] for i in keep]
     d = dist_m[keep]
     order = np.lexsort((np.asarray(codes, dtype=str), d)) if len(codes) else np.zeros(0, dtype=int)
@@ -132,6 +160,7 @@ def decide(
         distance_m=d[order],
         azimuth_deg=az_deg[keep][order],
         mark_rows=None if rows.extra is None else [rows.extra[i] for i in keep[order]],
+        not_usable_m=not_usable_m,
     )
 
 
@@ -186,11 +215,16 @@ def _marks_from_rows(rows: list[tuple]) -> dict[int, Mark]:
     return out
 
 
-def materialise(decided: Decided, limit: int | None) -> list[NearbyMark]:
+def materialise(decided: Decided, limit: int | None) -> NearbyList:
     n = len(decided) if limit is None else min(limit, len(decided))
     ids = [int(i) for i in decided.ids[:n]]
     marks = _marks_by_id(ids) if decided.mark_rows is None else _marks_from_rows(decided.mark_rows[:n])
-    out = []
+    out = NearbyList()
+    if decided.not_usable_m is not None and decided.not_usable_m.size:
+        passed = decided.not_usable_m
+        if limit is not None and len(decided) >= limit:  # the limit was reached: those nearer than the last
+            passed = passed[passed <= decided.distance_m[n - 1]]
+        out.left_out_not_usable = int(passed.size)
     for i in range(n):
         d = float(decided.distance_m[i])
         az = float(decided.azimuth_deg[i])

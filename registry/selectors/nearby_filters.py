@@ -46,6 +46,7 @@ class Filters:
     frame_epsg: int | None
     visit_cutoff: dt.date | None
     accuracy_max_m: float | None
+    usable_only: bool = False
 
 
 # ----------------------------------------------------------------------------- validation
@@ -86,6 +87,7 @@ def parse_filters(
     frame_epsg,
     accuracy_class_max_m,
     as_of: dt.date | None,
+    usable_only: bool = False,
 ) -> Filters:
     statuses = _choices("status", status, MarkStatus)
     stabilities = _choices("stability", stability, Stability)
@@ -119,7 +121,7 @@ def parse_filters(
         needs_published=accuracy is not None,
         intact_visit=cutoff is not None,
     )
-    return Filters(shape, frame_epsg, cutoff, accuracy)
+    return Filters(shape, frame_epsg, cutoff, accuracy, bool(usable_only))
 
 
 def resolve_path(path: str) -> str:

@@ -53,7 +53,11 @@ def _solutions(actor, mark_code: str, position_ids: list[Any], *, minimum: int) 
         raise field_error(
             "position_ids", f"Choose at least {minimum} different solutions.", "too_few_solutions", minimum=minimum
         )
-    found = list(Position.objects.filter(mark=mark, pk__in=ids, state__in=USABLE_STATES).order_by("epoch_yr", "pk"))
+    # ids past the database's 64-bit key range cannot exist (and would overflow SQLite's parameter): unknown
+    storable = [i for i in ids if 0 < i < 2**63]
+    found = list(
+        Position.objects.filter(mark=mark, pk__in=storable, state__in=USABLE_STATES).order_by("epoch_yr", "pk")
+    )
     missing = sorted(set(ids) - {p.pk for p in found})
     if missing:
         raise field_error(

@@ -24,6 +24,19 @@ USABLE_CAUTION = (
     "procedures and licensed professional practice govern their use."
 )
 
+#: Every ``state`` code :func:`assess` gives, with its meaning (the API schema documents these; stable codes).
+STATES: dict[str, str] = {
+    "usable": "usable: no recorded state or visit finding stands against it",
+    "destroyed": "not for use: the mark is recorded as destroyed",
+    "retired": "not for use: retired from the registry's active network",
+    "suspect": "not for use: suspect, awaiting re-observation or a control manager's clearance",
+    "last_visit_disturbed": "not for use: the latest visit found the mark disturbed",
+    "last_visit_not_found": "not for use: the latest visit searched for the mark and did not find it",
+    "last_visit_destroyed": "not for use: the latest visit found the mark destroyed (status not yet changed)",
+}
+#: The codes alone (the API schema's enum, settings.SPECTACULAR_SETTINGS["ENUM_NAME_OVERRIDES"]).
+STATE_CODES = tuple(STATES)
+
 _CLOSING = " Local codes, the office's procedures and licensed professional practice govern any use of this mark."
 
 

@@ -428,8 +428,8 @@ class NearbyForm(forms.Form):
         for key in ("status", "stability", "intact_visit_within_yr", "frame_epsg", "accuracy_class_max_m"):
             if d.get(key) not in (None, ""):
                 args[key] = d[key]
-        if self.usable_only() and "status" not in args:
-            args["status"] = MarkStatus.ACTIVE  # the rest of the rule (latest visit) is applied to the rows
+        if self.usable_only():
+            args["usable_only"] = True  # the selector applies the usability rule before the limit
         return args
 
     def usable_only(self) -> bool:

@@ -18,6 +18,13 @@ excluded marks), each at the first of eight positions around its symbol that ove
 no label already placed; a label with no free position is left out (its code stays in the symbol's
 tooltip), except for the chosen bases and check marks, which are always labelled.
 
+Interactive panel: :func:`live_map_data` gives the same geometry (site rings, coverage cells merged
+per colour class by :func:`registry.geodesy.site.cells_outline_m`, service areas, marks with their
+figures in words, and the SVG's frame as a latitude/longitude box) as plain JSON for
+``static/registry/jobmap.js`` (Leaflet, vendored), which replaces the SVG when scripts run; the SVG
+stays as the fallback and the printout. Each mark's words (:func:`mark_words`) are the SVG's tooltip
+and link, and the panel's popup, so a tap on either tells the same.
+
 Basemap: when ``REGISTRY["BASEMAP_URL"]`` holds an XYZ tile template, the tiles covering the drawing
 are its bottom layer, faded, loaded by the user's browser (never by the server), placed unrotated
 (see :mod:`registry.web.basemap`); the caption names their source and says they are for orientation
@@ -34,12 +41,14 @@ from xml.sax.saxutils import escape
 import numpy as np
 import pyproj
 from django.conf import settings
+from django.urls import reverse
 
 from registry.geodesy.dms import format_signed_dms
-from registry.geodesy.site import display_utm_zone
+from registry.geodesy.site import cells_outline_m, display_utm_zone
 from registry.geodesy.webmercator import tile_width_m
 from registry.services.screening import Candidate, ScreeningResult
 from registry.services.screening.export import service_area_polygons
+from registry.services.screening.present import service_shares
 from registry.services.screening.rules import REASON_WORDS
 from registry.web.basemap import basemap_layer
 
@@ -90,6 +99,8 @@ class JobMap:
     basemap_host: str = ""
     basemap_attribution: str = ""
     basemap_offset_m: float = 0.0
+    #: The frame's corners as (lat, lon) degrees, for the interactive panel to open on the same view.
+    frame_corners_deg: list[tuple[float, float]] = field(default_factory=list)
 
     @property
     def outside_total(self) -> int:
@@ -275,6 +286,152 @@ def _symbol_box(x: float, y: float, r: float = 7.0) -> Box:
     return Box(x - r, y - r, x + r, y + r)
 
 
+ROLE_WORDS = {
+    "base": "chosen base",
+    "check": "check mark",
+    "candidate": "usable, not chosen",
+    "excluded": "excluded",
+}
+
+
+def _fmt_m(value: float) -> str:
+    return "—" if value is None or not math.isfinite(value) else f"{value:,.1f}".replace(",", "\u2009")
+
+
+def mark_words(result: ScreeningResult, c: Candidate, role: str, shares: dict[str, float]) -> list[str]:
+    """What a tap on a mark's symbol tells: its role, distances and 95 % figures, or why it is excluded.
+
+    Words for surveyors (no codes): distances in metres to 0.1, figures in mm to 0.1 (finding and
+    planning precision; the tables below the map give the rest).
+    """
+    point = result.settings.site.is_point
+    lines = [ROLE_WORDS[role]]
+    if point:
+        lines.append(f"{_fmt_m(c.distance_m)} m from the site point")
+    else:
+        lines.append(
+            f"{_fmt_m(c.distance_m)} m to the nearest site point, {_fmt_m(c.max_distance_m)} m to the farthest"
+        )
+    if role == "excluded":
+        lines.append("Not used: " + "; ".join(REASON_WORDS[r] for r in c.reasons))
+        return lines
+    if role == "check":
+        cm = next(cm for cm in result.check_marks if cm.candidate is c)
+        for a in cm.allowances:
+            lines.append(
+                f"Check from {a['base']}: allowance H 95 % {a['horizontal_95_mm']:.1f} mm, "
+                f"V 95 % {a['vertical_95_mm']:.1f} mm"
+            )
+        if not cm.allowances:
+            lines.append("No chosen base within the maximum baseline")
+        return lines
+    if math.isfinite(c.h95_mm):
+        where = "at the site point" if point else "worst over the site"
+        lines.append(f"H 95 % {c.h95_mm:.1f} mm, V 95 % {c.v95_mm:.1f} mm ({where})")
+    if role == "base" and c.mark.code in shares:
+        lines.append(f"Serves {shares[c.mark.code]:.1f} % of the site")
+    elif role == "candidate" and c.rank:
+        lines.append(f"Ranked {c.rank} of the usable marks")
+    return lines
+
+
+def _role(result: ScreeningResult, c: Candidate) -> str:
+    if any(c is b for b in result.chosen):
+        return "base"
+    if any(c is cm.candidate for cm in result.check_marks):
+        return "check"
+    return "excluded" if c.excluded else "candidate"
+
+
+def _ring_latlon(lat, lon) -> list[list[float]]:
+    return [[round(float(a), 8), round(float(b), 8)] for a, b in zip(lat, lon, strict=True)]
+
+
+def live_map_data(result: ScreeningResult, job_map: JobMap) -> dict:
+    """The interactive panel's data (JSON): the SVG's geometry in latitude/longitude (degrees, 8 places).
+
+    ``site``: rings; ``coverage``: per colour class (0-4, 4 over tolerance), polygons with holes, each
+    the union of that class's cells (cells are squares on the site's local plane, as in the SVG, and the
+    panel clips them to the site outline as the SVG does); ``point``: a point site with its class;
+    ``areas``: each chosen base's service area (more than one base); ``marks``: code, role, words and
+    link; ``frame``: the SVG frame's corners.
+    """
+    s = result.settings
+    grid = result.grid
+    best = result.core.best_h95_mm if result.core is not None else np.full(grid.e_m.size, np.inf)
+    cls = classify(best, s.tol_h_mm)
+    site = [_ring_latlon(r[:, 1], r[:, 0]) for r in s.site.rings_lonlat_deg]
+    coverage = []
+    point = None
+    if grid.spacing_m > 0:
+        for k in range(len(CLASS_COLOURS)):
+            mask = grid.is_cell & (cls == k)
+            if not mask.any():
+                continue
+            polys = []
+            for poly in cells_outline_m(grid.e_m[mask], grid.n_m[mask], grid.spacing_m):
+                rings = []
+                for ring in poly:
+                    lat, lon = result.plane.to_geodetic_deg(ring[:, 0], ring[:, 1])
+                    rings.append(_ring_latlon(lat, lon))
+                polys.append(rings)
+            coverage.append({"class": k, "colour": CLASS_COLOURS[k], "polygons": polys})
+    else:
+        lat, lon = result.plane.to_geodetic_deg(grid.e_m[:1], grid.n_m[:1])
+        h95 = float(best[0])
+        point = {
+            "lat": round(float(lat[0]), 8),
+            "lon": round(float(lon[0]), 8),
+            "class": int(cls[0]),
+            "colour": CLASS_COLOURS[int(cls[0])],
+            "words": (
+                f"Site point: best H 95 % {h95:.1f} mm from any usable base"
+                if math.isfinite(h95)
+                else "Site point: no usable base reaches it"
+            ),
+        }
+    shares = {d["base"]: d["share"] * 100 for d in service_shares(result)}
+    areas = []
+    for k, (code, polys) in enumerate(service_area_polygons(result).items()):
+        areas.append(
+            {
+                "base": code,
+                "dash": SERVICE_DASHES[k % len(SERVICE_DASHES)],
+                "words": f"Part of the site served from {code}" + (f": {shares[code]:.1f} %" if code in shares else ""),
+                "polygons": [[_ring_latlon(r[:, 1], r[:, 0]) for r in poly] for poly in polys],
+            }
+        )
+    marks = []
+    for c in result.candidates:
+        if c.lat_deg is None or c.lon_deg is None:
+            continue
+        role = _role(result, c)
+        marks.append(
+            {
+                "code": c.mark.code,
+                "lat": round(c.lat_deg, 8),
+                "lon": round(c.lon_deg, 8),
+                "role": role,
+                "words": mark_words(result, c, role, shares),
+                "url": reverse("web:mark-detail", args=[c.mark.code]),
+            }
+        )
+    order = {"excluded": 0, "candidate": 1, "check": 2, "base": 3}  # the important ones drawn last, on top
+    marks.sort(key=lambda m: order[m["role"]])
+    reg = settings.REGISTRY
+    return {
+        "site": site,
+        "coverage": coverage,
+        "hatch_class": len(CLASS_COLOURS) - 1,
+        "point": point,
+        "areas": areas,
+        "marks": marks,
+        "frame": [[round(a, 8), round(b, 8)] for a, b in job_map.frame_corners_deg],
+        "basemap": (reg.get("BASEMAP_URL") or "").strip(),
+        "attribution": (reg.get("BASEMAP_ATTRIBUTION") or "").strip(),
+    }
+
+
 def build_job_map(result: ScreeningResult) -> JobMap:
     """Draw the job map for a screening result."""
     s = result.settings
@@ -422,6 +579,7 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         return "excluded" if c.excluded else "candidate"
 
     order = {"base": 0, "check": 1, "candidate": 2, "excluded": 3}
+    shares = {d["base"]: d["share"] * 100 for d in service_shares(result)}
     drawn = [c for c in placed if inside(c) or id(c) in chosen_ids or id(c) in check_ids]
     outside = [c for c in placed if c not in drawn]
     drawn.sort(key=lambda c: (order[role_of(c)], c.rank))
@@ -448,9 +606,12 @@ def build_job_map(result: ScreeningResult) -> JobMap:
                 f'<path d="M{x - 3.5:.1f},{y - 3.5:.1f}l7,7M{x - 3.5:.1f},{y + 3.5:.1f}l7,-7" stroke="#9a968f" '
                 'stroke-width="1.3" opacity="0.75"/>'
             )
-        reasons_words = "; ".join(REASON_WORDS[r] for r in c.reasons)
-        tip = f"{code}: {role}" if role != "excluded" else f"{code}: excluded ({escape(reasons_words)})"
-        marks_svg.append(f'<g class="mark {role}" data-code="{code}"><title>{tip}</title>{shape}</g>')
+        # the same words as the interactive panel's popup; the symbol links to the mark's page
+        tip = escape(f"{c.mark.code}: " + "; ".join(mark_words(result, c, role, shares)))
+        href = html.escape(reverse("web:mark-detail", args=[c.mark.code]), quote=True)
+        marks_svg.append(
+            f'<a href="{href}"><g class="mark {role}" data-code="{code}"><title>{tip}</title>{shape}</g></a>'
+        )
         obstacles.append(_symbol_box(x, y, 9.0 if role in ("base", "check") else 5.5))
     for c in drawn:
         x, y = (float(v) for v in px(*pos[id(c)]))
@@ -478,6 +639,7 @@ def build_job_map(result: ScreeningResult) -> JobMap:
     out.append(scalebar)
     out.append(north_arrow)
     out.append("</svg>")
+    c_lon, c_lat = utm(np.array([x0, x1, x1, x0]), np.array([y0, y0, y1, y1]), inverse=True)
     return JobMap(
         svg="".join(out),
         zone_label=zone_label,
@@ -488,6 +650,7 @@ def build_job_map(result: ScreeningResult) -> JobMap:
         outside_excluded=sum(1 for c in outside if c.excluded),
         unlabelled=unlabelled,
         labelled_codes=labelled,
+        frame_corners_deg=[(float(a), float(b)) for a, b in zip(c_lat, c_lon, strict=True)],
         basemap_tiles=basemap.tiles if basemap else 0,
         basemap_zoom=basemap.zoom if basemap else None,
         basemap_host=basemap.host if basemap else "",

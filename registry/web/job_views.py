@@ -34,8 +34,9 @@ from registry.services.screening.export import EXPORT_COLUMNS, export_geojson, e
 from registry.services.screening.present import job_answer, page_figures
 from registry.web.csv_safe import spreadsheet_safe_rows
 from registry.web.fieldwork_forms import AngleField
-from registry.web.job_map import build_job_map, legend_rows
+from registry.web.job_map import build_job_map, legend_rows, live_map_data
 from registry.web.service_errors import ServiceErrorsMixin
+from registry.web.site_draw import site_draw_data
 from registry.web.views import ability_required
 
 NUMBER_FIELDS = (
@@ -337,6 +338,7 @@ def _screening_context(result: ScreeningResult) -> dict:
         "excluded_count": len(figures["excluded_rows"]),
         "map_svg": mark_safe(job_map.svg),  # built from escaped values in job_map
         "job_map": job_map,
+        "map_data": live_map_data(result, job_map),  # the interactive panel (static/registry/jobmap.js)
         "map_span_km": job_map.span_m / 1000.0,
         "legend": legend_rows(result.settings.tol_h_mm),
         "frame_label": result.frame_label,
@@ -377,7 +379,8 @@ def job_new(request: HttpRequest) -> HttpResponse:
         defaults = new_job_defaults()
         form = JobForm(initial={k: (f"{v:g}" if isinstance(v, float) else v) for k, v in defaults.items()})
     status = 400 if request.method == "POST" else 200
-    return render(request, "registry/job_form.html", {"form": form, "job": None}, status=status)
+    context = {"form": form, "job": None, "draw": site_draw_data()}
+    return render(request, "registry/job_form.html", context, status=status)
 
 
 @ability_required(JOB_PLANNING)
@@ -421,7 +424,8 @@ def job_edit(request: HttpRequest, code: str) -> HttpResponse:
             status = 400
     else:
         form = JobForm(initial=initial, editing=True)
-    return render(request, "registry/job_form.html", {"form": form, "job": job, "conflict": conflict}, status=status)
+    context = {"form": form, "job": job, "conflict": conflict, "draw": site_draw_data()}
+    return render(request, "registry/job_form.html", context, status=status)
 
 
 # ----------------------------------------------------------------------------- exports

@@ -60,15 +60,12 @@ def marks_near_page(request: HttpRequest) -> HttpResponse:
             else:
                 visits = latest_visits(mark_ids=[n.mark.pk for n in found])
                 rows = []
-                hidden = 0
+                hidden = found.left_out_not_usable  # the selector filtered before its limit
                 for n in found:
                     visit = visits.get(n.mark.pk)
                     usability = assess(
                         n.mark.status, visit.finding if visit else None, suspect_reason=n.mark.suspect_reason
                     )
-                    if form.usable_only() and not usability.usable:
-                        hidden += 1
-                        continue
                     rows.append(
                         {
                             "mark": n.mark,

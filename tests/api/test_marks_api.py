@@ -358,3 +358,50 @@ def test_create_and_edit_still_take_the_earlier_field_names(manager, api_client_
         client.patch("/api/marks/EN-1/", {"version": 2, "custodian": "A", "keeper": "B"}, format="json"), 400, "invalid"
     )
     assert error["details"]["custodian"][0]["code"] == "old_and_new_name"
+
+
+# ---- usability (issue 10) -------------------------------------------------------------------------------
+
+
+def test_list_detail_and_geojson_say_whether_a_mark_is_usable_and_why_not(district, viewer, technician, api_client_for):
+    """The same rule as the pages (services.usability): a retired mark and a mark its latest visit did
+    not find are not for use, with the reason in words and a stable code; an active mark is usable."""
+    from registry.services.fieldwork import visit_record
+
+    visit_record(actor=technician, mark_code="BX-7", data={"visited_on": "2024-05-01", "finding": "searched_not_found"})
+    client = api_client_for(viewer)
+    rows = {m["code"]: m["usability"] for m in client.get("/api/marks/").json()["results"]}
+    assert rows["QR-101"] == {"usable": True, "state": "usable", "reason": ""}
+    assert rows["QR-102"] == {
+        "usable": False,
+        "state": "retired",
+        "reason": "the mark is retired from the registry's active network",
+    }
+    assert rows["BX-7"]["usable"] is False and rows["BX-7"]["state"] == "last_visit_not_found"
+    assert "did not find it" in rows["BX-7"]["reason"]
+    assert client.get("/api/marks/BX-7/").json()["usability"] == rows["BX-7"]  # the detail agrees
+    fc = client.get("/api/marks/?format=geojson").json()
+    props = {f["id"]: f["properties"] for f in fc["features"]}
+    assert (props["BX-7"]["usable"], props["BX-7"]["usability_state"]) == (False, "last_visit_not_found")
+    assert props["QR-101"]["usable"] is True and props["QR-101"]["usability_reason"] == ""
+    # a visit that finds the mark again makes it usable in the API as on the pages
+    visit_record(actor=technician, mark_code="BX-7", data={"visited_on": "2024-06-01", "finding": "intact"})
+    assert client.get("/api/marks/BX-7/").json()["usability"]["usable"] is True
+
+
+def test_the_schema_documents_the_usability_codes(viewer, api_client_for):
+    from registry.services.usability import STATES, assess
+
+    schema = api_client_for(viewer).get("/api/schema/?format=json").json()
+    usability = schema["components"]["schemas"]["Usability"]
+    assert set(usability["required"]) == {"usable", "state", "reason"}
+    assert usability["properties"]["state"]["allOf"][0]["$ref"] == "#/components/schemas/UsabilityStateEnum"
+    assert set(schema["components"]["schemas"]["UsabilityStateEnum"]["enum"]) == set(STATES)
+    assert "last_visit_not_found = not for use" in usability["properties"]["state"]["description"]
+    # every code the rule gives is documented
+    given = {
+        assess(s, f).state
+        for s in ("active", "retired", "destroyed", "suspect")
+        for f in (None, "intact", "damaged", "disturbed", "searched_not_found", "destroyed")
+    }
+    assert given == set(STATES)

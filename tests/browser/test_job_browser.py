@@ -54,12 +54,13 @@ def test_job_page_map_and_edit(page, job):
     page.get_by_role("link", name="J-2025-014").click()
     expect(page.get_by_role("heading", name="Answer")).to_be_visible()
     expect(page.locator("p.answer")).to_contain_text("worst")
-    svg = page.locator("svg.jobmap")
-    expect(svg).to_be_visible()
-    box = svg.bounding_box()
+    # With scripts the interactive map replaces the SVG (kept in the page as the no-script fallback).
+    live = page.locator("#jobmap-live")
+    expect(live).to_be_visible()
+    box = live.bounding_box()
     assert box["width"] > 500 and box["height"] > 350
     assert page.locator("svg.jobmap .coverage rect").count() >= 400
-    expect(page.locator("svg.jobmap g.mark.base").first).to_be_visible()
+    expect(page.locator(".jm-mark.jm-base").first).to_be_visible()
     expect(page.locator(".legend")).to_contain_text("over tolerance")
     first_num = page.locator("table.ranked tbody tr").first.locator("td.num").nth(2)
     assert first_num.evaluate("el => getComputedStyle(el).textAlign") == "right"

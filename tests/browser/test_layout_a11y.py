@@ -133,7 +133,7 @@ def test_every_page_fits_and_passes_axe(chromium, live_server, district, role, w
             if url.startswith("/jobs/") and sizes[0] > WIDTHS[width]:  # a phone's viewport widens to fit
                 problems.append(f"{url}: {sizes[0]} px wide on a {WIDTHS[width]} px screen")
             if url == "/jobs/J-LAYOUT/":  # the map leads and spans the phone's width, readable
-                box = page.locator("svg.jobmap").bounding_box()
+                box = page.locator("#jobmap-live").bounding_box()  # the interactive map (scripts on)
                 if (
                     box is None
                     or box["width"] < min(WIDTHS[width] - 60, 500)

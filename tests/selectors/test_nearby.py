@@ -253,6 +253,44 @@ def test_postgis_and_portable_paths_agree(world):
         assert [(m.code, m.distance_m, m.azimuth_deg) for m in a] == [(m.code, m.distance_m, m.azimuth_deg) for m in b]
 
 
+def usable_reference(world: World) -> np.ndarray:
+    """The usability rule restated for the test (issue 10): a mark is usable when it is active and its
+    latest visit (by date; the later row on a tie) did not find it disturbed, not found or destroyed."""
+    latest: dict[int, tuple[dt.date, int, str]] = {}
+    for row, (i, cond, day) in enumerate(world.visits):
+        if i not in latest or (day, row) >= latest[i][:2]:
+            latest[i] = (day, row, cond)
+    bad = {"disturbed", "searched_not_found", "destroyed"}
+    return np.array(
+        [
+            world.status[i] == "active" and latest.get(i, (None, None, "intact"))[2] not in bad
+            for i in range(len(world.codes))
+        ]
+    )
+
+
+@pytest.mark.parametrize("path", PATHS)
+def test_usable_only_is_applied_before_the_limit(world, path):
+    """limit=N with usable_only gives the N nearest usable marks (regression: the page used to take the N
+    nearest active marks and then drop those whose latest visit made them not for use, so fewer than N
+    showed although more usable marks lay within the radius)."""
+    usable = usable_reference(world)
+    n = len(world.codes)
+    checked = 0
+    for lat, lon, radius, limit in _random_queries(30, seed=21):
+        limit = limit or 5
+        found = marks_near(lat_deg=lat, lon_deg=lon, radius_m=radius, limit=limit, path=path, usable_only=True)
+        d = np.asarray(GEOD.inv(np.full(n, lon), np.full(n, lat), world.lon, world.lat)[2])
+        inside = sorted(np.nonzero(d <= radius)[0], key=lambda i: (d[i], world.codes[i]))
+        want = [world.codes[i] for i in inside if usable[i]][:limit]
+        assert [m.code for m in found] == want, (lat, lon, radius, limit)
+        # the marks not for use passed over: nearer than the last one returned (all inside when short)
+        last = found[-1].distance_m if len(found) == limit else radius
+        assert found.left_out_not_usable == sum(1 for i in inside if not usable[i] and d[i] <= last)
+        checked += found.left_out_not_usable > 0 and len(found) == limit
+    assert checked >= 5  # the case that the old order got wrong occurred often enough to matter
+
+
 def test_ties_are_ordered_by_code_and_coincident_marks_have_no_azimuth(world):
     found = marks_near(lat_deg=45.21, lon_deg=-110.61, radius_m=1.0)
     stack = sorted(

@@ -79,6 +79,16 @@ def test_combination_refuses_mixed_epochs_and_frames(mark, technician, manager):
     assert Position.objects.count() == 3
 
 
+def test_ids_past_the_key_range_are_unknown_not_a_server_error(mark, technician, manager):
+    """Found by the schemathesis run: an id of 2**70 overflowed SQLite's integer parameter (a 500)."""
+    a = position_propose(actor=technician, mark_code="CB-01", data=at(0, 0)).pk
+    for service in (positions_combine, positions_velocity):
+        with pytest.raises(ValidationError) as info:
+            service(actor=manager, mark_code="CB-01", position_ids=[a, 2**70, -(2**70), 0])
+        assert info.value.error_dict["position_ids"][0].code in ("unknown_solution", "too_few_solutions")
+    assert Position.objects.count() == 1
+
+
 def test_velocity_from_four_solutions(mark, technician, manager):
     ve, vn = -0.012, 0.004
     ids = [

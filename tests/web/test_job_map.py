@@ -345,3 +345,85 @@ def test_system_check_w020(settings, url, warns):
     _with_basemap(settings, url)
     ids = [m.id for m in run_checks() if m.id == "registry.W020"]
     assert ids == (["registry.W020"] if warns else [])
+
+
+# ----------------------------------------------------------------------------- the interactive panel's data
+
+
+def _shoelace_m2(ring_latlon, plane) -> float:
+    lat = np.array([p[0] for p in ring_latlon])
+    lon = np.array([p[1] for p in ring_latlon])
+    e, n = plane.to_local_m(lat, lon)
+    return 0.5 * float(np.sum(e[:-1] * n[1:] - e[1:] * n[:-1]))
+
+
+def test_live_panel_data_is_the_svg_geometry_in_degrees(crowded, viewer):
+    """Issue 10, item 8: the Leaflet panel draws from the same geometry as the SVG: the site's rings, the
+    coverage cells (their union per colour class has the area of its cells), the service areas, every
+    mark with the role the SVG gives it, and the SVG's frame as the first view."""
+    from registry.web.job_map import classify, live_map_data
+
+    result = job_screen(actor=viewer, code="J-MAP")
+    jm = build_job_map(result)
+    data = live_map_data(result, jm)
+    s = result.settings
+    ring = s.site.rings_lonlat_deg[0]
+    assert data["site"][0] == [[round(float(la), 8), round(float(lo), 8)] for lo, la in ring]
+    grid = result.grid
+    cls = classify(result.core.best_h95_mm, s.tol_h_mm)
+    for layer in data["coverage"]:
+        n_cells = int((grid.is_cell & (cls == layer["class"])).sum())
+        area = sum(_shoelace_m2(r, result.plane) for poly in layer["polygons"] for r in poly)
+        # exteriors counter-clockwise (+), holes clockwise (−): the sum is the cells' area (to 8-decimal rounding)
+        assert area == pytest.approx(n_cells * grid.spacing_m**2, rel=1e-4)
+    assert sum(int((grid.is_cell & (cls == layer["class"])).sum()) for layer in data["coverage"]) == grid.n_cells
+    _, marks, _ = _parse(jm.svg)
+    for m in data["marks"]:
+        if m["code"] in marks:
+            assert m["role"] in marks[m["code"]].get("class").split()
+        assert m["url"] == f"/marks/{m['code']}/"
+    old = next(m for m in data["marks"] if m["code"] == "OLD-1")
+    assert old["words"][0] == "excluded" and "Not used: the mark is retired or recorded destroyed" in old["words"]
+    base = next(m for m in data["marks"] if m["role"] == "base")
+    c = next(c for c in result.chosen if c.mark.code == base["code"])
+    assert f"H 95 % {c.h95_mm:.1f} mm, V 95 % {c.v95_mm:.1f} mm (worst over the site)" in base["words"]
+    # distance in words agrees with a geodesic from pyproj (to the 0.1 m shown)
+    assert f"{c.distance_m:.1f}".replace(",", "") in base["words"][1].replace("\u2009", "")
+    # the first view is the SVG's frame: its corners projected back to UTM span the same metres
+    utm = pyproj.Proj(proj="utm", zone=int(jm.zone_label[:-1]), ellps="GRS80")
+    x, _ = utm([p[1] for p in data["frame"]], [p[0] for p in data["frame"]])
+    assert max(x) - min(x) == pytest.approx(jm.span_m, abs=0.01)
+    assert data["basemap"] == "" and data["hatch_class"] == 4
+    # the SVG's tooltips carry the same words, and each symbol links to its mark
+    assert ("OLD-1: " + "; ".join(old["words"])) == marks["OLD-1"].find(f"{SVG}title").text
+    assert f'<a href="/marks/{base["code"]}/"><g class="mark base"' in jm.svg
+
+
+def test_live_panel_data_of_a_point_site_and_several_bases(db, viewer):
+    from registry.web.job_map import live_map_data
+
+    make_mark("PT-A", 800.0, 30.0)
+    make_mark("PT-B", 1500.0, 250.0, status=MarkStatus.DESTROYED)
+    make_job(code="J-PT", site={"type": "Point", "coordinates": [SITE_LON, SITE_LAT]}, tol_h_mm=30.0, tol_v_mm=50.0)
+    result = job_screen(actor=viewer, code="J-PT")
+    data = live_map_data(result, build_job_map(result))
+    assert data["coverage"] == [] and data["areas"] == []
+    assert data["point"]["lat"] == pytest.approx(SITE_LAT, abs=1e-8)
+    assert data["point"]["words"].startswith("Site point: best H 95 %")
+    words = {m["code"]: m["words"] for m in data["marks"]}
+    assert words["PT-A"][1].endswith("m from the site point")
+    assert words["PT-B"][0] == "excluded"
+
+
+def test_live_panel_takes_the_basemap_setting(crowded, viewer, settings):
+    from registry.web.job_map import live_map_data
+
+    settings.REGISTRY = {
+        **settings.REGISTRY,
+        "BASEMAP_URL": "https://tiles.example.invalid/{z}/{x}/{y}.png",
+        "BASEMAP_ATTRIBUTION": "Invented tiles",
+    }
+    result = job_screen(actor=viewer, code="J-MAP")
+    data = live_map_data(result, build_job_map(result))
+    assert data["basemap"] == "https://tiles.example.invalid/{z}/{x}/{y}.png"
+    assert data["attribution"] == "Invented tiles"

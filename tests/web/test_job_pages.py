@@ -490,3 +490,26 @@ def test_job_form_groups_fields_and_marks_required_ones(client, technician, db):
     for label in ("Job code", "Name", "Deliverable epoch (decimal year)"):
         assert re.search(re.escape(label) + r'[^<]*<span class="req">required</span>', body), label
     assert not re.search(r'Client <span class="req">', body)
+
+
+def test_job_form_carries_the_drawing_map_and_its_first_view(client, technician, db):
+    """Issue 10, item 6: the form offers drawing the site (hidden until the script shows it; no inline
+    script), opening on the registry's marks; without marks, on the whole world."""
+    from registry.selectors.marks import marks_extent
+
+    client.force_login(technician)
+
+    def data():
+        page = client.get("/jobs/new/").content.decode()
+        assert '<div class="sitedraw" id="sitedraw" hidden>' in page
+        assert "/static/registry/sitedraw.js" in page and "<script>" not in page
+        return json.loads(
+            re.search(r'<script id="sitedraw-data" type="application/json">(.*?)</script>', page, re.S)[1]
+        )
+
+    assert marks_extent() is None and data()["extent"] is None
+    make_mark("EXT-1", 1000.0, 0.0)  # 1 km north of the site reference point
+    make_mark("EXT-2", 2000.0, 90.0)  # 2 km east
+    (s, w), (n, e) = data()["extent"]
+    assert (s, w, n, e) == marks_extent()
+    assert s < n and w < e and n - s == pytest.approx(1000.0 / 111_100.0, rel=0.02)  # about 1 km of latitude

@@ -33,7 +33,11 @@ def test_list_has_the_panel_with_usability_and_no_cdn(kestrel, signed_in, viewer
     assert codes["KV-001"]["usable"] is True and codes["KV-001"]["label"] == "usable"
     assert data["basemap"] == ""
     scripts = re.findall(r'<script src="([^"]+)"', page)
-    assert scripts == ["/static/vendor/leaflet-1.9.4/leaflet.js", "/static/registry/markmap.js"]
+    assert scripts == [
+        "/static/vendor/leaflet-1.9.4/leaflet.js",
+        "/static/registry/mapkit.js",
+        "/static/registry/markmap.js",
+    ]
     assert "unpkg" not in page and "cdn" not in page.lower()
     assert "<script>" not in page  # no inline script: the data block is JSON, not run
 
@@ -44,6 +48,9 @@ def test_static_leaflet_is_served(client, viewer):
         "/static/vendor/leaflet-1.9.4/leaflet.js",
         "/static/vendor/leaflet-1.9.4/leaflet.css",
         "/static/registry/markmap.js",
+        "/static/registry/mapkit.js",
+        "/static/registry/jobmap.js",
+        "/static/registry/sitedraw.js",
     ):
         assert client.get(path).status_code == 200, path
 

@@ -153,3 +153,21 @@ def test_usable_marks_by_default_with_the_rest_one_click_away(kestrel, signed_in
     assert "not for use" in row and "did not find it" in row
     row = page.split('href="/marks/KV-001/"')[1].split("</tr>")[0]
     assert "usable" in row and "not for use" not in row
+
+
+@pytest.mark.django_db
+def test_the_limit_counts_usable_marks_only(kestrel, signed_in, viewer, technician):
+    """Regression (issue 10): with "at most 1" and the nearest mark not found at its last visit, the page
+    showed no mark at all (the limit took the nearest active mark, then the usability rule dropped it);
+    the next usable mark must show."""
+    from registry.services.fieldwork import visit_record
+
+    visit_record(
+        actor=technician, mark_code="KV-001", data={"visited_on": "2024-05-01", "finding": "searched_not_found"}
+    )
+    page = signed_in(viewer).get(URL, {"lat": "45.2", "lon": "-110.6", "radius_km": "5", "limit": "1"})
+    page = page.content.decode()
+    assert "1 mark within" in page and "(limit reached)" in page
+    rows = page.split("<tbody>")[1]
+    assert 'href="/marks/KV-002/"' in rows and "KV-001" not in rows
+    assert "1</span> mark not for use is left out" in page
