@@ -56,7 +56,7 @@ logger = logging.getLogger(__name__)
 
 #: Crockford's base-32 alphabet (no I, L, O, U): codes read aloud and typed without confusion.
 _CODE_ALPHABET = "0123456789ABCDEFGHJKMNPQRSTVWXYZ"
-_KIND_LETTER = {DocumentKind.SHEET: "S", DocumentKind.REPORT: "R"}
+_KIND_LETTER: dict[str, str] = {DocumentKind.SHEET: "S", DocumentKind.REPORT: "R"}
 OPEN_STATES = (DocumentState.DRAFT, DocumentState.CHECKED)
 
 
