@@ -255,3 +255,50 @@ def test_raw_sql_may_still_edit_a_proposed_position(mark, technician):
         cursor.execute(f"UPDATE {Position._meta.db_table} SET h_m = 1500.0 WHERE id = %s", [proposed.pk])
     proposed.refresh_from_db()
     assert proposed.h_m == 1500.0
+
+
+# ---- who decided, when, and what the audit trail keeps (the decisions of the module docstring) ------
+
+
+def test_reject_records_the_decider_the_time_and_the_audit_row(mark, manager, technician):
+    from django.utils import timezone
+
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(ValidationError) as info:
+        position_reject(actor=manager, position_id=proposed.pk, note="")
+    assert info.value.error_dict["note"][0].message == "Give the reason for the rejection."
+    before = timezone.now()
+    position_reject(actor=manager, position_id=proposed.pk, note="Float solution only (invented)")
+    proposed.refresh_from_db()
+    assert proposed.state == PositionState.REJECTED
+    assert proposed.decided_by == manager
+    assert before <= proposed.decided_at <= timezone.now()
+    event = AuditEvent.objects.get(action="position_reject")
+    assert (event.before, event.after) == ({"state": "proposed"}, {"state": "rejected"})
+    assert event.note == "Float solution only (invented)" and event.object_id == str(proposed.pk)
+
+
+def test_withdraw_records_the_decider_the_time_and_the_audit_row(mark, manager, technician):
+    from django.utils import timezone
+
+    published = make_published(manager, technician)
+    with pytest.raises(ValidationError) as info:
+        position_withdraw(actor=manager, position_id=published.pk, note="  ")
+    assert info.value.error_dict["note"][0].message == "Give the reason for the withdrawal."
+    before = timezone.now()
+    position_withdraw(actor=manager, position_id=published.pk, note="Wrong antenna height (invented)")
+    published.refresh_from_db()
+    assert published.decided_by == manager
+    assert before <= published.decided_at <= timezone.now()
+    event = AuditEvent.objects.get(action="position_withdraw")
+    assert event.before == {"state": "published", "search_lat_deg": 45.2012345678, "search_lon_deg": -110.6023456789}
+    assert event.after == {"state": "withdrawn", "search_lat_deg": None, "search_lon_deg": None}
+    assert event.note == "Wrong antenna height (invented)" and event.mark_id == mark.pk
+
+
+def test_a_decision_in_the_wrong_state_says_what_was_allowed(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(Conflict) as info:
+        position_withdraw(actor=manager, position_id=proposed.pk, note="not yet published")
+    assert info.value.message == (f"Position {proposed.pk} is proposed; only a published position can be withdrawn.")
+    assert info.value.details == {"state": "proposed", "allowed": ["published"]}
