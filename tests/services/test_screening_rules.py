@@ -50,3 +50,82 @@ def test_rule_edges():
     assert rule_reasons(replace(GOOD, years_since_good_visit=10.0), recovery_years=10) == []
     assert rule_reasons(replace(GOOD, last_visit_condition="damaged"), recovery_years=10) == []
     assert rule_reasons(replace(GOOD, sky_view="partial"), recovery_years=10) == []
+
+
+# ---------------------------------------------------------------- check-mark preference
+
+# The 95 % factors, from outside the module: horizontal √(−2 ln 0.05) = 2.4477 (circular normal, equal σ
+# per axis; FGDC-STD-007.3-1998 uses 2.4477 × σ for the horizontal 95 % figure), vertical 1.9600
+# (two-sided 95 % of a normal distribution, any statistics table).
+K_H = 2.4477468306808161
+K_V = 1.9599639845400540
+
+
+def _candidate(*, stability="high", base=(0.0, 0.0), drift=(0.0, 0.0), motion=(0.0, 0.0)):
+    from types import SimpleNamespace
+
+    from registry.services.screening.result import Candidate
+
+    return Candidate(
+        mark=SimpleNamespace(stability=stability, code="CK-1"),
+        reasons=[],
+        base_h_mm=base[0],
+        base_v_mm=base[1],
+        drift_h_mm=drift[0],
+        drift_v_mm=drift[1],
+        motion_h_mm=motion[0],
+        motion_v_mm=motion[1],
+    )
+
+
+def _tolerances(h_mm, v_mm):
+    from types import SimpleNamespace
+
+    return SimpleNamespace(tol_h_mm=h_mm, tol_v_mm=v_mm)
+
+
+# (3, 4, 12) → √(9 + 16 + 144) = 13 mm, a Pythagorean quadruple: every term counts, squared.
+@pytest.mark.parametrize(
+    "terms",
+    [
+        {"base": (3.0, 0.0), "drift": (4.0, 0.0), "motion": (12.0, 0.0)},
+        {"base": (12.0, 0.0), "drift": (3.0, 0.0), "motion": (4.0, 0.0)},
+        {"base": (4.0, 0.0), "drift": (12.0, 0.0), "motion": (3.0, 0.0)},
+    ],
+)
+def test_preferred_check_horizontal_edge(terms):
+    from registry.services.screening.checks import is_preferred_check
+
+    own_h = K_H * 13.0  # the mark's own horizontal 95 % figure
+    c = _candidate(**terms)
+    wide_v = 1000.0
+    # At most half the tolerance (checks.CHECK_WELL_POSITIONED_FRACTION, the project's rule).
+    assert is_preferred_check(c, _tolerances(2 * own_h * (1 + 1e-9), wide_v))
+    assert not is_preferred_check(c, _tolerances(2 * own_h * (1 - 1e-9), wide_v))
+
+
+@pytest.mark.parametrize(
+    "terms",
+    [
+        {"base": (0.0, 3.0), "drift": (0.0, 4.0), "motion": (0.0, 12.0)},
+        {"base": (0.0, 12.0), "drift": (0.0, 3.0), "motion": (0.0, 4.0)},
+        {"base": (0.0, 4.0), "drift": (0.0, 12.0), "motion": (0.0, 3.0)},
+    ],
+)
+def test_preferred_check_vertical_edge(terms):
+    from registry.services.screening.checks import is_preferred_check
+
+    own_v = K_V * 13.0
+    c = _candidate(**terms)
+    assert is_preferred_check(c, _tolerances(1000.0, 2 * own_v * (1 + 1e-9)))
+    assert not is_preferred_check(c, _tolerances(1000.0, 2 * own_v * (1 - 1e-9)))
+
+
+@pytest.mark.parametrize(
+    ("stability", "preferred"), [("high", True), ("moderate", True), ("low", False), ("unknown", False)]
+)
+def test_preferred_check_needs_a_stable_mark(stability, preferred):
+    from registry.services.screening.checks import is_preferred_check
+
+    c = _candidate(stability=stability, base=(1.0, 1.0))
+    assert is_preferred_check(c, _tolerances(50.0, 50.0)) is preferred
