@@ -302,3 +302,51 @@ def test_a_decision_in_the_wrong_state_says_what_was_allowed(mark, manager, tech
         position_withdraw(actor=manager, position_id=proposed.pk, note="not yet published")
     assert info.value.message == (f"Position {proposed.pk} is proposed; only a published position can be withdrawn.")
     assert info.value.details == {"state": "proposed", "allowed": ["published"]}
+
+
+def test_search_location_follows_the_most_recently_published_not_the_newest_row(mark, manager, technician):
+    # Module docstring: the search location follows the most recently *published* position of any frame.
+    # The NAD83 proposal is the newer row but is published first; the older ITRF row published after it
+    # must then drive the search location.
+    itrf = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    nad83 = position_propose(
+        actor=technician,
+        mark_code="QR-101",
+        data=position_data(frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233),
+    )
+    assert nad83.pk > itrf.pk
+    position_publish(actor=manager, position_id=nad83.pk, note="invented data")
+    # the manager looked at the comparison with the NAD83 position just published
+    position_publish(actor=manager, position_id=itrf.pk, note="invented data", compared_with=nad83.pk)
+    assert Mark.objects.values_list("search_lat_deg", "search_lon_deg").get() == (45.2012345678, -110.6023456789)
+
+
+def test_publish_refuses_a_compared_with_that_is_not_a_number(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(ValidationError) as info:
+        position_publish(actor=manager, position_id=proposed.pk, compared_with="the old one")
+    assert codes_of(info.value) == {"compared_with": ["invalid_integer"]}
+
+
+def test_publish_after_the_mark_was_destroyed_is_refused_in_words(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    mark_set_status(actor=manager, code="QR-101", status="destroyed", expected_version=1, note="Bulldozed (invented)")
+    with pytest.raises(Conflict) as info:
+        position_publish(actor=manager, position_id=proposed.pk)
+    assert info.value.code == "mark_destroyed"
+    assert info.value.message == "Mark QR-101 is recorded as destroyed; its positions cannot be published."
+    proposed.refresh_from_db()
+    assert proposed.state == PositionState.PROPOSED
+
+
+def test_publish_refuses_when_the_published_position_changed_since_the_proposal(mark, manager, technician):
+    first = position_propose(actor=technician, mark_code="QR-101", data=position_data())  # compared with none
+    other = make_published(manager, technician)
+    with pytest.raises(Conflict) as info:
+        position_publish(actor=manager, position_id=first.pk)
+    assert info.value.code == "compared_with_changed"
+    assert info.value.details == {"compared_with": None, "published_now": other.pk}
+    assert info.value.message == (
+        f"Position {first.pk} was compared with no published position, but the published position of QR-101 "
+        f"is now position {other.pk}. Someone decided in between: look at the new comparison and decide again."
+    )
