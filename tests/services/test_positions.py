@@ -350,3 +350,19 @@ def test_publish_refuses_when_the_published_position_changed_since_the_proposal(
         f"Position {first.pk} was compared with no published position, but the published position of QR-101 "
         f"is now position {other.pk}. Someone decided in between: look at the new comparison and decide again."
     )
+
+
+def test_publishing_against_possible_movement_needs_a_reason(mark, manager, technician):
+    make_published(manager, technician)
+    # 0.001° of latitude is about 111 m (any geodesy text): far beyond σ = 5 mm, so possible movement
+    moved = position_propose(actor=technician, mark_code="QR-101", data=position_data(lat_deg=45.2022345678))
+    with pytest.raises(ValidationError) as info:
+        position_publish(actor=manager, position_id=moved.pk)
+    [error] = info.value.error_dict["note"]
+    assert error.code == "movement_note_required"
+    assert error.message == (
+        "The movement check shows possible movement against the published position; give the reason "
+        "for publishing anyway."
+    )
+    moved.refresh_from_db()
+    assert moved.state == PositionState.PROPOSED
