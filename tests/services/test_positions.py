@@ -366,3 +366,18 @@ def test_publishing_against_possible_movement_needs_a_reason(mark, manager, tech
     )
     moved.refresh_from_db()
     assert moved.state == PositionState.PROPOSED
+
+
+def test_publishing_answers_the_suspicion_and_the_audit_row_says_so(mark, manager, technician):
+    # services.suspect: a newly published position makes a suspect mark active again.
+    make_published(manager, technician)
+    moved = position_propose(actor=technician, mark_code="QR-101", data=position_data(lat_deg=45.2022345678))
+    suspect = Mark.objects.get()
+    assert suspect.status == "suspect"
+    position_publish(actor=manager, position_id=moved.pk, note="The mark was reset (invented)")
+    active = Mark.objects.get()
+    assert (active.status, active.suspect_reason, active.suspect_since) == ("active", "", None)
+    assert active.version == suspect.version + 1
+    event = AuditEvent.objects.filter(action="position_publish").latest("seq")
+    assert (event.before["mark_status"], event.after["mark_status"]) == ("suspect", "active")
+    assert event.after["mark_version"] == suspect.version + 1
