@@ -114,6 +114,8 @@ def test_propose_on_a_destroyed_mark_is_refused(mark, manager, technician):
     with pytest.raises(Conflict) as info:
         position_propose(actor=technician, mark_code="QR-101", data=position_data())
     assert info.value.code == "mark_destroyed"
+    assert info.value.message == "Mark QR-101 is recorded as destroyed; a destroyed mark gets no new positions."
+    assert not Position.objects.exists()
 
 
 # ---- publish, supersede, search location -------------------------------------------------------
