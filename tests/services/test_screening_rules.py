@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import datetime as dt
+
 import pytest
 
 from registry.services.screening.rules import REASON_WORDS, MarkFacts, rule_reasons
@@ -129,3 +131,35 @@ def test_preferred_check_needs_a_stable_mark(stability, preferred):
 
     c = _candidate(stability=stability, base=(1.0, 1.0))
     assert is_preferred_check(c, _tolerances(50.0, 50.0)) is preferred
+
+
+# ---------------------------------------------------------------- placing
+
+
+def test_years_between_counts_julian_years():
+    from registry.services.screening.placing import years_between
+
+    # A Julian year is 365.25 days (IAU; the unit of decimal-year epochs): 2020-01-01 → 2030-01-01 is
+    # 3,653 days (three leap days), 10.0014 years.
+    assert years_between(dt.date(2020, 1, 1), dt.date(2030, 1, 1)) == pytest.approx(3653 / 365.25, rel=1e-12)
+    assert years_between(dt.date(2021, 1, 1), dt.date(2020, 1, 1)) == pytest.approx(-366 / 365.25, rel=1e-12)
+
+
+@pytest.mark.django_db
+def test_a_mark_published_in_two_frames_is_placed_from_the_jobs_frame(viewer):
+    # placing module docstring: the published position in the job's frame first, else the first that
+    # transforms. The ITRF2014 row is the older one and would be tried first without that preference.
+    from registry.models import Position
+    from registry.services.screening import job_screen
+    from tests.services.test_screening import AS_OF, by_code, make_job, make_mark
+
+    mark = make_mark("TWO", 800.0, 45.0, frame=7912, epoch=2025.5, sigma_h_mm=9.0)
+    own = Position.objects.get(mark=mark)
+    own.pk = None
+    own.frame_epsg = 6319  # the job's frame, σ 2 mm
+    own.cov_ee_m2 = own.cov_nn_m2 = 0.002**2
+    own.save()
+    make_job(frame_epsg=6319)
+    c = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))["TWO"]
+    assert c.position.pk == own.pk and c.position.frame_epsg == 6319
+    assert c.position_h_mm == pytest.approx(2.0, rel=1e-9) and c.frame_change_mm == 0.0
