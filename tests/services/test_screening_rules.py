@@ -163,3 +163,17 @@ def test_a_mark_published_in_two_frames_is_placed_from_the_jobs_frame(viewer):
     c = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))["TWO"]
     assert c.position.pk == own.pk and c.position.frame_epsg == 6319
     assert c.position_h_mm == pytest.approx(2.0, rel=1e-9) and c.frame_change_mm == 0.0
+
+
+@pytest.mark.django_db
+def test_a_mark_never_found_intact_is_screened_out_with_its_reason(viewer):
+    # rules.MarkFacts: years_since_good_visit is None when no visit ever found the mark intact.
+    from registry.services.screening import job_screen
+    from tests.services.test_screening import AS_OF, by_code, make_job, make_mark
+
+    make_mark("NEVER", 700.0, 10.0, visits=())
+    make_mark("DAMAGED", 900.0, 200.0, visits=(("2024-06-01", "damaged"),))
+    make_job()
+    c = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))
+    assert c["NEVER"].reasons == ["no_recent_good_visit"]
+    assert c["DAMAGED"].reasons == ["no_recent_good_visit"]
