@@ -177,3 +177,22 @@ def test_a_mark_never_found_intact_is_screened_out_with_its_reason(viewer):
     c = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))
     assert c["NEVER"].reasons == ["no_recent_good_visit"]
     assert c["DAMAGED"].reasons == ["no_recent_good_visit"]
+
+
+@pytest.mark.django_db
+def test_a_jobs_grid_spacing_is_the_one_used(viewer):
+    # A 200 m × 200 m square site: the job's 25 m spacing gives 8 × 8 = 64 cell centres; left empty, the
+    # spacing is chosen for about 1,000 centres (registry.geodesy.site.build_site_grid).
+    from registry.services.screening import job_screen
+    from tests.services.test_screening import AS_OF, at, make_job, make_mark
+
+    n_lat, _ = at(100.0, 0.0)
+    s_lat, _ = at(100.0, 180.0)
+    _, e_lon = at(100.0, 90.0)
+    _, w_lon = at(100.0, 270.0)
+    ring = [[w_lon, s_lat], [e_lon, s_lat], [e_lon, n_lat], [w_lon, n_lat], [w_lon, s_lat]]
+    make_mark("B1", 600.0, 30.0)
+    make_job(site={"type": "Polygon", "coordinates": [ring]}, grid_spacing_m=25.0)
+    grid = job_screen(actor=viewer, code="J-SCR", as_of=AS_OF).grid
+    assert grid.spacing_m == 25.0
+    assert 56 <= grid.n_cells <= 72  # 64 give or take a row or column at the edges
