@@ -196,3 +196,17 @@ def test_a_jobs_grid_spacing_is_the_one_used(viewer):
     grid = job_screen(actor=viewer, code="J-SCR", as_of=AS_OF).grid
     assert grid.spacing_m == 25.0
     assert 56 <= grid.n_cells <= 72  # 64 give or take a row or column at the edges
+
+
+@pytest.mark.django_db
+def test_no_marks_near_the_site_says_so_with_the_search_radius(viewer):
+    # run.py: marks are searched within the site's radius + 1.25 × the maximum baseline (a point site has
+    # radius 0): 1.25 × 8 km = 10.0 km.
+    from registry.services.screening import job_screen
+    from tests.services.test_screening import AS_OF, make_job, make_mark
+
+    make_mark("FAR", 10_100.0, 0.0)
+    make_job(max_baseline_m=8000.0)
+    result = job_screen(actor=viewer, code="J-SCR", as_of=AS_OF)
+    assert result.candidates == [] and result.as_of == AS_OF
+    assert result.statement == "No marks in the registry within 10.0 km of the site. Nothing can serve as a base."
