@@ -210,3 +210,17 @@ def test_no_marks_near_the_site_says_so_with_the_search_radius(viewer):
     result = job_screen(actor=viewer, code="J-SCR", as_of=AS_OF)
     assert result.candidates == [] and result.as_of == AS_OF
     assert result.statement == "No marks in the registry within 10.0 km of the site. Nothing can serve as a base."
+
+
+@pytest.mark.django_db
+def test_a_mark_on_the_site_point_has_no_azimuth(viewer):
+    # run.py: under 1 mm from the site the direction is undefined and none is given.
+    from registry.services.screening import job_screen
+    from tests.services.test_screening import AS_OF, by_code, make_job, make_mark
+
+    make_mark("ON", 0.0, 0.0)
+    make_mark("NEAR", 0.5, 90.0)
+    make_job()
+    c = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))
+    assert c["ON"].distance_m < 1e-6 and c["ON"].azimuth_deg is None
+    assert c["NEAR"].azimuth_deg == pytest.approx(90.0, abs=1e-6)  # placed due east with pyproj (GRS80)
