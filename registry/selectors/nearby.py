@@ -335,12 +335,11 @@ def _marks_from_rows(rows: list[tuple]) -> dict[int, Mark]:
     names = [f.attname for f in fields]
     out = {}
     for row in rows:
-        if converters:
-            row = list(row)
-            for i, col, convs in converters:
-                for conv in convs:
-                    row[i] = conv(row[i], col, connection)
-        mark = Mark.from_db(connection.alias, names, row)
+        values = list(row)
+        for i, col, convs in converters:
+            for conv in convs:
+                values[i] = conv(values[i], col, connection)
+        mark = Mark.from_db(connection.alias, names, values)
         out[mark.pk] = mark
     return out
 
@@ -383,6 +382,7 @@ def _postgis_decided(lat_deg, lon_deg, radius_m, limit, filters: _Filters) -> _D
             return decided  # every mark inside the prefilter radius was seen
         # Unseen marks are at least as far on the sphere as the farthest row, so at least
         # lo × that on the ellipsoid; stop when the limit-th mark is strictly nearer.
+        assert rows.sphere_m is not None  # asked for with_sphere=True
         if len(decided) >= limit and decided.distance_m[limit - 1] < float(rows.sphere_m.max()) * _SPHERE_LO:
             return decided
         k *= 4
