@@ -150,7 +150,10 @@ def test_the_field_date_defaults_to_the_screening_date():
         dt.date(2027, 1, 1),
         date_to_decimal_year(dt.date(2027, 1, 1)),
     )
-    c_unplaced = cand(vel=None)
+    c_unplaced = cand("UNPLACED", vel=None)
     c_unplaced.position = None
-    motion.apply_site_motion([c_unplaced], s, dt.date(2027, 1, 1), near_m=5000.0)
+    c_placed = cand("PLACED", vel=None)
+    motion.apply_site_motion([c_unplaced, c_placed], s, dt.date(2027, 1, 1), near_m=5000.0)
+    # an unplaced candidate gets no motion term, and the ones after it still do
     assert c_unplaced.motion_note == ""
+    assert c_placed.motion_note.startswith("from the deliverable epoch")
