@@ -36,6 +36,19 @@ def pytest_configure(config):
     connection_created.connect(_allow_audit_truncate, dispatch_uid="registry_tests_allow_audit_truncate")
 
 
+def pytest_collection_modifyitems(config, items):
+    """Mutation runs of the geodesy core (``REGISTRY_MUTATION_SCOPE=geodesy``, see DEVELOPERS.md,
+    "Test strength") leave out the database tests: the core is pinned by tests/geodesy's plain tests,
+    and the page/API tests would make each mutant take seconds instead of milliseconds."""
+    if os.environ.get("REGISTRY_MUTATION_SCOPE", "") != "geodesy":
+        return
+    kept = [item for item in items if item.get_closest_marker("django_db") is None]
+    dropped = [item for item in items if item.get_closest_marker("django_db") is not None]
+    if dropped:
+        config.hook.pytest_deselected(items=dropped)
+        items[:] = kept
+
+
 @pytest.fixture(autouse=True)
 def _fresh_cache():
     """Empty Django's cache around each test, as the database is: the cached job screening

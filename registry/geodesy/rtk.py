@@ -312,7 +312,7 @@ class ScreeningCore:
     achievable_h95_mm: float
     achievable_v95_mm: float
     any_coverage: float
-    reaches_site: np.ndarray | None = None
+    reaches_site: np.ndarray
     best_h_index: np.ndarray | None = None
     best_v_index: np.ndarray | None = None
     achievable_split: bool = False

@@ -18,20 +18,22 @@ from django.db.models import Q
 from registry.models.jobs import Job
 from registry.models.marks import Mark
 
+from .choices import TextChoices
 
-class DocumentKind(models.TextChoices):
+
+class DocumentKind(TextChoices):
     SHEET = "sheet", "station description sheet"
     REPORT = "report", "control report"
 
 
-class DocumentState(models.TextChoices):
+class DocumentState(TextChoices):
     DRAFT = "draft", "draft"
     CHECKED = "checked", "checked"
     SIGNED = "signed", "signed"
     SUPERSEDED = "superseded", "superseded"
 
 
-class PageSize(models.TextChoices):
+class PageSize(TextChoices):
     A4 = "A4", "A4 (210 × 297 mm)"
     LETTER = "Letter", "Letter (8.5 × 11 in)"
 
@@ -220,7 +222,7 @@ class DocumentMark(models.Model):
         constraints = [models.UniqueConstraint(fields=["document", "mark"], name="document_mark_unique")]
 
 
-class BuildState(models.TextChoices):
+class BuildState(TextChoices):
     QUEUED = "queued", "waiting to start"
     RUNNING = "running", "being built"
     DONE = "done", "built"

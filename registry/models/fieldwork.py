@@ -8,8 +8,10 @@ from django.db.models import F, Q
 
 from registry.models.marks import Mark, Position
 
+from .choices import TextChoices
 
-class OccupationMethod(models.TextChoices):
+
+class OccupationMethod(TextChoices):
     STATIC_GNSS = "static_gnss", "static GNSS"
     RTK = "rtk", "RTK"
     NETWORK_RTK = "network_rtk", "network RTK"
@@ -18,7 +20,7 @@ class OccupationMethod(models.TextChoices):
     OTHER = "other", "other"
 
 
-class AntennaHeightKind(models.TextChoices):
+class AntennaHeightKind(TextChoices):
     VERTICAL = "vertical", "vertical to the antenna reference point"
     SLANT = "slant", "slant to the slant-measure point"
 
@@ -69,7 +71,7 @@ class Occupation(models.Model):
         return f"{self.mark_id} {self.method} {self.start_utc:%Y-%m-%d}"
 
 
-class Finding(models.TextChoices):
+class Finding(TextChoices):
     """What a visit found at the mark."""
 
     INTACT = "intact", "intact"
@@ -104,7 +106,7 @@ class Visit(models.Model):
         return f"{self.mark_id} {self.visited_on} {self.finding}"
 
 
-class AttachmentKind(models.TextChoices):
+class AttachmentKind(TextChoices):
     PHOTO = "photo", "photo"
     RINEX = "rinex", "RINEX observation file"
     SKETCH = "sketch", "sketch"

@@ -13,6 +13,8 @@ from django.core.validators import RegexValidator
 from django.db import models
 from django.db.models import Q
 
+from .choices import TextChoices
+
 #: A grid code: capital letters, digits, '-', '_', '.'; it starts with a letter, so it can never be
 #: taken for an EPSG code (a number) where either is accepted.
 GRID_CODE_VALIDATOR = RegexValidator(
@@ -22,14 +24,14 @@ GRID_CODE_VALIDATOR = RegexValidator(
 )
 
 
-class GridMethod(models.TextChoices):
+class GridMethod(TextChoices):
     TM = "tm", "transverse Mercator"
     OBLIQUE_STEREOGRAPHIC = "oblique_stereographic", "oblique stereographic"
     LCC_1SP = "lcc_1sp", "Lambert conic conformal (one standard parallel)"
     UTM_SCALED = "utm_scaled", "UTM zone scaled about a point"
 
 
-class GridUnit(models.TextChoices):
+class GridUnit(TextChoices):
     METRE = "metre", "metre"
     FOOT = "foot", "international foot (0.3048 m)"
     US_SURVEY_FOOT = "US survey foot", "US survey foot (1200/3937 m; legacy)"

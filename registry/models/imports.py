@@ -11,8 +11,10 @@ from django.conf import settings
 from django.db import models
 from django.db.models import Q
 
+from .choices import TextChoices
 
-class ImportState(models.TextChoices):
+
+class ImportState(TextChoices):
     QUEUED = "queued", "waiting for a worker"
     RUNNING = "running", "running"
     DONE = "done", "imported"

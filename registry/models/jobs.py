@@ -6,23 +6,25 @@ from django.conf import settings
 from django.db import models
 from django.db.models import Q
 
+from .choices import TextChoices
 
-class RtkCombination(models.TextChoices):
+
+class RtkCombination(TextChoices):
     ADDITIVE = "additive", "additive (a + b·d, as receiver specifications quote it)"
     RSS = "rss", "root-sum-square √(a² + (b·d)²)"
 
 
-class RtkHorizontalMeaning(models.TextChoices):
+class RtkHorizontalMeaning(TextChoices):
     PER_AXIS = "per_axis", "1σ per horizontal axis"
     DRMS = "drms", "2D RMS (σ_E² + σ_N²)^½"
 
 
-class VerticalDeliverable(models.TextChoices):
+class VerticalDeliverable(TextChoices):
     ELLIPSOIDAL = "ellipsoidal", "ellipsoidal heights in the deliverable frame"
     ORTHOMETRIC = "orthometric", "orthometric heights (the office's geoid model)"
 
 
-class JobStatus(models.TextChoices):
+class JobStatus(TextChoices):
     PLANNING = "planning", "planning"
     ACTIVE = "active", "in the field"
     CLOSED = "closed", "closed"

@@ -10,6 +10,8 @@ from django.core.validators import RegexValidator
 from django.db import models
 from django.db.models import Q
 
+from .choices import TextChoices
+
 CODE_VALIDATOR = RegexValidator(
     r"^[A-Z0-9][A-Z0-9_.-]{0,31}$",
     message="A mark code is 1–32 characters: capital letters, digits, '_', '.', '-'.",
@@ -17,7 +19,7 @@ CODE_VALIDATOR = RegexValidator(
 )
 
 
-class MarkStatus(models.TextChoices):
+class MarkStatus(TextChoices):
     """A mark's status. ``suspect`` is set and cleared only by the services (``registry.services.suspect``):
     a visit that found the mark disturbed or did not find it, and cleared by a newly published position
     or a manager's clearance."""
@@ -28,7 +30,7 @@ class MarkStatus(models.TextChoices):
     DESTROYED = "destroyed", "destroyed"
 
 
-class MonumentKind(models.TextChoices):
+class MonumentKind(TextChoices):
     """The kind of monument (the mark's ``monument`` field)."""
 
     DISK_ROCK = "disk_rock", "disk set in rock outcrop"
@@ -42,7 +44,7 @@ class MonumentKind(models.TextChoices):
     OTHER = "other", "other"
 
 
-class Stability(models.TextChoices):
+class Stability(TextChoices):
     """Our own scale of how well a monument is expected to hold its position."""
 
     HIGH = "high", "high (bedrock, deep rod, pillar)"
@@ -51,7 +53,7 @@ class Stability(models.TextChoices):
     UNKNOWN = "unknown", "unknown"
 
 
-class SkyView(models.TextChoices):
+class SkyView(TextChoices):
     CLEAR = "clear", "clear"
     PARTIAL = "partial", "partly obstructed"
     OBSTRUCTED = "obstructed", "obstructed"
@@ -126,7 +128,7 @@ class Mark(models.Model):
         return self.code
 
 
-class PositionState(models.TextChoices):
+class PositionState(TextChoices):
     PROPOSED = "proposed", "proposed"
     PUBLISHED = "published", "published"
     SUPERSEDED = "superseded", "superseded"
@@ -346,7 +348,7 @@ class Position(models.Model):
         return super().delete(*args, **kwargs)
 
 
-class HeightMethod(models.TextChoices):
+class HeightMethod(TextChoices):
     LEVELLED = "levelled", "levelled"
     GEOID = "geoid", "ellipsoidal height minus geoid model N"
 

@@ -6,14 +6,16 @@ from django.conf import settings
 from django.db import models
 from django.db.models import Q
 
+from .choices import TextChoices
 
-class MovementVerdict(models.TextChoices):
+
+class MovementVerdict(TextChoices):
     NO_MOVEMENT = "no_movement", "no movement shown"
     POSSIBLE_MOVEMENT = "possible_movement", "possible movement"
     NOT_COMPARED = "not_compared", "nothing to compare with"
 
 
-class CheckStage(models.TextChoices):
+class CheckStage(TextChoices):
     PROPOSED = "proposed", "when proposed"
     PUBLISHED = "published", "at publication"
 

@@ -47,6 +47,7 @@ def postgis_decided(lat_deg, lon_deg, radius_m, limit, filters: Filters) -> Deci
             return decided  # every mark inside the prefilter radius was seen
         # Unseen marks are at least as far on the sphere as the farthest row, so at least
         # lo × that on the ellipsoid; stop when the limit-th mark is strictly nearer.
+        assert rows.sphere_m is not None  # asked for with_sphere=True
         if len(decided) >= limit and decided.distance_m[limit - 1] < float(rows.sphere_m.max()) * _SPHERE_LO:
             return decided
         k *= 4

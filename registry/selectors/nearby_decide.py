@@ -205,12 +205,11 @@ def _marks_from_rows(rows: list[tuple]) -> dict[int, Mark]:
     names = [f.attname for f in fields]
     out = {}
     for row in rows:
-        if converters:
-            row = list(row)
-            for i, col, convs in converters:
-                for conv in convs:
-                    row[i] = conv(row[i], col, connection)
-        mark = Mark.from_db(connection.alias, names, row)
+        values = list(row)
+        for i, col, convs in converters:
+            for conv in convs:
+                values[i] = conv(values[i], col, connection)
+        mark = Mark.from_db(connection.alias, names, values)
         out[mark.pk] = mark
     return out
 

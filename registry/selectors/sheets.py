@@ -207,7 +207,8 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
         Row("ECEF Z", f"{c.z_m:.4f} m", ""),
     ]
     grid_rows: list[Row] = []
-    if c.grid is not None:
+    # the conversion fills the grid figures together, or none of them
+    if c.grid is not None and c.easting_m is not None and c.northing_m is not None and c.convergence_deg is not None:
         code = f"EPSG:{c.grid.epsg}" if c.grid.epsg else "no EPSG code"
         grid_rows = [
             Row("Grid", f"{c.grid.name} ({code})", ""),
@@ -221,7 +222,7 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
     else:
         warnings.extend(w for w in c.warnings if w.startswith("No grid"))
     height_rows: list[Row] = []
-    if c.orthometric_height_m is not None:
+    if c.orthometric_height_m is not None and c.geoid is not None:
         note = f"N = {c.geoid_height_m:.3f} m from {c.geoid.label}"
         if c.geoid_steps and c.geoid.frame_epsg:
             note += f", with h taken in EPSG:{c.geoid.frame_epsg} ({c.h_geoid_frame_m:.3f} m), the model's frame"
@@ -233,7 +234,7 @@ def position_block(p: Position, *, grid, geoid: GeoidModel | None) -> PositionBl
         rows.append(Row("Velocity", "none known", "valid at its epoch"))
     h95, v95 = acc.network_accuracy_95_m(_cov(p))
     h95, v95 = float(h95), float(v95)
-    h_class, v_class = acc.accuracy_class(h95), acc.accuracy_class(v95)
+    h_class, v_class = str(acc.accuracy_class(h95)), str(acc.accuracy_class(v95))  # scalars in, names out
     lines = statements.fgdc_statement_lines(h95, h_class, v95, v_class)
     return PositionBlock(
         title=f"{format_frame(p.frame_epsg)}, {info.kind}",

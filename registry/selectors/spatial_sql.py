@@ -26,6 +26,7 @@ import datetime as dt
 from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import Any
 
 import numpy as np
 from geoalchemy2 import Geography
@@ -48,6 +49,7 @@ from sqlalchemy import (
     select,
 )
 from sqlalchemy.dialects import postgresql, sqlite
+from sqlalchemy.sql.elements import ColumnElement, Label
 
 metadata = MetaData()
 
@@ -120,7 +122,7 @@ class CandidateRows:
 
 def _filter_clauses(shape: FilterShape) -> list:
     m = mark_table
-    clauses = []
+    clauses: list[ColumnElement[bool]] = []
     if shape.statuses is not None:
         clauses.append(m.c.status.in_(list(shape.statuses)))
     if shape.stabilities is not None:
@@ -192,7 +194,7 @@ def postgis_candidates_sql(shape: FilterShape, limited: bool, extra_columns: tup
     prefilter = bindparam("prefilter_m", value=0.0, type_=Float)
     knn = m.c.geog.op("<->", return_type=Float)(point)
     columns = (m.c.id, m.c.code, m.c.search_lat_deg, m.c.search_lon_deg)
-    extra = [literal_column(f'registry_mark."{name}"').label(f"x_{name}") for name in extra_columns]
+    extra: list[Label[Any]] = [literal_column(f'registry_mark."{name}"').label(f"x_{name}") for name in extra_columns]
     if not limited:
         stmt = select(*columns, knn.label("sphere_m"), *extra).where(
             func.ST_DWithin(m.c.geog, point, prefilter, False), *_filter_clauses(shape)
@@ -236,7 +238,7 @@ def box_candidates_sql(shape: FilterShape, n_lon_ranges: int, vendor: str) -> tu
         )
         for i in range(n_lon_ranges)
     ]
-    where = [
+    where: list[ColumnElement[bool]] = [
         m.c.search_lat_deg.between(
             bindparam("lat_min", value=0.0, type_=Float), bindparam("lat_max", value=0.0, type_=Float)
         )
@@ -275,8 +277,12 @@ def filter_params(shape: FilterShape, *, frame_epsg: int | None, visit_cutoff: d
     """Values of the filter parameters a shape uses (dates as ISO text on SQLite)."""
     params: dict = {}
     if shape.frame:
+        if frame_epsg is None:
+            raise ValueError("this filter shape compares the frame: give frame_epsg")
         params["frame_epsg"] = int(frame_epsg)
     if shape.intact_visit:
+        if visit_cutoff is None:
+            raise ValueError("this filter shape asks for an intact visit: give visit_cutoff")
         params["visit_cutoff"] = visit_cutoff.isoformat() if vendor == "sqlite" else visit_cutoff
     return params
 

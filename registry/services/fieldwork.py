@@ -143,8 +143,10 @@ def _arp_height_m(kind: str, measured_m: float | None, radius_m: float | None, o
         return None
     if kind == AntennaHeightKind.VERTICAL:
         return measured_m
-    if radius_m is None and offset_m is None:
-        return None  # stored as measured; reduced once the antenna's radius and offset are known
+    if radius_m is None or offset_m is None:
+        # stored as measured; reduced once the antenna's radius and offset are known (the input rules
+        # refuse one without the other)
+        return None
     try:
         return float(slant_to_vertical_arp_m(slant_m=measured_m, radius_m=radius_m, arp_offset_m=offset_m))
     except ComputationInputError as exc:

@@ -25,7 +25,7 @@ services as before (their rules: versions, supersession, suspicion, signed docum
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
 from django.core.exceptions import ValidationError
@@ -92,9 +92,9 @@ def _new_mark(group: list[MarkRecord]) -> Mark:
     return mark
 
 
-def _new_position(record: MarkRecord, actor) -> Position:
+def _new_position(position: Mapping[str, Any], actor) -> Position:
     """The unsaved position of a row, validated as ``position_propose`` validates it."""
-    cleaned = _parse_position(dict(record.position))
+    cleaned = _parse_position(dict(position))
     position = Position(created_by=actor, state=PositionState.PROPOSED, **cleaned)
     check_text_limits(position)
     # The actor was checked by require_ability; foreign keys are not looked up once per row.
@@ -143,7 +143,7 @@ def create_marks_in_batches(
             for record in group:
                 at = record
                 if record.position is not None:
-                    positions.append((record, _new_position(record, actor)))
+                    positions.append((record, _new_position(record.position, actor)))
         except ValidationError as exc:
             errors.extend(_errors_of(exc, at))
             continue
@@ -179,10 +179,10 @@ def create_marks_in_batches(
     # The movement checks the position services store on proposing and on publishing: a new mark's only
     # position has nothing to compare with (batch_eligible), so both say so.
     checks: dict[int, dict[str, MovementCheck]] = {}
-    rows_to_insert = []
+    rows_to_insert: list[MovementCheck] = []
     for position in all_positions:
         outcome = movement_compare(position=position, published=None)
-        by_stage = {
+        by_stage: dict[str, MovementCheck] = {
             stage: movement_check_build(outcome=outcome, stage=stage, actor=actor)
             for stage in (CheckStage.PROPOSED, CheckStage.PUBLISHED)
         }

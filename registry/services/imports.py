@@ -232,7 +232,7 @@ def _last_mark_change(mark: Mark) -> str:
     return f"by {who} at {_when(event.at)}"
 
 
-def _last_position_change(mark: Mark, frame_epsg: int) -> str:
+def _last_position_change(mark: Mark, frame_epsg: int | None) -> str:
     latest = (
         Position.objects.filter(mark=mark, frame_epsg=frame_epsg, state__in=EVER_PUBLISHED_STATES)
         .select_related("decided_by")

@@ -22,6 +22,7 @@ from django.core.exceptions import ValidationError
 
 from registry.geodesy import site as site_geo
 from registry.models import Job, JobStatus, RtkCombination, RtkHorizontalMeaning, VerticalDeliverable
+from registry.models.choices import TextChoices
 from registry.models.marks import CODE_VALIDATOR
 from registry.services._input import field_error
 from registry.services.limits import NOTES_MAX
@@ -243,12 +244,13 @@ def clean_job_fields(data: Any, allowed: tuple[str, ...]) -> dict[str, Any]:
                     )
                 cleaned[key] = value
             else:
-                choices = {
+                lists: dict[str, type[TextChoices]] = {
                     "status": JobStatus,
                     "rtk_combination": RtkCombination,
                     "rtk_h_meaning": RtkHorizontalMeaning,
                     "vertical_deliverable": VerticalDeliverable,
-                }[key]
+                }
+                choices = lists[key]
                 if value not in choices.values:
                     raise field_error(key, f"{value!r} is not one of: {', '.join(choices.values)}.", "invalid_choice")
                 cleaned[key] = value

@@ -65,11 +65,11 @@ def check_text_limits(instance: models.Model, *, fields=None) -> None:
         raise ValidationError(errors)
 
 
-def limits_table() -> list[tuple[str, str, int]]:
+def limits_table() -> list[tuple[str, str, int | None]]:
     """(model, field, characters) for every user-entered text field: the README's table."""
     from django.apps import apps
 
-    rows = []
+    rows: list[tuple[str, str, int | None]] = []
     for model in apps.get_app_config("registry").get_models():
         if model._meta.model_name in {"auditevent", "signinthrottle", "idempotencyrecord"}:
             continue

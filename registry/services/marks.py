@@ -239,12 +239,12 @@ def mark_update(*, actor, code: str, expected_version: int, changes: dict, base:
             if base is not None:
                 loaded = _clean_input({k: base[k] for k in cleaned if k in base}, EDITABLE_FIELDS)
                 current = Mark.objects.get(pk=mark.pk)
-                clashes = {
+                changed_since = {
                     k: v
                     for k, v in cleaned.items()
                     if k not in loaded or (getattr(current, k) != loaded[k] and getattr(current, k) != v)
                 }
-                current, conflict = _conflict(mark.pk, clashes or cleaned, version)
+                current, conflict = _conflict(mark.pk, changed_since or cleaned, version)
             else:
                 current, conflict = _conflict(mark.pk, cleaned, version)
             audit_record(

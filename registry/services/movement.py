@@ -239,7 +239,7 @@ def movement_compare(*, position: Position, published: Position | None) -> Movem
         return outcome
     outcome.result = result
     outcome.verdict = result.verdict
-    outcome.added_sigma_enu_m = tuple(float(a) for a in added)
+    outcome.added_sigma_enu_m = (float(added[0]), float(added[1]), float(added[2]))
     mdb = result.detectable_enu_m
     if max(mdb[0], mdb[1]) > conf.detectable_h_m or mdb[2] > conf.detectable_v_m:
         outcome.above_threshold = True

@@ -103,9 +103,10 @@ def row_check(position: Position | None) -> dict[str, Any] | None:
     if position is None:
         return None
     outcome = movement_compare(position=position, published=comparison_target(position))
-    d_mm = None
+    d_mm: tuple[float, float, float] | None = None
     if outcome.result is not None:
-        d_mm = tuple(round(float(v) * 1000.0, 1) for v in outcome.result.d_enu_m)
+        d_e, d_n, d_u = (round(float(v) * 1000.0, 1) for v in outcome.result.d_enu_m)
+        d_mm = (d_e, d_n, d_u)
     return {
         "verdict": outcome.verdict,
         "words": movement_words(outcome.verdict, d_mm),
@@ -158,16 +159,16 @@ def _already_recorded(rows: list[OccupationRow]) -> list[RowError]:
     existing = Occupation.objects.filter(mark__code__in=codes).values_list("mark__code", "method", "start_utc")
     out = []
     for key in existing:
-        row = wanted.get(tuple(key))
-        if row is not None:
+        found = wanted.get(tuple(key))
+        if found is not None:
             out.append(
                 RowError(
-                    f"line {row.line}",
-                    row.line,
+                    f"line {found.line}",
+                    found.line,
                     "already_recorded",
                     "This occupation (same mark, method and start) is already in the registry.",
                     "start_utc",
-                    row.mark,
+                    found.mark,
                 )
             )
     return out

@@ -25,8 +25,9 @@ them in their own shape (a ValidationError per field for the service, a row erro
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import lru_cache
 from typing import Any
 
@@ -51,7 +52,7 @@ class Problem:
     field: str
     code: str
     message: str
-    params: dict[str, Any] = field(default_factory=dict)
+    params: dict[str, Any] = dataclasses.field(default_factory=dict)
 
 
 @lru_cache(maxsize=256)

@@ -49,7 +49,7 @@ from registry.services.documents import documents_mark_changed
 #: Longest reason stored (the model's max_length).
 REASON_MAX = 200
 
-_REASON_WORDS = {
+_REASON_WORDS: dict[str, str] = {
     Finding.DISTURBED: "the visit of {day} found it disturbed",
     Finding.SEARCHED_NOT_FOUND: "the visit of {day} searched for it and did not find it",
 }

@@ -14,6 +14,7 @@ agree; the words are for people, the ``state`` codes for the API.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from types import EllipsisType
 
 from registry.models import Finding, MarkStatus
 
@@ -151,15 +152,18 @@ def assess(status: str, last_finding: str | None = None, *, suspect_reason: str 
     )
 
 
-def mark_usability(mark, last_finding: str | None = ...) -> Usability:
+def mark_usability(mark, last_finding: str | None | EllipsisType = ...) -> Usability:
     """:func:`assess` for a mark instance; reads its latest visit when ``last_finding`` is not given."""
-    if last_finding is ...:
+    finding: str | None
+    if isinstance(last_finding, EllipsisType):
         from registry.models import Visit
 
-        last_finding = (
+        finding = (
             Visit.objects.filter(mark=mark)
             .order_by("-visited_on", "-created_at", "-pk")
             .values_list("finding", flat=True)
             .first()
         )
-    return assess(mark.status, last_finding, suspect_reason=mark.suspect_reason)
+    else:
+        finding = last_finding
+    return assess(mark.status, finding, suspect_reason=mark.suspect_reason)

@@ -16,7 +16,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 
 from django.contrib.auth import get_user_model, password_validation
-from django.contrib.auth.models import Group
+from django.contrib.auth.models import AbstractUser, Group
 from django.core.exceptions import ValidationError
 from django.core.validators import validate_email
 from django.db import transaction
@@ -49,7 +49,7 @@ def _parse_roles(roles: Iterable[str]) -> list[str]:
     return [r.value for r in Role if r.value in wanted]
 
 
-def _access_user(username) -> object:
+def _access_user(username) -> AbstractUser:
     User = get_user_model()
     if not isinstance(username, str) or not username.strip() or "\x00" in username:
         raise NotFound(f"No user named {username!r}.", details={"username": str(username)})

@@ -25,10 +25,14 @@ import logging
 import os
 import socket
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from django.conf import settings
 from django.db import connections, transaction
 from django.utils import timezone
+
+if TYPE_CHECKING:
+    import psycopg
 
 log = logging.getLogger(__name__)
 
@@ -59,7 +63,7 @@ class Liveness:
     def __init__(self, worker_id: str, using: str = "default") -> None:
         self.worker_id = worker_id
         self.using = using
-        self.conn = None
+        self.conn: psycopg.Connection | None = None
 
     def __enter__(self) -> Liveness:
         conn = connections[self.using]

@@ -114,6 +114,8 @@ def test_propose_on_a_destroyed_mark_is_refused(mark, manager, technician):
     with pytest.raises(Conflict) as info:
         position_propose(actor=technician, mark_code="QR-101", data=position_data())
     assert info.value.code == "mark_destroyed"
+    assert info.value.message == "Mark QR-101 is recorded as destroyed; a destroyed mark gets no new positions."
+    assert not Position.objects.exists()
 
 
 # ---- publish, supersede, search location -------------------------------------------------------
@@ -255,3 +257,129 @@ def test_raw_sql_may_still_edit_a_proposed_position(mark, technician):
         cursor.execute(f"UPDATE {Position._meta.db_table} SET h_m = 1500.0 WHERE id = %s", [proposed.pk])
     proposed.refresh_from_db()
     assert proposed.h_m == 1500.0
+
+
+# ---- who decided, when, and what the audit trail keeps (the decisions of the module docstring) ------
+
+
+def test_reject_records_the_decider_the_time_and_the_audit_row(mark, manager, technician):
+    from django.utils import timezone
+
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(ValidationError) as info:
+        position_reject(actor=manager, position_id=proposed.pk, note="")
+    assert info.value.error_dict["note"][0].message == "Give the reason for the rejection."
+    before = timezone.now()
+    position_reject(actor=manager, position_id=proposed.pk, note="Float solution only (invented)")
+    proposed.refresh_from_db()
+    assert proposed.state == PositionState.REJECTED
+    assert proposed.decided_by == manager
+    assert before <= proposed.decided_at <= timezone.now()
+    event = AuditEvent.objects.get(action="position_reject")
+    assert (event.before, event.after) == ({"state": "proposed"}, {"state": "rejected"})
+    assert event.note == "Float solution only (invented)" and event.object_id == str(proposed.pk)
+
+
+def test_withdraw_records_the_decider_the_time_and_the_audit_row(mark, manager, technician):
+    from django.utils import timezone
+
+    published = make_published(manager, technician)
+    with pytest.raises(ValidationError) as info:
+        position_withdraw(actor=manager, position_id=published.pk, note="  ")
+    assert info.value.error_dict["note"][0].message == "Give the reason for the withdrawal."
+    before = timezone.now()
+    position_withdraw(actor=manager, position_id=published.pk, note="Wrong antenna height (invented)")
+    published.refresh_from_db()
+    assert published.decided_by == manager
+    assert before <= published.decided_at <= timezone.now()
+    event = AuditEvent.objects.get(action="position_withdraw")
+    assert event.before == {"state": "published", "search_lat_deg": 45.2012345678, "search_lon_deg": -110.6023456789}
+    assert event.after == {"state": "withdrawn", "search_lat_deg": None, "search_lon_deg": None}
+    assert event.note == "Wrong antenna height (invented)" and event.mark_id == mark.pk
+
+
+def test_a_decision_in_the_wrong_state_says_what_was_allowed(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(Conflict) as info:
+        position_withdraw(actor=manager, position_id=proposed.pk, note="not yet published")
+    assert info.value.message == (f"Position {proposed.pk} is proposed; only a published position can be withdrawn.")
+    assert info.value.details == {"state": "proposed", "allowed": ["published"]}
+
+
+def test_search_location_follows_the_most_recently_published_not_the_newest_row(mark, manager, technician):
+    # Module docstring: the search location follows the most recently *published* position of any frame.
+    # The NAD83 proposal is the newer row but is published first; the older ITRF row published after it
+    # must then drive the search location.
+    itrf = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    nad83 = position_propose(
+        actor=technician,
+        mark_code="QR-101",
+        data=position_data(frame_epsg=NAD83_2011_EPSG, lat_deg=45.20122, lon_deg=-110.60233),
+    )
+    assert nad83.pk > itrf.pk
+    position_publish(actor=manager, position_id=nad83.pk, note="invented data")
+    # the manager looked at the comparison with the NAD83 position just published
+    position_publish(actor=manager, position_id=itrf.pk, note="invented data", compared_with=nad83.pk)
+    assert Mark.objects.values_list("search_lat_deg", "search_lon_deg").get() == (45.2012345678, -110.6023456789)
+
+
+def test_publish_refuses_a_compared_with_that_is_not_a_number(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    with pytest.raises(ValidationError) as info:
+        position_publish(actor=manager, position_id=proposed.pk, compared_with="the old one")
+    assert codes_of(info.value) == {"compared_with": ["invalid_integer"]}
+
+
+def test_publish_after_the_mark_was_destroyed_is_refused_in_words(mark, manager, technician):
+    proposed = position_propose(actor=technician, mark_code="QR-101", data=position_data())
+    mark_set_status(actor=manager, code="QR-101", status="destroyed", expected_version=1, note="Bulldozed (invented)")
+    with pytest.raises(Conflict) as info:
+        position_publish(actor=manager, position_id=proposed.pk)
+    assert info.value.code == "mark_destroyed"
+    assert info.value.message == "Mark QR-101 is recorded as destroyed; its positions cannot be published."
+    proposed.refresh_from_db()
+    assert proposed.state == PositionState.PROPOSED
+
+
+def test_publish_refuses_when_the_published_position_changed_since_the_proposal(mark, manager, technician):
+    first = position_propose(actor=technician, mark_code="QR-101", data=position_data())  # compared with none
+    other = make_published(manager, technician)
+    with pytest.raises(Conflict) as info:
+        position_publish(actor=manager, position_id=first.pk)
+    assert info.value.code == "compared_with_changed"
+    assert info.value.details == {"compared_with": None, "published_now": other.pk}
+    assert info.value.message == (
+        f"Position {first.pk} was compared with no published position, but the published position of QR-101 "
+        f"is now position {other.pk}. Someone decided in between: look at the new comparison and decide again."
+    )
+
+
+def test_publishing_against_possible_movement_needs_a_reason(mark, manager, technician):
+    make_published(manager, technician)
+    # 0.001° of latitude is about 111 m (any geodesy text): far beyond σ = 5 mm, so possible movement
+    moved = position_propose(actor=technician, mark_code="QR-101", data=position_data(lat_deg=45.2022345678))
+    with pytest.raises(ValidationError) as info:
+        position_publish(actor=manager, position_id=moved.pk)
+    [error] = info.value.error_dict["note"]
+    assert error.code == "movement_note_required"
+    assert error.message == (
+        "The movement check shows possible movement against the published position; give the reason "
+        "for publishing anyway."
+    )
+    moved.refresh_from_db()
+    assert moved.state == PositionState.PROPOSED
+
+
+def test_publishing_answers_the_suspicion_and_the_audit_row_says_so(mark, manager, technician):
+    # services.suspect: a newly published position makes a suspect mark active again.
+    make_published(manager, technician)
+    moved = position_propose(actor=technician, mark_code="QR-101", data=position_data(lat_deg=45.2022345678))
+    suspect = Mark.objects.get()
+    assert suspect.status == "suspect"
+    position_publish(actor=manager, position_id=moved.pk, note="The mark was reset (invented)")
+    active = Mark.objects.get()
+    assert (active.status, active.suspect_reason, active.suspect_since) == ("active", "", None)
+    assert active.version == suspect.version + 1
+    event = AuditEvent.objects.filter(action="position_publish").latest("seq")
+    assert (event.before["mark_status"], event.after["mark_status"]) == ("suspect", "active")
+    assert event.after["mark_version"] == suspect.version + 1

@@ -71,6 +71,11 @@ def test_check_allowance_includes_frame_change_and_rover_centring(viewer):
     v = K_V * math.sqrt((15 + b_km) ** 2 + 25 + 9 + 9 + 36 + 1)
     assert a["horizontal_95_mm"] == pytest.approx(h, abs=0.06)
     assert a["vertical_95_mm"] == pytest.approx(v, abs=0.06)
+    # the screening's machine output is to 0.001 mm: the allowances are rounded there, not finer
+    assert (a["horizontal_95_mm"], a["vertical_95_mm"]) == (
+        round(a["horizontal_95_mm"], 3),
+        round(a["vertical_95_mm"], 3),
+    )
 
 
 def test_coverage_words():
@@ -95,6 +100,10 @@ def test_height_difference_reported_and_warned(viewer):
     c = by_code(r)["HI-1"]
     assert c.max_dh_m == pytest.approx(350.0, abs=1e-6)
     assert any("350 m above or below the site" in w for w in r.warnings)
+    assert c.warnings == [
+        "HI-1 is up to 350 m above or below the site (ellipsoidal heights): beyond 300 m, unmodelled troposphere "
+        "degrades RTK, mostly in height (common practice); the budget does not include it."
+    ]
     assert c.h95_mm == pytest.approx(24.2315, abs=2e-3)  # same hand value as without heights (test_screening)
     row = r.as_dict()["candidates"][0]
     assert row["max_height_difference_m"] == 350.0 and r.as_dict()["site"]["heights_given"] == 1

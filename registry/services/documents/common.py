@@ -20,7 +20,7 @@ from registry.services.audit import audit_record
 
 #: Crockford's base-32 alphabet (no I, L, O, U): codes read aloud and typed without confusion.
 _CODE_ALPHABET = "0123456789ABCDEFGHJKMNPQRSTVWXYZ"
-_KIND_LETTER = {DocumentKind.SHEET: "S", DocumentKind.REPORT: "R"}
+_KIND_LETTER: dict[str, str] = {DocumentKind.SHEET: "S", DocumentKind.REPORT: "R"}
 
 
 def new_document_code(kind: str) -> str:

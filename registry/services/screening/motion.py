@@ -109,7 +109,7 @@ def apply_site_motion(cands: list[Candidate], s: ScreeningSettings, as_of: dt.da
                 f"own velocity ({c.velocity_mm_yr[0]:+.1f}, {c.velocity_mm_yr[1]:+.1f}, "
                 f"{c.velocity_mm_yr[2]:+.1f} mm/yr)"
             )
-            c.motion_offset_mm = tuple(float(x) for x in off)
+            c.motion_offset_mm = (float(off[0]), float(off[1]), float(off[2]))
         c.motion_h_mm, c.motion_v_mm = float(h), float(v)
         c.motion_note = (
             f"from the deliverable epoch {s.epoch_yr:.3f} to the field date {day.isoformat()} "

@@ -72,6 +72,12 @@ def candidates_from_records(records: list[MarkRecords], s: ScreeningSettings, as
     return out
 
 
+def _mm3(values_m: tuple[float, ...]) -> tuple[float, float, float]:
+    """East, north, up in metres (or m/yr) as millimetres (mm/yr)."""
+    e, n, u = (float(v) * 1e3 for v in values_m)
+    return e, n, u
+
+
 def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
     """Move position ``p`` to the job's frame and epoch; fill the base and drift terms."""
     velocity = sigma = None
@@ -82,8 +88,8 @@ def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
         sigma = tuple(
             rate_m_yr if v is None else v for v in (p.vel_sigma_e_m_yr, p.vel_sigma_n_m_yr, p.vel_sigma_u_m_yr)
         )
-        cand.velocity_mm_yr = tuple(float(v) * 1e3 for v in velocity)
-        cand.velocity_sigma_mm_yr = tuple(float(v) * 1e3 for v in sigma)
+        cand.velocity_mm_yr = _mm3(velocity)
+        cand.velocity_sigma_mm_yr = _mm3(sigma)
     r = transform_position(
         p.lat_deg,
         p.lon_deg,

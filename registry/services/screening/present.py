@@ -65,16 +65,7 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
             "recovery_years": s.recovery_years,
         },
         "candidates": [_candidate_dict(c) for c in result.candidates],
-        "best_pair": None
-        if result.pair is None
-        else {
-            "bases": [result.pair[0].mark.code, result.pair[1].mark.code],
-            "coverage": round(core.pair_coverage, 4),
-            "covers_site": core.pair_worst_margin_mm >= 0,
-            "worst_horizontal_95_mm": _mm(core.pair_worst_h95_mm),
-            "worst_vertical_95_mm": _mm(core.pair_worst_v95_mm),
-            "worst_margin_mm": _mm(core.pair_worst_margin_mm),
-        },
+        "best_pair": _best_pair_dict(result),
         "chosen_bases": [c.mark.code for c in result.chosen],
         "service_areas": service_shares(result),
         "check_marks": [
@@ -172,12 +163,28 @@ def candidate_row(c: Candidate, role: str) -> dict[str, Any]:
     }
 
 
+def _best_pair_dict(result: ScreeningResult) -> dict[str, Any] | None:
+    """The best pair of bases and what it achieves; None when the screening found no pair."""
+    core = result.core
+    if result.pair is None or core is None:
+        return None
+    return {
+        "bases": [result.pair[0].mark.code, result.pair[1].mark.code],
+        "coverage": round(core.pair_coverage, 4),
+        "covers_site": core.pair_worst_margin_mm >= 0,
+        "worst_horizontal_95_mm": _mm(core.pair_worst_h95_mm),
+        "worst_vertical_95_mm": _mm(core.pair_worst_v95_mm),
+        "worst_margin_mm": _mm(core.pair_worst_margin_mm),
+    }
+
+
 def page_figures(result: ScreeningResult) -> dict[str, Any]:
     """The job page's rows (usable and excluded, with roles), the exclusions counted by reason, and coverage."""
     core = result.core
     chosen_ids = {id(c) for c in result.chosen}
     check_ids = {id(cm.candidate) for cm in result.check_marks}
-    usable_rows, excluded_rows = [], []
+    usable_rows: list[dict[str, Any]] = []
+    excluded_rows: list[dict[str, Any]] = []
     for c in result.candidates:
         role = "base" if id(c) in chosen_ids else ("check" if id(c) in check_ids else "")
         (excluded_rows if c.excluded else usable_rows).append(candidate_row(c, role))

@@ -68,8 +68,8 @@ def text_report(result: ScreeningResult) -> list[str]:
         w(f"Base term of {c.mark.code}: {c.base_description()}.")
         if c.motion_note:
             w(f"Motion term of {c.mark.code}: {c.motion_note}.")
-    if result.pair:
-        core = result.core
+    core = result.core
+    if result.pair and core is not None:
         w(
             f"Best pair: {result.pair[0].mark.code} + {result.pair[1].mark.code}: covers {core.pair_coverage * 100:.1f} % "
             f"(worst {core.pair_worst_h95_mm:.1f} mm H, {core.pair_worst_v95_mm:.1f} mm V)"
