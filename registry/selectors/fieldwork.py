@@ -6,6 +6,8 @@ the API, commands and imports all run the same one.)
 
 from __future__ import annotations
 
+from typing import Any
+
 from django.db.models import QuerySet
 
 from registry.models import Attachment, Mark, Occupation, Visit
@@ -18,7 +20,7 @@ _ROWS: dict[type, tuple[tuple[str, ...], tuple[str, ...], tuple[str, ...]]] = {
 }
 
 
-def _rows(model: type) -> QuerySet:
+def _rows(model: Any) -> QuerySet:
     _order, related, prefetch = _ROWS[model]
     return model.objects.select_related(*related).prefetch_related(*prefetch)
 

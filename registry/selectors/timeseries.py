@@ -75,9 +75,9 @@ def mark_timeseries(*, mark: Mark, frame_label=lambda epsg: f"EPSG:{epsg}") -> T
             e_mm=float(e[i]) * 1000.0,
             n_mm=float(n[i]) * 1000.0,
             u_mm=float(u[i]) * 1000.0,
-            e95_mm=K95_1D * sigma_from_variance_m(p.cov_ee_m2) * 1000.0,
-            n95_mm=K95_1D * sigma_from_variance_m(p.cov_nn_m2) * 1000.0,
-            u95_mm=K95_1D * sigma_from_variance_m(p.cov_uu_m2) * 1000.0,
+            e95_mm=K95_1D * float(sigma_from_variance_m(p.cov_ee_m2)) * 1000.0,
+            n95_mm=K95_1D * float(sigma_from_variance_m(p.cov_nn_m2)) * 1000.0,
+            u95_mm=K95_1D * float(sigma_from_variance_m(p.cov_uu_m2)) * 1000.0,
             state=p.state,
             label=f"{p.state} position, epoch {p.epoch_yr:.3f}",
         )

@@ -204,6 +204,7 @@ def mark_clear_suspect(*, actor, code: str, note: str, expected_version: Any) ->
             )
         else:
             change = lift_suspicion(mark)  # the same change a newly published position makes
+            assert change is not None  # the mark is suspect (checked above)
             audit_record(
                 actor=actor,
                 action="mark_clear_suspect",

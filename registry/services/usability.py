@@ -77,7 +77,7 @@ def _not_for_use(state: str, headline: str, reason: str, caution: str, *, record
 
 
 #: Latest-visit findings that make a mark not for use: state, headline, reason, caution.
-_FINDING_WORDS = {
+_FINDING_WORDS: dict[str, tuple[str, str, str, str]] = {
     Finding.DISTURBED: (
         "last_visit_disturbed",
         "Last visit found it disturbed — not for use",
