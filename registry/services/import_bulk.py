@@ -45,16 +45,13 @@ PUBLISH_NOTE = "published by import"
 
 
 def batch_eligible(group: list[MarkRecord]) -> bool:
-    """Whether a new mark's rows can take the batch path.
+    """Whether a new mark's rows can take the batch path: no status step after its positions.
 
-    No status step after its positions, and at most one position: a second position of the same mark is
-    compared with the first by the movement check (registry.services.movement), which the position
-    services run one by one; a first position has nothing to compare with, and its checks are stored here.
+    A new mark's positions are in different frames (``check_rows_per_mark``), so none supersedes another;
+    each is compared by the movement check with the one published just before it (the newest published
+    position of the mark, ``registry.services.movement.comparison_target``), the first with nothing.
     """
-    return (
-        group[0].mark.get("status") in (None, "", MarkStatus.ACTIVE, MarkStatus.RETIRED)
-        and sum(1 for record in group if record.position is not None) <= 1
-    )
+    return group[0].mark.get("status") in (None, "", MarkStatus.ACTIVE, MarkStatus.RETIRED)
 
 
 def _errors_of(exc: ValidationError, record: MarkRecord) -> list[RowError]:
@@ -176,18 +173,22 @@ def create_marks_in_batches(
             position.decided_at = now
             all_positions.append(position)
     Position.objects.bulk_create(all_positions, batch_size=BATCH)
-    # The movement checks the position services store on proposing and on publishing: a new mark's only
-    # position has nothing to compare with (batch_eligible), so both say so.
+    # The movement checks the position services store on proposing and on publishing. Each position of a new
+    # mark is compared with the one published before it (the mark's newest; other frames, as the file holds
+    # one position per frame), the first with nothing; both stages compare the same two positions.
     checks: dict[int, dict[str, MovementCheck]] = {}
     rows_to_insert = []
-    for position in all_positions:
-        outcome = movement_compare(position=position, published=None)
-        by_stage = {
-            stage: movement_check_build(outcome=outcome, stage=stage, actor=actor)
-            for stage in (CheckStage.PROPOSED, CheckStage.PUBLISHED)
-        }
-        checks[position.pk] = by_stage
-        rows_to_insert.extend(by_stage.values())
+    for _mark, positions in planned:
+        previous = None
+        for _record, position in positions:
+            outcome = movement_compare(position=position, published=previous)
+            by_stage = {
+                stage: movement_check_build(outcome=outcome, stage=stage, actor=actor)
+                for stage in (CheckStage.PROPOSED, CheckStage.PUBLISHED)
+            }
+            checks[position.pk] = by_stage
+            rows_to_insert.extend(by_stage.values())
+            previous = position
     MovementCheck.objects.bulk_create(rows_to_insert, batch_size=BATCH)
 
     events: list[AuditEvent] = []

@@ -448,6 +448,7 @@ def mark_import(
     overwrite: bool = False,
     dry_run: bool = False,
     progress: Callable[[str, float], None] | None = None,
+    batch: bool = True,
 ) -> ImportSummary:
     """Import marks and their published positions from CSV or GeoJSON content.
 
@@ -473,6 +474,9 @@ def mark_import(
     progress
         Called with (what is being done, in words; fraction done 0..1) at each step and every few
         hundred rows before the writing starts (the writing itself is one transaction).
+    batch
+        Write new marks in batches (``registry.services.import_bulk``). False sends every mark through
+        the services one at a time: the reference the batch path is tested and measured against.
 
     Returns
     -------
@@ -545,8 +549,11 @@ def mark_import(
     note = f"import of {filename or 'a file'} (sha256 {sha256[:12]})"
     if summary.unversioned:
         note += f"; {len(summary.unversioned)} mark(s) applied without a version check (overwrite)"
-    batched = [(code, group) for code, group in groups.items() if code not in existing and batch_eligible(group)]
-    one_by_one = [(code, group) for code, group in groups.items() if code in existing or not batch_eligible(group)]
+    batched = [
+        (code, group) for code, group in groups.items() if batch and code not in existing and batch_eligible(group)
+    ]
+    in_batch = {code for code, _ in batched}
+    one_by_one = [(code, group) for code, group in groups.items() if code not in in_batch]
     total_rows = max(1, len(records))
     step(f"writing {len(groups):,} marks (all or nothing)", 0.3)
     try:

@@ -247,8 +247,8 @@ def test_progress_is_reported_in_words_before_the_writing(manager):
     assert all(0.0 <= f <= 1.0 for _, f in seen)
 
 
-def test_a_new_mark_with_two_positions_is_compared_by_the_services(manager):
-    """The second position of a new mark is checked against the first (services one by one, not the batch)."""
+def test_a_new_mark_with_two_positions_is_compared_in_the_batch(manager):
+    """The second position of a new mark is checked against the first, in the batch path as by the services."""
     text = csv_text(
         [
             "TWO-1,Invented,disk_concrete,7912,2021.5,45.2,-110.6,1500.5,4,5,9,demo",
