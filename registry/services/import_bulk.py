@@ -26,6 +26,7 @@ services as before (their rules: versions, supersession, suspicion, signed docum
 from __future__ import annotations
 
 from collections.abc import Callable, Iterable
+from types import SimpleNamespace
 from typing import Any
 
 from django.core.exceptions import ValidationError
@@ -33,11 +34,13 @@ from django.utils import timezone
 
 from registry.io.common import MarkRecord, RowError
 from registry.models import AuditEvent, CheckStage, Mark, MarkStatus, MovementCheck, Position, PositionState
+from registry.models.audit import chain_new_rows
 from registry.services.audit import json_safe, snapshot
 from registry.services.limits import check_text_limits
 from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
-from registry.services.movement import check_summary, movement_check_build, movement_compare
+from registry.services.movement import check_summary, movement_check_values, movement_compare
 from registry.services.positions import _parse_position
+from registry.services.rows_insert import insert_rows
 
 #: Rows per INSERT.
 BATCH = 500
@@ -101,19 +104,29 @@ def _new_position(record: MarkRecord, actor) -> Position:
     return position
 
 
+def _values(obj) -> dict[str, Any]:
+    """The column values of a validated, unsaved model object."""
+    return {f.attname: getattr(obj, f.attname) for f in obj._meta.concrete_fields if not f.primary_key}
+
+
 def _event(
     actor, action: str, obj, mark: Mark, *, before=None, after=None, note: str = "", repr_: str = ""
-) -> AuditEvent:
-    return AuditEvent(
-        actor=actor,
+) -> SimpleNamespace:
+    """An audit row as ``services.audit.audit_record`` writes it (chained and inserted by the caller)."""
+    return SimpleNamespace(
+        at=None,
+        actor_id=actor.pk if actor is not None else None,
         action=action,
         object_type=obj._meta.model_name,
         object_id=str(obj.pk),
         object_repr=(repr_ or str(obj))[:200],
-        mark=mark,
+        mark_id=mark.pk,
         before=json_safe(before) if before is not None else None,
         after=json_safe(after) if after is not None else None,
         note=note,
+        seq=None,
+        prev_hash="",
+        row_hash="",
     )
 
 
@@ -152,52 +165,64 @@ def create_marks_in_batches(
     if errors:
         return [], 0, errors
 
+    now = timezone.now()
     for mark, positions in planned:
+        mark.created_at = mark.updated_at = now
         if positions:  # the latest publication gives the search location (written with the mark)
             last = positions[-1][1]
             mark.search_lat_deg, mark.search_lon_deg = last.lat_deg, last.lon_deg
-    Mark.objects.bulk_create([mark for mark, _ in planned], batch_size=BATCH)
-    now = timezone.now()
+    marks = [mark for mark, _ in planned]
+    for mark, pk in zip(marks, insert_rows(Mark, [_values(mark) for mark in marks]), strict=True):
+        mark.pk = pk
     mark_snapshots = {}
+    # Positions are inserted proposed-then-published in one step: same row as propose + publish.
+    all_positions = []
     for mark, positions in planned:
         # mark_create's snapshot is taken before any position is published: no search location yet
         mark_snapshots[mark.pk] = snapshot(mark) | {"search_lat_deg": None, "search_lon_deg": None}
         for _record, position in positions:
             position.mark = mark
-    # Positions are inserted proposed-then-published in one step: same row as propose + publish.
-    all_positions = []
-    for _mark, positions in planned:
-        for _record, position in positions:
+            position.created_at = now
             position.state = PositionState.PUBLISHED
             position.decided_by = audit_actor
             position.decided_at = now
             all_positions.append(position)
-    Position.objects.bulk_create(all_positions, batch_size=BATCH)
+    ids = insert_rows(Position, [_values(position) for position in all_positions])
+    for position, pk in zip(all_positions, ids, strict=True):
+        position.pk = pk
     # The movement checks the position services store on proposing and on publishing. Each position of a new
     # mark is compared with the one published before it (the mark's newest; other frames, as the file holds
     # one position per frame), the first with nothing; both stages compare the same two positions.
-    checks: dict[int, dict[str, MovementCheck]] = {}
-    rows_to_insert = []
+    stages = (CheckStage.PROPOSED, CheckStage.PUBLISHED)
+    check_rows: list[dict[str, Any]] = []
     for _mark, positions in planned:
         previous = None
         for _record, position in positions:
-            outcome = movement_compare(position=position, published=previous)
-            by_stage = {
-                stage: movement_check_build(outcome=outcome, stage=stage, actor=actor)
-                for stage in (CheckStage.PROPOSED, CheckStage.PUBLISHED)
-            }
-            checks[position.pk] = by_stage
-            rows_to_insert.extend(by_stage.values())
+            values = movement_check_values(
+                outcome=movement_compare(position=position, published=previous), stage=stages[0], actor=actor
+            )
+            values["position_id"] = values.pop("position").pk
+            compared_with = values.pop("compared_with")
+            values["compared_with_id"] = compared_with.pk if compared_with is not None else None
+            created_by = values.pop("created_by")
+            values["created_by_id"] = created_by.pk if created_by is not None else None
+            values["created_at"] = now
+            check_rows.extend([values, values | {"stage": stages[1]}])
             previous = position
-    MovementCheck.objects.bulk_create(rows_to_insert, batch_size=BATCH)
+    check_ids = insert_rows(MovementCheck, check_rows)
+    summaries = {}
+    for values, pk in zip(check_rows, check_ids, strict=True):
+        summaries[(values["position_id"], values["stage"])] = check_summary(
+            SimpleNamespace(pk=pk, **({"statistic": None, "p_value": None} | values))
+        )
 
-    events: list[AuditEvent] = []
+    events: list[SimpleNamespace] = []
     for mark, positions in planned:
         events.append(_event(audit_actor, "mark_create", mark, mark, after=mark_snapshots[mark.pk]))
         lat = lon = None
         for _record, position in positions:
             proposed = snapshot(position) | {"state": PositionState.PROPOSED, "decided_by_id": None, "decided_at": None}
-            proposed |= check_summary(checks[position.pk][CheckStage.PROPOSED])
+            proposed |= summaries[(position.pk, stages[0])]
             events.append(
                 _event(
                     audit_actor,
@@ -215,10 +240,11 @@ def create_marks_in_batches(
                 "supersedes_id": None,
                 "search_lat_deg": lat,
                 "search_lon_deg": lon,
-                **check_summary(checks[position.pk][CheckStage.PUBLISHED]),
+                **summaries[(position.pk, stages[1])],
             }
             events.append(
                 _event(audit_actor, "position_publish", position, mark, before=before, after=after, note=PUBLISH_NOTE)
             )
-    AuditEvent.objects.bulk_create(events, batch_size=BATCH)
-    return [mark.code for mark, _ in planned], len(all_positions), []
+    chain_new_rows(events)
+    insert_rows(AuditEvent, [vars(event) for event in events])
+    return [mark.code for mark in marks], len(all_positions), []

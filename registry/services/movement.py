@@ -261,7 +261,12 @@ def movement_check_store(*, outcome: MovementOutcome, stage: str, actor) -> Move
 
 
 def movement_check_build(*, outcome: MovementOutcome, stage: str, actor) -> MovementCheck:
-    """The unsaved check row of ``outcome`` (the batch import saves many at once)."""
+    """The unsaved check row of ``outcome``."""
+    return MovementCheck(**movement_check_values(outcome=outcome, stage=stage, actor=actor))
+
+
+def movement_check_values(*, outcome: MovementOutcome, stage: str, actor) -> dict[str, Any]:
+    """The fields of ``outcome``'s check row (model field names; the batch import inserts many at once)."""
     r = outcome.result
     values: dict[str, Any] = {}
     if r is not None:
@@ -284,21 +289,21 @@ def movement_check_build(*, outcome: MovementOutcome, stage: str, actor) -> Move
             "added_sigma_north_m": outcome.added_sigma_enu_m[1],
             "added_sigma_up_m": outcome.added_sigma_enu_m[2],
         }
-    return MovementCheck(
-        position=outcome.position,
-        compared_with=outcome.compared_with,
-        stage=stage,
-        verdict=outcome.verdict,
-        level=outcome.level,
-        power=outcome.power,
-        above_threshold=outcome.above_threshold,
-        used_velocity=outcome.used_velocity,
-        frame_chain=outcome.frame_chain,
-        warnings=outcome.warnings,
-        reason=outcome.reason,
-        created_by=actor if getattr(actor, "is_authenticated", False) else None,
+    return {
+        "position": outcome.position,
+        "compared_with": outcome.compared_with,
+        "stage": stage,
+        "verdict": outcome.verdict,
+        "level": outcome.level,
+        "power": outcome.power,
+        "above_threshold": outcome.above_threshold,
+        "used_velocity": outcome.used_velocity,
+        "frame_chain": outcome.frame_chain,
+        "warnings": outcome.warnings,
+        "reason": outcome.reason,
+        "created_by": actor if getattr(actor, "is_authenticated", False) else None,
         **values,
-    )
+    }
 
 
 def latest_check(position_id: int, stage: str | None = None) -> MovementCheck | None:

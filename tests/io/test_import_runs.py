@@ -140,10 +140,14 @@ def test_the_batch_path_writes_the_audit_rows_the_services_write(manager):
 def test_a_batch_the_database_refuses_is_redone_mark_by_mark(manager, monkeypatch):
     from registry.services import import_bulk
 
-    def refuse(*args, **kwargs):
-        raise IntegrityError("refused for the test")
+    insert_rows = import_bulk.insert_rows
 
-    monkeypatch.setattr(import_bulk.Position.objects, "bulk_create", refuse)
+    def refuse(model, rows, **kwargs):
+        if model is Position:
+            raise IntegrityError("refused for the test")
+        return insert_rows(model, rows, **kwargs)
+
+    monkeypatch.setattr(import_bulk, "insert_rows", refuse)
     summary = mark_import(actor=manager, content=csv_text(good_rows(5)).encode(), filename="f.csv")
     assert summary.created == [f"RUN-{i:04d}" for i in range(5)]
     assert Position.objects.filter(state=PositionState.PUBLISHED).count() == 5
