@@ -38,7 +38,7 @@ from registry.models.audit import chain_new_rows
 from registry.services.audit import json_safe, snapshot
 from registry.services.limits import check_text_limits
 from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
-from registry.services.movement import check_summary, movement_check_values, movement_compare
+from registry.services.movement import check_summary, movement_check_values, movement_compare_many
 from registry.services.positions import _parse_position
 from registry.services.rows_insert import insert_rows
 
@@ -194,21 +194,22 @@ def create_marks_in_batches(
     # mark is compared with the one published before it (the mark's newest; other frames, as the file holds
     # one position per frame), the first with nothing; both stages compare the same two positions.
     stages = (CheckStage.PROPOSED, CheckStage.PUBLISHED)
-    check_rows: list[dict[str, Any]] = []
+    pairs = []
     for _mark, positions in planned:
         previous = None
         for _record, position in positions:
-            values = movement_check_values(
-                outcome=movement_compare(position=position, published=previous), stage=stages[0], actor=actor
-            )
-            values["position_id"] = values.pop("position").pk
-            compared_with = values.pop("compared_with")
-            values["compared_with_id"] = compared_with.pk if compared_with is not None else None
-            created_by = values.pop("created_by")
-            values["created_by_id"] = created_by.pk if created_by is not None else None
-            values["created_at"] = now
-            check_rows.extend([values, values | {"stage": stages[1]}])
+            pairs.append((position, previous))
             previous = position
+    check_rows: list[dict[str, Any]] = []
+    for outcome in movement_compare_many(pairs):
+        values = movement_check_values(outcome=outcome, stage=stages[0], actor=actor)
+        values["position_id"] = values.pop("position").pk
+        compared_with = values.pop("compared_with")
+        values["compared_with_id"] = compared_with.pk if compared_with is not None else None
+        created_by = values.pop("created_by")
+        values["created_by_id"] = created_by.pk if created_by is not None else None
+        values["created_at"] = now
+        check_rows.extend([values, values | {"stage": stages[1]}])
     check_ids = insert_rows(MovementCheck, check_rows)
     summaries = {}
     for values, pk in zip(check_rows, check_ids, strict=True):

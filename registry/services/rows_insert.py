@@ -14,6 +14,7 @@ business.
 
 from __future__ import annotations
 
+import sqlite3
 from collections.abc import Callable, Sequence
 from typing import Any
 
@@ -35,6 +36,25 @@ def _converter(field: models.Field, connection) -> Callable[[Any], Any]:
         return lambda v: v
     if isinstance(field, models.CharField | models.TextField):
         return lambda v: None if v is None else str(v)  # TextChoices members as plain text
+    if isinstance(field, models.DateTimeField):  # one time for a whole import: adapted once
+        cache: dict[Any, Any] = {}
+
+        def adapt(v):
+            if v not in cache:
+                cache[v] = field.get_db_prep_save(v, connection)
+            return cache[v]
+
+        return adapt
+    if isinstance(field, models.JSONField):  # the same list or dict in several rows is adapted once
+        seen: dict[int, tuple[Any, Any]] = {}
+
+        def adapt_json(v):
+            hit = seen.get(id(v))
+            if hit is None or hit[0] is not v:  # holding ``v`` keeps its id from being reused
+                hit = seen[id(v)] = (v, field.get_db_prep_save(v, connection))
+            return hit[1]
+
+        return adapt_json
     return lambda v: field.get_db_prep_save(v, connection)
 
 
@@ -55,34 +75,38 @@ def insert_rows(model: type[models.Model], rows: Sequence[dict[str, Any]], *, ba
     for f in fields:
         convert = _converter(f, connection)
         if getattr(f, "auto_now", False) or getattr(f, "auto_now_add", False):
-            columns.append((f.attname, None, lambda v, f=f: f.get_db_prep_save(v or now, connection)))
+            columns.append((f.attname, None, lambda v, convert=convert: convert(v or now)))
         else:
             columns.append((f.attname, f.get_default, convert))
     limit = connection.features.max_query_params
     if connection.vendor == "sqlite":
-        import sqlite3
-
         limit = connection.connection.getlimit(sqlite3.SQLITE_LIMIT_VARIABLE_NUMBER) if connection.connection else 999
     per_statement = max(1, min(batch, (limit or 65535) // len(columns)))
     qn = connection.ops.quote_name
     if connection.vendor == "postgresql":
-        return _copy_rows(connection, opts, fields, columns, defaults_of(columns), rows, batch)
+        with connection.wrap_database_errors:  # the driver's errors as Django's (IntegrityError, ...)
+            return _copy_rows(connection, opts, fields, columns, defaults_of(columns), rows, batch)
+    if connection.vendor != "sqlite":
+        objs = model.objects.using(using).bulk_create([model(**row) for row in rows], batch_size=batch)
+        return [obj.pk for obj in objs]
     head = f"INSERT INTO {qn(opts.db_table)} ({', '.join(qn(f.column) for f in fields)}) VALUES "
-    one = "(" + ", ".join(["%s"] * len(columns)) + ")"
+    one = "(" + ", ".join(["?"] * len(columns)) + ")"
     ids: list[int] = []
     defaults = defaults_of(columns)
     with connection.cursor() as cursor:
+        # sqlite3's own cursor, with its own placeholder: Django's wrapper rewrites each "%s" with a regular
+        # expression (a tenth of an import's time). Statements are then not in Django's query log.
+        raw = cursor.cursor
+        execute = sqlite3.Cursor.execute
         for start in range(0, len(rows), per_statement):
             chunk = rows[start : start + per_statement]
             params: list[Any] = []
             for row in chunk:
                 for name, _default, convert in columns:
                     params.append(convert(row[name] if name in row else defaults.get(name)))
-            cursor.execute(
-                head + ", ".join([one] * len(chunk)) + f" RETURNING {qn(opts.pk.column)}",
-                params,
-            )
-            ids.extend(r[0] for r in cursor.fetchall())
+            with connection.wrap_database_errors:  # the driver's errors as Django's (IntegrityError, ...)
+                execute(raw, head + ", ".join([one] * len(chunk)) + f" RETURNING {qn(opts.pk.column)}", params)
+                ids.extend(r[0] for r in raw.fetchall())
     return ids
 
 
