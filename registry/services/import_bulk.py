@@ -35,7 +35,7 @@ from django.utils import timezone
 from registry.io.common import MarkRecord, RowError
 from registry.models import AuditEvent, CheckStage, Mark, MarkStatus, MovementCheck, Position, PositionState
 from registry.models.audit import chain_new_rows
-from registry.services.audit import json_safe, snapshot
+from registry.services.audit import snapshot
 from registry.services.limits import check_text_limits
 from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
 from registry.services.movement import check_summary, movement_check_values, movement_compare_many
@@ -112,7 +112,11 @@ def _values(obj) -> dict[str, Any]:
 def _event(
     actor, action: str, obj, mark: Mark, *, before=None, after=None, note: str = "", repr_: str = ""
 ) -> SimpleNamespace:
-    """An audit row as ``services.audit.audit_record`` writes it (chained and inserted by the caller)."""
+    """An audit row as ``services.audit.audit_record`` writes it (chained and inserted by the caller).
+
+    ``before``/``after`` are built here from ``snapshot()`` and ``check_summary()`` values, which are
+    JSON-safe already (``json_safe`` would give them back unchanged: the equivalence test compares).
+    """
     return SimpleNamespace(
         at=None,
         actor_id=actor.pk if actor is not None else None,
@@ -121,8 +125,8 @@ def _event(
         object_id=str(obj.pk),
         object_repr=(repr_ or str(obj))[:200],
         mark_id=mark.pk,
-        before=json_safe(before) if before is not None else None,
-        after=json_safe(after) if after is not None else None,
+        before=before,
+        after=after,
         note=note,
         seq=None,
         prev_hash="",
