@@ -30,6 +30,7 @@ from types import SimpleNamespace
 from typing import Any
 
 from django.core.exceptions import ValidationError
+from django.db import models
 from django.utils import timezone
 
 from registry.io.common import MarkRecord, RowError
@@ -75,7 +76,50 @@ def _errors_of(exc: ValidationError, record: MarkRecord) -> list[RowError]:
     return out
 
 
-def _new_mark(group: list[MarkRecord]) -> Mark:
+#: Field kinds whose ``clean()`` (to_python, choices, null and blank, validators) depends on the value alone.
+_VALUE_ONLY = (models.CharField, models.TextField, models.FloatField, models.IntegerField, models.BooleanField)
+
+
+class _CleanMemo:
+    """``full_clean`` for the many new objects of a batch, leaving out what cannot fail or change.
+
+    For the field kinds of :data:`_VALUE_ONLY`, a (field, value) that passed ``clean()`` unchanged once
+    passes unchanged again, and a Python float in a float field without validators or choices always
+    does: those fields are excluded from the next objects' ``full_clean``. Every other field, and the
+    model's own ``clean()``, run as for a single object: the same rules and the same errors.
+    """
+
+    def __init__(self) -> None:
+        self.passed: set[tuple[str, type, Any]] = set()
+
+    def full_clean(self, obj: models.Model, exclude: tuple[str, ...] = ()) -> None:
+        skip = list(exclude)
+        checked = []
+        for f in obj._meta.concrete_fields:
+            if f.name in exclude or f.primary_key or not isinstance(f, _VALUE_ONLY):
+                continue
+            value = getattr(obj, f.attname)
+            if type(value) is float and isinstance(f, models.FloatField) and not f.validators and not f.choices:
+                skip.append(f.name)
+                continue
+            key = (f.name, type(value), value)
+            try:
+                known = key in self.passed
+            except TypeError:  # not hashable: cleaned every time
+                continue
+            if known:
+                skip.append(f.name)
+            else:
+                checked.append((f, key))
+        # Uniqueness was checked for the whole file (one query); the database enforces it and the constraints.
+        obj.full_clean(exclude=skip, validate_unique=False, validate_constraints=False)
+        for f, key in checked:
+            after = getattr(obj, f.attname)
+            if type(after) is key[1] and after == key[2]:
+                self.passed.add(key)
+
+
+def _new_mark(group: list[MarkRecord], memo: _CleanMemo) -> Mark:
     """The unsaved mark of a group's first row, validated as ``mark_create`` validates it."""
     data = dict(group[0].mark)
     data.pop("suspect_since", None)
@@ -87,20 +131,17 @@ def _new_mark(group: list[MarkRecord]) -> Mark:
         raise ValidationError({"status": _suspect_not_settable()})
     mark = Mark(**cleaned)
     check_text_limits(mark)
-    # Uniqueness was checked for the whole file (one query); the database enforces it and the constraints.
-    mark.full_clean(validate_unique=False, validate_constraints=False)
+    memo.full_clean(mark)
     return mark
 
 
-def _new_position(record: MarkRecord, actor) -> Position:
+def _new_position(record: MarkRecord, actor, memo: _CleanMemo) -> Position:
     """The unsaved position of a row, validated as ``position_propose`` validates it."""
     cleaned = _parse_position(dict(record.position))
     position = Position(created_by=actor, state=PositionState.PROPOSED, **cleaned)
     check_text_limits(position)
     # The actor was checked by require_ability; foreign keys are not looked up once per row.
-    position.full_clean(
-        exclude=["mark", "created_by", "decided_by", "superseded_by"], validate_unique=False, validate_constraints=False
-    )
+    memo.full_clean(position, exclude=("mark", "created_by", "decided_by", "superseded_by"))
     return position
 
 
@@ -148,16 +189,17 @@ def create_marks_in_batches(
     audit_actor = actor if getattr(actor, "is_authenticated", False) else None
     planned: list[tuple[Mark, list[tuple[MarkRecord, Position]]]] = []
     errors: list[RowError] = []
+    memo = _CleanMemo()
     rows = 0
     for _code, group in groups:
         at = group[0]
         try:
-            mark = _new_mark(group)
+            mark = _new_mark(group, memo)
             positions = []
             for record in group:
                 at = record
                 if record.position is not None:
-                    positions.append((record, _new_position(record, actor)))
+                    positions.append((record, _new_position(record, actor, memo)))
         except ValidationError as exc:
             errors.extend(_errors_of(exc, at))
             continue

@@ -44,3 +44,25 @@ def test_a_refused_row_raises_django_integrity_error_and_writes_nothing():
         with transaction.atomic():
             insert_rows(Position, [position_row(mark_id, 7912, 45.2), position_row(mark_id, 9989, 95.0)])
     assert Position.objects.count() == 0
+
+
+def test_the_batch_validation_memo_reports_what_full_clean_reports():
+    from django.core.exceptions import ValidationError
+
+    from registry.services.import_bulk import _CleanMemo
+
+    memo = _CleanMemo()
+    memo.full_clean(Mark(code="MEMO-1", name="Willow gate", monument="disk_concrete"))
+    memo.full_clean(Mark(code="MEMO-2", name="Willow gate", monument="disk_concrete"))  # remembered values
+    assert ("monument", str, "disk_concrete") in memo.passed
+    bad = [
+        Mark(code="MEMO-3", name="x" * 121, monument="disk_concrete"),
+        Mark(code="MEMO-4", name="Willow gate", monument="granite_block"),
+        Mark(code="bad code!", name="Willow gate", monument="disk_concrete"),
+    ]
+    for mark in bad:
+        with pytest.raises(ValidationError) as with_memo:
+            memo.full_clean(mark)
+        with pytest.raises(ValidationError) as plain:
+            mark.full_clean(validate_unique=False, validate_constraints=False)
+        assert with_memo.value.message_dict == plain.value.message_dict
