@@ -15,7 +15,8 @@ It prints:
   service's time for the whole file (parse, checks, writes, audit) as wall-clock time and as this
   process's CPU time (the machine may be shared: CPU time is what the import itself costs; on
   PostgreSQL the server's work is in another process), rows per second of each, and the number
-  of SQL statements (COPY streams included);
+  of SQL statements (on PostgreSQL those through Django plus COPY streams; on SQLite every
+  statement SQLite runs, transaction control included);
 - with ``--before-ref``, the same measured with the code of that git commit (``git archive`` into a
   scratch folder; the same migrations) in the same run, and the ratios after/before;
 - a second import of the same file with ``update`` (every row unchanged: the check path);
@@ -218,13 +219,21 @@ def worker(args) -> dict:
     user.groups.set([Group.objects.get(name="manager")])
 
     counter = [0]
+    if connection.vendor == "sqlite":
+        # every statement SQLite runs (the batch insert uses sqlite3's cursor directly); not trigger steps
+        def traced(sql: str) -> None:
+            if not sql.lstrip().startswith("--"):
+                counter[0] += 1
 
-    def count(execute, sql, params, many, context):
-        counter[0] += 1
-        return execute(sql, params, many, context)
+        connection.ensure_connection()
+        connection.connection.set_trace_callback(traced)
+    else:
 
-    connection.execute_wrappers.append(count)  # every statement through Django, for the whole run
-    if connection.vendor == "postgresql":
+        def count(execute, sql, params, many, context):
+            counter[0] += 1
+            return execute(sql, params, many, context)
+
+        connection.execute_wrappers.append(count)  # every statement through Django, for the whole run
         import psycopg
 
         copy = psycopg.Cursor.copy

@@ -32,6 +32,34 @@ def _same_position(stored: Position | None, wanted: dict[str, Any]) -> bool:
     return all(getattr(stored, name) == wanted.get(name) for name in POSITION_MODEL_FIELDS)
 
 
+def nothing_to_apply(group: list[MarkRecord], mark: Mark | None, published: dict[tuple[int, int], Position]) -> bool:
+    """Whether the rows of an existing mark (locked and read in this transaction) change nothing.
+
+    True when the row's version is the stored one (or absent), its fields and status are the stored
+    ones, neither the file nor the registry says suspect (those rows go through the suspicion rules),
+    and every position is the published one of its frame: :func:`apply_mark` would then change
+    nothing, so the import counts the mark unchanged without a statement.
+    """
+    if mark is None:
+        return False
+    first = group[0]
+    if first.version is not None and first.version != mark.version:
+        return False
+    data = first.mark
+    status = data.get("status")
+    if MarkStatus.SUSPECT in (status, mark.status) or data.get("suspect_since") or data.get("suspect_reason"):
+        return False
+    if status is not None and status != mark.status:
+        return False
+    for name, value in data.items():
+        if name not in ("code", "status") and getattr(mark, name) != value:
+            return False
+    return all(
+        record.position is None or _same_position(published.get((mark.pk, record.frame_epsg)), record.position)
+        for record in group
+    )
+
+
 def apply_mark(
     actor,
     group: list[MarkRecord],

@@ -56,7 +56,7 @@ from registry.io.marks_geojson import parse_marks_geojson
 from registry.models import AuditEvent
 from registry.roles import Ability
 from registry.services.access import require_ability
-from registry.services.import_apply import apply_mark
+from registry.services.import_apply import apply_mark, nothing_to_apply
 from registry.services.import_bulk import batch_eligible, create_marks_in_batches
 from registry.services.import_checks import concurrency_errors, existing_marks, lock_marks, published_positions
 from registry.services.import_report import (
@@ -216,6 +216,9 @@ def mark_import(
             published = published_positions(ids)
             for code, group in one_by_one:
                 at = [group[0]]
+                if code in existing and nothing_to_apply(group, locked.get(existing[code].pk), published):
+                    summary.unchanged.append(code)  # no statement, no savepoint: what apply_mark would find
+                    continue
                 try:
                     with transaction.atomic():
                         mark = existing.get(code)
