@@ -1,7 +1,7 @@
 """Benchmark: the marks CSV import (rows per second), an absurd header, and a large file of bad rows.
 
     .venv/bin/python benchmarks/bench_import.py [--rows 5000] [--backend both|postgis|sqlite]
-        [--sizes 1000,8000] [--runs 3] [--before-ref GIT_REF] [--before-sizes 1000]
+        [--sizes 1000,8000] [--runs 3] [--before-ref GIT_REF] [--before-sizes 1000] [--profile MARKS]
         [--pg-url postgres://postgres@127.0.0.1:5432/reg_infra_import]
         [--sqlite-path var/bench/import.sqlite3]
 
@@ -17,6 +17,8 @@ It prints:
   PostgreSQL the server's work is in another process), rows per second of each, and the number
   of SQL statements (on PostgreSQL those through Django plus COPY streams; on SQLite every
   statement SQLite runs, transaction control included);
+- with ``--profile MARKS``, one more import of that many marks under cProfile (to stderr: the
+  functions by cumulative and by own time);
 - with ``--before-ref``, the same measured with the code of that git commit (``git archive`` into a
   scratch folder; the same migrations) in the same run, and the ratios after/before;
 - a second import of the same file with ``update`` (every row unchanged: the check path);
@@ -78,6 +80,7 @@ def main() -> None:
     ap.add_argument("--before-ref", default="", help="git commit whose code is measured too (before/after)")
     ap.add_argument("--before-sizes", default="1000", help="sizes measured with the --before-ref code")
     ap.add_argument("--before-runs", type=int, default=3)
+    ap.add_argument("--profile", type=int, default=0, help="marks of one more import run under cProfile (stderr)")
     ap.add_argument("--code-root", default="", help=argparse.SUPPRESS)
     ap.add_argument("--timing-only", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--worker", action="store_true", help=argparse.SUPPRESS)
@@ -92,7 +95,7 @@ def main() -> None:
             extra = ["--sizes", args.before_sizes, "--runs", str(args.before_runs), "--code-root", str(before_root)]
             results.setdefault("before", {})[backend] = _run(args, backend, extra + ["--timing-only"])
         results.setdefault("after", {})[backend] = _run(
-            args, backend, ["--sizes", args.sizes, "--runs", str(args.runs)]
+            args, backend, ["--sizes", args.sizes, "--runs", str(args.runs), "--profile", str(args.profile)]
         )
     print()
     for backend, r in results["after"].items():
@@ -244,6 +247,17 @@ def worker(args) -> dict:
 
         psycopg.Cursor.copy = counted_copy
     timings = _timings(args, user, mark_import, counter)
+    if args.profile:
+        import cProfile
+        import pstats
+
+        text = good_csv(args.profile, prefix="PROF")
+        profile = cProfile.Profile()
+        profile.runcall(mark_import, actor=user, content=text.encode(), filename="profile.csv")
+        print(f"--- {connection.vendor}: profile of one import of {text.count(chr(10)) - 1:,} rows", file=sys.stderr)
+        stats = pstats.Stats(profile, stream=sys.stderr)
+        stats.sort_stats("cumulative").print_stats(30)
+        stats.sort_stats("tottime").print_stats(20)
     if args.timing_only:
         return {"timings": timings, "load_average_1min": os.getloadavg()[0]}
     exported = _export_all()
