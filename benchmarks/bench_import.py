@@ -1,16 +1,26 @@
 """Benchmark: the marks CSV import (rows per second), an absurd header, and a large file of bad rows.
 
     .venv/bin/python benchmarks/bench_import.py [--rows 5000] [--backend both|postgis|sqlite]
+        [--sizes 1000,8000] [--runs 3] [--before-ref GIT_REF] [--before-sizes 1000] [--profile MARKS]
         [--pg-url postgres://postgres@127.0.0.1:5432/reg_infra_import]
         [--sqlite-path var/bench/import.sqlite3]
 
 Each backend runs in its own process against a scratch database that is emptied of marks,
 positions and audit rows first (never the working database). The file is invented: ``--rows``
 new marks, each with one position in EPSG:7912 and a second one in EPSG:6319 on every fourth
-mark (so some marks take two rows), written the way the export writes them. It prints:
+mark (so some marks take two rows: 1,000 marks make 1,250 rows), written the way the export writes them.
+It prints:
 
-- the service's time for the whole file (parse, checks, writes, audit) and rows per second,
-  with the number of SQL queries;
+- for each of ``--sizes`` (marks per file), ``--runs`` imports of a new file each (medians): the
+  service's time for the whole file (parse, checks, writes, audit) as wall-clock time and as this
+  process's CPU time (the machine may be shared: CPU time is what the import itself costs; on
+  PostgreSQL the server's work is in another process), rows per second of each, and the number
+  of SQL statements (on PostgreSQL those through Django plus COPY streams; on SQLite every
+  statement SQLite runs, transaction control included);
+- with ``--profile MARKS``, one more import of that many marks under cProfile (to stderr: the
+  functions by cumulative and by own time);
+- with ``--before-ref``, the same measured with the code of that git commit (``git archive`` into a
+  scratch folder; the same migrations) in the same run, and the ratios after/before;
 - a second import of the same file with ``update`` (every row unchanged: the check path);
 - that the audit hash chain still verifies (``verify_audit``);
 - the time to refuse a header of 100,000 columns;
@@ -65,41 +75,49 @@ def main() -> None:
     ap.add_argument("--backend", choices=["both", "postgis", "sqlite"], default="both")
     ap.add_argument("--pg-url", default="postgres://postgres@127.0.0.1:5432/reg_infra_import")
     ap.add_argument("--sqlite-path", default=str(ROOT / "var" / "bench" / "import.sqlite3"))
+    ap.add_argument("--sizes", default="1000,8000", help="marks per file, comma-separated (1,000 marks = 1,250 rows)")
+    ap.add_argument("--runs", type=int, default=3, help="imports per size (medians)")
+    ap.add_argument("--before-ref", default="", help="git commit whose code is measured too (before/after)")
+    ap.add_argument("--before-sizes", default="1000", help="sizes measured with the --before-ref code")
+    ap.add_argument("--before-runs", type=int, default=3)
+    ap.add_argument("--profile", type=int, default=0, help="marks of one more import run under cProfile (stderr)")
+    ap.add_argument("--code-root", default="", help=argparse.SUPPRESS)
+    ap.add_argument("--timing-only", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--worker", action="store_true", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.worker:
         print(json.dumps(worker(args)))
         return
-    results = {}
+    results: dict[str, dict] = {}
+    before_root = _extract(args.before_ref) if args.before_ref else None
     for backend in ["postgis", "sqlite"] if args.backend == "both" else [args.backend]:
-        env = dict(os.environ)
-        env.pop("REGISTRY_PRODUCTION", None)
-        env["REGISTRY_TASK_BACKEND"] = "immediate"  # queued imports run at once in this process
-        if backend == "postgis":
-            import psycopg
-
-            dbname = args.pg_url.rsplit("/", 1)[1]
-            with psycopg.connect(args.pg_url.rsplit("/", 1)[0] + "/postgres", autocommit=True) as conn:
-                conn.execute(f'DROP DATABASE IF EXISTS "{dbname}"')  # a scratch database, made anew
-                conn.execute(f'CREATE DATABASE "{dbname}"')
-            env["DATABASE_URL"] = args.pg_url
-        else:
-            Path(args.sqlite_path).parent.mkdir(parents=True, exist_ok=True)
-            Path(args.sqlite_path).unlink(missing_ok=True)  # a scratch database, made anew
-            env["DATABASE_URL"] = f"sqlite:///{Path(args.sqlite_path).resolve()}"
-        cmd = [sys.executable, __file__, "--worker", "--backend", backend, "--rows", str(args.rows)]
-        cmd += ["--wide-columns", str(args.wide_columns)]
-        out = subprocess.run(cmd, env=env, cwd=ROOT, capture_output=True, text=True)
-        sys.stderr.write(out.stderr)
-        if out.returncode:
-            raise SystemExit(f"the {backend} run failed (exit {out.returncode})")
-        results[backend] = json.loads(out.stdout.strip().splitlines()[-1])
-    print()
-    for backend, r in results.items():
-        print(f"{backend}: a valid file of {r['rows']:,} rows ({r['marks']:,} new marks)")
-        print(
-            f"  import (create)          {r['create_s']:8.2f} s  {r['create_rows_s']:8.0f} rows/s  {r['create_queries']:>7} queries"
+        if before_root is not None:
+            extra = ["--sizes", args.before_sizes, "--runs", str(args.before_runs), "--code-root", str(before_root)]
+            results.setdefault("before", {})[backend] = _run(args, backend, extra + ["--timing-only"])
+        results.setdefault("after", {})[backend] = _run(
+            args, backend, ["--sizes", args.sizes, "--runs", str(args.runs), "--profile", str(args.profile)]
         )
+    print()
+    for backend, r in results["after"].items():
+        print(
+            f"{backend}: import of new marks, medians of {args.runs} runs (before: {args.before_ref or 'not measured'})"
+        )
+        print(f"  {'rows':>7} {'code':7} {'wall s':>8} {'rows/s':>8} {'CPU s':>8} {'rows/s':>8} {'SQL':>6}")
+        before = results.get("before", {}).get(backend, {"timings": {}})
+        for size, t in r["timings"].items():
+            for label, m in (("before", before["timings"].get(size)), ("after", t)):
+                if m is None:
+                    continue
+                print(
+                    f"  {m['rows']:>7,} {label:7} {m['wall_s']:8.2f} {m['wall_rows_s']:8.0f} {m['cpu_s']:8.2f} "
+                    f"{m['cpu_rows_s']:8.0f} {m['queries']:>6}"
+                )
+            b = before["timings"].get(size)
+            if b is not None:
+                print(
+                    f"  {'':>7} {'ratio':7} {'':8} {t['wall_rows_s'] / b['wall_rows_s']:7.1f}× {'':8} "
+                    f"{t['cpu_rows_s'] / b['cpu_rows_s']:7.1f}×"
+                )
         print(
             f"  same file with update    {r['update_s']:8.2f} s  {r['update_rows_s']:8.0f} rows/s  {r['update_queries']:>7} queries"
         )
@@ -114,9 +132,75 @@ def main() -> None:
     print(json.dumps(results, indent=2))
 
 
+def _extract(ref: str) -> Path:
+    """The ``registry`` package of commit ``ref``, in a scratch folder (for the before measurement)."""
+    import tempfile
+
+    root = Path(tempfile.mkdtemp(prefix="bench-import-before-"))
+    archive = subprocess.run(["git", "archive", ref, "registry"], cwd=ROOT, capture_output=True, check=True).stdout
+    subprocess.run(["tar", "-x", "-C", str(root)], input=archive, check=True)
+    return root
+
+
+def _run(args, backend: str, extra: list[str]) -> dict:
+    env = dict(os.environ)
+    env.pop("REGISTRY_PRODUCTION", None)
+    env["REGISTRY_TASK_BACKEND"] = "immediate"  # queued imports run at once in this process
+    if backend == "postgis":
+        import psycopg
+
+        dbname = args.pg_url.rsplit("/", 1)[1]
+        with psycopg.connect(args.pg_url.rsplit("/", 1)[0] + "/postgres", autocommit=True) as conn:
+            conn.execute(f'DROP DATABASE IF EXISTS "{dbname}"')  # a scratch database, made anew
+            conn.execute(f'CREATE DATABASE "{dbname}"')
+        env["DATABASE_URL"] = args.pg_url
+    else:
+        Path(args.sqlite_path).parent.mkdir(parents=True, exist_ok=True)
+        Path(args.sqlite_path).unlink(missing_ok=True)  # a scratch database, made anew
+        env["DATABASE_URL"] = f"sqlite:///{Path(args.sqlite_path).resolve()}"
+    cmd = [sys.executable, __file__, "--worker", "--backend", backend, "--rows", str(args.rows)]
+    cmd += ["--wide-columns", str(args.wide_columns), *extra]
+    out = subprocess.run(cmd, env=env, cwd=ROOT, capture_output=True, text=True)
+    sys.stderr.write(out.stderr)
+    if out.returncode:
+        raise SystemExit(f"the {backend} run failed (exit {out.returncode})")
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def _timings(args, user, mark_import, counter) -> dict:
+    """Median wall and CPU time of ``--runs`` imports of a new file of each size."""
+    import statistics
+
+    out = {}
+    for size in [int(x) for x in args.sizes.split(",") if x.strip()]:
+        runs = []
+        for k in range(args.runs):
+            text = good_csv(size, prefix=f"S{size}R{k}")
+            counter[0] = 0
+            t0, c0 = time.perf_counter(), time.process_time()
+            summary = mark_import(actor=user, content=text.encode(), filename=f"bench-{size}-{k}.csv")
+            runs.append((time.perf_counter() - t0, time.process_time() - c0, counter[0]))
+            assert len(summary.created) == size, summary
+        rows = text.count("\n") - 1
+        wall = statistics.median(r[0] for r in runs)
+        cpu = statistics.median(r[1] for r in runs)
+        out[str(size)] = {
+            "rows": rows,
+            "runs": len(runs),
+            "wall_s": wall,
+            "cpu_s": cpu,
+            "wall_rows_s": rows / wall,
+            "cpu_rows_s": rows / cpu,
+            "queries": int(statistics.median(r[2] for r in runs)),
+            "each_wall_s": [r[0] for r in runs],
+            "each_cpu_s": [r[1] for r in runs],
+        }
+    return out
+
+
 def worker(args) -> dict:
     os.environ.setdefault("DJANGO_SETTINGS_MODULE", "registry.settings")
-    sys.path.insert(0, str(ROOT))
+    sys.path.insert(0, args.code_root or str(ROOT))
     import django
 
     django.setup()
@@ -126,7 +210,6 @@ def worker(args) -> dict:
     from django.core.management import call_command
     from django.db import connection
     from django.test import Client
-    from django.test.utils import CaptureQueriesContext
 
     from registry.models import AuditEvent, Mark
     from registry.roles import ensure_roles
@@ -138,23 +221,52 @@ def worker(args) -> dict:
     user, _ = User.objects.get_or_create(username="bench-manager")
     user.groups.set([Group.objects.get(name="manager")])
 
-    text = good_csv(args.rows)
-    n_rows = text.count("\n") - 1
-    with CaptureQueriesContext(connection) as ctx:
-        t0 = time.perf_counter()
-        summary = mark_import(actor=user, content=text.encode(), filename="bench.csv")
-        create_s = time.perf_counter() - t0
-    create_queries = len(ctx.captured_queries)
-    assert len(summary.created) == args.rows, summary
+    counter = [0]
+    if connection.vendor == "sqlite":
+        # every statement SQLite runs (the batch insert uses sqlite3's cursor directly); not trigger steps
+        def traced(sql: str) -> None:
+            if not sql.lstrip().startswith("--"):
+                counter[0] += 1
 
-    from registry.io.marks_csv import parse_marks_csv
+        connection.ensure_connection()
+        connection.connection.set_trace_callback(traced)
+    else:
 
+        def count(execute, sql, params, many, context):
+            counter[0] += 1
+            return execute(sql, params, many, context)
+
+        connection.execute_wrappers.append(count)  # every statement through Django, for the whole run
+        import psycopg
+
+        copy = psycopg.Cursor.copy
+
+        def counted_copy(self, *a, **k):
+            counter[0] += 1
+            return copy(self, *a, **k)
+
+        psycopg.Cursor.copy = counted_copy
+    timings = _timings(args, user, mark_import, counter)
+    if args.profile:
+        import cProfile
+        import pstats
+
+        text = good_csv(args.profile, prefix="PROF")
+        profile = cProfile.Profile()
+        profile.runcall(mark_import, actor=user, content=text.encode(), filename="profile.csv")
+        print(f"--- {connection.vendor}: profile of one import of {text.count(chr(10)) - 1:,} rows", file=sys.stderr)
+        stats = pstats.Stats(profile, stream=sys.stderr)
+        stats.sort_stats("cumulative").print_stats(30)
+        stats.sort_stats("tottime").print_stats(20)
+    if args.timing_only:
+        return {"timings": timings, "load_average_1min": os.getloadavg()[0]}
     exported = _export_all()
-    with CaptureQueriesContext(connection) as ctx:
-        t0 = time.perf_counter()
-        mark_import(actor=user, content=exported.encode(), filename="bench-again.csv", update=True)
-        update_s = time.perf_counter() - t0
-    update_queries = len(ctx.captured_queries)
+    counter[0] = 0
+    t0 = time.perf_counter()
+    mark_import(actor=user, content=exported.encode(), filename="bench-again.csv", update=True)
+    update_s = time.perf_counter() - t0
+    update_queries = counter[0]
+    n_rows = exported.count("\n") - 1
 
     out = io.StringIO()
     try:
@@ -174,7 +286,6 @@ def worker(args) -> dict:
     except ImportRejected as exc:
         wide_codes = sorted({e.code for e in exc.errors})
     wide_s = time.perf_counter() - t0
-    del parse_marks_csv
 
     bad = bad_csv(args.rows * 10)
     t0 = time.perf_counter()
@@ -195,11 +306,8 @@ def worker(args) -> dict:
     )
 
     return {
+        "timings": timings,
         "rows": n_rows,
-        "marks": args.rows,
-        "create_s": create_s,
-        "create_rows_s": n_rows / create_s,
-        "create_queries": create_queries,
         "update_s": update_s,
         "update_rows_s": n_rows / update_s,
         "update_queries": update_queries,

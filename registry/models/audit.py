@@ -169,6 +169,19 @@ def _link(events: list[AuditEvent], using: str) -> None:
         prev = event.row_hash
 
 
+def chain_new_rows(events: list[Any], using: str = "default") -> None:
+    """Chain new rows that the caller inserts itself (``registry.services.import_bulk``), in order.
+
+    ``events`` may be unsaved ``AuditEvent`` objects or any objects with the same attributes (``at``,
+    ``actor_id``, ``action``, ``object_type``, ``object_id``, ``object_repr``, ``mark_id``, ``before``,
+    ``after``, ``note``); ``seq``, ``prev_hash``, ``row_hash`` (and ``at`` when None) are set. Takes
+    the chain's lock: call inside the transaction that inserts them, and insert them before it commits.
+    """
+    if not transaction.get_connection(using).in_atomic_block:
+        raise AuditTrailError("Chain new audit rows inside the transaction that inserts them.")
+    _link(events, using)
+
+
 class AuditEventManager(models.Manager):
     def bulk_create(self, objs, *args, **kwargs):
         """Chain the new rows (in the given order) before inserting them, under the chain's lock."""

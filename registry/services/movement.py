@@ -30,6 +30,7 @@ Settings (``settings.REGISTRY``): ``MOVEMENT_LEVEL`` (α, default 0.05), ``MOVEM
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -152,7 +153,76 @@ def comparison_target(position: Position) -> Position | None:
 
 def movement_compare(*, position: Position, published: Position | None) -> MovementOutcome:
     """Compare ``position`` (saved or not) with ``published`` (see the module docstring). Reads nothing else."""
+    return movement_compare_many([(position, published)])[0]
+
+
+def movement_compare_many(pairs: list[tuple[Position, Position | None]]) -> list[MovementOutcome]:
+    """:func:`movement_compare` for many (position, published) pairs: one vectorised test for all of them.
+
+    Each pair's frame change stays its own (the transformation PROJ picks depends on the point's area);
+    the statistical test (:func:`registry.geodesy.movement.movement_test`) runs once on the stacked
+    differences and covariances, and gives each pair the values it would give it alone.
+    """
     conf = movement_settings()
+    outcomes: list[MovementOutcome] = []
+    ready: list[tuple[MovementOutcome, np.ndarray, np.ndarray, np.ndarray]] = []
+    for position, published in pairs:
+        prepared = _prepare(position, published, conf)
+        if isinstance(prepared, MovementOutcome):
+            outcomes.append(prepared)
+        else:
+            outcomes.append(prepared[0])
+            ready.append(prepared)
+    results: list[MovementResult | None] | None = None
+    if len(ready) > 1:
+        try:
+            stacked = movement_test(
+                np.stack([r[1] for r in ready]), np.stack([r[2] for r in ready]), level=conf.level, power=conf.power
+            )
+            results = [_one(stacked, i) for i in range(len(ready))]
+        except ComputationInputError:
+            results = None  # one pair cannot be tested: test each alone, so that only that one says so
+    if results is None:
+        results = []
+        for outcome, d, cov, _added in ready:
+            try:
+                results.append(movement_test(d, cov, level=conf.level, power=conf.power))
+            except ComputationInputError as exc:
+                outcome.reason = f"The test could not be computed: {exc}"
+                results.append(None)
+    for (outcome, _d, _cov, added), result in zip(ready, results, strict=True):
+        if result is not None:
+            _finish(outcome, result, added, conf)
+    return outcomes
+
+
+def _one(r: MovementResult, i: int) -> MovementResult:
+    """Element ``i`` of a stacked result, with the Python scalars a single test gives."""
+    return MovementResult(
+        level=r.level,
+        power=r.power,
+        statistic=float(r.statistic[i]),
+        dof=r.dof,
+        critical=r.critical,
+        p_value=float(r.p_value[i]),
+        verdict=str(r.verdict[i]),
+        statistic_horizontal=float(r.statistic_horizontal[i]),
+        p_value_horizontal=float(r.p_value_horizontal[i]),
+        moved_horizontal=bool(r.moved_horizontal[i]),
+        statistic_vertical=float(r.statistic_vertical[i]),
+        p_value_vertical=float(r.p_value_vertical[i]),
+        moved_vertical=bool(r.moved_vertical[i]),
+        lambda0=r.lambda0,
+        detectable_enu_m=r.detectable_enu_m[i],
+        d_enu_m=r.d_enu_m[i],
+        cov_m2=r.cov_m2[i],
+    )
+
+
+def _prepare(
+    position: Position, published: Position | None, conf: MovementSettings
+) -> MovementOutcome | tuple[MovementOutcome, np.ndarray, np.ndarray, np.ndarray]:
+    """The outcome so far, with the difference, its covariance and the added σ; or the final outcome."""
     outcome = MovementOutcome(
         position=position,
         compared_with=published,
@@ -233,10 +303,13 @@ def movement_compare(*, position: Position, published: Position | None) -> Movem
             observed_epoch_yr=position.epoch_yr,
         )
         cov = cov_enu_m2(published) + np.diag(added**2) + cov_enu_m2(position)
-        result = movement_test(d, cov, level=conf.level, power=conf.power)
     except ComputationInputError as exc:
         outcome.reason = f"The test could not be computed: {exc}"
         return outcome
+    return outcome, np.asarray(d, dtype=float), cov, added
+
+
+def _finish(outcome: MovementOutcome, result: MovementResult, added: np.ndarray, conf: MovementSettings) -> None:
     outcome.result = result
     outcome.verdict = result.verdict
     outcome.added_sigma_enu_m = (float(added[0]), float(added[1]), float(added[2]))
@@ -250,7 +323,6 @@ def movement_compare(*, position: Position, published: Position | None) -> Movem
             f"{conf.detectable_h_m * 1000:g} mm horizontally and {conf.detectable_v_m * 1000:g} mm vertically. "
             "A velocity for the mark, or a published position closer in time, makes the check sharper."
         )
-    return outcome
 
 
 def movement_check_store(*, outcome: MovementOutcome, stage: str, actor) -> MovementCheck:
@@ -261,7 +333,12 @@ def movement_check_store(*, outcome: MovementOutcome, stage: str, actor) -> Move
 
 
 def movement_check_build(*, outcome: MovementOutcome, stage: str, actor) -> MovementCheck:
-    """The unsaved check row of ``outcome`` (the batch import saves many at once)."""
+    """The unsaved check row of ``outcome``."""
+    return MovementCheck(**movement_check_values(outcome=outcome, stage=stage, actor=actor))
+
+
+def movement_check_values(*, outcome: MovementOutcome, stage: str, actor) -> dict[str, Any]:
+    """The fields of ``outcome``'s check row (model field names; the batch import inserts many at once)."""
     r = outcome.result
     values: dict[str, Any] = {}
     if r is not None:
@@ -284,21 +361,21 @@ def movement_check_build(*, outcome: MovementOutcome, stage: str, actor) -> Move
             "added_sigma_north_m": outcome.added_sigma_enu_m[1],
             "added_sigma_up_m": outcome.added_sigma_enu_m[2],
         }
-    return MovementCheck(
-        position=outcome.position,
-        compared_with=outcome.compared_with,
-        stage=stage,
-        verdict=outcome.verdict,
-        level=outcome.level,
-        power=outcome.power,
-        above_threshold=outcome.above_threshold,
-        used_velocity=outcome.used_velocity,
-        frame_chain=outcome.frame_chain,
-        warnings=outcome.warnings,
-        reason=outcome.reason,
-        created_by=actor if getattr(actor, "is_authenticated", False) else None,
+    return {
+        "position": outcome.position,
+        "compared_with": outcome.compared_with,
+        "stage": stage,
+        "verdict": outcome.verdict,
+        "level": outcome.level,
+        "power": outcome.power,
+        "above_threshold": outcome.above_threshold,
+        "used_velocity": outcome.used_velocity,
+        "frame_chain": outcome.frame_chain,
+        "warnings": outcome.warnings,
+        "reason": outcome.reason,
+        "created_by": actor if getattr(actor, "is_authenticated", False) else None,
         **values,
-    )
+    }
 
 
 def latest_check(position_id: int, stage: str | None = None) -> MovementCheck | None:
@@ -352,8 +429,8 @@ def stored_check_dict(check: MovementCheck) -> dict[str, Any]:
     }
 
 
-def check_summary(check: MovementCheck) -> dict[str, Any]:
-    """What the audit row keeps of a stored check."""
+def check_summary(check: MovementCheck | SimpleNamespace) -> dict[str, Any]:
+    """What the audit row keeps of a stored check (a saved one, or the values a batch inserted with its id)."""
     return {
         "movement_check_id": check.pk,
         "movement_verdict": check.verdict,

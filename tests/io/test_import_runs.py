@@ -140,10 +140,14 @@ def test_the_batch_path_writes_the_audit_rows_the_services_write(manager):
 def test_a_batch_the_database_refuses_is_redone_mark_by_mark(manager, monkeypatch):
     from registry.services import import_bulk
 
-    def refuse(*args, **kwargs):
-        raise IntegrityError("refused for the test")
+    insert_rows = import_bulk.insert_rows
 
-    monkeypatch.setattr(import_bulk.Position.objects, "bulk_create", refuse)
+    def refuse(model, rows, **kwargs):
+        if model is Position:
+            raise IntegrityError("refused for the test")
+        return insert_rows(model, rows, **kwargs)
+
+    monkeypatch.setattr(import_bulk, "insert_rows", refuse)
     summary = mark_import(actor=manager, content=csv_text(good_rows(5)).encode(), filename="f.csv")
     assert summary.created == [f"RUN-{i:04d}" for i in range(5)]
     assert Position.objects.filter(state=PositionState.PUBLISHED).count() == 5
@@ -247,8 +251,8 @@ def test_progress_is_reported_in_words_before_the_writing(manager):
     assert all(0.0 <= f <= 1.0 for _, f in seen)
 
 
-def test_a_new_mark_with_two_positions_is_compared_by_the_services(manager):
-    """The second position of a new mark is checked against the first (services one by one, not the batch)."""
+def test_a_new_mark_with_two_positions_is_compared_in_the_batch(manager):
+    """The second position of a new mark is checked against the first, in the batch path as by the services."""
     text = csv_text(
         [
             "TWO-1,Invented,disk_concrete,7912,2021.5,45.2,-110.6,1500.5,4,5,9,demo",

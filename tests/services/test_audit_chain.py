@@ -200,6 +200,21 @@ def test_runtime_role_writes_rows_but_cannot_rewrite_the_trail(manager, runtime_
     assert audit_verify_chain().intact
 
 
+def test_the_batch_import_works_as_the_runtime_role(manager, runtime_role):
+    """The import's batch path takes ids from the sequences and COPYs rows: INSERT and sequence USAGE suffice."""
+    from registry.services.imports import mark_import
+
+    header = "code,name,monument,frame_epsg,epoch_yr,lat_deg,lon_deg,h_m,sigma_e_mm,sigma_n_mm,sigma_u_mm,source"
+    rows = [f"RTB-{i},Invented,disk_concrete,7912,2021.5,45.2{i},-110.6,1500.5,4,5,9,demo" for i in range(3)]
+    with connection.cursor() as cur:
+        cur.execute(f"SET LOCAL ROLE {runtime_role}")
+        summary = mark_import(actor=manager, content="\n".join([header, *rows]) + "\n", filename="rt.csv")
+        cur.execute("RESET ROLE")
+    assert summary.created == ["RTB-0", "RTB-1", "RTB-2"]
+    assert AuditEvent.objects.filter(action="position_publish").count() == 3
+    assert audit_verify_chain().intact
+
+
 def test_the_owner_cannot_truncate_the_trail_by_accident(manager):
     _skip_unless_postgresql()
     make_mark(manager, "TR-1")
