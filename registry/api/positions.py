@@ -35,12 +35,8 @@ from registry.selectors.positions import mark_positions, position_for_display
 from registry.selectors.proposals import proposals_queue
 from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.combination import positions_combine, positions_velocity
-from registry.services.movement import (
-    comparison_target,
-    latest_check,
-    movement_compare,
-    stored_check_dict,
-)
+from registry.services.movement import comparison_target, movement_compare
+from registry.services.movement_checks import latest_check, stored_check_dict
 from registry.services.positions import (
     AS_PROPOSED,
     position_propose,

@@ -39,7 +39,8 @@ from registry.models.audit import chain_new_rows
 from registry.services.audit import snapshot
 from registry.services.limits import check_text_limits
 from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
-from registry.services.movement import check_summary, movement_check_values, movement_compare_many
+from registry.services.movement import movement_compare_many
+from registry.services.movement_checks import check_summary, movement_check_values
 from registry.services.positions import _parse_position
 from registry.services.rows_insert import insert_rows
 

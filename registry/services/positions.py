@@ -40,13 +40,8 @@ from registry.services.access import access_mark_by_code, access_position_by_id
 from registry.services.audit import audit_record, snapshot
 from registry.services.documents import documents_mark_changed
 from registry.services.limits import check_text_limits
-from registry.services.movement import (
-    check_summary,
-    comparison_target,
-    latest_check,
-    movement_check_store,
-    movement_compare,
-)
+from registry.services.movement import comparison_target, movement_compare
+from registry.services.movement_checks import check_summary, latest_check, movement_check_store
 from registry.services.suspect import lift_suspicion, mark_make_suspect
 from registry.services.usability import assess
 

@@ -19,7 +19,7 @@ from registry.selectors.mark_page import position_of_mark
 from registry.selectors.positions import positions_in_states
 from registry.services.access import access_mark_by_code
 from registry.services.combination import USABLE_STATES, positions_combine, positions_velocity
-from registry.services.movement import latest_check
+from registry.services.movement_checks import latest_check
 from registry.services.occupation_batch import movement_words
 from registry.web.views import ability_required
 

@@ -50,7 +50,8 @@ from registry.models.audit import GENESIS_HASH, row_hash_of
 from registry.models.marks import position_history_delete_allowed
 from registry.roles import ensure_roles
 from registry.services.audit import snapshot
-from registry.services.movement import CheckStage, comparison_target, movement_check_store, movement_compare
+from registry.services.movement import comparison_target, movement_compare
+from registry.services.movement_checks import CheckStage, movement_check_store
 from registry.services.suspect import suspects_from_history
 
 REGISTRY_START = dt.datetime(2011, 6, 1, tzinfo=dt.UTC)

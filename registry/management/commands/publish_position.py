@@ -16,7 +16,7 @@ from django.core.management.base import BaseCommand, CommandError
 
 from registry.errors import RegistryError
 from registry.management.commands.set_roles import actor_by_username
-from registry.services.movement import latest_check, stored_check_dict
+from registry.services.movement_checks import latest_check, stored_check_dict
 from registry.services.positions import AS_PROPOSED, position_publish
 
 
