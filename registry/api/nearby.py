@@ -69,6 +69,11 @@ class NearbyQuery(serializers.Serializer):
         help_text="Only marks with a published position (in frame_epsg, if given) whose FGDC horizontal 95 % "
         "accuracy is at most this value, m.",
     )
+    usable_only = serializers.BooleanField(
+        required=False,
+        help_text="Only usable marks (status and latest visit, the rule the pages use), applied before the "
+        "limit: limit=N gives the N nearest usable marks.",
+    )
 
 
 class NearbyMarkOut(serializers.Serializer):
@@ -98,11 +103,15 @@ class NearbySearchOut(serializers.Serializer):
 class NearbyOut(serializers.Serializer):
     search = NearbySearchOut()
     count = serializers.IntegerField()
+    left_out_not_usable = serializers.IntegerField(
+        help_text="With usable_only: marks not for use passed over (nearer than the last mark returned, or all "
+        "within the radius when fewer than the limit were found); 0 otherwise."
+    )
     marks = NearbyMarkOut(many=True)
     cautions = serializers.ListField(child=serializers.CharField())
 
 
-_FILTERS = ("status", "stability", "frame_epsg", "intact_visit_within_yr", "accuracy_class_max_m")
+_FILTERS = ("status", "stability", "frame_epsg", "intact_visit_within_yr", "accuracy_class_max_m", "usable_only")
 
 
 class MarksNearView(APIView):
@@ -132,12 +141,10 @@ class MarksNearView(APIView):
         query.is_valid(raise_exception=True)
         q = query.validated_data
         filters = {k: q[k] for k in _FILTERS if k in q}
-        found = [
-            m.as_dict()
-            for m in marks_near(
-                lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
-            )
-        ]
+        nearby = marks_near(
+            lat_deg=q["lat"], lon_deg=q["lon"], radius_m=q["radius_km"] * 1000.0, limit=q["limit"], **filters
+        )
+        found = [m.as_dict() for m in nearby]
         return {
             "search": {
                 "lat_deg": round(q["lat"], 9),
@@ -149,6 +156,7 @@ class MarksNearView(APIView):
                 "location_note": SEARCH_LOCATION_NOTE,
             },
             "count": len(found),
+            "left_out_not_usable": nearby.left_out_not_usable,
             "marks": found,
             "cautions": list(CAUTIONS),
         }

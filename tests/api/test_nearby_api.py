@@ -84,3 +84,24 @@ def test_anonymous_and_roleless_users_are_refused(make_user, api_client_for):
     assert r.status_code in (401, 403)
     r = api_client_for(make_user("nobody")).get(URL, {"lat": 45.2, "lon": -110.6, "radius_km": 1})
     assert_error_shape(r, 403, "permission_denied")
+
+
+def test_usable_only_takes_the_limit_after_the_usability_rule(district, viewer, technician, api_client_for):
+    """usable_only=true: the N nearest usable marks (the rule of services.usability, as on the page), and how
+    many marks not for use were passed over. NR-100 (nearest) is searched for and not found; NR-200 is
+    retired; so the two nearest usable marks are NR-300 and NR-400, with two passed over."""
+    from registry.services.fieldwork import visit_record
+
+    visit_record(
+        actor=technician, mark_code="NR-100", data={"visited_on": "2024-05-01", "finding": "searched_not_found"}
+    )
+    client = api_client_for(viewer)
+    r = client.get(URL, {"lat": 45.2, "lon": -110.6, "radius_km": 1, "limit": 2, "usable_only": "true"})
+    assert r.status_code == 200, r.content
+    body = r.json()
+    assert [m["code"] for m in body["marks"]] == ["NR-300", "NR-400"]
+    assert body["left_out_not_usable"] == 2 and body["search"]["filters"] == {"usable_only": True}
+    r = client.get(URL, {"lat": 45.2, "lon": -110.6, "radius_km": 1, "limit": 2})  # without it: as before
+    assert [m["code"] for m in r.json()["marks"]] == ["NR-100", "NR-200"] and r.json()["left_out_not_usable"] == 0
+    r = client.get(URL, {"lat": 45.2, "lon": -110.6, "radius_km": 1, "usable_only": "perhaps"})
+    assert r.status_code == 400
