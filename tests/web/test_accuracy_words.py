@@ -3,7 +3,7 @@ blunders as the ASPRS style does, and σ in millimetres with a correlation is ac
 
 Check values:
 - FGDC-STD-007.2-1998 Part 2: r95 = K·σmax, K = 1.960790 + 0.004071·C + 0.114276·C² + 0.371625·C³
-  (secondary transcription, as in registry/geodesy/accuracy.py); for σe = σn (C = 1) K = 2.447762, so σ = 10 mm → 24.48 mm.
+  (secondary transcription, as in registry/geodesy/accuracy.py); for σe = σn (C = 1) K = 2.450762, so σ = 10 mm → 24.51 mm.
 - A correlated case is checked against numpy's eigenvalues of the 2×2 covariance (an independent
   computation of the error-ellipse axes), then the same K polynomial.
 - The blunder rule (3 × the measured axis RMSE) of ASPRS Positional Accuracy Standards, Edition 2 (2023);
@@ -105,7 +105,7 @@ def test_the_page_takes_sigmas_in_mm(signed_in, viewer):
     response = client.post(URL, {"source": "sigmas", "sigma_e_mm": "10", "sigma_n_mm": "10", "corr_en": "0"})
     assert response.status_code == 200
     r = response.context["report"]
-    assert r["horizontal_95_m"] == pytest.approx(_k(1.0) * 0.010, rel=1e-9)  # 24.48 mm (FGDC Part 2 K, C = 1)
+    assert r["horizontal_95_m"] == pytest.approx(_k(1.0) * 0.010, rel=1e-9)  # 24.51 mm (FGDC Part 2 K, C = 1)
     page = response.content.decode()
     assert "24.5" in page
     # correlated: the ellipse axes from numpy's eigenvalues, then the K polynomial
