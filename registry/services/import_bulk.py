@@ -37,6 +37,7 @@ from registry.io.common import MarkRecord, RowError
 from registry.models import AuditEvent, CheckStage, Mark, MarkStatus, MovementCheck, Position, PositionState
 from registry.models.audit import chain_new_rows
 from registry.services.audit import snapshot
+from registry.services.import_report import service_errors
 from registry.services.limits import check_text_limits
 from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
 from registry.services.movement import movement_compare_many
@@ -57,24 +58,6 @@ def batch_eligible(group: list[MarkRecord]) -> bool:
     position of the mark, ``registry.services.movement.comparison_target``), the first with nothing.
     """
     return group[0].mark.get("status") in (None, "", MarkStatus.ACTIVE, MarkStatus.RETIRED)
-
-
-def _errors_of(exc: ValidationError, record: MarkRecord) -> list[RowError]:
-    out = []
-    items = exc.error_dict.items() if hasattr(exc, "error_dict") else [("", exc.error_list)]
-    for name, errors in items:
-        for err in errors:
-            out.append(
-                RowError(
-                    record.where,
-                    record.index,
-                    err.code or "invalid",
-                    " ".join(err.messages),
-                    "" if name == "__all__" else name,
-                    record.code,
-                )
-            )
-    return out
 
 
 #: Field kinds whose ``clean()`` (to_python, choices, null and blank, validators) depends on the value alone.
@@ -202,7 +185,7 @@ def create_marks_in_batches(
                 if record.position is not None:
                     positions.append((record, _new_position(record.position, actor, memo)))
         except ValidationError as exc:
-            errors.extend(_errors_of(exc, at))
+            errors.extend(service_errors(exc, at))
             continue
         finally:
             rows += len(group)
