@@ -135,7 +135,7 @@ def positions_combine(*, actor, mark_code: str, position_ids: list[Any]) -> tupl
                 "lon_deg": lon,
                 "h_m": h,
                 **_cov_fields(result.cov_statement_m2),
-                "source": f"weighted combination of positions {', '.join(map(str, ids))}"[:200],
+                "source": _source("weighted combination", found),
                 "note": text,
             },
         )
@@ -155,6 +155,12 @@ def positions_combine(*, actor, mark_code: str, position_ids: list[Any]) -> tupl
             mark=proposal.mark,
         )
     return proposal, result
+
+
+def _source(method: str, found: list[Position]) -> str:
+    """The proposal's source in words: the method and the solutions' epochs (their ids stay in the audit row)."""
+    epochs = ", ".join(f"{p.epoch_yr:.3f}" for p in found)
+    return f"{method} of {len(found)} solutions (epochs {epochs})"[:200]
 
 
 def _x0_covariance(found: list[Position], cov: np.ndarray, fit: Any) -> np.ndarray:
@@ -206,7 +212,7 @@ def positions_velocity(*, actor, mark_code: str, position_ids: list[Any]) -> tup
                 "vel_sigma_e_m_yr": float(sv[0]),
                 "vel_sigma_n_m_yr": float(sv[1]),
                 "vel_sigma_u_m_yr": float(sv[2]),
-                "source": f"velocity fit of positions {', '.join(map(str, ids))}"[:200],
+                "source": _source("velocity fit", found),
                 "note": text,
             },
         )
