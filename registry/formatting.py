@@ -31,6 +31,24 @@ from functools import lru_cache
 from registry.geodesy import dms
 from registry.geodesy.accuracy import sigma_from_variance_m
 
+# Epochs are written one way everywhere: the geodesy core's definition, re-exported here.
+from registry.geodesy.frames import decimal_year_to_date as decimal_year_to_date
+from registry.geodesy.frames import format_epoch as format_epoch
+
+
+def decimal_year_to_datetime(epoch_yr: float) -> dt.datetime:
+    """The UTC instant of a decimal year (fraction of the calendar year, see module docstring).
+
+    >>> decimal_year_to_datetime(2020.5).isoformat()
+    '2020-07-02T00:00:00+00:00'
+    """
+    if epoch_yr is None or not math.isfinite(epoch_yr):
+        raise ValueError(f"not a finite epoch: {epoch_yr!r}")
+    year = math.floor(epoch_yr)
+    days_in_year = 366 if calendar.isleap(year) else 365
+    start = dt.datetime(year, 1, 1, tzinfo=dt.UTC)
+    return start + dt.timedelta(days=(epoch_yr - year) * days_in_year)
+
 
 def format_lat_dms(lat_deg: float) -> str:
     """Latitude as DMS to 0.00001″ with N/S (one implementation: :mod:`registry.geodesy.dms`).
@@ -109,38 +127,6 @@ def format_sigma_mm(variance_m2: float, places: int = 1) -> str:
     '4.0'
     """
     return _fixed(float(sigma_from_variance_m(variance_m2)) * 1000.0, places)
-
-
-def decimal_year_to_datetime(epoch_yr: float) -> dt.datetime:
-    """The UTC instant of a decimal year (fraction of the calendar year, see module docstring).
-
-    >>> decimal_year_to_datetime(2020.5).isoformat()
-    '2020-07-02T00:00:00+00:00'
-    """
-    if epoch_yr is None or not math.isfinite(epoch_yr):
-        raise ValueError(f"not a finite epoch: {epoch_yr!r}")
-    year = math.floor(epoch_yr)
-    days_in_year = 366 if calendar.isleap(year) else 365
-    start = dt.datetime(year, 1, 1, tzinfo=dt.UTC)
-    return start + dt.timedelta(days=(epoch_yr - year) * days_in_year)
-
-
-def decimal_year_to_date(epoch_yr: float) -> dt.date:
-    """The calendar date (UTC) of a decimal year.
-
-    >>> decimal_year_to_date(2010.0)
-    datetime.date(2010, 1, 1)
-    """
-    return decimal_year_to_datetime(epoch_yr).date()
-
-
-def format_epoch(epoch_yr: float) -> str:
-    """A coordinate epoch as decimal year to 3 places with the calendar date.
-
-    >>> format_epoch(2010.0)
-    '2010.000 (2010-01-01)'
-    """
-    return f"{epoch_yr:.3f} ({decimal_year_to_date(epoch_yr).isoformat()})"
 
 
 @lru_cache(maxsize=256)
