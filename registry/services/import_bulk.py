@@ -39,7 +39,7 @@ from registry.models.audit import chain_new_rows
 from registry.services.audit import snapshot
 from registry.services.import_report import service_errors
 from registry.services.limits import check_text_limits
-from registry.services.marks import CREATE_FIELDS, _clean_input, _suspect_not_settable
+from registry.services.marks import mark_from_input
 from registry.services.movement import movement_compare_many
 from registry.services.movement_checks import check_summary, movement_check_values
 from registry.services.positions import _parse_position
@@ -108,13 +108,7 @@ def _new_mark(group: list[MarkRecord], memo: _CleanMemo) -> Mark:
     data = dict(group[0].mark)
     data.pop("suspect_since", None)
     data.pop("suspect_reason", None)
-    cleaned = _clean_input(data, CREATE_FIELDS)
-    if not cleaned.get("code"):
-        raise ValidationError({"code": ValidationError("A mark needs a code.", code="required")})
-    if cleaned.get("status") == MarkStatus.SUSPECT:
-        raise ValidationError({"status": _suspect_not_settable()})
-    mark = Mark(**cleaned)
-    check_text_limits(mark)
+    mark = mark_from_input(data)
     memo.full_clean(mark)
     return mark
 

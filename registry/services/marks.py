@@ -161,6 +161,20 @@ def _conflict(mark_id: int, submitted: dict[str, Any], expected_version: int) ->
     return current, conflict
 
 
+def mark_from_input(data: dict[str, Any]) -> Mark:
+    """The unsaved mark of a creation's input: cleaned, a code required, not created suspect, texts within
+    their limits. The model's own checks (``full_clean``) are the caller's: ``mark_create`` runs them, the
+    batch import runs them once per distinct value."""
+    cleaned = _clean_input(data, CREATE_FIELDS)
+    if not cleaned.get("code"):
+        raise ValidationError({"code": ValidationError("A mark needs a code.", code="required")})
+    if cleaned.get("status") == MarkStatus.SUSPECT:
+        raise ValidationError({"status": _suspect_not_settable()})
+    mark = Mark(**cleaned)
+    check_text_limits(mark)
+    return mark
+
+
 def mark_create(*, actor, data: dict) -> Mark:
     """Create a mark from ``data`` (``code`` plus any of the descriptive fields and ``status``).
 
@@ -173,13 +187,7 @@ def mark_create(*, actor, data: dict) -> Mark:
         ``unknown_field``.
     """
     require_ability(actor, Ability.MANAGE)
-    cleaned = _clean_input(data, CREATE_FIELDS)
-    if not cleaned.get("code"):
-        raise ValidationError({"code": ValidationError("A mark needs a code.", code="required")})
-    if cleaned.get("status") == MarkStatus.SUSPECT:
-        raise ValidationError({"status": _suspect_not_settable()})
-    mark = Mark(**cleaned)
-    check_text_limits(mark)
+    mark = mark_from_input(data)
     mark.full_clean()
     # full_clean checked the code; two creations of the same code at once: the unique index decides
     return create_audited(mark, actor=actor, action="mark_create", what="mark", check_code_first=False)
