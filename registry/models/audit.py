@@ -28,6 +28,7 @@ chain. The lock serialises the audited writes only from their audit row to their
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import hashlib
 import json
 from typing import Any
@@ -54,7 +55,48 @@ def _canonical(value: Any) -> Any:
     JSONB (PostgreSQL) and JSON text (SQLite) give back equal values but not always equal types:
     ``1e20`` may come back as the integer 100000000000000000000 and ``3.0`` as ``3``. Integral
     numbers below 2**53 are written as integers and every other number as its shortest float.
+
+    The usual kinds (text, None, bools, plain ints and floats, plain dicts and lists) are told by their
+    exact type, without a call per value inside a dict: an import chains tens of thousands of rows.
+    Anything else (subclasses such as numpy's floats, other objects) goes through
+    :func:`_canonical_any`, the rule as written above; a test compares the two on generated values.
     """
+    t = type(value)
+    if t is str or value is None:
+        return value
+    if t is dict:
+        out = {}
+        for k, v in value.items():
+            tv = type(v)
+            if tv is str or v is None or tv is bool:
+                pass
+            elif tv is float:
+                if v.is_integer() and -_EXACT < v < _EXACT:
+                    v = int(v)
+            elif tv is int:
+                if not -_EXACT < v < _EXACT:
+                    v = _canonical_any(v)
+            elif isinstance(v, str):  # text choices
+                pass
+            else:
+                v = _canonical(v)
+            out[k if type(k) is str else str(k)] = v
+        return out
+    if t is list or t is tuple:
+        return [_canonical(v) for v in value]
+    if t is float:
+        return int(value) if value.is_integer() and -_EXACT < value < _EXACT else value
+    if t is int and -_EXACT < value < _EXACT:
+        return value
+    return _canonical_any(value)
+
+
+#: Integers of smaller magnitude are exact as floats (IEEE 754 double: a 53-bit significand).
+_EXACT = 2**53
+
+
+def _canonical_any(value: Any) -> Any:
+    """:func:`_canonical` for any value, by ``isinstance`` (the rule as first written)."""
     if value is None or isinstance(value, bool | str):
         return value
     if isinstance(value, int | float):
@@ -69,8 +111,14 @@ def _canonical(value: Any) -> Any:
     return str(value)
 
 
+@functools.lru_cache(maxsize=256)
 def _utc_text(at: _dt.datetime) -> str:
+    """``at`` in UTC as ``2026-01-02T03:04:05.000000Z`` (kept for a while: a batch of rows shares one time)."""
     return at.astimezone(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+#: The canonical text's encoder (sorted keys, no spaces, ASCII), made once.
+_ENCODER = json.JSONEncoder(sort_keys=True, separators=(",", ":"), ensure_ascii=True)
 
 
 def chain_payload(
@@ -111,7 +159,7 @@ def chain_payload(
         "note": note,
         "prev": prev_hash,
     }
-    return json.dumps(doc, sort_keys=True, separators=(",", ":"), ensure_ascii=True).encode("ascii")
+    return _ENCODER.encode(doc).encode("ascii")
 
 
 def row_hash_of(event: AuditEvent, *, seq: int | None = None, prev_hash: str | None = None) -> str:

@@ -20,12 +20,18 @@ from django.db.models.fields.files import FieldFile
 from registry.models import AuditEvent, Mark
 
 
+#: Types given back as they are (subclasses, e.g. text choices, take the checks below).
+_PLAIN = frozenset({str, int, float, bool, type(None)})
+
+
 def json_safe(value: Any) -> Any:
     """Return ``value`` converted to plain JSON types (recursively for dicts and lists).
 
     >>> json_safe({"d": _dt.date(2024, 5, 1), "x": decimal.Decimal("1.5"), "t": (1, 2)})
     {'d': '2024-05-01', 'x': 1.5, 't': [1, 2]}
     """
+    if type(value) in _PLAIN:  # most values: told by their exact type (an import snapshots thousands of rows)
+        return value
     if value is None or isinstance(value, bool | int | str):
         return value
     if isinstance(value, float):

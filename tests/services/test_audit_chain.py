@@ -8,9 +8,13 @@ from __future__ import annotations
 
 import hashlib
 import io
+import json
 import threading
 
+import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from django.core.management import call_command
 from django.db import DatabaseError, connection, transaction
 
@@ -286,3 +290,52 @@ def test_deploy_check_warns_when_the_login_could_rewrite_the_trail(runtime_role,
         cur.execute(f"SET LOCAL ROLE {runtime_role}")
         assert check_audit_role(databases=["default"]) == []
         cur.execute("RESET ROLE")
+
+
+def _canonical_as_written(value):
+    """The canonical form's rule as the chain's documentation states it, written out plainly (the reference
+    the chain's faster version is compared with): integral numbers below 2**53 as integers, every other
+    number as a float, keys as text, tuples as lists, other objects as their text."""
+    if value is None or isinstance(value, bool | str):
+        return value
+    if isinstance(value, int | float):
+        number = float(value)
+        return int(number) if number.is_integer() and abs(number) < 2**53 else number
+    if isinstance(value, dict):
+        return {str(k): _canonical_as_written(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_canonical_as_written(v) for v in value]
+    return str(value)
+
+
+_json_leaf = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.text(max_size=8),
+    st.integers(min_value=-(2**60), max_value=2**60),
+    st.sampled_from([2**53 - 1, 2**53, -(2**53), 2**53 + 1, 10**20]),
+    st.floats(allow_nan=False, allow_infinity=False),
+    st.sampled_from([0.0, -0.0, 3.0, 1e20, 2.0**53, 1.5, float(2**53 - 1)]),
+    st.builds(np.float64, st.floats(allow_nan=False, allow_infinity=False, width=32)),
+)
+_json_values = st.recursive(
+    _json_leaf,
+    lambda inner: st.one_of(
+        st.lists(inner, max_size=4),
+        st.tuples(inner, inner),
+        st.dictionaries(st.one_of(st.text(max_size=5), st.integers(-5, 5)), inner, max_size=5),
+    ),
+    max_leaves=20,
+)
+
+
+@given(_json_values)
+@settings(max_examples=300)
+def test_the_canonical_form_follows_its_rule_for_any_json_value(value):
+    """The chain's canonical form (fast paths by exact type) gives the same JSON text as the rule written
+    out plainly, for nested values with bools, big integers, integral floats, numpy floats, int keys."""
+    from registry.models.audit import _canonical
+
+    fast = json.dumps(_canonical(value), sort_keys=True, separators=(",", ":"))
+    plain = json.dumps(_canonical_as_written(value), sort_keys=True, separators=(",", ":"))
+    assert fast == plain
