@@ -14,6 +14,7 @@ business.
 
 from __future__ import annotations
 
+import operator
 import sqlite3
 from collections.abc import Callable, Sequence
 from typing import Any
@@ -114,26 +115,53 @@ def defaults_of(columns) -> dict[str, Any]:
     return {name: default() for name, default, _ in columns if default is not None}
 
 
+#: Field kinds whose values the driver writes as COPY text itself (Python's or numpy's numbers, bools, text):
+#: the server reads the text by the column's type, so no conversion on the client.
+_COPY_AS_IS = (models.ForeignKey, models.IntegerField, models.FloatField, models.BooleanField)
+
+
+def _copy_as_is(field: models.Field) -> bool:
+    if isinstance(field, _COPY_AS_IS):
+        return True
+    return isinstance(field, models.CharField | models.TextField) and not field.choices
+
+
 def _copy_rows(connection, opts, fields, columns, defaults, rows, batch: int) -> list[int]:
     """PostgreSQL: take the ids from the table's sequence (one query), then ``COPY`` the rows with them.
 
     A multi-row INSERT binds every value on the client, one by one; COPY streams them (about five
-    times less CPU for an import, benchmarks/bench_import.py). The sequence moves as for any insert.
+    times less CPU for an import, benchmarks/bench_import.py). COPY sends text that the server reads by
+    each column's type, so numbers, bools and plain text go as they are (the driver writes Python's and
+    numpy's); only times, JSON, text choices and other kinds go through their converter
+    (:func:`_converter`). The sequence moves as for any insert.
     """
     qn = connection.ops.quote_name
     pk = opts.pk.column
+    names = [name for name, _d, _c in columns]
+    wanted = frozenset(names)
+    # (place in the row after the id, converter) of the columns that need one; auto_now ones always do.
+    converted = [
+        (i + 1, convert)
+        for i, (f, (_n, default, convert)) in enumerate(zip(fields, columns, strict=True))
+        if default is None or not _copy_as_is(f)
+    ]
+    pick = operator.itemgetter(*names)
     with connection.cursor() as cursor:
         cursor.execute(
             "SELECT nextval(pg_get_serial_sequence(%s, %s)) FROM generate_series(1, %s)",
             [qn(opts.db_table), pk, len(rows)],
         )
         ids = [r[0] for r in cursor.fetchall()]
-        names = ", ".join([qn(pk), *(qn(f.column) for f in fields)])
+        columns_sql = ", ".join([qn(pk), *(qn(f.column) for f in fields)])
         raw = cursor.cursor  # psycopg's own cursor (COPY is not part of the DB-API)
         for start in range(0, len(rows), batch):
-            with raw.copy(f"COPY {qn(opts.db_table)} ({names}) FROM STDIN") as copy:
+            with raw.copy(f"COPY {qn(opts.db_table)} ({columns_sql}) FROM STDIN") as copy:
                 for pk_value, row in zip(ids[start : start + batch], rows[start : start + batch], strict=True):
-                    copy.write_row(
-                        [pk_value, *(convert(row[n] if n in row else defaults.get(n)) for n, _d, convert in columns)]
-                    )
+                    if wanted <= row.keys():
+                        values = [pk_value, *pick(row)] if len(names) > 1 else [pk_value, row[names[0]]]
+                    else:
+                        values = [pk_value, *(row[n] if n in row else defaults.get(n) for n in names)]
+                    for i, convert in converted:
+                        values[i] = convert(values[i])
+                    copy.write_row(values)
     return ids
