@@ -50,6 +50,16 @@ class MarkMap:
     data: dict[str, Any] = field(default_factory=dict)
 
 
+#: Height of a graticule label (10 px type) and the width of one of its characters, generously.
+LABEL_PX = 10
+LABEL_CHAR_PX = 6.5
+
+
+def label_width_px(text: str) -> float:
+    """The width a graticule label takes at most (10 px sans-serif, about 0.55 em a character)."""
+    return len(text) * LABEL_CHAR_PX
+
+
 def nice_step(value: float) -> float:
     """The largest 1, 2 or 5 × 10ⁿ not above ``value`` (for scale bars and graticules).
 
@@ -125,9 +135,12 @@ def draw_svg(m: MarkMap) -> str:
             out.append(
                 f'<line class="grat" x1="0" y1="{y}" x2="{WIDTH_PX}" y2="{y}" stroke="#c9c4b8" stroke-width="0.8"/>'
             )
-            out.append(
-                f'<text class="grat-label" x="4" y="{y - 3}" font-size="10" fill="#5b6066">{_dm(lat_line, "NS")}</text>'
-            )
+            # labelled only clear of the top edge and of the longitude labels' row along the bottom
+            if LABEL_PX <= y - 3 <= HEIGHT_PX - 4 - LABEL_PX - 2:
+                out.append(
+                    f'<text class="grat-label" x="4" y="{y - 3}" font-size="10" fill="#5b6066">'
+                    f"{_dm(lat_line, 'NS')}</text>"
+                )
         lat_line += step
     lon_line = math.floor((cx_deg - half_w_deg) / step) * step
     while lon_line <= cx_deg + half_w_deg:
@@ -136,10 +149,12 @@ def draw_svg(m: MarkMap) -> str:
             out.append(
                 f'<line class="grat" x1="{x}" y1="0" x2="{x}" y2="{HEIGHT_PX}" stroke="#c9c4b8" stroke-width="0.8"/>'
             )
-            out.append(
-                f'<text class="grat-label" x="{x + 3}" y="{HEIGHT_PX - 4}" font-size="10" fill="#5b6066">'
-                f"{_dm(lon_line, 'EW')}</text>"
-            )
+            text = _dm(lon_line, "EW")
+            if x + 3 + label_width_px(text) <= WIDTH_PX:  # not run off the right edge
+                out.append(
+                    f'<text class="grat-label" x="{x + 3}" y="{HEIGHT_PX - 4}" font-size="10" fill="#5b6066">'
+                    f"{text}</text>"
+                )
         lon_line += step
     if m.centre is not None:
         x, y = xy(*m.centre)

@@ -99,3 +99,30 @@ def test_scale_bar_matches_a_geodesic():
 
 def test_nice_step():
     assert [nice_step(v) for v in (1.0, 3.2, 7.9, 140.0, 0.04)] == [1.0, 2.0, 5.0, 100.0, 0.02]
+
+
+@pytest.mark.parametrize(
+    "points",
+    [
+        [(45.2, -110.6), (45.1875, -110.6342)],  # the list's two marks: a corner label ran off the edge
+        [(45.2, -110.6)],
+        [(44.9, -111.1), (45.4, -110.2), (45.05, -110.5)],
+        [(-33.9, 18.4), (-33.7, 18.9)],
+    ],
+)
+def test_graticule_labels_stay_on_the_map_and_clear_of_each_other(points):
+    from registry.web.mark_map import HEIGHT_PX, LABEL_PX, WIDTH_PX, label_width_px
+
+    svg = build_map([MapPoint(f"M{i}", lat, lon, True, "usable", "", "") for i, (lat, lon) in enumerate(points)]).svg
+    labels = re.findall(r'<text class="grat-label" x="([-\d.]+)" y="([-\d.]+)"[^>]*>([^<]+)</text>', svg)
+    assert labels
+    boxes = []
+    for x, y, text in labels:
+        x0, y1 = float(x), float(y)
+        box = (x0, y1 - LABEL_PX, x0 + label_width_px(text), y1)
+        assert 0 <= box[0] and box[2] <= WIDTH_PX and 0 <= box[1] and box[3] <= HEIGHT_PX, (text, box)
+        boxes.append((text, box))
+    for i, (a, ba) in enumerate(boxes):
+        for b, bb in boxes[i + 1 :]:
+            apart = ba[2] <= bb[0] or bb[2] <= ba[0] or ba[3] <= bb[1] or bb[3] <= ba[1]
+            assert apart, (a, b)
