@@ -32,6 +32,7 @@ from registry.geodesy import dms
 from registry.geodesy.accuracy import sigma_from_variance_m
 
 # Epochs are written one way everywhere: the geodesy core's definition, re-exported here.
+from registry.geodesy.frames import crs_label
 from registry.geodesy.frames import decimal_year_to_date as decimal_year_to_date
 from registry.geodesy.frames import format_epoch as format_epoch
 
@@ -150,7 +151,7 @@ def format_frame(epsg: int) -> str:
     name = frame_name(int(epsg))
     if name is None:
         return f"EPSG:{int(epsg)} (not in the EPSG database)"
-    return f"{name} (EPSG:{int(epsg)})"
+    return crs_label(name, epsg)
 
 
 def format_utc(value: dt.datetime) -> str:

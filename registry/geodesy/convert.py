@@ -447,7 +447,7 @@ def display_rows(c: PointConversion) -> dict:
     """
     fr = c.frame
     rows: list[tuple[str, str, str]] = [
-        ("Frame", f"{fr.name} (EPSG:{fr.epsg})", fr.kind),
+        ("Frame", fr.label, fr.kind),
         ("Coordinate epoch", _frames.format_epoch(c.epoch_yr), "decimal year (calendar date)"),
         ("Latitude", _dms.format_lat(c.lat_deg, decimals=5), f"{c.lat_deg:.9f}°"),
         ("Longitude", _dms.format_lon(c.lon_deg, decimals=5), f"{c.lon_deg:.9f}°"),
@@ -519,7 +519,7 @@ def display_rows(c: PointConversion) -> dict:
         for s in c.geoid_steps
     ]
     source = (
-        f"{c.source_frame.name} (EPSG:{c.source_frame.epsg}) at {_frames.format_epoch(c.source_epoch_yr)}, "
+        f"{c.source_frame.label} at {_frames.format_epoch(c.source_epoch_yr)}, "
         f"given as {dict(geodetic='latitude/longitude/height', ecef='ECEF X/Y/Z', grid='easting/northing')[c.input_form]}"
     )
     return {"rows": rows, "source": source, "chain": chain, "warnings": list(c.warnings), "cautions": list(CAUTIONS)}

@@ -89,6 +89,15 @@ class FrameTransformError(Exception):
         self.code = code
 
 
+def crs_label(name: str, epsg: int) -> str:
+    """A frame (or any CRS) in words, as every page, sheet and command writes it: "name (EPSG:code)".
+
+    >>> crs_label("ITRF2014", 7912)
+    'ITRF2014 (EPSG:7912)'
+    """
+    return f"{name} (EPSG:{int(epsg)})"
+
+
 @dataclass(frozen=True)
 class FrameInfo:
     epsg: int
@@ -100,7 +109,7 @@ class FrameInfo:
 
     @property
     def label(self) -> str:
-        return f"{self.name} (EPSG:{self.epsg})"
+        return crs_label(self.name, self.epsg)
 
     @property
     def kind(self) -> str:
