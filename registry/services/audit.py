@@ -19,7 +19,6 @@ from django.db.models.fields.files import FieldFile
 
 from registry.models import AuditEvent, Mark
 
-
 #: Types given back as they are (subclasses, e.g. text choices, take the checks below).
 _PLAIN = frozenset({str, int, float, bool, type(None)})
 

@@ -13,10 +13,10 @@ import threading
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
 from django.core.management import call_command
 from django.db import DatabaseError, connection, transaction
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from registry.dbroles import grant_runtime_role
 from registry.models import AuditEvent
