@@ -18,6 +18,7 @@ from registry.geodesy.accuracy import ComputationInputError, covariance_from_sig
 from registry.geodesy.statements import RESIDUAL_COLUMNS, STANDARD_NAMES, accuracy_report, parse_residuals_csv
 from registry.roles import Ability
 from registry.web.service_errors import add_service_error
+from registry.web.uploads import within_size
 from registry.web.views import ability_required
 
 MAX_UPLOAD_BYTES = 5 * 1024 * 1024
@@ -74,12 +75,7 @@ class AccuracyForm(forms.Form):
             if upload is not None and text.strip():
                 raise ValidationError("Upload a file or paste text, not both.", code="residuals_twice")
             if upload is not None:
-                if upload.size > MAX_UPLOAD_BYTES:
-                    raise ValidationError(
-                        "The file is larger than %(limit)d MB.",
-                        code="too_large",
-                        params={"limit": MAX_UPLOAD_BYTES // 2**20},
-                    )
+                within_size(upload, MAX_UPLOAD_BYTES)
                 try:
                     text = upload.read().decode("utf-8-sig")
                 except UnicodeDecodeError:

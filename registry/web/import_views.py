@@ -27,9 +27,8 @@ from registry.io.common import CSV_COLUMNS
 from registry.models import ImportState
 from registry.roles import Ability
 from registry.services.import_runs import access_import_run, import_run_errors_csv, import_run_start
+from registry.web.uploads import IMPORT_MAX_BYTES, within_size
 from registry.web.views import ability_required
-
-MAX_UPLOAD_BYTES = 20 * 1024 * 1024
 
 
 class ImportForm(forms.Form):
@@ -52,12 +51,7 @@ class ImportForm(forms.Form):
     dry_run = forms.BooleanField(label="Check only: report what would happen, change nothing", required=False)
 
     def clean_file(self):
-        upload = self.cleaned_data["file"]
-        if upload.size > MAX_UPLOAD_BYTES:
-            raise ValidationError(
-                "The file is larger than %(limit)d MB.", code="too_large", params={"limit": MAX_UPLOAD_BYTES // 2**20}
-            )
-        return upload
+        return within_size(self.cleaned_data["file"], IMPORT_MAX_BYTES)
 
     def clean(self):
         data = super().clean()

@@ -19,9 +19,9 @@ from registry.roles import Ability
 from registry.services.held_uploads import hold_upload, release_held_upload, take_held_upload
 from registry.services.imports import ImportRejected
 from registry.services.occupation_batch import occupation_batch_import
+from registry.web.uploads import IMPORT_MAX_BYTES, within_size
 from registry.web.views import ability_required
 
-MAX_UPLOAD_BYTES = 20 * 1024 * 1024
 PURPOSE = "occupation-batch"
 
 
@@ -29,12 +29,7 @@ class BatchUploadForm(forms.Form):
     file = forms.FileField(label="CSV file (UTF-8)")
 
     def clean_file(self):
-        upload = self.cleaned_data["file"]
-        if upload.size > MAX_UPLOAD_BYTES:
-            raise ValidationError(
-                "The file is larger than %(limit)d MB.", code="too_large", params={"limit": MAX_UPLOAD_BYTES // 2**20}
-            )
-        return upload
+        return within_size(self.cleaned_data["file"], IMPORT_MAX_BYTES)
 
 
 @ability_required(Ability.RECORD)

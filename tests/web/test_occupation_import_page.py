@@ -85,3 +85,23 @@ def test_preview_shows_each_result_against_the_published_position(manager, techn
     assert "<strong>possible movement: d E +0.0 mm, N +100.0 mm, U +0.0 mm</strong>" in page
     assert "nothing to compare with" in page  # CRV-031 has no published position
     assert counts() == before
+
+
+@pytest.mark.parametrize("page", ["web:occupation-import", "web:import"])
+def test_a_file_over_the_size_limit_is_refused_in_words_and_changes_nothing(
+    page, manager, marks, signed_in, monkeypatch
+):
+    """Both import pages take their limit from one place (registry.web.uploads) and say it in MB."""
+    import registry.web.import_views as mark_import_views
+    import registry.web.occupation_import_views as occupation_views
+
+    limit = 2 * 2**20
+    monkeypatch.setattr(mark_import_views, "IMPORT_MAX_BYTES", limit)
+    monkeypatch.setattr(occupation_views, "IMPORT_MAX_BYTES", limit)
+    before = counts()
+    body = SAMPLE.read_bytes()
+    big = body + b"\n" * (limit + 1 - len(body))
+    response = signed_in(manager).post(reverse(page), {"file": SimpleUploadedFile("s.csv", big)})
+    assert response.status_code in (200, 400)
+    assert "The file is larger than 2 MB." in response.content.decode()
+    assert counts() == before
