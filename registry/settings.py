@@ -56,6 +56,8 @@ INSTALLED_APPS = [
     "django_tasks",
     "django_tasks_db",
     "registry.apps.RegistryConfig",
+    # The session table naming each session's user (registry/sessions/), read with that user in one query.
+    "registry.sessions.apps.SignInSessionsConfig",
 ]
 
 MIDDLEWARE = [
@@ -66,7 +68,8 @@ MIDDLEWARE = [
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
-    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    # Django's, taking the user read with the session (registry/auth_backend.py, registry/sessions/).
+    "registry.auth_backend.AuthenticationMiddleware",
     # Idempotency-Key on API writes: a retried write is answered once (registry/api/idempotency.py).
     "registry.api.idempotency.IdempotencyMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
@@ -138,7 +141,8 @@ CACHES = {
         "OPTIONS": {"MAX_ENTRIES": int(os.environ.get("REGISTRY_CACHE_MAX_ENTRIES", "3000"))},
     }
 }
-#: Django's database sessions, read with plain SQL (registry/sessions.py).
+#: Django's database sessions in a table naming each session's user, read with that user in one query
+#: (registry/sessions/).
 SESSION_ENGINE = "registry.sessions"
 AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
