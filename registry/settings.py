@@ -222,6 +222,8 @@ REST_FRAMEWORK = {
     # JSON only: DRF's browsable HTML pages use inline scripts and styles, which our
     # Content-Security-Policy refuses (registry/web/csp.py); /api/docs/ is the readable view.
     "DEFAULT_RENDERER_CLASSES": ["rest_framework.renderers.JSONRenderer"],
+    # DRF's negotiation, its choice remembered per Accept header (registry/api/negotiation.py).
+    "DEFAULT_CONTENT_NEGOTIATION_CLASS": "registry.api.negotiation.RememberedContentNegotiation",
     "DEFAULT_PAGINATION_CLASS": "registry.api.pagination.RegistryPagination",
     # JSON with limits: nesting depth and text that is not Unicode are 400s (registry/api/parsers.py).
     "DEFAULT_PARSER_CLASSES": [
