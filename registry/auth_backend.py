@@ -42,6 +42,8 @@ from django.db.models import Q
 from django.db.models.sql import Query
 from django.utils.functional import SimpleLazyObject
 
+from registry import dbprepared
+
 #: Separates the names in the aggregated columns (ASCII unit separator: in no group name or codename).
 _SEP = "\x1f"
 
@@ -177,9 +179,7 @@ class RegistryModelBackend(ModelBackend):
             sql = _SQL_CACHE.get(conn.vendor)
             if sql is None:
                 sql = _SQL_CACHE[conn.vendor] = _user_sql(conn.vendor)
-            with conn.cursor() as cur:
-                cur.execute(sql, [pk])
-                row = cur.fetchone()
+            row = dbprepared.fetchone(conn, "registry_user_with_roles", sql, [pk])
             user = None if row is None else user_from_row(alias, row)
         return user if user is not None and self.user_can_authenticate(user) else None
 

@@ -356,6 +356,10 @@ REGISTRY = {
     "REPLICA_PIN_SECONDS": float(os.environ.get("REGISTRY_REPLICA_PIN_SECONDS", "10")),
     "REPLICA_MAX_LAG_SECONDS": float(os.environ.get("REGISTRY_REPLICA_MAX_LAG_SECONDS", "30")),
     "REPLICA_RETRY_SECONDS": float(os.environ.get("REGISTRY_REPLICA_RETRY_SECONDS", "15")),
+    # The few plain SQL reads of every signed-in request prepared once per PostgreSQL connection
+    # (registry/dbprepared.py). Turn off behind a pooler that gives each transaction another server
+    # connection (PgBouncer's transaction mode).
+    "DB_PREPARED_STATEMENTS": env_bool("REGISTRY_DB_PREPARED_STATEMENTS", True),
     # Background workers (manage.py task_worker; registry/services/workers.py): a task whose worker was
     # killed runs again, up to MAX_ATTEMPTS runs in all, then fails; workers look every RECOVER seconds.
     "TASK_MAX_ATTEMPTS": int(os.environ.get("REGISTRY_TASK_MAX_ATTEMPTS", "3")),

@@ -6,7 +6,8 @@ for extending the database engine). Writing, expiry, cycling keys and signing th
 
 Reading differs: every signed-in request reads its session and then its user, their roles and their
 permissions (``registry.auth_backend``). Here one plain SQL statement on the primary database reads the
-session's row joined with its user's (``registry.auth_backend.user_columns_sql``); the user read so is
+session's row joined with its user's (``registry.auth_backend.user_columns_sql``), prepared once per
+connection on PostgreSQL (``registry.dbprepared``: planning this join cost more than running it); the user read so is
 kept on this session object (``user_read_with_session``, this request only) and handed to the backend's
 ``get_user`` by ``registry.auth_backend.AuthenticationMiddleware``, which takes it only when the
 session's own data name the same user. Nothing is kept between requests: a session signed out (its row
@@ -22,6 +23,8 @@ from django.contrib.sessions.backends.db import SessionStore as DatabaseSessionS
 from django.core.exceptions import SuspiciousOperation
 from django.db import connections, router
 from django.utils import timezone
+
+from registry import dbprepared
 
 _SQL_CACHE: dict[str, str] = {}
 
@@ -74,9 +77,7 @@ class SessionStore(DatabaseSessionStore):
             sql = _SQL_CACHE[conn.vendor] = _session_sql(conn.vendor, conn.ops.quote_name(model._meta.db_table))
         now = conn.ops.adapt_datetimefield_value(timezone.now())  # as the ORM passes it (SQLite: UTC text)
         try:
-            with conn.cursor() as cur:
-                cur.execute(sql, [key, now])
-                row = cur.fetchone()
+            row = dbprepared.fetchone(conn, "registry_session_with_user", sql, [key, now])
         except SuspiciousOperation as exc:  # as Django's engine: logged, no session
             logging.getLogger(f"django.security.{exc.__class__.__name__}").warning(str(exc))
             row = None

@@ -37,7 +37,8 @@ def test_a_repeated_read_costs_the_session_with_its_user_and_the_audit_head(clie
             assert client.get(url).status_code == 200
         sql = [q["sql"] for q in ctx.captured_queries]
         assert len(sql) == 2, (url, sql)
-        assert "registry_signin_session" in sql[0] and "auth_user" in sql[0] and "registry_auditevent" in sql[1]
+        assert "registry_session_with_user" in sql[0] or ("registry_signin_session" in sql[0] and "auth_user" in sql[0])
+        assert "registry_audit_head" in sql[1] or "registry_auditevent" in sql[1]
 
 
 @pytest.mark.django_db
