@@ -102,17 +102,18 @@ def main() -> None:
 
 
 def _targets():
+    from importlib import import_module
+
     from django.conf import settings
     from django.contrib.auth import BACKEND_SESSION_KEY, HASH_SESSION_KEY, SESSION_KEY, get_user_model
     from django.contrib.auth.models import Group
-    from django.contrib.sessions.backends.db import SessionStore
 
     from registry.models import Mark
 
     User = get_user_model()
     user, _ = User.objects.get_or_create(username="bench-cpu-viewer")
     user.groups.set([Group.objects.get(name="viewer")])
-    s = SessionStore()
+    s = import_module(settings.SESSION_ENGINE).SessionStore()  # the tree's own engine and table
     s[SESSION_KEY] = str(user.pk)
     s[BACKEND_SESSION_KEY] = settings.AUTHENTICATION_BACKENDS[0]  # as a sign-in through the form
     s[HASH_SESSION_KEY] = user.get_session_auth_hash()
@@ -183,7 +184,7 @@ def worker(args) -> None:
                 call(p)
         prof.disable()
         stats = pstats.Stats(prof, stream=sys.stdout)
-        stats.sort_stats("cumulative").print_stats(45)
+        stats.sort_stats("cumulative").print_stats(int(os.environ.get("BENCH_PROFILE_LINES", "45")))
         stats.sort_stats("tottime").print_stats(30)
         return
 

@@ -279,12 +279,12 @@ django.setup()
 from django.conf import settings
 from django.contrib.auth import get_user_model, SESSION_KEY, BACKEND_SESSION_KEY, HASH_SESSION_KEY
 from django.contrib.auth.models import Group
-from django.contrib.sessions.backends.db import SessionStore
+from importlib import import_module
 from registry.models import Mark
 User = get_user_model()
 u, _ = User.objects.get_or_create(username="bench-load-viewer")
 u.groups.set([Group.objects.get(name="viewer")])
-s = SessionStore()
+s = import_module(settings.SESSION_ENGINE).SessionStore()  # the tree's own engine and table
 s[SESSION_KEY] = str(u.pk)
 s[BACKEND_SESSION_KEY] = settings.AUTHENTICATION_BACKENDS[0]  # as a sign-in through the form
 s[HASH_SESSION_KEY] = u.get_session_auth_hash()

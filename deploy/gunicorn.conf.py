@@ -32,8 +32,11 @@ keepalive = 5
 
 # Recycle workers now and then so that a slow leak cannot grow for months. Not too often: a new worker
 # starts with an empty read cache (registry/selectors/read_cache.py) and spends a second or two of CPU
-# starting; at 2,000 a busy worker was replaced every 15 s.
-max_requests = int(os.environ.get("REGISTRY_GUNICORN_MAX_REQUESTS", "20000"))
+# starting and filling it. At 2,000 a busy worker was replaced every 15 s; at 20,000 a worker serving
+# 500 nearby-API requests a second every 40 s, which cost the load benchmark a tenth or more of its
+# nearby throughput and raised its open-loop p95 from 6 to 23 ms (benchmarks/bench_load.py). At 200,000
+# a worker under that full load lasts some 7 minutes, and under an office's usual load days.
+max_requests = int(os.environ.get("REGISTRY_GUNICORN_MAX_REQUESTS", "200000"))
 max_requests_jitter = max_requests // 10
 
 # Trust X-Forwarded-* only from nginx on this machine.

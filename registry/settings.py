@@ -56,6 +56,8 @@ INSTALLED_APPS = [
     "django_tasks",
     "django_tasks_db",
     "registry.apps.RegistryConfig",
+    # The session table naming each session's user (registry/sessions/), read with that user in one query.
+    "registry.sessions.apps.SignInSessionsConfig",
 ]
 
 MIDDLEWARE = [
@@ -66,7 +68,8 @@ MIDDLEWARE = [
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
-    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    # Django's, taking the user read with the session (registry/auth_backend.py, registry/sessions/).
+    "registry.auth_backend.AuthenticationMiddleware",
     # Idempotency-Key on API writes: a retried write is answered once (registry/api/idempotency.py).
     "registry.api.idempotency.IdempotencyMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
@@ -138,7 +141,8 @@ CACHES = {
         "OPTIONS": {"MAX_ENTRIES": int(os.environ.get("REGISTRY_CACHE_MAX_ENTRIES", "3000"))},
     }
 }
-#: Django's database sessions, read with plain SQL (registry/sessions.py).
+#: Django's database sessions in a table naming each session's user, read with that user in one query
+#: (registry/sessions/).
 SESSION_ENGINE = "registry.sessions"
 AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
@@ -218,6 +222,8 @@ REST_FRAMEWORK = {
     # JSON only: DRF's browsable HTML pages use inline scripts and styles, which our
     # Content-Security-Policy refuses (registry/web/csp.py); /api/docs/ is the readable view.
     "DEFAULT_RENDERER_CLASSES": ["rest_framework.renderers.JSONRenderer"],
+    # DRF's negotiation, its choice remembered per Accept header (registry/api/negotiation.py).
+    "DEFAULT_CONTENT_NEGOTIATION_CLASS": "registry.api.negotiation.RememberedContentNegotiation",
     "DEFAULT_PAGINATION_CLASS": "registry.api.pagination.RegistryPagination",
     # JSON with limits: nesting depth and text that is not Unicode are 400s (registry/api/parsers.py).
     "DEFAULT_PARSER_CLASSES": [
@@ -350,6 +356,10 @@ REGISTRY = {
     "REPLICA_PIN_SECONDS": float(os.environ.get("REGISTRY_REPLICA_PIN_SECONDS", "10")),
     "REPLICA_MAX_LAG_SECONDS": float(os.environ.get("REGISTRY_REPLICA_MAX_LAG_SECONDS", "30")),
     "REPLICA_RETRY_SECONDS": float(os.environ.get("REGISTRY_REPLICA_RETRY_SECONDS", "15")),
+    # The few plain SQL reads of every signed-in request prepared once per PostgreSQL connection
+    # (registry/dbprepared.py). Turn off behind a pooler that gives each transaction another server
+    # connection (PgBouncer's transaction mode).
+    "DB_PREPARED_STATEMENTS": env_bool("REGISTRY_DB_PREPARED_STATEMENTS", True),
     # Background workers (manage.py task_worker; registry/services/workers.py): a task whose worker was
     # killed runs again, up to MAX_ATTEMPTS runs in all, then fails; workers look every RECOVER seconds.
     "TASK_MAX_ATTEMPTS": int(os.environ.get("REGISTRY_TASK_MAX_ATTEMPTS", "3")),

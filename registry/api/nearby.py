@@ -10,9 +10,11 @@ distances to 3 decimals of a metre (mm), azimuths to 6 decimal places of a degre
 from __future__ import annotations
 
 import datetime as dt
+import json
 
 from drf_spectacular.utils import OpenApiResponse, extend_schema
 from rest_framework import serializers
+from rest_framework.renderers import JSONRenderer
 from rest_framework.response import Response
 from rest_framework.views import APIView
 
@@ -114,7 +116,39 @@ class NearbyOut(serializers.Serializer):
 _FILTERS = ("status", "stability", "frame_epsg", "intact_visit_within_yr", "accuracy_class_max_m", "usable_only")
 
 
+class EncodedJSON:
+    """An answer already encoded by DRF's JSON renderer (``encoded``, UTF-8 bytes)."""
+
+    __slots__ = ("encoded",)
+
+    def __init__(self, encoded: bytes):
+        self.encoded = encoded
+
+
+def _encode(answer: dict) -> bytes:
+    """``answer`` as DRF's JSON renderer writes it by default (compact, no indent)."""
+    return JSONRenderer().render(answer, "application/json", {})
+
+
+class EncodedJSONRenderer(JSONRenderer):
+    """DRF's JSON renderer; an :class:`EncodedJSON` answer is sent as it was encoded.
+
+    Encoding the cached nearby answer (twenty marks and the cautions) on every request cost more CPU
+    than finding it. A client asking for indented JSON (``Accept: application/json; indent=2``) gets it
+    encoded again from the same answer, as before.
+    """
+
+    def render(self, data, accepted_media_type=None, renderer_context=None):
+        if isinstance(data, EncodedJSON):
+            if self.get_indent(accepted_media_type, renderer_context or {}) is None:
+                return data.encoded
+            data = json.loads(data.encoded)
+        return super().render(data, accepted_media_type, renderer_context)
+
+
 class MarksNearView(APIView):
+    renderer_classes = [EncodedJSONRenderer]
+
     @extend_schema(
         summary="Marks near a point",
         parameters=[NearbyQuery],
@@ -130,8 +164,10 @@ class MarksNearView(APIView):
         # under all three (registry.selectors.read_cache), and under the query as sent, so that a query
         # answered before is neither validated nor searched again. One that is not valid raises before
         # anything is cached.
+        # What is kept is the answer as JSON (encoded once, then sent as it is: EncodedJSONRenderer).
         raw = tuple(sorted((k, tuple(v)) for k, v in request.query_params.lists()))
-        return Response(cached_read("marks-near-answer", (raw, dt.date.today()), lambda: self._answer(request)))
+        encoded = cached_read("marks-near-json", (raw, dt.date.today()), lambda: _encode(self._answer(request)))
+        return Response(EncodedJSON(encoded))
 
     def _answer(self, request) -> dict:
         params = request.query_params.dict()

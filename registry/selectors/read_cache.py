@@ -25,6 +25,7 @@ from typing import Any, TypeVar
 from django.core.cache import cache
 from django.db import connections, router
 
+from registry import dbprepared
 from registry.models import AuditEvent
 
 READ_CACHE_SECONDS = 300
@@ -35,14 +36,14 @@ T = TypeVar("T")
 def audit_token() -> str:
     """``id@time`` of the newest audit row ('0' for an empty trail).
 
-    Read with plain SQL (it runs on every cached page) from the database the router reads audit rows
-    from, which is the one the cached reads come from (the replica on lag-tolerant pages).
+    Read with plain SQL (it runs on every cached page), prepared once per connection on PostgreSQL
+    (``registry.dbprepared``), from the database the router reads audit rows from, which is the one the
+    cached reads come from (the replica on lag-tolerant pages).
     """
     conn = connections[router.db_for_read(AuditEvent)]
     table = conn.ops.quote_name(AuditEvent._meta.db_table)
-    with conn.cursor() as cur:
-        cur.execute(f"SELECT id, {conn.ops.quote_name('at')} FROM {table} ORDER BY id DESC LIMIT 1")
-        last = cur.fetchone()
+    sql = f"SELECT id, {conn.ops.quote_name('at')} FROM {table} ORDER BY id DESC LIMIT 1"
+    last = dbprepared.fetchone(conn, "registry_audit_head", sql, [])
     return "0" if last is None else f"{last[0]}@{last[1]}"
 
 

@@ -105,3 +105,25 @@ def test_usable_only_takes_the_limit_after_the_usability_rule(district, viewer, 
     assert [m["code"] for m in r.json()["marks"]] == ["NR-100", "NR-200"] and r.json()["left_out_not_usable"] == 0
     r = client.get(URL, {"lat": 45.2, "lon": -110.6, "radius_km": 1, "usable_only": "perhaps"})
     assert r.status_code == 400
+
+
+def test_the_kept_answer_is_sent_as_drf_encodes_it_with_the_same_headers(district, viewer, api_client_for):
+    """The answer is encoded once and kept as JSON: the first and a repeated request send the same bytes
+    and headers, those bytes are what DRF's JSON renderer writes for the answer, and a client asking for
+    indented JSON still gets it indented."""
+    import json
+
+    from django.core.cache import cache
+    from rest_framework.renderers import JSONRenderer
+
+    cache.clear()
+    client = api_client_for(viewer)
+    query = {"lat": 45.2, "lon": -110.6, "radius_km": 1, "limit": 3}
+    first, again = client.get(URL, query), client.get(URL, query)
+    assert first.status_code == again.status_code == 200
+    assert first.content == again.content == JSONRenderer().render(json.loads(first.content))
+    assert first["Content-Type"] == again["Content-Type"] == "application/json"
+    assert dict(first.headers) == dict(again.headers)
+    assert [m["code"] for m in again.json()["marks"]] == ["NR-100", "NR-200", "NR-300"]
+    indented = client.get(URL, query, HTTP_ACCEPT="application/json; indent=4")
+    assert indented.content.startswith(b'{\n    "search": {') and json.loads(indented.content) == again.json()
