@@ -332,3 +332,28 @@ def test_drawing_keeps_the_sites_heights_until_a_corner_changes_and_says_so(chro
         assert all(len(c) == 2 for c in json.loads(field.input_value())["coordinates"][0])
     finally:
         context.close()
+
+
+def test_the_drawing_map_shows_the_usable_registry_marks_and_a_click_on_one_still_places_a_corner(
+    chromium, live_server, job, technician
+):
+    """The job form's drawing map shows the usable marks around the view (from the nearby API): retired
+    CRK-7 and not-found CRK-8 are left out; a mark's dot does not stop a click from placing a corner."""
+    from playwright.sync_api import expect
+
+    context, page = _context(chromium, live_server, "desktop")
+    try:
+        page.goto("/jobs/new/")
+        note = page.locator("#sitedraw-marks")
+        expect(note).to_contain_text("3 usable registry marks shown around the view")
+        dots = page.locator("path.sd-mark")
+        expect(dots).to_have_count(3)
+        dots.first.hover()
+        expect(page.locator(".leaflet-tooltip")).to_contain_text("usable registry mark")
+        codes = page.locator(".leaflet-tooltip").inner_text()
+        assert codes.split(" ")[0] in ("HAWK-1", "HAWK-2", "SAGE-4")
+        box = dots.first.bounding_box()
+        page.mouse.click(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
+        expect(page.locator("#sitedraw-status")).to_contain_text("1 corner placed")
+    finally:
+        context.close()

@@ -145,6 +145,48 @@
     if (corners.length === 1) { map.setView(corners[0], Math.max(map.getZoom() || 0, 15)); }
     else { map.fitBounds(L.latLngBounds(corners), { padding: [30, 30], maxZoom: 17 }); }
   }
+  // The registry's usable marks around the view (the nearby API, usable_only), redrawn as the map moves:
+  // small green dots with the code on hover; a click on one places a corner as anywhere else (the
+  // click goes on to the map). For orientation only: coordinates for work come from the mark page.
+  var marksLayer = L.layerGroup().addTo(map);
+  var marksNote = document.getElementById("sitedraw-marks");
+  var asked = "";
+  var timer = null;
+  function showMarks() {
+    if (!data.marks_url || !window.fetch) { return; }
+    var c = map.getCenter();
+    var edge = map.getBounds().getNorthEast();
+    var radius = Math.max(0.1, Math.min(c.distanceTo(edge) / 1000, data.marks_radius_max_km));
+    var query = "lat=" + c.lat.toFixed(6) + "&lon=" + L.Util.wrapNum(c.lng, [-180, 180], true).toFixed(6) +
+      "&radius_km=" + radius.toFixed(3) + "&limit=" + data.marks_limit + "&usable_only=true";
+    if (query === asked) { return; }
+    asked = query;
+    fetch(data.marks_url + "?" + query, { credentials: "same-origin", headers: { Accept: "application/json" } })
+      .then(function (r) { return r.ok ? r.json() : null; })
+      .then(function (body) {
+        if (!body || query !== asked) { return; }  // a later view's answer wins
+        marksLayer.clearLayers();
+        body.marks.forEach(function (m) {
+          L.circleMarker([m.lat_deg, m.lon_deg], { radius: 5, color: "#ffffff", weight: 1.5, fillColor: "#2f5d34",
+            fillOpacity: 1, className: "sd-mark", bubblingMouseEvents: true })
+            .bindTooltip(m.code + " (usable registry mark)", { direction: "top", offset: [0, -6] })
+            .addTo(marksLayer);
+        });
+        if (marksNote) {
+          marksNote.textContent = body.count ?
+            body.count + " usable registry mark" + (body.count === 1 ? "" : "s") + " shown around the view" +
+              (body.count >= data.marks_limit ? " (the nearest " + data.marks_limit + ")" : "") +
+              ": green dots, for orientation; take coordinates for work from the mark page." :
+            "No usable registry mark around this view.";
+        }
+      })
+      .catch(function () { /* the drawing works without them */ });
+  }
+  map.on("moveend", function () {
+    if (timer) { clearTimeout(timer); }
+    timer = setTimeout(showMarks, 250);
+  });
+
   if (field.value.trim() && readField()) {
     fit();  // the view first: markers need one
     redraw();
@@ -156,4 +198,5 @@
     redraw();
   }
   kit.drawGraticule();
+  showMarks();
 })();
