@@ -140,3 +140,22 @@ def test_the_migration_copies_signed_in_sessions_with_their_users(viewer):
     assert set(copied) == {old.session_key, anonymous.session_key}
     assert copied[old.session_key].user_id == viewer.pk and copied[anonymous.session_key].user_id is None
     assert copied[old.session_key].get_decoded()[SESSION_KEY] == str(viewer.pk)
+
+
+@pytest.mark.django_db
+def test_clearsessions_removes_the_expired_sessions_of_the_new_table_only(client, viewer, manager):
+    """``manage.py clearsessions`` (run by the nightly backup unit) works on the table the engine uses."""
+    import datetime as dt
+
+    from django.core.management import call_command
+    from django.utils import timezone
+
+    client.force_login(viewer)
+    live = _row(client)
+    other = type(client)()
+    other.force_login(manager)
+    expired = _row(other)
+    SignInSession.objects.filter(pk=expired.pk).update(expire_date=timezone.now() - dt.timedelta(days=1))
+    call_command("clearsessions")
+    assert list(SignInSession.objects.values_list("session_key", flat=True)) == [live.session_key]
+    assert client.get(NEAR).status_code == 200
