@@ -39,6 +39,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from registry.geodesy.conversions import GRS80, Ellipsoid, ellipsoid_of_epsg, radii_of_curvature_m
+from registry.geodesy.frames import crs_label
 
 if TYPE_CHECKING:
     import pyproj
@@ -116,7 +117,7 @@ class GridCRS:
     def label(self) -> str:
         if self.code:
             return f"{self.name} (custom grid {self.code})"
-        return f"{self.name} ({f'EPSG:{self.epsg}' if self.epsg else 'no EPSG code'})"
+        return crs_label(self.name, self.epsg) if self.epsg else f"{self.name} (no EPSG code)"
 
     @property
     def in_feet(self) -> bool:
@@ -299,8 +300,9 @@ def resolve_grid(grid, *, frame_epsg: int, lat_deg=None, lon_deg=None) -> GridCR
 
         frame = pyproj.CRS.from_epsg(int(frame_epsg))
         raise GridError(
-            f"Grid {resolved.name}{f' (EPSG:{resolved.epsg})' if resolved.epsg else ''} is defined on "
-            f"{getattr(resolved.crs.geodetic_crs, 'name', resolved.name)}, but the coordinates are in {frame.name} (EPSG:{frame_epsg}). "
+            f"Grid {crs_label(resolved.name, resolved.epsg) if resolved.epsg else resolved.name} is defined on "
+            f"{getattr(resolved.crs.geodetic_crs, 'name', resolved.name)}, but the coordinates are in "
+            f"{crs_label(frame.name, frame_epsg)}. "
             "Transform them to the grid's datum first, or use 'utm' on the frame's own datum.",
             code="datum_mismatch",
         )

@@ -24,6 +24,7 @@ import numpy as np
 
 from registry.geodesy import grid as grid_geo
 from registry.geodesy import site as site_geo
+from registry.geodesy.frames import crs_label
 from registry.selectors.screening import preferred_heights
 from registry.services.screening.result import Candidate, ScreeningResult
 from registry.services.screening.statement import error_model_words
@@ -95,7 +96,7 @@ def _grid_columns(result: ScreeningResult, c: Candidate) -> dict[str, str]:
     k = float(g.scale_factor)
     ef = float(grid_geo.elevation_factor(c.h_m, lat_deg=c.lat_deg))
     return {
-        "grid": g.grid.name if g.grid.epsg is None else f"{g.grid.name} (EPSG:{g.grid.epsg})",
+        "grid": g.grid.name if g.grid.epsg is None else crs_label(g.grid.name, g.grid.epsg),
         "easting_m": f"{float(g.easting_m):.3f}",
         "northing_m": f"{float(g.northing_m):.3f}",
         "scale_factor": f"{k:.8f}",
