@@ -53,6 +53,8 @@ class MarkMap:
 #: Height of a graticule label (10 px type) and the width of one of its characters, generously.
 LABEL_PX = 10
 LABEL_CHAR_PX = 6.5
+#: The same for a mark's code beside its symbol (11 px type).
+CODE_CHAR_PX = 7.0
 
 
 def label_width_px(text: str) -> float:
@@ -180,9 +182,15 @@ def draw_svg(m: MarkMap) -> str:
                 f'<path d="M{x - 4} {y - 4}L{x + 4} {y + 4}M{x - 4} {y + 4}L{x + 4} {y - 4}" stroke="#8b1d1d" '
                 'stroke-width="1.6"/>'
             )
-        label = (
-            f'<text x="{x + 8}" y="{y + 4}" font-size="11" fill="#1d1f21">{escape(p.code)}</text>' if label_all else ""
-        )
+        label = ""
+        if label_all:  # beside the symbol, on its left where the right would run off the map
+            if x + 8 + len(p.code) * CODE_CHAR_PX <= WIDTH_PX:
+                label = f'<text x="{x + 8}" y="{y + 4}" font-size="11" fill="#1d1f21">{escape(p.code)}</text>'
+            else:
+                label = (
+                    f'<text x="{x - 8}" y="{y + 4}" font-size="11" text-anchor="end" fill="#1d1f21">'
+                    f"{escape(p.code)}</text>"
+                )
         link_open = f'<a href="{escape(p.url)}">' if p.url else ""
         link_close = "</a>" if p.url else ""
         out.append(f"{link_open}<g><title>{escape(words)}</title>{shape}{label}</g>{link_close}")

@@ -126,3 +126,24 @@ def test_graticule_labels_stay_on_the_map_and_clear_of_each_other(points):
         for b, bb in boxes[i + 1 :]:
             apart = ba[2] <= bb[0] or bb[2] <= ba[0] or ba[3] <= bb[1] or bb[3] <= ba[1]
             assert apart, (a, b)
+
+
+def test_a_code_at_the_right_edge_is_written_on_the_left_of_its_symbol():
+    from registry.web.mark_map import CODE_CHAR_PX, WIDTH_PX
+
+    svg = build_map(
+        [
+            MapPoint("KV-001", 45.2, -110.6, True, "usable", "", ""),
+            MapPoint("KV-002", 45.1875, -110.6342, True, "usable", "", ""),
+        ]
+    ).svg
+    for code in ("KV-001", "KV-002"):
+        x, anchor = re.search(
+            rf'<text x="([-\d.]+)" y="[-\d.]+" font-size="11"( text-anchor="end")?[^>]*>{code}</text>', svg
+        ).groups()
+        left, right = (
+            (float(x) - len(code) * CODE_CHAR_PX, float(x))
+            if anchor
+            else (float(x), float(x) + len(code) * CODE_CHAR_PX)
+        )
+        assert 0 <= left and right <= WIDTH_PX, (code, left, right)
