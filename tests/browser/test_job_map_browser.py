@@ -45,10 +45,14 @@ def job(manager, technician):
     )
 
 
-def _context(chromium, live_server, width):
+def _context(chromium, live_server, width, javascript=True):
     phone = width == "phone"
     context = chromium.new_context(
-        viewport={"width": WIDTHS[width], "height": 900}, base_url=live_server.url, is_mobile=phone, has_touch=phone
+        viewport={"width": WIDTHS[width], "height": 900},
+        base_url=live_server.url,
+        is_mobile=phone and javascript,
+        has_touch=phone and javascript,
+        java_script_enabled=javascript,
     )
     context.set_default_timeout(20_000)
     page = context.new_page()
@@ -147,15 +151,8 @@ def test_job_page_map_taps_tell_code_and_figures(chromium, live_server, job, tec
 def test_job_page_without_javascript_keeps_the_svg_with_words_and_links(chromium, live_server, job, technician):
     from playwright.sync_api import expect
 
-    context = chromium.new_context(
-        viewport={"width": 390, "height": 900}, base_url=live_server.url, java_script_enabled=False
-    )
+    context, page = _context(chromium, live_server, "phone", javascript=False)
     try:
-        page = context.new_page()
-        page.goto("/signin/")
-        page.get_by_label("User name").fill("theo")
-        page.get_by_label("Password").fill("pw-theo-123!")
-        page.get_by_role("button", name="Sign in").click()
         page.goto("/jobs/J-2025-014/")
         expect(page.locator("svg.jobmap")).to_be_visible()
         expect(page.locator("#jobmap-live")).to_be_hidden()
@@ -286,15 +283,8 @@ def test_job_form_without_javascript_hides_the_drawing_and_takes_typed_coordinat
 
     from registry.models import Job
 
-    context = chromium.new_context(
-        viewport={"width": 390, "height": 900}, base_url=live_server.url, java_script_enabled=False
-    )
+    context, page = _context(chromium, live_server, "phone", javascript=False)
     try:
-        page = context.new_page()
-        page.goto("/signin/")
-        page.get_by_label("User name").fill("theo")
-        page.get_by_label("Password").fill("pw-theo-123!")
-        page.get_by_role("button", name="Sign in").click()
         page.goto("/jobs/new/")
         expect(page.locator("#sitedraw")).to_be_hidden()
         _fill_required(page, "J-TYPED")
