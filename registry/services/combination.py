@@ -22,6 +22,7 @@ import numpy as np
 from django.core.exceptions import ValidationError
 from django.db import transaction
 
+from registry.formatting import format_utc
 from registry.geodesy.accuracy import ComputationInputError
 from registry.geodesy.conversions import (
     ecef_to_geodetic,
@@ -32,7 +33,7 @@ from registry.geodesy.conversions import (
 )
 from registry.geodesy.statements import combination_text
 from registry.geodesy.stats import velocity_fit, weighted_combination
-from registry.models import Position, PositionState
+from registry.models import AuditEvent, Position, PositionState
 from registry.roles import Ability
 from registry.services._input import field_error
 from registry.services.access import access_mark_by_code
@@ -44,7 +45,9 @@ USABLE_STATES = (PositionState.PROPOSED, PositionState.PUBLISHED, PositionState.
 
 
 def _solutions(actor, mark_code: str, position_ids: list[Any], *, minimum: int) -> list[Position]:
-    mark = access_mark_by_code(actor, mark_code, ability=Ability.MANAGE)
+    # Locked (inside the caller's transaction) so that two requests for the same proposal run one after the
+    # other and the second sees the first's (``_refuse_repeat``).
+    mark = access_mark_by_code(actor, mark_code, ability=Ability.MANAGE, for_update=True)
     try:
         ids = sorted({int(i) for i in position_ids})
     except (TypeError, ValueError):
@@ -70,6 +73,32 @@ def _solutions(actor, mark_code: str, position_ids: list[Any], *, minimum: int) 
     if len(frames) != 1:
         raise field_error("position_ids", "All solutions must be in one frame; transform them first.", "mixed_frames")
     return found
+
+
+def _refuse_repeat(action: str, found: list[Position]) -> None:
+    """A combination or velocity of exactly these solutions that still waits for a decision is not proposed
+    again (a double click, a resent form, a retried request): the manager decides the first one."""
+    mark = found[0].mark
+    ids = sorted(p.pk for p in found)
+    waiting = {
+        str(pk): when
+        for pk, when in Position.objects.filter(mark=mark, state=PositionState.PROPOSED).values_list("pk", "created_at")
+    }
+    if not waiting:
+        return
+    events = AuditEvent.objects.filter(
+        mark=mark, action=action, object_type=Position._meta.model_name, object_id__in=list(waiting)
+    ).values_list("object_id", "after")
+    for object_id, after in events:
+        if sorted((after or {}).get("from_position_ids") or []) == ids:
+            what = "combination" if action == "positions_combine" else "velocity fit"
+            raise field_error(
+                "position_ids",
+                f"A {what} of these {len(ids)} solutions of {mark.code} was already proposed "
+                f"({format_utc(waiting[object_id])}) and waits for a decision on the proposals page; "
+                "publish or reject it before proposing it again.",
+                "already_proposed",
+            )
 
 
 def _offsets(found: list[Position]) -> tuple[np.ndarray, np.ndarray, Position]:
@@ -110,6 +139,7 @@ def positions_combine(*, actor, mark_code: str, position_ids: list[Any]) -> tupl
     """Propose the weighted combination of solutions at one epoch (manager). Returns (proposal, result)."""
     with transaction.atomic():
         found = _solutions(actor, mark_code, position_ids, minimum=2)
+        _refuse_repeat("positions_combine", found)
         epochs = [p.epoch_yr for p in found]
         if max(epochs) - min(epochs) > SAME_EPOCH_TOLERANCE_YR:
             raise field_error(
@@ -182,6 +212,7 @@ def positions_velocity(*, actor, mark_code: str, position_ids: list[Any]) -> tup
     """Propose x₀ and the velocity fitted to ≥ 3 solutions spanning ≥ 2.5 yr (manager). Returns (proposal, fit)."""
     with transaction.atomic():
         found = _solutions(actor, mark_code, position_ids, minimum=3)
+        _refuse_repeat("positions_velocity", found)
         x, cov, origin = _offsets(found)
         try:
             fit = velocity_fit([p.epoch_yr for p in found], x, cov)

@@ -133,6 +133,50 @@ def test_api_and_command_propose_a_combination(mark, technician, manager, viewer
     bad = api_client_for(manager).post("/api/marks/CB-01/combine/", {"position_ids": ids[:1]}, format="json")
     assert bad.status_code == 400 and bad.json()["error"]["details"]["position_ids"][0]["code"] == "too_few_solutions"
     out = io.StringIO()
-    call_command("combine_positions", "--mark", "CB-01", "--ids", *map(str, ids), "--as", "mona", "--json", stdout=out)
+    # the API's proposal of these three waits for a decision, so the command combines two of them
+    call_command(
+        "combine_positions", "--mark", "CB-01", "--ids", *map(str, ids[1:]), "--as", "mona", "--json", stdout=out
+    )
     data = json.loads(out.getvalue())
-    assert "Weighted combination of 3 solutions" in data["statement"]
+    assert "Weighted combination of 2 solutions" in data["statement"]
+    again = api_client_for(manager).post("/api/marks/CB-01/combine/", {"position_ids": ids}, format="json")
+    assert again.status_code == 400
+    assert again.json()["error"]["details"]["position_ids"][0]["code"] == "already_proposed"
+
+
+def test_the_same_proposal_is_not_made_twice_until_the_first_is_decided(mark, technician, manager):
+    """A double click or a resent form: the second request for the same combination changes nothing."""
+    from registry.services.positions import position_reject
+
+    ids = [position_propose(actor=technician, mark_code="CB-01", data=at(0.002 * k, 0)).pk for k in range(3)]
+    first, _ = positions_combine(actor=manager, mark_code="CB-01", position_ids=ids)
+    before = (Position.objects.count(), AuditEvent.objects.count())
+    with pytest.raises(ValidationError) as info:
+        positions_combine(actor=manager, mark_code="CB-01", position_ids=list(reversed(ids)))
+    error = info.value.error_dict["position_ids"][0]
+    assert error.code == "already_proposed"
+    assert "already proposed" in error.message and "CB-01" in error.message and "3 solutions" in error.message
+    assert (Position.objects.count(), AuditEvent.objects.count()) == before
+    # Another choice of solutions is another proposal.
+    other, _ = positions_combine(actor=manager, mark_code="CB-01", position_ids=ids[:2])
+    assert other.pk != first.pk
+    # Once the first is rejected, the same solutions may be combined again.
+    position_reject(actor=manager, position_id=first.pk, note="Combined again after checking the antenna heights.")
+    again, _ = positions_combine(actor=manager, mark_code="CB-01", position_ids=ids)
+    assert again.pk not in (first.pk, other.pk)
+
+
+def test_the_same_velocity_fit_is_not_proposed_twice(mark, technician, manager):
+    ids = [
+        position_propose(actor=technician, mark_code="CB-01", data=at(-0.01 * (t - 2015), 0, epoch_yr=float(t))).pk
+        for t in (2015, 2018, 2021)
+    ]
+    positions_velocity(actor=manager, mark_code="CB-01", position_ids=ids)
+    with pytest.raises(ValidationError) as info:
+        positions_velocity(actor=manager, mark_code="CB-01", position_ids=ids)
+    assert info.value.error_dict["position_ids"][0].code == "already_proposed"
+    assert "velocity fit" in info.value.error_dict["position_ids"][0].message
+    # A combination of the same solutions is a different proposal (here refused for its own reason: epochs differ).
+    with pytest.raises(ValidationError) as info:
+        positions_combine(actor=manager, mark_code="CB-01", position_ids=ids)
+    assert info.value.error_dict["position_ids"][0].code == "mixed_epochs"

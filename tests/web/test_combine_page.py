@@ -110,3 +110,13 @@ def test_linked_from_the_mark_page_and_the_queue(sessions, signed_in, manager, t
     assert link in signed_in(manager).get(reverse("web:mark-detail", args=["CB-01"])).content.decode()
     assert link in signed_in(manager).get(reverse("web:proposals")).content.decode()
     assert link not in signed_in(technician).get(reverse("web:mark-detail", args=["CB-01"])).content.decode()
+
+
+def test_a_second_click_on_combine_makes_no_second_proposal(sessions, signed_in, manager):
+    client = signed_in(manager)
+    assert client.post(url(), {"position": sessions, "action": "combine"}).status_code == 302
+    before = counts()
+    again = client.post(url(), {"position": sessions, "action": "combine"})
+    assert again.status_code == 400
+    assert "already proposed" in again.content.decode() and "waits for a decision" in again.content.decode()
+    assert counts() == before
