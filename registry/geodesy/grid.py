@@ -427,8 +427,11 @@ def outside_area(lat_deg, lon_deg, *, grid: GridCRS):
     return ~(in_lat & in_lon)
 
 
-def area_of_use_warnings(lat_deg, lon_deg, *, grid: GridCRS, scale_factor=None) -> list[str]:
+def area_of_use_warnings(lat_deg, lon_deg, *, grid: GridCRS, scale_factor=None, who: str | None = None) -> list[str]:
     """Sentences for the user when points fall outside ``grid``'s area of use (empty list otherwise).
+
+    ``who`` replaces the sentence's subject ("The point is", "2 of 5 points are") when the caller can name
+    the points better (e.g. "The site is").
 
     Outside its area a projection still computes, but its distortion grows quickly (a transverse
     Mercator ≈ k0 (1 + Δλ² cos²φ / 2) away from its central meridian) and the grid is not the one
@@ -440,7 +443,8 @@ def area_of_use_warnings(lat_deg, lon_deg, *, grid: GridCRS, scale_factor=None) 
     assert grid.area is not None  # outside_area finds nothing outside a grid without an area
     west, south, east, north = grid.area
     n_out, n_all = int(np.count_nonzero(out)), int(out.size)
-    who = "The point is" if n_all == 1 else f"{n_out} of {n_all} points are"
+    if who is None:
+        who = "The point is" if n_all == 1 else f"{n_out} of {n_all} points are"
     k_text = ""
     if scale_factor is not None:
         k = np.asarray(scale_factor, dtype=float).reshape(out.shape)[out]

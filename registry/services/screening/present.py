@@ -37,6 +37,7 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
             "heights_given": len(s.site.heights_m),
         },
         "frame": {"epsg": s.frame_epsg, "name": result.frame_label},
+        "deliverable_grid": result.grid_label,
         "epoch_yr": s.epoch_yr,
         "tolerances": {"horizontal_95_mm": s.tol_h_mm, "vertical_95_mm": s.tol_v_mm},
         "settings": {

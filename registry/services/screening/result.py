@@ -126,6 +126,8 @@ class ScreeningResult:
     assignment: np.ndarray | None = None
     #: The field date the motion term runs to (the job's, else the screening's date).
     field_date: dt.date | None = None
+    #: The deliverable grid at the site, for people ("" when it cannot be computed there).
+    grid_label: str = ""
 
     @property
     def frame_label(self) -> str:

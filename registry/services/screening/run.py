@@ -30,6 +30,7 @@ from registry.selectors.screening import screening_records
 from registry.services.access import access_job_by_code, require_ability
 from registry.services.screening import rules
 from registry.services.screening.checks import choose_check_marks
+from registry.services.screening.deliverable import deliverable_grid_at_site
 from registry.services.screening.motion import apply_site_motion, field_epoch_yr
 from registry.services.screening.params import ScreeningSettings, settings_from_data, settings_from_job
 from registry.services.screening.placing import candidates_from_records
@@ -55,7 +56,7 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
         lat_deg=s.site.ref_lat_deg, lon_deg=s.site.ref_lon_deg, radius_m=radius, as_of=as_of, limit=MAX_CANDIDATES
     )
     cands = candidates_from_records(records, s, as_of)
-    warnings: list[str] = []
+    grid_label, warnings = deliverable_grid_at_site(s.site, frame_epsg=s.frame_epsg, grid=s.grid)
     if not cands:
         return ScreeningResult(
             s,
@@ -69,6 +70,7 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
             [],
             f"No marks in the registry within {radius / 1000:.1f} km of the site. Nothing can serve as a base.",
             warnings,
+            grid_label=grid_label,
         )
     k = len(cands)
     lat = np.array([c.lat_deg for c in cands], dtype=float)
@@ -169,6 +171,7 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
         warnings,
         assignment=assignment,
         field_date=field_epoch_yr(s, as_of)[0],
+        grid_label=grid_label,
     )
 
 

@@ -20,6 +20,8 @@ def text_report(result: ScreeningResult) -> list[str]:
         f"{s.epoch_yr:.3f}; tolerances {s.tol_h_mm:.1f} mm H / {s.tol_v_mm:.1f} mm V at 95 %; "
         f"site: {s.site.kind}, {result.grid.n_cells} cells"
     )
+    if result.grid_label:
+        w(f"  deliverable grid {result.grid_label}")
     w(f"  RTK error model: {error_model_words(s)}")
     w(
         f"  base setup {s.model.setup_h_mm:g} / {s.model.setup_v_mm:g} mm, rover pole {s.model.rover_h_mm:g} / "
