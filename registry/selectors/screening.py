@@ -23,12 +23,55 @@ class MarkRecords:
     coordinate epoch first (ties: newest id).
     ``last_visit_finding``: the finding of its latest visit on or before the date (None: no visit).
     ``last_intact_on``: the day of its latest ``intact`` visit on or before the date (None: none).
+    ``status``: its status at the end of the date (:func:`status_as_of`; its current one for today).
     """
 
     mark: Mark
     last_visit_finding: str | None
     last_intact_on: dt.date | None
     published: list[Position] = field(default_factory=list)
+    status: str = ""
+
+    def __post_init__(self) -> None:
+        self.status = self.status or self.mark.status
+
+
+def _end_of(day: dt.date) -> dt.datetime:
+    return dt.datetime.combine(day + dt.timedelta(days=1), dt.time.min, tzinfo=dt.UTC)
+
+
+def status_as_of(marks, as_of: dt.date) -> dict[int, str]:
+    """Each mark's status at the end of ``as_of`` (UTC), from the audit trail.
+
+    Every status change goes through an audited service that records the status before and after (made
+    suspect, suspicion lifted, retired, recorded destroyed, imports); the first real change after the date
+    holds in its "before" the status the mark had then. With no change since, the status is today's.
+    Refused attempts (actions ending in ``_refused``) changed nothing and are skipped.
+    """
+    from registry.models import AuditEvent
+
+    current = {m.pk: m.status for m in marks}
+    if not current or as_of >= dt.datetime.now(dt.UTC).date():
+        return current
+    then: dict[int, str] = {}
+    events = (
+        AuditEvent.objects.filter(
+            object_type=Mark._meta.model_name,
+            object_id__in=[str(pk) for pk in current],
+            at__gte=_end_of(as_of),
+            before__has_key="status",
+        )
+        .exclude(action__endswith="_refused")
+        .order_by("at", "pk")
+        .values_list("object_id", "before", "after")
+    )
+    for object_id, before, after in events:
+        pk = int(object_id)
+        if pk in then or not isinstance(before, dict) or not isinstance(after, dict):
+            continue
+        if after.get("status") not in (None, before.get("status")):
+            then[pk] = before["status"]
+    return {pk: then.get(pk, status) for pk, status in current.items()}
 
 
 def published_as_of(mark_ids, as_of: dt.date):
@@ -39,7 +82,7 @@ def published_as_of(mark_ids, as_of: dt.date):
     since is left out whatever the date (its publication time is no longer recorded): the
     registry does not screen with coordinates it has taken back.
     """
-    end = dt.datetime.combine(as_of + dt.timedelta(days=1), dt.time.min, tzinfo=dt.UTC)
+    end = _end_of(as_of)
     published_then = Q(decided_at__isnull=True) | Q(decided_at__lt=end)
     still = Q(state=PositionState.PUBLISHED) | Q(
         state=PositionState.SUPERSEDED, superseded_at__isnull=False, superseded_at__gte=end
@@ -72,12 +115,14 @@ def screening_records(
     positions: dict[int, list[Position]] = {}
     for p in published_as_of(ids, as_of).order_by("mark_id", "-epoch_yr", "-id"):
         positions.setdefault(p.mark_id, []).append(p)
+    status = status_as_of(marks, as_of)
     return [
         MarkRecords(
             mark=m,
             last_visit_finding=last_visit.get(m.pk),
             last_intact_on=last_good.get(m.pk),
             published=positions.get(m.pk, []),
+            status=status[m.pk],
         )
         for m in marks
     ]

@@ -54,7 +54,7 @@ def candidates_from_records(records: list[MarkRecords], s: ScreeningSettings, as
             break
         good = rec.last_intact_on
         facts = rules.MarkFacts(
-            status=mark.status,
+            status=rec.status,  # as of the screening's date
             sky_view=mark.sky_view,
             last_visit_condition=rec.last_visit_finding,
             years_since_good_visit=None if good is None else years_between(good, as_of),

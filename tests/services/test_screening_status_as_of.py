@@ -1,0 +1,85 @@
+"""Screening as of a past date uses each mark's status as it stood then (selectors.screening.status_as_of):
+a mark recorded destroyed today was a usable base yesterday, and a mark put back into use today was not.
+
+The rule is the registry's own (the first audited status change after the date holds the earlier status);
+the dates are relative to the day the test runs, the marks and job invented (tests/services/test_screening.py).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import pytest
+
+from registry.models import AuditEvent, Mark, MarkStatus
+from registry.selectors.screening import status_as_of
+from registry.services.marks import mark_set_status
+from registry.services.screening import job_screen
+from tests.services.test_screening import make_job, make_mark
+
+pytestmark = pytest.mark.django_db
+
+
+def today():
+    return dt.datetime.now(dt.UTC).date()
+
+
+def reasons(result, code):
+    return next(c for c in result.candidates if c.mark.code == code).reasons
+
+
+def test_destroyed_today_was_usable_yesterday(viewer, manager):
+    mark = make_mark("SA-1", 800.0, 10.0)
+    make_job()
+    mark_set_status(
+        actor=manager,
+        code="SA-1",
+        status=MarkStatus.DESTROYED,
+        expected_version=mark.version,
+        note="Found broken out by road works.",
+    )
+    assert "not_active" in reasons(job_screen(actor=viewer, code="J-SCR", as_of=today()), "SA-1")
+    assert reasons(job_screen(actor=viewer, code="J-SCR", as_of=today() - dt.timedelta(days=1)), "SA-1") == []
+
+
+def test_put_back_into_use_today_was_retired_yesterday(viewer, manager):
+    mark = make_mark("SA-2", 800.0, 10.0, status=MarkStatus.RETIRED)
+    make_job()
+    mark_set_status(actor=manager, code="SA-2", status=MarkStatus.ACTIVE, expected_version=mark.version)
+    assert reasons(job_screen(actor=viewer, code="J-SCR", as_of=today()), "SA-2") == []
+    assert "not_active" in reasons(job_screen(actor=viewer, code="J-SCR", as_of=today() - dt.timedelta(days=1)), "SA-2")
+
+
+def test_the_first_change_after_the_date_decides_and_refused_attempts_do_not_count():
+    mark = Mark.objects.create(
+        code="SA-3", name="Invented SA-3", status=MarkStatus.ACTIVE, search_lat_deg=45.0, search_lon_deg=-110.0
+    )
+    t = dt.datetime(2025, 3, 1, 12, tzinfo=dt.UTC)
+
+    def event(days, action, before, after):
+        AuditEvent.objects.create(
+            at=t + dt.timedelta(days=days),
+            action=action,
+            object_type="mark",
+            object_id=str(mark.pk),
+            mark=mark,
+            before={"status": before},
+            after={"status": after},
+        )
+
+    event(0, "mark_set_status", "active", "retired")  # 1 March: retired
+    event(5, "mark_set_status_refused", "retired", "destroyed")  # refused: nothing changed
+    event(10, "mark_set_status", "retired", "active")  # 11 March: back into use
+    event(20, "mark_make_suspect", "active", "suspect")  # 21 March: suspect, and still is
+    Mark.objects.filter(pk=mark.pk).update(status=MarkStatus.SUSPECT)
+    mark.refresh_from_db()
+    want = {
+        dt.date(2025, 2, 28): "active",
+        dt.date(2025, 3, 1): "retired",  # the end of the day of the change
+        dt.date(2025, 3, 6): "retired",  # the refused attempt changed nothing
+        dt.date(2025, 3, 11): "active",
+        dt.date(2025, 3, 20): "active",
+        dt.date(2025, 3, 21): "suspect",
+        today(): "suspect",
+    }
+    assert {day: status_as_of([mark], day)[mark.pk] for day in want} == want
