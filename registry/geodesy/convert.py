@@ -207,6 +207,7 @@ def convert_point(
     velocity_enu_m_yr=None,
     plate: str | None = None,
     plate_explicit: bool = False,
+    assumed_rate_plate_fixed_mm_yr: float | None = None,
 ) -> PointConversion:
     """Convert one point given in one of three forms to every form, in a target frame and epoch.
 
@@ -235,7 +236,7 @@ def convert_point(
         Geoid model for the orthometric height (None: no orthometric height). The height is first
         brought into the model's frame at the target epoch (see
         :func:`registry.geodesy.heights.orthometric_from_ellipsoidal`).
-    assumed_rate_mm_yr, velocity_enu_m_yr, plate, plate_explicit
+    assumed_rate_mm_yr, assumed_rate_plate_fixed_mm_yr, velocity_enu_m_yr, plate, plate_explicit
         See :func:`registry.geodesy.frames.transform_position` (``plate``: "AUTO" or the ITRF2020
         plate motion model's plate for epoch changes in a dynamic frame without a velocity;
         ``velocity_enu_m_yr``: the point's own velocity in the input frame, m/yr east, north, up).
@@ -340,6 +341,7 @@ def convert_point(
             to_epoch_yr=t2,
             velocity_enu_m_yr=velocity_enu_m_yr,
             assumed_rate_mm_yr=assumed_rate_mm_yr,
+            assumed_rate_plate_fixed_mm_yr=assumed_rate_plate_fixed_mm_yr,
             plate=plate,
             plate_explicit=plate_explicit,
         )

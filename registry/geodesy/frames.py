@@ -350,6 +350,7 @@ def transform_position(
     plate: str | None = None,
     plate_explicit: bool = False,
     plate_origin_rate_bias: bool = False,
+    assumed_rate_plate_fixed_mm_yr: float | None = None,
 ) -> FrameTransformResult:
     """Move positions from (frame A, epoch t1) to (frame B, epoch t2).
 
@@ -368,6 +369,10 @@ def transform_position(
     assumed_rate_mm_yr : float
         Assumed unmodelled rate per axis when no velocity is given (mm/yr). With a plate model
         applied, the assumed residual rate relative to the rigid plate.
+    assumed_rate_plate_fixed_mm_yr : float, optional
+        The same for an epoch change held in a plate-fixed frame (NAD83(2011), ETRF2000, GDA2020, ...),
+        where a mark off deforming zones moves by a fraction of a millimetre a year; None: the same as
+        ``assumed_rate_mm_yr``. The rate follows the frame the coordinates are held in, not the target's.
     plate : str, optional
         ``"AUTO"`` or a plate code of the ITRF2020 plate motion model (e.g. ``"NOAM"``). When given,
         a point without a velocity that has to change epoch in a dynamic frame moves with a plate
@@ -404,8 +409,12 @@ def transform_position(
     t1 = _check_epoch(from_epoch_yr, "Source epoch")
     t2 = _check_epoch(to_epoch_yr, "Target epoch")
     rate_m_yr = float(assumed_rate_mm_yr) / 1000.0
-    if not math.isfinite(rate_m_yr) or rate_m_yr < 0:
-        raise FrameTransformError("The assumed rate must be a non-negative number (mm/yr).", code="bad_rate")
+    fixed_rate_mm_yr = float(
+        assumed_rate_mm_yr if assumed_rate_plate_fixed_mm_yr is None else assumed_rate_plate_fixed_mm_yr
+    )
+    for value in (rate_m_yr, fixed_rate_mm_yr):
+        if not math.isfinite(value) or value < 0:
+            raise FrameTransformError("The assumed rate must be a non-negative number (mm/yr).", code="bad_rate")
     plate_code = None
     if plate not in (None, ""):
         if str(plate).strip().upper() == _plates.AUTO:
@@ -433,7 +442,9 @@ def transform_position(
 
     def _hold(frame: FrameInfo, la, lo, hh):
         nonlocal sig, unmodelled_hold_yr
-        added = rate_m_yr * abs(dt)
+        moving = frame.dynamic or frame.ensemble
+        rate_mm_yr = float(assumed_rate_mm_yr) if moving else fixed_rate_mm_yr
+        added = rate_mm_yr / 1000.0 * abs(dt)
         sig = (np.sqrt(sig[0] ** 2 + added**2), np.sqrt(sig[1] ** 2 + added**2), np.sqrt(sig[2] ** 2 + added**2))
         if plate_code is not None and (frame.dynamic or frame.ensemble):
             return _plate_motion(frame, la, lo, hh, added)
@@ -441,8 +452,8 @@ def transform_position(
             Step(
                 kind="hold",
                 description=(
-                    f"no velocity known: coordinates held; assumed rate {assumed_rate_mm_yr:g} mm/yr per axis "
-                    f"× {abs(dt):.3f} yr"
+                    f"no velocity known: coordinates held; assumed rate {rate_mm_yr:g} mm/yr per axis "
+                    f"× {abs(dt):.3f} yr" + ("" if moving else " (plate-fixed frame)")
                 ),
                 accuracy_m=added,
                 from_label=frame.label,

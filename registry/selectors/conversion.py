@@ -6,7 +6,8 @@ depends on the office's configuration:
 - the geoid model (``REGISTRY["GEOID_MODEL"]`` in ``REGISTRY["GEOID_DIR"]``, with the frame its
   ellipsoidal heights are in, ``REGISTRY["GEOID_FRAME"]``; else the labelled EGM96 fallback, whose
   frame is stated in :mod:`registry.geodesy.heights`);
-- the assumed rate for epoch changes without a velocity (``REGISTRY["ASSUMED_RATE_MM_YR"]``);
+- the assumed rates for epoch changes without a velocity (``REGISTRY["ASSUMED_RATE_MM_YR"]`` in a dynamic
+  frame, ``REGISTRY["ASSUMED_RATE_PLATE_FIXED_MM_YR"]`` in a plate-fixed one: :func:`configured_assumed_rates`);
 - the plate rule for such epoch changes in a dynamic frame (``REGISTRY["PLATE"]``: ``AUTO`` — each
   point's plate from its location —, the office's plate code — points located on another plate are
   refused —, or empty: none, the result then carries a warning that plate motion is not modelled).
@@ -35,6 +36,18 @@ def configured_plate() -> str | None:
     """``REGISTRY["PLATE"]`` upper-cased: "AUTO", a plate code, or None when the setting is empty."""
     value = (settings.REGISTRY.get("PLATE") or "").strip().upper()
     return value or None
+
+
+def configured_assumed_rates() -> dict[str, float]:
+    """The office's assumed unmodelled rates (mm/yr per axis) for a point without a velocity, by the kind of
+    frame its coordinates are held in: ``assumed_rate_mm_yr`` (dynamic, e.g. ITRF) and
+    ``assumed_rate_plate_fixed_mm_yr`` (plate-fixed, e.g. NAD83(2011)). Conversions and movement checks use
+    them as they are; a new job takes them as its defaults (``services.job_fields.settings_defaults``)."""
+    cfg = settings.REGISTRY
+    return {
+        "assumed_rate_mm_yr": float(cfg.get("ASSUMED_RATE_MM_YR", 2.0)),
+        "assumed_rate_plate_fixed_mm_yr": float(cfg.get("ASSUMED_RATE_PLATE_FIXED_MM_YR", 0.5)),
+    }
 
 
 def _geoid_frame() -> int | None:
@@ -89,9 +102,11 @@ def point_convert(**inputs) -> PointConversion:
                 inputs[key] = resolve_grid_choice(inputs[key])
             except UnknownGrid as exc:
                 raise ConversionError(str(exc), code=exc.code, field=key) from None
+    rates = configured_assumed_rates()
     result = convert_point(
         geoid=geoid,
-        assumed_rate_mm_yr=float(settings.REGISTRY.get("ASSUMED_RATE_MM_YR", 2.0)),
+        assumed_rate_mm_yr=rates["assumed_rate_mm_yr"],
+        assumed_rate_plate_fixed_mm_yr=rates["assumed_rate_plate_fixed_mm_yr"],
         plate=asked_plate or configured_plate(),
         plate_explicit=bool(asked_plate),
         **inputs,

@@ -40,12 +40,26 @@ def _end_of(day: dt.date) -> dt.datetime:
     return dt.datetime.combine(day + dt.timedelta(days=1), dt.time.min, tzinfo=dt.UTC)
 
 
+def _effective_day(at: dt.datetime, after: dict) -> dt.date:
+    """The day a status change took effect: the field date it names (a mark made suspect carries the day of
+    the visit or check that made it so, ``suspect_since``), else the day it was recorded (UTC)."""
+    since = after.get("suspect_since") if after.get("status") == "suspect" else None
+    if isinstance(since, str):
+        try:
+            return dt.date.fromisoformat(since[:10])
+        except ValueError:
+            pass
+    return at.astimezone(dt.UTC).date()
+
+
 def status_as_of(marks, as_of: dt.date) -> dict[int, str]:
     """Each mark's status at the end of ``as_of`` (UTC), from the audit trail.
 
     Every status change goes through an audited service that records the status before and after (made
-    suspect, suspicion lifted, retired, recorded destroyed, imports); the first real change after the date
-    holds in its "before" the status the mark had then. With no change since, the status is today's.
+    suspect, suspicion lifted, retired, recorded destroyed, imports). Each change takes effect on its
+    field date where it names one (a suspicion from a visit dated before it was recorded) and otherwise on
+    the day it was recorded. The status at the date is the one the last change in effect by then left;
+    before the first change, the status that change started from; with no change at all, today's.
     Refused attempts (actions ending in ``_refused``) changed nothing and are skipped.
     """
     from registry.models import AuditEvent
@@ -53,25 +67,30 @@ def status_as_of(marks, as_of: dt.date) -> dict[int, str]:
     current = {m.pk: m.status for m in marks}
     if not current or as_of >= dt.datetime.now(dt.UTC).date():
         return current
-    then: dict[int, str] = {}
+    changes: dict[int, list[tuple[dt.date, int, str, str]]] = {}
     events = (
         AuditEvent.objects.filter(
             object_type=Mark._meta.model_name,
             object_id__in=[str(pk) for pk in current],
-            at__gte=_end_of(as_of),
             before__has_key="status",
         )
         .exclude(action__endswith="_refused")
         .order_by("at", "pk")
-        .values_list("object_id", "before", "after")
+        .values_list("object_id", "at", "before", "after")
     )
-    for object_id, before, after in events:
-        pk = int(object_id)
-        if pk in then or not isinstance(before, dict) or not isinstance(after, dict):
+    for n, (object_id, at, before, after) in enumerate(events):
+        if not isinstance(before, dict) or not isinstance(after, dict):
             continue
-        if after.get("status") not in (None, before.get("status")):
-            then[pk] = before["status"]
-    return {pk: then.get(pk, status) for pk, status in current.items()}
+        old, new = before.get("status"), after.get("status")
+        if new is None or new == old:
+            continue
+        changes.setdefault(int(object_id), []).append((_effective_day(at, after), n, str(old), str(new)))
+    status = dict(current)
+    for pk, found in changes.items():
+        found.sort()
+        in_effect = [c for c in found if c[0] <= as_of]
+        status[pk] = in_effect[-1][3] if in_effect else found[0][2]
+    return status
 
 
 def published_as_of(mark_ids, as_of: dt.date):

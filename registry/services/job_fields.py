@@ -84,10 +84,11 @@ NULLABLE = {"grid_epsg", "custom_grid", "grid_spacing_m", "field_date"}
 
 def settings_defaults() -> dict[str, float]:
     """The job defaults that come from ``settings.REGISTRY`` (read at call time, never at import)."""
+    from registry.selectors.conversion import configured_assumed_rates
+
     cfg = settings.REGISTRY
     return {
-        "assumed_rate_mm_yr": float(cfg.get("ASSUMED_RATE_MM_YR", 2.0)),
-        "assumed_rate_plate_fixed_mm_yr": float(cfg.get("ASSUMED_RATE_PLATE_FIXED_MM_YR", 0.5)),
+        **configured_assumed_rates(),
         "max_baseline_m": float(cfg.get("MAX_BASELINE_M", 10_000.0)),
         "recovery_years": float(cfg.get("RECOVERY_YEARS", 10.0)),
     }

@@ -41,7 +41,7 @@ from registry.geodesy.frames import FrameTransformError, format_epoch, transform
 from registry.geodesy.movement import MovementResult, movement_test
 from registry.geodesy.stats import enu_difference_m
 from registry.models import MovementVerdict, Position, PositionState
-from registry.selectors.conversion import configured_plate
+from registry.selectors.conversion import configured_assumed_rates, configured_plate
 
 #: Epochs closer than this are the same epoch (decimal years; about 9 hours).
 SAME_EPOCH_TOLERANCE_YR = 1e-3
@@ -54,6 +54,7 @@ class MovementSettings:
     detectable_h_m: float
     detectable_v_m: float
     assumed_rate_mm_yr: float
+    assumed_rate_plate_fixed_mm_yr: float
 
 
 def movement_settings() -> MovementSettings:
@@ -65,7 +66,7 @@ def movement_settings() -> MovementSettings:
         power=float(conf.get("MOVEMENT_POWER", 0.80)),
         detectable_h_m=float(h_mm) / 1000.0,
         detectable_v_m=float(v_mm) / 1000.0,
-        assumed_rate_mm_yr=float(conf.get("ASSUMED_RATE_MM_YR", 2.0)),
+        **configured_assumed_rates(),
     )
 
 
@@ -261,6 +262,7 @@ def _prepare(
                 velocity_enu_m_yr=velocity,
                 velocity_sigma_enu_m_yr=velocity_sigma,
                 assumed_rate_mm_yr=conf.assumed_rate_mm_yr,
+                assumed_rate_plate_fixed_mm_yr=conf.assumed_rate_plate_fixed_mm_yr,
                 plate=configured_plate(),
             )
         except FrameTransformError as exc:

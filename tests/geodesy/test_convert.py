@@ -111,7 +111,10 @@ def test_command_text_shows_every_form_with_frame_epoch_and_chain():
     assert "NAD83(2011) / UTM zone 12N (EPSG:6341)" in text
     assert "Point scale factor k" in text and "Convergence γ" in text and "+0°17′01.84″" in text
     assert "Chain of operations:" in text and "ITRF2014 to NAD83(2011) (1)" in text
-    assert "σ added 29.0 mm per axis" in text
+    # the 14.5 years are held in NAD83(2011), a plate-fixed frame: the office's plate-fixed rate 0.5 mm/yr
+    # (the default) × 14.5 yr = 7.25 mm per axis (hand), not the dynamic-frame 2 mm/yr (29.0 mm)
+    assert "assumed rate 0.5 mm/yr per axis × 14.500 yr (plate-fixed frame)" in text
+    assert "σ added 7.2 mm per axis" in text or "σ added 7.3 mm per axis" in text
     assert EGM96_LABEL in text and "Cautions:" in text
 
 

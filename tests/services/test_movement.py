@@ -163,8 +163,14 @@ def test_nad83_coordinate_labelled_itrf2014_is_flagged(published, technician, ma
 
 @pytest.mark.django_db
 def test_plate_fixed_50_mm_after_16_9_years_states_its_detectable_movement(published, technician, settings):
-    """Without a velocity the assumed rate × Δt hides 50 mm: the check says how much it could have seen."""
-    settings.REGISTRY = {**settings.REGISTRY, "ASSUMED_RATE_MM_YR": 2.0, "MOVEMENT_DETECTABLE_MM": (20.0, 40.0)}
+    """Without a velocity the assumed rate × Δt hides 50 mm: the check says how much it could have seen.
+    (An office that assumes 2 mm/yr even in its plate-fixed frame; with the default 0.5 mm/yr see below.)"""
+    settings.REGISTRY = {
+        **settings.REGISTRY,
+        "ASSUMED_RATE_MM_YR": 2.0,
+        "ASSUMED_RATE_PLATE_FIXED_MM_YR": 2.0,
+        "MOVEMENT_DETECTABLE_MM": (20.0, 40.0),
+    }
     pub = published()
     lat, lon = offset(0.050, 0.0)
     proposed = Position(mark=pub.mark, **pos(epoch_yr=2026.9, lat_deg=lat, lon_deg=lon))
@@ -178,6 +184,22 @@ def test_plate_fixed_50_mm_after_16_9_years_states_its_detectable_movement(publi
     assert r.detectable_enu_m[0] == pytest.approx(expected_mdb, rel=1e-6)
     assert outcome.above_threshold and any("could not have seen" in w for w in outcome.warnings)
     print(f"50 mm / 16.9 yr, no velocity: T = {r.statistic:.3f}, MDB east = {expected_mdb * 1000:.1f} mm")
+
+
+@pytest.mark.django_db
+def test_plate_fixed_rate_applies_in_a_plate_fixed_frame(published, technician, settings):
+    """Both positions in NAD83(2011), no velocity: the hold is in a plate-fixed frame, so the office's plate-fixed
+    rate (0.5 mm/yr, not the dynamic 2 mm/yr) is added, and the same 50 mm in 16.9 years is flagged."""
+    settings.REGISTRY = {**settings.REGISTRY, "ASSUMED_RATE_MM_YR": 2.0, "ASSUMED_RATE_PLATE_FIXED_MM_YR": 0.5}
+    pub = published()
+    lat, lon = offset(0.050, 0.0)
+    proposed = Position(mark=pub.mark, **pos(epoch_yr=2026.9, lat_deg=lat, lon_deg=lon))
+    outcome = movement_compare(position=proposed, published=comparison_target(proposed))
+    assert outcome.verdict == "possible_movement" and outcome.result.moved_horizontal
+    # σ_e² = 2 × 5² + (0.5 × 16.9)² mm²; T_e = 50² / σ_e² (hand computation, as with the known velocity below)
+    t_e = 50.0**2 / (2 * 25.0 + (0.5 * 16.9) ** 2)
+    assert outcome.result.statistic == pytest.approx(t_e, rel=1e-3)
+    assert any("0.5 mm/yr" in line for line in outcome.frame_chain), outcome.frame_chain
 
 
 @pytest.mark.django_db

@@ -189,6 +189,26 @@ def test_drift_with_assumed_rate_and_with_velocity(viewer):
 
 
 @pytest.mark.django_db
+def test_the_assumed_rate_follows_the_frame_the_coordinates_are_held_in(viewer):
+    """[hand] A NAD83(2011) position of 2010.0 for an ITRF2014 job at 2025.5: held 15.5 yr in its plate-fixed
+    frame (0.5 mm/yr → 7.75 mm), then changed to ITRF2014 at 2025.5 (PROJ's time-dependent transformation
+    carries the plate's motion). An ITRF2014 position of 2020.0 for a NAD83(2011) job at 2025.5: changed at 2020.0,
+    then held 5.5 yr in NAD83(2011) (0.5 mm/yr → 2.75 mm). The job's dynamic rate (2 mm/yr) applies to neither."""
+    make_mark("PF-1", 1500.0, 45.0, frame=6319, epoch=2010.0)
+    make_mark("DY-1", 1500.0, 225.0, frame=7912, epoch=2020.0)
+    make_job(
+        code="J-ITRF", frame_epsg=7912, epoch_yr=2025.5, assumed_rate_mm_yr=2.0, assumed_rate_plate_fixed_mm_yr=0.5
+    )
+    make_job(code="J-NAD", frame_epsg=6319, epoch_yr=2025.5, assumed_rate_mm_yr=2.0, assumed_rate_plate_fixed_mm_yr=0.5)
+    itrf = by_code(job_screen(actor=viewer, code="J-ITRF", as_of=AS_OF))
+    assert itrf["PF-1"].budget["drift"] == {"h": pytest.approx(7.75), "v": pytest.approx(7.75)}
+    assert [s["kind"] for s in itrf["PF-1"].steps] == ["hold", "frame_change"]
+    nad = by_code(job_screen(actor=viewer, code="J-NAD", as_of=AS_OF))
+    assert nad["DY-1"].budget["drift"] == {"h": pytest.approx(2.75), "v": pytest.approx(2.75)}
+    assert [s["kind"] for s in nad["DY-1"].steps] == ["frame_change", "hold"]
+
+
+@pytest.mark.django_db
 def test_other_frame_is_transformed_to_the_jobs(viewer):
     make_mark("IT-1", 1500.0, 45.0, frame=7912, epoch=2025.5)
     make_job()

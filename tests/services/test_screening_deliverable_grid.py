@@ -65,7 +65,7 @@ def test_automatic_utm_takes_the_sites_zone(viewer):
     r = job_screen(actor=viewer, code="J-SCR", as_of=AS_OF)
     aou = pyproj.CRS.from_epsg(6340).area_of_use
     assert aou.west <= -117.5 <= aou.east
-    assert "UTM zone 11N" in r.grid_label
+    assert "UTM zone 11N" in r.grid_label and r.grid_label.endswith("(the site's zone: the job names no grid)")
     assert not [w for w in r.warnings if w.startswith("Deliverable grid")]
 
 

@@ -83,3 +83,21 @@ def test_the_first_change_after_the_date_decides_and_refused_attempts_do_not_cou
         today(): "suspect",
     }
     assert {day: status_as_of([mark], day)[mark.pk] for day in want} == want
+
+
+def test_a_suspicion_takes_effect_on_the_day_of_the_visit_that_raised_it():
+    """A disturbed visit of 3 March recorded in the office on 30 March: as of 10 March the mark was suspect."""
+    mark = Mark.objects.create(
+        code="SA-4", name="Invented SA-4", status=MarkStatus.SUSPECT, search_lat_deg=45.0, search_lon_deg=-110.0
+    )
+    AuditEvent.objects.create(
+        at=dt.datetime(2025, 3, 30, 9, tzinfo=dt.UTC),
+        action="mark_make_suspect",
+        object_type="mark",
+        object_id=str(mark.pk),
+        mark=mark,
+        before={"status": "active"},
+        after={"status": "suspect", "suspect_since": "2025-03-03"},
+    )
+    got = {day: status_as_of([mark], day)[mark.pk] for day in (dt.date(2025, 3, 2), dt.date(2025, 3, 10))}
+    assert got == {dt.date(2025, 3, 2): "active", dt.date(2025, 3, 10): "suspect"}

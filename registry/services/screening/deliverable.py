@@ -33,6 +33,8 @@ def deliverable_grid_at_site(site: Site, *, frame_epsg: int, grid) -> tuple[str,
     except grid_geo.GridError as exc:
         return "", [f"Deliverable grid: it cannot be computed at the site ({exc})."]
     label = g.grid.name if g.grid.epsg is None else crs_label(g.grid.name, g.grid.epsg)
+    if isinstance(grid, str) and grid.lower() == "utm":
+        label += " (the site's zone: the job names no grid)"
     if not g.warnings:
         return label, []
     n_out = int(np.count_nonzero(grid_geo.outside_area(lat, lon, grid=g.grid)))

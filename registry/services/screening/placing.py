@@ -5,8 +5,9 @@ transforms to it (``registry.geodesy.frames.transform_position``, which also mov
 epoch: along the mark's velocity where known; else, in a dynamic frame, with the plate's rigid
 motion from the ITRF2020 plate motion model when ``REGISTRY["PLATE"]`` names a plate; else held).
 Without a velocity the assumed rate × |Δt| is added (the residual motion relative to the plate where
-the model was applied): the job's rate for dynamic frames, its plate-fixed rate for plate-fixed frames
-(``REGISTRY_ASSUMED_RATE_MM_YR`` / ``REGISTRY_ASSUMED_RATE_PLATE_FIXED_MM_YR`` as a new job's defaults). The σ that epoch change adds per axis is the *drift* term (horizontal: the
+the model was applied): the job's rate where the coordinates are held in a dynamic frame, its plate-fixed
+rate where they are held in a plate-fixed one (a plate-fixed position is held in its own frame and changes
+frame at the job's epoch; a dynamic one changes frame first) (``REGISTRY_ASSUMED_RATE_MM_YR`` / ``REGISTRY_ASSUMED_RATE_PLATE_FIXED_MM_YR`` as a new job's defaults). The σ that epoch change adds per axis is the *drift* term (horizontal: the
 larger of east and north). When the position's frame differs from the job's, the frame change's
 stated accuracy (PROJ/EPSG, metres, no confidence level stated) is read as a 1σ per axis and added in
 quadrature to the *base* term (``rtk.frame_change_sigma_mm``; 0 m "exact by definition" and an
@@ -22,7 +23,7 @@ import datetime as dt
 import math
 
 from registry.geodesy import rtk
-from registry.geodesy.frames import FrameTransformError, transform_position
+from registry.geodesy.frames import FrameTransformError, frame_info, transform_position
 from registry.models import Position
 from registry.selectors.screening import MarkRecords
 from registry.services.screening import rules
@@ -81,7 +82,10 @@ def _mm3(values_m: tuple[float, ...]) -> tuple[float, float, float]:
 def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
     """Move position ``p`` to the job's frame and epoch; fill the base and drift terms."""
     velocity = sigma = None
-    rate_mm_yr = s.epoch_rate_mm_yr
+    # a velocity without its σ: the assumed rate of the kind of frame the velocity is given in (the position's)
+    rate_mm_yr = (
+        s.assumed_rate_plate_fixed_mm_yr if frame_info(p.frame_epsg).kind == "plate-fixed" else s.assumed_rate_mm_yr
+    )
     if p.has_velocity:
         velocity = (p.vel_e_m_yr, p.vel_n_m_yr, p.vel_u_m_yr)
         rate_m_yr = rate_mm_yr / 1000.0
@@ -100,7 +104,8 @@ def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
         to_epoch_yr=s.epoch_yr,
         velocity_enu_m_yr=velocity,
         velocity_sigma_enu_m_yr=sigma,
-        assumed_rate_mm_yr=rate_mm_yr,
+        assumed_rate_mm_yr=s.assumed_rate_mm_yr,
+        assumed_rate_plate_fixed_mm_yr=s.assumed_rate_plate_fixed_mm_yr,
         plate=s.plate or None,
     )
     cand.position = p
