@@ -230,7 +230,8 @@ def build_report_pdf(
             f"({'2D RMS' if st_set['rtk_h_meaning'] == 'drms' else 'per axis'}), {st_set['rtk_v_fixed_mm']:.1f} mm + "
             f"{st_set['rtk_v_ppm']:.1f} ppm vertical, {st_set['rtk_combination']}; setup {st_set['setup_h_mm']:.1f} mm "
             f"per axis and {st_set['setup_v_mm']:.1f} mm in height (1σ); unmodelled motion "
-            f"{st_set['assumed_rate_mm_yr']:.1f} mm/yr; longest baseline {st_set['max_baseline_m'] / 1000:.1f} km; "
+            f"{st_set['assumed_rate_mm_yr']:.1f} mm/yr in a dynamic frame, {st_set['assumed_rate_plate_fixed_mm_yr']:.1f} "
+            f"mm/yr in a plate-fixed one (where a mark has no velocity); longest baseline {st_set['max_baseline_m'] / 1000:.1f} km; "
             f"a good visit within {st_set['recovery_years']:.0f} years.",
             "small",
         )

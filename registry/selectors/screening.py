@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass, field
+from typing import Any
 
 from django.db.models import Max, Q
 
@@ -40,10 +41,10 @@ def _end_of(day: dt.date) -> dt.datetime:
     return dt.datetime.combine(day + dt.timedelta(days=1), dt.time.min, tzinfo=dt.UTC)
 
 
-def _effective_day(at: dt.datetime, after: dict) -> dt.date:
-    """The day a status change took effect: the field date it names (a mark made suspect carries the day of
-    the visit or check that made it so, ``suspect_since``), else the day it was recorded (UTC)."""
-    since = after.get("suspect_since") if after.get("status") == "suspect" else None
+def _field_day(at: dt.datetime, new_status: str, after: dict) -> dt.date:
+    """The day a status change says it took effect: the field date it names (a mark made suspect carries the
+    day of the visit or check that made it so, ``suspect_since``), else the day it was recorded (UTC)."""
+    since = after.get("suspect_since") if new_status == "suspect" else None
     if isinstance(since, str):
         try:
             return dt.date.fromisoformat(since[:10])
@@ -52,44 +53,60 @@ def _effective_day(at: dt.datetime, after: dict) -> dt.date:
     return at.astimezone(dt.UTC).date()
 
 
+def _status_change(object_type: str, action: str, before: Any, after: Any) -> tuple[str, str] | None:
+    """(status before, status after) of an audit row that changed a mark's status, else None.
+
+    A mark's own rows carry ``status`` (made suspect, suspicion lifted, retired, recorded destroyed, put back
+    into use); publishing a position that lifts a suspicion records it on the position's row as ``mark_status``.
+    """
+    if not isinstance(before, dict) or not isinstance(after, dict):
+        return None
+    key = "status" if object_type == Mark._meta.model_name else "mark_status" if action == "position_publish" else ""
+    old, new = before.get(key), after.get(key)
+    if not isinstance(old, str) or not isinstance(new, str) or old == new:
+        return None
+    return old, new
+
+
 def status_as_of(marks, as_of: dt.date) -> dict[int, str]:
     """Each mark's status at the end of ``as_of`` (UTC), from the audit trail.
 
-    Every status change goes through an audited service that records the status before and after (made
-    suspect, suspicion lifted, retired, recorded destroyed, imports). Each change takes effect on its
-    field date where it names one (a suspicion from a visit dated before it was recorded) and otherwise on
-    the day it was recorded. The status at the date is the one the last change in effect by then left;
-    before the first change, the status that change started from; with no change at all, today's.
-    Refused attempts (actions ending in ``_refused``) changed nothing and are skipped.
+    Every status change is audited with the status before and after (:func:`_status_change`). Taken in the
+    order they were recorded, each takes effect on its field date where it names one (a suspicion from a
+    visit dated before it was recorded), never before the change recorded ahead of it, otherwise on the day
+    it was recorded. The status at the date is the one the last change in effect by then left; before the
+    first change, the status that change started from; with no change at all, today's. Refused attempts
+    (actions ending in ``_refused``) changed nothing and are skipped.
     """
     from registry.models import AuditEvent
 
     current = {m.pk: m.status for m in marks}
     if not current or as_of >= dt.datetime.now(dt.UTC).date():
         return current
-    changes: dict[int, list[tuple[dt.date, int, str, str]]] = {}
-    events = (
+    rows = (
         AuditEvent.objects.filter(
-            object_type=Mark._meta.model_name,
-            object_id__in=[str(pk) for pk in current],
-            before__has_key="status",
+            Q(object_type=Mark._meta.model_name, before__has_key="status")
+            | Q(action="position_publish", after__has_key="mark_status"),
+            mark_id__in=list(current),
         )
         .exclude(action__endswith="_refused")
         .order_by("at", "pk")
-        .values_list("object_id", "at", "before", "after")
+        .values_list("mark_id", "object_type", "action", "at", "before", "after")
     )
-    for n, (object_id, at, before, after) in enumerate(events):
-        if not isinstance(before, dict) or not isinstance(after, dict):
+    changes: dict[int, list[tuple[dt.date, str, str]]] = {}
+    for mark_id, object_type, action, at, before, after in rows:
+        change = _status_change(object_type, action, before, after)
+        if change is None:
             continue
-        old, new = before.get("status"), after.get("status")
-        if new is None or new == old:
-            continue
-        changes.setdefault(int(object_id), []).append((_effective_day(at, after), n, str(old), str(new)))
+        found = changes.setdefault(mark_id, [])
+        day = _field_day(at, change[1], after)
+        if found:
+            day = max(day, found[-1][0])  # a backdated change does not overtake one recorded before it
+        found.append((day, *change))
     status = dict(current)
     for pk, found in changes.items():
-        found.sort()
         in_effect = [c for c in found if c[0] <= as_of]
-        status[pk] = in_effect[-1][3] if in_effect else found[0][2]
+        status[pk] = in_effect[-1][2] if in_effect else found[0][1]
     return status
 
 

@@ -23,8 +23,9 @@ What is compared with what
   office's threshold (``REGISTRY["MOVEMENT_DETECTABLE_MM"]``, horizontal and vertical), a warning says so.
 
 Settings (``settings.REGISTRY``): ``MOVEMENT_LEVEL`` (α, default 0.05), ``MOVEMENT_POWER`` (default
-0.80), ``MOVEMENT_DETECTABLE_MM`` ((horizontal, vertical), default (20, 40)), ``ASSUMED_RATE_MM_YR``,
-``PLATE``.
+0.80), ``MOVEMENT_DETECTABLE_MM`` ((horizontal, vertical), default (20, 40)), ``ASSUMED_RATE_MM_YR`` and
+``ASSUMED_RATE_PLATE_FIXED_MM_YR`` (by the kind of frame a position is held in, as in conversions and
+screening), ``PLATE``.
 """
 
 from __future__ import annotations
@@ -37,7 +38,7 @@ from django.conf import settings
 from django.db.models import Case, IntegerField, Value, When
 
 from registry.geodesy.accuracy import ComputationInputError
-from registry.geodesy.frames import FrameTransformError, format_epoch, transform_position
+from registry.geodesy.frames import FrameTransformError, format_epoch, frame_info, transform_position
 from registry.geodesy.movement import MovementResult, movement_test
 from registry.geodesy.stats import enu_difference_m
 from registry.models import MovementVerdict, Position, PositionState
@@ -240,8 +241,11 @@ def _prepare(
     source = published if published.has_velocity else (position if same_frame and position.has_velocity else None)
     if source is not None and not same_epoch:
         velocity = (source.vel_e_m_yr, source.vel_n_m_yr, source.vel_u_m_yr)
+        # a velocity without its σ: the assumed rate of the kind of frame it is given in (as screening does)
+        fixed = frame_info(source.frame_epsg).kind == "plate-fixed"
+        rate_m_yr = (conf.assumed_rate_plate_fixed_mm_yr if fixed else conf.assumed_rate_mm_yr) / 1000.0
         velocity_sigma = tuple(
-            conf.assumed_rate_mm_yr / 1000.0 if v is None else v
+            rate_m_yr if v is None else v
             for v in (source.vel_sigma_e_m_yr, source.vel_sigma_n_m_yr, source.vel_sigma_u_m_yr)
         )
         whose = "the published position's velocity" if source is published else "the proposed position's velocity"
@@ -279,7 +283,7 @@ def _prepare(
                 frame_sigma = float(np.hypot(frame_sigma, step.accuracy_m))
         added = np.sqrt(added**2 + frame_sigma**2)
         intro = (
-            f"The published position (position {published.pk}, EPSG:{published.frame_epsg} at epoch "
+            f"The published position (EPSG:{published.frame_epsg} at epoch "
             f"{format_epoch(published.epoch_yr)}) was brought to EPSG:{position.frame_epsg} at epoch "
             f"{format_epoch(position.epoch_yr)}" + (f", along {whose}." if whose else ".")
         )

@@ -203,6 +203,22 @@ def test_plate_fixed_rate_applies_in_a_plate_fixed_frame(published, technician, 
 
 
 @pytest.mark.django_db
+def test_a_velocity_without_its_sigma_takes_the_plate_fixed_rate_in_a_plate_fixed_frame(
+    published, technician, settings
+):
+    """A NAD83(2011) velocity of 0 given without σ: the missing σ is the plate-fixed rate (0.5 mm/yr), as in
+    screening, so the 50 mm are flagged with the same T as with an explicit 0.5 mm/yr σ (hand value below)."""
+    settings.REGISTRY = {**settings.REGISTRY, "ASSUMED_RATE_MM_YR": 2.0, "ASSUMED_RATE_PLATE_FIXED_MM_YR": 0.5}
+    pub = published(vel_e_m_yr=0.0, vel_n_m_yr=0.0, vel_u_m_yr=0.0)
+    lat, lon = offset(0.050, 0.0)
+    proposed = Position(mark=pub.mark, **pos(epoch_yr=2026.9, lat_deg=lat, lon_deg=lon))
+    outcome = movement_compare(position=proposed, published=comparison_target(proposed))
+    assert outcome.used_velocity and outcome.verdict == "possible_movement"
+    t_e = 50.0**2 / (2 * 25.0 + (0.5 * 16.9) ** 2)  # σ_e² = 2 × 5² + (0.5 × 16.9)² mm² (hand)
+    assert outcome.result.statistic == pytest.approx(t_e, rel=1e-3)
+
+
+@pytest.mark.django_db
 def test_plate_fixed_50_mm_with_a_known_velocity_is_flagged(published, technician):
     pub = published(
         vel_e_m_yr=0.0,

@@ -75,3 +75,20 @@ def test_page_shows_the_grid_and_the_warning(viewer, client):
     page = client.get("/jobs/J-SCR/").content.decode()
     assert "Deliverable grid" in page and "NAD83(2011) / UTM zone 12N (EPSG:6341)" in page
     assert "The site is outside the area of use" in page
+
+
+def test_an_ad_hoc_site_has_no_deliverable_grid(viewer):
+    from registry.services.screening import site_screen
+
+    r = site_screen(
+        actor=viewer,
+        data={
+            "site_geojson": square(-114.05, -113.85),  # across two UTM zones: a job would be asked to choose
+            "frame_epsg": 6319,
+            "epoch_yr": 2025.5,
+            "tol_h_mm": 30,
+            "tol_v_mm": 40,
+        },
+        as_of=AS_OF,
+    )
+    assert r.grid_label == "" and not [w for w in r.warnings if w.startswith("Deliverable grid")]

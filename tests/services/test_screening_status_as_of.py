@@ -101,3 +101,99 @@ def test_a_suspicion_takes_effect_on_the_day_of_the_visit_that_raised_it():
     )
     got = {day: status_as_of([mark], day)[mark.pk] for day in (dt.date(2025, 3, 2), dt.date(2025, 3, 10))}
     assert got == {dt.date(2025, 3, 2): "active", dt.date(2025, 3, 10): "suspect"}
+
+
+def _event(mark, at, action, before, after, *, object_type="mark", object_id=None):
+    AuditEvent.objects.create(
+        at=at,
+        action=action,
+        object_type=object_type,
+        object_id=str(mark.pk if object_id is None else object_id),
+        mark=mark,
+        before=before,
+        after=after,
+    )
+
+
+def test_a_suspicion_lifted_by_publishing_a_position_ends_on_that_day():
+    """Publishing a new position lifts a suspicion; the change is recorded on the position's row."""
+    mark = Mark.objects.create(
+        code="SA-5", name="Invented SA-5", status=MarkStatus.ACTIVE, search_lat_deg=45.0, search_lon_deg=-110.0
+    )
+    _event(
+        mark,
+        dt.datetime(2025, 3, 1, 9, tzinfo=dt.UTC),
+        "mark_make_suspect",
+        {"status": "active"},
+        {"status": "suspect", "suspect_since": "2025-03-01"},
+    )
+    _event(
+        mark,
+        dt.datetime(2025, 3, 10, 9, tzinfo=dt.UTC),
+        "position_publish",
+        {"state": "proposed", "mark_status": "suspect"},
+        {"state": "published", "mark_status": "active"},
+        object_type="position",
+        object_id=987654,
+    )
+    got = {day: status_as_of([mark], day)[mark.pk] for day in (dt.date(2025, 3, 5), dt.date(2025, 3, 20))}
+    assert got == {dt.date(2025, 3, 5): "suspect", dt.date(2025, 3, 20): "active"}
+
+
+def test_a_backdated_suspicion_does_not_overtake_a_clearance_recorded_before_it():
+    """Suspect from 1 Feb, cleared on 10 Mar; on 30 Mar a disturbed visit of 5 Mar is entered. The mark has been
+    suspect again since the clearance at the latest: the backdated change takes effect no earlier than 10 Mar."""
+    mark = Mark.objects.create(
+        code="SA-6", name="Invented SA-6", status=MarkStatus.SUSPECT, search_lat_deg=45.0, search_lon_deg=-110.0
+    )
+    _event(
+        mark,
+        dt.datetime(2025, 2, 1, 9, tzinfo=dt.UTC),
+        "mark_make_suspect",
+        {"status": "active"},
+        {"status": "suspect", "suspect_since": "2025-02-01"},
+    )
+    _event(
+        mark,
+        dt.datetime(2025, 3, 10, 9, tzinfo=dt.UTC),
+        "mark_clear_suspect",
+        {"status": "suspect"},
+        {"status": "active"},
+    )
+    _event(
+        mark,
+        dt.datetime(2025, 3, 30, 9, tzinfo=dt.UTC),
+        "mark_make_suspect",
+        {"status": "active"},
+        {"status": "suspect", "suspect_since": "2025-03-05"},
+    )
+    _event(
+        mark, dt.datetime(2025, 4, 2, 9, tzinfo=dt.UTC), "mark_note", {"status": None}, {"status": "retired"}
+    )  # no status before: skipped
+    days = (dt.date(2025, 1, 31), dt.date(2025, 3, 9), dt.date(2025, 3, 20), dt.date(2025, 4, 5))
+    got = {day: status_as_of([mark], day)[mark.pk] for day in days}
+    assert got == dict(zip(days, ["active", "suspect", "suspect", "suspect"], strict=True))
+
+
+def test_a_backdated_suspicion_does_not_reach_back_past_an_earlier_recorded_change():
+    """Retired on 1 Feb, back into use on 10 Mar, then made suspect (recorded 30 Mar) from a visit dated 5 Feb:
+    on 20 Feb the mark was still retired, whatever the visit's date."""
+    mark = Mark.objects.create(
+        code="SA-7", name="Invented SA-7", status=MarkStatus.SUSPECT, search_lat_deg=45.0, search_lon_deg=-110.0
+    )
+    _event(
+        mark, dt.datetime(2025, 2, 1, 9, tzinfo=dt.UTC), "mark_set_status", {"status": "active"}, {"status": "retired"}
+    )
+    _event(
+        mark, dt.datetime(2025, 3, 10, 9, tzinfo=dt.UTC), "mark_set_status", {"status": "retired"}, {"status": "active"}
+    )
+    _event(
+        mark,
+        dt.datetime(2025, 3, 30, 9, tzinfo=dt.UTC),
+        "mark_make_suspect",
+        {"status": "active"},
+        {"status": "suspect", "suspect_since": "2025-02-05"},
+    )
+    days = (dt.date(2025, 1, 31), dt.date(2025, 2, 20), dt.date(2025, 3, 12))
+    got = {day: status_as_of([mark], day)[mark.pk] for day in days}
+    assert got == dict(zip(days, ["active", "retired", "suspect"], strict=True))

@@ -9,6 +9,7 @@ screening states it with its other warnings (page, API, text report, CSV).
 from __future__ import annotations
 
 import numpy as np
+import pyproj
 
 from registry.geodesy import grid as grid_geo
 from registry.geodesy.frames import crs_label
@@ -30,7 +31,7 @@ def deliverable_grid_at_site(site: Site, *, frame_epsg: int, grid) -> tuple[str,
     lat, lon = site_points_deg(site)
     try:
         g = grid_geo.to_grid(lat, lon, frame_epsg=frame_epsg, grid=grid)
-    except grid_geo.GridError as exc:
+    except (grid_geo.GridError, pyproj.exceptions.CRSError, pyproj.exceptions.ProjError) as exc:
         return "", [f"Deliverable grid: it cannot be computed at the site ({exc})."]
     label = g.grid.name if g.grid.epsg is None else crs_label(g.grid.name, g.grid.epsg)
     if isinstance(grid, str) and grid.lower() == "utm":

@@ -49,7 +49,9 @@ def candidates_from_records(records: list[MarkRecords], s: ScreeningSettings, as
             try:
                 place_position(cand, p, s)
             except FrameTransformError as exc:
-                cand.warnings.append(f"Position {p.pk} (EPSG:{p.frame_epsg}): {exc}")
+                cand.warnings.append(
+                    f"{mark.code}: its position in EPSG:{p.frame_epsg} at epoch {p.epoch_yr:.3f} cannot be used: {exc}"
+                )
                 continue
             transformable = True
             break

@@ -55,6 +55,8 @@ def screening_document(result: ScreeningResult) -> dict[str, Any]:
             "assumed_rate_mm_yr": s.assumed_rate_mm_yr,
             "assumed_rate_plate_fixed_mm_yr": s.assumed_rate_plate_fixed_mm_yr,
             "frame_kind": "dynamic" if s.frame_is_dynamic else "plate-fixed",
+            # the rate of the job's kind of frame: the motion term to the field date (an epoch change takes the
+            # rate of the frame the coordinates are held in: the two above)
             "assumed_rate_used_mm_yr": s.epoch_rate_mm_yr,
             "field_date": None if result.field_date is None else result.field_date.isoformat(),
             "field_date_given": s.field_date is not None,

@@ -56,7 +56,10 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
         lat_deg=s.site.ref_lat_deg, lon_deg=s.site.ref_lon_deg, radius_m=radius, as_of=as_of, limit=MAX_CANDIDATES
     )
     cands = candidates_from_records(records, s, as_of)
-    grid_label, warnings = deliverable_grid_at_site(s.site, frame_epsg=s.frame_epsg, grid=s.grid)
+    # an ad-hoc site has no deliverable grid (it is a job setting)
+    grid_label, warnings = (
+        deliverable_grid_at_site(s.site, frame_epsg=s.frame_epsg, grid=s.grid) if s.job_code else ("", [])
+    )
     if not cands:
         return ScreeningResult(
             s,

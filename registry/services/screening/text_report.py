@@ -25,8 +25,9 @@ def text_report(result: ScreeningResult) -> list[str]:
     w(f"  RTK error model: {error_model_words(s)}")
     w(
         f"  base setup {s.model.setup_h_mm:g} / {s.model.setup_v_mm:g} mm, rover pole {s.model.rover_h_mm:g} / "
-        f"{s.model.rover_v_mm:g} mm (1σ, per axis / height); assumed rate {s.epoch_rate_mm_yr:g} mm/yr per axis "
-        f"for marks without a velocity; field date {result.field_date}"
+        f"{s.model.rover_v_mm:g} mm (1σ, per axis / height); assumed rate for marks without a velocity "
+        f"{s.assumed_rate_mm_yr:g} mm/yr per axis in a dynamic frame, {s.assumed_rate_plate_fixed_mm_yr:g} in a "
+        f"plate-fixed one (the frame the coordinates are held in); field date {result.field_date}"
         + ("" if s.field_date else " (the screening date: the job gives none)")
     )
     if s.vertical_deliverable == "orthometric":
