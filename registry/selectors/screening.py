@@ -25,6 +25,7 @@ class MarkRecords:
     ``last_visit_finding``: the finding of its latest visit on or before the date (None: no visit).
     ``last_intact_on``: the day of its latest ``intact`` visit on or before the date (None: none).
     ``status``: its status at the end of the date (:func:`status_as_of`; its current one for today).
+    ``height``: its current orthometric height record to deliver (:func:`preferred_heights`), when asked for.
     """
 
     mark: Mark
@@ -32,6 +33,7 @@ class MarkRecords:
     last_intact_on: dt.date | None
     published: list[Position] = field(default_factory=list)
     status: str = ""
+    height: HeightRecord | None = None
 
     def __post_init__(self) -> None:
         self.status = self.status or self.mark.status
@@ -127,7 +129,7 @@ def published_as_of(mark_ids, as_of: dt.date):
 
 
 def screening_records(
-    *, lat_deg: float, lon_deg: float, radius_m: float, as_of: dt.date, limit: int
+    *, lat_deg: float, lon_deg: float, radius_m: float, as_of: dt.date, limit: int, with_heights: bool = False
 ) -> list[MarkRecords]:
     """The marks within ``radius_m`` of (``lat_deg``, ``lon_deg``), nearest first, with their records."""
     from registry.selectors.nearby import marks_near
@@ -152,6 +154,7 @@ def screening_records(
     for p in published_as_of(ids, as_of).order_by("mark_id", "-epoch_yr", "-id"):
         positions.setdefault(p.mark_id, []).append(p)
     status = status_as_of(marks, as_of)
+    heights = preferred_heights(ids) if with_heights else {}
     return [
         MarkRecords(
             mark=m,
@@ -159,6 +162,7 @@ def screening_records(
             last_intact_on=last_good.get(m.pk),
             published=positions.get(m.pk, []),
             status=status[m.pk],
+            height=heights.get(m.pk),
         )
         for m in marks
     ]

@@ -321,6 +321,42 @@ def test_orthometric_deliverable_adds_the_geoid_term(viewer, settings):
     assert by_code(job_screen(actor=viewer, code="J-ELL", as_of=AS_OF))["NB-1"].budget["geoid"]["v"] == 0.0
 
 
+def test_orthometric_deliverable_holds_the_bases_height_record(viewer, settings):
+    """[hand] With orthometric heights delivered, a base that has an orthometric height on record is held at it:
+    its σ replaces the ellipsoidal 5 mm in the vertical base term (H_rover = H_base + Δh − ΔN; ΔN is the geoid
+    term). Levelled 3 mm: V95 = 1.959964·√(256 + 9 + 9 + 9 + 225) = 1.959964·√508 = 44.1752 mm. Geoid-derived
+    with a global model, 80 mm: √(256 + 6400 + 9 + 9 + 225) = √6899 → 162.7960 mm. No record: the 5 mm, 44.8656 mm
+    as in the test above. An ellipsoidal deliverable ignores the records."""
+    from registry.models import HeightRecord
+
+    settings.REGISTRY = {**settings.REGISTRY, "GEOID_NAME": "Office hybrid geoid", "GEOID_SIGMA_MM": 15.0}
+    for code, az in (("LV-1", 0.0), ("GD-1", 120.0), ("NO-1", 240.0)):
+        make_mark(code, 1000.0, az)
+    HeightRecord.objects.create(
+        mark=Mark.objects.get(code="LV-1"), datum_epsg=5703, height_m=1512.3, sigma_m=0.003, method="levelled"
+    )
+    HeightRecord.objects.create(
+        mark=Mark.objects.get(code="GD-1"),
+        datum_epsg=5703,
+        height_m=1511.0,
+        sigma_m=0.080,
+        method="geoid",
+        geoid_model="invented global model",
+    )
+    make_job(vertical_deliverable="orthometric")
+    r = by_code(job_screen(actor=viewer, code="J-SCR", as_of=AS_OF))
+    assert r["LV-1"].budget["base"]["v"] == pytest.approx(3.0)
+    assert r["LV-1"].v95_mm == pytest.approx(K_V * math.sqrt(508), abs=2e-3)
+    assert "levelled orthometric height (NAVD88 height (EPSG:5703)), σ 3.0 mm" in r["LV-1"].base_description()
+    assert r["GD-1"].v95_mm == pytest.approx(K_V * math.sqrt(6899), abs=2e-3)
+    assert "geoid model invented global model" in r["GD-1"].base_description()
+    assert r["NO-1"].v95_mm == pytest.approx(K_V * math.sqrt(524), abs=2e-3)
+    assert r["NO-1"].height_note == ""
+    make_job(code="J-ELL")
+    ell = by_code(job_screen(actor=viewer, code="J-ELL", as_of=AS_OF))
+    assert ell["LV-1"].budget["base"]["v"] == pytest.approx(5.0) and ell["LV-1"].height_note == ""
+
+
 def test_control_export_carries_grid_factor_and_levelled_height(viewer):
     """Grid coordinates and scale factor against pyproj directly (EPSG:6319 → EPSG:6341, UTM 12N, and
     Proj.get_factors); elevation factor written out: R = √(ρν) on GRS80 at the mark's latitude,

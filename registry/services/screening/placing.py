@@ -22,6 +22,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 
+from registry.formatting import format_frame
 from registry.geodesy import rtk
 from registry.geodesy.frames import FrameTransformError, frame_info, transform_position
 from registry.models import Position
@@ -55,6 +56,8 @@ def candidates_from_records(records: list[MarkRecords], s: ScreeningSettings, as
                 continue
             transformable = True
             break
+        if transformable and s.vertical_deliverable == "orthometric" and rec.height is not None:
+            hold_orthometric_height(cand, rec.height)
         good = rec.last_intact_on
         facts = rules.MarkFacts(
             status=rec.status,  # as of the screening's date
@@ -73,6 +76,20 @@ def candidates_from_records(records: list[MarkRecords], s: ScreeningSettings, as
             cand.lat_deg, cand.lon_deg = mark.search_lat_deg, mark.search_lon_deg
         out.append(cand)
     return out
+
+
+def hold_orthometric_height(cand: Candidate, height) -> None:
+    """Orthometric heights delivered from a base that has one on record: the crew holds that height, so its σ is
+    the base's vertical term (in place of the ellipsoidal σ and any frame change, which do not reach a height in
+    a vertical datum). The rover's H = H_base + Δh − ΔN: the relative geoid error ΔN is the separate geoid term."""
+    sigma_mm = float(height.sigma_m) * 1000.0
+    if height.method == "levelled":
+        what = f"its levelled orthometric height ({format_frame(height.datum_epsg)}), σ {sigma_mm:.1f} mm"
+    else:
+        model = f" {height.geoid_model}" if height.geoid_model else ""
+        what = f"its orthometric height from the geoid model{model} ({format_frame(height.datum_epsg)}), σ {sigma_mm:.1f} mm"
+    cand.base_v_mm = sigma_mm
+    cand.height_note = what + ", held instead of the ellipsoidal σ"
 
 
 def _mm3(values_m: tuple[float, ...]) -> tuple[float, float, float]:

@@ -38,6 +38,9 @@ class Candidate:
     position_v_mm: float = math.nan
     frame_change_mm: float = 0.0
     frame_change_note: str = ""
+    #: When orthometric heights are delivered and the mark has an orthometric height on record: its source and σ,
+    #: which replace the ellipsoidal σ in the vertical base term.
+    height_note: str = ""
     #: Largest |Δh| (m) from the base to the site's given heights (NaN when the site has none).
     max_dh_m: float = math.nan
     steps: list[dict] = field(default_factory=list)
@@ -99,6 +102,8 @@ class Candidate:
         text = "published position's σ from its covariance (horizontal √λmax of east/north, vertical √σ²up)"
         if self.frame_change_note:
             text += "; " + self.frame_change_note
+        if self.height_note:
+            text += "; vertical: " + self.height_note
         return text
 
 

@@ -53,7 +53,12 @@ def run_screening(s: ScreeningSettings, *, as_of: dt.date | None = None) -> Scre
         raise ValidationError({"grid_spacing_m": ValidationError(exc.message, code=exc.code)}) from None
     radius = site_geo.site_radius_m(s.site, plane) + SEARCH_FACTOR * s.max_baseline_m
     records = screening_records(
-        lat_deg=s.site.ref_lat_deg, lon_deg=s.site.ref_lon_deg, radius_m=radius, as_of=as_of, limit=MAX_CANDIDATES
+        lat_deg=s.site.ref_lat_deg,
+        lon_deg=s.site.ref_lon_deg,
+        radius_m=radius,
+        as_of=as_of,
+        limit=MAX_CANDIDATES,
+        with_heights=s.vertical_deliverable == "orthometric",
     )
     cands = candidates_from_records(records, s, as_of)
     # an ad-hoc site has no deliverable grid (it is a job setting)

@@ -29,7 +29,11 @@ CAUTIONS = (
 #: the motion term's too: ``Candidate.motion_note``).
 BUDGET_TERM_DESCRIPTIONS = (
     ("rtk", "receiver a + b·d at the farthest site point (job's error model)"),
-    ("base", "published position's σ from its covariance, plus any frame change's stated accuracy"),
+    (
+        "base",
+        "published position's σ from its covariance, plus any frame change's stated accuracy; vertically, when "
+        "orthometric heights are delivered, the σ of the base's orthometric height on record, if it has one",
+    ),
     ("drift", "coordinate epoch to the deliverable epoch (velocity σ × |Δt|, or the assumed rate × |Δt|)"),
     (
         "motion",
