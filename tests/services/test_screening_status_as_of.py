@@ -85,22 +85,15 @@ def test_the_first_change_after_the_date_decides_and_refused_attempts_do_not_cou
     assert {day: status_as_of([mark], day)[mark.pk] for day in want} == want
 
 
-def test_a_suspicion_takes_effect_on_the_day_of_the_visit_that_raised_it():
-    """A disturbed visit of 3 March recorded in the office on 30 March: as of 10 March the mark was suspect."""
-    mark = Mark.objects.create(
-        code="SA-4", name="Invented SA-4", status=MarkStatus.SUSPECT, search_lat_deg=45.0, search_lon_deg=-110.0
+def _mark(code, status):
+    return Mark.objects.create(
+        code=code, name=f"Invented {code}", status=status, search_lat_deg=45.0, search_lon_deg=-110.0
     )
-    AuditEvent.objects.create(
-        at=dt.datetime(2025, 3, 30, 9, tzinfo=dt.UTC),
-        action="mark_make_suspect",
-        object_type="mark",
-        object_id=str(mark.pk),
-        mark=mark,
-        before={"status": "active"},
-        after={"status": "suspect", "suspect_since": "2025-03-03"},
-    )
-    got = {day: status_as_of([mark], day)[mark.pk] for day in (dt.date(2025, 3, 2), dt.date(2025, 3, 10))}
-    assert got == {dt.date(2025, 3, 2): "active", dt.date(2025, 3, 10): "suspect"}
+
+
+def _on(month, day):
+    """9:00 UTC on that day of 2025: when an audit row was recorded."""
+    return dt.datetime(2025, month, day, 9, tzinfo=dt.UTC)
 
 
 def _event(mark, at, action, before, after, *, object_type="mark", object_id=None):
@@ -115,85 +108,59 @@ def _event(mark, at, action, before, after, *, object_type="mark", object_id=Non
     )
 
 
+def _change(mark, at, action, old, new):
+    _event(mark, at, action, {"status": old}, {"status": new})
+
+
+def _made_suspect(mark, at, since):
+    _event(mark, at, "mark_make_suspect", {"status": "active"}, {"status": "suspect", "suspect_since": since})
+
+
+def _status_on(mark, *days):
+    return [status_as_of([mark], day)[mark.pk] for day in days]
+
+
+def test_a_suspicion_takes_effect_on_the_day_of_the_visit_that_raised_it():
+    """A disturbed visit of 3 March recorded in the office on 30 March: as of 10 March the mark was suspect."""
+    mark = _mark("SA-4", MarkStatus.SUSPECT)
+    _made_suspect(mark, _on(3, 30), "2025-03-03")
+    assert _status_on(mark, dt.date(2025, 3, 2), dt.date(2025, 3, 10)) == ["active", "suspect"]
+
+
 def test_a_suspicion_lifted_by_publishing_a_position_ends_on_that_day():
     """Publishing a new position lifts a suspicion; the change is recorded on the position's row."""
-    mark = Mark.objects.create(
-        code="SA-5", name="Invented SA-5", status=MarkStatus.ACTIVE, search_lat_deg=45.0, search_lon_deg=-110.0
-    )
+    mark = _mark("SA-5", MarkStatus.ACTIVE)
+    _made_suspect(mark, _on(3, 1), "2025-03-01")
     _event(
         mark,
-        dt.datetime(2025, 3, 1, 9, tzinfo=dt.UTC),
-        "mark_make_suspect",
-        {"status": "active"},
-        {"status": "suspect", "suspect_since": "2025-03-01"},
-    )
-    _event(
-        mark,
-        dt.datetime(2025, 3, 10, 9, tzinfo=dt.UTC),
+        _on(3, 10),
         "position_publish",
         {"state": "proposed", "mark_status": "suspect"},
         {"state": "published", "mark_status": "active"},
         object_type="position",
         object_id=987654,
     )
-    got = {day: status_as_of([mark], day)[mark.pk] for day in (dt.date(2025, 3, 5), dt.date(2025, 3, 20))}
-    assert got == {dt.date(2025, 3, 5): "suspect", dt.date(2025, 3, 20): "active"}
+    assert _status_on(mark, dt.date(2025, 3, 5), dt.date(2025, 3, 20)) == ["suspect", "active"]
 
 
 def test_a_backdated_suspicion_does_not_overtake_a_clearance_recorded_before_it():
     """Suspect from 1 Feb, cleared on 10 Mar; on 30 Mar a disturbed visit of 5 Mar is entered. The mark has been
     suspect again since the clearance at the latest: the backdated change takes effect no earlier than 10 Mar."""
-    mark = Mark.objects.create(
-        code="SA-6", name="Invented SA-6", status=MarkStatus.SUSPECT, search_lat_deg=45.0, search_lon_deg=-110.0
-    )
-    _event(
-        mark,
-        dt.datetime(2025, 2, 1, 9, tzinfo=dt.UTC),
-        "mark_make_suspect",
-        {"status": "active"},
-        {"status": "suspect", "suspect_since": "2025-02-01"},
-    )
-    _event(
-        mark,
-        dt.datetime(2025, 3, 10, 9, tzinfo=dt.UTC),
-        "mark_clear_suspect",
-        {"status": "suspect"},
-        {"status": "active"},
-    )
-    _event(
-        mark,
-        dt.datetime(2025, 3, 30, 9, tzinfo=dt.UTC),
-        "mark_make_suspect",
-        {"status": "active"},
-        {"status": "suspect", "suspect_since": "2025-03-05"},
-    )
-    _event(
-        mark, dt.datetime(2025, 4, 2, 9, tzinfo=dt.UTC), "mark_note", {"status": None}, {"status": "retired"}
-    )  # no status before: skipped
+    mark = _mark("SA-6", MarkStatus.SUSPECT)
+    _made_suspect(mark, _on(2, 1), "2025-02-01")
+    _change(mark, _on(3, 10), "mark_clear_suspect", "suspect", "active")
+    _made_suspect(mark, _on(3, 30), "2025-03-05")
+    _change(mark, _on(4, 2), "mark_note", None, "retired")  # no status before: skipped
     days = (dt.date(2025, 1, 31), dt.date(2025, 3, 9), dt.date(2025, 3, 20), dt.date(2025, 4, 5))
-    got = {day: status_as_of([mark], day)[mark.pk] for day in days}
-    assert got == dict(zip(days, ["active", "suspect", "suspect", "suspect"], strict=True))
+    assert _status_on(mark, *days) == ["active", "suspect", "suspect", "suspect"]
 
 
 def test_a_backdated_suspicion_does_not_reach_back_past_an_earlier_recorded_change():
     """Retired on 1 Feb, back into use on 10 Mar, then made suspect (recorded 30 Mar) from a visit dated 5 Feb:
     on 20 Feb the mark was still retired, whatever the visit's date."""
-    mark = Mark.objects.create(
-        code="SA-7", name="Invented SA-7", status=MarkStatus.SUSPECT, search_lat_deg=45.0, search_lon_deg=-110.0
-    )
-    _event(
-        mark, dt.datetime(2025, 2, 1, 9, tzinfo=dt.UTC), "mark_set_status", {"status": "active"}, {"status": "retired"}
-    )
-    _event(
-        mark, dt.datetime(2025, 3, 10, 9, tzinfo=dt.UTC), "mark_set_status", {"status": "retired"}, {"status": "active"}
-    )
-    _event(
-        mark,
-        dt.datetime(2025, 3, 30, 9, tzinfo=dt.UTC),
-        "mark_make_suspect",
-        {"status": "active"},
-        {"status": "suspect", "suspect_since": "2025-02-05"},
-    )
+    mark = _mark("SA-7", MarkStatus.SUSPECT)
+    _change(mark, _on(2, 1), "mark_set_status", "active", "retired")
+    _change(mark, _on(3, 10), "mark_set_status", "retired", "active")
+    _made_suspect(mark, _on(3, 30), "2025-02-05")
     days = (dt.date(2025, 1, 31), dt.date(2025, 2, 20), dt.date(2025, 3, 12))
-    got = {day: status_as_of([mark], day)[mark.pk] for day in days}
-    assert got == dict(zip(days, ["active", "retired", "suspect"], strict=True))
+    assert _status_on(mark, *days) == ["active", "retired", "suspect"]
