@@ -31,6 +31,9 @@ ANTENNA: DELTA H/E/N       3F14.4: antenna height (marker → ARP) and east/nort
 INTERVAL                   F10.3: observation interval, s
 TIME OF FIRST OBS          5I6, F13.7, 5X, A3: year, month, day, hour, minute, second, time system
 TIME OF LAST OBS           same
+LEAP SECONDS               I6: the current number of leap seconds (2.11: GPS − UTC; 3.x/4.x: then the
+                           future count, its week and day, and A3 the system it refers to, GPS when blank,
+                           or BDS: BDT − UTC); when present it is used instead of the table below
 # / TYPES OF OBSERV        2.11: I6, 9(4X, A2); continuation lines 6X, 9(4X, A2)
 SYS / # / OBS TYPES        3.x/4.x: A1, 2X, I3, 13(1X, A3); continuation lines 7X, 13(1X, A3)
 END OF HEADER              (last record of the header)
@@ -38,8 +41,10 @@ END OF HEADER              (last record of the header)
 
 Times: the header gives them in the file's time system (``GPS`` by default for GPS and mixed files,
 ``GLO`` = UTC for GLONASS-only files, ``GAL`` and ``QZS`` aligned with GPS time, ``BDT`` = GPS − 14 s).
-They are converted to UTC with the GPS − UTC leap-second count (IERS Bulletin C; the table below is
-from memory, 18 s since 2017-01-01). Positions: the approximate position is in metres, geocentric
+They are converted to UTC with the GPS − UTC leap-second count: the file's own ``LEAP SECONDS`` record
+when it has one (receivers write the count they decoded from the satellites' messages, so a leap second
+added after this code was written is still right), else IERS Bulletin C's (the table below is from
+memory, 18 s since 2017-01-01). Positions: the approximate position is in metres, geocentric
 (the specifications call it ITRF; it is only approximate and serves as a plausibility check).
 
 >>> def rec(content, label):
@@ -149,6 +154,8 @@ class RinexHeader:
     first_obs_utc: _dt.datetime | None = None
     last_obs_utc: _dt.datetime | None = None
     time_system: str = ""
+    #: GPS − UTC in seconds from the file's LEAP SECONDS record (None: not given; the table applies).
+    leap_seconds_s: int | None = None
     obs_types: dict[str, list[str]] = field(default_factory=dict)
     header_lines: int = 0
     compressed: str = ""  # "gzip" or ""
@@ -218,14 +225,23 @@ def gps_minus_utc_s(at_utc: _dt.datetime) -> int:
     return offset
 
 
-def to_utc(stamp: _dt.datetime, time_system: str) -> _dt.datetime:
-    """A header time (naive, in ``time_system``) as an aware UTC datetime."""
+def to_utc(stamp: _dt.datetime, time_system: str, leap_seconds_s: int | None = None) -> _dt.datetime:
+    """A header time (naive, in ``time_system``) as an aware UTC datetime.
+
+    ``leap_seconds_s``: GPS − UTC as the file states it (its LEAP SECONDS record); None: the table's.
+
+    >>> to_utc(_dt.datetime(2025, 6, 9, 14, 0, 0), "GPS")
+    datetime.datetime(2025, 6, 9, 13, 59, 42, tzinfo=datetime.timezone.utc)
+    >>> to_utc(_dt.datetime(2025, 6, 9, 14, 0, 0), "GPS", leap_seconds_s=19)
+    datetime.datetime(2025, 6, 9, 13, 59, 41, tzinfo=datetime.timezone.utc)
+    """
     stamp = stamp.replace(tzinfo=_dt.UTC)
     if time_system in ("GLO", "UTC"):
         return stamp
     gps = stamp - _dt.timedelta(seconds=_SYSTEM_MINUS_GPS_S.get(time_system, 0.0))
     # The leap-second count is looked up at the (nearly equal) GPS time itself.
-    return gps - _dt.timedelta(seconds=gps_minus_utc_s(gps))
+    leap = gps_minus_utc_s(gps) if leap_seconds_s is None else leap_seconds_s
+    return gps - _dt.timedelta(seconds=leap)
 
 
 # ----------------------------------------------------------------------------- reading the bytes
@@ -426,6 +442,16 @@ def parse_rinex_header(data: bytes) -> RinexHeader:
             stamp, system = _time(line, index, "Time of last observation")
             header.last_obs_utc = stamp
             header.time_system = header.time_system or system
+        elif label == "LEAP SECONDS":
+            count = _int(line, 0, 6, "Leap seconds", index)
+            if count is not None:
+                # 3.x/4.x: a count that refers to BeiDou time is BDT − UTC, 14 s less than GPS − UTC
+                refers_to = line[24:27].strip().upper() if major >= 3 else ""
+                header.leap_seconds_s = count + 14 if refers_to == "BDS" else count
+                if not 0 <= header.leap_seconds_s <= 100:
+                    raise RinexError(
+                        "bad_number", f"Leap seconds: {count} is not a possible count (GPS − UTC).", line=index
+                    )
         elif label == "# / TYPES OF OBSERV" and major == 2:
             count = _int(line, 0, 6, "Number of observation types", index)
             if count is not None:
@@ -482,9 +508,9 @@ def _finish(header: RinexHeader) -> None:
         raise RinexError("bad_time_system", f"Unknown time system {header.time_system!r}.")
     if header.first_obs_utc is None:
         raise RinexError("no_first_obs", "The header has no 'TIME OF FIRST OBS' record (required by the format).")
-    header.first_obs_utc = to_utc(header.first_obs_utc, header.time_system)
+    header.first_obs_utc = to_utc(header.first_obs_utc, header.time_system, header.leap_seconds_s)
     if header.last_obs_utc is not None:
-        header.last_obs_utc = to_utc(header.last_obs_utc, header.time_system)
+        header.last_obs_utc = to_utc(header.last_obs_utc, header.time_system, header.leap_seconds_s)
         if header.last_obs_utc < header.first_obs_utc:
             raise RinexError(
                 "end_before_start",

@@ -103,6 +103,43 @@ def test_leap_second_table_edges():
     assert gps_minus_utc_s(dt.datetime(2017, 1, 1, tzinfo=UTC)) == 18
 
 
+def _without_leap_record(lines: list[str]) -> list[str]:
+    return [line for line in lines if line[60:].strip() != "LEAP SECONDS"]
+
+
+def _with_leap_record(lines: list[str], content: str) -> list[str]:
+    lines = _without_leap_record(lines)
+    end = next(i for i, line in enumerate(lines) if line[60:].strip() == "END OF HEADER")
+    return [*lines[:end], rec(content, "LEAP SECONDS"), *lines[end:]]
+
+
+def test_the_files_leap_seconds_record_is_used_instead_of_the_table():
+    """The LEAP SECONDS record (RINEX 2.11 Table A1: I6, GPS − UTC; RINEX 3.05 Table A2: I6 current count, three
+    more I6 for a future one, A3 the system it refers to, GPS when blank, BDS for BeiDou time; from memory of the
+    specifications). A file that states 19 s (a leap second after the table's last, 2017-01-01) gives UTC one
+    second earlier than the table's 18 s; one that states 18 s gives the table's time."""
+    base = dt.datetime(2025, 6, 9, 14, 0, 0, tzinfo=UTC)
+    for header, content, offset in (
+        (v3_header(), f"{19:6d}", 19),
+        (v3_header(), f"{18:6d}{19:6d}{2400:6d}{7:6d}GPS", 18),
+        (v3_header(), f"{5:6d}{'':18}BDS", 19),  # BDT − UTC 5 s → GPS − UTC 19 s
+        (v2_header(), f"{19:6d}", 19),
+    ):
+        lines = replace_record(
+            header, "TIME OF FIRST OBS", time_rec(2025, 6, 9, 14, 0, 0.0, "GPS", "TIME OF FIRST OBS")
+        )
+        lines = replace_record(lines, "TIME OF LAST OBS", time_rec(2025, 6, 9, 20, 0, 0.0, "GPS", "TIME OF LAST OBS"))
+        h = parse_rinex_header(text(_with_leap_record(lines, content)))
+        assert h.leap_seconds_s == offset
+        assert h.first_obs_utc == base - dt.timedelta(seconds=offset), content
+    first = time_rec(2025, 6, 9, 14, 0, 0.0, "GPS", "TIME OF FIRST OBS")
+    no_record = parse_rinex_header(text(_without_leap_record(replace_record(v3_header(), "TIME OF FIRST OBS", first))))
+    assert no_record.leap_seconds_s is None and no_record.first_obs_utc == base - dt.timedelta(seconds=18)
+    with pytest.raises(RinexError) as info:
+        parse_rinex_header(text(_with_leap_record(v3_header(), f"{-3:6d}")))
+    assert info.value.code == "bad_number" and "Leap seconds" in str(info.value)
+
+
 def code_of(data: bytes) -> str:
     with pytest.raises(RinexError) as info:
         parse_rinex_header(data)
