@@ -43,6 +43,16 @@ def _byte_range(data: bytes) -> list[int]:
     return [int(v) for v in sig["/ByteRange"]]
 
 
+def _der_prefix(padded: bytes) -> bytes:
+    """The DER value at the start of ``padded`` (tag, definite length, content), without what follows it."""
+    first = padded[1]
+    if first < 0x80:
+        return padded[: 2 + first]
+    n = first & 0x7F
+    length = int.from_bytes(padded[2 : 2 + n], "big")
+    return padded[: 2 + n + length]
+
+
 def test_signature_validates_against_the_office_authority(signed_sheet, office):
     data = bytes(signed_sheet.content)
     check = check_signature(data, trust_root_pems=[office["ca"].certificate_pem])
@@ -59,7 +69,9 @@ def test_pades_baseline_ecdsa_p256_sha256_chain_embedded_visible(signed_sheet, o
     field = reader.trailer["/Root"]["/AcroForm"]["/Fields"][0].get_object()
     sig = field["/V"]
     assert sig["/SubFilter"] == "/ETSI.CAdES.detached"  # PAdES (ETSI EN 319 142-1)
-    signed_data = cms.ContentInfo.load(bytes(sig["/Contents"]).rstrip(b"\x00"))["content"]
+    # /Contents is the DER signature padded with zero bytes to its reserved size; the DER length says where
+    # it ends (stripping trailing zeros would also cut a signature whose own last byte is 0x00, 1 in 256)
+    signed_data = cms.ContentInfo.load(_der_prefix(bytes(sig["/Contents"])))["content"]
     signer = signed_data["signer_infos"][0]
     assert signer["digest_algorithm"]["algorithm"].native == "sha256"
     assert (
