@@ -69,6 +69,7 @@ __all__ = [
     "change_frame",
     "propagate_velocity",
     "transform_position",
+    "assumed_rate_in",
     "decimal_year_to_date",
     "format_epoch",
 ]
@@ -335,6 +336,19 @@ def propagate_velocity(lat_deg, lon_deg, h_m, *, velocity_enu_m_yr, dt_yr, ellip
     return ecef_to_geodetic(x + dx, y + dy, z + dz, ellipsoid=ellipsoid)
 
 
+def assumed_rate_in(epsg: int, *, dynamic_mm_yr: float, plate_fixed_mm_yr: float | None) -> float:
+    """The assumed unmodelled rate (mm/yr per axis) for coordinates held, or a velocity given, in frame ``epsg``:
+    ``plate_fixed_mm_yr`` in a plate-fixed frame (None: the dynamic rate), ``dynamic_mm_yr`` in a dynamic
+    frame or a datum ensemble.
+
+    >>> assumed_rate_in(6319, dynamic_mm_yr=2.0, plate_fixed_mm_yr=0.5), assumed_rate_in(7912, dynamic_mm_yr=2.0, plate_fixed_mm_yr=0.5)
+    (0.5, 2.0)
+    """
+    if plate_fixed_mm_yr is not None and frame_info(epsg).kind == "plate-fixed":
+        return float(plate_fixed_mm_yr)
+    return float(dynamic_mm_yr)
+
+
 def transform_position(
     lat_deg,
     lon_deg,
@@ -443,7 +457,9 @@ def transform_position(
     def _hold(frame: FrameInfo, la, lo, hh):
         nonlocal sig, unmodelled_hold_yr
         moving = frame.dynamic or frame.ensemble
-        rate_mm_yr = float(assumed_rate_mm_yr) if moving else fixed_rate_mm_yr
+        rate_mm_yr = assumed_rate_in(
+            frame.epsg, dynamic_mm_yr=assumed_rate_mm_yr, plate_fixed_mm_yr=assumed_rate_plate_fixed_mm_yr
+        )
         added = rate_mm_yr / 1000.0 * abs(dt)
         sig = (np.sqrt(sig[0] ** 2 + added**2), np.sqrt(sig[1] ** 2 + added**2), np.sqrt(sig[2] ** 2 + added**2))
         if plate_code is not None and (frame.dynamic or frame.ensemble):

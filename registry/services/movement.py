@@ -38,7 +38,7 @@ from django.conf import settings
 from django.db.models import Case, IntegerField, Value, When
 
 from registry.geodesy.accuracy import ComputationInputError
-from registry.geodesy.frames import FrameTransformError, format_epoch, frame_info, transform_position
+from registry.geodesy.frames import FrameTransformError, assumed_rate_in, format_epoch, transform_position
 from registry.geodesy.movement import MovementResult, movement_test
 from registry.geodesy.stats import enu_difference_m
 from registry.models import MovementVerdict, Position, PositionState
@@ -242,8 +242,14 @@ def _prepare(
     if source is not None and not same_epoch:
         velocity = (source.vel_e_m_yr, source.vel_n_m_yr, source.vel_u_m_yr)
         # a velocity without its σ: the assumed rate of the kind of frame it is given in (as screening does)
-        fixed = frame_info(source.frame_epsg).kind == "plate-fixed"
-        rate_m_yr = (conf.assumed_rate_plate_fixed_mm_yr if fixed else conf.assumed_rate_mm_yr) / 1000.0
+        rate_m_yr = (
+            assumed_rate_in(
+                source.frame_epsg,
+                dynamic_mm_yr=conf.assumed_rate_mm_yr,
+                plate_fixed_mm_yr=conf.assumed_rate_plate_fixed_mm_yr,
+            )
+            / 1000.0
+        )
         velocity_sigma = tuple(
             rate_m_yr if v is None else v
             for v in (source.vel_sigma_e_m_yr, source.vel_sigma_n_m_yr, source.vel_sigma_u_m_yr)

@@ -24,7 +24,7 @@ import math
 
 from registry.formatting import format_frame
 from registry.geodesy import rtk
-from registry.geodesy.frames import FrameTransformError, frame_info, transform_position
+from registry.geodesy.frames import FrameTransformError, assumed_rate_in, transform_position
 from registry.models import Position
 from registry.selectors.screening import MarkRecords
 from registry.services.screening import rules
@@ -102,8 +102,8 @@ def place_position(cand: Candidate, p: Position, s: ScreeningSettings) -> None:
     """Move position ``p`` to the job's frame and epoch; fill the base and drift terms."""
     velocity = sigma = None
     # a velocity without its σ: the assumed rate of the kind of frame the velocity is given in (the position's)
-    rate_mm_yr = (
-        s.assumed_rate_plate_fixed_mm_yr if frame_info(p.frame_epsg).kind == "plate-fixed" else s.assumed_rate_mm_yr
+    rate_mm_yr = assumed_rate_in(
+        p.frame_epsg, dynamic_mm_yr=s.assumed_rate_mm_yr, plate_fixed_mm_yr=s.assumed_rate_plate_fixed_mm_yr
     )
     if p.has_velocity:
         velocity = (p.vel_e_m_yr, p.vel_n_m_yr, p.vel_u_m_yr)
